@@ -1,0 +1,1 @@
+"""Error budgets for structured quantum circuits."""

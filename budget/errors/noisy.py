@@ -1,0 +1,205 @@
+"""A circuit with its error model applied: what every engine consumes.
+
+Each operation carries its own channel, in this order (design.md §2):
+ideal gate → coherent unitary → depolarizing (average infidelity r) → T1/T2 relaxation for the
+operation's duration on each of its qubits. Each layer then lets every qubit relax for the part of
+the layer's duration it did not spend in a gate (idle relaxation, family ``"idle"``).
+
+Conventions: matrices in gate order, first qubit most significant (cirq's convention).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Iterator, Union
+
+import numpy as np
+
+from budget.circuit.ir import Operation
+
+IDLE = "idle"
+"""Family name of idle relaxation."""
+
+
+@dataclass(frozen=True)
+class Relaxation:
+    """T1/T2 relaxation of one qubit for a stretch of time.
+
+    Amplitude damping with γ = 1 - exp(-t/T1), then pure dephasing that multiplies the coherence
+    by ``dephasing_factor`` = exp(-t/Tφ), 1/Tφ = 1/T2 - 1/(2 T1). Overall the coherence decays by
+    sqrt(1-γ)·exp(-t/Tφ) = exp(-t/T2).
+
+    Attributes:
+        qubit: qubit index.
+        duration_ns: the stretch of time.
+        gamma: amplitude-damping probability in [0, 1].
+        dephasing_factor: pure-dephasing coherence factor in [0, 1] (1 = none).
+    """
+
+    qubit: int
+    duration_ns: float
+    gamma: float
+    dephasing_factor: float
+
+    @property
+    def is_trivial(self) -> bool:
+        return self.gamma == 0.0 and self.dephasing_factor == 1.0
+
+    def kraus(self) -> list[np.ndarray]:
+        """Kraus operators of amplitude damping followed by pure dephasing (2x2 each)."""
+        g, c = self.gamma, self.dephasing_factor
+        ad = [np.array([[1, 0], [0, np.sqrt(1 - g)]], complex), np.array([[0, np.sqrt(g)], [0, 0]], complex)]
+        pd = [np.sqrt((1 + c) / 2) * np.eye(2, dtype=complex), np.sqrt((1 - c) / 2) * np.diag([1.0 + 0j, -1.0])]
+        return [p @ a for p in pd for a in ad]
+
+    def pauli_twirl(self) -> tuple[float, float, float]:
+        """(p_x, p_y, p_z) of the Pauli-twirled channel (Tomita & Svore, PRA 90, 062320 (2014)).
+
+        p_x = p_y = γ/4, p_z = (1 - sqrt(1-γ)·c)/2 - γ/4 with c the dephasing factor.
+        """
+        g, c = self.gamma, self.dephasing_factor
+        px = g / 4
+        pz = (1 - np.sqrt(1 - g) * c) / 2 - g / 4
+        return px, px, pz
+
+
+@dataclass(frozen=True)
+class NoisyOperation:
+    """One operation with its error channel.
+
+    Attributes:
+        op: the ideal operation.
+        family: gate family name used for shares and tolerances (the gate name by default).
+        coherent: the coherent error unitary applied right after the ideal gate (gate order).
+        hamiltonian: Pauli label (gate order, e.g. ``"ZI"``) -> h_P with
+            coherent = exp(-i Σ h_P P), up to global phase; identity label excluded.
+        knob_generators: knob name -> {Pauli label: h_P per radian of that knob}, the first-order
+            generator of each coherent knob at unit strength (for sensitivity analysis).
+        knob_values: knob name -> current value in radians (z_phase gives ``z_phase[0]``, ...).
+        depolarizing: λ of ρ -> (1-λ) ρ + λ I/d on the operation's qubits, λ = r d/(d-1).
+        relaxation: relaxation of each of the operation's qubits during the operation.
+        duration_ns: the operation's duration.
+    """
+
+    op: Operation
+    family: str
+    coherent: np.ndarray = field(repr=False)
+    hamiltonian: dict[str, float]
+    depolarizing: float = 0.0
+    relaxation: tuple[Relaxation, ...] = ()
+    duration_ns: float = 0.0
+    knob_generators: dict[str, dict[str, float]] = field(default_factory=dict, repr=False)
+    knob_values: dict[str, float] = field(default_factory=dict)
+
+    @property
+    def qubits(self) -> tuple[int, ...]:
+        return self.op.qubits
+
+    @property
+    def has_coherent(self) -> bool:
+        return bool(self.hamiltonian)
+
+    @property
+    def has_incoherent(self) -> bool:
+        return self.depolarizing > 0 or any(not r.is_trivial for r in self.relaxation)
+
+    def __hash__(self) -> int:
+        return id(self)
+
+
+@dataclass(frozen=True)
+class NoisyLayer:
+    """A layer of noisy operations plus idle relaxation to fill the layer's duration."""
+
+    operations: tuple[NoisyOperation, ...]
+    idle: tuple[Relaxation, ...]
+    duration_ns: float
+
+    def __hash__(self) -> int:
+        return id(self)
+
+
+@dataclass(frozen=True)
+class NoisyRepeat:
+    body: tuple["NoisyItem", ...]
+    count: int
+
+    def __hash__(self) -> int:
+        return id(self)
+
+
+NoisyItem = Union[NoisyLayer, NoisyRepeat]
+
+
+@dataclass(frozen=True)
+class NoisyCircuit:
+    """The structured circuit with every operation's channel attached.
+
+    Attributes:
+        qubits: display names.
+        body: items in time order (repeats kept).
+        readout_error: per-qubit readout error probability, for measured qubits.
+        source: where the circuit came from.
+    """
+
+    qubits: tuple[str, ...]
+    body: tuple[NoisyItem, ...]
+    readout_error: dict[int, float] = field(default_factory=dict)
+    source: str = "<memory>"
+
+    @property
+    def num_qubits(self) -> int:
+        return len(self.qubits)
+
+    @property
+    def has_incoherent(self) -> bool:
+        return any(
+            nop.has_incoherent or any(not r.is_trivial for r in layer.idle)
+            for layer in self.distinct_layers()
+            for nop in layer.operations
+        ) or any(not r.is_trivial for layer in self.distinct_layers() for r in layer.idle)
+
+    @property
+    def has_repeats(self) -> bool:
+        return any(isinstance(it, NoisyRepeat) for it in self.body)
+
+    def distinct_layers(self) -> list[NoisyLayer]:
+        """Every layer as written (once per place in the text, repeats not unrolled)."""
+        out: list[NoisyLayer] = []
+
+        def walk(items: tuple[NoisyItem, ...]) -> None:
+            for it in items:
+                if isinstance(it, NoisyLayer):
+                    out.append(it)
+                else:
+                    walk(it.body)
+
+        walk(self.body)
+        return out
+
+    def iter_layers(self) -> Iterator[NoisyLayer]:
+        """Every executed layer, repeats unrolled (tests and small circuits only)."""
+
+        def walk(items: tuple[NoisyItem, ...]) -> Iterator[NoisyLayer]:
+            for it in items:
+                if isinstance(it, NoisyLayer):
+                    yield it
+                else:
+                    for _ in range(it.count):
+                        yield from walk(it.body)
+
+        yield from walk(self.body)
+
+    def multiplicities(self) -> list[tuple[NoisyLayer, int]]:
+        """Each distinct layer with the number of times it executes (Python int, exact)."""
+        out: list[tuple[NoisyLayer, int]] = []
+
+        def walk(items: tuple[NoisyItem, ...], mult: int) -> None:
+            for it in items:
+                if isinstance(it, NoisyLayer):
+                    out.append((it, mult))
+                else:
+                    walk(it.body, mult * it.count)
+
+        walk(self.body, 1)
+        return out
