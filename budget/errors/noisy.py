@@ -1,7 +1,7 @@
 """A circuit with its error model applied: what every engine consumes.
 
 Each operation carries its own channel, in this order (design.md §2):
-ideal gate → coherent unitary → depolarizing (average infidelity r) → T1/T2 relaxation for the
+ideal gate → coherent unitary → stochastic Pauli rates (if any) → depolarizing (average infidelity r) → T1/T2 relaxation for the
 operation's duration on each of its qubits. Each layer then lets every qubit relax for the part of
 the layer's duration it did not spend in a gate (idle relaxation, family ``"idle"``).
 
@@ -76,6 +76,9 @@ class NoisyOperation:
         knob_generators: knob name -> {Pauli label: h_P per radian of that knob}, the first-order
             generator of each coherent knob at unit strength (for sensitivity analysis).
         knob_values: knob name -> current value in radians (z_phase gives ``z_phase[0]``, ...).
+        pauli_rates: Pauli label -> probability p_P of a stochastic Pauli channel
+            ρ -> (1 - Σ p_P) ρ + Σ p_P P ρ P applied after the coherent part (empty for models read
+            from a file; the twirled variant of a circuit moves coherent errors here).
         depolarizing: λ of ρ -> (1-λ) ρ + λ I/d on the operation's qubits, λ = r d/(d-1).
         relaxation: relaxation of each of the operation's qubits during the operation.
         duration_ns: the operation's duration.
@@ -85,6 +88,7 @@ class NoisyOperation:
     family: str
     coherent: np.ndarray = field(repr=False)
     hamiltonian: dict[str, float]
+    pauli_rates: dict[str, float] = field(default_factory=dict)
     depolarizing: float = 0.0
     relaxation: tuple[Relaxation, ...] = ()
     duration_ns: float = 0.0
@@ -101,7 +105,7 @@ class NoisyOperation:
 
     @property
     def has_incoherent(self) -> bool:
-        return self.depolarizing > 0 or any(not r.is_trivial for r in self.relaxation)
+        return self.depolarizing > 0 or bool(self.pauli_rates) or any(not r.is_trivial for r in self.relaxation)
 
     def __hash__(self) -> int:
         return id(self)
