@@ -15,6 +15,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Literal, Protocol
 
+import numpy as np
+
 from budget.errors.noisy import NoisyCircuit
 
 Metric = Literal["process", "state"]
@@ -43,6 +45,29 @@ class EngineResult:
     first_order: float | None = None
     warnings: tuple[str, ...] = ()
     details: dict[str, float] = field(default_factory=dict)
+    observable_errors: dict[str, float] = field(default_factory=dict)
+    """Observable label (e.g. ``"Z0Z1"``) -> signed error <O>_actual - <O>_ideal."""
+
+
+@dataclass(frozen=True)
+class QuadraticForm:
+    """Leading-order infidelity as a quadratic form in the coherent knobs (design.md §5).
+
+    e ≈ δᵀ A δ + floor, δ the knob values in radians, one entry per ``labels`` item.
+
+    Attributes:
+        labels: (family, knob) per row/column of ``matrix``.
+        matrix: A, real symmetric, infidelity per radian squared.
+        values_rad: the current knob values δ (same order).
+        floor: s, the first-order incoherent infidelity.
+        floor_sources: family -> its part of ``floor``.
+    """
+
+    labels: tuple[tuple[str, str], ...]
+    matrix: np.ndarray
+    values_rad: np.ndarray
+    floor: float
+    floor_sources: dict[str, float]
 
 
 class Engine(Protocol):
@@ -53,5 +78,35 @@ class Engine(Protocol):
     def fits(self, circuit: NoisyCircuit, metric: Metric) -> str | None:
         """None if the engine can run this circuit for this metric, else the reason in words."""
 
-    def run(self, circuit: NoisyCircuit, metric: Metric) -> EngineResult:
-        """Compute the metric; raises TooLargeError if :meth:`fits` would refuse."""
+    def run(
+        self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()
+    ) -> EngineResult:
+        """Compute the metric (and the errors of the named Pauli observables, when the engine
+        supports them); raises TooLargeError if :meth:`fits` would refuse."""
+
+
+def parse_observable(label: str, num_qubits: int) -> dict[int, str]:
+    """A Pauli observable written as letters with qubit indices, ``"Z0Z1"`` or ``"X3 Y4"``.
+
+    Returns qubit index -> Pauli letter. Raises ValueError naming the label and the rule.
+
+    >>> parse_observable("Z0Z1", 2)
+    {0: 'Z', 1: 'Z'}
+    """
+    import re
+
+    text = label.replace(" ", "").replace("*", "")
+    parts = re.findall(r"([XYZ])(\d+)", text)
+    if not parts or "".join(a + b for a, b in parts) != text:
+        raise ValueError(
+            f"observable {label!r}: expected Pauli letters with qubit indices, such as 'Z0Z1' or 'X3'"
+        )
+    out: dict[int, str] = {}
+    for letter, idx in parts:
+        q = int(idx)
+        if q >= num_qubits:
+            raise ValueError(f"observable {label!r}: qubit {q} is not in the circuit ({num_qubits} qubits)")
+        if q in out:
+            raise ValueError(f"observable {label!r}: qubit {q} appears twice")
+        out[q] = letter
+    return out
