@@ -1,0 +1,123 @@
+"""The result of an error-budget analysis and its JSON form (schema version 1, docs/json-schema.md)."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+SCHEMA_VERSION = 1
+
+
+@dataclass(frozen=True)
+class FamilyShare:
+    """One gate family's part of the actual infidelity.
+
+    Attributes:
+        name: family name (a gate name, ``"idle"`` for idle relaxation, or gate + qubits).
+        operations: executed operations (or idle slots) in the family, repeats included.
+        share: the family's share of the actual infidelity; shares add up to it and can be negative
+            when a family's coherent error cancels another's.
+    """
+
+    name: str
+    operations: int
+    share: float
+
+
+@dataclass(frozen=True)
+class ReadoutSummary:
+    """Readout error, kept apart from gate errors.
+
+    Attributes:
+        per_qubit: qubit name -> assignment error probability.
+        any_error: probability that at least one measured qubit is misread, 1 - Π(1 - p_q).
+    """
+
+    per_qubit: dict[str, float]
+    any_error: float
+
+    @classmethod
+    def from_errors(cls, errors: dict[int, float], names: tuple[str, ...]) -> "ReadoutSummary":
+        per = {names[q]: float(p) for q, p in sorted(errors.items())}
+        keep = 1.0
+        for p in per.values():
+            keep *= 1.0 - p
+        return cls(per, 1.0 - keep)
+
+
+@dataclass(frozen=True)
+class BudgetResult:
+    """Naive product versus actual accumulation for one circuit, one model, one metric."""
+
+    source: str
+    qubits: int
+    operations: int
+    layers: int
+    cycles: int
+    metric: str
+    engine: str
+    naive_infidelity: float
+    actual_infidelity: float
+    first_order: float | None
+    families: tuple[FamilyShare, ...]
+    readout: ReadoutSummary
+    warnings: tuple[str, ...] = ()
+    observables: dict[str, float] = field(default_factory=dict)
+    twirled_infidelity: float | None = None
+    details: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def coherent_amplification(self) -> float | None:
+        """actual / naive: above 1 coherent build-up, below 1 cancellation (None if naive is 0)."""
+        if self.naive_infidelity <= 0.0:
+            return None
+        return self.actual_infidelity / self.naive_infidelity
+
+    def to_dict(self) -> dict[str, Any]:
+        """The documented JSON object (docs/json-schema.md), schema version 1."""
+        out: dict[str, Any] = {
+            "schema_version": SCHEMA_VERSION,
+            "source": self.source,
+            "circuit": {
+                "qubits": self.qubits,
+                "operations": self.operations,
+                "layers": self.layers,
+                "cycles": self.cycles,
+            },
+            "metric": self.metric,
+            "engine": self.engine,
+            "naive": {"infidelity": self.naive_infidelity},
+            "actual": {"infidelity": self.actual_infidelity, "first_order": self.first_order},
+            "coherent_amplification": self.coherent_amplification,
+            "families": [
+                {"name": f.name, "operations": f.operations, "share": f.share} for f in self.families
+            ],
+            "readout": {"per_qubit": self.readout.per_qubit, "any_error": self.readout.any_error},
+            "observables": [{"observable": k, "error": v} for k, v in self.observables.items()],
+            "warnings": list(self.warnings),
+            "caution": CAUTION,
+        }
+        if self.twirled_infidelity is not None:
+            out["twirled"] = {"infidelity": self.twirled_infidelity}
+        if self.details:
+            out["details"] = _jsonable(self.details)
+        return out
+
+
+CAUTION = (
+    "These numbers are model predictions from the stated error model; confirm them on the device. "
+    "Local lab practice decides calibration policy."
+)
+
+
+def _jsonable(value: Any) -> Any:
+    if isinstance(value, dict):
+        return {str(k): _jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_jsonable(v) for v in value]
+    if hasattr(value, "tolist"):
+        return value.tolist()
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value

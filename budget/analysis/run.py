@@ -1,0 +1,159 @@
+"""The main job in one call: circuit + error model in, naive versus actual accumulation out.
+
+    >>> from budget import analyze                                   # doctest: +SKIP
+    >>> result = analyze("circuits/hopping_trotter.qasm", "circuits/fen_q8.toml", cycles=10)
+    >>> result.to_dict()["coherent_amplification"]
+
+Steps: read the circuit (repeats kept), repeat it ``cycles`` times, attach the error model, compute
+the naive estimate (1 - Π F_pro over operations and idle slots), run the chosen engine, and split
+the actual value into per-family shares.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import cirq
+
+from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary
+from budget.analysis.select import choose_engine, first_order_shares
+from budget.circuit.ir import StructuredCircuit
+from budget.engines.base import METRICS
+from budget.errors.noisy import IDLE, NoisyCircuit
+from budget.problems import InputError
+
+MAX_CYCLES = 10**18
+
+
+def analyze(
+    circuit: str | Path | cirq.Circuit | StructuredCircuit,
+    errors: Any,
+    *,
+    cycles: int = 1,
+    metric: str = "process",
+    engine: str = "auto",
+    observables: tuple[str, ...] = (),
+    family_by: str = "gate",
+    compare_twirled: bool = False,
+) -> BudgetResult:
+    """Error budget of a structured circuit under an error model.
+
+    Args:
+        circuit: a path (OpenQASM 2 or 3, cirq JSON), a ``cirq.Circuit`` or a StructuredCircuit.
+        errors: a path to a TOML error model, an ``ErrorModel``, or a dict in the TOML layout.
+        cycles: repeat the whole circuit this many times (kept as a repeat, 1 <= N <= 10**18).
+        metric: ``"process"`` (1 - process fidelity) or ``"state"`` (1 - fidelity of the output
+            for input |0…0>).
+        engine: ``"auto"``, ``"exact"``, ``"generators"`` or ``"clifford"``.
+        observables: Pauli observables such as ``"Z0Z1"``, whose expectation-value errors to report.
+        family_by: ``"gate"`` (one family per gate name) or ``"pair"`` (gate name per qubit tuple).
+        compare_twirled: also compute the Pauli-twirled variant of the circuit.
+
+    Returns:
+        A frozen :class:`BudgetResult`; ``to_dict()`` gives the documented JSON (schema version 1).
+    """
+    from budget.errors.attach import attach
+    from budget.errors.fidelity import naive_infidelity
+
+    if metric not in METRICS:
+        raise InputError(f"metric = {metric!r}: expected one of {', '.join(METRICS)}")
+    if isinstance(cycles, bool) or not isinstance(cycles, int) or not 1 <= cycles <= MAX_CYCLES:
+        raise InputError(f"cycles = {cycles!r}: expected a whole number from 1 to 10**18")
+    structured = _read_circuit(circuit).with_cycles(cycles)
+    model = _read_model(errors)
+    noisy = attach(structured, model, family_by=family_by)
+    return analyze_noisy(
+        noisy,
+        structured,
+        metric=metric,
+        engine=engine,
+        observables=observables,
+        compare_twirled=compare_twirled,
+        cycles=cycles,
+    )
+
+
+def analyze_noisy(
+    noisy: NoisyCircuit,
+    structured: StructuredCircuit,
+    *,
+    metric: str,
+    engine: str = "auto",
+    observables: tuple[str, ...] = (),
+    compare_twirled: bool = False,
+    cycles: int = 1,
+) -> BudgetResult:
+    """The analysis once the model is attached (shared by :func:`analyze` and other commands)."""
+    from budget.errors.fidelity import naive_infidelity
+
+    chosen = choose_engine(noisy, metric, engine)
+    outcome = chosen.run(noisy, metric, observables=tuple(observables))
+    warnings = list(outcome.warnings)
+    shares = dict(outcome.shares)
+    if not shares:
+        shares, note = first_order_shares(noisy, metric, outcome.infidelity, exclude=chosen.name)
+        if note:
+            warnings.append(note)
+    naive = naive_infidelity(noisy)
+    twirled = None
+    if compare_twirled:
+        from budget.analysis.twirl import twirled_circuit
+
+        tw = twirled_circuit(noisy)
+        twirled = choose_engine(tw, metric, engine).run(tw, metric).infidelity
+    counts = _family_counts(noisy)
+    families = tuple(
+        FamilyShare(name, counts.get(name, 0), float(shares.get(name, 0.0)))
+        for name in sorted(set(counts) | set(shares), key=lambda f: -abs(shares.get(f, 0.0)))
+    )
+    ops, layers = structured.executed_counts()
+    return BudgetResult(
+        source=structured.source,
+        qubits=structured.num_qubits,
+        operations=ops,
+        layers=layers,
+        cycles=cycles,
+        metric=metric,
+        engine=outcome.engine,
+        naive_infidelity=float(naive),
+        actual_infidelity=float(outcome.infidelity),
+        first_order=outcome.first_order,
+        families=families,
+        readout=ReadoutSummary.from_errors(noisy.readout_error, noisy.qubits),
+        warnings=tuple(dict.fromkeys(warnings)),
+        observables=dict(outcome.observable_errors),
+        twirled_infidelity=twirled,
+        details=dict(outcome.details),
+    )
+
+
+def _family_counts(noisy: NoisyCircuit) -> dict[str, int]:
+    counts: dict[str, int] = {}
+    for layer, mult in noisy.multiplicities():
+        for nop in layer.operations:
+            counts[nop.family] = counts.get(nop.family, 0) + mult
+        idle = sum(1 for r in layer.idle if not r.is_trivial)
+        if idle:
+            counts[IDLE] = counts.get(IDLE, 0) + idle * mult
+    return counts
+
+
+def _read_circuit(circuit: Any) -> StructuredCircuit:
+    if isinstance(circuit, StructuredCircuit):
+        return circuit
+    from budget.circuit.load import load_circuit
+
+    return load_circuit(circuit)
+
+
+def _read_model(errors: Any):
+    from budget.errors.model import ErrorModel, load_model
+
+    if isinstance(errors, ErrorModel):
+        return errors
+    if isinstance(errors, dict):
+        return ErrorModel.from_dict(errors)
+    if isinstance(errors, (str, Path)):
+        return load_model(errors)
+    raise TypeError(f"errors: expected a path, an ErrorModel or a dict, got {type(errors).__name__}")

@@ -1,0 +1,76 @@
+"""Choosing an engine (``auto``) and splitting an engine's total into family shares.
+
+``auto`` picks the most accurate engine that fits (design.md §4): ``exact`` when the dense
+simulation fits, else ``clifford`` when every ideal gate is Clifford (exact to first order, any
+size), else ``generators``. The result names the engine that ran.
+"""
+
+from __future__ import annotations
+
+from budget.engines import ENGINE_NAMES, Engine, get_engine
+from budget.errors.noisy import NoisyCircuit
+from budget.problems import InputError, TooLargeError
+
+AUTO_ORDER = ("exact", "clifford", "generators")
+
+
+def _available(name: str) -> Engine | None:
+    try:
+        return get_engine(name)
+    except ImportError:
+        return None
+
+
+def choose_engine(circuit: NoisyCircuit, metric: str, name: str = "auto") -> Engine:
+    """The engine to run: ``name`` itself (checked to fit), or the first of AUTO_ORDER that fits.
+
+    Raises:
+        TooLargeError: the named engine (or every engine) cannot hold the circuit; the message
+            says why and which engine would fit.
+    """
+    if name != "auto":
+        if name not in ENGINE_NAMES:
+            raise InputError(f"engine = {name!r}: expected auto or one of {', '.join(ENGINE_NAMES)}")
+        engine = _available(name)
+        if engine is None:
+            raise InputError(f"engine = {name!r}: not available in this installation")
+        reason = engine.fits(circuit, metric)
+        if reason is not None:
+            raise TooLargeError(f"engine {name}: {reason}")
+        return engine
+    reasons = []
+    for candidate in AUTO_ORDER:
+        engine = _available(candidate)
+        if engine is None:
+            continue
+        reason = engine.fits(circuit, metric)
+        if reason is None:
+            return engine
+        reasons.append(f"{candidate}: {reason}")
+    raise TooLargeError(
+        f"{circuit.source}: no engine fits this {circuit.num_qubits}-qubit circuit for the "
+        f"{metric} metric ({'; '.join(reasons)})"
+    )
+
+
+def first_order_shares(
+    circuit: NoisyCircuit, metric: str, total: float, *, exclude: str
+) -> tuple[dict[str, float], str | None]:
+    """Family shares from a first-order engine, rescaled so they add up to ``total``.
+
+    The split between families comes from the leading-order decomposition (coherent amplitudes
+    per family, cross terms included); its overall size is set to the engine's actual value.
+    Returns the shares and a note when no first-order engine fits.
+    """
+    for candidate in ("generators", "clifford"):
+        if candidate == exclude:
+            continue
+        engine = _available(candidate)
+        if engine is None or engine.fits(circuit, metric) is not None:
+            continue
+        fo = engine.run(circuit, metric)
+        s = sum(fo.shares.values())
+        if s > 0:
+            return {k: v * total / s for k, v in fo.shares.items()}, None
+        return dict(fo.shares), None
+    return {}, "family shares unavailable: no first-order engine fits this circuit"
