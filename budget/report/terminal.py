@@ -1,0 +1,112 @@
+"""Terminal rendering of a budget result with rich (the computing core never imports this)."""
+
+from __future__ import annotations
+
+from rich.console import Console, Group
+from rich.panel import Panel
+from rich.table import Table
+from rich.text import Text
+
+from budget.analysis.result import CAUTION, BudgetResult
+
+_METRIC_WORDS = {
+    "process": "process infidelity (1 - F_pro)",
+    "state": "state infidelity for input |0…0>",
+}
+
+
+def fmt(x: float | None, digits: int = 3) -> str:
+    """A number in engineering-friendly form: 1.23e-04, 0.0123, or '—' for missing."""
+    if x is None:
+        return "—"
+    if x == 0:
+        return "0"
+    if 1e-3 <= abs(x) < 1e4:
+        return f"{x:.{digits + 1}g}"
+    return f"{x:.{digits - 1}e}"
+
+
+def _verdict(result: BudgetResult) -> Text:
+    amp = result.coherent_amplification
+    if amp is None:
+        return Text("no error in the model: nothing accumulates", style="dim")
+    if amp > 1.5:
+        return Text(
+            f"coherent build-up: the circuit loses {amp:.1f}x more than the fidelity product says",
+            style="bold red",
+        )
+    if amp < 0.67:
+        return Text(
+            f"cancellation: the structure echoes errors away ({amp:.2f}x the fidelity product)",
+            style="bold green",
+        )
+    return Text(f"the fidelity product is a fair guide here ({amp:.2f}x)", style="bold")
+
+
+def summary_table(result: BudgetResult) -> Table:
+    t = Table.grid(padding=(0, 2))
+    t.add_column(style="bold")
+    t.add_column(justify="right")
+    t.add_column(style="dim")
+    t.add_row("fidelity product (naive)", fmt(result.naive_infidelity), "1 - Π F_pro over operations and idle slots")
+    t.add_row(f"accumulated ({result.engine})", fmt(result.actual_infidelity), _METRIC_WORDS[result.metric])
+    if result.first_order is not None:
+        t.add_row("  leading order", fmt(result.first_order), "quadratic (first-order generator) estimate")
+    if result.twirled_infidelity is not None:
+        t.add_row("Pauli-twirled variant", fmt(result.twirled_infidelity), "same errors, coherent parts randomised")
+    amp = result.coherent_amplification
+    t.add_row("amplification", "—" if amp is None else f"{amp:.3g}x", "accumulated ÷ naive")
+    return t
+
+
+def families_table(result: BudgetResult, *, width: int = 24) -> Table:
+    t = Table(title="where the infidelity comes from", title_justify="left", expand=False)
+    t.add_column("family")
+    t.add_column("executed", justify="right")
+    t.add_column("share", justify="right")
+    t.add_column("of total", justify="right")
+    t.add_column("")
+    total = result.actual_infidelity
+    peak = max((abs(f.share) for f in result.families), default=0.0) or 1.0
+    for f in result.families:
+        frac = f.share / total if total > 0 else 0.0
+        n = int(round(width * abs(f.share) / peak))
+        bar = Text("█" * n, style="cyan" if f.share >= 0 else "magenta")
+        t.add_row(f.name, f"{f.operations:,}", fmt(f.share), f"{100 * frac:.1f} %", bar)
+    return t
+
+
+def render_budget(result: BudgetResult) -> Group:
+    """The whole report as one rich renderable."""
+    head = Text.assemble(
+        (f"{result.source}", "bold"),
+        f"  ·  {result.qubits} qubits, {result.operations:,} operations in {result.layers:,} layers",
+        f"  ·  {result.cycles:,} cycle(s)" if result.cycles != 1 else "",
+    )
+    parts: list = [head, Text(""), summary_table(result), _verdict(result), Text("")]
+    if result.families:
+        parts.append(families_table(result))
+    if result.observables:
+        ot = Table(title="observables (error of the expectation value)", title_justify="left")
+        ot.add_column("observable")
+        ot.add_column("<O> actual - ideal", justify="right")
+        for k, v in result.observables.items():
+            ot.add_row(k, f"{v:+.3e}")
+        parts.append(ot)
+    if result.readout.per_qubit:
+        worst = max(result.readout.per_qubit.items(), key=lambda kv: kv[1])
+        parts.append(
+            Text(
+                f"readout (kept apart from gate errors): {len(result.readout.per_qubit)} measured qubit(s), "
+                f"P(any misread) = {fmt(result.readout.any_error)}, worst {worst[0]} at {fmt(worst[1])}"
+            )
+        )
+    for w in result.warnings:
+        parts.append(Text(f"! {w}", style="yellow"))
+    parts.append(Text(CAUTION, style="dim italic"))
+    return Group(Panel(Group(*parts), title="error budget", title_align="left", border_style="blue"))
+
+
+def make_console(*, stderr: bool = False, width: int | None = None, color: bool | None = None) -> Console:
+    """A console whose width and colours tests can fix."""
+    return Console(stderr=stderr, width=width, no_color=(color is False), force_terminal=color)
