@@ -1,0 +1,216 @@
+"""Pauli-basis helpers, each operation's error channel, and the naive fidelity product.
+
+Conventions: matrices in gate order, first qubit most significant (cirq's convention); a Pauli
+label such as ``"XZ"`` means X on the operation's first qubit and Z on its second.
+
+Process fidelity of a channel E relative to the identity (the error channel of an operation is
+measured against "no error"): F_pro = (1/d²) Σ_k |Tr K_k|² over its Kraus operators K_k, and the
+average gate fidelity is F_avg = (d F_pro + 1)/(d + 1) (Nielsen, Phys. Lett. A 303, 249 (2002)).
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from functools import lru_cache
+
+import numpy as np
+import scipy.linalg
+
+from budget.errors.noisy import NoisyCircuit, NoisyOperation, Relaxation
+
+_ONE_QUBIT = {
+    "I": np.eye(2, dtype=complex),
+    "X": np.array([[0, 1], [1, 0]], dtype=complex),
+    "Y": np.array([[0, -1j], [1j, 0]], dtype=complex),
+    "Z": np.diag([1.0 + 0j, -1.0]),
+}
+# _TO_PAULI[p, 2*i + j] = P_p[j, i], so Tr(P M) = Σ_ij P[j, i] M[i, j] is one contraction per qubit.
+_TO_PAULI = np.array([m.T.reshape(4) for m in _ONE_QUBIT.values()])
+
+
+@lru_cache(maxsize=None)
+def pauli_labels(n: int) -> tuple[str, ...]:
+    """All 4**n Pauli labels on n qubits, ``"I…I"`` first, letters in the order I, X, Y, Z.
+
+    >>> pauli_labels(1)
+    ('I', 'X', 'Y', 'Z')
+    """
+    return tuple("".join(p) for p in itertools.product("IXYZ", repeat=n))
+
+
+@lru_cache(maxsize=4096)
+def pauli_matrix(label: str) -> np.ndarray:
+    """The matrix of a Pauli label (read-only), first letter on the most significant qubit.
+
+    >>> pauli_matrix("XZ").real.astype(int).tolist()[0]
+    [0, 0, 1, 0]
+    """
+    if not label or set(label) - set("IXYZ"):
+        raise ValueError(f"Pauli label {label!r}: expected a non-empty string of the letters I, X, Y, Z")
+    m = np.ones((1, 1), dtype=complex)
+    for ch in label:
+        m = np.kron(m, _ONE_QUBIT[ch])
+    m.setflags(write=False)
+    return m
+
+
+def pauli_decompose(matrix: np.ndarray, *, tol: float | None = None) -> dict[str, complex]:
+    """Coefficients c_P with matrix = Σ_P c_P P, c_P = Tr(P M)/d.
+
+    Args:
+        matrix: a d x d matrix, d = 2**n.
+        tol: when given, labels with |c_P| <= tol are left out; by default all 4**n labels appear.
+
+    >>> pauli_decompose(np.diag([1.0, 0.0]))
+    {'I': (0.5+0j), 'X': 0j, 'Y': 0j, 'Z': (0.5+0j)}
+    """
+    m = np.asarray(matrix, dtype=complex)
+    d = m.shape[0]
+    n = d.bit_length() - 1
+    if m.shape != (d, d) or d != 2**n or n < 1:
+        raise ValueError(f"matrix of shape {m.shape}: expected a square matrix of side 2**n, n >= 1")
+    t = m.reshape((2,) * (2 * n))
+    t = t.transpose([k for q in range(n) for k in (q, n + q)]).reshape((4,) * n)
+    for axis in range(n):
+        t = np.moveaxis(np.tensordot(_TO_PAULI, t, axes=([1], [axis])), 0, axis)
+    coeffs = t.reshape(-1) / d
+    return {
+        label: complex(c)
+        for label, c in zip(pauli_labels(n), coeffs)
+        if tol is None or abs(c) > tol
+    }
+
+
+def pauli_hamiltonian(unitary: np.ndarray, *, tol: float = 1e-15) -> dict[str, float]:
+    """H = Σ h_P P with unitary = exp(-i H) up to global phase; identity label left out.
+
+    The global phase arg Tr U is removed first, then the principal logarithm is taken through a
+    complex Schur decomposition (unitary, so the Schur form is diagonal and the basis stays unitary
+    for degenerate eigenvalues). Exact for any error whose eigenphases spread less than π.
+    Labels with |h_P| < tol are dropped.
+
+    >>> h = pauli_hamiltonian(scipy.linalg.expm(-0.01j * pauli_matrix("X")))
+    >>> list(h), round(h["X"], 12)
+    (['X'], 0.01)
+    """
+    u = np.asarray(unitary, dtype=complex)
+    tr = np.trace(u)
+    if abs(tr) > 1e-12:
+        u = u * (tr.conjugate() / abs(tr))
+    t, q = scipy.linalg.schur(u, output="complex")
+    phases = np.angle(np.diag(t))
+    h = -(q * phases) @ q.conj().T
+    out = {}
+    for label, c in pauli_decompose(h).items():
+        if "X" in label or "Y" in label or "Z" in label:
+            if abs(c.real) >= tol:
+                out[label] = float(c.real)
+    return out
+
+
+def _embed(k: np.ndarray, pos: int, n: int) -> np.ndarray:
+    out = np.ones((1, 1), dtype=complex)
+    for j in range(n):
+        out = np.kron(out, k if j == pos else _ONE_QUBIT["I"])
+    return out
+
+
+def _stage(ops: list[np.ndarray]) -> np.ndarray:
+    """Stack Kraus operators, dropping those that are exactly zero."""
+    kept = [k for k in ops if np.any(k)]
+    return np.array(kept, dtype=complex)
+
+
+def error_channel_kraus(nop: NoisyOperation) -> list[np.ndarray]:
+    """Kraus operators of the operation's error channel on its own qubits (gate order).
+
+    Order of application (noisy.py): coherent unitary, then the stochastic Pauli rates
+    ρ -> (1 - Σ p_P) ρ + Σ p_P P ρ P, then depolarizing ρ -> (1-λ) ρ + λ I/d (Kraus
+    sqrt(1 - λ(d²-1)/d²) I and sqrt(λ/d²) P for every P ≠ I), then T1/T2 relaxation on each qubit
+    (:meth:`Relaxation.kraus`). The ideal gate itself is not included: E_actual = E ∘ U_ideal.
+    """
+    n = len(nop.qubits)
+    d = 2**n
+    stages = [_stage([np.asarray(nop.coherent, dtype=complex)])]
+    if nop.pauli_rates:
+        p0 = 1.0 - math.fsum(nop.pauli_rates.values())
+        if p0 < -1e-12 or any(p < 0 for p in nop.pauli_rates.values()):
+            raise ValueError(f"pauli_rates {nop.pauli_rates}: probabilities must be >= 0 and sum to <= 1")
+        stages.append(
+            _stage([math.sqrt(max(p0, 0.0)) * np.eye(d)] + [math.sqrt(p) * pauli_matrix(l) for l, p in nop.pauli_rates.items()])
+        )
+    lam = nop.depolarizing
+    if lam:
+        if not 0 <= lam <= d * d / (d * d - 1):
+            raise ValueError(f"depolarizing = {lam}: must lie in [0, d²/(d²-1)] for d = {d}")
+        labels = pauli_labels(n)
+        stages.append(
+            _stage([math.sqrt(1 - lam * (d * d - 1) / (d * d)) * np.eye(d)] + [math.sqrt(lam) / d * pauli_matrix(l) for l in labels[1:]])
+        )
+    for r in nop.relaxation:
+        if not r.is_trivial:
+            pos = nop.qubits.index(r.qubit)
+            stages.append(_stage([_embed(k, pos, n) for k in r.kraus()]))
+    total = stages[0]
+    for s in stages[1:]:
+        total = (s[:, None] @ total[None, :]).reshape(-1, d, d)
+    return list(total)
+
+
+def operation_process_fidelity(nop: NoisyOperation) -> float:
+    """F_pro of the operation's whole error channel relative to the ideal gate.
+
+    F_pro = (1/d²) Σ_k |Tr K_k|² over :func:`error_channel_kraus` (Nielsen, Phys. Lett. A 303, 249
+    (2002)). For a pure over-rotation δ on one qubit this is cos²(δ/2).
+    """
+    kraus = np.array(error_channel_kraus(nop))
+    d = kraus.shape[-1]
+    traces = np.trace(kraus, axis1=1, axis2=2)
+    return float(min(1.0, math.fsum(np.abs(traces) ** 2) / (d * d)))
+
+
+def _relaxation_infidelity(r: Relaxation) -> float:
+    """1 - F_pro of T1/T2 relaxation without cancellation: (γ + 2 (1 - sqrt(1-γ) c)) / 4."""
+    g, c = r.gamma, r.dephasing_factor
+    if g >= 1.0 or c <= 0.0:
+        one_minus_sc = 1.0
+    else:
+        one_minus_sc = -math.expm1(0.5 * math.log1p(-g) + math.log(c))
+    return (g + 2.0 * one_minus_sc) / 4.0
+
+
+def relaxation_process_fidelity(r: Relaxation) -> float:
+    """F_pro of amplitude damping γ followed by pure dephasing factor c on one qubit.
+
+    From the Kraus operators: F_pro = (2 - γ + 2 sqrt(1-γ) c)/4, so
+    F_avg = (2 F_pro + 1)/3 = (3 + e^{-t/T1} + 2 e^{-t/T2})/6, the usual coherence limit.
+    """
+    return 1.0 - _relaxation_infidelity(r)
+
+
+def naive_infidelity(circuit: NoisyCircuit) -> float:
+    """The spreadsheet estimate 1 - Π F_pro over every executed operation and idle slot.
+
+    Each operation contributes the F_pro of its whole error channel, each idle slot that of its
+    relaxation; repeats count with their exact multiplicity (no unrolling), summed in log space:
+    1 - exp(Σ m_i log1p(-e_i)), with math.fsum, so N = 10**9 repetitions cost no more than one.
+    """
+    cache: dict[int, float] = {}
+    terms: list[float] = []
+    for layer, mult in circuit.multiplicities():
+        logs: list[float] = []
+        for nop in layer.operations:
+            key = id(nop)
+            if key not in cache:
+                cache[key] = 1.0 - operation_process_fidelity(nop)
+            logs.append(_log_fidelity(cache[key]))
+        logs.extend(_log_fidelity(_relaxation_infidelity(r)) for r in layer.idle if not r.is_trivial)
+        if any(v == -math.inf for v in logs):
+            return 1.0
+        terms.append(mult * math.fsum(logs))
+    return float(-math.expm1(math.fsum(terms)))
+
+
+def _log_fidelity(infidelity: float) -> float:
+    return -math.inf if infidelity >= 1.0 else math.log1p(-max(infidelity, 0.0))
