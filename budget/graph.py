@@ -1,0 +1,172 @@
+"""Operation graphs: per-qubit timelines, earliest-possible layering, light cones.
+
+A flat list of operations defines a directed acyclic graph (DAG): an edge i -> j joins operation
+i to the next operation j that acts on one of its qubits. Placing every operation in the earliest
+layer its predecessors allow (as soon as possible, ASAP) puts operation j in layer
+1 + max(layer of its predecessors); these are the topological generations of the DAG
+(networkx ``topological_generations``).
+
+:func:`layer_program` turns a reader's flat program (operations, barriers, loops; see
+:mod:`budget.circuit.program`) into a :class:`~budget.circuit.ir.StructuredCircuit`: barriers and
+loop boundaries split the program into segments, each segment is layered ASAP on its own, and
+each loop becomes a :class:`~budget.circuit.ir.Repeat` whose body is layered on its own.
+"""
+
+from __future__ import annotations
+
+from typing import Iterable, Sequence
+
+import networkx as nx
+
+from budget.circuit.ir import Item, Layer, Operation, Repeat, StructuredCircuit
+from budget.circuit.program import Barrier, Loop, Statement
+from budget.problems import TooLargeError
+
+
+def qubit_timelines(ops: Sequence[Operation]) -> dict[int, list[int]]:
+    """For each qubit, the indices (into ``ops``) of the operations acting on it, in order."""
+    lines: dict[int, list[int]] = {}
+    for i, op in enumerate(ops):
+        for q in op.qubits:
+            lines.setdefault(q, []).append(i)
+    return lines
+
+
+def operation_dag(ops: Sequence[Operation]) -> nx.DiGraph:
+    """The dependency DAG of a flat operation list.
+
+    Nodes are the indices 0..len(ops)-1 with attribute ``op``; an edge i -> j (attribute
+    ``qubits``: the shared qubits) joins each operation to the next one on each of its qubits.
+    """
+    dag = nx.DiGraph()
+    dag.add_nodes_from((i, {"op": op}) for i, op in enumerate(ops))
+    for q, line in qubit_timelines(ops).items():
+        for i, j in zip(line, line[1:]):
+            if dag.has_edge(i, j):
+                dag.edges[i, j]["qubits"] += (q,)
+            else:
+                dag.add_edge(i, j, qubits=(q,))
+    return dag
+
+
+def asap_layers(ops: Sequence[Operation]) -> tuple[Layer, ...]:
+    """Place each operation in the earliest layer after all earlier operations on its qubits.
+
+    Within a layer operations keep their input order. No two operations in a layer share a qubit,
+    and every qubit sees its operations in input order.
+
+    >>> from budget.circuit.ir import Operation
+    >>> [len(l.operations) for l in asap_layers([Operation("h", (0,)), Operation("h", (1,)),
+    ...                                          Operation("cz", (0, 1))])]
+    [2, 1]
+    """
+    if not ops:
+        return ()
+    dag = operation_dag(ops)
+    return tuple(Layer(tuple(ops[i] for i in sorted(gen))) for gen in nx.topological_generations(dag))
+
+
+def layer_program(
+    program: Sequence[Statement],
+    *,
+    qubits: Sequence[str],
+    measured: Iterable[int] = (),
+    source: str = "<memory>",
+) -> StructuredCircuit:
+    """The structured circuit of a flat program: ASAP layers per segment, loops kept as repeats.
+
+    Args:
+        program: operations, barriers and loops in time order.
+        qubits: display name of every qubit (index = position).
+        measured: qubits read out at the end.
+        source: where the program came from (a path), kept for messages.
+
+    A barrier closes the current layer for every qubit (also when it names only some qubits); a
+    loop is a segment boundary, its body is layered on its own and becomes a ``Repeat``. Loops
+    that never run (count 0) or have no operations are dropped.
+    """
+    n = len(qubits)
+    body = _structure(program, n)
+    meas = tuple(sorted(set(int(q) for q in measured)))
+    for q in meas:
+        if not 0 <= q < n:
+            raise ValueError(f"measured qubit index {q} is outside 0..{n - 1}")
+    return StructuredCircuit(tuple(qubits), body, meas, source)
+
+
+def _structure(program: Sequence[Statement], n: int) -> tuple[Item, ...]:
+    items: list[Item] = []
+    segment: list[Operation] = []
+    for st in program:
+        if isinstance(st, Operation):
+            if any(not 0 <= q < n for q in st.qubits):
+                raise ValueError(f"operation {st.gate} on qubits {st.qubits}: index outside 0..{n - 1}")
+            segment.append(st)
+            continue
+        items.extend(asap_layers(segment))
+        segment = []
+        if isinstance(st, Loop):
+            inner = _structure(st.body, n)
+            if inner and st.count > 0:
+                items.append(Repeat(inner, int(st.count)))
+        elif not isinstance(st, Barrier):
+            raise TypeError(f"program statement must be Operation, Barrier or Loop, got {type(st).__name__}")
+    items.extend(asap_layers(segment))
+    return tuple(items)
+
+
+def flat_operations(circuit: StructuredCircuit, *, max_operations: int = 1_000_000) -> list[Operation]:
+    """Every executed operation in time order, repeats unrolled (small circuits only).
+
+    Raises:
+        TooLargeError: more than ``max_operations`` operations would be executed.
+    """
+    total, _ = circuit.executed_counts()
+    if total > max_operations:
+        raise TooLargeError(
+            f"{circuit.source}: {total} executed operations exceed the unrolling limit of "
+            f"{max_operations}; use a method that keeps repeated blocks folded"
+        )
+    return [op for layer in circuit.iter_layers() for op in layer.operations]
+
+
+def light_cone(circuit: StructuredCircuit | Sequence[Operation], qubits: Iterable[int]) -> list[int]:
+    """Indices of the operations in the backward light cone of ``qubits`` (ascending).
+
+    Walking backwards from the end, an operation belongs to the cone when it acts on a qubit
+    already in the cone; its other qubits then join the cone. Operations outside the cone cannot
+    change the reduced state of ``qubits`` at the end. For a :class:`StructuredCircuit` the indices
+    refer to :func:`flat_operations` of it.
+    """
+    ops = flat_operations(circuit) if isinstance(circuit, StructuredCircuit) else list(circuit)
+    live = set(qubits)
+    inside: list[int] = []
+    for i in range(len(ops) - 1, -1, -1):
+        if live.intersection(ops[i].qubits):
+            live.update(ops[i].qubits)
+            inside.append(i)
+    return inside[::-1]
+
+
+def light_cone_qubits(circuit: StructuredCircuit, qubits: Iterable[int]) -> frozenset[int]:
+    """Qubits whose initial state can influence ``qubits`` at the end, without unrolling repeats.
+
+    A repeated body is walked backwards until the set of qubits stops growing, which takes at
+    most one pass per qubit, so a count of 10**9 costs no more than a few passes.
+    """
+    return frozenset(_cone_items(circuit.body, set(qubits)))
+
+
+def _cone_items(items: Sequence[Item], live: set[int]) -> set[int]:
+    for it in reversed(items):
+        if isinstance(it, Layer):
+            for op in it.operations:
+                if live.intersection(op.qubits):
+                    live = live | set(op.qubits)
+        else:
+            for _ in range(it.count):
+                grown = _cone_items(it.body, set(live))
+                if grown == live:
+                    break
+                live = grown
+    return live
