@@ -196,20 +196,33 @@ def naive_infidelity(circuit: NoisyCircuit) -> float:
     relaxation; repeats count with their exact multiplicity (no unrolling), summed in log space:
     1 - exp(Σ m_i log1p(-e_i)), with math.fsum, so N = 10**9 repetitions cost no more than one.
     """
-    cache: dict[int, float] = {}
+    by_object: dict[int, float] = {}
+    by_channel: dict[tuple, float] = {}
     terms: list[float] = []
     for layer, mult in circuit.multiplicities():
         logs: list[float] = []
         for nop in layer.operations:
-            key = id(nop)
-            if key not in cache:
-                cache[key] = 1.0 - operation_process_fidelity(nop)
-            logs.append(_log_fidelity(cache[key]))
+            if id(nop) not in by_object:
+                key = _channel_key(nop)
+                if key not in by_channel:
+                    by_channel[key] = _log_fidelity(1.0 - operation_process_fidelity(nop))
+                by_object[id(nop)] = by_channel[key]
+            logs.append(by_object[id(nop)])
         logs.extend(_log_fidelity(_relaxation_infidelity(r)) for r in layer.idle if not r.is_trivial)
         if any(v == -math.inf for v in logs):
             return 1.0
         terms.append(mult * math.fsum(logs))
     return float(-math.expm1(math.fsum(terms)))
+
+
+def _channel_key(nop: NoisyOperation) -> tuple:
+    """What F_pro depends on: the channel, not which qubits it acts on."""
+    return (
+        np.asarray(nop.coherent, dtype=complex).tobytes(),
+        tuple(sorted(nop.pauli_rates.items())),
+        nop.depolarizing,
+        tuple((nop.qubits.index(r.qubit), r.gamma, r.dephasing_factor) for r in nop.relaxation),
+    )
 
 
 def _log_fidelity(infidelity: float) -> float:

@@ -1,0 +1,165 @@
+"""Apply an error model to a structured circuit: StructuredCircuit + ErrorModel -> NoisyCircuit.
+
+Works on the structure: each distinct operation, layer and repeat is handled once, so a block
+repeated 10**9 times, or a layer of 1000 qubits repeated, attaches as fast as one pass over the
+text of the circuit. Per operation (noisy.py gives the channel order): coherent unitary from the
+knobs (:mod:`budget.errors.knobs`), depolarizing λ = r d/(d-1) from the average infidelity r
+(Magesan, Gambetta, Emerson, PRL 106, 180504 (2011)), and T1/T2 relaxation of each of its qubits for
+its duration. Per layer: the layer lasts as long as its longest operation; every qubit relaxes for
+the part of the layer it spends outside an operation (idle). Relaxations that do nothing (zero time,
+or a qubit without T1 and T2) are left out.
+"""
+
+from __future__ import annotations
+
+import difflib
+import re
+from typing import Literal
+
+from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
+from budget.errors.knobs import CoherentError, coherent_error
+from budget.errors.model import ErrorModel
+from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
+from budget.errors.params import GateParams
+from budget.problems import ModelError
+
+FamilyBy = Literal["gate", "pair"]
+
+
+def attach(
+    circuit: StructuredCircuit,
+    model: ErrorModel,
+    *,
+    family_by: FamilyBy = "gate",
+    check_qubits: bool = True,
+) -> NoisyCircuit:
+    """Give every operation and idle slot of ``circuit`` its error channel from ``model``.
+
+    Args:
+        circuit: the structured circuit (repeats kept).
+        model: a validated error model.
+        family_by: ``"gate"``: family = the gate table's ``family`` or the gate name (``"cz"``);
+            ``"pair"``: that name followed by the qubits in gate order (``"cz q[0],q[1]"``).
+        check_qubits: reject a model that names a qubit the circuit does not have (catches typos
+            such as ``q[l]`` or ``Q[3]``). Indexed names in one of the circuit's registers
+            (``q[7]`` when the circuit has ``q[0]``) pass: one device-wide model serves circuits on
+            fewer qubits. False skips the check.
+
+    Returns:
+        The NoisyCircuit. ``readout_error`` holds the measured qubits, or every qubit when the
+        circuit measures none.
+
+    Raises:
+        ModelError: the model names a qubit that cannot belong to the circuit (``check_qubits``).
+    """
+    if family_by not in ("gate", "pair"):
+        raise ValueError(f"family_by = {family_by!r}: expected 'gate' or 'pair'")
+    if check_qubits:
+        _check_qubits(circuit, model)
+    body = _Attacher(circuit, model, family_by).items(circuit.body)
+    measured = circuit.measured or tuple(range(circuit.num_qubits))
+    readout = {q: model.qubit(circuit.qubits[q]).readout_error for q in measured}
+    return NoisyCircuit(circuit.qubits, body, readout, circuit.source)
+
+
+_INDEXED = re.compile(r"^(.*?)([\[(])\s*\d+(\s*,\s*\d+)*\s*[\])]$")
+
+
+def _register(name: str) -> str | None:
+    """``"q["`` for ``"q[3]"``, ``"q("`` for ``"q(0, 1)"``; None for names without an index."""
+    m = _INDEXED.match(name)
+    return m.group(1) + m.group(2) if m else None
+
+
+def _check_qubits(circuit: StructuredCircuit, model: ErrorModel) -> None:
+    """A name the circuit lacks is a typo unless it is an indexed qubit of one of the circuit's
+    registers (a device qubit this circuit leaves unused, e.g. ``q[7]`` for a circuit on q[0..2])."""
+    known = set(circuit.qubits)
+    registers = {_register(q) for q in circuit.qubits} - {None}
+    for name, path in model.mentions.items():
+        if name not in known and _register(name) not in registers:
+            close = difflib.get_close_matches(name, circuit.qubits, n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            shown = ", ".join(circuit.qubits[:8]) + (", ..." if circuit.num_qubits > 8 else "")
+            raise ModelError(
+                f"{path} in {model.source}: qubit {name!r} is neither a qubit nor in a register of "
+                f"circuit {circuit.source} (its qubits: {shown}){hint}"
+            )
+
+
+class _Attacher:
+    """One attach call: caches keyed by structure so nothing is computed twice."""
+
+    def __init__(self, circuit: StructuredCircuit, model: ErrorModel, family_by: str):
+        self.names = circuit.qubits
+        self.model = model
+        self.family_by = family_by
+        self.qubit_params = [model.qubit(n) for n in circuit.qubits]
+        self._relax: dict[tuple[int, float], Relaxation | None] = {}
+        self._coherent: dict[tuple, CoherentError] = {}
+        self._ops: dict[tuple, NoisyOperation] = {}
+        self._items: dict[int, NoisyItem] = {}
+
+    def relax(self, qubit: int, duration_ns: float) -> Relaxation | None:
+        key = (qubit, duration_ns)
+        if key not in self._relax:
+            r = self.qubit_params[qubit].relaxation(qubit, duration_ns) if duration_ns > 0 else None
+            self._relax[key] = None if r is None or r.is_trivial else r
+        return self._relax[key]
+
+    def items(self, items: tuple) -> tuple[NoisyItem, ...]:
+        out = []
+        for it in items:
+            key = id(it)
+            if key not in self._items:
+                if isinstance(it, Layer):
+                    self._items[key] = self.layer(it)
+                elif isinstance(it, Repeat):
+                    self._items[key] = NoisyRepeat(self.items(it.body), it.count)
+                else:
+                    raise TypeError(f"circuit item {it!r}: expected a Layer or a Repeat")
+            out.append(self._items[key])
+        return tuple(out)
+
+    def layer(self, layer: Layer) -> NoisyLayer:
+        ops = tuple(self.operation(op) for op in layer.operations)
+        length = max((n.duration_ns for n in ops), default=0.0)
+        idle: list[Relaxation] = []
+        if length > 0:
+            busy = {q: n.duration_ns for n in ops for q in n.qubits}
+            for q in range(len(self.names)):
+                r = self.relax(q, length - busy.get(q, 0.0))
+                if r is not None:
+                    idle.append(r)
+        return NoisyLayer(ops, tuple(idle), length)
+
+    def operation(self, op: Operation) -> NoisyOperation:
+        key = (op.gate, op.qubits, op.params, None if op.matrix is None else id(op.matrix))
+        if key in self._ops:
+            return self._ops[key]
+        names = tuple(self.names[q] for q in op.qubits)
+        gp = self.model.gate(op.gate, names)
+        k = len(op.qubits)
+        ckey = (op.gate, op.params, gp, k)
+        if ckey not in self._coherent:
+            self._coherent[ckey] = coherent_error(op.gate, op.params, gp, k)
+        coh = self._coherent[ckey]
+        d = 2**k
+        relax = (self.relax(q, gp.duration_ns) for q in op.qubits)
+        nop = NoisyOperation(
+            op=op,
+            family=self.family(op, gp, names),
+            coherent=coh.unitary,
+            hamiltonian=dict(coh.hamiltonian),
+            depolarizing=gp.avg_infidelity * d / (d - 1),
+            relaxation=tuple(r for r in relax if r is not None),
+            duration_ns=gp.duration_ns,
+            knob_generators={name: dict(g) for name, g in coh.generators.items()},
+            knob_values=dict(coh.values),
+        )
+        self._ops[key] = nop
+        return nop
+
+    def family(self, op: Operation, gp: GateParams, names: tuple[str, ...]) -> str:
+        base = gp.family or (op.label if op.gate == "unitary" and op.label else op.gate)
+        return base if self.family_by == "gate" else f"{base} {','.join(names)}"
