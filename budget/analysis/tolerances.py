@@ -1,0 +1,250 @@
+"""Tolerances: how far may each coherent knob stray so that the circuit meets a target infidelity?
+
+Leading order (design.md §5): e ≈ δᵀAδ + s. The incoherent floor s is fixed by the hardware; the
+coherent budget is B = E - s. Two readings of "the knob stays within its tolerance t_f":
+
+- ``worst``: every knob may sit anywhere in |δ_f| <= t_f with any sign; require
+  max over that box of δᵀAδ <= B (:mod:`budget.analysis.worstcase`, exact for up to 20
+  interfering knobs, an upper bound beyond, so the tolerances stay safe).
+- ``random``: independent signs, t_f an r.m.s. value σ_f; the cross terms average out and
+  E[δᵀAδ] = Σ_f A_ff σ_f² <= B.
+
+How B is split (``allocation``):
+
+- ``equal``: every knob with A_ff > 0 gets the same share: t_f = c / sqrt(A_ff), c chosen so the
+  constraint holds with equality (worst: c² = B / max_s Σ s_f s_g A_fg / sqrt(A_ff A_gg)).
+- ``common-factor``: every current value shrinks by the same factor F: t_f = |δ_f| / F. F is the
+  answer to "how much better must calibration get"; it is reported under either allocation.
+
+Both constraints scale as c², which is why one scalar solves each allocation exactly.
+"""
+
+from __future__ import annotations
+
+import math
+import numbers
+from dataclasses import dataclass, field
+from typing import Literal
+
+import numpy as np
+
+from budget.analysis.sensitivity import check_form, knob_key
+from budget.analysis.worstcase import EXACT_UP_TO, box_maximum
+from budget.engines.base import QuadraticForm
+from budget.problems import InputError
+
+Assumption = Literal["worst", "random"]
+Allocation = Literal["equal", "common-factor"]
+ASSUMPTIONS: tuple[str, ...] = ("worst", "random")
+ALLOCATIONS: tuple[str, ...] = ("equal", "common-factor")
+SCHEMA = "budget.tolerances/1"
+
+
+@dataclass(frozen=True)
+class KnobTolerance:
+    """One ranked row: a knob's current value, its tolerance and how much it must tighten.
+
+    ``tolerance_rad`` is ``inf`` for a knob with no leading-order effect; ``tighten_by`` =
+    |current| / tolerance (0 when the knob is at zero, ``inf`` when the tolerance is 0).
+    ``status``: ``"tighten"``, ``"ok"``, ``"no effect"`` or ``"floor too high"``.
+    """
+
+    family: str
+    knob: str
+    current_rad: float
+    tolerance_rad: float
+    tighten_by: float
+    status: str
+
+
+@dataclass(frozen=True)
+class ToleranceReport:
+    """Tolerances for one target.
+
+    Attributes:
+        target: E, the largest acceptable infidelity of the chosen metric.
+        metric, assume, allocation: how it was computed.
+        incoherent_floor: s; floor_sources: family -> part of s.
+        coherent_budget: E - s (negative when the floor alone exceeds E).
+        feasible: s < E.
+        rows: ranked by ``tighten_by``, largest first.
+        common_factor: F, the factor by which every current value must shrink (<= 1: none needed).
+        current_signed: δᵀAδ + s at the current values with their signs.
+        current_assumed: the same under the assumption (worst signs, or r.m.s.) at current sizes.
+        cycles: repetitions of the circuit the form was built for.
+        max_cycles: the most repetitions the floor alone allows, floor(cycles·E/s) (first order: the
+            floor grows linearly with depth); None when there is no floor.
+        exact: the worst case was enumerated exactly (False: an upper bound was used).
+        warnings: plain-word caveats.
+    """
+
+    target: float
+    metric: str
+    assume: str
+    allocation: str
+    incoherent_floor: float
+    floor_sources: dict[str, float]
+    coherent_budget: float
+    feasible: bool
+    rows: tuple[KnobTolerance, ...]
+    common_factor: float
+    current_signed: float
+    current_assumed: float
+    cycles: int
+    max_cycles: int | None
+    exact: bool
+    warnings: tuple[str, ...] = field(default=())
+
+    def main_floor_sources(self, count: int = 3) -> list[tuple[str, float]]:
+        """The largest parts of the floor, largest first."""
+        return sorted(self.floor_sources.items(), key=lambda kv: -kv[1])[:count]
+
+
+def check_target(target: object) -> float:
+    """The target as a float, or InputError: a real number with 0 < E < 1."""
+    if isinstance(target, bool) or not isinstance(target, numbers.Real) or not 0 < float(target) < 1:
+        raise InputError(f"target = {target!r}: expected an infidelity E with 0 < E < 1")
+    return float(target)
+
+
+def tolerances(
+    qf: QuadraticForm,
+    target: float,
+    *,
+    assume: Assumption = "worst",
+    allocation: Allocation = "equal",
+    metric: str = "process",
+    cycles: int = 1,
+    exact_up_to: int = EXACT_UP_TO,
+) -> ToleranceReport:
+    """The largest tolerance per knob such that the leading-order prediction stays within ``target``.
+
+    Args:
+        qf: the quadratic form of the circuit (already repeated ``cycles`` times).
+        target: E in (0, 1) on ``metric``.
+        assume: ``"worst"`` (worst signs at the edges) or ``"random"`` (r.m.s. tolerances).
+        allocation: ``"equal"`` shares or ``"common-factor"`` scaling of today's values.
+        cycles: repetitions of the circuit behind ``qf`` (for ``max_cycles``), >= 1.
+
+    Check (design.md §3): N repetitions of an X over-rotation, process metric, A = N²/4, so
+    the worst-case tolerance is 2·sqrt(E)/N, within 5 % of the exact 2·arcsin(sqrt(E))/N for E <= 0.1:
+
+    >>> qf = QuadraticForm((("x", "overrotation"),), np.array([[100.0**2 / 4]]), np.array([1e-3]), 0.0, {})
+    >>> r = tolerances(qf, 1e-4)
+    >>> round(r.rows[0].tolerance_rad, 8), round(r.rows[0].tighten_by, 6), r.rows[0].status
+    (0.0002, 5.0, 'tighten')
+    """
+    check_form(qf)
+    target = check_target(target)
+    if assume not in ASSUMPTIONS:
+        raise InputError(f"assume = {assume!r}: expected one of {', '.join(ASSUMPTIONS)}")
+    if allocation not in ALLOCATIONS:
+        raise InputError(f"allocation = {allocation!r}: expected one of {', '.join(ALLOCATIONS)}")
+    if isinstance(cycles, bool) or not isinstance(cycles, numbers.Integral) or cycles < 1:
+        raise InputError(f"cycles = {cycles!r}: expected a whole number >= 1")
+    a = np.asarray(qf.matrix, dtype=float)
+    values = np.asarray(qf.values_rad, dtype=float)
+    now = np.abs(values)
+    diag = np.diag(a).copy()
+    active = diag > 0
+    floor, budget = float(qf.floor), target - float(qf.floor)
+    exact, warnings = True, []
+
+    def coherent(t: np.ndarray) -> float:  # the assumed coherent infidelity of tolerances t
+        nonlocal exact
+        if assume == "random":
+            return float(np.sum(diag * np.where(active, t, 0.0) ** 2))
+        m = box_maximum(a, np.where(active, t, 0.0), exact_up_to=exact_up_to)
+        exact = exact and m.exact
+        return m.value
+
+    assumed_now = coherent(now)
+    factor = math.sqrt(assumed_now / budget) if budget > 0 else math.inf
+    if budget <= 0:
+        tol = np.where(active, 0.0, math.inf)
+    elif allocation == "common-factor":
+        tol = np.where(active, now / factor if factor > 0 else math.inf, math.inf)
+    else:
+        unit = np.where(active, 1 / np.sqrt(np.where(active, diag, 1.0)), 0.0)
+        spread = coherent(unit)
+        tol = np.where(active, unit * math.sqrt(budget / spread), math.inf) if spread > 0 else np.full(len(now), math.inf)
+
+    rows = [_row(label, now[i], tol[i], feasible=budget > 0) for i, label in enumerate(qf.labels)]
+    rows.sort(key=lambda r: (-r.tighten_by, -r.current_rad, r.family, r.knob))
+    if not exact:
+        warnings.append(
+            f"more than {exact_up_to} interfering knobs: the worst case uses the bound Σ|A_fg| t_f t_g, "
+            "so the tolerances are safe but may be tighter than necessary"
+        )
+    if target > 0.1:
+        warnings.append(f"target {target:g} is large: the leading-order formula loses accuracy above about 0.1")
+    return ToleranceReport(
+        target=target, metric=metric, assume=assume, allocation=allocation, incoherent_floor=floor,
+        floor_sources=dict(qf.floor_sources), coherent_budget=budget, feasible=budget > 0, rows=tuple(rows),
+        common_factor=factor, current_signed=float(values @ a @ values) + floor,
+        current_assumed=assumed_now + floor, cycles=int(cycles),
+        max_cycles=int(math.floor(cycles * target / floor * (1 + 1e-12))) if floor > 0 else None,
+        exact=exact, warnings=tuple(warnings),
+    )
+
+
+def _row(label: tuple[str, str], now: float, tol: float, *, feasible: bool) -> KnobTolerance:
+    if math.isinf(tol):
+        return KnobTolerance(label[0], label[1], float(now), math.inf, 0.0, "no effect")
+    tighten = now / tol if tol > 0 else (0.0 if now == 0 else math.inf)
+    status = "floor too high" if not feasible else "tighten" if tighten > 1 + 1e-12 else "ok"
+    return KnobTolerance(label[0], label[1], float(now), float(tol), float(tighten), status)
+
+
+def floor_message(report: ToleranceReport) -> str | None:
+    """The plain statement when the incoherent floor alone exceeds the target, else None."""
+    if report.feasible:
+        return None
+    sources = ", ".join(f"{name} {value:.3g}" for name, value in report.main_floor_sources())
+    depth = (
+        "not even one repetition meets it"
+        if report.max_cycles == 0
+        else f"at most {report.max_cycles} repetitions meet it even with perfect calibration"
+    )
+    return (
+        f"the incoherent floor {report.incoherent_floor:.3g} alone exceeds the target {report.target:g} "
+        f"(main sources: {sources or 'none named'}); no calibration of coherent knobs can fix this; {depth}"
+    )
+
+
+def tolerances_json(report: ToleranceReport) -> dict:
+    """The report as JSON-ready data (schema ``budget.tolerances/1``); infinities become null."""
+    return {
+        "schema": SCHEMA,
+        "target": report.target,
+        "metric": report.metric,
+        "assume": report.assume,
+        "allocation": report.allocation,
+        "incoherent_floor": report.incoherent_floor,
+        "floor_sources": dict(report.floor_sources),
+        "coherent_budget": report.coherent_budget,
+        "feasible": report.feasible,
+        "floor_message": floor_message(report),
+        "common_factor": _finite(report.common_factor),
+        "current": {"signed": report.current_signed, "assumed": report.current_assumed},
+        "cycles": report.cycles,
+        "max_cycles": report.max_cycles,
+        "exact": report.exact,
+        "tolerances": [
+            {
+                "family": r.family,
+                "knob": r.knob,
+                "key": knob_key((r.family, r.knob)),
+                "current_rad": r.current_rad,
+                "tolerance_rad": _finite(r.tolerance_rad),
+                "tighten_by": _finite(r.tighten_by),
+                "status": r.status,
+            }
+            for r in report.rows
+        ],
+        "warnings": list(report.warnings),
+    }
+
+
+def _finite(x: float) -> float | None:
+    return float(x) if math.isfinite(x) else None
