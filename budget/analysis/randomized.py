@@ -1,0 +1,244 @@
+"""Randomised compiling: an ensemble of Pauli-framed copies of a circuit and its spread.
+
+Randomised compiling (Wallman & Emerson, "Noise tailoring for scalable quantum computation via
+randomized compiling", Phys. Rev. A 94, 052325 (2016)) dresses every layer that holds two-qubit
+gates with a random Pauli frame: a Pauli P on the layer's qubits just before it and C P C† just after
+it, C the layer's ideal unitary. For Clifford gates C P C† is again a Pauli, so both frames merge
+into the neighbouring single-qubit gates and the ideal circuit is unchanged:
+C P C† · C · P = C P P = C. The noisy layer E∘C becomes (P' E P'†)∘C with P' = C P C† uniformly
+random, so the average over frames is the Pauli twirl of the layer's error, and the average over
+an ensemble of compiled circuits tends to the twirled prediction (:mod:`budget.analysis.twirl`).
+
+Modelling choices (standard assumptions, stated in the output):
+
+- frames are error-free and take no time, because on the device they are absorbed into
+  neighbouring single-qubit gates whose errors are assumed not to depend on the frame;
+- only operations whose ideal gate is Clifford are dressed (checked numerically: C maps every
+  Pauli to ± a Pauli); a non-Clifford operation in such a layer keeps no frame, and a note says so;
+- single-qubit layers without two-qubit gates are not dressed, so their coherent errors are not
+  tailored (in the twirled variant they are);
+- T1/T2 relaxation inside a dressed layer is twirled by the frames, while the twirled variant keeps
+  it as it is; with relaxation the ensemble average and the twirled value therefore differ slightly.
+
+Each compiled copy draws new frames in every repetition, so copies are unrolled: their length is
+limited by :data:`MAX_COMPILED_LAYERS`.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+from functools import lru_cache
+from typing import Callable
+
+import numpy as np
+
+from budget.circuit.ir import Operation
+from budget.errors.fidelity import pauli_decompose, pauli_matrix
+from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation
+from budget.problems import InputError, TooLargeError
+
+FRAME = "frame"
+"""Family name of the error-free frame operations."""
+
+MAX_COMPILED_LAYERS = 20_000
+"""Most executed layers one compiled copy may have (copies are unrolled)."""
+
+Progress = Callable[[int, int], None]
+"""Called as progress(done, total) while an ensemble is computed."""
+
+
+@lru_cache(maxsize=256)
+def _conjugation_table(key: bytes, k: int) -> dict[str, str] | None:
+    """Pauli label -> label of U P U† (sign dropped) for all Paulis on k qubits, or None if U is
+    not Clifford. ``key`` is the matrix bytes (complex128, gate order)."""
+    u = np.frombuffer(key, dtype=complex).reshape(2**k, 2**k)
+    out: dict[str, str] = {}
+    for letters in itertools.product("IXYZ", repeat=k):
+        label = "".join(letters)
+        image = u @ pauli_matrix(label) @ u.conj().T
+        terms = pauli_decompose(image, tol=1e-9)
+        if len(terms) != 1 or abs(abs(next(iter(terms.values()))) - 1.0) > 1e-9:
+            return None
+        out[label] = next(iter(terms))
+    return out
+
+
+def conjugated_pauli(unitary: np.ndarray, label: str) -> str | None:
+    """The Pauli label of U P U† (its ±1 sign is a global phase and dropped), or None when U is not
+    a Clifford unitary (then U P U† is not a Pauli for some P).
+
+    >>> from budget.circuit.gates import ideal_unitary
+    >>> conjugated_pauli(ideal_unitary("cx"), "XI"), conjugated_pauli(ideal_unitary("cz"), "XI")
+    ('XX', 'XZ')
+    >>> conjugated_pauli(ideal_unitary("t"), "X") is None
+    True
+    """
+    u = np.ascontiguousarray(np.asarray(unitary, dtype=complex))
+    table = _conjugation_table(u.tobytes(), len(label))
+    return None if table is None else table[label]
+
+
+def _frame_op(qubit: int, letter: str) -> NoisyOperation:
+    return NoisyOperation(
+        op=Operation(letter.lower(), (qubit,)),
+        family=FRAME,
+        coherent=np.eye(2, dtype=complex),
+        hamiltonian={},
+    )
+
+
+def _frame_layer(letters: dict[int, str]) -> NoisyLayer | None:
+    ops = tuple(_frame_op(q, p) for q, p in sorted(letters.items()) if p != "I")
+    return NoisyLayer(ops, (), 0.0) if ops else None
+
+
+def dress_layer(layer: NoisyLayer, frame: dict[int, str]) -> tuple[list[NoisyLayer], list[str]]:
+    """The layer between a Pauli frame and the frame that undoes it.
+
+    Args:
+        layer: a noisy layer.
+        frame: qubit -> Pauli letter (``"I"``, ``"X"``, ``"Y"``, ``"Z"``) to put before the layer,
+            for the qubits to dress; qubits of non-Clifford operations are skipped.
+
+    Returns:
+        (layers, notes): [before, layer, after] without empty frames, and a note for each
+        non-Clifford operation left undressed. The ideal product after·layer·before equals the
+        layer's ideal unitary up to a global phase.
+    """
+    before: dict[int, str] = {}
+    after: dict[int, str] = {}
+    notes: list[str] = []
+    for nop in layer.operations:
+        qs = nop.qubits
+        if not any(q in frame for q in qs):
+            continue
+        label = "".join(frame.get(q, "I") for q in qs)
+        image = conjugated_pauli(nop.op.unitary(), label)
+        if image is None:
+            name = nop.op.label or nop.op.gate
+            notes.append(f"{name} is not a Clifford gate: left without a random frame")
+            continue
+        before.update(zip(qs, label))
+        after.update(zip(qs, image))
+    out = [x for x in (_frame_layer(before), layer, _frame_layer(after)) if x is not None]
+    return out, notes
+
+
+def compiled_copy(circuit: NoisyCircuit, rng: np.random.Generator) -> tuple[NoisyCircuit, tuple[str, ...]]:
+    """One randomly compiled copy: every layer with a two-qubit operation gets a random Pauli frame
+    on the qubits of its operations (uniform over I, X, Y, Z per qubit). Repeats are unrolled.
+
+    Returns the copy and the notes about undressed operations.
+    """
+    body: list[NoisyLayer] = []
+    notes: list[str] = []
+    for layer in circuit.iter_layers():
+        if any(len(n.qubits) == 2 for n in layer.operations):
+            qubits = sorted(q for n in layer.operations for q in n.qubits)
+            letters = rng.integers(0, 4, size=len(qubits))
+            layers, why = dress_layer(layer, {q: "IXYZ"[i] for q, i in zip(qubits, letters)})
+            body.extend(layers)
+            notes.extend(why)
+        else:
+            body.append(layer)
+    copy = NoisyCircuit(circuit.qubits, tuple(body), dict(circuit.readout_error), circuit.source)
+    return copy, tuple(dict.fromkeys(notes))
+
+
+@dataclass(frozen=True)
+class EnsembleResult:
+    """The actual infidelity over an ensemble of randomly compiled copies.
+
+    Attributes:
+        count: number of compiled copies.
+        seed: the seed of numpy's default generator that drew the frames.
+        metric: ``"process"`` or ``"state"``.
+        engine: the engine that ran the copies.
+        values: infidelity of each copy, in drawing order.
+        twirled_infidelity: the Pauli-twirled prediction for the same circuit (same engine choice).
+        notes: modelling notes (undressed operations).
+    """
+
+    count: int
+    seed: int
+    metric: str
+    engine: str
+    values: tuple[float, ...]
+    twirled_infidelity: float
+    notes: tuple[str, ...] = ()
+
+    @property
+    def mean(self) -> float:
+        return float(np.mean(self.values))
+
+    @property
+    def spread(self) -> float:
+        """Sample standard deviation across copies (0 for a single copy)."""
+        return float(np.std(self.values, ddof=1)) if self.count > 1 else 0.0
+
+    @property
+    def standard_error(self) -> float:
+        """Standard error of the mean, spread / sqrt(count)."""
+        return self.spread / float(np.sqrt(self.count))
+
+    def to_dict(self) -> dict:
+        return {
+            "count": self.count,
+            "seed": self.seed,
+            "engine": self.engine,
+            "mean": self.mean,
+            "spread": self.spread,
+            "standard_error": self.standard_error,
+            "min": float(min(self.values)),
+            "max": float(max(self.values)),
+            "twirled": self.twirled_infidelity,
+            "notes": list(self.notes),
+        }
+
+
+def ensemble(
+    circuit: NoisyCircuit,
+    *,
+    count: int,
+    seed: int,
+    metric: str = "process",
+    engine: str = "auto",
+    progress: Progress | None = None,
+) -> EnsembleResult:
+    """Actual infidelity of ``count`` randomly compiled copies of ``circuit`` (frames drawn with
+    ``numpy.random.default_rng(seed)``), with the twirled prediction beside them.
+
+    Raises:
+        InputError: count < 1 or seed < 0.
+        TooLargeError: a compiled copy would exceed :data:`MAX_COMPILED_LAYERS` executed layers.
+    """
+    from budget.analysis.select import choose_engine
+    from budget.analysis.twirl import twirled_circuit
+
+    if isinstance(count, bool) or not isinstance(count, int) or count < 1:
+        raise InputError(f"ensemble count = {count!r}: expected a whole number >= 1")
+    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
+        raise InputError(f"seed = {seed!r}: expected a whole number >= 0")
+    layers = sum(m for _, m in circuit.multiplicities())
+    if layers > MAX_COMPILED_LAYERS:
+        raise TooLargeError(
+            f"{circuit.source}: random compiling draws new frames in every repetition, so each copy "
+            f"is unrolled; {layers:,} executed layers exceed the limit of {MAX_COMPILED_LAYERS:,} "
+            "(use fewer cycles; the twirled variant needs no unrolling)"
+        )
+    rng = np.random.default_rng(seed)
+    values: list[float] = []
+    notes: list[str] = []
+    name = ""
+    for i in range(count):
+        copy, why = compiled_copy(circuit, rng)
+        notes.extend(why)
+        eng = choose_engine(copy, metric, engine)
+        name = eng.name
+        values.append(float(eng.run(copy, metric).infidelity))
+        if progress is not None:
+            progress(i + 1, count)
+    tw = twirled_circuit(circuit)
+    twirled = float(choose_engine(tw, metric, engine).run(tw, metric).infidelity)
+    return EnsembleResult(count, seed, metric, name, tuple(values), twirled, tuple(dict.fromkeys(notes)))
