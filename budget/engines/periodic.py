@@ -68,18 +68,29 @@ class CycleBasis:
     def clusters(self, tol: float = DEGENERACY_TOL_RAD) -> tuple[np.ndarray, np.ndarray]:
         """(label of each eigenvector, representative quasi-energy of each label): quasi-energies
         within ``tol`` of a neighbour (around the circle) share a label."""
-        eps = self.quasi_energies_rad
-        order = np.argsort(eps)
-        s = eps[order]
-        new = np.concatenate([[True], np.diff(s) > tol])
-        labels_sorted = np.cumsum(new) - 1
-        if len(s) > 1 and labels_sorted[-1] > 0 and (s[0] + 2 * np.pi - s[-1]) <= tol:
-            labels_sorted[labels_sorted == labels_sorted[-1]] = 0  # the cluster straddles ±π
-        labels = np.empty_like(labels_sorted)
-        labels[order] = labels_sorted
-        _, labels = np.unique(labels, return_inverse=True)
-        reps = np.array([np.angle(np.mean(np.exp(1j * eps[labels == c]))) for c in range(labels.max() + 1)])
-        return labels, reps
+        return group_angles(self.quasi_energies_rad, tol)
+
+
+def group_angles(angles: np.ndarray, tol: float = DEGENERACY_TOL_RAD) -> tuple[np.ndarray, np.ndarray]:
+    """Group angles that lie within ``tol`` of a neighbour on the circle.
+
+    Returns (label per angle, 0..m-1; representative angle per label, the circular mean).
+
+    >>> group_angles(np.array([0.1, -np.pi, 0.1 + 1e-12, np.pi - 1e-12]))[0].tolist()
+    [1, 0, 1, 0]
+    """
+    eps = wrap(np.asarray(angles, dtype=float))
+    order = np.argsort(eps)
+    s = eps[order]
+    labels_sorted = np.cumsum(np.concatenate([[True], np.diff(s) > tol])) - 1
+    if len(s) > 1 and labels_sorted[-1] > 0 and (s[0] + 2 * np.pi - s[-1]) <= tol:
+        labels_sorted[labels_sorted == labels_sorted[-1]] = 0  # the group straddles ±π
+    labels = np.empty_like(labels_sorted)
+    labels[order] = labels_sorted
+    _, labels = np.unique(labels, return_inverse=True)
+    phasors = np.zeros(labels.max() + 1, dtype=complex)
+    np.add.at(phasors, labels, np.exp(1j * eps))
+    return labels, np.angle(phasors)
 
 
 def cycle_basis(unitary: np.ndarray) -> CycleBasis:
@@ -212,3 +223,61 @@ def coherent_curve(
         ex.append(e)
         fo.append(f)
     return CoherentCurve(tuple(int(n) for n in counts), np.array(ex), np.array(fo))
+
+
+def state_components(basis: CycleBasis, state: np.ndarray, *, weight_tol: float = 1e-15) -> tuple[np.ndarray, np.ndarray]:
+    """The input state split over the cycle's eigenspaces: ψ_k = U_c^k ψ = Σ_c e^{-ikε_c} v_c.
+
+    Returns (v, ε): v of shape (m, d), one row per eigenspace the state touches (squared weight
+    above ``weight_tol``), and its quasi-energy. Degenerate eigenvectors are merged, so m is the
+    number of distinct quasi-energies the state sees (small for Clifford cycles).
+    """
+    labels, reps = basis.clusters()
+    coeffs = basis.vectors.conj().T @ state
+    rows, energies = [], []
+    for c in range(len(reps)):
+        sel = labels == c
+        v = basis.vectors[:, sel] @ coeffs[sel]
+        if np.vdot(v, v).real > weight_tol:
+            rows.append(v)
+            energies.append(reps[c])
+    return np.array(rows), np.array(energies)
+
+
+def _pair_frequencies(energies: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Frequencies x_cc' = ε_c' - ε_c of every pair, grouped: (label per pair, frequency per label)."""
+    x = energies[None, :] - energies[:, None]
+    return group_angles(x.reshape(-1))
+
+
+def frequency_count(energies: np.ndarray) -> int:
+    """Number of distinct pair frequencies, the size of :func:`repeated_squares`' kernel."""
+    return int(_pair_frequencies(energies)[0].max()) + 1
+
+
+def repeated_means(a: np.ndarray, energies: np.ndarray, counts: Sequence[int]) -> np.ndarray:
+    """Σ_{k<N} <A>_k for each N, with <A>_k = Σ_cc' e^{-ik(ε_c'-ε_c)} a[c, c'].
+
+    ``a`` has shape (J, m, m): a[j, c, c'] = <v_c|A_j|v_c'> for the components of
+    :func:`state_components` carried to the place of A_j in the cycle. Returns shape (J, len(counts)).
+    """
+    x = energies[None, :] - energies[:, None]
+    return np.stack([np.einsum("jcd,cd->j", a, geometric_sum(x, int(n))) for n in counts], axis=1)
+
+
+def repeated_squares(a: np.ndarray, energies: np.ndarray, counts: Sequence[int]) -> np.ndarray:
+    """Σ_{k<N} |<A>_k|² for each N (same conventions as :func:`repeated_means`).
+
+    <A>_k = Σ_p c_p e^{-ik x_p} over distinct pair frequencies x_p, so
+    Σ_k |<A>_k|² = Σ_pq c_p conj(c_q) G_N(x_p - x_q): cost J·F² with F distinct frequencies,
+    independent of N.
+    """
+    labels, freqs = _pair_frequencies(energies)
+    f = len(freqs)
+    c = np.zeros((a.shape[0], f), dtype=complex)
+    np.add.at(c.T, labels, a.reshape(a.shape[0], -1).T)
+    out = []
+    for n in counts:
+        kernel = geometric_sum(freqs[:, None] - freqs[None, :], int(n))
+        out.append(np.einsum("jp,pq,jq->j", c, kernel, c.conj()).real)
+    return np.stack(out, axis=1)

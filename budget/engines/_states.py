@@ -1,0 +1,112 @@
+"""State metric, coherent part, with state vectors only (dense matrices only inside repeats).
+
+With ψ_ℓ the ideal state after top-level item ℓ and G_ℓ the item's generator pushed to its end,
+H_total ψ = Σ_ℓ R_ℓ G_ℓ ψ_ℓ accumulates by the forward recurrence
+
+    φ <- U_ℓ φ + G_ℓ ψ_ℓ            (one φ per group),
+
+so the first-order quantities Var_ψ(H_total) and the family shares cost a few state-vector passes.
+H_total v for an arbitrary v (needed for e^{-iH_total} ψ by Lanczos, :mod:`._krylov`) costs one
+backward pass u = U_total† v and one forward pass x <- U_ℓ x, acc <- U_ℓ acc + G_ℓ x.
+A top-level repeat is one item: U_ℓ = U_c^N through the cycle's Schur basis and G_ℓ = S_N(H_c),
+the periodic closed form of its body's dense generator.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Hashable
+
+import numpy as np
+
+from budget.engines._apply import apply_gate
+from budget.engines._dense import ContentOf, DensePropagator
+from budget.engines.periodic import CycleBasis, periodic_sum
+from budget.errors.noisy import NoisyCircuit, NoisyLayer
+
+
+@dataclass
+class _Block:
+    basis: CycleBasis
+    count: int
+    sums: dict[Hashable, np.ndarray]
+
+
+class StatePath:
+    """The circuit's top-level items as state-vector maps (see module docstring)."""
+
+    def __init__(self, circuit: NoisyCircuit, content_of: ContentOf, dense: DensePropagator) -> None:
+        self.n = circuit.num_qubits
+        self.segments: list = []
+        keys: list[Hashable] = []
+        for item in circuit.body:
+            if isinstance(item, NoisyLayer):
+                seg = content_of(item)
+                new = list(seg.hamiltonians)
+            else:
+                inner, basis = dense.repeat(item)
+                sums = {k: periodic_sum(basis, h, item.count) for k, h in zip(inner.keys, inner.hamiltonians)}
+                seg = _Block(basis, item.count, sums)
+                new = list(sums)
+            keys += [k for k in new if k not in keys]
+            self.segments.append(seg)
+        self.keys = keys
+
+    def _forward(self, seg, v: np.ndarray) -> np.ndarray:
+        if isinstance(seg, _Block):
+            return seg.basis.apply_power(seg.count, v)
+        for m, qs in seg.gates:
+            v = apply_gate(v, m, qs, self.n)
+        return v
+
+    def _backward(self, seg, v: np.ndarray) -> np.ndarray:
+        if isinstance(seg, _Block):
+            return seg.basis.apply_power(-seg.count, v)
+        for m, qs in reversed(seg.gates):
+            v = apply_gate(v, m.conj().T, qs, self.n)
+        return v
+
+    def _generate(self, seg, key: Hashable | None, v: np.ndarray) -> np.ndarray:
+        """G v for one group (key) or all groups (key None)."""
+        out = np.zeros_like(v)
+        if isinstance(seg, _Block):
+            for k, s in seg.sums.items():
+                if key is None or k == key:
+                    out += s @ v
+            return out
+        for k, terms in seg.hamiltonians.items():
+            if key is None or k == key:
+                for h, qs in terms:
+                    out += apply_gate(v, h, qs, self.n)
+        return out
+
+    def final_state(self) -> np.ndarray:
+        psi = np.zeros(2**self.n, dtype=complex)
+        psi[0] = 1.0
+        for seg in self.segments:
+            psi = self._forward(seg, psi)
+        return psi
+
+    def group_vectors(self) -> dict[Hashable, np.ndarray]:
+        """key -> H_key,total ψ_final, by the forward recurrence."""
+        d = 2**self.n
+        psi = np.zeros(d, dtype=complex)
+        psi[0] = 1.0
+        phi = np.zeros((len(self.keys), d), dtype=complex)
+        for seg in self.segments:
+            psi = self._forward(seg, psi)
+            phi = self._forward(seg, phi)
+            for i, key in enumerate(self.keys):
+                phi[i] += self._generate(seg, key, psi)
+        return dict(zip(self.keys, phi))
+
+    def matvec(self, v: np.ndarray) -> np.ndarray:
+        """H_total v (all groups summed)."""
+        x = v
+        for seg in reversed(self.segments):
+            x = self._backward(seg, x)
+        acc = np.zeros_like(v)
+        for seg in self.segments:
+            x = self._forward(seg, x)
+            acc = self._forward(seg, acc) + self._generate(seg, None, x)
+        return acc

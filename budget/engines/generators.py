@@ -1,0 +1,254 @@
+"""The ``generators`` engine: first-order error generators pushed to the end of the circuit.
+
+Method (Blume-Kohout et al., "A taxonomy of small Markovian errors", PRX Quantum 3, 020335
+(2022); design.md §4). Each operation's error is a small generator: a Hamiltonian part
+H_op = Σ h_P P and jump operators (stochastic Pauli rates, depolarizing, T1/T2 relaxation). Every
+Hamiltonian part is pushed to the end of the circuit by the ideal remainder R: H_total = Σ R H_op R†.
+Hamiltonian parts add in amplitude, stochastic parts in probability. Repeated blocks use the
+periodic closed form (:mod:`budget.engines.periodic`), so N = 10**9 costs what N = 1 costs.
+
+Reported numbers, d = 2**n, ψ the ideal output of |0…0>:
+
+- coherent part, exponentiated: process 1 - |Tr e^{-iH_total}/d|², state 1 - |<ψ|e^{-iH_total}|ψ>|²;
+- coherent part, first order: process Tr(H_total²)/d = Σ_P h_P,total², state Var_ψ(H_total);
+- stochastic part, first order: process Σ p over every Pauli rate (relaxation through its Pauli
+  twirl, exact for the process fidelity), with multiplicities; state Σ p (<L†L> - |<L>|²) over
+  every jump operator L at the ideal state of its time (p (1 - <P>²) for a Pauli);
+- ``infidelity`` = exponentiated coherent + first-order stochastic, clipped to [0, 1];
+  ``first_order`` = first-order coherent + first-order stochastic.
+
+Shares: family f gets Σ_g Re<H_f, H_g> (process Tr(H_f H_g)/d; state Re<ψ|H_f H_g|ψ> - <H_f><H_g>)
+scaled by exponentiated/first-order coherent, plus its stochastic part; the shares add up to
+``infidelity`` exactly. Idle relaxation is family ``"idle"``.
+"""
+
+from __future__ import annotations
+
+from typing import Hashable
+
+import numpy as np
+
+from budget.circuit.clifford_check import first_non_clifford
+from budget.engines._channels import by_family, layer_content
+from budget.engines._dense import DensePropagator
+from budget.engines._jumps import StateJumps
+from budget.engines._krylov import expm_apply
+from budget.engines._observables import IncoherentObservables, observable_vector
+from budget.engines._states import StatePath
+from budget.engines.base import EngineResult, Metric, QuadraticForm, parse_observable
+from budget.engines.periodic import coherent_infidelity
+from budget.engines._knobs import knob_grouping
+from budget.errors.noisy import NoisyCircuit
+from budget.problems import TooLargeError
+
+MAX_DENSE_QUBITS = 11
+"""Dense d x d matrices (process metric, repeated blocks, observables with incoherent errors)."""
+MAX_STATE_QUBITS = 20
+"""State vectors only (state metric, no repeated block)."""
+NORM_LIMIT_RAD = 0.3
+STOCHASTIC_LIMIT = 0.05
+
+
+def _content_cache(grouping):
+    cache: dict[int, object] = {}
+
+    def content_of(layer):
+        key = id(layer)
+        if key not in cache:
+            cache[key] = layer_content(layer, grouping)
+        return cache[key]
+
+    return content_of
+
+
+def _ground(n: int) -> np.ndarray:
+    psi = np.zeros(2**n, dtype=complex)
+    psi[0] = 1.0
+    return psi
+
+
+def _needs_dense(circuit: NoisyCircuit, metric: str, observables: tuple[str, ...] = ()) -> bool:
+    return metric == "process" or circuit.has_repeats or (bool(observables) and circuit.has_incoherent)
+
+
+def _alternative(circuit: NoisyCircuit) -> str:
+    ops = [nop.op for layer in circuit.distinct_layers() for nop in layer.operations]
+    if first_non_clifford(ops) is None:
+        return "every gate is Clifford, so the clifford engine fits"
+    return "no engine of this tool holds it unless every gate is Clifford (then the clifford engine)"
+
+
+class GeneratorsEngine:
+    """First-order error generators; see the module docstring for the exact definitions."""
+
+    name = "generators"
+
+    def fits(self, circuit: NoisyCircuit, metric: Metric, observables: tuple[str, ...] = ()) -> str | None:
+        n = circuit.num_qubits
+        if _needs_dense(circuit, metric, observables):
+            if n > MAX_DENSE_QUBITS:
+                mb = 16 * 4**n / 2**20
+                why = "the process metric" if metric == "process" else "repeated blocks or observables"
+                return (
+                    f"{n} qubits: for {why} the generators engine holds dense 2^{n} x 2^{n} matrices "
+                    f"({mb:.0f} MB each, several per gate family) and stops at {MAX_DENSE_QUBITS} "
+                    f"qubits; {_alternative(circuit)}"
+                )
+        elif n > MAX_STATE_QUBITS:
+            return (
+                f"{n} qubits: the generators engine holds state vectors up to {MAX_STATE_QUBITS} "
+                f"qubits ({16 * 2**MAX_STATE_QUBITS / 2**20:.0f} MB each); {_alternative(circuit)}"
+            )
+        return None
+
+    def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
+        reason = self.fits(circuit, metric, observables)
+        if reason is not None:
+            raise TooLargeError(f"{circuit.source}: engine generators: {reason}")
+        n = circuit.num_qubits
+        content_of = _content_cache(by_family)
+        dense = DensePropagator(n, content_of)
+        jumps = StateJumps(n, content_of, dense)
+        stoch = self._stochastic(circuit, metric, content_of, jumps)
+        path = StatePath(circuit, content_of, dense) if metric == "state" or observables else None
+        coh = self._coherent(circuit, metric, dense, path)
+        stoch_total = sum(stoch.values())
+        total = float(np.clip(coh["exact"] + stoch_total, 0.0, 1.0))
+        scale = coh["exact"] / coh["first"] if coh["first"] > 0 else 0.0
+        shares = {f: scale * v for f, v in coh["shares"].items()}
+        for f, v in stoch.items():
+            shares[f] = shares.get(f, 0.0) + v
+        raw = sum(shares.values())
+        if raw and abs(raw - total) > 1e-15:
+            shares = {f: v * total / raw for f, v in shares.items()}  # only when clipped
+        warnings = self._warnings(circuit, coh["norm"], stoch_total, jumps.approximations)
+        obs: dict[str, float] = {}
+        if observables:
+            obs, notes = self._observables(circuit, observables, content_of, dense, path, coh)
+            warnings += notes
+        return EngineResult(
+            engine=self.name,
+            metric=metric,
+            infidelity=total,
+            shares=shares,
+            first_order=coh["first"] + stoch_total,
+            warnings=tuple(dict.fromkeys(warnings)),
+            details={
+                "coherent_exponentiated": coh["exact"],
+                "coherent_first_order": coh["first"],
+                "stochastic_first_order": stoch_total,
+                "hamiltonian_norm_rad": coh["norm"],
+            },
+            observable_errors=obs,
+        )
+
+    # -- parts -------------------------------------------------------------------------------
+
+    def _stochastic(self, circuit, metric, content_of, jumps: StateJumps) -> dict[str, float]:
+        if metric == "state":
+            return jumps.run(circuit.body, _ground(circuit.num_qubits))[1]
+        out: dict[str, float] = {}
+        for layer, mult in circuit.multiplicities():
+            for f, v in content_of(layer).process_stochastic.items():
+                out[f] = out.get(f, 0.0) + mult * v
+        return out
+
+    def _coherent(self, circuit, metric, dense: DensePropagator, path: StatePath | None) -> dict:
+        if metric == "process":
+            block = dense.block(circuit.body, with_unitary=False)
+            h = block.total()
+            d = h.shape[0]
+            tr = np.trace(h).real / d
+            shares = {k: float(np.vdot(hk, h).real / d - tr * np.trace(hk).real / d) for k, hk in zip(block.keys, block.hamiltonians)}
+            exact, first = coherent_infidelity(h)
+            w = np.linalg.eigvalsh((h + h.conj().T) / 2) if block.keys else np.zeros(1)
+            return {"exact": exact, "first": first, "shares": shares, "norm": float(np.max(np.abs(w - tr)))}
+        psi = path.final_state()
+        phis = path.group_vectors()
+        if not phis:
+            return {"exact": 0.0, "first": 0.0, "shares": {}, "norm": 0.0, "psi": psi, "chi": psi}
+        hpsi = sum(phis.values())
+        mean = np.vdot(psi, hpsi).real
+        shares = {k: float(np.vdot(v, hpsi).real - np.vdot(psi, v).real * mean) for k, v in phis.items()}
+        first = max(float(np.vdot(hpsi, hpsi).real - mean**2), 0.0)
+        kr = expm_apply(path.matvec, psi)
+        exact = float(np.clip(1 - abs(np.vdot(psi, kr.vector)) ** 2, 0.0, 1.0))
+        norm = float(np.max(np.abs(kr.ritz_values - mean)))
+        return {"exact": exact, "first": first, "shares": shares, "norm": norm, "psi": psi, "chi": kr.vector}
+
+    def _warnings(self, circuit, norm: float, stoch: float, notes: list[str]) -> list[str]:
+        out = []
+        if norm > NORM_LIMIT_RAD or stoch > STOCHASTIC_LIMIT:
+            what = (
+                f"the summed coherent error reaches {norm:.2f} rad (first order is good below ~{NORM_LIMIT_RAD} rad)"
+                if norm > NORM_LIMIT_RAD
+                else f"the incoherent errors add up to {stoch:.3f} (first order is good below ~{STOCHASTIC_LIMIT})"
+            )
+            trust = (
+                "trust the exact engine instead"
+                if circuit.num_qubits <= 10
+                else "for such circuits only the exact engine (small circuits) is reliable"
+            )
+            out.append(f"the first-order model is leaving its range: {what}; {trust}")
+        return out + notes
+
+    def _observables(self, circuit, labels, content_of, dense, path: StatePath, coh) -> tuple[dict[str, float], list[str]]:
+        n = circuit.num_qubits
+        if "psi" in coh:
+            psi, chi = coh["psi"], coh["chi"]
+        else:
+            psi = path.final_state()
+            chi = expm_apply(path.matvec, psi).vector if path.keys else psi
+        inc = IncoherentObservables(n, content_of, dense)
+        out = {}
+        for label in labels:
+            letters = parse_observable(label, n)
+            ideal = np.vdot(psi, observable_vector(letters, psi, n)).real
+            err = np.vdot(chi, observable_vector(letters, chi, n)).real - ideal
+            if circuit.has_incoherent:
+                err += inc.change(circuit.body, letters, psi)
+            out[label] = float(err)
+        return out, inc.approximations
+
+    def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:
+        """e ≈ δᵀAδ + floor in the coherent knobs, from the propagated unit generators.
+
+        Rows are (family, knob); δ is the knob's value (the largest in magnitude when operations
+        of one family disagree: each operation's generator is scaled by its own value over δ, so
+        δ K reproduces the first-order Hamiltonian exactly). Operations whose Hamiltonian has no
+        knob generators enter as knob ``"pauli"`` with δ = 1 and their whole Hamiltonian as K.
+        A is Re Tr(K_a K_b)/d (process) or Re<K_a K_b>_ψ - <K_a><K_b> (state); the floor is the
+        first-order stochastic part.
+        """
+        reason = self.fits(circuit, metric)
+        if reason is not None:
+            raise TooLargeError(f"{circuit.source}: engine generators: {reason}")
+        n = circuit.num_qubits
+        grouping, values = knob_grouping(circuit)
+        content_of = _content_cache(grouping)
+        dense = DensePropagator(n, content_of)
+        keys: list[Hashable] = list(values)
+        if metric == "process":
+            block = dense.block(circuit.body, with_unitary=False)
+            k = np.array([block.group(key) if key in block.keys else np.zeros((2**n, 2**n)) for key in keys])
+            d = 2**n
+            flat = k.reshape(len(keys), -1)
+            tr = np.trace(k, axis1=1, axis2=2).real / d if len(keys) else np.zeros(0)
+            a = (flat.conj() @ flat.T).real / d - np.outer(tr, tr)
+        else:
+            path = StatePath(circuit, content_of, dense)
+            psi = path.final_state()
+            phis = path.group_vectors()
+            v = np.array([phis.get(key, np.zeros(2**n, dtype=complex)) for key in keys]).reshape(len(keys), -1)
+            means = (v @ psi.conj()).real
+            a = (v.conj() @ v.T).real - np.outer(means, means)
+        family_content = _content_cache(by_family)
+        jumps = StateJumps(n, family_content, DensePropagator(n, family_content))
+        floor = self._stochastic(circuit, metric, family_content, jumps)
+        return QuadraticForm(
+            labels=tuple(keys),
+            matrix=(a + a.T) / 2,
+            values_rad=np.array([values[key] for key in keys], dtype=float),
+            floor=float(sum(floor.values())),
+            floor_sources=floor,
+        )
