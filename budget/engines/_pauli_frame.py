@@ -1,0 +1,201 @@
+"""Packed Pauli strings and a running Pauli map (a tableau), vectorised with numpy.
+
+A Pauli string on n qubits is kept as bit rows: x (W words of 64 bits), z (W words) and a phase
+exponent e in Z_4, meaning i^e X^x Z^z with every X factor written before every Z factor. Products
+follow from Z X = -X Z:
+
+    (i^e1 X^x1 Z^z1)(i^e2 X^x2 Z^z2) = i^(e1 + e2 + 2 |z1 ∧ x2|) X^(x1⊕x2) Z^(z1⊕z2),
+
+one AND and one popcount per word. A Hermitian Pauli has e ≡ |x ∧ z| (mod 2) and sign
+i^(e - |x ∧ z|) = ±1. On |0…0> the Pauli acts as i^e |x>.
+
+A :class:`Frame` holds the images of the 2n generators X_0..X_{n-1}, Z_0..Z_{n-1} under a Clifford
+conjugation (rows 0..n-1 and n..2n-1; an extra last row is the identity, so "no generator" can be
+gathered like any other row). Because conjugation is a group homomorphism, the image of any Pauli is
+the product of the rows of its generators (Aaronson & Gottesman, "Improved simulation of stabilizer
+circuits", Phys. Rev. A 70, 052328 (2004)). Updating the map by one layer of gates only rewrites the
+rows of the gates' qubits: new row(G) = old map applied to the gate's local image of G.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from budget.circuit.clifford_check import LocalClifford, LocalPauli
+
+WORD_BITS = 64
+
+
+def num_words(n: int) -> int:
+    """Words of 64 bits needed for n qubits (at least one)."""
+    return max(1, (n + WORD_BITS - 1) // WORD_BITS)
+
+
+def popcount(a: np.ndarray) -> np.ndarray:
+    """Number of set bits along the last axis (of uint64 words)."""
+    return np.bitwise_count(a).sum(axis=-1, dtype=np.int64)
+
+
+def multiply(
+    a: tuple[np.ndarray, np.ndarray, np.ndarray], b: tuple[np.ndarray, np.ndarray, np.ndarray]
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Row-wise product a·b of Pauli rows (x, z, e), broadcasting over leading axes."""
+    xa, za, ea = a
+    xb, zb, eb = b
+    e = (ea.astype(np.int64) + eb + 2 * popcount(za & xb)) & 3
+    return xa ^ xb, za ^ zb, e.astype(np.uint8)
+
+
+def hermitian_sign(x: np.ndarray, z: np.ndarray, e: np.ndarray) -> np.ndarray:
+    """±1: the sign s with i^e X^x Z^z = s · (the Hermitian Pauli with those bits)."""
+    d = (e.astype(np.int64) - popcount(x & z)) & 3
+    if np.any(d & 1):
+        raise ValueError("a Pauli row is not Hermitian (internal error)")
+    return 1 - d  # d is 0 or 2
+
+
+def pack_bits(qubits: list[int] | np.ndarray, n: int) -> np.ndarray:
+    """One row of W words with the given qubit bits set."""
+    row = np.zeros(num_words(n), dtype=np.uint64)
+    for q in qubits:
+        row[q // WORD_BITS] |= np.uint64(1) << np.uint64(q % WORD_BITS)
+    return row
+
+
+def unpack_bits(rows: np.ndarray, n: int) -> np.ndarray:
+    """Bits of packed rows (…, W) as uint8 (…, n), qubit q at position q."""
+    b = np.unpackbits(np.ascontiguousarray(rows).view(np.uint8), axis=-1, bitorder="little")
+    return b[..., :n]
+
+
+@dataclass(frozen=True)
+class GateClass:
+    """All gates of one layer with the same local action, as index arrays.
+
+    Attributes:
+        qubits: (m, k) global qubit indices, gate order.
+        images: the 2k local images (of X_0..X_{k-1}, Z_0..Z_{k-1}) for the chosen direction.
+    """
+
+    qubits: np.ndarray
+    images: tuple[LocalPauli, ...]
+
+
+def layer_classes(ops: list[tuple[tuple[int, ...], LocalClifford]], direction: str) -> tuple[GateClass, ...]:
+    """Group a layer's (qubits, local Clifford) pairs by their local images.
+
+    ``direction`` ``"pull"`` uses U† G U (map each Pauli back towards the input), ``"push"`` uses
+    U G U† (towards the output). Identity gates are left out.
+    """
+    groups: dict[tuple, list[tuple[int, ...]]] = {}
+    for qubits, cl in ops:
+        if cl.is_identity:
+            continue
+        images = cl.backward if direction == "pull" else cl.forward
+        groups.setdefault(images, []).append(qubits)
+    return tuple(GateClass(np.array(qs, dtype=np.int64), images) for images, qs in groups.items())
+
+
+class Frame:
+    """A Pauli map P -> W† P W (or W P W†) kept as the images of the generators.
+
+    Attributes:
+        n: number of qubits.
+        x, z: (2n+1, W) uint64 rows; row q is the image of X_q, row n+q that of Z_q, row 2n the
+            identity.
+        e: (2n+1,) phase exponents in Z_4.
+    """
+
+    def __init__(self, n: int, x: np.ndarray, z: np.ndarray, e: np.ndarray):
+        self.n, self.x, self.z, self.e = n, x, z, e
+
+    @classmethod
+    def identity(cls, n: int) -> "Frame":
+        w = num_words(n)
+        x = np.zeros((2 * n + 1, w), dtype=np.uint64)
+        z = np.zeros((2 * n + 1, w), dtype=np.uint64)
+        q = np.arange(n)
+        bits = np.uint64(1) << (q % WORD_BITS).astype(np.uint64)
+        x[q, q // WORD_BITS] = bits
+        z[n + q, q // WORD_BITS] = bits
+        return cls(n, x, z, np.zeros(2 * n + 1, dtype=np.uint8))
+
+    def copy(self) -> "Frame":
+        return Frame(self.n, self.x.copy(), self.z.copy(), self.e.copy())
+
+    def equals(self, other: "Frame") -> bool:
+        return (
+            np.array_equal(self.e, other.e) and np.array_equal(self.x, other.x) and np.array_equal(self.z, other.z)
+        )
+
+    def rows(self, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The rows at ``idx`` (any shape), as (x, z, e)."""
+        return self.x[idx], self.z[idx], self.e[idx]
+
+    def image(self, slots: np.ndarray, e0: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Images of local Paulis i^e0 · Π_j row(slots[:, j]) (slot columns in X-then-Z order).
+
+        Args:
+            slots: (T, s) row indices; 2n for "no generator".
+            e0: (T,) phase exponents of the local Paulis.
+        """
+        acc = self.rows(slots[:, 0])
+        for j in range(1, slots.shape[1]):
+            acc = multiply(acc, self.rows(slots[:, j]))
+        return acc[0], acc[1], ((acc[2].astype(np.int64) + e0) & 3).astype(np.uint8)
+
+    def image_x(self, slots: np.ndarray) -> np.ndarray:
+        """Only the X bits of the images (XOR of the rows' X bits; no phase needed)."""
+        acc = self.x[slots[:, 0]]
+        for j in range(1, slots.shape[1]):
+            acc = acc ^ self.x[slots[:, j]]
+        return acc
+
+    def apply(self, classes: tuple[GateClass, ...]) -> None:
+        """Compose with one layer: new row(G) = current map applied to the gate's image of G."""
+        n = self.n
+        for cls in classes:
+            k = cls.qubits.shape[1]
+            gens = [cls.qubits[:, j] for j in range(k)] + [n + cls.qubits[:, j] for j in range(k)]
+            old = [self.rows(g) for g in gens]
+            new = []
+            for xb, zb, e in cls.images:
+                acc = None
+                for j, bit in enumerate(xb + zb):
+                    if bit:
+                        acc = old[j] if acc is None else multiply(acc, old[j])
+                new.append((acc[0], acc[1], ((acc[2].astype(np.int64) + e) & 3).astype(np.uint8)))
+            for g, (x, z, e) in zip(gens, new):
+                self.x[g], self.z[g], self.e[g] = x, z, e
+
+    def to_stim(self):
+        """The same map as a ``stim.Tableau`` (for powers of large blocks; see _walk)."""
+        import stim
+
+        n = self.n
+        xb = unpack_bits(self.x[: 2 * n], n).astype(bool)
+        zb = unpack_bits(self.z[: 2 * n], n).astype(bool)
+        signs = hermitian_sign(self.x[: 2 * n], self.z[: 2 * n], self.e[: 2 * n]) < 0
+        return stim.Tableau.from_numpy(
+            x2x=xb[:n], x2z=zb[:n], z2x=xb[n:], z2z=zb[n:], x_signs=signs[:n], z_signs=signs[n:]
+        )
+
+    @classmethod
+    def from_stim(cls, tab) -> "Frame":
+        n = len(tab)
+        x2x, x2z, z2x, z2z, xs, zs = tab.to_numpy()
+        f = cls.identity(n)
+        w = num_words(n)
+
+        def pack(bits: np.ndarray) -> np.ndarray:
+            padded = np.zeros((bits.shape[0], w * WORD_BITS), dtype=bool)
+            padded[:, :n] = bits
+            return np.packbits(padded, axis=1, bitorder="little").view(np.uint64)
+
+        f.x[: 2 * n] = pack(np.vstack([x2x, z2x]))
+        f.z[: 2 * n] = pack(np.vstack([x2z, z2z]))
+        base = popcount(f.x[: 2 * n] & f.z[: 2 * n]) + 2 * np.concatenate([xs, zs]).astype(np.int64)
+        f.e[: 2 * n] = (base & 3).astype(np.uint8)
+        return f

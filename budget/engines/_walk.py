@@ -1,0 +1,150 @@
+"""Walk a noisy Clifford circuit once, keeping a running Pauli frame, with repeats folded.
+
+Two directions:
+
+- ``"pull"`` walks forwards and keeps π_t(P) = V_t† P V_t, V_t the circuit up to and including
+  layer t. An error right after layer t is mapped back to the input frame by π_t (the state metric
+  and observables are evaluated on |0…0>).
+- ``"push"`` walks backwards and keeps σ_t(P) = S_t P S_t†, S_t the circuit after layer t. An error
+  after layer t is mapped to the output frame by σ_t (process metric, where errors land).
+
+Repeated blocks. A block C of Clifford layers maps Paulis by a signed permutation c, and the
+Clifford group on n qubits is finite, so c^r = identity for some period r (signs included). The
+errors of repetition k and k + r then land on the same Pauli with the same sign: N repetitions are
+q = N // r whole periods plus s = N % r, and the terms of repetition k < r enter with weight
+q + [k < s] (amplitudes for coherent terms, rates for stochastic ones). The walker unrolls one
+repetition at a time and compares the frame with the frame at the block's start, so it finds r
+while it goes; the cost is min(r, N) repetitions whatever N is (nested blocks multiply).
+
+When no period turns up within ``max_unrolled`` repetitions and N is larger, the block is folded
+approximately: the window of repetitions walked stands for N/K windows that do not interfere
+(coherent amplitudes scaled by sqrt(N/K), rates by N/K, exact when no error of one window lands on
+the Pauli of an error in another), and the frame after the block is the exact power c^N computed by
+repeated squaring of tableaus (stim.Tableau ** N). A warning says so.
+"""
+
+from __future__ import annotations
+
+from typing import Protocol
+
+import numpy as np
+
+from budget.circuit.clifford_check import operation_clifford
+from budget.engines._pauli_frame import Frame, GateClass, layer_classes
+from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
+
+MAX_UNROLLED = 4096
+"""Default cap on repetitions walked while looking for a block's period."""
+
+
+class Sink(Protocol):
+    """Receives each executed layer's errors mapped through the frame."""
+
+    def mark(self) -> int: ...
+
+    def scale(self, start: int, stop: int, amplitude: float, probability: float) -> None: ...
+
+    def emit(self, layer: NoisyLayer, frame: Frame) -> None: ...
+
+
+class Walker:
+    """One pass over a circuit in one direction (see module docstring).
+
+    Attributes:
+        frame: the running map; after :meth:`run`, the map of the whole circuit.
+        periods: (block count N, period r or None) for every block folded.
+        warnings: plain-words notes about approximate folding.
+        layers_walked: executed layers actually visited (cost measure).
+    """
+
+    def __init__(self, n: int, direction: str, sink: Sink | None = None, *, max_unrolled: int = MAX_UNROLLED):
+        if direction not in ("pull", "push"):
+            raise ValueError(f"direction {direction!r}: expected 'pull' or 'push'")
+        self.n = n
+        self.direction = direction
+        self.sink = sink
+        self.max_unrolled = max_unrolled
+        self.frame = Frame.identity(n)
+        self.periods: list[tuple[int, int | None]] = []
+        self.warnings: list[str] = []
+        self.layers_walked = 0
+        self._emit = sink is not None
+        self._plans: dict[int, tuple[GateClass, ...]] = {}
+
+    def run(self, items: tuple[NoisyItem, ...]) -> Frame:
+        self._items(items)
+        return self.frame
+
+    def _items(self, items: tuple[NoisyItem, ...]) -> None:
+        for it in items if self.direction == "pull" else reversed(items):
+            if isinstance(it, NoisyLayer):
+                self._layer(it)
+            else:
+                self._repeat(it)
+
+    def _plan(self, layer: NoisyLayer) -> tuple[GateClass, ...]:
+        key = id(layer)
+        if key not in self._plans:
+            ops = []
+            for nop in layer.operations:
+                cl = operation_clifford(nop.op)
+                if cl is None:
+                    raise ValueError(f"operation {nop.op.gate} on {nop.qubits} is not Clifford")
+                ops.append((nop.qubits, cl))
+            self._plans[key] = layer_classes(ops, self.direction)
+        return self._plans[key]
+
+    def _layer(self, layer: NoisyLayer) -> None:
+        self.layers_walked += 1
+        if self.direction == "pull":
+            self.frame.apply(self._plan(layer))
+        if self._emit:
+            self.sink.emit(layer, self.frame)
+        if self.direction == "push":
+            self.frame.apply(self._plan(layer))
+
+    def _repeat(self, rep: NoisyRepeat) -> None:
+        count = int(rep.count)
+        start = self.frame.copy()
+        marks = [self.sink.mark()] if self._emit else []
+        limit = min(count, self.max_unrolled)
+        for k in range(limit):
+            self._items(rep.body)
+            if self._emit:
+                marks.append(self.sink.mark())
+            if k + 1 < count and self.frame.equals(start):
+                self._fold(rep, k + 1, marks)
+                return
+        if count <= self.max_unrolled:
+            self.periods.append((count, None))
+            return
+        self._approximate(rep, start, limit, marks)
+
+    def _fold(self, rep: NoisyRepeat, period: int, marks: list[int]) -> None:
+        q, s = divmod(int(rep.count), period)
+        self.periods.append((int(rep.count), period))
+        if self._emit:
+            for k in range(period):
+                w = float(q + (1 if k < s else 0))
+                if w != 1.0:
+                    self.sink.scale(marks[k], marks[k + 1], w, w)
+        was, self._emit = self._emit, False  # frame is back at the start: advance it by s blocks
+        for _ in range(s):
+            self._items(rep.body)
+        self._emit = was
+
+    def _approximate(self, rep: NoisyRepeat, start: Frame, walked: int, marks: list[int]) -> None:
+        count = int(rep.count)
+        ratio = count / walked
+        self.periods.append((count, None))
+        if self._emit:
+            self.sink.scale(marks[0], marks[-1], float(np.sqrt(ratio)), ratio)
+        block = Walker(self.n, self.direction, max_unrolled=self.max_unrolled)
+        block.run(rep.body)
+        power = block.frame.to_stim() ** count
+        self.frame = Frame.from_stim(power.then(start.to_stim()))
+        self.warnings.append(
+            f"a block repeated {count} times has no period within {walked} repetitions: its errors were "
+            f"folded assuming errors more than {walked} repetitions apart never land on the same Pauli "
+            "(true for scrambling blocks, not checked); the result is approximate"
+        )
