@@ -1,0 +1,235 @@
+"""The ``clifford`` engine: first-order error budgets of Clifford circuits of any size.
+
+When every ideal gate is Clifford, a Pauli error stays a Pauli string when pushed through the rest
+of the circuit (Gottesman, arXiv:quant-ph/9807006 (1998)), so the generator picture of design.md §4
+(Blume-Kohout et al., "A taxonomy of small Markovian errors", PRX Quantum 3, 020335 (2022)) needs
+no matrices: each operation's coherent part is its exact Pauli Hamiltonian Σ h_P P, its incoherent
+part stochastic Pauli rates (depolarizing λ -> λ/d² per Pauli; T1/T2 through the Pauli twirl of
+Tomita & Svore, Phys. Rev. A 90, 062320 (2014)). Every term is mapped to the output frame
+(process metric) or back to the input frame (state metric, observables) by a running tableau kept
+as packed bits (:mod:`budget.engines._pauli_frame`), and amplitudes add within a group:
+
+    process:  e_F ≈ Σ_Q (Σ_{t→Q} h_t s_t)² + Σ_t p_t
+    state:    1 - F ≈ Σ_{x≠0} |Σ_{t→x} h_t i^{e_t}|² + Σ_{t: x_t≠0} p_t
+
+(the state sum is Var_{0…0}(H_in) written per X part). Repeated blocks are folded by the period of
+their Clifford (:mod:`budget.engines._walk`); observables use only their backward light cone
+(:mod:`budget.engines._cone`). The reported infidelity is the resummed 1 - Π cos²|A_g| Π (1 - p)
+(:mod:`budget.engines._groups`); ``first_order`` is the sum above.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from budget.circuit.clifford_check import first_non_clifford, label_bits
+from budget.engines._cone import light_cone
+from budget.engines._groups import Budget, aggregate, quadratic_matrix
+from budget.engines._sinks import ObservableSink, PauliSink
+from budget.engines._terms import Sources, TermBuilder
+from budget.engines._walk import MAX_UNROLLED, Walker
+from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable
+from budget.errors.noisy import NoisyCircuit
+from budget.problems import TooLargeError, place
+
+SMALL = 0.1
+"""First-order infidelity above which the engine warns that the expansion is no longer small."""
+
+TWIRL_NOTE = (
+    "state metric: T1/T2 relaxation enters through its Pauli twirl (Tomita & Svore, PRA 90, 062320 "
+    "(2014)); amplitude damping leaves |0> alone while its twirl does not, so the relaxation part is "
+    "approximate (use the generators or exact engine for jump operators)"
+)
+
+
+def _has_relaxation(circuit: NoisyCircuit) -> bool:
+    return any(
+        not r.is_trivial
+        for layer in circuit.distinct_layers()
+        for r in (*layer.idle, *(r for nop in layer.operations for r in nop.relaxation))
+    )
+
+
+class CliffordEngine:
+    """Pauli-frame engine (see module docstring).
+
+    Args:
+        max_unrolled: repetitions of a block walked while looking for its period.
+        qubit_map: compute the per-qubit map of where the error lands (output frame).
+        top: number of operations listed in the drill-down.
+        prune_observables: evaluate observables on their backward light cone only.
+    """
+
+    name = "clifford"
+
+    def __init__(
+        self,
+        *,
+        max_unrolled: int = MAX_UNROLLED,
+        qubit_map: bool = True,
+        top: int = 10,
+        prune_observables: bool = True,
+    ):
+        self.max_unrolled = max_unrolled
+        self.qubit_map = qubit_map
+        self.top = top
+        self.prune_observables = prune_observables
+
+    def fits(self, circuit: NoisyCircuit, metric: Metric) -> str | None:
+        """None when every ideal gate is Clifford, else the first offending gate and its line."""
+        if metric not in METRICS:
+            return f"metric {metric!r} is not one of {', '.join(METRICS)}"
+        op = first_non_clifford(nop.op for layer in circuit.distinct_layers() for nop in layer.operations)
+        if op is None:
+            return None
+        angles = f"({', '.join(f'{a:.6g}' for a in op.params)})" if op.params else ""
+        names = ", ".join(circuit.qubits[q] for q in op.qubits)
+        return (
+            f"{place(circuit.source, op.line)}: gate {op.label or op.gate}{angles} on {names} is not "
+            "Clifford (angles must be multiples of π/2); use the generators or exact engine"
+        )
+
+    def _check(self, circuit: NoisyCircuit, metric: Metric) -> None:
+        reason = self.fits(circuit, metric)
+        if reason is not None:
+            raise TooLargeError(f"engine clifford: {reason}")
+
+    def _pass(self, circuit: NoisyCircuit, metric: str, *, unit: bool = False, landing: bool = False):
+        sources = Sources()
+        if unit:
+            sources.scale.update(_knob_scales(circuit))
+        builder = TermBuilder(circuit.num_qubits, circuit.qubits, sources, with_unit=unit)
+        sink = PauliSink(builder, key="x" if metric == "state" else "xz", landing=landing, unit=unit)
+        walker = Walker(circuit.num_qubits, "pull" if metric == "state" else "push", sink, max_unrolled=self.max_unrolled)
+        walker.run(circuit.body)
+        return sources, sink, walker
+
+    def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
+        """First-order and resummed infidelity, family shares, drill-down, qubit map, observables."""
+        self._check(circuit, metric)
+        n = circuit.num_qubits
+        sources, sink, walker = self._pass(circuit, metric, landing=self.qubit_map and metric == "process")
+        budget = aggregate(sink, len(sources.families), n, state=metric == "state", landing=self.qubit_map and metric == "process")
+        warnings = list(walker.warnings)
+        details: dict = {}
+        landing = budget.landing
+        if self.qubit_map and metric == "state":
+            psrc, psink, pwalk = self._pass(circuit, "process", landing=True)
+            pb = aggregate(psink, len(psrc.families), n, state=False, landing=True)
+            landing = pb.landing
+            details["process_first_order"] = pb.first_order
+        fo = budget.first_order
+        total = budget.resummed
+        fam_fo = _by_family(sources, budget.source_shares)
+        shares = {f: v * total / fo for f, v in fam_fo.items()} if fo > 0 else dict(fam_fo)
+        if fo > SMALL or budget.max_amplitude > np.sqrt(SMALL):
+            warnings.append(
+                f"first-order infidelity {fo:.3g} is no longer small (largest summed coherent amplitude "
+                f"{budget.max_amplitude:.3g} rad): the resummed value {total:.3g} treats error groups as "
+                "independent; check with the exact engine where it fits"
+            )
+        if metric == "state" and _has_relaxation(circuit):
+            warnings.append(TWIRL_NOTE)
+        details.update(_details(budget, sources, walker, self.top))
+        if landing is not None:
+            details["qubit_map"] = {name: float(v) for name, v in zip(circuit.qubits, landing)}
+            details["qubit_map_quantity"] = "first-order marginal process infidelity per qubit, output frame"
+        obs: dict[str, float] = {}
+        if observables:
+            for label in observables:
+                coh, sto = self.observable_error(circuit, label)
+                obs[label] = coh + sto
+            if _has_relaxation(circuit):
+                warnings.append("observables: T1/T2 relaxation enters through its Pauli twirl (first order)")
+        return EngineResult(
+            engine=self.name,
+            metric=metric,
+            infidelity=float(min(max(total, 0.0), 1.0)),
+            shares=shares,
+            first_order=float(fo),
+            warnings=tuple(dict.fromkeys(warnings)),
+            details=details,
+            observable_errors=obs,
+        )
+
+    def observable_error(self, circuit: NoisyCircuit, label: str, *, prune: bool | None = None) -> tuple[float, float]:
+        """(coherent, stochastic) first-order change of <O> for the Pauli observable ``label``.
+
+        δ<O> = i<ψ|[H_total, O]|ψ> (coherent) and -2 p <O> for each stochastic Pauli that
+        anticommutes with O; only the backward light cone of O's qubits is walked unless
+        ``prune`` is False.
+        """
+        paulis = parse_observable(label, circuit.num_qubits)
+        prune = self.prune_observables if prune is None else prune
+        if prune:
+            sub, kept = light_cone(circuit, set(paulis))
+            index = {q: i for i, q in enumerate(kept)}
+            paulis = {index[q]: p for q, p in paulis.items()}
+        else:
+            sub = circuit
+        m = sub.num_qubits
+        whole = Walker(m, "pull", max_unrolled=self.max_unrolled).run(sub.body)
+        qs = sorted(paulis)
+        x, z, e = label_bits("".join(paulis[q] for q in qs))
+        slots = [q for q, b in zip(qs, x) if b] + [m + q for q, b in zip(qs, z) if b]
+        xo, zo, eo = whole.image(np.array([slots]), np.array([e], np.uint8))
+        sink = ObservableSink(TermBuilder(m, sub.qubits, Sources()), (xo[0], zo[0], int(eo[0])))
+        Walker(m, "pull", sink, max_unrolled=self.max_unrolled).run(sub.body)
+        return sink.total()
+
+    def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:
+        """e ≈ δᵀ A δ + floor over (family, knob) labels, from the knobs' first-order generators.
+
+        Each label's value δ is the knob value of largest magnitude among the family's
+        operations; an operation with another value enters A scaled by its value / δ, so δᵀAδ
+        is the first-order coherent infidelity at today's values and A answers "scale this
+        family's knob". The floor is the first-order stochastic infidelity.
+        """
+        self._check(circuit, metric)
+        sources, sink, _ = self._pass(circuit, metric, unit=True)
+        labels = sorted(sources.labels, key=sources.labels.get)
+        a = quadratic_matrix(sink, len(labels), state=metric == "state")
+        sto = sink.stochastic_by_source(len(sources.families))
+        floor_sources: dict[str, float] = {}
+        for f, v in zip(sources.families, sto):
+            floor_sources[f] = floor_sources.get(f, 0.0) + float(v)
+        values = np.array([sources.scale.get(lab, 0.0) for lab in labels])
+        return QuadraticForm(tuple(labels), a, values, float(np.sum(sto)), floor_sources)
+
+
+def _knob_scales(circuit: NoisyCircuit) -> dict[tuple[str, str], float]:
+    out: dict[tuple[str, str], float] = {}
+    for layer in circuit.distinct_layers():
+        for nop in layer.operations:
+            for knob in nop.knob_generators:
+                v = float(nop.knob_values.get(knob, 0.0))
+                key = (nop.family, knob)
+                if abs(v) > abs(out.get(key, 0.0)):
+                    out[key] = v
+                out.setdefault(key, v)
+    return out
+
+
+def _details(b: Budget, sources: Sources, walker: Walker, top: int) -> dict:
+    order = np.argsort(-np.abs(b.source_shares))[:top]
+    return {
+        "first_order_coherent": b.coherent,
+        "first_order_stochastic": b.stochastic,
+        "resummed": b.resummed,
+        "coherent_groups": b.groups,
+        "max_group_amplitude_rad": b.max_amplitude,
+        "folded_blocks": [{"count": c, "period": p} for c, p in walker.periods],
+        "layers_walked": walker.layers_walked,
+        "first_order_family_shares": _by_family(sources, b.source_shares),
+        "top_operations": [dict(sources.info[i], share=float(b.source_shares[i])) for i in order if b.source_shares[i]],
+    }
+
+
+def _by_family(sources: Sources, shares: np.ndarray) -> dict[str, float]:
+    out: dict[str, float] = {}
+    for f, v in zip(sources.families, shares):
+        out[f] = out.get(f, 0.0) + float(v)
+    return out
+
+
+__all__ = ["CliffordEngine"]
