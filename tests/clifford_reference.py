@@ -1,0 +1,179 @@
+"""Test helpers for the clifford engine: random noisy Clifford circuits and a dense first-order
+reference that uses none of the engine's code.
+
+The reference pushes every error term through the ideal circuit with dense matrices built by cirq
+(cirq.MatrixGate on LineQubits, cirq.Circuit.unitary) and evaluates the generator formulas of
+Blume-Kohout et al., "A taxonomy of small Markovian errors", PRX Quantum 3, 020335 (2022):
+
+    process:  e_F = Tr(H²)/d + Σ p,          H = Σ_t h_t S_t P_t S_t†
+    state:    1 - F = Var_ψ(H) + Σ p (1 - <ψ|Q|ψ>²),   ψ = U|0…0>
+    observable O: δ<O> = i<ψ|[H, O]|ψ> - 2 Σ_{Q anticommuting with O} p <ψ|O|ψ>
+
+with stochastic rates from pauli_rates, depolarizing λ (λ/d² per Pauli) and the Pauli twirl of
+relaxation (Tomita & Svore, PRA 90, 062320 (2014)).
+"""
+
+from __future__ import annotations
+
+import itertools
+
+import cirq
+import numpy as np
+import scipy.linalg
+
+from budget.circuit.ir import Operation
+from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
+from reference import pauli_matrix
+
+ONE = ["id", "x", "y", "z", "h", "s", "sdg", "sx", "sxdg", "rx", "ry", "rz", "p", "u"]
+TWO = ["cx", "cy", "cz", "swap", "iswap"]
+ANGLES = {"rx": 1, "ry": 1, "rz": 1, "p": 1, "u": 3}
+
+
+def _labels(k: int) -> list[str]:
+    return ["".join(p) for p in itertools.product("IXYZ", repeat=k)][1:]
+
+
+def _random_h(rng, k: int, scale: float) -> dict[str, float]:
+    labels = _labels(k)
+    chosen = rng.choice(len(labels), size=rng.integers(1, 4), replace=False)
+    return {labels[i]: float(rng.normal(0, scale)) for i in chosen}
+
+
+def _expm(h: dict[str, float], k: int) -> np.ndarray:
+    m = sum((c * pauli_matrix(p) for p, c in h.items()), np.zeros((2**k, 2**k), complex))
+    return scipy.linalg.expm(-1j * m)
+
+
+def _relax(rng, q: int, t_ns: float, on: bool) -> Relaxation:
+    if not on or t_ns == 0:
+        return Relaxation(q, t_ns, 0.0, 1.0)
+    t1 = rng.uniform(20, 100) * 1e3
+    t2 = rng.uniform(0.3, 2.0) * t1
+    return Relaxation(q, t_ns, 1 - np.exp(-t_ns / t1), float(np.exp(-t_ns * (1 / t2 - 1 / (2 * t1)))))
+
+
+def random_layer(rng, n: int, *, scale=0.02, depolarizing=True, relaxation=True, rates=False) -> NoisyLayer:
+    free = list(rng.permutation(n))
+    ops: list[NoisyOperation] = []
+    busy: dict[int, float] = {}
+    while free:
+        if len(free) >= 2 and rng.random() < 0.5:
+            qs, gate = (int(free.pop()), int(free.pop())), str(rng.choice(TWO))
+        else:
+            qs, gate = (int(free.pop()),), str(rng.choice(ONE))
+        if rng.random() < 0.2:
+            continue
+        k = len(qs)
+        params = tuple(float(a) for a in rng.integers(-4, 5, ANGLES.get(gate, 0)) * np.pi / 2)
+        h = _random_h(rng, k, scale) if scale else {}
+        dur = float(rng.choice([20.0, 35.0, 60.0])) if relaxation else 0.0
+        pr = {p: float(abs(c)) ** 2 for p, c in _random_h(rng, k, 0.03).items()} if rates else {}
+        ops.append(
+            NoisyOperation(
+                op=Operation(gate, qs, params),
+                family=gate,
+                coherent=_expm(h, k),
+                hamiltonian=h,
+                pauli_rates=pr,
+                depolarizing=float(rng.uniform(0, 3e-3)) if depolarizing else 0.0,
+                relaxation=tuple(_relax(rng, q, dur, relaxation) for q in qs),
+                duration_ns=dur,
+            )
+        )
+        busy.update({q: dur for q in qs})
+    t = max(busy.values(), default=0.0)
+    idle = tuple(_relax(rng, q, t - busy.get(q, 0.0), relaxation) for q in range(n) if t - busy.get(q, 0.0) > 0)
+    return NoisyLayer(tuple(ops), idle, t)
+
+
+def random_clifford_circuit(rng, n: int, *, layers: int = 4, repeat: int | None = None, nested: bool = False, **kw) -> NoisyCircuit:
+    """Random Clifford layers with random errors; optionally a repeated block (nested once)."""
+    body: list = [random_layer(rng, n, **kw) for _ in range(layers)]
+    if repeat is not None:
+        inner = tuple(random_layer(rng, n, **kw) for _ in range(2))
+        block = NoisyRepeat((random_layer(rng, n, **kw), NoisyRepeat(inner, 3)), repeat) if nested else NoisyRepeat(inner, repeat)
+        body.insert(layers // 2, block)
+    return NoisyCircuit(tuple(f"q[{i}]" for i in range(n)), tuple(body))
+
+
+def unrolled(c: NoisyCircuit) -> NoisyCircuit:
+    return NoisyCircuit(c.qubits, tuple(c.iter_layers()), source=c.source)
+
+
+def _embed(label: str, qubits: tuple[int, ...], n: int) -> np.ndarray:
+    qs = cirq.LineQubit.range(n)
+    ps = cirq.PauliString({qs[q]: getattr(cirq, ch) for q, ch in zip(qubits, label) if ch != "I"})
+    return ps.matrix(qs)
+
+
+def _terms(layer: NoisyLayer):
+    """(family, kind, label, qubits, value) of every error term of a layer."""
+    for nop in layer.operations:
+        k = len(nop.qubits)
+        for lab, h in nop.hamiltonian.items():
+            yield nop.family, "h", lab, nop.qubits, h
+        for lab, p in nop.pauli_rates.items():
+            yield nop.family, "s", lab, nop.qubits, p
+        for lab in _labels(k) if nop.depolarizing else ():
+            yield nop.family, "s", lab, nop.qubits, nop.depolarizing / 4**k
+        for r in nop.relaxation:
+            for lab, p in zip("XYZ", r.pauli_twirl()):
+                yield nop.family, "s", lab, (r.qubit,), p
+    for r in layer.idle:
+        for lab, p in zip("XYZ", r.pauli_twirl()):
+            yield IDLE, "s", lab, (r.qubit,), p
+
+
+def dense_first_order(c: NoisyCircuit, observables: tuple[str, ...] = ()) -> dict:
+    """First-order process and state infidelity, family shares and observable errors, densely."""
+    n = c.num_qubits
+    d = 2**n
+    qs = cirq.LineQubit.range(n)
+    layers = list(c.iter_layers())
+    mats = [
+        cirq.Circuit(
+            [cirq.I(q) for q in qs] + [cirq.MatrixGate(nop.op.unitary()).on(*[qs[q] for q in nop.qubits]) for nop in layer.operations]
+        ).unitary(qubit_order=qs)
+        for layer in layers
+    ]
+    suffix = [np.eye(d, dtype=complex)] * (len(layers) + 1)
+    for t in range(len(layers) - 1, -1, -1):
+        suffix[t] = suffix[t + 1] @ mats[t]
+    psi = suffix[0][:, 0]
+    hams: dict[str, np.ndarray] = {}
+    stoch: list[tuple[str, float, np.ndarray]] = []
+    for t, layer in enumerate(layers):
+        s = suffix[t + 1]
+        for fam, kind, lab, qubits, v in _terms(layer):
+            q = s @ _embed(lab, qubits, n) @ s.conj().T
+            if kind == "h":
+                hams[fam] = hams.get(fam, 0) + v * q
+            else:
+                stoch.append((fam, v, q))
+    total = sum(hams.values(), np.zeros((d, d), complex))
+    out = {"process": {}, "state": {}}
+    ev = lambda m: complex(psi.conj() @ m @ psi)  # noqa: E731
+    for fam, hf in hams.items():
+        out["process"][fam] = out["process"].get(fam, 0) + np.trace(hf @ total).real / d
+        out["state"][fam] = out["state"].get(fam, 0) + (ev(hf @ total) - ev(hf) * ev(total)).real
+    for fam, p, q in stoch:
+        out["process"][fam] = out["process"].get(fam, 0) + p
+        out["state"][fam] = out["state"].get(fam, 0) + p * (1 - ev(q).real ** 2)
+    result = {
+        "process": sum(out["process"].values()),
+        "state": sum(out["state"].values()),
+        "shares": out,
+        "observables": {},
+    }
+    for label in observables:
+        from budget.engines.base import parse_observable
+
+        paulis = parse_observable(label, n)
+        o = _embed("".join(paulis.values()), tuple(paulis), n)
+        delta = (1j * ev(total @ o - o @ total)).real
+        for _, p, q in stoch:
+            if np.allclose(q @ o, -o @ q):
+                delta -= 2 * p * ev(o).real
+        result["observables"][label] = delta
+    return result
