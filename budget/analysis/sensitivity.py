@@ -16,23 +16,17 @@ unit generators (Blume-Kohout et al., "A taxonomy of small Markovian errors", PR
   negative = they cancel;
 - δ_f (A δ)_f, the *share* of knob f; the shares add up to δᵀAδ.
 
-:func:`regroup` renames families so the same engines give A per qubit pair or per operation.
+:func:`per_operation` renames families so the same engines give A per operation.
 """
 
 from __future__ import annotations
 
 import dataclasses
 from dataclasses import dataclass
-from typing import Literal
-
 import numpy as np
 
 from budget.engines.base import QuadraticForm
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
-
-Grouping = Literal["family", "pair", "operation"]
-GROUPINGS: tuple[str, ...] = ("family", "pair", "operation")
-
 
 def knob_key(label: tuple[str, str]) -> str:
     """The user-facing name of a (family, knob) label: ``"cz.cphase"``."""
@@ -166,27 +160,21 @@ def sensitivity_json(s: Sensitivity) -> dict:
     }
 
 
-def regroup(circuit: NoisyCircuit, by: Grouping) -> NoisyCircuit:
-    """The same circuit with families renamed so that budgets come per qubit pair or per operation.
-
-    ``"family"``: unchanged. ``"pair"``: ``"cz(q[0],q[1])"``, the family on those qubits in gate
-    order. ``"operation"``: ``"cz(q[0],q[1])@12"``, one family per operation as written (line 12),
-    with ``#k`` added (k-th such operation) when the line is unknown or holds several operations. An operation inside
-    a repeated block stays one family however often it runs.
+def per_operation(circuit: NoisyCircuit) -> NoisyCircuit:
+    """The same circuit with one family per operation as written, so the engines give A per
+    operation: ``"cz q[0],q[1] @12"`` (the family, its qubits in gate order, the source line), with
+    ``#k`` added when the line is unknown or holds several such operations. An operation inside a
+    repeated block stays one family however often it runs. (Per qubit pair: attach the model with
+    ``family_by="pair"``.)
     """
-    if by not in GROUPINGS:
-        raise ValueError(f"grouping {by!r}: expected one of {', '.join(GROUPINGS)}")
-    if by == "family":
-        return circuit
     counter: dict[str, int] = {}
 
     def name(nop) -> str:
-        base = f"{nop.family}({','.join(circuit.qubits[q] for q in nop.qubits)})"
-        if by == "pair":
-            return base
-        tag = f"{base}@{nop.op.line}" if nop.op.line is not None else base
+        tag = f"{nop.family} {','.join(circuit.qubits[q] for q in nop.qubits)}"
+        if nop.op.line is not None:
+            tag += f" @{nop.op.line}"
         counter[tag] = counter.get(tag, 0) + 1
-        return tag if nop.op.line is not None and counter[tag] == 1 else f"{tag}#{counter[tag]}"
+        return tag if nop.op.line is not None and counter[tag] == 1 else f"{tag} #{counter[tag]}"
 
     def walk(items: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
         out: list[NoisyItem] = []

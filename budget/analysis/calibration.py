@@ -1,0 +1,286 @@
+"""Calibration device time: what measuring each knob to its tolerance costs, and how often.
+
+For every knob that must tighten (or that drifts), the plan runs amplified phase estimation
+(:mod:`budget.analysis.phase_estimation`) on each place the family's gate acts (its *sites*):
+a depth ladder 1, 2, 4, … to fix the phase's 2π branch, then the final depth (n* = 1/Γ, or less
+for a loose tolerance) with enough shots that std(δ̂) = tolerance / k (Kimmel, Low, Yoder, PRA 92,
+062315 (2015)). Two circuits (cos and
+sin quadrature) per depth. Device time = shots × (overhead + depth × gate duration) summed over
+circuits, plus a per-circuit overhead.
+
+Drift: a knob calibrated to within σ = t/k that then drifts at D rad/hour stays within its
+tolerance t for (t - σ)/D hours; that is its recalibration interval. A *round* calibrates every
+planned knob; rounds per day follow from the shortest interval.
+
+The optional ``[calibration]`` table of the error-model file (already parsed into a dict) sets
+everything; see :class:`CalibrationSettings` for keys, units and defaults.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import numbers
+from dataclasses import dataclass, field, fields
+from typing import Any, Mapping
+
+from budget.analysis.phase_estimation import Probe, final_depth
+from budget.analysis.sensitivity import knob_key
+from budget.analysis.tolerances import ToleranceReport
+from budget.problems import ModelError
+
+HOURS_PER_DAY = 24.0
+
+
+@dataclass(frozen=True)
+class CalibrationSettings:
+    """Keys of the ``[calibration]`` table, with units and defaults.
+
+    Attributes:
+        shot_overhead_us: reset + readout per shot, µs (default 100: passive reset of a few T1 of
+            tens of µs plus a µs readout; common practice, no source; about 10 with active reset).
+        circuit_overhead_ms: per distinct circuit (compile, load, settle), ms (default 0).
+        sigma_factor: k, tolerance / required standard deviation (default 3).
+        ladder_shots: shots per circuit at each ladder depth below n* (default 100; enough to pick
+            the branch when the phase step is well below π, common practice, no source).
+        max_depth: the deepest repetition count used (default 10000).
+        parallel_sites: sites of one family are measured at the same time (default false: one
+            after another).
+        drift_rad_per_hour: ``"family.knob"`` -> drift rate magnitude, rad per hour.
+        source: where the table came from (for messages).
+    """
+
+    shot_overhead_us: float = 100.0
+    circuit_overhead_ms: float = 0.0
+    sigma_factor: float = 3.0
+    ladder_shots: int = 100
+    max_depth: int = 10_000
+    parallel_sites: bool = False
+    drift_rad_per_hour: Mapping[str, float] = field(default_factory=dict)
+    source: str = "<defaults>"
+
+
+_RULES: dict[str, tuple[type, str, float]] = {
+    "shot_overhead_us": (float, "a number of µs >= 0", 0.0),
+    "circuit_overhead_ms": (float, "a number of ms >= 0", 0.0),
+    "sigma_factor": (float, "a number > 1 (tolerance / standard deviation)", 1.0),
+    "ladder_shots": (int, "a whole number >= 1", 1.0),
+    "max_depth": (int, "a whole number >= 1", 1.0),
+}
+
+
+def read_calibration(table: Mapping[str, Any] | None, *, source: str = "<dict>") -> CalibrationSettings:
+    """Validate the parsed ``[calibration]`` table (None or {} = defaults).
+
+    Every bad value raises one ModelError naming the key, the value, the file and the rule.
+
+    >>> read_calibration({"sigma_factor": 2, "drift_rad_per_hour": {"cz.cphase": 0.002}}).sigma_factor
+    2.0
+    """
+    if table is None:
+        return CalibrationSettings(source=source)
+    if not isinstance(table, Mapping):
+        raise ModelError(f"calibration = {_show(table)} in {source}: expected a table")
+    known = [f.name for f in fields(CalibrationSettings) if f.name != "source"]
+    values: dict[str, Any] = {"source": source}
+    for key, value in table.items():
+        if key.startswith("drift") and key != "drift_rad_per_hour":
+            raise _fail(key, value, source, "give drift rates with their unit, as calibration.drift_rad_per_hour")
+        if key not in known:
+            close = difflib.get_close_matches(key, known, n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else f"; valid keys: {', '.join(known)}"
+            raise _fail(key, value, source, "unknown key" + hint)
+        if key == "parallel_sites":
+            if not isinstance(value, bool):
+                raise _fail(key, value, source, "expected true or false")
+            values[key] = value
+        elif key == "drift_rad_per_hour":
+            values[key] = _drifts(value, source)
+        else:
+            kind, rule, low = _RULES[key]
+            ok = isinstance(value, numbers.Real) and not isinstance(value, bool) and math.isfinite(value)
+            ok = ok and (value > low if key == "sigma_factor" else value >= low)
+            if not ok or (kind is int and value != int(value)):
+                raise _fail(key, value, source, f"expected {rule}")
+            values[key] = kind(value)
+    return CalibrationSettings(**values)
+
+
+def _drifts(value: Any, source: str) -> dict[str, float]:
+    if not isinstance(value, Mapping):
+        raise _fail("drift_rad_per_hour", value, source, 'expected a table such as {"cz.cphase" = 0.002}')
+    out = {}
+    for knob, rate in value.items():
+        if isinstance(rate, str):
+            raise _fail(f'drift_rad_per_hour."{knob}"', rate, source,
+                        "expected a plain number in rad per hour (the unit is in the key name)")
+        if isinstance(rate, bool) or not isinstance(rate, numbers.Real) or not math.isfinite(rate) or rate < 0:
+            raise _fail(f'drift_rad_per_hour."{knob}"', rate, source, "expected a drift rate >= 0 in rad per hour")
+        out[str(knob)] = float(rate)
+    return out
+
+
+def _show(value: Any) -> str:
+    text = repr(value)
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
+def _fail(key: str, value: Any, source: str, rule: str) -> ModelError:
+    return ModelError(f"calibration.{key} = {_show(value)} in {source}: {rule}")
+
+
+@dataclass(frozen=True)
+class SiteRun:
+    """The experiment at one site: ladder depths, final depth n*, shots, circuits and device time."""
+
+    qubits: tuple[str, ...]
+    gamma_per_rep: float
+    phase_per_rad: float
+    ladder: tuple[int, ...]
+    depth: int
+    shots_final: int
+    circuits: int
+    shots_total: int
+    device_s: float
+
+
+@dataclass(frozen=True)
+class KnobPlan:
+    """Calibrating one knob: why, to what σ, where, how long; with drift, how long it holds.
+
+    ``reason``: ``"tighten"`` (outside its tolerance now) or ``"drift"`` (within it, but drifting).
+    ``hold_hours``: time within tolerance after a calibration, (t - σ)/D; None without drift.
+    """
+
+    family: str
+    knob: str
+    reason: str
+    tolerance_rad: float
+    sigma_rad: float
+    sites: tuple[SiteRun, ...]
+    device_s: float
+    drift_rad_per_hour: float | None
+    hold_hours: float | None
+
+
+@dataclass(frozen=True)
+class CalibrationPlan:
+    """The whole plan and the totals a group lead can quote.
+
+    Attributes:
+        knobs: planned knobs, most device time first.
+        round_s: device time of one round (every planned knob once).
+        interval_hours: the shortest hold time (None: nothing drifts).
+        rounds_per_day: 24 h / interval_hours.
+        day_share: round_s × rounds_per_day / 1 day (> 1: calibration cannot keep up).
+        scheduled_share: Σ device_s / hold time when each knob is recalibrated on its own clock.
+        unplanned: ``"family.knob"`` -> why no experiment is planned for it.
+        settings: what the plan assumed.
+    """
+
+    knobs: tuple[KnobPlan, ...]
+    round_s: float
+    interval_hours: float | None
+    rounds_per_day: float | None
+    day_share: float | None
+    scheduled_share: float | None
+    unplanned: dict[str, str]
+    settings: CalibrationSettings
+
+
+def calibration_plan(
+    report: ToleranceReport, probes: Mapping[tuple[str, str], tuple[Probe, ...]], settings: CalibrationSettings
+) -> CalibrationPlan:
+    """Plan the phase-estimation experiments for every knob that must tighten or that drifts.
+
+    Raises ModelError when a drift rate names a knob the model does not have.
+    """
+    keys = {knob_key((r.family, r.knob)) for r in report.rows}
+    for key, rate in settings.drift_rad_per_hour.items():
+        if key not in keys:
+            close = difflib.get_close_matches(key, sorted(keys), n=1)
+            hint = f"did you mean {close[0]!r}?" if close else f"knobs: {', '.join(sorted(keys)) or 'none'}"
+            raise _fail(f'drift_rad_per_hour."{key}"', rate, settings.source, f"the model has no knob {key}; {hint}")
+    k = settings.sigma_factor
+    plans: list[KnobPlan] = []
+    unplanned: dict[str, str] = {}
+    for row in report.rows if report.feasible else ():
+        key = knob_key((row.family, row.knob))
+        drift = settings.drift_rad_per_hour.get(key) or None
+        if row.status != "tighten" and drift is None:
+            continue
+        if not 0 < row.tolerance_rad < math.inf:
+            unplanned[key] = "no leading-order effect" if row.status == "no effect" else "its tolerance is zero"
+            continue
+        sigma = row.tolerance_rad / k
+        sites = [_site(p, sigma, settings) for p in probes.get((row.family, row.knob), ())]
+        if not sites or None in sites:
+            unplanned[key] = ("repeating the gate does not amplify this knob; it needs an interleaved sequence"
+                              if sites else "no operation of the circuit carries it")
+            continue
+        times = [s.device_s for s in sites]
+        plans.append(KnobPlan(
+            row.family, row.knob, "tighten" if row.status == "tighten" else "drift", row.tolerance_rad, sigma,
+            tuple(sites), max(times) if settings.parallel_sites else math.fsum(times), drift,
+            (row.tolerance_rad - sigma) / drift if drift else None,
+        ))
+    plans.sort(key=lambda p: -p.device_s)
+    round_s = math.fsum(p.device_s for p in plans)
+    holds = [p.hold_hours for p in plans if p.hold_hours is not None]
+    interval = min(holds) if holds else None
+    per_day = HOURS_PER_DAY / interval if interval else None
+    return CalibrationPlan(
+        tuple(plans), round_s, interval, per_day,
+        round_s * per_day / (HOURS_PER_DAY * 3600) if per_day else None,
+        math.fsum(p.device_s / (p.hold_hours * 3600) for p in plans if p.hold_hours) if holds else None,
+        unplanned, settings,
+    )
+
+
+def _site(probe: Probe, sigma: float, settings: CalibrationSettings) -> SiteRun | None:
+    if probe.phase_per_rad <= 0:
+        return None
+    n, final = final_depth(sigma, probe.gamma_per_rep, probe.phase_per_rad, max_depth=settings.max_depth,
+                           min_shots=2 * settings.ladder_shots)
+    ladder = tuple(2**j for j in range(max(0, math.ceil(math.log2(n))))) if n > 1 else ()
+    per_shot = lambda depth: settings.shot_overhead_us * 1e-6 + depth * probe.duration_ns * 1e-9  # noqa: E731
+    circuits = 2 * (len(ladder) + 1)
+    device = math.fsum([2 * settings.ladder_shots * per_shot(d) for d in ladder] + [final * per_shot(n)])
+    return SiteRun(
+        probe.qubits, probe.gamma_per_rep, probe.phase_per_rad, ladder, n, final, circuits,
+        2 * settings.ladder_shots * len(ladder) + final, device + circuits * settings.circuit_overhead_ms * 1e-3,
+    )
+
+
+def calibration_json(plan: CalibrationPlan) -> dict:
+    """The plan as JSON-ready data (seconds, hours, radians as in the field names)."""
+    s = plan.settings
+    return {
+        "settings": {
+            "shot_overhead_us": s.shot_overhead_us, "circuit_overhead_ms": s.circuit_overhead_ms,
+            "sigma_factor": s.sigma_factor, "ladder_shots": s.ladder_shots, "max_depth": s.max_depth,
+            "parallel_sites": s.parallel_sites, "drift_rad_per_hour": dict(s.drift_rad_per_hour),
+        },
+        "knobs": [
+            {
+                "family": p.family, "knob": p.knob, "reason": p.reason, "tolerance_rad": p.tolerance_rad,
+                "sigma_rad": p.sigma_rad, "device_s": p.device_s, "drift_rad_per_hour": p.drift_rad_per_hour,
+                "hold_hours": p.hold_hours,
+                "sites": [
+                    {
+                        "qubits": list(r.qubits), "gamma_per_rep": r.gamma_per_rep, "phase_per_rad": r.phase_per_rad,
+                        "ladder": list(r.ladder), "depth": r.depth, "shots_final": r.shots_final,
+                        "circuits": r.circuits, "shots_total": r.shots_total, "device_s": r.device_s,
+                    }
+                    for r in p.sites
+                ],
+            }
+            for p in plan.knobs
+        ],
+        "unplanned": dict(plan.unplanned),
+        "totals": {
+            "round_minutes": plan.round_s / 60, "interval_hours": plan.interval_hours,
+            "rounds_per_day": plan.rounds_per_day, "day_share": plan.day_share,
+            "scheduled_share": plan.scheduled_share,
+        },
+    }
