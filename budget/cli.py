@@ -66,6 +66,7 @@ ErrorsOpt = typer.Option(..., "--errors", "-e", help="Error model (TOML, see doc
 CyclesOpt = typer.Option(1, "--cycles", "-n", min=1, help="Repeat the whole circuit N times (kept folded).")
 MetricOpt = typer.Option(MetricChoice.process, "--metric", "-m", help="process: 1 - F_pro; state: output state for |0…0>.")
 EngineOpt = typer.Option(EngineChoice.auto, "--engine", help="auto picks the most accurate engine that fits.")
+QuietOpt = typer.Option(False, "--quiet", "-q", help="No progress bar on stderr.")
 
 
 @app.command()
@@ -81,6 +82,13 @@ def analyze(
     compare_twirled: bool = typer.Option(False, "--compare-twirled", help="Also analyse the Pauli-twirled variant."),
     json_path: Optional[Path] = typer.Option(None, "--json", help="Write the result as JSON (schema in docs/json-schema.md)."),
     width: Optional[int] = typer.Option(None, "--width", help="Report width in characters (default: terminal)."),
+    against: Optional[str] = typer.Option(
+        None, "--against", help="Second circuit file, or 'random' for a random circuit with the same gate counts, "
+        "analysed under the same error model and shown side by side."),
+    ensemble: int = typer.Option(0, "--ensemble", min=0, help="Also run N randomly compiled copies (random Pauli "
+                                 "frames around each two-qubit layer): mean and spread of the infidelity."),
+    seed: int = typer.Option(1, "--seed", min=0, help="Seed for --ensemble and --against random."),
+    quiet: bool = QuietOpt,
 ) -> None:
     """Naive fidelity product versus actual accumulation, with each gate family's share."""
     from budget.analysis.run import analyze as run_analysis
@@ -98,9 +106,132 @@ def analyze(
         family_by="pair" if by_pair else "gate",
         compare_twirled=compare_twirled,
     )
-    make_console(width=width).print(render_budget(result))
+    extra, views = _analyze_extras(circuit, errors, result, against=against, ensemble=ensemble, seed=seed,
+                                   cycles=cycles, metric=metric.value, engine=engine.value, by_pair=by_pair, quiet=quiet)
+    console = make_console(width=width)
+    console.print(render_budget(result))
+    for view in views:
+        console.print(view)
     if json_path is not None:
-        write_json(json_path, result.to_dict())
+        write_json(json_path, {**result.to_dict(), **extra})
+
+
+def _analyze_extras(circuit: Path, errors: Path, result, *, against: Optional[str], ensemble: int, seed: int,
+                    cycles: int, metric: str, engine: str, by_pair: bool, quiet: bool) -> tuple[dict, list]:
+    """The --against comparison and the --ensemble of randomly compiled copies (JSON parts, views)."""
+    extra: dict = {}
+    views: list = []
+    if against is None and not ensemble:
+        return extra, views
+    from budget.circuit.load import load_circuit
+    from budget.errors.model import load_model
+
+    family_by = "pair" if by_pair else "gate"
+    model = load_model(str(errors))
+    if against is not None:
+        from budget.analysis.compare import Comparison, random_counterpart
+        from budget.analysis.run import analyze as run_analysis
+        from budget.report.terminal_views import render_comparison
+
+        other = (random_counterpart(load_circuit(str(circuit)).with_cycles(cycles), seed=seed)
+                 if against == "random" else load_circuit(against).with_cycles(cycles))
+        second = run_analysis(other, model, metric=metric, engine=engine, family_by=family_by,
+                              compare_twirled=result.twirled_infidelity is not None)
+        comparison = Comparison(result, second)
+        extra["against"] = comparison.to_dict()
+        views.append(render_comparison(comparison))
+    if ensemble:
+        from budget.analysis.randomized import ensemble as run_ensemble
+        from budget.errors.attach import attach
+        from budget.report.progress import progress_bar
+        from budget.report.terminal_views import render_ensemble
+
+        noisy = attach(load_circuit(str(circuit)).with_cycles(cycles), model, family_by=family_by)
+        with progress_bar("randomly compiled copies", quiet=quiet) as tick:
+            ens = run_ensemble(noisy, count=ensemble, seed=seed, metric=metric, engine=engine, progress=tick)
+        extra["ensemble"] = ens.to_dict()
+        views.append(render_ensemble(ens))
+    return extra, views
+
+
+@app.command()
+@user_errors
+def depth(
+    circuit: Path = CircuitArg,
+    errors: Path = ErrorsOpt,
+    max_cycles: int = typer.Option(..., "--max-cycles", min=1, help="Deepest repetition count N of the whole circuit."),
+    points: int = typer.Option(25, "--points", min=2, max=200, help="Log-spaced repetition counts from 1 to N."),
+    target: Optional[float] = typer.Option(None, "--target", help="Infidelity E: deepest N meeting it, per curve."),
+    metric: MetricChoice = MetricOpt,
+    engine: EngineChoice = EngineOpt,
+    by_pair: bool = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate."),
+    json_path: Optional[Path] = typer.Option(None, "--json", help="Write the curves as JSON (docs/report.md)."),
+    plot: Optional[Path] = typer.Option(None, "--plot", help="Write the curves as an SVG picture."),
+    quiet: bool = QuietOpt,
+    width: Optional[int] = typer.Option(None, "--width", help="Report width in characters (default: terminal)."),
+) -> None:
+    """Infidelity against repetitions: naive, accumulated and Pauli-twirled, with the crossover."""
+    from budget.analysis.depth import depth_curve
+    from budget.analysis.run import _read_circuit, _read_model
+    from budget.errors.attach import attach
+    from budget.report.json_out import write_json
+    from budget.report.progress import progress_bar
+    from budget.report.terminal_views import render_depth
+
+    check_output_path(json_path, "--json")
+    check_output_path(plot, "--plot")
+    block = attach(_read_circuit(str(circuit)), _read_model(str(errors)), family_by="pair" if by_pair else "gate")
+    with progress_bar("depth curve", quiet=quiet) as tick:
+        curve = depth_curve(block, max_cycles=max_cycles, points=points, metric=metric.value,
+                            engine=engine.value, target=target, progress=tick)
+    svg = None
+    if plot is not None:
+        from budget.report.plots import depth_svg
+
+        svg = depth_svg(curve)
+    make_console(width=width).print(render_depth(curve))
+    if json_path is not None:
+        write_json(json_path, curve.to_dict())
+    if svg is not None:
+        from budget.report.files import write_text
+
+        write_text(plot, svg)
+
+
+@app.command()
+@user_errors
+def report(
+    circuit: Path = CircuitArg,
+    errors: Path = ErrorsOpt,
+    target: float = typer.Option(..., "--target", "-t", help="Infidelity E the circuit must stay below."),
+    out: Path = typer.Option(..., "--out", help="Folder for report.html, report.md and the SVG pictures."),
+    cycles: int = CyclesOpt,
+    metric: MetricChoice = MetricOpt,
+    engine: EngineChoice = EngineOpt,
+    max_cycles: Optional[int] = typer.Option(None, "--max-cycles", min=1, help="Deepest N of the depth curves "
+                                             "(default: max(1000, 100 × cycles))."),
+    points: int = typer.Option(25, "--points", min=2, max=200, help="Points of the depth curves."),
+    by_pair: bool = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate."),
+    quiet: bool = QuietOpt,
+) -> None:
+    """A report a group lead can read: HTML page (self-contained) and Markdown, with pictures."""
+    from budget.report.content import gather
+    from budget.report.progress import progress_bar
+    from budget.report.render import report_files
+
+    if out.exists() and not out.is_dir():
+        raise InputError(f"--out {out}: exists and is not a folder")
+    check_output_path(out, "--out")
+    with progress_bar("report", quiet=quiet) as tick:
+        data = gather(str(circuit), str(errors), target=target, cycles=cycles, metric=metric.value,
+                      engine=engine.value, max_cycles=max_cycles, points=points,
+                      family_by="pair" if by_pair else "gate", progress=tick)
+    files = report_files(data)
+    from budget.report.files import write_folder
+
+    written = write_folder(out, files)
+    console = make_console()
+    console.print(f"[bold]report written:[/] {', '.join(str(p) for p in written)}", highlight=False)
 
 
 @app.command()

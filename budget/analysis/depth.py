@@ -1,0 +1,254 @@
+"""Infidelity against repetition count: naive, structured and twirled, and where they part.
+
+For a block (one cycle of the circuit) repeated N times, three curves (design.md §3, §5):
+
+- **naive**: the fidelity product, exact in closed form: 1 - Π_N = 1 - (1 - e_1)^N, e_1 the naive
+  infidelity of one cycle (:func:`budget.errors.fidelity.naive_infidelity`);
+- **structured**: the actual infidelity of N cycles from an engine; engines keep the repeat folded
+  (exact: matrix powers through a Schur decomposition; generators: the periodic closed form of
+  :mod:`budget.engines.periodic`), so a point costs the same for N = 10 and N = 10**9 and no
+  point re-simulates the circuit;
+- **twirled**: the same for the Pauli-twirled cycle (Wallman & Emerson, Phys. Rev. A 94, 052325
+  (2016)), where coherent errors add in probability, so the curve grows linearly in N at first.
+
+Coherent errors that commute with the cycle add in amplitude: the structured curve grows as N²
+and leaves the naive one, which grows as N. The *crossover* is the first N where the structured
+value exceeds twice the naive one. With a target E, the *deepest* count of each curve is the
+largest N before the curve first exceeds E. Both are found on the log-spaced grid and refined by
+bisection between the last grid point below and the first above (assumed to hold one crossing).
+
+Which error components build up and which are echoed away: :mod:`budget.analysis.accumulation`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+
+from budget.errors.noisy import NoisyCircuit, NoisyRepeat
+from budget.problems import InputError
+
+CURVES = ("naive", "structured", "twirled")
+MAX_POINTS = 200
+CROSSOVER_FACTOR = 2.0
+"""Structured > CROSSOVER_FACTOR × naive marks the crossover."""
+
+Progress = Callable[[int, int], None]
+MAX_CLOSED_FORM_QUBITS = 10
+
+
+def repetition_grid(max_cycles: int, points: int) -> tuple[int, ...]:
+    """Up to ``points`` distinct whole numbers from 1 to max_cycles, spaced evenly in log N.
+
+    >>> repetition_grid(1000, 4)
+    (1, 10, 100, 1000)
+    >>> repetition_grid(3, 10)
+    (1, 2, 3)
+    """
+    if points < 2:
+        raise InputError(f"points = {points}: expected at least 2")
+    raw = np.unique(np.rint(np.logspace(0, math.log10(max_cycles), points)).astype(np.int64))
+    grid = sorted({int(x) for x in raw} | {1, int(max_cycles)})
+    return tuple(grid)
+
+
+@dataclass(frozen=True)
+class DepthCurve:
+    """The three curves and what they say.
+
+    Attributes:
+        source: the circuit.
+        metric: ``"process"`` or ``"state"``.
+        engine: engine of the structured curve; twirled_engine: of the twirled curve.
+        repetitions: N values (ascending, from 1 to max_cycles).
+        naive, structured, twirled: infidelity at each N.
+        crossover_repetitions: first N with structured > 2 × naive (None: not within max_cycles).
+        target: E, when given; deepest: curve name -> largest N <= max_cycles before the curve
+            first exceeds E (None: even N = 1 exceeds it; max_cycles: never within the range).
+        components: which error components build up or are echoed away (may be empty).
+        warnings: validity notes from the engines, and limits of this analysis.
+    """
+
+    source: str
+    metric: str
+    engine: str
+    twirled_engine: str
+    repetitions: tuple[int, ...]
+    naive: tuple[float, ...]
+    structured: tuple[float, ...]
+    twirled: tuple[float, ...]
+    crossover_repetitions: int | None
+    target: float | None = None
+    deepest: dict[str, int | None] = field(default_factory=dict)
+    components: tuple = ()
+    warnings: tuple[str, ...] = ()
+
+    @property
+    def max_cycles(self) -> int:
+        return self.repetitions[-1]
+
+    def to_dict(self) -> dict:
+        """The documented JSON object (docs/report.md)."""
+        out = {
+            "source": self.source,
+            "metric": self.metric,
+            "engine": self.engine,
+            "twirled_engine": self.twirled_engine,
+            "repetitions": list(self.repetitions),
+            "naive": list(self.naive),
+            "structured": list(self.structured),
+            "twirled": list(self.twirled),
+            "crossover_repetitions": self.crossover_repetitions,
+            "crossover_factor": CROSSOVER_FACTOR,
+            "components": [c.to_dict() for c in self.components],
+            "warnings": list(self.warnings),
+        }
+        if self.target is not None:
+            out["target"] = self.target
+            out["deepest_within_target"] = dict(self.deepest)
+        return out
+
+
+class _Series:
+    """One curve as a function of N, with a cache (each value is one engine run)."""
+
+    def __init__(self, fn: Callable[[int], float]):
+        self._fn = fn
+        self._cache: dict[int, float] = {}
+
+    def __call__(self, n: int) -> float:
+        if n not in self._cache:
+            self._cache[n] = float(min(max(self._fn(n), 0.0), 1.0))
+        return self._cache[n]
+
+
+def _first_true(pred: Callable[[int], bool], grid: tuple[int, ...]) -> int | None:
+    """Smallest N with pred(N), searching the grid then bisecting the gap before the first hit."""
+    prev = 0
+    for n in grid:
+        if pred(n):
+            lo, hi = prev, n  # pred(lo) false (or lo = 0), pred(hi) true
+            while hi - lo > 1:
+                mid = (lo + hi) // 2
+                if pred(mid):
+                    hi = mid
+                else:
+                    lo = mid
+            return hi
+        prev = n
+    return None
+
+
+def _engine_series(block: NoisyCircuit, metric: str, engine: str, deepest: int, label: str) -> tuple[_Series, str, list[str]]:
+    """One curve from an engine. For the generators engine and the process metric the curve is
+    the periodic closed form: coherent part from one Schur decomposition of the cycle, stochastic
+    part N times the cycle's (exactly what the engine computes for a repeat, without re-running it)."""
+    from budget.analysis.select import choose_engine
+
+    notes: list[str] = []
+    chosen = choose_engine(_repeated(block, 2), metric, engine)
+    if chosen.name == "generators" and metric == "process" and block.num_qubits <= MAX_CLOSED_FORM_QUBITS:
+        notes.extend(f"{label} curve ({chosen.name} engine) at N = {deepest:,}: {w}" for w in chosen.run(_repeated(block, deepest), metric).warnings[:1])
+        return _closed_form(block, chosen), chosen.name, notes
+
+    def run(n: int) -> float:
+        result = chosen.run(_repeated(block, n), metric)
+        if result.warnings and not notes:
+            notes.append(f"{label} curve ({chosen.name} engine), from N = {n:,} on: {result.warnings[0]}")
+        return result.infidelity
+
+    return _Series(run), chosen.name, notes
+
+
+def _closed_form(block: NoisyCircuit, engine) -> _Series:
+    from budget.analysis.accumulation import cycle_hamiltonian
+    from budget.engines.periodic import coherent_curve, cycle_basis
+
+    one = engine.run(block, "process")
+    stochastic = float(one.details.get("stochastic_first_order", 0.0))
+    unitary, h = cycle_hamiltonian(block)
+    basis = cycle_basis(unitary)
+
+    def value(n: int) -> float:
+        return float(coherent_curve(basis, h, [n]).infidelity[0]) + n * stochastic
+
+    return _Series(value)
+
+
+def _repeated(block: NoisyCircuit, n: int) -> NoisyCircuit:
+    body = block.body if n == 1 else (NoisyRepeat(block.body, int(n)),)
+    return NoisyCircuit(block.qubits, body, dict(block.readout_error), block.source)
+
+
+def depth_curve(
+    block: NoisyCircuit,
+    *,
+    max_cycles: int,
+    points: int = 25,
+    metric: str = "process",
+    engine: str = "auto",
+    target: float | None = None,
+    progress: Progress | None = None,
+) -> DepthCurve:
+    """Naive, structured and twirled infidelity of 1 … ``max_cycles`` repetitions of ``block``.
+
+    Args:
+        block: one cycle, error model attached.
+        max_cycles: the deepest repetition count N (1 <= N <= 10**18).
+        points: log-spaced grid points (2 … 200; fewer when N is small).
+        metric: ``"process"`` or ``"state"``.
+        engine: ``"auto"`` or an engine name, used for the structured and the twirled curve.
+        target: E in (0, 1) for the deepest count of each curve, or None.
+        progress: called as progress(done, total) over the grid.
+    """
+    from budget.analysis.twirl import twirled_circuit
+    from budget.errors.fidelity import naive_infidelity
+
+    if isinstance(max_cycles, bool) or not isinstance(max_cycles, int) or not 1 <= max_cycles <= 10**18:
+        raise InputError(f"max_cycles = {max_cycles!r}: expected a whole number from 1 to 10**18")
+    if isinstance(points, bool) or not isinstance(points, int) or not 2 <= points <= MAX_POINTS:
+        raise InputError(f"points = {points!r}: expected a whole number from 2 to {MAX_POINTS}")
+    if target is not None and not 0 < target < 1:
+        raise InputError(f"target = {target!r}: expected an infidelity E with 0 < E < 1")
+    grid = repetition_grid(max_cycles, points)
+    log_keep = math.log1p(-min(naive_infidelity(block), 1.0)) if naive_infidelity(block) < 1 else -math.inf
+    naive = _Series(lambda n: -math.expm1(n * log_keep) if log_keep > -math.inf else 1.0)
+    structured, name, notes = _engine_series(block, metric, engine, max_cycles, "accumulated")
+    twirled, tw_name, tw_notes = _engine_series(twirled_circuit(block), metric, engine, max_cycles, "twirled")
+    values: dict[str, list[float]] = {c: [] for c in CURVES}
+    series = {"naive": naive, "structured": structured, "twirled": twirled}
+    for i, n in enumerate(grid):
+        for c in CURVES:
+            values[c].append(series[c](n))
+        if progress is not None:
+            progress(i + 1, len(grid))
+    crossover = _first_true(lambda n: structured(n) > CROSSOVER_FACTOR * naive(n), grid)
+    deepest: dict[str, int | None] = {}
+    if target is not None:
+        for c in CURVES:
+            first_bad = _first_true(lambda n, s=series[c]: s(n) > target, grid)
+            deepest[c] = max_cycles if first_bad is None else (first_bad - 1 or None)
+    from budget.analysis.accumulation import components_or_note
+
+    components, note = components_or_note(block, metric)
+    warnings = list(dict.fromkeys(notes + tw_notes))
+    if note:
+        warnings.append(note)
+    return DepthCurve(
+        source=block.source,
+        metric=metric,
+        engine=name,
+        twirled_engine=tw_name,
+        repetitions=grid,
+        naive=tuple(values["naive"]),
+        structured=tuple(values["structured"]),
+        twirled=tuple(values["twirled"]),
+        crossover_repetitions=crossover,
+        target=target,
+        deepest=deepest,
+        components=components,
+        warnings=tuple(warnings),
+    )

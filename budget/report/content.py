@@ -1,0 +1,271 @@
+"""What a report holds, gathered once and rendered as HTML or Markdown (pure: no rich, no files).
+
+:func:`gather` runs the analyses a group lead needs for one circuit, one error model and one target:
+the budget (naive versus accumulated, family shares), the depth curves, the layer-by-qubit error
+map, the tolerances and the calibration time (when the modules that compute them are installed),
+and the error model itself. :func:`summary_words` writes the opening paragraph in plain words.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Callable
+
+from budget.analysis.depth import DepthCurve
+from budget.analysis.heatmap import ErrorMap
+from budget.analysis.result import BudgetResult
+
+ENGINE_WORDS = {
+    "exact": "exact simulation (dense state vector or density matrix; repeated blocks by matrix powers). "
+    "No approximation beyond the error model itself.",
+    "generators": "first-order error generators pushed to the end of the circuit, summed Hamiltonian "
+    "exponentiated (Blume-Kohout et al., PRX Quantum 3, 020335 (2022)). Reliable while the "
+    "accumulated coherent error stays small; a warning below says when it does not.",
+    "clifford": "Pauli generators propagated through the Clifford circuit as bit strings; leading order "
+    "in the error strength, any number of qubits.",
+}
+
+CAUTION_WORDS = (
+    "Every number here is a prediction of the stated error model, not a measurement. Confirm the "
+    "key ones on the device (for example by running the circuit, or its cycle at a few depths, and "
+    "comparing) before acting on them; local lab practice decides calibration policy."
+)
+
+Progress = Callable[[int, int], None]
+
+
+@dataclass(frozen=True)
+class ModelRow:
+    """One line of the error-model table: a gate (on given qubits) or a qubit."""
+
+    kind: str  # "gate" or "qubit"
+    name: str
+    where: str
+    values: dict[str, str]
+
+
+@dataclass(frozen=True)
+class ReportData:
+    """Everything the HTML and Markdown renderers show.
+
+    Attributes:
+        result: the budget of the circuit as analysed (``cycles`` repetitions).
+        target: E, the infidelity the user must stay below.
+        curve: the depth curves (None when they could not be computed; see ``notes``).
+        emap: the layer-by-qubit map of local first-order infidelity.
+        tolerances: a ``budget.analysis.tolerances.ToleranceReport`` or None.
+        plan: a ``budget.analysis.calibration.CalibrationPlan`` or None.
+        model_source: the error-model file; model_rows: its content, one row per table.
+        notes: sections left out and why, and other plain-word remarks.
+    """
+
+    result: BudgetResult
+    target: float
+    curve: DepthCurve | None
+    emap: ErrorMap
+    tolerances: Any = None
+    plan: Any = None
+    model_source: str = ""
+    model_rows: tuple[ModelRow, ...] = ()
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def title(self) -> str:
+        return f"Error budget · {short_name(self.result.source)}"
+
+
+def short_name(source: str) -> str:
+    return source.replace("\\", "/").rsplit("/", 1)[-1]
+
+
+def num(x: float | None, digits: int = 3) -> str:
+    """A number for people: 0.0123, 1.23e-05, '—' for missing."""
+    if x is None:
+        return "—"
+    if x == 0:
+        return "0"
+    if x != x or x in (float("inf"), float("-inf")):
+        return "∞" if x > 0 else "—"
+    if 1e-3 <= abs(x) < 1e4:
+        return f"{x:.{digits}g}"
+    return f"{x:.{digits - 1}e}"
+
+
+def minutes(seconds: float) -> str:
+    if seconds < 120:
+        return f"{seconds:.0f} s"
+    if seconds < 7200:
+        return f"{seconds / 60:.1f} min"
+    return f"{seconds / 3600:.1f} h"
+
+
+def verdict(result: BudgetResult, target: float) -> tuple[bool, str]:
+    """(meets target, plain sentence)."""
+    a = result.actual_infidelity
+    if a <= target:
+        return True, f"meets the target of {num(target)} (predicted {num(a)}, margin {target / a:.2g}×)" if a > 0 else (
+            f"meets the target of {num(target)} (no error predicted)"
+        )
+    return False, f"misses the target of {num(target)}: the prediction {num(a)} is {a / target:.2g}× too large"
+
+
+def summary_words(data: ReportData) -> str:
+    """The opening paragraph: what was analysed, naive versus actual, the verdict, what to calibrate."""
+    r = data.result
+    shape = f"{r.qubits} qubits, {r.operations:,} operations in {r.layers:,} layers"
+    cyc = f", the whole circuit run {r.cycles:,} times" if r.cycles != 1 else ""
+    parts = [
+        f"We analysed {short_name(r.source)} ({shape}{cyc}) under the error model "
+        f"{short_name(data.model_source) or 'given'}, with the {r.engine} engine."
+    ]
+    amp = r.coherent_amplification
+    how = ""
+    if amp is not None:
+        if amp > 1.5:
+            how = f", {amp:.1f} times more, because coherent errors add up in amplitude from gate to gate"
+        elif amp < 0.67:
+            how = f", only {amp:.2f} of it, because the circuit's structure echoes part of the errors away"
+        else:
+            how = f" ({amp:.2f}× the naive value): here the naive product is a fair guide"
+    parts.append(
+        f"Multiplying the gate fidelities predicts an infidelity of {num(r.naive_infidelity)}; following how "
+        f"the errors actually accumulate gives {num(r.actual_infidelity)}{how}."
+    )
+    parts.append(f"The circuit {verdict(r, data.target)[1]}.")
+    tol = data.tolerances
+    if tol is not None:
+        if not tol.feasible:
+            parts.append(
+                f"The incoherent floor ({num(tol.incoherent_floor)}, from T1, T2 and gate error rates) alone "
+                "exceeds the target, so no amount of calibration can meet it."
+            )
+        else:
+            worst = [row for row in tol.rows if row.status == "tighten"][:3]
+            if worst:
+                names = ", ".join(f"{row.family} {row.knob.replace('_', ' ')} (by {row.tighten_by:.2g}×)" for row in worst)
+                parts.append(f"To meet it, tighten the calibration of {names}.")
+            else:
+                parts.append("No coherent knob needs tighter calibration for this target.")
+    plan = data.plan
+    if plan is not None and plan.knobs:
+        every = f", about every {plan.interval_hours:.2g} h given the drift rates" if plan.interval_hours else ""
+        parts.append(f"Measuring those knobs to the needed precision takes about {minutes(plan.round_s)} of device time per round{every}.")
+    if data.curve is not None and data.curve.crossover_repetitions is not None:
+        parts.append(
+            f"Repeating the circuit, the accumulated error exceeds twice the naive estimate from "
+            f"{data.curve.crossover_repetitions:,} repetitions on."
+        )
+    return " ".join(parts)
+
+
+def model_rows(model: Any) -> tuple[ModelRow, ...]:
+    """The error model as table rows (gates first, then qubits), values as display strings."""
+    rows: list[ModelRow] = []
+
+    def gate_values(gp: Any) -> dict[str, str]:
+        vals = {"duration": f"{gp.duration_ns:g} ns"}
+        knobs = gp.knob_values()
+        vals["coherent knobs"] = ", ".join(f"{k.replace('_', ' ')} {v:+.3g} rad" for k, v in knobs.items()) or "none"
+        vals["average gate infidelity"] = num(gp.avg_infidelity) if gp.avg_infidelity else "0"
+        return vals
+
+    for name, gp in sorted(model.gates.items()):
+        rows.append(ModelRow("gate", name, "all qubits", gate_values(gp)))
+    for (name, qubits), gp in sorted(model.gate_overrides.items()):
+        rows.append(ModelRow("gate", name, ",".join(qubits), gate_values(gp)))
+
+    def qubit_values(qp: Any) -> dict[str, str]:
+        return {
+            "T1": f"{qp.t1_us:g} µs" if qp.t1_us is not None else "—",
+            "T2": f"{qp.t2_us:g} µs" if qp.t2_us is not None else "—",
+            "readout error": num(qp.readout_error) if qp.readout_error else "0",
+        }
+
+    rows.append(ModelRow("qubit", "every qubit", "default", qubit_values(model.qubit_defaults)))
+    for name, qp in sorted(model.qubit_overrides.items()):
+        rows.append(ModelRow("qubit", name, "override", qubit_values(qp)))
+    return tuple(rows)
+
+
+def gather(
+    circuit: Any,
+    errors: Any,
+    *,
+    target: float,
+    cycles: int = 1,
+    metric: str = "process",
+    engine: str = "auto",
+    max_cycles: int | None = None,
+    points: int = 25,
+    family_by: str = "gate",
+    progress: Progress | None = None,
+) -> ReportData:
+    """Run every analysis the report shows.
+
+    Args:
+        circuit, errors: as for :func:`budget.analysis.run.analyze` (paths, objects or dicts).
+        target: E in (0, 1), the infidelity the circuit must stay below.
+        cycles: the circuit as analysed is run this many times.
+        max_cycles: deepest repetition count of the depth curves (default max(1000, 100 × cycles)).
+        points: grid points of the depth curves.
+        progress: progress(done, total) over the depth grid.
+    """
+    from budget.analysis.depth import depth_curve
+    from budget.analysis.heatmap import error_map
+    from budget.analysis.run import _read_circuit, _read_model, analyze_noisy
+    from budget.errors.attach import attach
+    from budget.problems import InputError, TooLargeError
+
+    if isinstance(target, bool) or not isinstance(target, (int, float)) or not 0 < target < 1:
+        raise InputError(f"target = {target!r}: expected an infidelity E with 0 < E < 1")
+    structured = _read_circuit(circuit)
+    model = _read_model(errors)
+    block = attach(structured, model, family_by=family_by)
+    whole = attach(structured.with_cycles(cycles), model, family_by=family_by)
+    result = analyze_noisy(whole, structured.with_cycles(cycles), metric=metric, engine=engine,
+                           compare_twirled=True, cycles=cycles)
+    notes: list[str] = []
+    deepest = max_cycles if max_cycles is not None else min(max(1000, 100 * cycles), 10**18)
+    try:
+        curve = depth_curve(block, max_cycles=deepest, points=points, metric=metric, engine=engine,
+                            target=target, progress=progress)
+    except TooLargeError as exc:
+        curve = None
+        notes.append(f"depth curves left out: {exc}")
+    tol, plan, why = _tolerances_and_plan(whole, model, metric, target, cycles)
+    if why:
+        notes.append(why)
+    return ReportData(
+        result=result,
+        target=float(target),
+        curve=curve,
+        emap=error_map(whole),
+        tolerances=tol,
+        plan=plan,
+        model_source=model.source,
+        model_rows=model_rows(model),
+        notes=tuple(notes),
+    )
+
+
+def _tolerances_and_plan(noisy: Any, model: Any, metric: str, target: float, cycles: int) -> tuple[Any, Any, str | None]:
+    """The tolerance report and calibration plan, or (None, None, why) when unavailable."""
+    try:
+        from budget.analysis.calibration import calibration_plan, find_probes, read_calibration
+        from budget.analysis.tolerances import tolerances
+    except ImportError as exc:  # pragma: no cover - optional modules
+        return None, None, f"tolerances and calibration cost left out: {exc}"
+    from budget.engines import get_engine
+
+    for name in ("generators", "clifford"):
+        try:
+            eng = get_engine(name)
+        except ImportError:
+            continue
+        if not hasattr(eng, "quadratic_form") or eng.fits(noisy, metric) is not None:
+            continue
+        qf = eng.quadratic_form(noisy, metric)
+        report = tolerances(qf, target, metric=metric, cycles=cycles)
+        settings = read_calibration(getattr(model, "calibration", None), source=model.source)
+        return report, calibration_plan(report, find_probes(noisy), settings), None
+    return None, None, "tolerances left out: no first-order engine fits this circuit"

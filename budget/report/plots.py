@@ -1,0 +1,137 @@
+"""Pictures for the report: matplotlib (Agg backend), returned as inline SVG text.
+
+Every function returns a string that starts with ``<svg`` and needs no network or font files to
+view: text stays text (``svg.fonttype = none``), so the browser draws it with its own sans-serif
+font. Colours: one fixed palette for the three curves, used the same way everywhere.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import re
+
+import matplotlib
+
+matplotlib.use("Agg")
+
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+from matplotlib.colors import LinearSegmentedColormap  # noqa: E402
+
+from budget.analysis.depth import DepthCurve  # noqa: E402
+from budget.analysis.heatmap import ErrorMap  # noqa: E402
+from budget.analysis.result import FamilyShare  # noqa: E402
+
+INK = "#22303c"
+GRID = "#d9dee3"
+COLOURS = {"structured": "#b5472f", "naive": "#3d6f8e", "twirled": "#6b8f3a", "target": "#8a6d9e"}
+WORDS = {
+    "naive": "fidelity product (naive)",
+    "structured": "accumulated (as compiled)",
+    "twirled": "Pauli-twirled",
+}
+_HEAT = LinearSegmentedColormap.from_list("fen_heat", ["#f7f4ee", "#f0c987", "#d9753b", "#8e2a1f"])
+
+_STYLE = {
+    "svg.fonttype": "none",
+    "svg.hashsalt": "budget-report",
+    "font.family": "sans-serif",
+    "font.size": 10,
+    "axes.edgecolor": INK,
+    "axes.labelcolor": INK,
+    "xtick.color": INK,
+    "ytick.color": INK,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+}
+
+
+def _svg(fig, name: str) -> str:
+    buf = io.StringIO()
+    fig.savefig(buf, format="svg", bbox_inches="tight", metadata={"Date": None, "Creator": None})
+    plt.close(fig)
+    text = buf.getvalue()
+    text = text[text.index("<svg") :]
+    # ids must be unique on a page holding several figures
+    ids = set(re.findall(r'id="([^"]+)"', text))
+    for old in sorted(ids, key=len, reverse=True):
+        text = re.sub(rf'(["#(]){re.escape(old)}(["\)])', rf"\g<1>{name}-{old}\g<2>", text)
+    return re.sub(r"<svg ", f'<svg role="img" aria-label="{name}" ', text, count=1)
+
+
+def depth_svg(curve: DepthCurve) -> str:
+    """Infidelity against repetitions, log-log, three curves, crossover and target marked."""
+    with plt.rc_context(_STYLE):
+        fig, ax = plt.subplots(figsize=(7.2, 4.2))
+        n = np.array(curve.repetitions, dtype=float)
+        floor = _positive_floor(curve)
+        for key in ("naive", "twirled", "structured"):
+            y = np.maximum(np.array(getattr(curve, key)), floor)
+            style = "-" if key == "structured" else "--" if key == "naive" else ":"
+            ax.plot(n, y, style, color=COLOURS[key], lw=2.2 if key == "structured" else 1.8, label=WORDS[key])
+        if curve.crossover_repetitions is not None:
+            x = curve.crossover_repetitions
+            ax.axvline(x, color=INK, lw=0.8, alpha=0.5)
+            ax.annotate(f"crossover N = {x:,}", (x, ax.get_ylim()[0]), xytext=(4, 6),
+                        textcoords="offset points", color=INK, fontsize=9)
+        if curve.target is not None:
+            ax.axhline(curve.target, color=COLOURS["target"], lw=1.0)
+            ax.annotate(f"target {curve.target:g}", (n[0], curve.target), xytext=(2, 4),
+                        textcoords="offset points", color=COLOURS["target"], fontsize=9)
+        ax.set_xscale("log" if n[-1] > 1 else "linear")
+        ax.set_yscale("log")
+        ax.set_xlabel("repetitions of the cycle, N")
+        ax.set_ylabel(_metric_label(curve.metric))
+        ax.grid(True, which="major", color=GRID, lw=0.6)
+        ax.legend(frameon=False, loc="upper left")
+        return _svg(fig, "depth-curves")
+
+
+def shares_svg(families: tuple[FamilyShare, ...], total: float) -> str:
+    """Horizontal bars: each family's share of the accumulated infidelity (signed)."""
+    with plt.rc_context(_STYLE):
+        rows = list(families)[:12]
+        fig, ax = plt.subplots(figsize=(7.2, 0.45 * max(len(rows), 2) + 0.9))
+        names = [f.name for f in rows][::-1]
+        vals = np.array([f.share for f in rows][::-1])
+        colours = [COLOURS["structured"] if v >= 0 else COLOURS["twirled"] for v in vals]
+        ax.barh(names, vals, color=colours, height=0.6)
+        for y, v in enumerate(vals):
+            pct = f"{100 * v / total:.0f} %" if total > 0 else ""
+            ax.annotate(f"{v:.2e}  {pct}", (v, y), xytext=(4 if v >= 0 else -4, 0), textcoords="offset points",
+                        va="center", ha="left" if v >= 0 else "right", fontsize=9, color=INK)
+        ax.axvline(0, color=INK, lw=0.8)
+        ax.set_xlabel("share of the accumulated infidelity (negative: cancels other errors)")
+        ax.margins(x=0.25)
+        ax.grid(True, axis="x", color=GRID, lw=0.6)
+        return _svg(fig, "family-shares")
+
+
+def heatmap_svg(emap: ErrorMap) -> str:
+    """Layer-by-qubit map of the first-order local infidelity, as a percentage of its total."""
+    with plt.rc_context(_STYLE):
+        n_q, n_l = emap.values.shape
+        fig, ax = plt.subplots(figsize=(min(max(4.0, 0.32 * n_l + 2.0), 11.0), 0.38 * n_q + 1.4))
+        total = emap.total
+        data = 100 * emap.values / total if total > 0 else emap.values
+        im = ax.imshow(data, aspect="auto", cmap=_HEAT, interpolation="nearest", vmin=0)
+        ax.set_yticks(range(n_q), emap.qubits)
+        step = max(1, math.ceil(n_l / 30))
+        ax.set_xticks(range(0, n_l, step), [emap.columns[i] for i in range(0, n_l, step)],
+                      rotation=60, ha="right", fontsize=8)
+        ax.set_xlabel("layer as written (×N: runs N times)")
+        for s in ax.spines.values():
+            s.set_visible(False)
+        bar = fig.colorbar(im, ax=ax, pad=0.02)
+        bar.set_label("% of the local error total")
+        return _svg(fig, "error-map")
+
+
+def _positive_floor(curve: DepthCurve) -> float:
+    vals = [v for key in ("naive", "structured", "twirled") for v in getattr(curve, key) if v > 0]
+    return min(vals) / 10 if vals else 1e-12
+
+
+def _metric_label(metric: str) -> str:
+    return "process infidelity 1 − F_pro" if metric == "process" else "state infidelity, input |0…0⟩"

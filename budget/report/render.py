@@ -1,0 +1,29 @@
+"""All files of a report folder, computed in memory: pictures, Markdown, then the HTML page."""
+
+from __future__ import annotations
+
+from budget.report.content import ReportData
+from budget.report.html import render_html
+from budget.report.markdown import render_markdown
+
+
+def figures(data: ReportData) -> dict[str, str]:
+    """Figure name -> SVG text (depth curves only when they were computed)."""
+    from budget.report.plots import depth_svg, heatmap_svg, shares_svg
+
+    out = {}
+    if data.curve is not None:
+        out["depth-curves"] = depth_svg(data.curve)
+    if data.result.families:
+        out["family-shares"] = shares_svg(data.result.families, data.result.actual_infidelity)
+    out["error-map"] = heatmap_svg(data.emap)
+    return out
+
+
+def report_files(data: ReportData) -> dict[str, str]:
+    """File name -> content: every ``<figure>.svg``, ``report.md`` and ``report.html`` (last)."""
+    figs = figures(data)
+    files = {f"{name}.svg": svg for name, svg in figs.items()}
+    files["report.md"] = render_markdown(data, figs)
+    files["report.html"] = render_html(data, figs)
+    return files

@@ -1,0 +1,244 @@
+"""The report as a list of plain blocks, so HTML and Markdown show exactly the same content.
+
+Blocks: :class:`Heading`, :class:`Para`, :class:`Table`, :class:`Figure`, :class:`Tiles`. The
+renderers (:mod:`budget.report.html`, :mod:`budget.report.markdown`) only decide how a block looks.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Union
+
+from budget.report.content import CAUTION_WORDS, ENGINE_WORDS, ReportData, minutes, num, short_name, summary_words, verdict
+
+
+@dataclass(frozen=True)
+class Heading:
+    text: str
+    anchor: str
+
+
+@dataclass(frozen=True)
+class Para:
+    text: str
+    kind: str = "text"  # "text", "summary", "note", "warning", "caution"
+
+
+@dataclass(frozen=True)
+class Table:
+    header: tuple[str, ...]
+    rows: tuple[tuple[str, ...], ...]
+    numeric: tuple[bool, ...] = ()  # right-align these columns
+
+
+@dataclass(frozen=True)
+class Figure:
+    name: str  # file stem, e.g. "depth-curves"
+    svg: str
+    caption: str
+
+
+@dataclass(frozen=True)
+class Tiles:
+    """The headline numbers: (label, value, explanation, tone) with tone "good", "bad" or ""."""
+
+    items: tuple[tuple[str, str, str, str], ...]
+
+
+Block = Union[Heading, Para, Table, Figure, Tiles]
+
+
+def build(data: ReportData, figures: dict[str, str]) -> list[Block]:
+    """All blocks in reading order; ``figures`` maps figure name -> SVG text (from plots.py)."""
+    r = data.result
+    ok, words = verdict(r, data.target)
+    out: list[Block] = [Para(summary_words(data), "summary")]
+    amp = r.coherent_amplification
+    tiles = [
+        ("fidelity product (naive)", num(r.naive_infidelity), "1 − Π F_pro over every operation and idle slot", ""),
+        ("accumulated", num(r.actual_infidelity), f"{r.metric} infidelity, {r.engine} engine", "good" if ok else "bad"),
+        ("accumulated ÷ naive", "—" if amp is None else f"{amp:.3g}×", "above 1: coherent build-up", ""),
+        ("target", num(data.target), "meets it" if ok else "misses it", "good" if ok else "bad"),
+    ]
+    if r.twirled_infidelity is not None:
+        tiles.insert(2, ("Pauli-twirled", num(r.twirled_infidelity), "same errors, randomly compiled", ""))
+    out.append(Tiles(tuple(tiles)))
+    out += _depth(data, figures)
+    out += _shares(data, figures)
+    out += _error_map(data, figures)
+    out += _tolerances(data)
+    out += _calibration(data)
+    out += _model(data)
+    out.append(Heading("Engine and validity", "engine"))
+    out.append(Para(f"Engine: {r.engine} — {ENGINE_WORDS.get(r.engine, 'see docs/methods.md')}"))
+    for w in r.warnings + (data.curve.warnings if data.curve else ()):
+        out.append(Para(w, "warning"))
+    for n in data.notes:
+        out.append(Para(n, "note"))
+    out.append(Para(CAUTION_WORDS, "caution"))
+    return out
+
+
+def _depth(data: ReportData, figures: dict[str, str]) -> list[Block]:
+    c = data.curve
+    out: list[Block] = [Heading("Depth: repeating the circuit", "depth")]
+    if c is None:
+        return out + [Para("The depth curves could not be computed for this circuit; see the notes at the end.", "note")]
+    text = (
+        f"The whole circuit is treated as one cycle and repeated N = 1 … {c.max_cycles:,} times. The naive curve "
+        "multiplies fidelities; the accumulated curve follows the errors as the circuit is compiled; the "
+        "Pauli-twirled curve shows the same errors after random compiling, where coherent errors add in "
+        "probability instead of amplitude."
+    )
+    if c.crossover_repetitions is not None:
+        text += f" From N = {c.crossover_repetitions:,} on the accumulated error is more than twice the naive estimate."
+    else:
+        text += f" Up to N = {c.max_cycles:,} the accumulated error stays below twice the naive estimate."
+    out.append(Para(text))
+    if "depth-curves" in figures:
+        out.append(Figure("depth-curves", figures["depth-curves"], "Infidelity against repetitions (log–log)."))
+    if c.deepest:
+        rows = []
+        for key, words in (("naive", "fidelity product"), ("structured", "accumulated"), ("twirled", "Pauli-twirled")):
+            n = c.deepest.get(key)
+            shown = "none (N = 1 already misses)" if n is None else (f"≥ {n:,}" if n == c.max_cycles else f"{n:,}")
+            rows.append((words, shown))
+        out.append(Para(f"Deepest repetition count that still meets the target {num(c.target)}:"))
+        out.append(Table(("curve", "repetitions"), tuple(rows), (False, True)))
+    if c.components:
+        out.append(Para("Which coherent errors build up over repetitions (they commute with the cycle) and which are echoed away:"))
+        out.append(Table(
+            ("error", "grows per cycle (rad)", "bounded part (rad)", "behaviour"),
+            tuple((k.name, num(k.growing_rad), num(k.bounded_rad), k.behaviour) for k in c.components),
+            (False, True, True, False),
+        ))
+    pick = _thin(list(range(len(c.repetitions))), 10)
+    out.append(Table(
+        ("repetitions N", "naive", "accumulated", "Pauli-twirled"),
+        tuple((f"{c.repetitions[i]:,}", num(c.naive[i]), num(c.structured[i]), num(c.twirled[i])) for i in pick),
+        (True, True, True, True),
+    ))
+    return out
+
+
+def _shares(data: ReportData, figures: dict[str, str]) -> list[Block]:
+    r = data.result
+    out: list[Block] = [Heading("Which gate families cost the most", "families")]
+    out.append(Para(
+        "Each family's share of the accumulated infidelity. Shares add up to the total; a negative share "
+        "means that family's coherent error partly cancels another's."
+    ))
+    if "family-shares" in figures:
+        out.append(Figure("family-shares", figures["family-shares"], "Share of the accumulated infidelity per gate family."))
+    total = r.actual_infidelity
+    out.append(Table(
+        ("family", "operations executed", "share", "of total"),
+        tuple((f.name, f"{f.operations:,}", num(f.share), f"{100 * f.share / total:.1f} %" if total > 0 else "—")
+              for f in r.families),
+        (False, True, True, True),
+    ))
+    return out
+
+
+def _error_map(data: ReportData, figures: dict[str, str]) -> list[Block]:
+    m = data.emap
+    out: list[Block] = [Heading("Where the error comes from: layer by qubit", "map")]
+    out.append(Para(
+        "Each cell is the local error of one layer on one qubit: the process infidelity 1 − F_pro of every "
+        "operation in that layer (coherent, stochastic, depolarizing and relaxation parts together), split "
+        "evenly over the operation's qubits, plus the idle relaxation of that qubit in that layer, times the "
+        "number of times the layer runs. A layer inside a repeated block appears once. This is a first-order "
+        "picture that adds errors as if independent: it shows where the error arises, not how it builds up "
+        "or cancels between layers (the depth curves and family shares show that)."
+    ))
+    if "error-map" in figures:
+        out.append(Figure("error-map", figures["error-map"], "Local first-order infidelity per layer and qubit, % of the map total."))
+    hot = m.hottest(5)
+    if hot:
+        out.append(Table(
+            ("qubit", "layer", "local infidelity", "of map total"),
+            tuple((q, col, num(v), f"{100 * v / m.total:.1f} %") for q, col, v in hot),
+            (False, False, True, True),
+        ))
+    if m.note:
+        out.append(Para(m.note, "note"))
+    return out
+
+
+def _tolerances(data: ReportData) -> list[Block]:
+    out: list[Block] = [Heading(f"Calibration tolerances for the target {num(data.target)}", "tolerances")]
+    t = data.tolerances
+    if t is None:
+        return out + [Para("Tolerances are not available in this installation; section left out.", "note")]
+    if not t.feasible:
+        return out + [Para(
+            f"The incoherent floor {num(t.incoherent_floor)} alone exceeds the target: no calibration of coherent "
+            "knobs can meet it. Improve T1, T2 or gate error rates, or run fewer repetitions.", "warning")]
+    out.append(Para(
+        f"Largest allowed size of each coherent error knob ({'worst case over signs' if t.assume == 'worst' else 'random signs, r.m.s.'}), "
+        f"with today's value and the factor by which calibration must tighten. Incoherent floor: {num(t.incoherent_floor)}; "
+        f"budget left for coherent errors: {num(t.coherent_budget)}."
+    ))
+    rows = tuple(
+        (f"{row.family} · {row.knob.replace('_', ' ')}", num(row.current_rad), num(row.tolerance_rad),
+         "—" if row.status == "no effect" else f"{row.tighten_by:.3g}×", row.status)
+        for row in t.rows
+    )
+    out.append(Table(("knob", "today (rad)", "tolerance (rad)", "tighten by", "status"), rows, (False, True, True, True, False)))
+    for w in t.warnings:
+        out.append(Para(w, "warning"))
+    return out
+
+
+def _calibration(data: ReportData) -> list[Block]:
+    out: list[Block] = [Heading("Device time to calibrate", "calibration")]
+    p = data.plan
+    if p is None:
+        why = "no tolerance table" if data.tolerances is not None else "not available in this installation"
+        return out + [Para(f"Calibration cost: {why}; section left out.", "note")]
+    if not p.knobs:
+        return out + [Para("No knob needs a calibration experiment for this target.")]
+    out.append(Para(
+        "Amplified phase estimation on every place the gate acts: depth n* = 1/Γ set by the decay per "
+        "repetition, shots from the Cramér–Rao bound (Kimmel, Low, Yoder, PRA 92, 062315 (2015))."
+    ))
+    rows = tuple(
+        (f"{k.family} · {k.knob.replace('_', ' ')}", k.reason, num(k.sigma_rad), str(len(k.sites)),
+         ", ".join(str(s.depth) for s in k.sites[:3]) + ("…" if len(k.sites) > 3 else ""), minutes(k.device_s),
+         "—" if k.hold_hours is None else f"{k.hold_hours:.3g} h")
+        for k in p.knobs
+    )
+    out.append(Table(("knob", "why", "precision σ (rad)", "sites", "depth n*", "device time", "holds for"),
+                     rows, (False, False, True, True, True, True, True)))
+    line = f"One round of all of these: {minutes(p.round_s)} of device time."
+    if p.rounds_per_day:
+        line += f" Drift asks for {p.rounds_per_day:.3g} rounds a day, {100 * p.day_share:.2g} % of the device's day."
+    out.append(Para(line))
+    for key, why in p.unplanned.items():
+        out.append(Para(f"{key}: {why}", "note"))
+    return out
+
+
+def _model(data: ReportData) -> list[Block]:
+    out: list[Block] = [Heading("Error model used", "model")]
+    out.append(Para(f"From {short_name(data.model_source) or 'the given model'}. Angles in radians, times as labelled."))
+    gates = [m for m in data.model_rows if m.kind == "gate"]
+    qubits = [m for m in data.model_rows if m.kind == "qubit"]
+    if gates:
+        keys = tuple(gates[0].values)
+        out.append(Table(("gate", "on") + keys, tuple((g.name, g.where) + tuple(g.values[k] for k in keys) for g in gates)))
+    if qubits:
+        keys = tuple(qubits[0].values)
+        out.append(Table(("qubit", "") + keys, tuple((q.name, q.where) + tuple(q.values[k] for k in keys) for q in qubits)))
+    ro = data.result.readout
+    if ro.per_qubit:
+        out.append(Para(f"Readout is kept apart from gate errors: P(at least one misread) = {num(ro.any_error)}."))
+    return out
+
+
+def _thin(indices: list[int], count: int) -> list[int]:
+    if len(indices) <= count:
+        return indices
+    step = (len(indices) - 1) / (count - 1)
+    return sorted({indices[int(math.floor(i * step + 0.5))] for i in range(count)})
