@@ -88,17 +88,16 @@ def parse_qasm(text: str, *, source: str = "<string>") -> StructuredCircuit:
     version = qasm_version(text) or 3
     if version not in (2, 3):
         raise CircuitSyntaxError(f"{source}: OPENQASM {version}: only versions 2 and 3 are supported")
-    reader = _Reader(source, version)
-    program = reader.statements(parse_tree(text, source=source).statements, in_loop=False)
+    reader = _Reader(source)
+    program = reader.statements(parse_tree(text, source=source, version=version).statements, in_loop=False)
     return layer_program(program, qubits=reader.qubits, measured=reader.measured, source=source)
 
 
 class _Reader:
     """Interpreter state: registers, gate definitions, constants and measured qubits."""
 
-    def __init__(self, source: str, version: int) -> None:
+    def __init__(self, source: str) -> None:
         self.source = source
-        self.version = version
         self.qubits: list[str] = []
         self.registers: dict[str, tuple[list[int], bool]] = {}  # name -> (indices, is_register)
         self.gates: dict[str, _GateDef] = {}
@@ -111,10 +110,10 @@ class _Reader:
         return CircuitSyntaxError(f"{place(self.source, line)}: {what}")
 
     def value(self, expr: ast.Expression, env: dict[str, Number]) -> Number:
-        return evaluate(expr, env, source=self.source, version=self.version)
+        return evaluate(expr, env, source=self.source)
 
     def integer(self, expr: ast.Expression, what: str) -> int:
-        return evaluate_int(expr, self.consts, source=self.source, what=what, version=self.version)
+        return evaluate_int(expr, self.consts, source=self.source, what=what)
 
     # -- statements ----------------------------------------------------------------------------
     def statements(self, stmts: list[ast.Statement], *, in_loop: bool) -> list[Statement]:

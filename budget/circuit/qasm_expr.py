@@ -2,8 +2,8 @@
 
 Evaluated on the reference syntax tree. Supported: integer and real literals, the constants
 ``pi``/``π``, ``tau``/``τ``, ``euler``/``ℇ``, names bound in an environment (gate parameters,
-``const`` and initialised classical declarations), unary minus, ``+ - * / % **`` (and ``^`` as a
-power in OpenQASM 2), casts to int/float/angle, and the functions sin, cos, tan, arcsin, arccos,
+``const`` and initialised classical declarations), unary minus, ``+ - * / % **`` (OpenQASM 2's
+power ``^`` arrives here as ``**``, see :mod:`budget.circuit.qasm_parse`), casts to int/float/angle, and the functions sin, cos, tan, arcsin, arccos,
 arctan, exp, ln/log, sqrt, floor, ceiling, mod, pow.
 
 Division is real division in both versions (``1/2`` is 0.5); a value used as an index or loop
@@ -63,7 +63,7 @@ def line_of(node: ast.QASMNode | None) -> int | None:
     return span.start_line if span is not None else None
 
 
-def evaluate(expr: ast.Expression, env: Mapping[str, Number], *, source: str, version: int = 3) -> Number:
+def evaluate(expr: ast.Expression, env: Mapping[str, Number], *, source: str) -> Number:
     """The value of a constant expression (Python int or float).
 
     Raises:
@@ -90,8 +90,6 @@ def evaluate(expr: ast.Expression, env: Mapping[str, Number], *, source: str, ve
             raise fail(node, f"unary operator '{node.op.name}' is not supported in a constant expression")
         if isinstance(node, ast.BinaryExpression):
             op = node.op.name
-            if op == "^" and version == 2:
-                op = "**"
             if op not in _BINARY:
                 raise fail(node, f"operator '{node.op.name}' is not supported in a constant expression")
             lhs, rhs = ev(node.lhs), ev(node.rhs)
@@ -124,9 +122,9 @@ def evaluate(expr: ast.Expression, env: Mapping[str, Number], *, source: str, ve
     return ev(expr)
 
 
-def evaluate_int(expr: ast.Expression, env: Mapping[str, Number], *, source: str, what: str, version: int = 3) -> int:
+def evaluate_int(expr: ast.Expression, env: Mapping[str, Number], *, source: str, what: str) -> int:
     """A constant expression that must be an integer (an index, a size, a loop bound)."""
-    value = evaluate(expr, env, source=source, version=version)
+    value = evaluate(expr, env, source=source)
     if isinstance(value, float):
         if not value.is_integer():
             raise CircuitSyntaxError(f"{place(source, line_of(expr))}: {what} = {value!r}: expected an integer")

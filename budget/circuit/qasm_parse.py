@@ -5,8 +5,11 @@ OpenQASM 2 programs too). The package's own ``openqasm3.parse`` raises an error 
 so this module drives the same ANTLR lexer and parser with a listener that stops at the first
 syntax error and reports its line and the offending text.
 
-One convenience rewrite happens before parsing: an untyped loop header ``for i in ...`` (allowed
-by earlier drafts of OpenQASM 3) becomes ``for int i in ...``. Line numbers are unchanged.
+Two rewrites happen before parsing, both keep line numbers: an untyped loop header
+``for i in ...`` (allowed by earlier drafts of OpenQASM 3) becomes ``for int i in ...``; and in
+OpenQASM 2, where ``^`` is the power operator (binding tighter than unary minus, right
+associative), ``^`` becomes OpenQASM 3's ``**``, which has exactly that precedence (in OpenQASM 3
+``^`` is a bitwise XOR).
 """
 
 from __future__ import annotations
@@ -74,13 +77,15 @@ def _strip_comments(text: str) -> str:
     return re.sub(r"//[^\n]*", "", text)
 
 
-def parse_tree(text: str, *, source: str) -> ast.Program:
-    """The reference syntax tree of an OpenQASM 2 or 3 program.
+def parse_tree(text: str, *, source: str, version: int = 3) -> ast.Program:
+    """The reference syntax tree of an OpenQASM 2 or 3 program (``version``: the major version).
 
     Raises:
         CircuitSyntaxError: ``source:line: syntax error ...`` at the first error.
     """
     fixed = _UNTYPED_FOR.sub(lambda m: f"for{m.group(1)}int {m.group(2)}{m.group(3)}in", text)
+    if version == 2:
+        fixed = fixed.replace("^", "**")
     try:
         tree = _antlr_tree(fixed, fast=True)  # fast SLL pass; valid programs end here
     except (_Stop, ParseCancellationException):
