@@ -43,6 +43,8 @@ class ErrorModel:
         gate_overrides: (gate name, qubit names in gate order) -> parameters (gate table merged in).
         mentions: qubit name -> the key path that names it (for messages when it is not in the circuit).
         source: file name, or ``"<dict>"``.
+        calibration: the optional ``[calibration]`` table as parsed (validated by
+            :func:`budget.analysis.calibration.read_calibration`), or None.
     """
 
     qubit_defaults: QubitParams = QubitParams()
@@ -51,6 +53,7 @@ class ErrorModel:
     gate_overrides: Mapping[tuple[str, tuple[str, ...]], GateParams] = field(default_factory=dict)
     mentions: Mapping[str, str] = field(default_factory=dict)
     source: str = "<dict>"
+    calibration: Mapping[str, Any] | None = None
 
     @classmethod
     def from_dict(cls, data: Mapping[str, Any], source: str = "<dict>") -> "ErrorModel":
@@ -163,11 +166,12 @@ class _Parser:
     def model(self, data: Mapping[str, Any]) -> ErrorModel:
         data = self.table(("<top>",), data)
         for k, v in data.items():
-            if k not in ("qubits", "gates"):
-                raise self.unknown((k,), v, ("qubits", "gates"))
+            if k not in ("qubits", "gates", "calibration"):
+                raise self.unknown((k,), v, ("qubits", "gates", "calibration"))
         defaults, overrides = self.qubits(data.get("qubits", {}))
         gates, gate_overrides = self.gates(data.get("gates", {}))
-        return ErrorModel(defaults, overrides, gates, gate_overrides, dict(self.mentions), self.source)
+        calibration = self.table(("calibration",), data["calibration"]) if "calibration" in data else None
+        return ErrorModel(defaults, overrides, gates, gate_overrides, dict(self.mentions), self.source, calibration)
 
     def qubits(self, raw: Any) -> tuple[QubitParams, dict[str, QubitParams]]:
         base = ("qubits",)
