@@ -348,6 +348,7 @@ BAD = [
     ("OPENQASM 3;\nqubit q;\ndelay[100ns] q;\n", 3, ["delay"]),
     ("OPENQASM 3;\nqubit q;\nint n = 2;\nn = 3;\n", 4, ["classical assignment"]),
     ("OPENQASM 3;\nqubit q;\nfor int i in [0:0:3] { x q; }\n", 3, ["step is 0"]),
+    ("OPENQASM 3;\nqubit[4] q;\nh q[::2];\n", 3, ["range '::2'", "start:step:end"]),
     ("OPENQASM 2.0;\ngate g a { g a; }\nqreg q[1];\ng q[0];\n", 2, ["itself"]),
     ("OPENQASM 2.0;\nqreg q[1];\ngate g a { x a; }\ngate g a { y a; }\n", 4, ["defined twice"]),
 ]
@@ -396,10 +397,17 @@ def test_example_circuits_read(path):
     assert c.num_qubits >= 1 and c.executed_counts()[0] >= 1
 
 
-def test_docs_examples_read(tmp_path):
-    """Every ```qasm block in docs/circuit-formats.md is a valid input (examples are tests)."""
+def test_docs_examples_read(tmp_path, monkeypatch):
+    """The examples of docs/circuit-formats.md run and give what the text says."""
     doc = (ROOT / "docs" / "circuit-formats.md").read_text()
-    blocks = re.findall(r"```qasm\n(.*?)```", doc, re.DOTALL)
-    assert len(blocks) >= 2
-    for k, block in enumerate(blocks):
-        assert parse_qasm(block, source=f"docs example {k}").executed_counts()[0] >= 1
+    bell, folded = re.findall(r"```qasm\n(.*?)```", doc, re.DOTALL)
+    c = parse_qasm(bell, source="bell")
+    assert [op.gate for op in _ops(c)] == ["h", "cx", "rz", "rz"] and c.measured == (0, 1)
+    assert parse_qasm(folded, source="folded").executed_counts()[0] == 3 * (1 + 3 * 3 + 1) + 1
+    (cirq_example,) = [b for b in re.findall(r"```python\n(.*?)```", doc, re.DOTALL) if "from_cirq" in b]
+    monkeypatch.chdir(tmp_path)
+    scope: dict = {}
+    exec(cirq_example, scope)  # noqa: S102 (our own documentation)
+    structured = scope["structured"]
+    assert structured.qubits == ("q(0)", "q(1)") and structured.body[1].count == 10**6
+    assert load_circuit(tmp_path / "cycle.json").executed_counts() == structured.executed_counts()

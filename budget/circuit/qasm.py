@@ -88,7 +88,7 @@ def parse_qasm(text: str, *, source: str = "<string>") -> StructuredCircuit:
     version = qasm_version(text) or 3
     if version not in (2, 3):
         raise CircuitSyntaxError(f"{source}: OPENQASM {version}: only versions 2 and 3 are supported")
-    reader = _Reader(source)
+    reader = _Reader(source, text.splitlines())
     program = reader.statements(parse_tree(text, source=source, version=version).statements, in_loop=False)
     return layer_program(program, qubits=reader.qubits, measured=reader.measured, source=source)
 
@@ -96,8 +96,9 @@ def parse_qasm(text: str, *, source: str = "<string>") -> StructuredCircuit:
 class _Reader:
     """Interpreter state: registers, gate definitions, constants and measured qubits."""
 
-    def __init__(self, source: str) -> None:
+    def __init__(self, source: str, lines: list[str]) -> None:
         self.source = source
+        self.lines = lines
         self.qubits: list[str] = []
         self.registers: dict[str, tuple[list[int], bool]] = {}  # name -> (indices, is_register)
         self.gates: dict[str, _GateDef] = {}
@@ -114,6 +115,14 @@ class _Reader:
 
     def integer(self, expr: ast.Expression, what: str) -> int:
         return evaluate_int(expr, self.consts, source=self.source, what=what)
+
+    def check_range(self, r: ast.RangeDefinition) -> None:
+        """The reference parser reads ``[::2]`` like ``[:2]``: refuse a range with ``::`` in it."""
+        span = r.span
+        if span is not None and span.start_line == span.end_line and 0 < span.start_line <= len(self.lines):
+            raw = self.lines[span.start_line - 1][span.start_column : span.end_column + 1]
+            if "::" in raw:
+                raise self.error(r, f"range '{raw}' omits a part next to its step: write start:step:end in full")
 
     # -- statements ----------------------------------------------------------------------------
     def statements(self, stmts: list[ast.Statement], *, in_loop: bool) -> list[Statement]:
@@ -208,6 +217,7 @@ class _Reader:
             many = True
         elif len(index) == 1 and isinstance(index[0], ast.RangeDefinition):
             r = index[0]
+            self.check_range(r)
             start = 0 if r.start is None else self.integer(r.start, f"range start of {name}")
             end = len(indices) - 1 if r.end is None else self.integer(r.end, f"range end of {name}")
             step = 1 if r.step is None else self.integer(r.step, f"range step of {name}")
@@ -334,6 +344,7 @@ class _Reader:
         if isinstance(it, ast.DiscreteSet):
             return len(it.values)
         if isinstance(it, ast.RangeDefinition):
+            self.check_range(it)
             if it.start is None or it.end is None:
                 raise self.error(st, "for loop range needs a start and an end, e.g. [0:9]")
             start = self.integer(it.start, "for loop range start")
