@@ -27,7 +27,7 @@ from budget.errors.fidelity import (
     relaxation_process_fidelity,
 )
 from budget.errors.knobs import coherent_error
-from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
+from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat
 from budget.errors.params import GateParams, QubitParams
 from tests.reference import cirq_process_infidelity, random_noisy_circuit
 

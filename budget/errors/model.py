@@ -27,6 +27,8 @@ from budget.circuit.gates import ALIASES, GATES
 from budget.errors.params import FieldError, GateParams, QubitParams, show
 from budget.problems import ModelError, place
 
+__all__ = ["ErrorModel", "GateParams", "QubitParams", "key_path", "load_model"]
+
 _QUBIT_KEYS = tuple(f.name for f in dataclasses.fields(QubitParams))
 _GATE_KEYS = tuple(f.name for f in dataclasses.fields(GateParams))
 _IDEAL = GateParams()
