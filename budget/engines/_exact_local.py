@@ -1,0 +1,82 @@
+"""Local matrices of the exact engine: one matrix per noisy operation, in the register's form.
+
+Unitary form (state vectors, unitaries): U_coh · U_ideal, 2^k x 2^k in gate order.
+
+Channel form (density matrices, superoperators): the operation's whole channel as one
+4^k x 4^k superoperator in the *interleaved* site order (r_1 c_1 r_2 c_2 …, see
+:mod:`budget.engines._exact_register`). With row-major vec(ρ), vec(A ρ B) = (A ⊗ Bᵀ) vec(ρ), so
+
+    unitary U:        U ⊗ conj(U)
+    Pauli channel:    (1 - Σ p_P) 1 + Σ p_P P ⊗ conj(P)
+    depolarizing λ:   (1 - λ) 1 + (λ/d) vec(1) vec(1)ᵀ          (ρ -> (1-λ) ρ + λ Tr(ρ) 1/d)
+    relaxation:       Σ_K K ⊗ conj(K) per qubit, K from Relaxation.kraus()
+
+composed in the order of budget/errors/noisy.py: ideal gate, coherent unitary, Pauli rates,
+depolarizing, relaxation of each qubit. Matrices are cached per operation object for one run.
+"""
+
+from __future__ import annotations
+
+from functools import reduce
+
+import numpy as np
+
+from budget.errors.noisy import NoisyOperation, Relaxation
+
+_PAULI = {
+    "I": np.eye(2, dtype=complex),
+    "X": np.array([[0, 1], [1, 0]], dtype=complex),
+    "Y": np.array([[0, -1j], [1j, 0]], dtype=complex),
+    "Z": np.diag([1.0 + 0j, -1.0]),
+}
+
+
+def pauli_string_matrix(label: str) -> np.ndarray:
+    """⊗ of the letters of ``label`` (first letter most significant)."""
+    return reduce(np.kron, (_PAULI[ch] for ch in label), np.ones((1, 1), dtype=complex))
+
+
+def gate_unitary(nop: NoisyOperation, *, ideal: bool) -> np.ndarray:
+    """U_ideal (``ideal=True``) or U_coh · U_ideal, gate order."""
+    u = np.asarray(nop.op.unitary(), dtype=complex)
+    return u if ideal else np.asarray(nop.coherent, dtype=complex) @ u
+
+
+def to_interleaved(superop: np.ndarray, k: int) -> np.ndarray:
+    """A k-qubit superoperator from the (rows…, columns…) order of row-major vec(ρ) to the
+    interleaved per-qubit order (r_1 c_1 r_2 c_2 …), on both its output and input side."""
+    if k == 1:
+        return superop
+    perm = [i for q in range(k) for i in (q, k + q)]
+    full = perm + [2 * k + p for p in perm]
+    return superop.reshape((2,) * (4 * k)).transpose(full).reshape(4**k, 4**k)
+
+
+def relaxation_superop(relax: Relaxation) -> np.ndarray:
+    """Σ_K K ⊗ conj(K) of amplitude damping then pure dephasing on one qubit (4 x 4)."""
+    return sum(np.kron(k, k.conj()) for k in relax.kraus())
+
+
+def channel_superop(nop: NoisyOperation) -> np.ndarray:
+    """The whole channel of one noisy operation, 4^k x 4^k in interleaved order."""
+    k = len(nop.qubits)
+    d = 2**k
+    u = gate_unitary(nop, ideal=False)
+    s = np.kron(u, u.conj())
+    if nop.pauli_rates:
+        pauli = (1.0 - sum(nop.pauli_rates.values())) * np.eye(d * d, dtype=complex)
+        for label, p in nop.pauli_rates.items():
+            m = pauli_string_matrix(label)
+            pauli = pauli + p * np.kron(m, m.conj())
+        s = pauli @ s
+    if nop.depolarizing:
+        lam = nop.depolarizing
+        vec_id = np.eye(d, dtype=complex).reshape(-1)
+        s = ((1.0 - lam) * np.eye(d * d) + (lam / d) * np.outer(vec_id, vec_id)) @ s
+    s = to_interleaved(s, k)
+    relax = {r.qubit: r for r in nop.relaxation if not r.is_trivial}
+    if relax:
+        eye4 = np.eye(4, dtype=complex)
+        parts = [relaxation_superop(relax[q]) if q in relax else eye4 for q in nop.qubits]
+        s = reduce(np.kron, parts) @ s
+    return s

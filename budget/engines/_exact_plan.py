@@ -1,0 +1,189 @@
+"""Reach of the exact engine: which dense form, how much memory and work, and the refusal message.
+
+Forms (design.md §4):
+    ``vector``    coherent errors only, state metric: state vector, 2^n amplitudes;
+    ``unitary``   coherent errors only, process metric: the d x d unitary;
+    ``density``   incoherent errors, state metric: density matrix, 4^n entries;
+    ``superop``   incoherent errors, process metric: the 4^n x 4^n superoperator (the Choi state
+                  of the doubled 2n-qubit system, reshuffled), so its reach is half as many qubits.
+
+A repeated block is either unrolled (cost ∝ N) or replaced by its block matrix raised to the
+power N (cost independent of N, but the block matrix is D x D with D = 2^n or 4^n); the cheaper
+estimate wins, and powers are only taken up to POWER_MAX_DIM. Work is counted in complex
+multiply-adds; the constants were measured on the 2-core development machine (docs/benchmarks.md).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
+
+STATE_VECTOR_MAX_QUBITS = 22
+"""Coherent errors, state metric (64 MB state vector, ~0.1 s per gate here)."""
+UNITARY_MAX_QUBITS = 12
+"""Coherent errors, process metric (256 MB per unitary)."""
+DENSITY_MAX_QUBITS = 12
+"""Incoherent errors, state metric (256 MB density matrix)."""
+SUPEROP_MAX_QUBITS = 6
+"""Incoherent errors, process metric (4^n x 4^n superoperator: 256 MB at 6 qubits)."""
+POWER_MAX_DIM = 1024
+"""Largest block matrix raised to a power for a repeated block (2^10 unitary, 4^5 superoperator);
+its Schur or eigendecomposition takes seconds to tens of seconds on 2 cores."""
+MEMORY_LIMIT_BYTES = 4 * 2**30
+"""Estimated peak memory above which the engine refuses before allocating anything."""
+WORK_LIMIT = 3e11
+"""Estimated complex multiply-adds above which the engine refuses (a few minutes on 2 cores)."""
+
+_OVERHEAD = 3e4  # multiply-adds' worth of Python overhead per local matrix applied (~20 µs)
+_DECOMPOSITION = 40.0  # Schur / eig + inverse of a D x D matrix ≈ 40 D³ multiply-adds, measured
+
+FORMS = {
+    # (incoherent, metric) -> (form, site dimension, qubit limit, operator?)
+    (False, "state"): ("vector", 2, STATE_VECTOR_MAX_QUBITS, False),
+    (False, "process"): ("unitary", 2, UNITARY_MAX_QUBITS, True),
+    (True, "state"): ("density", 4, DENSITY_MAX_QUBITS, False),
+    (True, "process"): ("superop", 4, SUPEROP_MAX_QUBITS, True),
+}
+
+
+@dataclass(frozen=True)
+class Plan:
+    """How the exact engine will run one circuit.
+
+    Attributes:
+        form: ``vector``, ``unitary``, ``density`` or ``superop``.
+        site_dim: 2 or 4 (dimension per qubit of the register).
+        max_qubits: the form's qubit limit.
+        columns: 1 for a state, s^n for an operator.
+        work: estimated complex multiply-adds (noisy and ideal runs).
+        memory_bytes: estimated peak memory.
+        powered: repeated blocks raised to a power (id of the NoisyRepeat -> True) or unrolled.
+        ideal_powered: the same choice for the ideal run (state vector or unitary).
+    """
+
+    form: str
+    site_dim: int
+    max_qubits: int
+    columns: int
+    work: float
+    memory_bytes: float
+    powered: dict[int, bool]
+    ideal_powered: dict[int, bool]
+
+
+class _Costs:
+    """Work estimates with a per-repeat choice between unrolling and a matrix power."""
+
+    def __init__(self, n: int, s: int, repeats: str) -> None:
+        self.n, self.s, self.mode = n, s, repeats
+        self.powered: dict[int, bool] = {}
+        self.uses_power = False
+
+    def items(self, items: tuple[NoisyItem, ...], columns: int) -> float:
+        size = self.s**self.n * columns
+        total = 0.0
+        for it in items:
+            if isinstance(it, NoisyLayer):
+                for nop in it.operations:
+                    total += size * self.s ** len(nop.qubits) + _OVERHEAD
+                if self.s == 4:
+                    total += sum(size * 4 + _OVERHEAD for r in it.idle if not r.is_trivial)
+            else:
+                total += self.repeat(it, columns)
+        return total
+
+    def repeat(self, rep: NoisyRepeat, columns: int) -> float:
+        unroll = rep.count * self.items(rep.body, columns)
+        dim = self.s**self.n
+        if dim > POWER_MAX_DIM or self.mode == "unroll" or (rep.count == 1 and self.mode == "auto"):
+            self.powered.setdefault(id(rep), False)
+            return unroll
+        power = self.items(rep.body, dim) + _DECOMPOSITION * dim**3 + dim * dim * columns
+        use = power < unroll or self.mode == "power"
+        self.powered[id(rep)] = self.powered.get(id(rep), False) or use
+        self.uses_power |= use
+        return min(unroll, power)
+
+
+REPEAT_MODES = ("auto", "power", "unroll")
+
+
+def make_plan(circuit: NoisyCircuit, metric: str, repeats: str = "auto") -> Plan:
+    """Form, estimated work and memory for ``circuit`` and ``metric`` (nothing is allocated).
+
+    ``repeats``: ``"auto"`` takes the cheaper of unrolling and the block power for each repeated
+    block; ``"power"`` takes the power whenever the block matrix is at most POWER_MAX_DIM wide;
+    ``"unroll"`` never takes it (tests and benchmarks compare the two).
+    """
+    if repeats not in REPEAT_MODES:
+        raise ValueError(f"repeats = {repeats!r}: expected one of {', '.join(REPEAT_MODES)}")
+    n = circuit.num_qubits
+    form, s, limit, operator = FORMS[(circuit.has_incoherent, metric)]
+    columns = s**n if operator else 1
+    costs = _Costs(n, s, repeats)
+    ideal = _Costs(n, 2, repeats)
+    work = costs.items(circuit.body, columns) + ideal.items(circuit.body, 2**n if operator else 1)
+    register = 2 * 16.0 * s**n * columns  # the tensor and its output buffer
+    ideal_bytes = 2 * 16.0 * 2**n * (2**n if operator else 1)
+    blocks = 8 * 16.0 * (s**n) ** 2 if costs.uses_power else 0.0  # block register, eig, inverse
+    final = 16.0 * s**n * columns if form == "superop" else 0.0  # reordered copy for F_pro
+    memory = register + ideal_bytes + blocks + final
+    return Plan(form, s, limit, columns, work, memory, costs.powered, ideal.powered)
+
+
+def _size(num_bytes: float) -> str:
+    for unit, scale in (("TiB", 2**40), ("GiB", 2**30), ("MiB", 2**20)):
+        if num_bytes >= scale:
+            return f"{num_bytes / scale:.3g} {unit}"
+    return f"{num_bytes / 2**10:.3g} KiB"
+
+
+_WHAT = {
+    "vector": "a state vector (coherent errors only)",
+    "unitary": "the d x d unitary (coherent errors only)",
+    "density": "a density matrix (incoherent errors present)",
+    "superop": "the 4^n x 4^n superoperator, i.e. the Choi state of the doubled 2n-qubit system "
+    "(incoherent errors present), so the process metric reaches half as many qubits as the state metric",
+}
+
+
+def refusal(circuit: NoisyCircuit, metric: str, plan: Plan) -> str | None:
+    """None when the plan fits the limits, else one message: qubit count, limit, memory, and the
+    engines that would fit."""
+    n = circuit.num_qubits
+    head = f"{n}-qubit circuit, {metric} metric: the exact engine holds {_WHAT[plan.form]}"
+    if n > plan.max_qubits or plan.memory_bytes > MEMORY_LIMIT_BYTES:
+        return (
+            f"{head} up to {plan.max_qubits} qubits and {_size(MEMORY_LIMIT_BYTES)}; this one would "
+            f"need about {_size(plan.memory_bytes)}. {other_engines(circuit, metric)}"
+        )
+    if plan.work > WORK_LIMIT:
+        return (
+            f"{head}, but this one needs about {plan.work:.2g} complex multiply-adds (limit "
+            f"{WORK_LIMIT:.0e}): repeated blocks on {n} qubits are unrolled because their block matrix "
+            f"({plan.site_dim}^{n} wide) is above {POWER_MAX_DIM}. {other_engines(circuit, metric)}"
+        )
+    return None
+
+
+def other_engines(circuit: NoisyCircuit, metric: str) -> str:
+    """Which other engines would take the circuit, in words (asks each engine's ``fits``)."""
+    from budget.engines import ENGINE_NAMES, get_engine
+
+    said = []
+    for name in ENGINE_NAMES:
+        if name == "exact":
+            continue
+        try:
+            reason = get_engine(name).fits(circuit, metric)
+        except Exception:  # a missing or broken engine must not hide this message
+            continue
+        if reason is None:
+            said.append(f"the {name} engine fits it")
+        elif name == "clifford":
+            said.append("clifford fits when every gate is Clifford")
+        else:
+            said.append(f"the {name} engine does not fit either ({reason})")
+    text = "; ".join(said) or "no other engine of this tool is available"
+    return text[0].upper() + text[1:] + "."

@@ -1,0 +1,158 @@
+"""Dense registers for the exact engine: a tensor with one axis per qubit, local matrices applied
+by matrix products on reshaped views, and fusion of consecutive local operations.
+
+A register holds an array of shape (s,)*n + (C,): ``s = 2`` for state vectors and unitaries,
+``s = 4`` for density matrices and superoperators, ``C`` columns (1 for a state, s^n for an
+operator built column by column). A density matrix is stored *interleaved*: the axis of qubit q
+carries the index 2 r_q + c_q (row bit, column bit), so a channel on k qubits is one 4^k x 4^k
+matrix on k axes, the same code path as a gate on a state vector.
+
+A k-site matrix on adjacent axes p..p+k-1 is ``np.matmul(M, view)`` with
+view = t.reshape(s^p, s^k, rest): a batched product on a view, no transpose. Two-qubit operations
+on axes that are not adjacent move one axis next to the other (one copy) and the register
+remembers the new axis order instead of moving it back; ``canonical()`` restores qubit order.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+
+class Register:
+    """A tensor of n sites of dimension s and C trailing columns, with a movable axis order.
+
+    Args:
+        data: flat complex array of length s**n * columns, qubit 0 most significant.
+        num_qubits: n.
+        site_dim: s (2 or 4).
+    """
+
+    def __init__(self, data: np.ndarray, num_qubits: int, site_dim: int) -> None:
+        self.n = num_qubits
+        self.s = site_dim
+        self.columns = data.size // site_dim**num_qubits
+        self.t = np.ascontiguousarray(data, dtype=complex).reshape(-1)
+        self._buf = np.empty_like(self.t)
+        self.order = list(range(num_qubits))  # axis position -> qubit
+
+    @classmethod
+    def identity(cls, num_qubits: int, site_dim: int) -> "Register":
+        d = site_dim**num_qubits
+        return cls(np.eye(d, dtype=complex).reshape(-1), num_qubits, site_dim)
+
+    @classmethod
+    def zero_state(cls, num_qubits: int, site_dim: int) -> "Register":
+        """|0…0> (s = 2) or |0…0><0…0| (s = 4, index 0 of every site)."""
+        data = np.zeros(site_dim**num_qubits, dtype=complex)
+        data[0] = 1.0
+        return cls(data, num_qubits, site_dim)
+
+    def _swap_buffers(self) -> None:
+        self.t, self._buf = self._buf, self.t
+
+    def _move_axis(self, src: int, dst: int) -> None:
+        shape = (self.s,) * self.n + (self.columns,)
+        moved = np.moveaxis(self.t.reshape(shape), src, dst)
+        np.copyto(self._buf.reshape(moved.shape), moved)
+        self._swap_buffers()
+        q = self.order.pop(src)
+        self.order.insert(dst, q)
+
+    def apply(self, qubits: tuple[int, ...], matrix: np.ndarray) -> None:
+        """Multiply the register by ``matrix`` acting on ``qubits`` (in the matrix's site order)."""
+        s = self.s
+        if len(qubits) == 1:
+            p = self.order.index(qubits[0])
+        else:
+            a, b = qubits
+            pa, pb = self.order.index(a), self.order.index(b)
+            if abs(pa - pb) != 1:
+                self._move_axis(pb, pa + 1 if pb > pa else pa)
+                pa, pb = self.order.index(a), self.order.index(b)
+            if pb < pa:  # the axes are (b, a): reorder the matrix's sites
+                matrix = swap_sites(matrix, s)
+            p = min(pa, pb)
+        k = len(qubits)
+        view = self.t.reshape(s**p, s**k, -1)
+        np.matmul(matrix, view, out=self._buf.reshape(view.shape))
+        self._swap_buffers()
+
+    def canonical(self) -> np.ndarray:
+        """The array as (s^n, C) in qubit order (qubit 0 most significant); a view when possible."""
+        if self.order != list(range(self.n)):
+            shape = (self.s,) * self.n + (self.columns,)
+            perm = [self.order.index(q) for q in range(self.n)] + [self.n]
+            np.copyto(self._buf.reshape(shape), self.t.reshape(shape).transpose(perm))
+            self._swap_buffers()
+            self.order = list(range(self.n))
+        return self.t.reshape(self.s**self.n, self.columns)
+
+    def apply_full(self, matrix: np.ndarray) -> None:
+        """Multiply by a matrix on all n sites (e.g. a repeated block raised to its power)."""
+        data = self.canonical()
+        np.matmul(matrix, data, out=self._buf.reshape(data.shape))
+        self._swap_buffers()
+
+
+def swap_sites(matrix: np.ndarray, s: int) -> np.ndarray:
+    """The same two-site operator written with its two sites in the other order."""
+    return matrix.reshape(s, s, s, s).transpose(1, 0, 3, 2).reshape(s * s, s * s)
+
+
+def _embed(matrix: np.ndarray, sites: tuple[int, ...], target: tuple[int, ...], s: int) -> np.ndarray:
+    """A one- or two-site operator on ``sites`` written on the two sites ``target``."""
+    if sites == target:
+        return matrix
+    if len(sites) == 2:
+        return swap_sites(matrix, s)
+    eye = np.eye(s, dtype=complex)
+    return np.kron(matrix, eye) if sites[0] == target[0] else np.kron(eye, matrix)
+
+
+class Fuser:
+    """Collects local operations and multiplies consecutive ones on at most two qubits together
+    before they touch the register (each qubit has at most one pending operation).
+
+    Pending operations sit on disjoint qubits, so they commute and can be applied in any order.
+    """
+
+    def __init__(self, register: Register) -> None:
+        self.reg = register
+        self._pending: dict[int, tuple[tuple[int, ...], np.ndarray]] = {}
+
+    def add(self, qubits: tuple[int, ...], matrix: np.ndarray) -> None:
+        entries = {id(e): e for q in qubits if (e := self._pending.get(q)) is not None}.values()
+        union = set(qubits).union(*(e[0] for e in entries))
+        if len(union) > 2:
+            for e in list(entries):
+                self._flush(e)
+            self._store(qubits, matrix)
+            return
+        if len(union) == len(qubits):
+            target = qubits
+        else:
+            big = [e[0] for e in entries if len(e[0]) == 2]
+            target = big[0] if big else qubits + tuple(union - set(qubits))
+        s = self.reg.s
+        combined = _embed(matrix, qubits, target, s)
+        for sites, m in entries:
+            combined = combined @ _embed(m, sites, target, s)
+        for q in union:
+            self._pending.pop(q, None)
+        self._store(target, combined)
+
+    def _store(self, qubits: tuple[int, ...], matrix: np.ndarray) -> None:
+        entry = (qubits, matrix)
+        for q in qubits:
+            self._pending[q] = entry
+
+    def _flush(self, entry: tuple[tuple[int, ...], np.ndarray]) -> None:
+        qubits, matrix = entry
+        for q in qubits:
+            del self._pending[q]
+        self.reg.apply(qubits, matrix)
+
+    def flush(self) -> None:
+        """Apply every pending operation."""
+        for entry in list({id(e): e for e in self._pending.values()}.values()):
+            self._flush(entry)
