@@ -126,12 +126,15 @@ def overrotation_unitary(name: str, params: tuple[float, ...], delta_rad: float)
     """The extra unitary an over-rotation δ adds after the gate.
 
     Fixed gates: exp(-i δ K) with K the table's rotation generator. Gates with angles: the first
-    angle becomes θ+δ, so the error is U(θ+δ, ...) U(θ, ...)†. For rx this is Rx(δ).
+    angle becomes θ+δ, so the error is U(θ+δ, ...) U(θ, ...)†. For rx this is Rx(δ); for u2(φ, λ),
+    which is U(π/2, φ, λ), the π/2 becomes π/2+δ.
 
     Raises:
         ValueError: the gate has no rotation angle or axis (id, swap, iswap).
     """
     s = spec(name)
+    if ALIASES.get(name, name) == "u2":  # u2(φ, λ) = U(π/2, φ, λ): its rotation angle is the π/2
+        return _u3(np.pi / 2 + delta_rad, *params) @ ideal_unitary(name, params).conj().T
     if s.num_params:
         shifted = (params[0] + delta_rad,) + tuple(params[1:])
         return np.asarray(s.matrix(*shifted), dtype=complex) @ ideal_unitary(name, params).conj().T
