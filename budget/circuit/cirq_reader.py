@@ -21,6 +21,7 @@ from budget.circuit.decompose import expand
 from budget.circuit.gates import ideal_unitary
 from budget.circuit.ir import Operation, StructuredCircuit
 from budget.circuit.program import Barrier, Loop, Statement
+from budget.circuit.source import read_text
 from budget.graph import layer_program
 from budget.problems import CircuitSyntaxError, InputError, place
 
@@ -111,12 +112,7 @@ def read_cirq_json(path: str | Path) -> StructuredCircuit:
         CircuitSyntaxError: ``file:line: invalid JSON ...``, or the file holds no cirq circuit.
     """
     p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError(f"{p}: circuit file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"{p}: cannot read the circuit file: {exc}") from None
+    text = read_text(p)
     try:
         obj = cirq.read_json(json_text=text)
     except json.JSONDecodeError as exc:

@@ -23,8 +23,9 @@ from budget.circuit.ir import Operation, StructuredCircuit
 from budget.circuit.program import Barrier, Loop, Statement
 from budget.circuit.qasm_expr import Number, evaluate, evaluate_int, line_of
 from budget.circuit.qasm_parse import parse_tree, qasm_version
+from budget.circuit.source import read_text
 from budget.graph import layer_program
-from budget.problems import CircuitSyntaxError, InputError, place
+from budget.problems import CircuitSyntaxError, place
 
 STANDARD_INCLUDES = ("qelib1.inc", "stdgates.inc")
 _BUILTIN_NAMES = {"U": "u", "CX": "cx"}
@@ -67,14 +68,7 @@ def read_qasm(path: str | Path) -> StructuredCircuit:
         InputError: the file does not exist or cannot be read.
         CircuitSyntaxError: ``file:line: ...`` naming the construct and the rule it breaks.
     """
-    p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError(f"{p}: circuit file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"{p}: cannot read the circuit file: {exc}") from None
-    return parse_qasm(text, source=str(p))
+    return parse_qasm(read_text(path), source=str(Path(path)))
 
 
 def parse_qasm(text: str, *, source: str = "<string>") -> StructuredCircuit:
