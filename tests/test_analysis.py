@@ -39,8 +39,12 @@ def test_hundred_x_overrotations_build_up_coherently(engine):
     # flip probability is (1 - (1-2p)^N)/2 = 0.0024938019 (design.md §6; Wallman & Emerson,
     # Phys. Rev. A 94, 052325 (2016) for the twirl).
     p = math.sin(DELTA / 2) ** 2
-    assert r.twirled_infidelity == pytest.approx((1 - (1 - 2 * p) ** N) / 2, rel=1e-6)
-    assert r.twirled_infidelity == pytest.approx(0.0024938019, abs=1e-9)
+    if engine == "exact":
+        assert r.twirled_infidelity == pytest.approx((1 - (1 - 2 * p) ** N) / 2, rel=1e-6)
+        assert r.twirled_infidelity == pytest.approx(0.0024938019, abs=1e-9)
+    else:  # first order in the stochastic rates: N p, within O(N p) relative of the exact value
+        assert r.twirled_infidelity == pytest.approx(N * p, rel=1e-9)
+        assert r.twirled_infidelity == pytest.approx(0.0024938019, rel=5e-3)
     assert r.coherent_amplification == pytest.approx(r.actual_infidelity / r.naive_infidelity)
     assert r.coherent_amplification > 90
 
