@@ -14,7 +14,9 @@ Sources:
 
 from __future__ import annotations
 
+import json
 import math
+from pathlib import Path
 
 import cirq
 import numpy as np
@@ -311,3 +313,50 @@ def test_defaults_and_shots_formula():
     s = read_calibration(None)
     assert (s.shot_overhead_us, s.sigma_factor, s.ladder_shots, s.max_depth) == (100.0, 3.0, 100, 10_000)
     assert shots_needed(1e-4, 1000, 1e-3, 1.0) == 2 * math.ceil(math.e**2 * 1e-6 / 1e-8)
+
+
+# ---- the command line ----------------------------------------------------------------------------
+
+EXAMPLES = Path(__file__).resolve().parent.parent / "circuits"
+
+
+def _cli(*args: str):
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    return CliRunner().invoke(app, list(args), catch_exceptions=False)
+
+
+def test_cli_cost_worked_example(tmp_path):
+    """docs/tolerances.md's example: the plan's totals in the terminal and in JSON agree, and the
+    drift rates of the model's [calibration] table set the schedule."""
+    out = tmp_path / "c.json"
+    res = _cli("cost", str(EXAMPLES / "parity_cycle.qasm"), "--errors", str(EXAMPLES / "fen_q8.toml"),
+               "--target", "0.085", "--cycles", "3", "--json", str(out), "--width", "140")
+    assert res.exit_code == 0, res.output
+    doc = json.loads(out.read_text())["calibration"]
+    assert doc["settings"]["drift_rad_per_hour"]["cz.cphase"] == 0.002
+    cphase = next(k for k in doc["knobs"] if k["knob"] == "cphase")
+    assert cphase["reason"] == "tighten" and len(cphase["sites"]) == 4
+    totals = doc["totals"]
+    assert f"{totals['round_minutes']:.3g} device minutes" in res.output
+    assert f"{totals['rounds_per_day']:.3g} rounds per day" in res.output
+    assert totals["day_share"] == pytest.approx(totals["round_minutes"] * totals["rounds_per_day"] / 1440)
+
+
+@pytest.mark.parametrize("table, message", [
+    ('[calibration]\ndrift = { "cz.cphase" = 0.002 }\n', "calibration.drift = "),
+    ('[calibration.drift_rad_per_hour]\n"cz.cphse" = 0.002\n', "the model has no knob cz.cphse; did you mean 'cz.cphase'"),
+    ('[calibration.drift_rad_per_hour]\n"cz.cphase" = "2 mrad/h"\n', "plain number in rad per hour"),
+])
+def test_cli_cost_bad_calibration_table(tmp_path, table, message):
+    model = tmp_path / "m.toml"
+    model.write_text("[gates.cz]\nduration_ns = 60.0\ncphase = 0.05\navg_infidelity = 1e-3\n" + table)
+    circ = tmp_path / "c.qasm"
+    circ.write_text('OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\nh q[0];\ncz q[0],q[1];\n')
+    out = tmp_path / "out.json"
+    res = _cli("cost", str(circ), "--errors", str(model), "--target", "0.05", "--json", str(out))
+    assert res.exit_code == 2 and message in res.output and str(model) in res.output
+    assert len(res.output.strip().splitlines()) == 1 and "Traceback" not in res.output
+    assert not out.exists()

@@ -12,6 +12,7 @@ from __future__ import annotations
 import itertools
 import json
 import math
+from pathlib import Path
 
 import cirq
 import numpy as np
@@ -20,7 +21,7 @@ import scipy.optimize
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from budget.analysis.tolerances import floor_message, tolerances, tolerances_json
+from budget.analysis.tolerances import NO_EFFECT, floor_message, tolerances, tolerances_json
 from budget.analysis.worstcase import box_maximum, worst_case_max
 from budget.engines.base import QuadraticForm
 from budget.problems import InputError
@@ -201,12 +202,13 @@ def test_common_factor_scales_todays_values(assume):
 def test_ranking_and_statuses():
     a = np.diag([1.0, 4.0, 0.0])
     qf = QuadraticForm((("x", "overrotation"), ("cz", "cphase"), ("cz", "z_phase[0]")), a,
-                       np.array([0.001, 0.02, 0.5]), 0.0, {})
+                       np.array([0.001, -0.02, 0.5]), 0.0, {})
     rep = tolerances(qf, 1e-4)
     assert [r.knob for r in rep.rows] == ["cphase", "overrotation", "z_phase[0]"]
-    assert [r.status for r in rep.rows] == ["tighten", "ok", "no effect"]
+    assert [r.status for r in rep.rows] == ["tighten", "ok", NO_EFFECT]
     # equal shares of 1e-4: A t² = 5e-5 each
     assert rep.rows[0].tolerance_rad == pytest.approx(math.sqrt(5e-5 / 4))
+    assert rep.rows[0].current_rad == -0.02 and rep.rows[0].tighten_by == pytest.approx(0.02 / math.sqrt(5e-5 / 4))
     doc = json.loads(json.dumps(tolerances_json(rep), allow_nan=False))
     assert doc["target"] == 1e-4 and doc["incoherent_floor"] == 0.0
     assert set(doc["tolerances"][0]) >= {"family", "knob", "current_rad", "tolerance_rad", "tighten_by"}
@@ -245,3 +247,109 @@ def test_invalid_options_and_forms():
         tolerances(QuadraticForm(labels, np.diag([1, -1.0]), np.zeros(2), 0.0, {}), 0.01)
     with pytest.raises(ValueError, match="shape"):
         tolerances(QuadraticForm(labels, np.eye(3), np.zeros(2), 0.0, {}), 0.01)
+
+
+# ---- from the engines, checked against cirq's density-matrix simulator ---------------------------
+
+
+@pytest.mark.parametrize("engine", ["clifford", "generators"])
+@pytest.mark.parametrize("n_reps, target", [(10, 1e-2), (1000, 1e-4)])
+def test_issue_check_from_the_engines(engine, n_reps, target):
+    """The issue's check with the engine's own quadratic form: N X gates with one over-rotation,
+    no incoherent error; tolerance vs 2·arcsin(sqrt(E))/N within 5 %."""
+    from budget.analysis.sensitivity import quadratic_form
+    from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
+    from budget.errors.attach import attach
+    from budget.errors.model import ErrorModel
+
+    circuit = StructuredCircuit(("q[0]",), (Repeat((Layer((Operation("x", (0,)),)),), n_reps),))
+    noisy = attach(circuit, ErrorModel.from_dict({"gates": {"x": {"overrotation": 1e-3}}}))
+    qf = quadratic_form(noisy, "process", engine=engine)
+    assert qf.floor == 0
+    tol = tolerances(qf, target).rows[0].tolerance_rad
+    assert tol == pytest.approx(2 * math.asin(math.sqrt(target)) / n_reps, rel=0.05)
+
+
+def _knob_model(values: dict[tuple[str, str], float], r: float) -> dict:
+    gates: dict[str, dict] = {"h": {"duration_ns": 24.0, "avg_infidelity": r}, "sx": {"duration_ns": 24.0, "avg_infidelity": r},
+                              "cz": {"duration_ns": 60.0, "avg_infidelity": 4 * r, "z_phase": [0.0, 0.0]}}
+    for (family, knob), v in values.items():
+        if knob.startswith("z_phase["):
+            gates[family]["z_phase"][int(knob[8])] = v
+        else:
+            gates[family][knob] = v
+    return {"qubits": {"t1_us": 80.0, "t2_us": 60.0}, "gates": gates}
+
+
+@pytest.mark.parametrize("metric", ["process", "state"])
+def test_worst_case_tolerances_meet_the_target_in_cirq(metric):
+    """End to end: a 2-qubit block repeated 6 times with five coherent knobs and incoherent error;
+    the knobs set to the worst corner of their tolerance box give, in cirq's density-matrix
+    simulation (tests/reference.py), an infidelity close to the target (leading-order accuracy),
+    and today's values give the leading-order prediction."""
+    from budget.analysis.sensitivity import quadratic_form
+    from budget.analysis.worstcase import box_maximum
+    from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
+    from budget.errors.attach import attach
+    from budget.errors.model import ErrorModel
+    from tests.reference import cirq_infidelity
+
+    block = (Layer((Operation("h", (0,)), Operation("sx", (1,)))), Layer((Operation("cz", (0, 1)),)),
+             Layer((Operation("sx", (0,)),)))
+    circuit = StructuredCircuit(("q[0]", "q[1]"), (Repeat(block, 6),))
+    today = {("h", "overrotation"): 0.004, ("sx", "overrotation"): -0.003, ("cz", "cphase"): 0.01,
+             ("cz", "z_phase[0]"): 0.002, ("cz", "z_phase[1]"): -0.002}
+    noisy = attach(circuit, ErrorModel.from_dict(_knob_model(today, 1e-4)))
+    qf = quadratic_form(noisy, metric, engine="generators")
+    assert cirq_infidelity(noisy, metric) == pytest.approx(float(qf.values_rad @ qf.matrix @ qf.values_rad) + qf.floor, rel=0.05)
+    target = qf.floor + 2e-3
+    rep = tolerances(qf, target)
+    t = np.array([next(r.tolerance_rad for r in rep.rows if (r.family, r.knob) == label) for label in qf.labels])
+    signs = box_maximum(qf.matrix, np.where(np.isinf(t), 0, t)).signs
+    corner = dict(zip(qf.labels, signs * np.where(np.isinf(t), 0, t)))
+    worst = cirq_infidelity(attach(circuit, ErrorModel.from_dict(_knob_model(corner, 1e-4))), metric)
+    assert worst == pytest.approx(target, rel=0.05)
+
+
+# ---- the command line ----------------------------------------------------------------------------
+
+EXAMPLES = Path(__file__).resolve().parent.parent / "circuits"
+
+
+def _cli(*args: str):
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    return CliRunner().invoke(app, list(args), catch_exceptions=False)
+
+
+def test_cli_tolerances_worked_example(tmp_path):
+    """The worked example of docs/tolerances.md: terminal and JSON carry the same numbers."""
+    out = tmp_path / "t.json"
+    res = _cli("tolerances", str(EXAMPLES / "parity_cycle.qasm"), "--errors", str(EXAMPLES / "fen_q8.toml"),
+               "--target", "0.085", "--cycles", "3", "--json", str(out), "--width", "120")
+    assert res.exit_code == 0, res.output
+    doc = json.loads(out.read_text())
+    assert doc["schema"] == "budget.tolerances/1" and doc["feasible"] and doc["target"] == 0.085
+    top = doc["tolerances"][0]
+    assert (top["family"], top["knob"], top["status"]) == ("cz", "cphase", "tighten")
+    assert f"{top['tighten_by']:.3g}x" in res.output and "tighten" in res.output
+    assert abs(sum(k["share"] for k in doc["sensitivity"]["knobs"]) - doc["sensitivity"]["coherent"]) < 1e-12
+    assert "calibration round" in res.output
+
+
+@pytest.mark.parametrize("extra, message", [
+    (("--target", "0"), "target = 0.0"),
+    (("--target", "1.5"), "target = 1.5"),
+    (("--target", "0.1", "--engine", "exact"), "quadratic forms come from"),
+    (("--target", "0.1", "--by-pair", "--by-operation"), "choose one grouping"),
+])
+def test_cli_tolerances_bad_input(tmp_path, extra, message):
+    out = tmp_path / "t.json"
+    res = _cli("tolerances", str(EXAMPLES / "parity_cycle.qasm"), "--errors", str(EXAMPLES / "fen_q8.toml"),
+               "--json", str(out), *extra)
+    assert res.exit_code == 2
+    assert message in res.output and "Traceback" not in res.output
+    assert len(res.output.strip().splitlines()) == 1
+    assert not out.exists()

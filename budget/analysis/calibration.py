@@ -26,7 +26,7 @@ from typing import Any, Mapping
 
 from budget.analysis.phase_estimation import Probe, final_depth
 from budget.analysis.sensitivity import knob_key
-from budget.analysis.tolerances import ToleranceReport
+from budget.analysis.tolerances import NO_EFFECT, ToleranceReport
 from budget.problems import ModelError
 
 HOURS_PER_DAY = 24.0
@@ -210,13 +210,13 @@ def calibration_plan(
         if row.status != "tighten" and drift is None:
             continue
         if not 0 < row.tolerance_rad < math.inf:
-            unplanned[key] = "no leading-order effect" if row.status == "no effect" else "its tolerance is zero"
+            unplanned[key] = "no leading-order effect" if row.status == NO_EFFECT else "its tolerance is zero"
             continue
         sigma = row.tolerance_rad / k
         sites = [_site(p, sigma, settings) for p in probes.get((row.family, row.knob), ())]
-        if not sites or None in sites:
-            unplanned[key] = ("repeating the gate does not amplify this knob; it needs an interleaved sequence"
-                              if sites else "no operation of the circuit carries it")
+        why = next((s for s in sites if isinstance(s, str)), None if sites else "no operation of the circuit carries it")
+        if why is not None:
+            unplanned[key] = why
             continue
         times = [s.device_s for s in sites]
         plans.append(KnobPlan(
@@ -237,9 +237,12 @@ def calibration_plan(
     )
 
 
-def _site(probe: Probe, sigma: float, settings: CalibrationSettings) -> SiteRun | None:
+def _site(probe: Probe, sigma: float, settings: CalibrationSettings) -> SiteRun | str:
+    """The experiment at one site, or why there is none."""
     if probe.phase_per_rad <= 0:
-        return None
+        return "repeating the gate does not amplify this knob; it needs an interleaved sequence"
+    if not math.isfinite(probe.gamma_per_rep):
+        return f"on {','.join(probe.qubits)} the gate's incoherent error erases the signal in one repetition"
     n, final = final_depth(sigma, probe.gamma_per_rep, probe.phase_per_rad, max_depth=settings.max_depth,
                            min_shots=2 * settings.ladder_shots)
     ladder = tuple(2**j for j in range(max(0, math.ceil(math.log2(n))))) if n > 1 else ()

@@ -28,6 +28,36 @@ import numpy as np
 from budget.engines.base import QuadraticForm
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
 
+FORM_ENGINES = ("clifford", "generators")
+"""Engines that build the quadratic form, in the order ``"auto"`` tries them (clifford first: any
+size when every gate is Clifford)."""
+
+
+def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto") -> QuadraticForm:
+    """The quadratic form e ≈ δᵀAδ + s of a noisy circuit, from the first engine that fits.
+
+    Raises:
+        TooLargeError: no engine that builds quadratic forms fits (the message gives each reason).
+        InputError: ``engine`` is not one of ``"auto"`` and :data:`FORM_ENGINES`.
+    """
+    from budget.engines import get_engine
+    from budget.problems import InputError, TooLargeError
+
+    if engine != "auto" and engine not in FORM_ENGINES:
+        raise InputError(f"engine = {engine!r}: quadratic forms come from {', '.join(FORM_ENGINES)} (or auto)")
+    reasons = []
+    for name in FORM_ENGINES if engine == "auto" else (engine,):
+        try:
+            candidate = get_engine(name)
+        except ImportError:  # an engine module missing from this installation
+            continue
+        reason = candidate.fits(circuit, metric)
+        if reason is None:
+            return candidate.quadratic_form(circuit, metric)
+        reasons.append(f"{name}: {reason}")
+    raise TooLargeError(f"{circuit.source}: no engine can build the quadratic form ({'; '.join(reasons) or 'none installed'})")
+
+
 def knob_key(label: tuple[str, str]) -> str:
     """The user-facing name of a (family, knob) label: ``"cz.cphase"``."""
     return f"{label[0]}.{label[1]}"

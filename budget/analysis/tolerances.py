@@ -38,15 +38,18 @@ Allocation = Literal["equal", "common-factor"]
 ASSUMPTIONS: tuple[str, ...] = ("worst", "random")
 ALLOCATIONS: tuple[str, ...] = ("equal", "common-factor")
 SCHEMA = "budget.tolerances/1"
+NO_EFFECT = "no 1st-order effect"
+"""Status of a knob with A_ff = 0: its error cancels (or does not reach the metric) at leading order."""
 
 
 @dataclass(frozen=True)
 class KnobTolerance:
-    """One ranked row: a knob's current value, its tolerance and how much it must tighten.
+    """One ranked row: a knob's current value (signed), its tolerance and how much it must tighten.
 
-    ``tolerance_rad`` is ``inf`` for a knob with no leading-order effect; ``tighten_by`` =
-    |current| / tolerance (0 when the knob is at zero, ``inf`` when the tolerance is 0).
-    ``status``: ``"tighten"``, ``"ok"``, ``"no effect"`` or ``"floor too high"``.
+    ``tolerance_rad`` is ``inf`` for a knob with no leading-order effect (A_ff = 0; its error
+    still matters at higher order); ``tighten_by`` = |current| / tolerance (0 when the knob is at
+    zero, ``inf`` when the tolerance is 0).
+    ``status``: ``"tighten"``, ``"ok"``, :data:`NO_EFFECT` or ``"floor too high"``.
     """
 
     family: str
@@ -169,15 +172,18 @@ def tolerances(
         spread = coherent(unit)
         tol = np.where(active, unit * math.sqrt(budget / spread), math.inf) if spread > 0 else np.full(len(now), math.inf)
 
-    rows = [_row(label, now[i], tol[i], feasible=budget > 0) for i, label in enumerate(qf.labels)]
-    rows.sort(key=lambda r: (-r.tighten_by, -r.current_rad, r.family, r.knob))
+    rows = [_row(label, values[i], tol[i], feasible=budget > 0) for i, label in enumerate(qf.labels)]
+    rows.sort(key=lambda r: (-r.tighten_by, -abs(r.current_rad), r.family, r.knob))
     if not exact:
         warnings.append(
             f"more than {exact_up_to} interfering knobs: the worst case uses the bound Σ|A_fg| t_f t_g, "
             "so the tolerances are safe but may be tighter than necessary"
         )
-    if target > 0.1:
-        warnings.append(f"target {target:g} is large: the leading-order formula loses accuracy above about 0.1")
+    if max(floor, budget) > 0.1:
+        warnings.append(
+            "above an infidelity of about 0.1 the quadratic form and the linear floor lose accuracy; "
+            "check the result with `budget analyze`"
+        )
     return ToleranceReport(
         target=target, metric=metric, assume=assume, allocation=allocation, incoherent_floor=floor,
         floor_sources=dict(qf.floor_sources), coherent_budget=budget, feasible=budget > 0, rows=tuple(rows),
@@ -188,12 +194,12 @@ def tolerances(
     )
 
 
-def _row(label: tuple[str, str], now: float, tol: float, *, feasible: bool) -> KnobTolerance:
+def _row(label: tuple[str, str], value: float, tol: float, *, feasible: bool) -> KnobTolerance:
     if math.isinf(tol):
-        return KnobTolerance(label[0], label[1], float(now), math.inf, 0.0, "no effect")
-    tighten = now / tol if tol > 0 else (0.0 if now == 0 else math.inf)
+        return KnobTolerance(label[0], label[1], float(value), math.inf, 0.0, NO_EFFECT)
+    tighten = abs(value) / tol if tol > 0 else (0.0 if value == 0 else math.inf)
     status = "floor too high" if not feasible else "tighten" if tighten > 1 + 1e-12 else "ok"
-    return KnobTolerance(label[0], label[1], float(now), float(tol), float(tighten), status)
+    return KnobTolerance(label[0], label[1], float(value), float(tol), float(tighten), status)
 
 
 def floor_message(report: ToleranceReport) -> str | None:

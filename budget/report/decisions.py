@@ -1,0 +1,144 @@
+"""Terminal views of the decisions: sensitivity, tolerances, calibration device time (rich).
+
+Each function takes the plain result of :mod:`budget.analysis.sensitivity`,
+:mod:`budget.analysis.tolerances` or :mod:`budget.analysis.calibration` and returns one rich
+renderable; the numbers are the same as in the JSON forms of those modules.
+"""
+
+from __future__ import annotations
+
+import math
+
+from rich.console import Group
+from rich.panel import Panel
+from rich.table import Table
+from rich.text import Text
+
+from budget.analysis.calibration import CalibrationPlan
+from budget.analysis.sensitivity import Sensitivity
+from budget.analysis.tolerances import NO_EFFECT, ToleranceReport, floor_message
+from budget.report.terminal import fmt
+
+_STATUS = {"tighten": "bold red", "ok": "green", NO_EFFECT: "dim", "floor too high": "bold red"}
+
+
+def _rad(x: float) -> str:
+    return "unbounded" if math.isinf(x) else fmt(x)
+
+
+def _times(x: float) -> str:
+    return "—" if math.isinf(x) or x == 0 else f"{x:.3g}x"
+
+
+def _duration(seconds: float) -> str:
+    if seconds < 120:
+        return f"{seconds:.3g} s"
+    if seconds < 7200:
+        return f"{seconds / 60:.3g} min"
+    return f"{seconds / 3600:.3g} h"
+
+
+def sensitivity_view(s: Sensitivity, *, top: int = 15) -> Group:
+    """Per-knob sensitivity (infidelity per rad²) and share, interfering pairs, the floor."""
+    t = Table(title="sensitivity: e ≈ δᵀAδ + s", title_justify="left")
+    for name, right in (("family", False), ("knob", False), ("today (rad)", True), ("A_ff (per rad²)", True),
+                        ("share", True), ("of coherent", True)):
+        t.add_column(name, justify="right" if right else "left")
+    for k in s.knobs[:top]:
+        frac = f"{100 * k.share / s.coherent:.1f} %" if s.coherent > 0 else "—"
+        t.add_row(k.family, k.knob, fmt(k.current_rad), fmt(k.per_rad2), fmt(k.share), frac)
+    parts: list = [t]
+    if len(s.knobs) > top:
+        parts.append(Text(f"… {len(s.knobs) - top} more knobs in the JSON output", style="dim"))
+    if s.pairs:
+        p = Table(title="interference between knobs", title_justify="left")
+        for name, right in (("knobs", False), ("overlap", True), ("cross term today", True), ("", False)):
+            p.add_column(name, justify="right" if right else "left")
+        for pair in s.pairs:
+            style = "red" if pair.effect == "add up" else "green" if pair.effect == "cancel" else "dim"
+            p.add_row(f"{pair.first} × {pair.second}", f"{pair.overlap:+.3f}", fmt(pair.cross_term),
+                      Text(pair.effect, style=style))
+        parts.append(p)
+    sources = ", ".join(f"{n} {fmt(v)}" for n, v in sorted(s.floor_sources.items(), key=lambda kv: -kv[1])[:4] if v > 0)
+    parts.append(Text.assemble(
+        ("coherent δᵀAδ ", "bold"), fmt(s.coherent), ("   incoherent floor s ", "bold"), fmt(s.floor),
+        (f"  ({sources})" if sources else "", "dim"), ("   leading-order total ", "bold"), fmt(s.total),
+    ))
+    return Group(*parts)
+
+
+def tolerance_view(report: ToleranceReport) -> Group:
+    """The ranked tolerance table with the target, the floor and the common factor."""
+    how = ("worst signs, every knob at the edge of its tolerance" if report.assume == "worst"
+           else "random signs, tolerances as r.m.s. values")
+    split = "equal shares of the coherent budget" if report.allocation == "equal" else "today's values scaled by one factor"
+    head = Table.grid(padding=(0, 2))
+    head.add_column(style="bold")
+    head.add_column(justify="right")
+    head.add_column(style="dim")
+    head.add_row("target", fmt(report.target), f"{report.metric} infidelity")
+    head.add_row("incoherent floor", fmt(report.incoherent_floor), "not reachable by calibration")
+    head.add_row("coherent budget", fmt(report.coherent_budget), f"{how}; {split}")
+    head.add_row("prediction today", fmt(report.current_signed), f"leading order; {fmt(report.current_assumed)} under this assumption")
+    parts: list = [head, Text("")]
+    message = floor_message(report)
+    if message:
+        parts.append(Panel(Text(message, style="bold"), border_style="red", title="floor above target", title_align="left"))
+    elif report.common_factor > 1:
+        parts.append(Text(f"scaling every knob together: calibration must get {report.common_factor:.3g}x better", style="bold"))
+    else:
+        margin = "any amount" if report.common_factor == 0 else f"{1 / report.common_factor:.3g}x"
+        line = Text(f"scaling every knob together: today's values meet the target; they could all grow by {margin}",
+                    style="bold green")
+        if any(r.status == "tighten" for r in report.rows):
+            line.append("; the equal shares below ask more of the knobs that take more than their share", style="green")
+        parts.append(line)
+    t = Table(title="tolerances, most urgent first", title_justify="left")
+    for name, right in (("family", False), ("knob", False), ("today (rad)", True), ("tolerance (rad)", True),
+                        ("tighten by", True), ("status", False)):
+        t.add_column(name, justify="right" if right else "left")
+    for r in report.rows:
+        t.add_row(r.family, r.knob, fmt(r.current_rad), _rad(r.tolerance_rad), _times(r.tighten_by),
+                  Text(r.status, style=_STATUS.get(r.status, "")))
+    parts.append(t)
+    parts += [Text(f"! {w}", style="yellow") for w in report.warnings]
+    return Group(*parts)
+
+
+def calibration_view(plan: CalibrationPlan) -> Group:
+    """Per-knob phase-estimation experiments and the totals line."""
+    t = Table(title="calibration experiments (amplified phase estimation)", title_justify="left")
+    for name, right in (("knob", False), ("why", False), ("σ needed (rad)", True), ("sites", True), ("Γ per rep", True),
+                        ("depth", True), ("shots", True), ("circuits", True), ("device time", True), ("holds for", True)):
+        t.add_column(name, justify="right" if right else "left")
+    for p in plan.knobs:
+        worst = max(p.sites, key=lambda s: s.gamma_per_rep)
+        hold = "—" if p.hold_hours is None else f"{p.hold_hours:.3g} h"
+        t.add_row(f"{p.family}.{p.knob}", p.reason, fmt(p.sigma_rad), str(len(p.sites)), fmt(worst.gamma_per_rep),
+                  f"{worst.depth:,}", f"{sum(s.shots_total for s in p.sites):,}", f"{sum(s.circuits for s in p.sites):,}",
+                  _duration(p.device_s), hold)
+    parts: list = [t] if plan.knobs else [Text("no knob needs a calibration experiment for this target", style="green")]
+    parts += [Text(f"not planned: {k}: {why}", style="yellow") for k, why in plan.unplanned.items()]
+    parts.append(totals_line(plan))
+    s = plan.settings
+    parts.append(Text(
+        f"assumed: {s.shot_overhead_us:g} µs reset+readout per shot, σ = tolerance/{s.sigma_factor:g}, "
+        f"{s.ladder_shots} shots per ladder circuit, sites {'in parallel' if s.parallel_sites else 'one after another'} "
+        f"(set in the model's [calibration] table)", style="dim"))
+    return Group(*parts)
+
+
+def totals_line(plan: CalibrationPlan) -> Text:
+    """One line a group lead can quote."""
+    if not plan.knobs:
+        return Text("calibration: nothing to do", style="bold")
+    line = Text.assemble(("calibration round: ", "bold"), f"{plan.round_s / 60:.3g} device minutes")
+    if plan.rounds_per_day is None:
+        line.append("; no drift rates given, so no schedule (add [calibration.drift_rad_per_hour])", style="dim")
+        return line
+    line.append(f"; drift sets {plan.rounds_per_day:.3g} rounds per day (every {plan.interval_hours:.3g} h)")
+    share = plan.day_share or 0.0
+    line.append(f"; {100 * share:.3g} % of the day", style="bold red" if share >= 1 else "bold")
+    if share >= 1:
+        line.append(" — calibration cannot keep up with the drift", style="bold red")
+    return line
