@@ -234,6 +234,98 @@ def report(
     console.print(f"[bold]report written:[/] {', '.join(str(p) for p in written)}", highlight=False)
 
 
+class AssumeChoice(str, Enum):
+    worst = "worst"
+    random = "random"
+
+
+class AllocationChoice(str, Enum):
+    equal = "equal"
+    common_factor = "common-factor"
+
+
+TargetOpt = typer.Option(..., "--target", "-t", help="Infidelity E the circuit must stay below (0 < E < 1).")
+AssumeOpt = typer.Option(AssumeChoice.worst, "--assume", help="worst: every knob at the edge of its tolerance with "
+                         "the worst signs; random: random signs, tolerances as r.m.s. values.")
+AllocationOpt = typer.Option(AllocationChoice.equal, "--allocation", help="equal: each knob an equal share of the "
+                             "coherent budget; common-factor: today's values scaled down together.")
+ByOperationOpt = typer.Option(False, "--by-operation", help="One family per operation as written (line numbers).")
+
+
+@app.command()
+@user_errors
+def tolerances(
+    circuit: Path = CircuitArg,
+    errors: Path = ErrorsOpt,
+    target: float = TargetOpt,
+    cycles: int = CyclesOpt,
+    metric: MetricChoice = MetricOpt,
+    assume: AssumeChoice = AssumeOpt,
+    allocation: AllocationChoice = AllocationOpt,
+    engine: EngineChoice = EngineOpt,
+    by_pair: bool = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate."),
+    by_operation: bool = ByOperationOpt,
+    json_path: Optional[Path] = typer.Option(None, "--json", help="Write tolerances, sensitivity and calibration "
+                                             "plan as JSON (docs/tolerances.md)."),
+    width: Optional[int] = typer.Option(None, "--width", help="Report width in characters (default: terminal)."),
+) -> None:
+    """Largest tolerance per calibration knob for a target infidelity, ranked by how much each must tighten."""
+    from budget.report.decisions import sensitivity_view, tolerance_view, totals_line
+
+    d = _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair, by_operation)
+    console = make_console(width=width)
+    for view in (sensitivity_view(d.sensitivity), tolerance_view(d.tolerances), totals_line(d.plan)):
+        console.print(view)
+    _write_decisions(json_path, d)
+
+
+@app.command()
+@user_errors
+def cost(
+    circuit: Path = CircuitArg,
+    errors: Path = ErrorsOpt,
+    target: float = TargetOpt,
+    cycles: int = CyclesOpt,
+    metric: MetricChoice = MetricOpt,
+    assume: AssumeChoice = AssumeOpt,
+    allocation: AllocationChoice = AllocationOpt,
+    engine: EngineChoice = EngineOpt,
+    by_pair: bool = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate."),
+    by_operation: bool = ByOperationOpt,
+    json_path: Optional[Path] = typer.Option(None, "--json", help="Write tolerances, sensitivity and calibration "
+                                             "plan as JSON (docs/tolerances.md)."),
+    width: Optional[int] = typer.Option(None, "--width", help="Report width in characters (default: terminal)."),
+) -> None:
+    """Device time to measure the knobs that must tighten (amplified phase estimation) and, with drift, how often."""
+    from budget.report.decisions import calibration_view, tolerance_view
+
+    d = _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair, by_operation)
+    console = make_console(width=width)
+    for view in (tolerance_view(d.tolerances), calibration_view(d.plan)):
+        console.print(view)
+    _write_decisions(json_path, d)
+
+
+def _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair, by_operation):
+    """Shared body of `tolerances` and `cost`: check the options, then compute."""
+    from budget.analysis.decide import decide
+
+    check_output_path(json_path, "--json")
+    if by_pair and by_operation:
+        raise InputError("--by-pair and --by-operation: choose one grouping")
+    return decide(str(circuit), str(errors), target=target, cycles=cycles, metric=metric.value, assume=assume.value,
+                  allocation=allocation.value, engine=engine.value,
+                  family_by="operation" if by_operation else "pair" if by_pair else "gate")
+
+
+def _write_decisions(json_path: Optional[Path], d) -> None:
+    if json_path is not None:
+        from budget.analysis.decide import decisions_json
+        from budget.report.json_out import write_json
+
+        write_json(json_path, decisions_json(d))
+
+
 @app.command()
 @user_errors
 def demo(
