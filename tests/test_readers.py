@@ -191,9 +191,17 @@ qreg q[2];
 pair(0.3) q[1], q[0];
 """
     ops = _ops(parse_qasm(text))
-    assert [(op.gate, op.qubits) for op in ops] == [("rx", (1,)), ("rz", (1,)), ("cx", (1, 0)), ("rx", (0,)), ("rz", (0,))]
+    expected = [("rx", (1,)), ("rz", (1,)), ("cx", (1, 0)), ("rx", (0,)), ("rz", (0,))]
+    assert [(op.gate, op.qubits) for op in ops] == expected
     np.testing.assert_allclose([p for op in ops for p in op.params], [0.3, 0.3, -0.3, 2 * np.pi], atol=1e-12)
     assert {op.line for op in ops} == {6}
+
+
+def test_barrier_inside_gate_definition_closes_layer():
+    text = 'OPENQASM 2.0; include "qelib1.inc"; gate g a, b { x a; barrier a, b; x b; } qreg q[2]; g q[0], q[1];'
+    assert [[op.qubits for op in layer.operations] for layer in parse_qasm(text).body] == [[(0,)], [(1,)]]
+    plain = 'OPENQASM 2.0; include "qelib1.inc"; gate g a, b { x a; x b; } qreg q[2]; g q[0], q[1];'
+    assert [[op.qubits for op in layer.operations] for layer in parse_qasm(plain).body] == [[(0,), (1,)]]
 
 
 def test_broadcast_over_registers():
@@ -329,7 +337,11 @@ BAD = [
     ("OPENQASM 2.0;\nqreg q[1];\ncreg c[1];\nmeasure q[0] -> c[0];\nif (c==1) x q[0];\n", 5, ["if", "classically"]),
     ("OPENQASM 2.0;\nqreg q[1];\nfoo q[0];\n", 3, ["unknown gate", "'foo'"]),
     ("OPENQASM 2.0;\nqreg q[1];\nopaque magic a;\nmagic q[0];\n", 3, ["opaque"]),
-    ("OPENQASM 2.0;\nqreg q[1];\ncreg c[1];\nmeasure q[0] -> c[0];\nh q[0];\n", 5, ["h", "q[0]", "measurement", "line 4"]),
+    (
+        "OPENQASM 2.0;\nqreg q[1];\ncreg c[1];\nmeasure q[0] -> c[0];\nh q[0];\n",
+        5,
+        ["h", "q[0]", "measurement", "line 4", "mid-circuit"],
+    ),
     ("OPENQASM 2.0;\nqreg q[2];\nh q[0]\nh q[1];\n", 3, ["syntax error", "';'"]),
     ("OPENQASM 2.0;\nqreg q[2];\nqreg r[3];\ncx q, r;\n", 4, ["cx", "sizes"]),
     ("OPENQASM 2.0;\nqreg q[2];\nrx(0.1, 0.2) q[0];\n", 3, ["rx", "1 angle", "got 2"]),
@@ -351,6 +363,7 @@ BAD = [
     ("OPENQASM 3;\nqubit[4] q;\nh q[::2];\n", 3, ["range '::2'", "start:step:end"]),
     ("OPENQASM 2.0;\ngate g a { g a; }\nqreg q[1];\ng q[0];\n", 2, ["itself"]),
     ("OPENQASM 2.0;\nqreg q[1];\ngate g a { x a; }\ngate g a { y a; }\n", 4, ["defined twice"]),
+    ("OPENQASM 2.0;\nqreg q[2];\ngate g a {\n  barrier a[0];\n}\ng q[0];\n", 4, ["inside gate 'g'", "operands"]),
 ]
 
 

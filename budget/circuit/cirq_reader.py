@@ -150,7 +150,9 @@ class _Converter:
 
     def subcircuit(self, op: cirq.CircuitOperation, where: str, *, repeated: bool) -> list[Statement]:
         if op.repeat_until is not None:
-            raise self.error(where, f"CircuitOperation with repeat_until (a measurement-dependent loop) is not supported")
+            raise self.error(
+                where, "CircuitOperation with repeat_until (a measurement-dependent loop): not supported"
+            )
         reps = op.repetitions
         if not isinstance(reps, (int, np.integer)):
             raise self.error(where, f"CircuitOperation repetitions = {reps!r}: expected an integer")
@@ -164,7 +166,9 @@ class _Converter:
     def operation(self, op: cirq.Operation, where: str, *, repeated: bool) -> list[Operation]:
         if cirq.is_measurement(op):
             if repeated:
-                raise self.error(where, f"measurement {op} inside a repeated CircuitOperation is a mid-circuit measurement, which is not supported")
+                raise self.error(
+                    where, f"measurement {op} in a repeated CircuitOperation: mid-circuit measurement is not supported"
+                )
             for q in op.qubits:
                 self.measured.setdefault(self.index[q], where)
             return []
@@ -175,13 +179,19 @@ class _Converter:
         if not op.qubits:
             return []  # global phase: no observable effect
         if not cirq.has_unitary(op):
-            raise self.error(where, f"operation {op} is not unitary (reset, noise channel or similar); "
-                             "errors belong in the error model, not in the circuit")
+            raise self.error(
+                where,
+                f"operation {op} is not unitary (reset, noise channel or similar); "
+                "errors belong in the error model, not in the circuit",
+            )
         qs = tuple(self.index[q] for q in op.qubits)
         for q in qs:
             if q in self.measured:
-                raise self.error(where, f"operation {op} on {op.qubits[qs.index(q)]} after its measurement in "
-                                 f"{self.measured[q]}: mid-circuit measurement is not supported")
+                raise self.error(
+                    where,
+                    f"operation {op} on {op.qubits[qs.index(q)]} after its measurement in {self.measured[q]}: "
+                    "mid-circuit measurement is not supported",
+                )
         if len(qs) > 2:
             return self.large(op, qs, where, repeated=repeated)
         found = table_gate(op.gate)

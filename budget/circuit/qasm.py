@@ -13,16 +13,15 @@ from __future__ import annotations
 import dataclasses
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Iterator
-
 from openqasm3 import ast
 
 from budget.circuit.decompose import DECOMPOSITIONS, expand
 from budget.circuit.gates import ALIASES, GATES
 from budget.circuit.ir import Operation, StructuredCircuit
 from budget.circuit.program import Barrier, Loop, Statement
-from budget.circuit.qasm_expr import Number, evaluate, evaluate_int, line_of
+from budget.circuit.qasm_expr import Number, evaluate, line_of
 from budget.circuit.qasm_parse import parse_tree, qasm_version
+from budget.circuit.qasm_registers import Registers
 from budget.circuit.source import read_text
 from budget.graph import layer_program
 from budget.problems import CircuitSyntaxError, place
@@ -31,7 +30,7 @@ STANDARD_INCLUDES = ("qelib1.inc", "stdgates.inc")
 _BUILTIN_NAMES = {"U": "u", "CX": "cx"}
 _UNSUPPORTED = {
     "QuantumReset": "reset (mid-circuit reset is not supported)",
-    "BranchingStatement": "classically controlled operation 'if' (not supported: the tool follows one fixed gate sequence)",
+    "BranchingStatement": "classically controlled operation 'if' (the tool follows one fixed gate sequence)",
     "WhileLoop": "'while' loop (its iteration count is not known before running; use a for loop over an integer range)",
     "DelayInstruction": "delay (idle time is not modelled as an instruction; layers set the timing)",
     "Box": "box",
@@ -84,7 +83,7 @@ def parse_qasm(text: str, *, source: str = "<string>") -> StructuredCircuit:
         raise CircuitSyntaxError(f"{source}: OPENQASM {version}: only versions 2 and 3 are supported")
     reader = _Reader(source, text.splitlines())
     program = reader.statements(parse_tree(text, source=source, version=version).statements, in_loop=False)
-    return layer_program(program, qubits=reader.qubits, measured=reader.measured, source=source)
+    return layer_program(program, qubits=reader.regs.names, measured=reader.measured, source=source)
 
 
 class _Reader:
@@ -92,11 +91,9 @@ class _Reader:
 
     def __init__(self, source: str, lines: list[str]) -> None:
         self.source = source
-        self.lines = lines
-        self.qubits: list[str] = []
-        self.registers: dict[str, tuple[list[int], bool]] = {}  # name -> (indices, is_register)
         self.gates: dict[str, _GateDef] = {}
         self.consts: dict[str, Number] = {}
+        self.regs = Registers(source, lines, self.consts)
         self.measured: dict[int, int | None] = {}
 
     # -- helpers -------------------------------------------------------------------------------
@@ -107,16 +104,6 @@ class _Reader:
     def value(self, expr: ast.Expression, env: dict[str, Number]) -> Number:
         return evaluate(expr, env, source=self.source)
 
-    def integer(self, expr: ast.Expression, what: str) -> int:
-        return evaluate_int(expr, self.consts, source=self.source, what=what)
-
-    def check_range(self, r: ast.RangeDefinition) -> None:
-        """The reference parser reads ``[::2]`` like ``[:2]``: refuse a range with ``::`` in it."""
-        span = r.span
-        if span is not None and span.start_line == span.end_line and 0 < span.start_line <= len(self.lines):
-            raw = self.lines[span.start_line - 1][span.start_column : span.end_column + 1]
-            if "::" in raw:
-                raise self.error(r, f"range '{raw}' omits a part next to its step: write start:step:end in full")
 
     # -- statements ----------------------------------------------------------------------------
     def statements(self, stmts: list[ast.Statement], *, in_loop: bool) -> list[Statement]:
@@ -133,8 +120,8 @@ class _Reader:
         elif isinstance(st, ast.QubitDeclaration):
             if in_loop:
                 raise self.error(st, "qubit declaration inside a loop is not supported")
-            size = None if st.size is None else self.integer(st.size, f"size of register {st.qubit.name}")
-            self.declare(st.qubit.name, size, st)
+            size = None if st.size is None else self.regs.integer(st.size, f"size of register {st.qubit.name}")
+            self.regs.declare(st.qubit.name, size, st)
         elif isinstance(st, (ast.ClassicalDeclaration, ast.ConstantDeclaration)):
             self.classical(st, out, in_loop)
         elif isinstance(st, ast.QuantumGateDefinition):
@@ -146,7 +133,7 @@ class _Reader:
                 raise self.error(st, "gate modifiers on gphase are not supported")
             # global phase: no observable effect, ignored
         elif isinstance(st, ast.QuantumBarrier):
-            qs = [q for operand in st.qubits for q in self.operand(operand)[0]] if st.qubits else []
+            qs = [q for operand in st.qubits for q in self.regs.operand(operand)[0]] if st.qubits else []
             out.append(Barrier(tuple(qs), line_of(st)))
         elif isinstance(st, ast.QuantumMeasurementStatement):
             self.measure(st.measure, st, in_loop)
@@ -155,19 +142,6 @@ class _Reader:
         else:
             construct = _UNSUPPORTED.get(kind, kind)
             raise self.error(st, f"{construct} is not supported by the circuit reader")
-
-    def declare(self, name: str, size: int | None, node: ast.QASMNode) -> None:
-        if name in self.registers:
-            raise self.error(node, f"qubit register '{name}' is declared twice")
-        if size is not None and size < 1:
-            raise self.error(node, f"qubit register '{name}' has size {size}: expected at least 1")
-        start = len(self.qubits)
-        if size is None:
-            self.qubits.append(name)
-            self.registers[name] = ([start], False)
-        else:
-            self.qubits.extend(f"{name}[{i}]" for i in range(size))
-            self.registers[name] = (list(range(start, start + size)), True)
 
     def classical(self, st: ast.ClassicalDeclaration | ast.ConstantDeclaration, out, in_loop: bool) -> None:
         init = st.init_expression
@@ -187,57 +161,8 @@ class _Reader:
     def measure(self, meas: ast.QuantumMeasurement, st: ast.QASMNode, in_loop: bool) -> None:
         if in_loop:
             raise self.error(st, "measure inside a for loop is a mid-circuit measurement, which is not supported")
-        for q in self.operand(meas.qubit)[0]:
+        for q in self.regs.operand(meas.qubit)[0]:
             self.measured.setdefault(q, line_of(st))
-
-    # -- operands ------------------------------------------------------------------------------
-    def operand(self, node: ast.Identifier | ast.IndexedIdentifier) -> tuple[list[int], bool]:
-        """Qubit indices an operand names, and whether it names a register (broadcast) or one qubit."""
-        ident = node if isinstance(node, ast.Identifier) else node.name
-        name = ident.name
-        if name not in self.registers:
-            if name.startswith("$") and name[1:].isdigit() and isinstance(node, ast.Identifier):
-                self.declare(name, None, node)  # physical qubit, declared on first use
-            else:
-                raise self.error(node, f"unknown qubit or register '{name}'")
-        indices, is_register = self.registers[name]
-        if isinstance(node, ast.Identifier):
-            return list(indices), is_register
-        if len(node.indices) != 1 or not is_register:
-            raise self.error(node, f"'{name}' indexed as {'a multi-dimensional array' if is_register else 'a register'}")
-        (index,) = node.indices
-        if isinstance(index, ast.DiscreteSet):
-            picks = [self.integer(v, f"index of {name}") for v in index.values]
-            many = True
-        elif len(index) == 1 and isinstance(index[0], ast.RangeDefinition):
-            r = index[0]
-            self.check_range(r)
-            start = 0 if r.start is None else self.integer(r.start, f"range start of {name}")
-            end = len(indices) - 1 if r.end is None else self.integer(r.end, f"range end of {name}")
-            step = 1 if r.step is None else self.integer(r.step, f"range step of {name}")
-            if step == 0:
-                raise self.error(node, f"range step of {name} is 0")
-            picks = list(range(start, end + (1 if step > 0 else -1), step))
-            many = True
-        elif len(index) == 1:
-            picks, many = [self.integer(index[0], f"index of {name}")], False
-        else:
-            raise self.error(node, f"'{name}' indexed with {len(index)} indices: registers are one-dimensional")
-        for i in picks:
-            if not 0 <= i < len(indices):
-                raise self.error(node, f"index {i} is out of range for register {name}[{len(indices)}]")
-        return [indices[i] for i in picks], many
-
-    def broadcast(self, st: ast.QuantumGate) -> Iterator[tuple[int, ...]]:
-        """OpenQASM broadcasting: registers of equal size run in parallel, single qubits repeat."""
-        operands = [self.operand(q) for q in st.qubits]
-        sizes = {len(idx) for idx, many in operands if many}
-        if len(sizes) > 1:
-            described = ", ".join(f"{len(idx)}" for idx, many in operands if many)
-            raise self.error(st, f"gate {st.name.name}: registers of different sizes ({described}) cannot be broadcast")
-        n = sizes.pop() if sizes else 1
-        for k in range(n):
-            yield tuple(idx[k] if many else idx[0] for idx, many in operands)
 
     # -- gates ---------------------------------------------------------------------------------
     def call(self, st: ast.QuantumGate, out: list[Statement]) -> None:
@@ -247,12 +172,12 @@ class _Reader:
         if st.duration is not None:
             raise self.error(st, f"a duration on gate {st.name.name} is not supported")
         params = tuple(float(self.value(a, self.consts)) for a in st.arguments)
-        for qubits in self.broadcast(st):
+        for qubits in self.regs.broadcast(st):
             self.apply(st.name.name, params, qubits, line_of(st), out, ())
 
     def apply(self, name: str, params: tuple[float, ...], qubits: tuple[int, ...], line, out, stack) -> None:
         if len(set(qubits)) != len(qubits):
-            names = ", ".join(self.qubits[q] for q in qubits)
+            names = ", ".join(self.regs.names[q] for q in qubits)
             raise self.error(line, f"gate {name} on {names}: a qubit appears twice")
         if name in self.gates:
             self.inline(name, params, qubits, line, out, stack)
@@ -287,7 +212,7 @@ class _Reader:
             q = done[0]
             raise self.error(
                 op.line,
-                f"gate {op.gate} on {self.qubits[q]} after its measurement at line {self.measured[q]}: "
+                f"gate {op.gate} on {self.regs.names[q]} after its measurement at line {self.measured[q]}: "
                 "mid-circuit measurement is not supported (measure only at the end)",
             )
         out.append(op)
@@ -305,19 +230,23 @@ class _Reader:
                     raise self.error(st, "gate modifiers on gphase are not supported")
                 continue
             if isinstance(st, ast.QuantumBarrier):
-                out.append(Barrier(tuple(local[q.name] for q in st.qubits if q.name in local), line))
+                out.append(Barrier(tuple(self.local_qubits(name, st, local)), line))
                 continue
             if not isinstance(st, ast.QuantumGate):
                 raise self.error(st, f"{type(st).__name__} inside gate '{name}' is not supported")
             if st.modifiers:
                 raise self.error(st, f"gate modifier on {st.name.name} inside gate '{name}' is not supported")
-            inner = []
-            for q in st.qubits:
-                if not isinstance(q, ast.Identifier) or q.name not in local:
-                    raise self.error(st, f"gate '{name}': operand of {st.name.name} must be one of its qubit arguments")
-                inner.append(local[q.name])
             angles = tuple(float(self.value(a, env)) for a in st.arguments)
-            self.apply(st.name.name, angles, tuple(inner), line, out, stack + (name,))
+            self.apply(st.name.name, angles, self.local_qubits(name, st, local), line, out, stack + (name,))
+
+    def local_qubits(self, gate: str, st: ast.QuantumStatement, local: dict[str, int]) -> tuple[int, ...]:
+        """Operands inside a gate definition: plain names of the gate's qubit arguments."""
+        out = []
+        for q in st.qubits:
+            if not isinstance(q, ast.Identifier) or q.name not in local:
+                raise self.error(st, f"inside gate '{gate}', operands must be its qubit arguments ({', '.join(local)})")
+            out.append(local[q.name])
+        return tuple(out)
 
     # -- loops ---------------------------------------------------------------------------------
     def loop(self, st: ast.ForInLoop, out: list[Statement]) -> None:
@@ -338,12 +267,12 @@ class _Reader:
         if isinstance(it, ast.DiscreteSet):
             return len(it.values)
         if isinstance(it, ast.RangeDefinition):
-            self.check_range(it)
+            self.regs.check_range(it)
             if it.start is None or it.end is None:
                 raise self.error(st, "for loop range needs a start and an end, e.g. [0:9]")
-            start = self.integer(it.start, "for loop range start")
-            end = self.integer(it.end, "for loop range end")
-            step = 1 if it.step is None else self.integer(it.step, "for loop range step")
+            start = self.regs.integer(it.start, "for loop range start")
+            end = self.regs.integer(it.end, "for loop range end")
+            step = 1 if it.step is None else self.regs.integer(it.step, "for loop range step")
             if step == 0:
                 raise self.error(st, "for loop range step is 0")
             return len(range(start, end + (1 if step > 0 else -1), step))

@@ -3,8 +3,9 @@
 Evaluated on the reference syntax tree. Supported: integer and real literals, the constants
 ``pi``/``π``, ``tau``/``τ``, ``euler``/``ℇ``, names bound in an environment (gate parameters,
 ``const`` and initialised classical declarations), unary minus, ``+ - * / % **`` (OpenQASM 2's
-power ``^`` arrives here as ``**``, see :mod:`budget.circuit.qasm_parse`), casts to int/float/angle, and the functions sin, cos, tan, arcsin, arccos,
-arctan, exp, ln/log, sqrt, floor, ceiling, mod, pow.
+power ``^`` arrives here as ``**``, see :mod:`budget.circuit.qasm_parse`), casts to
+int/float/angle, and the functions sin, cos, tan, arcsin, arccos, arctan, exp, ln/log, sqrt,
+floor, ceiling, mod, pow.
 
 Division is real division in both versions (``1/2`` is 0.5); a value used as an index or loop
 bound must come out integral.
