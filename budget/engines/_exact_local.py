@@ -12,7 +12,13 @@ Channel form (density matrices, superoperators): the operation's whole channel a
     relaxation:       Σ_K K ⊗ conj(K) per qubit, K from Relaxation.kraus()
 
 composed in the order of budget/errors/noisy.py: ideal gate, coherent unitary, Pauli rates,
-depolarizing, relaxation of each qubit. Matrices are cached per operation object for one run.
+depolarizing, relaxation of each qubit.
+
+The register keeps density matrices in the normalised Pauli basis {1, X, Y, Z}/√2 per qubit
+(coefficients Tr(P ρ)/√2 per qubit, real), where every channel is a *real* matrix, the Pauli
+transfer matrix R = T S T† (T unitary, :data:`PAULI_BASIS`): real products cost a quarter of
+complex ones and half the memory (PTM: e.g. Greenbaum, "Introduction to quantum gate set
+tomography", arXiv:1509.02921 (2015)).
 """
 
 from __future__ import annotations
@@ -29,6 +35,16 @@ _PAULI = {
     "Y": np.array([[0, -1j], [1j, 0]], dtype=complex),
     "Z": np.diag([1.0 + 0j, -1.0]),
 }
+
+
+PAULI_BASIS = np.array([_PAULI[p].conj().reshape(-1) for p in "IXYZ"]) / np.sqrt(2)
+"""T with T[P, 2r + c] = conj(P[r, c])/√2: (r, c) coefficients of one qubit -> Pauli coefficients."""
+
+
+def pauli_transfer(superop: np.ndarray, k: int) -> np.ndarray:
+    """The real Pauli transfer matrix T_k S T_k† of an interleaved k-qubit superoperator."""
+    t = reduce(np.kron, [PAULI_BASIS] * k)
+    return np.ascontiguousarray((t @ superop @ t.conj().T).real)
 
 
 def pauli_string_matrix(label: str) -> np.ndarray:

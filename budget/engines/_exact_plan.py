@@ -143,8 +143,11 @@ _WHAT = {
     "vector": "a state vector (coherent errors only)",
     "unitary": "the d x d unitary (coherent errors only)",
     "density": "a density matrix (incoherent errors present)",
-    "superop": "the 4^n x 4^n superoperator, i.e. the Choi state of the doubled 2n-qubit system "
-    "(incoherent errors present), so the process metric reaches half as many qubits as the state metric",
+    "superop": "the 4^n x 4^n superoperator (incoherent errors present)",
+}
+_NOTE = {
+    "superop": " The superoperator is the Choi state of the doubled 2n-qubit system, so with incoherent "
+    "errors the process metric reaches half as many qubits as the state metric.",
 }
 
 
@@ -156,7 +159,7 @@ def refusal(circuit: NoisyCircuit, metric: str, plan: Plan) -> str | None:
     if n > plan.max_qubits or plan.memory_bytes > MEMORY_LIMIT_BYTES:
         return (
             f"{head} up to {plan.max_qubits} qubits and {_size(MEMORY_LIMIT_BYTES)}; this one would "
-            f"need about {_size(plan.memory_bytes)}. {other_engines(circuit, metric)}"
+            f"need about {_size(plan.memory_bytes)}.{_NOTE.get(plan.form, '')} {other_engines(circuit, metric)}"
         )
     if plan.work > WORK_LIMIT:
         return (

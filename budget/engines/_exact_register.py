@@ -22,7 +22,8 @@ class Register:
     """A tensor of n sites of dimension s and C trailing columns, with a movable axis order.
 
     Args:
-        data: flat complex array of length s**n * columns, qubit 0 most significant.
+        data: flat array (complex, or real for Pauli-basis density matrices) of length
+            s**n * columns, qubit 0 most significant.
         num_qubits: n.
         site_dim: s (2 or 4).
     """
@@ -31,21 +32,14 @@ class Register:
         self.n = num_qubits
         self.s = site_dim
         self.columns = data.size // site_dim**num_qubits
-        self.t = np.ascontiguousarray(data, dtype=complex).reshape(-1)
+        self.t = np.ascontiguousarray(data).reshape(-1)
         self._buf = np.empty_like(self.t)
         self.order = list(range(num_qubits))  # axis position -> qubit
 
     @classmethod
-    def identity(cls, num_qubits: int, site_dim: int) -> "Register":
+    def identity(cls, num_qubits: int, site_dim: int, dtype: type = complex) -> "Register":
         d = site_dim**num_qubits
-        return cls(np.eye(d, dtype=complex).reshape(-1), num_qubits, site_dim)
-
-    @classmethod
-    def zero_state(cls, num_qubits: int, site_dim: int) -> "Register":
-        """|0…0> (s = 2) or |0…0><0…0| (s = 4, index 0 of every site)."""
-        data = np.zeros(site_dim**num_qubits, dtype=complex)
-        data[0] = 1.0
-        return cls(data, num_qubits, site_dim)
+        return cls(np.eye(d, dtype=dtype).reshape(-1), num_qubits, site_dim)
 
     def _swap_buffers(self) -> None:
         self.t, self._buf = self._buf, self.t
@@ -105,8 +99,10 @@ def _embed(matrix: np.ndarray, sites: tuple[int, ...], target: tuple[int, ...], 
         return matrix
     if len(sites) == 2:
         return swap_sites(matrix, s)
-    eye = np.eye(s, dtype=complex)
-    return np.kron(matrix, eye) if sites[0] == target[0] else np.kron(eye, matrix)
+    eye = np.eye(s)
+    if sites[0] == target[0]:  # matrix ⊗ 1
+        return (matrix[:, None, :, None] * eye[None, :, None, :]).reshape(s * s, s * s)
+    return (eye[:, None, :, None] * matrix[None, :, None, :]).reshape(s * s, s * s)  # 1 ⊗ matrix
 
 
 class Fuser:

@@ -23,11 +23,19 @@ N = 10^9 costs what N = 2 costs. Shares are left to the analysis layer.
 
 from __future__ import annotations
 
+from functools import reduce
 from typing import Callable
 
 import numpy as np
 
-from budget.engines._exact_local import channel_superop, gate_unitary, pauli_string_matrix, relaxation_superop
+from budget.engines._exact_local import (
+    PAULI_BASIS,
+    channel_superop,
+    gate_unitary,
+    pauli_string_matrix,
+    pauli_transfer,
+    relaxation_superop,
+)
 from budget.engines._exact_plan import REPEAT_MODES, Plan, make_plan, refusal
 from budget.engines._exact_power import channel_power, unitary_power
 from budget.engines._exact_register import Fuser, Register
@@ -50,14 +58,23 @@ class _Runner:
         self.n, self.s = n, site_dim
         self._local, self._idle = local, idle
         self._powered = powered
-        self._cache: dict[int, np.ndarray] = {}
+        self._cache: dict[tuple, np.ndarray] = {}
+        self._idle_cache: dict[tuple[float, float], np.ndarray] = {}
         self._powers: dict[int, np.ndarray] = {}
         self.methods: set[str] = set()
 
     def local(self, nop: NoisyOperation) -> np.ndarray:
-        m = self._cache.get(id(nop))
+        key = _content_key(nop)
+        m = self._cache.get(key)
         if m is None:
-            m = self._cache[id(nop)] = self._local(nop)
+            m = self._cache[key] = self._local(nop)
+        return m
+
+    def idle(self, relax: Relaxation) -> np.ndarray:
+        key = (relax.gamma, relax.dephasing_factor)
+        m = self._idle_cache.get(key)
+        if m is None:
+            m = self._idle_cache[key] = self._idle(relax)
         return m
 
     def run(self, items: tuple[NoisyItem, ...], reg: Register) -> Register:
@@ -74,7 +91,7 @@ class _Runner:
                 if self._idle is not None:
                     for r in it.idle:
                         if not r.is_trivial:
-                            fuser.add((r.qubit,), self._idle(r))
+                            fuser.add((r.qubit,), self.idle(r))
             elif self._powered.get(id(it), False):
                 fuser.flush()
                 reg.apply_full(self._power(it))
@@ -85,14 +102,46 @@ class _Runner:
     def _power(self, rep: NoisyRepeat) -> np.ndarray:
         p = self._powers.get(id(rep))
         if p is None:
-            block = self.run(rep.body, Register.identity(self.n, self.s)).canonical().copy()
+            dtype = complex if self.s == 2 else float
+            block = self.run(rep.body, Register.identity(self.n, self.s, dtype)).canonical().copy()
             if self.s == 2:
                 p, method = unitary_power(block, rep.count), "schur"
             else:
                 p, method = channel_power(block, rep.count)
+                p = np.ascontiguousarray(p.real)  # a real Pauli transfer matrix
             self.methods.add(method)
             self._powers[id(rep)] = p
         return p
+
+
+def _from_pauli(data: np.ndarray, n: int) -> np.ndarray:
+    """(4^n, C) register in the Pauli basis -> interleaved (r, c) basis on the output side, and on
+    the input side too when C = 4^n (an operator): S = T† R T per qubit."""
+    out = data.astype(complex).reshape((4,) * n + (data.shape[1],))
+    tinv = PAULI_BASIS.conj().T
+    for q in range(n):
+        out = np.moveaxis(np.tensordot(tinv, out, axes=(1, q)), 0, q)
+    if data.shape[1] == 4**n:
+        out = out.reshape((4,) * (2 * n))
+        for q in range(n):
+            out = np.tensordot(out, PAULI_BASIS, axes=(n + q, 0))
+            out = np.moveaxis(out, -1, n + q)
+    return np.ascontiguousarray(out).reshape(4**n, data.shape[1])
+
+
+def _content_key(nop: NoisyOperation) -> tuple:
+    """Operations with equal content share one local matrix (built once per run)."""
+    op = nop.op
+    return (
+        op.gate,
+        len(op.qubits),
+        op.params,
+        None if op.matrix is None else np.asarray(op.matrix).tobytes(),
+        np.asarray(nop.coherent).tobytes(),
+        tuple(sorted(nop.pauli_rates.items())),
+        nop.depolarizing,
+        tuple((r.qubit == op.qubits[0], r.gamma, r.dephasing_factor) for r in nop.relaxation),
+    )
 
 
 def _interleaved_to_matrix(rho: np.ndarray, n: int) -> np.ndarray:
@@ -151,9 +200,16 @@ class ExactEngine:
         ideal = self._propagate(ideal_runner, circuit, 2, plan.columns > 1)
         if plan.site_dim == 2:
             runner = _Runner(n, 2, lambda nop: gate_unitary(nop, ideal=False), None, plan.powered)
+            actual = self._propagate(runner, circuit, 2, plan.columns > 1)
         else:
-            runner = _Runner(n, 4, channel_superop, relaxation_superop, plan.powered)
-        actual = self._propagate(runner, circuit, plan.site_dim, plan.columns > 1)
+            runner = _Runner(
+                n,
+                4,
+                lambda nop: pauli_transfer(channel_superop(nop), len(nop.qubits)),
+                lambda r: pauli_transfer(relaxation_superop(r), 1),
+                plan.powered,
+            )
+            actual = _from_pauli(self._propagate(runner, circuit, 4, plan.columns > 1), n)
         infidelity = _infidelity(plan, actual, ideal, n)
         density = plan.site_dim == 4
         out_state, ideal_state = actual[:, 0], ideal[:, 0]  # output for input |0…0>
@@ -177,8 +233,15 @@ class ExactEngine:
 
     @staticmethod
     def _propagate(runner: _Runner, circuit: NoisyCircuit, s: int, operator: bool) -> np.ndarray:
+        """Identity (operator forms) or |0…0> propagated through the circuit, as (s^n, C)."""
         n = circuit.num_qubits
-        reg = Register.identity(n, s) if operator else Register.zero_state(n, s)
+        dtype = complex if s == 2 else float
+        if operator:
+            reg = Register.identity(n, s, dtype)
+        elif s == 2:  # |0…0>
+            reg = Register(np.eye(1, 2**n, dtype=dtype)[0], n, 2)
+        else:  # |0><0| = (1 + Z)/2 per qubit: Pauli coefficients (1, 0, 0, 1)/√2
+            reg = Register(reduce(np.kron, [PAULI_BASIS[:, 0].real] * n), n, 4)
         return runner.run(circuit.body, reg).canonical()
 
 
