@@ -199,3 +199,17 @@ def cirq_process_infidelity(circuit: NoisyCircuit) -> float:
 
 def cirq_infidelity(circuit: NoisyCircuit, metric: str) -> float:
     return cirq_state_infidelity(circuit) if metric == "state" else cirq_process_infidelity(circuit)
+
+
+def cirq_final_states(circuit: NoisyCircuit) -> tuple[np.ndarray, np.ndarray]:
+    """(ideal ψ from cirq.Simulator, noisy ρ from cirq.DensityMatrixSimulator) for input |0…0>,
+    qubit i = cirq.LineQubit(i) (added for the exact engine's observable checks)."""
+    qs = cirq.LineQubit.range(circuit.num_qubits)
+    ident = [cirq.I(q) for q in qs]
+    psi = cirq.Simulator(dtype=np.complex128).simulate(
+        cirq.Circuit(ident + _ideal_ops(circuit, qs)), qubit_order=qs
+    ).final_state_vector
+    rho = cirq.DensityMatrixSimulator(dtype=np.complex128).simulate(
+        cirq.Circuit(ident + _noisy_ops(circuit, qs)), qubit_order=qs
+    ).final_density_matrix
+    return psi, rho
