@@ -360,3 +360,21 @@ def test_cli_cost_bad_calibration_table(tmp_path, table, message):
     assert res.exit_code == 2 and message in res.output and str(model) in res.output
     assert len(res.output.strip().splitlines()) == 1 and "Traceback" not in res.output
     assert not out.exists()
+
+
+def test_drift_keys_follow_the_families_of_the_model():
+    """"cz.cphase" reaches the per-pair families; a knob the model defines but the circuit does not
+    use is ignored; a knob the model lacks is an error."""
+    from budget.analysis.decide import decide
+
+    circ = StructuredCircuit(("q[0]", "q[1]", "q[2]"), (Layer((Operation("h", (0,)),)), Layer((Operation("cz", (0, 1)),)),
+                                                        Layer((Operation("cz", (1, 2)),))))
+    model = {"gates": {"h": {"duration_ns": 24, "overrotation": 0.001}, "sx": {"overrotation": 0.001},
+                       "cz": {"duration_ns": 60, "cphase": 0.05, "avg_infidelity": 1e-3}},
+             "calibration": {"drift_rad_per_hour": {"cz.cphase": 0.002, "sx.overrotation": 0.001}}}
+    d = decide(circ, model, target=0.01, family_by="pair")
+    planned = {p.family: p.drift_rad_per_hour for p in d.plan.knobs if p.knob == "cphase"}
+    assert planned == {"cz q[0],q[1]": 0.002, "cz q[1],q[2]": 0.002}
+    model["calibration"]["drift_rad_per_hour"]["cz.swap_angle"] = 0.001
+    with pytest.raises(ModelError, match="the model has no knob cz.swap_angle"):
+        decide(circ, model, target=0.01)

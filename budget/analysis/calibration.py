@@ -188,25 +188,49 @@ class CalibrationPlan:
     settings: CalibrationSettings
 
 
+def model_knob_keys(model: Any) -> frozenset[str]:
+    """Every ``"family.knob"`` an ErrorModel defines (gate tables and per-qubit tables alike)."""
+    out = set()
+    for gate, gp in list(model.gates.items()) + [(g, p) for (g, _), p in model.gate_overrides.items()]:
+        out.update(f"{gp.family or gate}.{k}" for k in gp.knob_values())
+    return frozenset(out)
+
+
+def _drift_of(row_key: tuple[str, str], drifts: Mapping[str, float]) -> float | None:
+    """The drift rate for a row: its own key, else its base family's (``"cz q[0],q[1]"`` -> ``"cz"``)."""
+    family, knob = row_key
+    rate = drifts.get(knob_key(row_key), drifts.get(knob_key((family.split(" ", 1)[0], knob))))
+    return rate or None
+
+
 def calibration_plan(
-    report: ToleranceReport, probes: Mapping[tuple[str, str], tuple[Probe, ...]], settings: CalibrationSettings
+    report: ToleranceReport,
+    probes: Mapping[tuple[str, str], tuple[Probe, ...]],
+    settings: CalibrationSettings,
+    *,
+    model_knobs: frozenset[str] = frozenset(),
 ) -> CalibrationPlan:
     """Plan the phase-estimation experiments for every knob that must tighten or that drifts.
 
-    Raises ModelError when a drift rate names a knob the model does not have.
+    A drift key ``"cz.cphase"`` applies to family ``cz`` and to its per-pair or per-operation
+    families (``"cz q[0],q[1]"``); a more specific key (``"cz q[0],q[1].cphase"``) wins. Keys the
+    model defines (``model_knobs``, see :func:`model_knob_keys`) but this circuit does not use are
+    ignored; any other key raises ModelError (a knob the model does not have).
     """
     keys = {knob_key((r.family, r.knob)) for r in report.rows}
+    keys |= {knob_key((r.family.split(" ", 1)[0], r.knob)) for r in report.rows}
     for key, rate in settings.drift_rad_per_hour.items():
-        if key not in keys:
-            close = difflib.get_close_matches(key, sorted(keys), n=1)
-            hint = f"did you mean {close[0]!r}?" if close else f"knobs: {', '.join(sorted(keys)) or 'none'}"
+        if key not in keys and key not in model_knobs:
+            known = sorted(keys | model_knobs)
+            close = difflib.get_close_matches(key, known, n=1)
+            hint = f"did you mean {close[0]!r}?" if close else f"knobs: {', '.join(known) or 'none'}"
             raise _fail(f'drift_rad_per_hour."{key}"', rate, settings.source, f"the model has no knob {key}; {hint}")
     k = settings.sigma_factor
     plans: list[KnobPlan] = []
     unplanned: dict[str, str] = {}
     for row in report.rows if report.feasible else ():
         key = knob_key((row.family, row.knob))
-        drift = settings.drift_rad_per_hour.get(key) or None
+        drift = _drift_of((row.family, row.knob), settings.drift_rad_per_hour)
         if row.status != "tighten" and drift is None:
             continue
         if not 0 < row.tolerance_rad < math.inf:

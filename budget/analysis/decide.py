@@ -15,7 +15,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
-from budget.analysis.calibration import CalibrationPlan, calibration_json, calibration_plan, read_calibration
+from budget.analysis.calibration import (
+    CalibrationPlan, calibration_json, calibration_plan, model_knob_keys, read_calibration,
+)
 from budget.analysis.phase_estimation import find_probes
 from budget.analysis.sensitivity import Sensitivity, per_operation, quadratic_form, sensitivity, sensitivity_json
 from budget.analysis.tolerances import ToleranceReport, check_target, tolerances, tolerances_json
@@ -75,7 +77,8 @@ def decide(
         noisy = per_operation(noisy)
     qf = quadratic_form(noisy, metric, engine=engine)
     report = tolerances(qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles)
-    return Decisions(structured.source, sensitivity(qf), report, calibration_plan(report, find_probes(noisy), settings))
+    plan = calibration_plan(report, find_probes(noisy), settings, model_knobs=model_knob_keys(model))
+    return Decisions(structured.source, sensitivity(qf), report, plan)
 
 
 def decisions_json(d: Decisions) -> dict:

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 
+from rich import box
 from rich.console import Group
 from rich.panel import Panel
 from rich.table import Table
@@ -107,16 +108,18 @@ def tolerance_view(report: ToleranceReport) -> Group:
 
 def calibration_view(plan: CalibrationPlan) -> Group:
     """Per-knob phase-estimation experiments and the totals line."""
-    t = Table(title="calibration experiments (amplified phase estimation)", title_justify="left")
-    for name, right in (("knob", False), ("why", False), ("σ needed (rad)", True), ("sites", True), ("Γ per rep", True),
-                        ("depth", True), ("shots", True), ("circuits", True), ("device time", True), ("holds for", True)):
-        t.add_column(name, justify="right" if right else "left")
+    rows = []
     for p in plan.knobs:
         worst = max(p.sites, key=lambda s: s.gamma_per_rep)
-        hold = "—" if p.hold_hours is None else f"{p.hold_hours:.3g} h"
-        t.add_row(f"{p.family}.{p.knob}", p.reason, fmt(p.sigma_rad), str(len(p.sites)), fmt(worst.gamma_per_rep),
-                  f"{worst.depth:,}", f"{sum(s.shots_total for s in p.sites):,}", f"{sum(s.circuits for s in p.sites):,}",
-                  _duration(p.device_s), hold)
+        rows.append((f"{p.family}.{p.knob}", p.reason, fmt(p.sigma_rad, 2), str(len(p.sites)), fmt(worst.gamma_per_rep, 2),
+                     f"{worst.depth:,}", f"{sum(s.shots_total for s in p.sites):,}", f"{sum(s.circuits for s in p.sites):,}",
+                     _duration(p.device_s), "—" if p.hold_hours is None else f"{p.hold_hours:.3g} h"))
+    t = Table(title="calibration experiments (amplified phase estimation)", title_justify="left", box=box.SIMPLE_HEAD)
+    for i, name in enumerate(("knob", "why", "σ (rad)", "sites", "Γ per rep", "depth", "shots", "circuits",
+                              "device time", "holds for")):
+        t.add_column(name, justify="left" if i < 2 else "right", no_wrap=i == 0)
+    for r in rows:
+        t.add_row(*r)
     parts: list = [t] if plan.knobs else [Text("no knob needs a calibration experiment for this target", style="green")]
     parts += [Text(f"not planned: {k}: {why}", style="yellow") for k, why in plan.unplanned.items()]
     parts.append(totals_line(plan))
