@@ -17,10 +17,12 @@ small Markovian errors", PRX Quantum 3, 020335 (2022)):
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Callable, Iterable
 
 import numpy as np
 
+from budget.engines._apply import LocalOp, embed, fuse
 from budget.errors.fidelity import pauli_labels, pauli_matrix
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
 
@@ -52,19 +54,21 @@ class JumpSet:
     Attributes:
         qubits: the qubits.
         operators: shape (J, dq, dq), the jump operators L.
+        decay: shape (J, dq, dq), L†L.
         rates: shape (J,), their probabilities p.
         families: family of each jump, for shares.
     """
 
     qubits: tuple[int, ...]
     operators: np.ndarray
+    decay: np.ndarray
     rates: np.ndarray
     families: tuple[str, ...]
 
-    @property
-    def decay(self) -> np.ndarray:
-        """L†L for every jump, shape (J, dq, dq)."""
-        return np.conj(np.swapaxes(self.operators, 1, 2)) @ self.operators
+    @cached_property
+    def stacked(self) -> np.ndarray:
+        """(L_1..L_J, L†L_1..L†L_J) flattened, shape (2J, dq²)."""
+        return np.concatenate([self.operators, self.decay]).reshape(2 * len(self.rates), -1)
 
 
 @dataclass(frozen=True)
@@ -72,14 +76,19 @@ class LayerContent:
     """What the first-order engines need from one layer.
 
     Attributes:
-        gates: (ideal unitary, qubits) of each operation.
-        hamiltonians: group key -> list of (local H, qubits).
-        jumps: jump operators grouped by qubits.
+        gates: the ideal gates, fused window by window (:func:`budget.engines._apply.fuse`), for
+            state vectors.
+        gate_list: the ideal gates one by one (fewer operations per element for dense matrices).
+        hamiltonians: group key -> the group's Hamiltonian terms of this layer, fused into sums.
+        generator: all groups' Hamiltonian terms of this layer, fused into sums.
+        jumps: jump operators, one set per operation (its relaxation embedded) and per idle qubit.
         process_stochastic: family -> first-order process infidelity of the layer's stochastic part.
     """
 
-    gates: tuple[tuple[np.ndarray, tuple[int, ...]], ...]
-    hamiltonians: dict[object, list[tuple[np.ndarray, tuple[int, ...]]]]
+    gates: tuple[LocalOp, ...]
+    gate_list: tuple[LocalOp, ...]
+    hamiltonians: dict[object, tuple[LocalOp, ...]]
+    generator: tuple[LocalOp, ...]
     jumps: tuple[JumpSet, ...]
     process_stochastic: dict[str, float]
 
@@ -94,48 +103,54 @@ def _relaxation_jumps(r: Relaxation) -> list[tuple[np.ndarray, float]]:
 
 
 def _operation_jumps(nop: NoisyOperation) -> list[tuple[np.ndarray, float]]:
+    """Pauli rates, depolarizing and relaxation of one operation, all on the operation's qubits."""
+    k = len(nop.qubits)
     out = [(pauli_matrix(label), p) for label, p in nop.pauli_rates.items() if p > 0]
     if nop.depolarizing > 0:
-        k = len(nop.qubits)
         out += [(pauli_matrix(label), nop.depolarizing / 4**k) for label in pauli_labels(k)[1:]]
+    for r in nop.relaxation:
+        pos = nop.qubits.index(r.qubit)
+        out += [(embed(m, (pos,), k), p) for m, p in _relaxation_jumps(r)]
     return out
 
 
-def _jump_set(qubits, items: list[tuple[np.ndarray, float, str]]) -> JumpSet:
+def _jump_set(qubits, items: list[tuple[np.ndarray, float]], family: str) -> JumpSet:
+    ops = np.array([m for m, _ in items], dtype=complex)
     return JumpSet(
         tuple(qubits),
-        np.array([m for m, _, _ in items], dtype=complex),
-        np.array([p for _, p, _ in items], dtype=float),
-        tuple(f for _, _, f in items),
+        ops,
+        np.conj(np.swapaxes(ops, 1, 2)) @ ops,
+        np.array([p for _, p in items], dtype=float),
+        (family,) * len(items),
     )
 
 
-def _stochastic_process(nop_rates: dict[str, float], depol: float, k: int, relax: Iterable[Relaxation]) -> float:
-    total = sum(nop_rates.values()) + depol * (4**k - 1) / 4**k
-    return total + sum(sum(r.pauli_twirl()) for r in relax if not r.is_trivial)
+def _stochastic_process(nop: NoisyOperation) -> float:
+    total = sum(nop.pauli_rates.values()) + nop.depolarizing * (4 ** len(nop.qubits) - 1) / 4 ** len(nop.qubits)
+    return total + sum(sum(r.pauli_twirl()) for r in nop.relaxation if not r.is_trivial)
 
 
-def layer_content(layer: NoisyLayer, grouping: Grouping = by_family) -> LayerContent:
-    """Collect the first-order content of one layer (see module docstring)."""
-    gates = tuple((nop.op.unitary(), nop.qubits) for nop in layer.operations)
-    hams: dict[object, list] = {}
+def layer_content(layer: NoisyLayer, num_qubits: int, grouping: Grouping = by_family) -> LayerContent:
+    """Collect the first-order content of one layer of an n-qubit circuit (module docstring)."""
+    n = num_qubits
+    ideal = [(nop.op.unitary(), nop.qubits) for nop in layer.operations]
+    gates = fuse(ideal, n, product=True)
+    terms: dict[object, list] = {}
     jumps: list[JumpSet] = []
     stoch: dict[str, float] = {}
     for nop in layer.operations:
-        for key, terms in grouping(nop):
-            if terms:
-                hams.setdefault(key, []).append((pauli_sum(terms), nop.qubits))
-        items = [(m, p, nop.family) for m, p in _operation_jumps(nop)]
-        if items:
-            jumps.append(_jump_set(nop.qubits, items))
-        for r in nop.relaxation:
-            if rj := _relaxation_jumps(r):
-                jumps.append(_jump_set((r.qubit,), [(m, p, nop.family) for m, p in rj]))
-        s = _stochastic_process(nop.pauli_rates, nop.depolarizing, len(nop.qubits), nop.relaxation)
-        if s:
+        for key, h in grouping(nop):
+            if h:
+                terms.setdefault(key, []).append((pauli_sum(h), nop.qubits))
+        if items := _operation_jumps(nop):
+            jumps.append(_jump_set(nop.qubits, items, nop.family))
+        if s := _stochastic_process(nop):
             stoch[nop.family] = stoch.get(nop.family, 0.0) + s
     for r in layer.idle:
         if rj := _relaxation_jumps(r):
-            jumps.append(_jump_set((r.qubit,), [(m, p, IDLE) for m, p in rj]))
+            jumps.append(_jump_set((r.qubit,), rj, IDLE))
             stoch[IDLE] = stoch.get(IDLE, 0.0) + sum(r.pauli_twirl())
-    return LayerContent(gates, hams, tuple(jumps), stoch)
+    hams = {key: fuse(t, n, product=False) for key, t in terms.items()}
+    generator = fuse([t for ts in terms.values() for t in ts], n, product=False) if len(terms) > 1 else next(iter(hams.values()), ())
+    gate_list = tuple(LocalOp.of(m, qs) for m, qs in ideal)
+    return LayerContent(gates, gate_list, hams, generator, tuple(jumps), stoch)

@@ -18,7 +18,7 @@ from typing import Callable, Hashable
 
 import numpy as np
 
-from budget.engines._apply import apply_gate, conjugate, embed
+from budget.engines._apply import apply, conjugate, embed
 from budget.engines._channels import LayerContent
 from budget.engines.periodic import CycleBasis, cycle_basis, periodic_sum
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
@@ -76,15 +76,15 @@ class DensePropagator:
         for item in items:
             if isinstance(item, NoisyLayer):
                 c = self.content_of(item)
-                for m, qs in c.gates:
-                    hs = conjugate(hs, m, qs, n) if len(keys) else hs
+                for g in c.gate_list:
+                    hs = conjugate(hs, g, n) if len(keys) else hs
                     if ut is not None:
-                        ut = apply_gate(ut, m, qs, n)
+                        ut = apply(ut, g, n)
                 hs = grow(c.hamiltonians)
                 for key, terms in c.hamiltonians.items():
                     i = keys.index(key)
-                    for h, qs in terms:
-                        hs[i] += embed(h, qs, n)
+                    for h in terms:
+                        hs[i] += embed(h.matrix, h.qubits, n)
             else:
                 inner, basis = self.repeat(item)
                 p = basis.power(item.count)

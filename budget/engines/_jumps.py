@@ -20,7 +20,7 @@ from typing import Sequence
 
 import numpy as np
 
-from budget.engines._apply import apply_gate
+from budget.engines._apply import apply
 from budget.engines._dense import ContentOf, DensePropagator
 from budget.engines._channels import JumpSet
 from budget.engines.periodic import frequency_count, repeated_means, repeated_squares, state_components
@@ -46,7 +46,9 @@ def local_gram(x: np.ndarray, qubits: tuple[int, ...], num_qubits: int) -> np.nd
 
 def matrix_elements(gram: np.ndarray, ops: np.ndarray) -> np.ndarray:
     """a[j, c, c'] = <x_c|ops_j|x_c'> from a :func:`local_gram`."""
-    return np.einsum("cadb,jab->jcd", gram, ops)
+    m, dq = gram.shape[0], gram.shape[1]
+    g2 = gram.transpose(0, 2, 1, 3).reshape(m * m, dq * dq)
+    return (ops.reshape(ops.shape[0], -1) @ g2.T).reshape(ops.shape[0], m, m)
 
 
 def _add(acc: dict[str, float], families: Sequence[str], values: np.ndarray, weight: float = 1.0) -> None:
@@ -81,13 +83,13 @@ class StateJumps:
         for item in items:
             if isinstance(item, NoisyLayer):
                 c = self.content_of(item)
-                for m, qs in c.gates:
-                    psi = apply_gate(psi, m, qs, self.n)
+                for g in c.gates:
+                    psi = apply(psi, g, self.n)
                 for js in c.jumps:
-                    g = local_gram(psi[None], js.qubits, self.n)
-                    decay = matrix_elements(g, js.decay)[:, 0, 0].real
-                    mean = matrix_elements(g, js.operators)[:, 0, 0]
-                    _add(costs, js.families, js.rates * (decay - np.abs(mean) ** 2))
+                    g = local_gram(psi[None], js.qubits, self.n).reshape(-1)
+                    j = len(js.rates)
+                    vals = js.stacked @ g  # <L> for each jump, then <L†L>
+                    _add(costs, js.families, js.rates * (vals[j:].real - np.abs(vals[:j]) ** 2))
             else:
                 psi = self._repeat(item, psi, costs)
         return psi, costs
@@ -105,8 +107,8 @@ class StateJumps:
         x = v
         for layer in item.body:
             c = self.content_of(layer)
-            for m, qs in c.gates:
-                x = apply_gate(x, m, qs, self.n)
+            for g in c.gates:
+                x = apply(x, g, self.n)
             sets += [(js, local_gram(x, js.qubits, self.n)) for js in c.jumps]
         out: list[dict[str, float]] = [{} for _ in counts]
         for js, g in sets:

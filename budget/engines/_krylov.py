@@ -38,9 +38,9 @@ def expm_apply(
     for j in range(max_steps):
         w = matvec(basis[j])
         alphas.append(float(np.vdot(basis[j], w).real))
-        vs = np.array(basis)
-        w = w - vs.T @ (vs.conj() @ w)
-        w = w - vs.T @ (vs.conj() @ w)  # twice is enough (Giraud et al., Numer. Math. 101, 87 (2005))
+        for _ in range(2):  # twice is enough (Giraud et al., Numer. Math. 101, 87 (2005))
+            for b in basis:
+                w = w - np.vdot(b, w) * b
         beta = float(np.linalg.norm(w))
         t = np.diag(alphas) + np.diag(betas, 1) + np.diag(betas, -1)
         y = scipy.linalg.expm(-1j * t)[:, 0]

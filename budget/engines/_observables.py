@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.engines._apply import apply_gate, conjugate
+from budget.engines._apply import apply, apply_gate, conjugate
 from budget.engines._dense import ContentOf, DensePropagator
 from budget.engines._jumps import repetitions
 from budget.errors.fidelity import pauli_matrix
@@ -55,9 +55,9 @@ class IncoherentObservables:
                         lpsi = apply_gate(psi, op, js.qubits, self.n)
                         ddpsi = apply_gate(psi, dec, js.qubits, self.n)
                         total += p * (np.vdot(lpsi, o @ lpsi).real - np.vdot(ddpsi, o_psi).real)
-                for m, qs in reversed(c.gates):
-                    psi = apply_gate(psi, m.conj().T, qs, self.n)
-                    o = conjugate(o, m.conj().T, qs, self.n)
+                for g in reversed(c.gate_list):
+                    psi = apply(psi, g.adjoint(), self.n)
+                    o = conjugate(o, g.adjoint(), self.n)
             else:
                 total_r, psi, o = self._repeat(item, psi, o)
                 total += total_r

@@ -19,7 +19,7 @@ from typing import Hashable
 
 import numpy as np
 
-from budget.engines._apply import apply_gate
+from budget.engines._apply import apply
 from budget.engines._dense import ContentOf, DensePropagator
 from budget.engines.periodic import CycleBasis, periodic_sum
 from budget.errors.noisy import NoisyCircuit, NoisyLayer
@@ -55,15 +55,15 @@ class StatePath:
     def _forward(self, seg, v: np.ndarray) -> np.ndarray:
         if isinstance(seg, _Block):
             return seg.basis.apply_power(seg.count, v)
-        for m, qs in seg.gates:
-            v = apply_gate(v, m, qs, self.n)
+        for g in seg.gates:
+            v = apply(v, g, self.n)
         return v
 
     def _backward(self, seg, v: np.ndarray) -> np.ndarray:
         if isinstance(seg, _Block):
             return seg.basis.apply_power(-seg.count, v)
-        for m, qs in reversed(seg.gates):
-            v = apply_gate(v, m.conj().T, qs, self.n)
+        for g in reversed(seg.gates):
+            v = apply(v, g.adjoint(), self.n)
         return v
 
     def _generate(self, seg, key: Hashable | None, v: np.ndarray) -> np.ndarray:
@@ -74,10 +74,8 @@ class StatePath:
                 if key is None or k == key:
                     out += s @ v
             return out
-        for k, terms in seg.hamiltonians.items():
-            if key is None or k == key:
-                for h, qs in terms:
-                    out += apply_gate(v, h, qs, self.n)
+        for h in seg.generator if key is None else seg.hamiltonians.get(key, ()):
+            out += apply(v, h, self.n)
         return out
 
     def final_state(self) -> np.ndarray:
@@ -105,8 +103,8 @@ class StatePath:
         x = v
         for seg in reversed(self.segments):
             x = self._backward(seg, x)
-        acc = np.zeros_like(v)
+        pair = np.stack([x, np.zeros_like(v)])  # (x, acc) go through the gates together
         for seg in self.segments:
-            x = self._forward(seg, x)
-            acc = self._forward(seg, acc) + self._generate(seg, None, x)
-        return acc
+            pair = self._forward(seg, pair)
+            pair[1] += self._generate(seg, None, pair[0])
+        return pair[1]

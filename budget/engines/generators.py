@@ -36,7 +36,6 @@ from budget.engines._krylov import expm_apply
 from budget.engines._observables import IncoherentObservables, observable_vector
 from budget.engines._states import StatePath
 from budget.engines.base import EngineResult, Metric, QuadraticForm, parse_observable
-from budget.engines.periodic import coherent_infidelity
 from budget.engines._knobs import knob_grouping
 from budget.errors.noisy import NoisyCircuit
 from budget.problems import TooLargeError
@@ -49,13 +48,13 @@ NORM_LIMIT_RAD = 0.3
 STOCHASTIC_LIMIT = 0.05
 
 
-def _content_cache(grouping):
+def _content_cache(num_qubits: int, grouping):
     cache: dict[int, object] = {}
 
     def content_of(layer):
         key = id(layer)
         if key not in cache:
-            cache[key] = layer_content(layer, grouping)
+            cache[key] = layer_content(layer, num_qubits, grouping)
         return cache[key]
 
     return content_of
@@ -106,7 +105,7 @@ class GeneratorsEngine:
         if reason is not None:
             raise TooLargeError(f"{circuit.source}: engine generators: {reason}")
         n = circuit.num_qubits
-        content_of = _content_cache(by_family)
+        content_of = _content_cache(n, by_family)
         dense = DensePropagator(n, content_of)
         jumps = StateJumps(n, content_of, dense)
         stoch = self._stochastic(circuit, metric, content_of, jumps)
@@ -160,8 +159,9 @@ class GeneratorsEngine:
             d = h.shape[0]
             tr = np.trace(h).real / d
             shares = {k: float(np.vdot(hk, h).real / d - tr * np.trace(hk).real / d) for k, hk in zip(block.keys, block.hamiltonians)}
-            exact, first = coherent_infidelity(h)
-            w = np.linalg.eigvalsh((h + h.conj().T) / 2) if block.keys else np.zeros(1)
+            w = np.linalg.eigvalsh((h + h.conj().T) / 2) if block.keys else np.zeros(d)
+            exact = float(np.clip(1 - abs(np.mean(np.exp(-1j * w))) ** 2, 0.0, 1.0))
+            first = max(float(np.mean(w**2) - np.mean(w) ** 2), 0.0)
             return {"exact": exact, "first": first, "shares": shares, "norm": float(np.max(np.abs(w - tr)))}
         psi = path.final_state()
         phis = path.group_vectors()
@@ -225,7 +225,7 @@ class GeneratorsEngine:
             raise TooLargeError(f"{circuit.source}: engine generators: {reason}")
         n = circuit.num_qubits
         grouping, values = knob_grouping(circuit)
-        content_of = _content_cache(grouping)
+        content_of = _content_cache(n, grouping)
         dense = DensePropagator(n, content_of)
         keys: list[Hashable] = list(values)
         if metric == "process":
@@ -242,7 +242,7 @@ class GeneratorsEngine:
             v = np.array([phis.get(key, np.zeros(2**n, dtype=complex)) for key in keys]).reshape(len(keys), -1)
             means = (v @ psi.conj()).real
             a = (v.conj() @ v.T).real - np.outer(means, means)
-        family_content = _content_cache(by_family)
+        family_content = _content_cache(n, by_family)
         jumps = StateJumps(n, family_content, DensePropagator(n, family_content))
         floor = self._stochastic(circuit, metric, family_content, jumps)
         return QuadraticForm(
