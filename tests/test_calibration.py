@@ -343,6 +343,8 @@ def test_cli_cost_worked_example(tmp_path):
     assert f"{totals['round_minutes']:.3g} device minutes" in res.output
     assert f"{totals['rounds_per_day']:.3g} rounds per day" in res.output
     assert totals["day_share"] == pytest.approx(totals["round_minutes"] * totals["rounds_per_day"] / 1440)
+    docs = (EXAMPLES.parent / "docs" / "tolerances.md").read_text()  # the worked example quotes this run
+    assert f"{totals['round_minutes']:.3g} device minutes; drift sets {totals['rounds_per_day']:.3g} rounds" in docs
 
 
 @pytest.mark.parametrize("table, message", [

@@ -24,7 +24,7 @@ import numbers
 from dataclasses import dataclass, field, fields
 from typing import Any, Mapping
 
-from budget.analysis.phase_estimation import Probe, final_depth
+from budget.analysis.phase_estimation import Probe, final_depth, find_probes  # noqa: F401 (re-exported)
 from budget.analysis.sensitivity import knob_key
 from budget.analysis.tolerances import NO_EFFECT, ToleranceReport
 from budget.problems import ModelError

@@ -82,7 +82,7 @@ def decide(
 
 
 def decisions_json(d: Decisions) -> dict:
-    """The tolerance report (schema ``budget.tolerances/1``) with the sensitivity and the plan."""
+    """The tolerance report (docs/tolerances.md, schema version 1) with the sensitivity and the plan."""
     out = tolerances_json(d.tolerances)
     out["source"] = d.source
     out["sensitivity"] = sensitivity_json(d.sensitivity)

@@ -37,7 +37,7 @@ Assumption = Literal["worst", "random"]
 Allocation = Literal["equal", "common-factor"]
 ASSUMPTIONS: tuple[str, ...] = ("worst", "random")
 ALLOCATIONS: tuple[str, ...] = ("equal", "common-factor")
-SCHEMA = "budget.tolerances/1"
+SCHEMA_VERSION = 1
 NO_EFFECT = "no 1st-order effect"
 """Status of a knob with A_ff = 0: its error cancels (or does not reach the metric) at leading order."""
 
@@ -219,9 +219,10 @@ def floor_message(report: ToleranceReport) -> str | None:
 
 
 def tolerances_json(report: ToleranceReport) -> dict:
-    """The report as JSON-ready data (schema ``budget.tolerances/1``); infinities become null."""
+    """The report as JSON-ready data (docs/tolerances.md, schema version 1); infinities become null."""
     return {
-        "schema": SCHEMA,
+        "schema_version": SCHEMA_VERSION,
+        "kind": "tolerances",
         "target": report.target,
         "metric": report.metric,
         "assume": report.assume,
