@@ -252,58 +252,50 @@ AllocationOpt = typer.Option(AllocationChoice.equal, "--allocation", help="equal
 ByOperationOpt = typer.Option(False, "--by-operation", help="One family per operation as written (line numbers).")
 
 
-@app.command()
-@user_errors
-def tolerances(
-    circuit: Path = CircuitArg,
-    errors: Path = ErrorsOpt,
-    target: float = TargetOpt,
-    cycles: int = CyclesOpt,
-    metric: MetricChoice = MetricOpt,
-    assume: AssumeChoice = AssumeOpt,
-    allocation: AllocationChoice = AllocationOpt,
-    engine: EngineChoice = EngineOpt,
-    by_pair: bool = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate."),
-    by_operation: bool = ByOperationOpt,
-    json_path: Optional[Path] = typer.Option(None, "--json", help="Write tolerances, sensitivity and calibration "
-                                             "plan as JSON (docs/tolerances.md)."),
-    width: Optional[int] = typer.Option(None, "--width", help="Report width in characters (default: terminal)."),
-) -> None:
-    """Largest tolerance per calibration knob for a target infidelity, ranked by how much each must tighten."""
+def _decision_command(name: str, summary: str, views: Callable) -> None:
+    """Register one of the decision commands (`tolerances`, `cost`): same options, other views."""
+
+    @app.command(name, help=summary)
+    @user_errors
+    def command(
+        circuit: Path = CircuitArg,
+        errors: Path = ErrorsOpt,
+        target: float = TargetOpt,
+        cycles: int = CyclesOpt,
+        metric: MetricChoice = MetricOpt,
+        assume: AssumeChoice = AssumeOpt,
+        allocation: AllocationChoice = AllocationOpt,
+        engine: EngineChoice = EngineOpt,
+        by_pair: bool = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate."),
+        by_operation: bool = ByOperationOpt,
+        json_path: Optional[Path] = typer.Option(None, "--json", help="Write tolerances, sensitivity and calibration "
+                                                 "plan as JSON (docs/tolerances.md)."),
+        width: Optional[int] = typer.Option(None, "--width", help="Report width in characters (default: terminal)."),
+    ) -> None:
+        d = _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair,
+                       by_operation)
+        console = make_console(width=width)
+        for view in views(d):
+            console.print(view)
+        _write_decisions(json_path, d)
+
+
+def _tolerance_views(d) -> list:
     from budget.report.decisions import sensitivity_view, tolerance_view, totals_line
 
-    d = _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair, by_operation)
-    console = make_console(width=width)
-    for view in (sensitivity_view(d.sensitivity), tolerance_view(d.tolerances), totals_line(d.plan)):
-        console.print(view)
-    _write_decisions(json_path, d)
+    return [sensitivity_view(d.sensitivity), tolerance_view(d.tolerances), totals_line(d.plan)]
 
 
-@app.command()
-@user_errors
-def cost(
-    circuit: Path = CircuitArg,
-    errors: Path = ErrorsOpt,
-    target: float = TargetOpt,
-    cycles: int = CyclesOpt,
-    metric: MetricChoice = MetricOpt,
-    assume: AssumeChoice = AssumeOpt,
-    allocation: AllocationChoice = AllocationOpt,
-    engine: EngineChoice = EngineOpt,
-    by_pair: bool = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate."),
-    by_operation: bool = ByOperationOpt,
-    json_path: Optional[Path] = typer.Option(None, "--json", help="Write tolerances, sensitivity and calibration "
-                                             "plan as JSON (docs/tolerances.md)."),
-    width: Optional[int] = typer.Option(None, "--width", help="Report width in characters (default: terminal)."),
-) -> None:
-    """Device time to measure the knobs that must tighten (amplified phase estimation) and, with drift, how often."""
+def _cost_views(d) -> list:
     from budget.report.decisions import calibration_view, tolerance_view
 
-    d = _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair, by_operation)
-    console = make_console(width=width)
-    for view in (tolerance_view(d.tolerances), calibration_view(d.plan)):
-        console.print(view)
-    _write_decisions(json_path, d)
+    return [tolerance_view(d.tolerances), calibration_view(d.plan)]
+
+
+_decision_command("tolerances", "Largest tolerance per calibration knob for a target infidelity, ranked by how much "
+                  "each must tighten.", _tolerance_views)
+_decision_command("cost", "Device time to measure the knobs that must tighten (amplified phase estimation) and, "
+                  "with drift, how often.", _cost_views)
 
 
 def _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair, by_operation):
