@@ -92,14 +92,8 @@ class LocalClifford:
     num_qubits: int
     forward: tuple[LocalPauli, ...]
     backward: tuple[LocalPauli, ...]
-
-    @property
-    def is_identity(self) -> bool:
-        k = self.num_qubits
-        unit = tuple(
-            (tuple(int(i == j) for i in range(k)), (0,) * k, 0) for j in range(k)
-        ) + tuple(((0,) * k, tuple(int(i == j) for i in range(k)), 0) for j in range(k))
-        return self.forward == unit
+    is_identity: bool = False
+    """True when U acts trivially on every Pauli (U ∝ identity)."""
 
 
 def local_clifford(unitary: np.ndarray, tol: float = TOLERANCE) -> LocalClifford | None:
@@ -124,7 +118,8 @@ def local_clifford(unitary: np.ndarray, tol: float = TOLERANCE) -> LocalClifford
             return None
         fwd.append(a)
         bwd.append(b)
-    return LocalClifford(k, tuple(fwd), tuple(bwd))
+    unit = [label_bits("".join(c if i == j else "I" for i in range(k))) for c in "XZ" for j in range(k)]
+    return LocalClifford(k, tuple(fwd), tuple(bwd), tuple(fwd) == tuple(unit))
 
 
 _CACHE: dict[tuple, LocalClifford | None] = {}

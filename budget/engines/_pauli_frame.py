@@ -20,12 +20,15 @@ rows of the gates' qubits: new row(G) = old map applied to the gate's local imag
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
 from budget.circuit.clifford_check import LocalClifford, LocalPauli
 
 WORD_BITS = 64
+HASH_BITS = 128
+_HASH_SEED = 20240611
 
 
 def num_words(n: int) -> int:
@@ -89,13 +92,45 @@ def layer_classes(ops: list[tuple[tuple[int, ...], LocalClifford]], direction: s
     ``direction`` ``"pull"`` uses U† G U (map each Pauli back towards the input), ``"push"`` uses
     U G U† (towards the output). Identity gates are left out.
     """
-    groups: dict[tuple, list[tuple[int, ...]]] = {}
+    groups: dict[int, tuple[tuple, list[tuple[int, ...]]]] = {}
     for qubits, cl in ops:
         if cl.is_identity:
             continue
-        images = cl.backward if direction == "pull" else cl.forward
-        groups.setdefault(images, []).append(qubits)
-    return tuple(GateClass(np.array(qs, dtype=np.int64), images) for images, qs in groups.items())
+        hit = groups.get(id(cl))
+        if hit is None:
+            hit = groups[id(cl)] = (cl.backward if direction == "pull" else cl.forward, [])
+        hit[1].append(qubits)
+    merged: dict[tuple, list[tuple[int, ...]]] = {}
+    for images, qs in groups.values():
+        merged.setdefault(images, []).extend(qs)
+    groups = merged
+    return tuple(GateClass(np.array(qs, dtype=np.int64).reshape(len(qs), -1), images) for images, qs in groups.items())
+
+
+@lru_cache(maxsize=8)
+def _masks(n: int) -> tuple[np.ndarray, np.ndarray]:
+    rng = np.random.default_rng(_HASH_SEED)
+    w = num_words(n)
+    mx = rng.integers(0, 2**64, size=(HASH_BITS, w), dtype=np.uint64, endpoint=False)
+    mz = rng.integers(0, 2**64, size=(HASH_BITS, w), dtype=np.uint64, endpoint=False)
+    return mx, mz
+
+
+def fingerprints(x: np.ndarray, z: np.ndarray | None) -> np.ndarray:
+    """128-bit GF(2)-linear fingerprints (R, 2) uint64 of Pauli bit rows (R, W).
+
+    Bit k is the parity of |x ∧ m_k| + |z ∧ m'_k| for fixed random masks, so the fingerprint of a
+    product is the XOR of the fingerprints, and two different bit patterns share a fingerprint with
+    probability 2^-128. ``z=None`` fingerprints the X part alone.
+    """
+    n = x.shape[-1] * WORD_BITS
+    mx, mz = _masks(n)
+    mx, mz = mx[:, : x.shape[-1]], mz[:, : x.shape[-1]]
+    bits = popcount(x[:, None, :] & mx[None])
+    if z is not None:
+        bits = bits + popcount(z[:, None, :] & mz[None])
+    bits = (bits & 1).astype(np.uint8)  # (R, 128)
+    return np.packbits(bits, axis=1, bitorder="little").view(np.uint64).reshape(-1, 2)
 
 
 class Frame:
@@ -106,10 +141,14 @@ class Frame:
         x, z: (2n+1, W) uint64 rows; row q is the image of X_q, row n+q that of Z_q, row 2n the
             identity.
         e: (2n+1,) phase exponents in Z_4.
+        fx, fxz: (2n+1, 2) fingerprints of each row's X part and of the whole row (kept up to date
+            by XOR, since they are linear).
     """
 
     def __init__(self, n: int, x: np.ndarray, z: np.ndarray, e: np.ndarray):
         self.n, self.x, self.z, self.e = n, x, z, e
+        self.fx = fingerprints(x, None)
+        self.fxz = fingerprints(x, z)
 
     @classmethod
     def identity(cls, n: int) -> "Frame":
@@ -123,7 +162,9 @@ class Frame:
         return cls(n, x, z, np.zeros(2 * n + 1, dtype=np.uint8))
 
     def copy(self) -> "Frame":
-        return Frame(self.n, self.x.copy(), self.z.copy(), self.e.copy())
+        f = Frame.__new__(Frame)
+        f.n, f.x, f.z, f.e, f.fx, f.fxz = self.n, self.x.copy(), self.z.copy(), self.e.copy(), self.fx.copy(), self.fxz.copy()
+        return f
 
     def equals(self, other: "Frame") -> bool:
         return (
@@ -153,6 +194,13 @@ class Frame:
             acc = acc ^ self.x[slots[:, j]]
         return acc
 
+    def image_z(self, slots: np.ndarray) -> np.ndarray:
+        """Only the Z bits of the images."""
+        acc = self.z[slots[:, 0]]
+        for j in range(1, slots.shape[1]):
+            acc = acc ^ self.z[slots[:, j]]
+        return acc
+
     def apply(self, classes: tuple[GateClass, ...]) -> None:
         """Compose with one layer: new row(G) = current map applied to the gate's image of G."""
         n = self.n
@@ -160,15 +208,18 @@ class Frame:
             k = cls.qubits.shape[1]
             gens = [cls.qubits[:, j] for j in range(k)] + [n + cls.qubits[:, j] for j in range(k)]
             old = [self.rows(g) for g in gens]
+            old_f = [(self.fx[g], self.fxz[g]) for g in gens]
             new = []
             for xb, zb, e in cls.images:
                 acc = None
+                fx = fxz = 0
                 for j, bit in enumerate(xb + zb):
                     if bit:
                         acc = old[j] if acc is None else multiply(acc, old[j])
-                new.append((acc[0], acc[1], ((acc[2].astype(np.int64) + e) & 3).astype(np.uint8)))
-            for g, (x, z, e) in zip(gens, new):
-                self.x[g], self.z[g], self.e[g] = x, z, e
+                        fx, fxz = fx ^ old_f[j][0], fxz ^ old_f[j][1]
+                new.append((acc[0], acc[1], ((acc[2].astype(np.int64) + e) & 3).astype(np.uint8), fx, fxz))
+            for g, (x, z, e, fx, fxz) in zip(gens, new):
+                self.x[g], self.z[g], self.e[g], self.fx[g], self.fxz[g] = x, z, e, fx, fxz
 
     def to_stim(self):
         """The same map as a ``stim.Tableau`` (for powers of large blocks; see _walk)."""
@@ -198,4 +249,5 @@ class Frame:
         f.z[: 2 * n] = pack(np.vstack([x2z, z2z]))
         base = popcount(f.x[: 2 * n] & f.z[: 2 * n]) + 2 * np.concatenate([xs, zs]).astype(np.int64)
         f.e[: 2 * n] = (base & 3).astype(np.uint8)
+        f.fx, f.fxz = fingerprints(f.x, None), fingerprints(f.x, f.z)
         return f

@@ -1,24 +1,26 @@
-"""Each layer's error terms as local Pauli strings, ready to be mapped through a Pauli frame.
+"""Each layer's error terms as local Pauli strings on *sites*, ready to be mapped through a frame.
 
-One operation's error (design.md §2) becomes, to first order in the generator picture
-(Blume-Kohout et al., "A taxonomy of small Markovian errors", PRX Quantum 3, 020335 (2022)):
+One operation's error (design.md §2) becomes, in the generator picture (Blume-Kohout et al.,
+"A taxonomy of small Markovian errors", PRX Quantum 3, 020335 (2022)):
 
 - coherent terms h_P P from ``NoisyOperation.hamiltonian`` (coherent = exp(-i Σ h_P P), exact);
-- stochastic Pauli terms s_P from ``pauli_rates``, from depolarizing λ (each non-identity Pauli at
+- stochastic Pauli rates p_P from ``pauli_rates``, from depolarizing λ (each non-identity Pauli at
   λ/d²: ρ -> (1-λ)ρ + λ I/d = (1 - λ + λ/d²) ρ + (λ/d²) Σ_{P≠I} P ρ P), and from T1/T2 relaxation
-  through its Pauli twirl (p_x, p_y, p_z; Tomita & Svore, Phys. Rev. A 90, 062320 (2014)), for each
-  operation and for each idle slot of the layer;
+  through its Pauli twirl (p_x, p_y, p_z; Tomita & Svore, Phys. Rev. A 90, 062320 (2014));
 - unit terms: the first-order generator of each coherent knob (``knob_generators``), for the
   quadratic form.
 
-A term is stored as four frame-row indices [X_a, X_b, Z_a, Z_b] (2n = "not present"), its phase
-exponent e0 (the label's Y count), a coefficient and the index of its source (operation or idle
-qubit) for shares and drill-down.
+A *site* is one operation of the layer, or one idle qubit that relaxes. Its four frame rows are
+[X_a, X_b, Z_a, Z_b] (2n where the site has one qubit), and a local Pauli is a 4-bit index
+v = x_a + 2 x_b + 4 z_a + 8 z_b with phase exponent e0 (the label's Y count): the operator
+i^e0 X_a^{x_a} X_b^{x_b} Z_a^{z_a} Z_b^{z_b}. Stochastic rates of a site form one row of 16.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import lru_cache
+from typing import Callable
 
 import numpy as np
 
@@ -26,24 +28,51 @@ from budget.circuit.clifford_check import label_bits
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
 
 
-@dataclass(frozen=True)
-class Terms:
-    """A batch of local error terms (see module docstring)."""
+@lru_cache(maxsize=None)
+def local_index(label: str) -> tuple[int, int]:
+    """(v, e0) of a one- or two-letter Hermitian Pauli label, e.g. ``"XY"`` -> (1 + 2 + 8, 1)."""
+    x, z, e = label_bits(label)
+    x, z = x + (0,) * (2 - len(x)), z + (0,) * (2 - len(z))
+    return x[0] + 2 * x[1] + 4 * z[0] + 8 * z[1], e
 
-    slots: np.ndarray  # (T, 4) int64
-    e0: np.ndarray  # (T,) uint8
-    coef: np.ndarray  # (T,) float64
-    src: np.ndarray  # (T,) int64: source index, or knob-label index for unit terms
+
+@dataclass(frozen=True)
+class SiteTerms:
+    """Terms on the sites of one layer: site index, local Pauli v, phase e0, coefficient, tag
+    (source index for Hamiltonian terms, knob-label index for unit terms)."""
+
+    site: np.ndarray
+    v: np.ndarray
+    e0: np.ndarray
+    coef: np.ndarray
+    tag: np.ndarray
 
     def __len__(self) -> int:
         return len(self.coef)
 
 
 @dataclass(frozen=True)
-class LayerTerms:
-    coherent: Terms
-    stochastic: Terms
-    unit: Terms | None = None
+class LayerTable:
+    """One layer's sites and terms.
+
+    Attributes:
+        rows: (S, 4) frame rows of each site.
+        source: (S,) source index of each site (every term of a site has the site's source).
+        coherent: Hamiltonian terms.
+        rates: (S, 16) stochastic rate of each local Pauli (column 0 unused).
+        unit: knob unit terms (only when the quadratic form is asked for).
+    """
+
+    rows: np.ndarray
+    source: np.ndarray
+    coherent: SiteTerms
+    rates: np.ndarray
+    unit: SiteTerms | None = None
+
+
+def _empty_terms() -> SiteTerms:
+    z = np.zeros(0, np.int64)
+    return SiteTerms(z, z.astype(np.uint8), z.astype(np.uint8), z.astype(float), z)
 
 
 @dataclass
@@ -51,58 +80,30 @@ class Sources:
     """Registry of error sources: each distinct operation (by object) and each idle qubit.
 
     ``families[i]`` is source i's family; ``info[i]`` a JSON-ready description for drill-down.
-    Knob labels ((family, knob) pairs) for the quadratic form are registered in ``labels``, with
-    ``scale[label]`` the representative knob value the unit terms are measured against.
+    Knob labels ((family, knob) pairs) for the quadratic form are numbered in ``labels``.
     """
 
     families: list[str] = field(default_factory=list)
     info: list[dict] = field(default_factory=list)
     index: dict = field(default_factory=dict)
     labels: dict[tuple[str, str], int] = field(default_factory=dict)
-    scale: dict[tuple[str, str], float] = field(default_factory=dict)
 
-    def of_operation(self, nop: NoisyOperation, qubit_names: tuple[str, ...]) -> int:
-        key = id(nop)
+    def _add(self, key, family: str, info: dict) -> int:
         if key not in self.index:
             self.index[key] = len(self.families)
-            self.families.append(nop.family)
-            self.info.append(
-                {
-                    "family": nop.family,
-                    "gate": nop.op.gate,
-                    "qubits": [qubit_names[q] for q in nop.qubits],
-                    "line": nop.op.line,
-                }
-            )
+            self.families.append(family)
+            self.info.append(info)
         return self.index[key]
 
-    def of_idle(self, qubit: int, qubit_names: tuple[str, ...]) -> int:
-        key = (IDLE, qubit)
-        if key not in self.index:
-            self.index[key] = len(self.families)
-            self.families.append(IDLE)
-            self.info.append({"family": IDLE, "gate": IDLE, "qubits": [qubit_names[qubit]], "line": None})
-        return self.index[key]
+    def of_operation(self, nop: NoisyOperation, names: tuple[str, ...]) -> int:
+        return self._add(
+            id(nop),
+            nop.family,
+            {"family": nop.family, "gate": nop.op.gate, "qubits": [names[q] for q in nop.qubits], "line": nop.op.line},
+        )
 
-
-def _template(items: dict[str, float], k: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    labels = [lab for lab, c in items.items() if c != 0.0]
-    if not labels:
-        return np.zeros((0, 2), np.int64), np.zeros((0, 2), np.int64), np.zeros(0, np.uint8), np.zeros(0)
-    bits = [label_bits(lab) for lab in labels]
-    lx = np.zeros((len(labels), 2), np.int64)
-    lz = np.zeros((len(labels), 2), np.int64)
-    lx[:, :k] = [b[0] for b in bits]
-    lz[:, :k] = [b[1] for b in bits]
-    e0 = np.array([b[2] for b in bits], dtype=np.uint8)
-    return lx, lz, e0, np.array([items[lab] for lab in labels], dtype=float)
-
-
-def _all_labels(k: int) -> list[str]:
-    out = [""]
-    for _ in range(k):
-        out = [a + b for a in out for b in "IXYZ"]
-    return out[1:]
+    def of_idle(self, qubit: int, names: tuple[str, ...]) -> int:
+        return self._add((IDLE, qubit), IDLE, {"family": IDLE, "gate": IDLE, "qubits": [names[qubit]], "line": None})
 
 
 def twirl_rates(r: Relaxation, k: int, pos: int) -> dict[str, float]:
@@ -112,94 +113,139 @@ def twirl_rates(r: Relaxation, k: int, pos: int) -> dict[str, float]:
     return {pad("X"): px, pad("Y"): py, pad("Z"): pz}
 
 
+def _labels(k: int) -> list[str]:
+    out = [""]
+    for _ in range(k):
+        out = [a + b for a in out for b in "IXYZ"]
+    return out[1:]
+
+
 def stochastic_rates(nop: NoisyOperation) -> dict[str, float]:
     """Label -> first-order stochastic rate of one operation (Pauli rates + depolarizing + twirl)."""
     k = len(nop.qubits)
     rates: dict[str, float] = {}
-
-    def add(label: str, p: float) -> None:
-        rates[label] = rates.get(label, 0.0) + p
-
-    for label, p in nop.pauli_rates.items():
-        add(label, p)
+    parts = [nop.pauli_rates]
     if nop.depolarizing:
-        for label in _all_labels(k):
-            add(label, nop.depolarizing / 4**k)
-    for r in nop.relaxation:
-        if not r.is_trivial:
-            for label, p in twirl_rates(r, k, nop.qubits.index(r.qubit)).items():
-                add(label, p)
+        parts.append({label: nop.depolarizing / 4**k for label in _labels(k)})
+    parts += [twirl_rates(r, k, nop.qubits.index(r.qubit)) for r in nop.relaxation if not r.is_trivial]
+    for part in parts:
+        for label, p in part.items():
+            rates[label] = rates.get(label, 0.0) + p
     return rates
 
 
+def _row16(rates: dict[str, float]) -> np.ndarray:
+    row = np.zeros(16)
+    for label, p in rates.items():
+        row[local_index(label)[0]] += p
+    return row
+
+
+def _local(items: dict[str, float]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    kept = [(local_index(lab), c) for lab, c in items.items() if c != 0.0]
+    v = np.array([a[0] for a, _ in kept], dtype=np.uint8)
+    e0 = np.array([a[1] for a, _ in kept], dtype=np.uint8)
+    return v, e0, np.array([c for _, c in kept], dtype=float)
+
+
 class TermBuilder:
-    """Builds (and caches per layer object) the terms of each layer of one circuit."""
+    """Builds (and caches per layer object) the site tables of one circuit.
 
-    def __init__(self, n: int, qubit_names: tuple[str, ...], sources: Sources, with_unit: bool = False):
+    ``grouping`` (for the quadratic form) maps an operation to its (knob label, unit generator)
+    pairs, as :func:`budget.engines._knobs.knob_grouping` does; unit terms are then collected.
+    """
+
+    def __init__(self, n: int, names: tuple[str, ...], sources: Sources, grouping: Callable | None = None):
         self.n = n
-        self.names = qubit_names
+        self.names = names
         self.sources = sources
-        self.with_unit = with_unit
-        self._layers: dict[int, LayerTerms] = {}
-        self._templates: dict[tuple, tuple] = {}
+        self.grouping = grouping
+        self.with_unit = grouping is not None
+        self._layers: dict[int, LayerTable] = {}
+        self._content: dict[tuple, LayerTable] = {}
+        self._alive: list[NoisyLayer] = []  # keeps cached layers alive so their ids stay unique
+        self._ops: dict[int, tuple] = {}
+        self._idle: dict[tuple, np.ndarray] = {}
 
-    def layer(self, layer: NoisyLayer) -> LayerTerms:
-        key = id(layer)
-        if key not in self._layers:
-            self._layers[key] = self._build(layer)
-        return self._layers[key]
+    def layer(self, layer: NoisyLayer) -> LayerTable:
+        """The layer's table, cached by object and by content (layers written out again and again
+        with the same operation objects share one table)."""
+        hit = self._layers.get(id(layer))
+        if hit is None:
+            content = (
+                tuple(map(id, layer.operations)),
+                tuple((r.qubit, r.gamma, r.dephasing_factor) for r in layer.idle),
+            )
+            hit = self._content.get(content)
+            if hit is None:
+                hit = self._content[content] = self._build(layer)
+            self._layers[id(layer)] = hit
+            self._alive.append(layer)
+        return hit
 
-    def _cached(self, kind: str, items: dict[str, float], k: int) -> tuple:
-        key = (kind, k, tuple(sorted(items.items())))
-        if key not in self._templates:
-            self._templates[key] = _template(items, k)
-        return self._templates[key]
+    def _op(self, nop: NoisyOperation) -> tuple:
+        """(source, qubit a, qubit b or -1, (v, e0, coef) of the Hamiltonian, 16 rates, unit terms)."""
+        hit = self._ops.get(id(nop))
+        if hit is not None:
+            return hit
+        unit = []
+        if self.grouping is not None:
+            for lab, gen in self.grouping(nop):
+                idx = self.sources.labels.setdefault(lab, len(self.sources.labels))
+                unit.append((idx,) + _local(gen))
+        qs = nop.op.qubits
+        info = (
+            self.sources.of_operation(nop, self.names),
+            qs[0],
+            qs[1] if len(qs) == 2 else -1,
+            _local(nop.hamiltonian),
+            _row16(stochastic_rates(nop)),
+            unit,
+            nop,  # keeps the object alive so its id stays unique
+        )
+        self._ops[id(nop)] = info
+        return info
 
-    def _build(self, layer: NoisyLayer) -> LayerTerms:
-        coh: list[tuple] = []
-        sto: list[tuple] = []
-        unit: list[tuple] = []
-        for nop in layer.operations:
-            k = len(nop.qubits)
-            qa = nop.qubits[0]
-            qb = nop.qubits[1] if k == 2 else -1
-            src = self.sources.of_operation(nop, self.names)
-            if nop.hamiltonian:
-                coh.append((qa, qb, src) + self._cached("h", nop.hamiltonian, k))
-            rates = stochastic_rates(nop)
-            if rates:
-                sto.append((qa, qb, src) + self._cached("s", rates, k))
-            if self.with_unit:
-                for knob, gen in nop.knob_generators.items():
-                    lab = (nop.family, knob)
-                    ref = self.sources.scale.get(lab, 0.0)
-                    factor = nop.knob_values.get(knob, 0.0) / ref if ref else 1.0
-                    if factor == 0.0:
-                        continue
-                    idx = self.sources.labels.setdefault(lab, len(self.sources.labels))
-                    scaled = {p: c * factor for p, c in gen.items()}
-                    unit.append((qa, qb, idx) + _template(scaled, k))
-        for r in layer.idle:
-            if not r.is_trivial:
-                src = self.sources.of_idle(r.qubit, self.names)
-                sto.append((r.qubit, -1, src) + self._cached("s", twirl_rates(r, 1, 0), 1))
-        return LayerTerms(self._pack(coh), self._pack(sto), self._pack(unit) if self.with_unit else None)
+    def _idle_site(self, r: Relaxation) -> tuple:
+        key = (r.qubit, r.gamma, r.dephasing_factor)
+        if key not in self._idle:
+            self._idle[key] = (self.sources.of_idle(r.qubit, self.names), r.qubit, -1, _row16(twirl_rates(r, 1, 0)))
+        return self._idle[key]
 
-    def _pack(self, parts: list[tuple]) -> Terms:
-        none = 2 * self.n
-        if not parts:
-            return Terms(np.zeros((0, 4), np.int64), np.zeros(0, np.uint8), np.zeros(0), np.zeros(0, np.int64))
-        counts = np.array([len(p[6]) for p in parts])
-        qa = np.repeat([p[0] for p in parts], counts)
-        qb = np.repeat([p[1] for p in parts], counts)
-        src = np.repeat([p[2] for p in parts], counts)
-        lx = np.concatenate([p[3] for p in parts])
-        lz = np.concatenate([p[4] for p in parts])
-        slots = np.empty((len(qa), 4), np.int64)
-        slots[:, 0] = np.where(lx[:, 0] == 1, qa, none)
-        slots[:, 1] = np.where(lx[:, 1] == 1, qb, none)
-        slots[:, 2] = np.where(lz[:, 0] == 1, self.n + qa, none)
-        slots[:, 3] = np.where(lz[:, 1] == 1, self.n + qb, none)
-        e0 = np.concatenate([p[5] for p in parts])
-        coef = np.concatenate([p[6] for p in parts])
-        return Terms(slots, e0, coef, src.astype(np.int64))
+    def _build(self, layer: NoisyLayer) -> LayerTable:
+        n, none = self.n, 2 * self.n
+        ops = [self._op(nop) for nop in layer.operations]
+        sites = [(o[0], o[1], o[2], o[4]) for o in ops] + [self._idle_site(r) for r in layer.idle if not r.is_trivial]
+        src = np.fromiter((t[0] for t in sites), np.int64, len(sites))
+        qa = np.fromiter((t[1] for t in sites), np.int64, len(sites))
+        qb = np.fromiter((t[2] for t in sites), np.int64, len(sites))
+        rates = np.array([t[3] for t in sites]).reshape(-1, 16)
+        rows = np.stack([qa, np.where(qb >= 0, qb, none), n + qa, np.where(qb >= 0, n + qb, none)], axis=1)
+        coh = [(s, o[0]) + o[3] for s, o in enumerate(ops) if len(o[3][2])]
+        unit = [(s, idx, v, e0, c) for s, o in enumerate(ops) for idx, v, e0, c in o[5]]
+        return LayerTable(rows, src, _pack(coh), rates, _pack(unit) if self.with_unit else None)
+
+
+def _pack(parts: list[tuple]) -> SiteTerms:
+    if not parts:
+        return _empty_terms()
+    counts = [len(p[4]) for p in parts]
+    return SiteTerms(
+        site=np.repeat(np.array([p[0] for p in parts], np.int64), counts),
+        v=np.concatenate([p[2] for p in parts]),
+        e0=np.concatenate([p[3] for p in parts]),
+        coef=np.concatenate([p[4] for p in parts]),
+        tag=np.repeat(np.array([p[1] for p in parts], np.int64), counts),
+    )
+
+
+def term_slots(table: LayerTable, terms: SiteTerms, n: int) -> np.ndarray:
+    """(T, 4) frame rows of each term's generators (2n where absent), for full-bit images."""
+    bits = (terms.v[:, None].astype(np.int64) >> np.arange(4)) & 1
+    return np.where(bits == 1, table.rows[terms.site], 2 * n)
+
+
+def stochastic_terms(table: LayerTable) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(site, v, rate) of every non-zero stochastic rate of a layer."""
+    site, v = np.nonzero(table.rates)
+    return site, v.astype(np.uint8), table.rates[site, v]

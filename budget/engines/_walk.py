@@ -50,6 +50,9 @@ class Sink(Protocol):
 class Walker:
     """One pass over a circuit in one direction (see module docstring).
 
+    ``plans`` may be shared between walkers over the same circuit objects (gate classes per layer
+    and direction, keyed by object id; the caller keeps the circuit alive meanwhile).
+
     Attributes:
         frame: the running map; after :meth:`run`, the map of the whole circuit.
         periods: (block count N, period r or None) for every block folded.
@@ -57,7 +60,15 @@ class Walker:
         layers_walked: executed layers actually visited (cost measure).
     """
 
-    def __init__(self, n: int, direction: str, sink: Sink | None = None, *, max_unrolled: int = MAX_UNROLLED):
+    def __init__(
+        self,
+        n: int,
+        direction: str,
+        sink: Sink | None = None,
+        *,
+        max_unrolled: int = MAX_UNROLLED,
+        plans: dict | None = None,
+    ):
         if direction not in ("pull", "push"):
             raise ValueError(f"direction {direction!r}: expected 'pull' or 'push'")
         self.n = n
@@ -69,7 +80,7 @@ class Walker:
         self.warnings: list[str] = []
         self.layers_walked = 0
         self._emit = sink is not None
-        self._plans: dict[int, tuple[GateClass, ...]] = {}
+        self._plans: dict[tuple, tuple[GateClass, ...]] = {} if plans is None else plans
 
     def run(self, items: tuple[NoisyItem, ...]) -> Frame:
         self._items(items)
@@ -83,15 +94,25 @@ class Walker:
                 self._repeat(it)
 
     def _plan(self, layer: NoisyLayer) -> tuple[GateClass, ...]:
-        key = id(layer)
+        key = (id(layer), self.direction)
         if key not in self._plans:
-            ops = []
+            content = (tuple(map(id, layer.operations)), self.direction)
+            if content in self._plans:
+                self._plans[key] = self._plans[content]
+                self._plans.setdefault("alive", []).append(layer)
+                return self._plans[key]
+            ops = self._plans.setdefault("ops", {})
+            pairs = []
             for nop in layer.operations:
-                cl = operation_clifford(nop.op)
-                if cl is None:
-                    raise ValueError(f"operation {nop.op.gate} on {nop.qubits} is not Clifford")
-                ops.append((nop.qubits, cl))
-            self._plans[key] = layer_classes(ops, self.direction)
+                hit = ops.get(id(nop))
+                if hit is None:
+                    cl = operation_clifford(nop.op)
+                    if cl is None:
+                        raise ValueError(f"operation {nop.op.gate} on {nop.op.qubits} is not Clifford")
+                    hit = ops[id(nop)] = (nop.op.qubits, cl, nop)
+                pairs.append(hit[:2])
+            self._plans[key] = self._plans[content] = layer_classes(pairs, self.direction)
+            self._plans.setdefault("alive", []).append(layer)
         return self._plans[key]
 
     def _layer(self, layer: NoisyLayer) -> None:
@@ -139,7 +160,7 @@ class Walker:
         self.periods.append((count, None))
         if self._emit:
             self.sink.scale(marks[0], marks[-1], float(np.sqrt(ratio)), ratio)
-        block = Walker(self.n, self.direction, max_unrolled=self.max_unrolled)
+        block = Walker(self.n, self.direction, max_unrolled=self.max_unrolled, plans=self._plans)
         block.run(rep.body)
         power = block.frame.to_stim() ** count
         self.frame = Frame.from_stim(power.then(start.to_stim()))

@@ -14,8 +14,10 @@ as packed bits (:mod:`budget.engines._pauli_frame`), and amplitudes add within a
 
 (the state sum is Var_{0…0}(H_in) written per X part). Repeated blocks are folded by the period of
 their Clifford (:mod:`budget.engines._walk`); observables use only their backward light cone
-(:mod:`budget.engines._cone`). The reported infidelity is the resummed 1 - Π cos²|A_g| Π (1 - p)
-(:mod:`budget.engines._groups`); ``first_order`` is the sum above.
+(:mod:`budget.engines._cone`). As in the generators engine, the reported infidelity is the
+resummed coherent part 1 - Π cos²|A_g| plus the first-order stochastic part, and the family shares
+(coherent shares scaled by resummed / first order) add up to it (:mod:`budget.engines._groups`);
+``first_order`` is the sum above, ``details["first_order_family_shares"]`` its split.
 """
 
 from __future__ import annotations
@@ -24,8 +26,9 @@ import numpy as np
 
 from budget.circuit.clifford_check import first_non_clifford, label_bits
 from budget.engines._cone import light_cone
+from budget.engines._knobs import knob_grouping
 from budget.engines._groups import Budget, aggregate, quadratic_matrix
-from budget.engines._sinks import ObservableSink, PauliSink
+from budget.engines._sinks import GroupSink, LandingSink, ObservableSink
 from budget.engines._terms import Sources, TermBuilder
 from budget.engines._walk import MAX_UNROLLED, Walker
 from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable
@@ -33,6 +36,8 @@ from budget.errors.noisy import NoisyCircuit
 from budget.problems import TooLargeError, place
 
 SMALL = 0.1
+LANDING_BUDGET = 4e8
+"""Largest (error terms walked) x (qubits) for which the per-qubit map is computed by default."""
 """First-order infidelity above which the engine warns that the expansion is no longer small."""
 
 TWIRL_NOTE = (
@@ -55,7 +60,9 @@ class CliffordEngine:
 
     Args:
         max_unrolled: repetitions of a block walked while looking for its period.
-        qubit_map: compute the per-qubit map of where the error lands (output frame).
+        qubit_map: the per-qubit map of where the error lands (output frame): True computes it when
+            it costs at most LANDING_BUDGET bit operations (terms walked x qubits), ``"always"``
+            always, False never.
         top: number of operations listed in the drill-down.
         prune_observables: evaluate observables on their backward light cone only.
     """
@@ -66,7 +73,7 @@ class CliffordEngine:
         self,
         *,
         max_unrolled: int = MAX_UNROLLED,
-        qubit_map: bool = True,
+        qubit_map: bool | str = True,
         top: int = 10,
         prune_observables: bool = True,
     ):
@@ -79,7 +86,8 @@ class CliffordEngine:
         """None when every ideal gate is Clifford, else the first offending gate and its line."""
         if metric not in METRICS:
             return f"metric {metric!r} is not one of {', '.join(METRICS)}"
-        op = first_non_clifford(nop.op for layer in circuit.distinct_layers() for nop in layer.operations)
+        distinct = {id(nop): nop.op for layer in circuit.distinct_layers() for nop in layer.operations}
+        op = first_non_clifford(distinct.values())
         if op is None:
             return None
         angles = f"({', '.join(f'{a:.6g}' for a in op.params)})" if op.params else ""
@@ -94,34 +102,24 @@ class CliffordEngine:
         if reason is not None:
             raise TooLargeError(f"engine clifford: {reason}")
 
-    def _pass(self, circuit: NoisyCircuit, metric: str, *, unit: bool = False, landing: bool = False):
-        sources = Sources()
-        if unit:
-            sources.scale.update(_knob_scales(circuit))
-        builder = TermBuilder(circuit.num_qubits, circuit.qubits, sources, with_unit=unit)
-        sink = PauliSink(builder, key="x" if metric == "state" else "xz", landing=landing, unit=unit)
-        walker = Walker(circuit.num_qubits, "pull" if metric == "state" else "push", sink, max_unrolled=self.max_unrolled)
+    def _pass(self, circuit: NoisyCircuit, metric: str, plans: dict, *, grouping=None, labels=()):
+        sources = Sources(labels={lab: i for i, lab in enumerate(labels)})
+        builder = TermBuilder(circuit.num_qubits, circuit.qubits, sources, grouping)
+        sink = GroupSink(builder, key="x" if metric == "state" else "xz", unit=grouping is not None)
+        direction = "pull" if metric == "state" else "push"
+        walker = Walker(circuit.num_qubits, direction, sink, max_unrolled=self.max_unrolled, plans=plans)
         walker.run(circuit.body)
         return sources, sink, walker
 
     def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
         """First-order and resummed infidelity, family shares, drill-down, qubit map, observables."""
         self._check(circuit, metric)
-        n = circuit.num_qubits
-        sources, sink, walker = self._pass(circuit, metric, landing=self.qubit_map and metric == "process")
-        budget = aggregate(sink, len(sources.families), n, state=metric == "state", landing=self.qubit_map and metric == "process")
+        plans: dict = {}
+        sources, sink, walker = self._pass(circuit, metric, plans)
+        budget = aggregate(sink, len(sources.families), state=metric == "state")
         warnings = list(walker.warnings)
-        details: dict = {}
-        landing = budget.landing
-        if self.qubit_map and metric == "state":
-            psrc, psink, pwalk = self._pass(circuit, "process", landing=True)
-            pb = aggregate(psink, len(psrc.families), n, state=False, landing=True)
-            landing = pb.landing
-            details["process_first_order"] = pb.first_order
-        fo = budget.first_order
-        total = budget.resummed
-        fam_fo = _by_family(sources, budget.source_shares)
-        shares = {f: v * total / fo for f, v in fam_fo.items()} if fo > 0 else dict(fam_fo)
+        fo, total = budget.first_order, budget.total
+        shares = _by_family(sources, budget.shares)
         if fo > SMALL or budget.max_amplitude > np.sqrt(SMALL):
             warnings.append(
                 f"first-order infidelity {fo:.3g} is no longer small (largest summed coherent amplitude "
@@ -130,17 +128,12 @@ class CliffordEngine:
             )
         if metric == "state" and _has_relaxation(circuit):
             warnings.append(TWIRL_NOTE)
-        details.update(_details(budget, sources, walker, self.top))
-        if landing is not None:
-            details["qubit_map"] = {name: float(v) for name, v in zip(circuit.qubits, landing)}
-            details["qubit_map_quantity"] = "first-order marginal process infidelity per qubit, output frame"
-        obs: dict[str, float] = {}
-        if observables:
-            for label in observables:
-                coh, sto = self.observable_error(circuit, label)
-                obs[label] = coh + sto
-            if _has_relaxation(circuit):
-                warnings.append("observables: T1/T2 relaxation enters through its Pauli twirl (first order)")
+        details = _details(budget, sources, walker, self.top)
+        cost = (sink.terms_emitted + sink.rates_emitted) * circuit.num_qubits
+        details.update(self._qubit_map(circuit, cost, sink.builder, plans))
+        obs = {label: self.observable_error(circuit, label, _plans=plans) for label in observables}
+        if observables and _has_relaxation(circuit):
+            warnings.append("observables: T1/T2 relaxation enters through its Pauli twirl (first order)")
         return EngineResult(
             engine=self.name,
             metric=metric,
@@ -152,8 +145,23 @@ class CliffordEngine:
             observable_errors=obs,
         )
 
-    def observable_error(self, circuit: NoisyCircuit, label: str, *, prune: bool | None = None) -> tuple[float, float]:
-        """(coherent, stochastic) first-order change of <O> for the Pauli observable ``label``.
+    def _qubit_map(self, circuit: NoisyCircuit, cost: float, builder: TermBuilder, plans: dict) -> dict:
+        if not self.qubit_map:
+            return {}
+        if self.qubit_map != "always" and cost > LANDING_BUDGET:
+            return {"qubit_map_skipped": f"about {cost:.2g} bit operations (limit {LANDING_BUDGET:.2g}); use qubit_map='always'"}
+        sink = LandingSink(builder)
+        Walker(circuit.num_qubits, "push", sink, max_unrolled=self.max_unrolled, plans=plans).run(circuit.body)
+        land = sink.landing(circuit.num_qubits)
+        return {
+            "qubit_map": {name: float(v) for name, v in zip(circuit.qubits, land)},
+            "qubit_map_quantity": "first-order marginal process infidelity per qubit at the output",
+        }
+
+    def observable_error(
+        self, circuit: NoisyCircuit, label: str, *, prune: bool | None = None, _plans: dict | None = None
+    ) -> float:
+        """First-order change <O>_actual - <O>_ideal of the Pauli observable ``label``.
 
         δ<O> = i<ψ|[H_total, O]|ψ> (coherent) and -2 p <O> for each stochastic Pauli that
         anticommutes with O; only the backward light cone of O's qubits is walked unless
@@ -168,60 +176,52 @@ class CliffordEngine:
         else:
             sub = circuit
         m = sub.num_qubits
-        whole = Walker(m, "pull", max_unrolled=self.max_unrolled).run(sub.body)
+        plans = _plans if (_plans is not None and not prune) else {}
+        whole = Walker(m, "pull", max_unrolled=self.max_unrolled, plans=plans).run(sub.body)
         qs = sorted(paulis)
         x, z, e = label_bits("".join(paulis[q] for q in qs))
         slots = [q for q, b in zip(qs, x) if b] + [m + q for q, b in zip(qs, z) if b]
         xo, zo, eo = whole.image(np.array([slots]), np.array([e], np.uint8))
         sink = ObservableSink(TermBuilder(m, sub.qubits, Sources()), (xo[0], zo[0], int(eo[0])))
-        Walker(m, "pull", sink, max_unrolled=self.max_unrolled).run(sub.body)
+        Walker(m, "pull", sink, max_unrolled=self.max_unrolled, plans=plans).run(sub.body)
         return sink.total()
 
     def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:
         """e ≈ δᵀ A δ + floor over (family, knob) labels, from the knobs' first-order generators.
 
-        Each label's value δ is the knob value of largest magnitude among the family's
-        operations; an operation with another value enters A scaled by its value / δ, so δᵀAδ
-        is the first-order coherent infidelity at today's values and A answers "scale this
-        family's knob". The floor is the first-order stochastic infidelity.
+        Labels and values as in :func:`budget.engines._knobs.knob_grouping` (shared with the
+        generators engine): δ is the knob value of largest magnitude in the family, each operation
+        enters scaled by its value / δ, and operations with a Hamiltonian but no knobs form the
+        knob ``"pauli"`` with δ = 1. A_ab = Σ_g Re(conj(B_ga) B_gb) over the groups of
+        propagated unit generators; the floor is the first-order stochastic infidelity.
         """
         self._check(circuit, metric)
-        sources, sink, _ = self._pass(circuit, metric, unit=True)
-        labels = sorted(sources.labels, key=sources.labels.get)
+        grouping, values = knob_grouping(circuit)
+        labels = tuple(values)
+        sources, sink, _ = self._pass(circuit, metric, {}, grouping=grouping, labels=labels)
         a = quadratic_matrix(sink, len(labels), state=metric == "state")
-        sto = sink.stochastic_by_source(len(sources.families))
-        floor_sources: dict[str, float] = {}
-        for f, v in zip(sources.families, sto):
-            floor_sources[f] = floor_sources.get(f, 0.0) + float(v)
-        values = np.array([sources.scale.get(lab, 0.0) for lab in labels])
-        return QuadraticForm(tuple(labels), a, values, float(np.sum(sto)), floor_sources)
-
-
-def _knob_scales(circuit: NoisyCircuit) -> dict[tuple[str, str], float]:
-    out: dict[tuple[str, str], float] = {}
-    for layer in circuit.distinct_layers():
-        for nop in layer.operations:
-            for knob in nop.knob_generators:
-                v = float(nop.knob_values.get(knob, 0.0))
-                key = (nop.family, knob)
-                if abs(v) > abs(out.get(key, 0.0)):
-                    out[key] = v
-                out.setdefault(key, v)
-    return out
+        floor = _by_family(sources, sink.stochastic_by_source(len(sources.families)))
+        return QuadraticForm(
+            labels, a, np.array([values[lab] for lab in labels], dtype=float), float(sum(floor.values())), floor
+        )
 
 
 def _details(b: Budget, sources: Sources, walker: Walker, top: int) -> dict:
-    order = np.argsort(-np.abs(b.source_shares))[:top]
+    shares = b.first_order_shares
+    order = np.argsort(-np.abs(shares))[:top]
+    blocks: dict[tuple, int] = {}
+    for count, period in walker.periods:
+        blocks[(count, period)] = blocks.get((count, period), 0) + 1
     return {
-        "first_order_coherent": b.coherent,
-        "first_order_stochastic": b.stochastic,
-        "resummed": b.resummed,
+        "coherent_first_order": b.coherent,
+        "coherent_exponentiated": b.coherent_resummed,
+        "stochastic_first_order": b.stochastic,
         "coherent_groups": b.groups,
         "max_group_amplitude_rad": b.max_amplitude,
-        "folded_blocks": [{"count": c, "period": p} for c, p in walker.periods],
+        "folded_blocks": [{"count": c, "period": p, "walks": w} for (c, p), w in blocks.items()],
         "layers_walked": walker.layers_walked,
-        "first_order_family_shares": _by_family(sources, b.source_shares),
-        "top_operations": [dict(sources.info[i], share=float(b.source_shares[i])) for i in order if b.source_shares[i]],
+        "first_order_family_shares": _by_family(sources, shares),
+        "top_operations": [dict(sources.info[i], first_order_share=float(shares[i])) for i in order if shares[i]],
     }
 
 
