@@ -62,6 +62,8 @@ def apply(batch: np.ndarray, op: LocalOp, num_qubits: int) -> np.ndarray:
     """``op`` applied to every vector in ``batch`` (shape (B, 2**n) or (2**n,)); a new array."""
     shape = batch.shape
     b = batch.reshape(-1, 2**num_qubits)
+    if b.shape[0] == 0:
+        return batch.copy()
     qs = op.qubits
     lo, hi = qs[0], qs[-1]
     contiguous = hi - lo == len(qs) - 1
