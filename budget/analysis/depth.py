@@ -38,6 +38,8 @@ CROSSOVER_FACTOR = 2.0
 
 Progress = Callable[[int, int], None]
 MAX_CLOSED_FORM_QUBITS = 10
+EXACT_CURVE_QUBITS = 3
+"""With engine ``auto``, cycles on up to this many qubits use the exact engine at every point."""
 
 
 def repetition_grid(max_cycles: int, points: int) -> tuple[int, ...]:
@@ -143,16 +145,26 @@ def _first_true(pred: Callable[[int], bool], grid: tuple[int, ...]) -> int | Non
 
 
 def _engine_series(block: NoisyCircuit, metric: str, engine: str, deepest: int, label: str) -> tuple[_Series, str, list[str]]:
-    """One curve from an engine. For the generators engine and the process metric the curve is
+    """One curve from an engine.
+
+    ``auto`` on up to EXACT_CURVE_QUBITS qubits: the exact engine at every point (matrix powers, cheap
+    at that size). Else, for the process metric with ``auto`` or ``generators``, the curve is
     the periodic closed form: coherent part from one Schur decomposition of the cycle, stochastic
-    part N times the cycle's (exactly what the engine computes for a repeat, without re-running it)."""
+    part N times the cycle's, exactly what the generators engine computes for a repeat, without
+    re-running it per point. Otherwise every point is one run of the chosen engine on the folded
+    repeat (the exact engine takes matrix powers, the clifford engine folds whole periods)."""
     from budget.analysis.select import choose_engine
+    from budget.engines import get_engine
 
     notes: list[str] = []
+    small = engine == "auto" and block.num_qubits <= EXACT_CURVE_QUBITS
+    if metric == "process" and engine in ("auto", "generators") and not small and block.num_qubits <= MAX_CLOSED_FORM_QUBITS:
+        gen = get_engine("generators")
+        if gen.fits(_repeated(block, 2), metric) is None:
+            deep = gen.run(_repeated(block, deepest), metric)
+            notes.extend(f"{label} curve (generators engine) at N = {deepest:,}: {w}" for w in deep.warnings[:1])
+            return _closed_form(block, gen), "generators (periodic closed form)", notes
     chosen = choose_engine(_repeated(block, 2), metric, engine)
-    if chosen.name == "generators" and metric == "process" and block.num_qubits <= MAX_CLOSED_FORM_QUBITS:
-        notes.extend(f"{label} curve ({chosen.name} engine) at N = {deepest:,}: {w}" for w in chosen.run(_repeated(block, deepest), metric).warnings[:1])
-        return _closed_form(block, chosen), chosen.name, notes
 
     def run(n: int) -> float:
         result = chosen.run(_repeated(block, n), metric)

@@ -99,6 +99,10 @@ def minutes(seconds: float) -> str:
     return f"{seconds / 3600:.1f} h"
 
 
+def _count(n: int, word: str) -> str:
+    return f"{n:,} {word}" + ("" if n == 1 else "s")
+
+
 def verdict(result: BudgetResult, target: float) -> tuple[bool, str]:
     """(meets target, plain sentence)."""
     a = result.actual_infidelity
@@ -112,7 +116,7 @@ def verdict(result: BudgetResult, target: float) -> tuple[bool, str]:
 def summary_words(data: ReportData) -> str:
     """The opening paragraph: what was analysed, naive versus actual, the verdict, what to calibrate."""
     r = data.result
-    shape = f"{r.qubits} qubits, {r.operations:,} operations in {r.layers:,} layers"
+    shape = f"{_count(r.qubits, 'qubit')}, {_count(r.operations, 'operation')} in {_count(r.layers, 'layer')}"
     cyc = f", the whole circuit run {r.cycles:,} times" if r.cycles != 1 else ""
     parts = [
         f"We analysed {short_name(r.source)} ({shape}{cyc}) under the error model "
@@ -166,7 +170,7 @@ def model_rows(model: Any) -> tuple[ModelRow, ...]:
         vals = {"duration": f"{gp.duration_ns:g} ns"}
         knobs = gp.knob_values()
         vals["coherent knobs"] = ", ".join(f"{k.replace('_', ' ')} {v:+.3g} rad" for k, v in knobs.items()) or "none"
-        vals["average gate infidelity"] = num(gp.avg_infidelity) if gp.avg_infidelity else "0"
+        vals["average gate infidelity"] = f"{gp.avg_infidelity:g}"
         return vals
 
     for name, gp in sorted(model.gates.items()):
@@ -178,7 +182,7 @@ def model_rows(model: Any) -> tuple[ModelRow, ...]:
         return {
             "T1": f"{qp.t1_us:g} µs" if qp.t1_us is not None else "—",
             "T2": f"{qp.t2_us:g} µs" if qp.t2_us is not None else "—",
-            "readout error": num(qp.readout_error) if qp.readout_error else "0",
+            "readout error": f"{qp.readout_error:g}",
         }
 
     rows.append(ModelRow("qubit", "every qubit", "default", qubit_values(model.qubit_defaults)))
@@ -251,7 +255,8 @@ def gather(
 def _tolerances_and_plan(noisy: Any, model: Any, metric: str, target: float, cycles: int) -> tuple[Any, Any, str | None]:
     """The tolerance report and calibration plan, or (None, None, why) when unavailable."""
     try:
-        from budget.analysis.calibration import calibration_plan, find_probes, read_calibration
+        from budget.analysis.calibration import calibration_plan, read_calibration
+        from budget.analysis.phase_estimation import find_probes
         from budget.analysis.tolerances import tolerances
     except ImportError as exc:  # pragma: no cover - optional modules
         return None, None, f"tolerances and calibration cost left out: {exc}"

@@ -70,17 +70,16 @@ def depth_svg(curve: DepthCurve) -> str:
             y = np.maximum(np.array(getattr(curve, key)), floor)
             style = "-" if key == "structured" else "--" if key == "naive" else ":"
             ax.plot(n, y, style, color=COLOURS[key], lw=2.2 if key == "structured" else 1.8, label=WORDS[key])
+        ax.set_xscale("log" if n[-1] > 1 else "linear")
+        ax.set_yscale("log")
         if curve.crossover_repetitions is not None:
             x = curve.crossover_repetitions
             ax.axvline(x, color=INK, lw=0.8, alpha=0.5)
-            ax.annotate(f"crossover N = {x:,}", (x, ax.get_ylim()[0]), xytext=(4, 6),
-                        textcoords="offset points", color=INK, fontsize=9)
+            ax.text(x, 0.03, f" crossover N = {x:,}", transform=ax.get_xaxis_transform(), color=INK, fontsize=9)
         if curve.target is not None:
             ax.axhline(curve.target, color=COLOURS["target"], lw=1.0)
-            ax.annotate(f"target {curve.target:g}", (n[0], curve.target), xytext=(2, 4),
-                        textcoords="offset points", color=COLOURS["target"], fontsize=9)
-        ax.set_xscale("log" if n[-1] > 1 else "linear")
-        ax.set_yscale("log")
+            ax.text(0.99, curve.target, f"target {curve.target:g}", transform=ax.get_yaxis_transform(),
+                    color=COLOURS["target"], fontsize=9, ha="right", va="bottom")
         ax.set_xlabel("repetitions of the cycle, N")
         ax.set_ylabel(_metric_label(curve.metric))
         ax.grid(True, which="major", color=GRID, lw=0.6)
@@ -96,6 +95,7 @@ def shares_svg(families: tuple[FamilyShare, ...], total: float) -> str:
         names = [f.name for f in rows][::-1]
         vals = np.array([f.share for f in rows][::-1])
         colours = [COLOURS["structured"] if v >= 0 else COLOURS["twirled"] for v in vals]
+        ax.set_axisbelow(True)
         ax.barh(names, vals, color=colours, height=0.6)
         for y, v in enumerate(vals):
             pct = f"{100 * v / total:.0f} %" if total > 0 else ""

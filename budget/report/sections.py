@@ -182,7 +182,7 @@ def _tolerances(data: ReportData) -> list[Block]:
     ))
     rows = tuple(
         (f"{row.family} · {row.knob.replace('_', ' ')}", num(row.current_rad), num(row.tolerance_rad),
-         "—" if row.status == "no effect" else f"{row.tighten_by:.3g}×", row.status)
+         f"{row.tighten_by:.3g}×" if row.status == "tighten" else "—", row.status)
         for row in t.rows
     )
     out.append(Table(("knob", "today (rad)", "tolerance (rad)", "tighten by", "status"), rows, (False, True, True, True, False)))
