@@ -154,3 +154,16 @@ def layer_content(layer: NoisyLayer, num_qubits: int, grouping: Grouping = by_fa
     generator = fuse([t for ts in terms.values() for t in ts], n, product=False) if len(terms) > 1 else next(iter(hams.values()), ())
     gate_list = tuple(LocalOp.of(m, qs) for m, qs in ideal)
     return LayerContent(gates, gate_list, hams, generator, tuple(jumps), stoch)
+
+
+def content_cache(num_qubits: int, grouping: Grouping = by_family) -> Callable[[NoisyLayer], LayerContent]:
+    """:func:`layer_content` memoised per layer object (layers recur inside repeats)."""
+    cache: dict[int, tuple[NoisyLayer, LayerContent]] = {}
+
+    def content_of(layer: NoisyLayer) -> LayerContent:
+        hit = cache.get(id(layer))
+        if hit is None:
+            hit = cache[id(layer)] = (layer, layer_content(layer, num_qubits, grouping))
+        return hit[1]
+
+    return content_of

@@ -59,7 +59,8 @@ class DensePropagator:
     def __init__(self, num_qubits: int, content_of: ContentOf) -> None:
         self.n = num_qubits
         self.content_of = content_of
-        self._blocks: dict[int, tuple[DenseBlock, CycleBasis]] = {}
+        self._blocks: dict[int, tuple[DenseBlock, CycleBasis]] = {}  # id(body) -> block, basis
+        self._bodies: list[tuple] = []  # keeps the cached bodies alive, so their ids stay unique
 
     def block(self, items: tuple[NoisyItem, ...], *, with_unitary: bool = True) -> DenseBlock:
         """The :class:`DenseBlock` of ``items`` (see module docstring)."""
@@ -97,8 +98,11 @@ class DensePropagator:
         return DenseBlock(None if ut is None else ut.T.copy(), keys, hs)
 
     def repeat(self, item: NoisyRepeat) -> tuple[DenseBlock, CycleBasis]:
-        """The body's dense block and the Schur basis of its unitary (cached per repeat)."""
-        if id(item) not in self._blocks:
+        """The body's dense block and the Schur basis of its unitary (cached per body: repeats of
+        one body with different counts share it)."""
+        key = id(item.body)
+        if key not in self._blocks:
             inner = self.block(item.body)
-            self._blocks[id(item)] = (inner, cycle_basis(inner.unitary))
-        return self._blocks[id(item)]
+            self._blocks[key] = (inner, cycle_basis(inner.unitary))
+            self._bodies.append(item.body)
+        return self._blocks[key]

@@ -24,19 +24,20 @@ scaled by exponentiated/first-order coherent, plus its stochastic part; the shar
 
 from __future__ import annotations
 
-from typing import Hashable
+from typing import Hashable, Sequence
 
 import numpy as np
 
 from budget.circuit.clifford_check import first_non_clifford
-from budget.engines._channels import by_family, layer_content
+from budget.engines._channels import by_family, content_cache
 from budget.engines._dense import DensePropagator
 from budget.engines._jumps import StateJumps
+from budget.engines._knobs import knob_grouping
 from budget.engines._krylov import expm_apply
 from budget.engines._observables import IncoherentObservables, observable_vector
 from budget.engines._states import StatePath
 from budget.engines.base import EngineResult, Metric, QuadraticForm, parse_observable
-from budget.engines._knobs import knob_grouping
+from budget.engines.depth import DepthCurve, depth_curve
 from budget.errors.noisy import NoisyCircuit
 from budget.problems import TooLargeError
 
@@ -46,18 +47,6 @@ MAX_STATE_QUBITS = 20
 """State vectors only (state metric, no repeated block)."""
 NORM_LIMIT_RAD = 0.3
 STOCHASTIC_LIMIT = 0.05
-
-
-def _content_cache(num_qubits: int, grouping):
-    cache: dict[int, object] = {}
-
-    def content_of(layer):
-        key = id(layer)
-        if key not in cache:
-            cache[key] = layer_content(layer, num_qubits, grouping)
-        return cache[key]
-
-    return content_of
 
 
 def _ground(n: int) -> np.ndarray:
@@ -105,7 +94,7 @@ class GeneratorsEngine:
         if reason is not None:
             raise TooLargeError(f"{circuit.source}: engine generators: {reason}")
         n = circuit.num_qubits
-        content_of = _content_cache(n, by_family)
+        content_of = content_cache(n, by_family)
         dense = DensePropagator(n, content_of)
         jumps = StateJumps(n, content_of, dense)
         stoch = self._stochastic(circuit, metric, content_of, jumps)
@@ -210,6 +199,11 @@ class GeneratorsEngine:
             out[label] = float(err)
         return out, inc.approximations
 
+    def depth_curve(self, circuit: NoisyCircuit, metric: Metric, counts: Sequence[int]) -> DepthCurve:
+        """Infidelity of ``circuit`` repeated N times for every N in ``counts`` at once
+        (:func:`budget.engines.depth.depth_curve`)."""
+        return depth_curve(circuit, metric, counts)
+
     def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:
         """e ≈ δᵀAδ + floor in the coherent knobs, from the propagated unit generators.
 
@@ -225,7 +219,7 @@ class GeneratorsEngine:
             raise TooLargeError(f"{circuit.source}: engine generators: {reason}")
         n = circuit.num_qubits
         grouping, values = knob_grouping(circuit)
-        content_of = _content_cache(n, grouping)
+        content_of = content_cache(n, grouping)
         dense = DensePropagator(n, content_of)
         keys: list[Hashable] = list(values)
         if metric == "process":
@@ -242,7 +236,7 @@ class GeneratorsEngine:
             v = np.array([phis.get(key, np.zeros(2**n, dtype=complex)) for key in keys]).reshape(len(keys), -1)
             means = (v @ psi.conj()).real
             a = (v.conj() @ v.T).real - np.outer(means, means)
-        family_content = _content_cache(n, by_family)
+        family_content = content_cache(n, by_family)
         jumps = StateJumps(n, family_content, DensePropagator(n, family_content))
         floor = self._stochastic(circuit, metric, family_content, jumps)
         return QuadraticForm(
