@@ -8,7 +8,9 @@ References outside the project: cirq builds the ideal unitaries and simulates th
 from __future__ import annotations
 
 import itertools
+import json
 import math
+from pathlib import Path
 
 import cirq
 import numpy as np
@@ -132,3 +134,128 @@ def _repeat(noisy: NoisyCircuit, count: int):
     from budget.errors.noisy import NoisyRepeat
 
     return NoisyRepeat(noisy.body, count)
+
+
+def _clifford_three_qubit() -> NoisyCircuit:
+    """Every layer holds a two-qubit gate, with Clifford single-qubit gates beside it, so every
+    coherent error is dressed by the frames."""
+    c = StructuredCircuit(
+        ("q[0]", "q[1]", "q[2]"),
+        (
+            Repeat(
+                (
+                    Layer((Operation("cz", (0, 1)), Operation("h", (2,)))),
+                    Layer((Operation("sx", (0,)), Operation("cx", (1, 2)))),
+                ),
+                4,
+            ),
+        ),
+    )
+    model = ErrorModel.from_dict(
+        {
+            "gates": {
+                "cz": {"cphase": 0.08, "swap_angle": 0.05, "avg_infidelity": 2e-3},
+                "cx": {"overrotation": 0.06, "z_phase": [0.03, -0.02]},
+                "h": {"overrotation": 0.05},
+                "sx": {"overrotation": 0.07, "axis_error": 0.02},
+            }
+        }
+    )
+    return attach(c, model)
+
+
+@pytest.mark.parametrize("engine", ["exact", "generators", "clifford"])
+@pytest.mark.parametrize("metric", ["process", "state"])
+def test_twirled_variant_runs_in_every_engine(engine, metric):
+    # the twirled circuit (Pauli rates instead of coherent errors) through each engine, against
+    # cirq's density-matrix simulation of the same channels (tests/reference.py)
+    twirled = twirled_circuit(_clifford_three_qubit())
+    from budget.engines import get_engine
+
+    got = get_engine(engine).run(twirled, metric).infidelity
+    want = cirq_infidelity(twirled, metric)
+    # exact engine: exact; first-order engines: within their second-order error (want² scale)
+    assert got == pytest.approx(want, rel=1e-9 if engine == "exact" else 0.0, abs=1e-12 if engine == "exact" else 2 * want**2)
+
+
+def test_ensemble_converges_to_the_twirled_prediction():
+    # 120 seeded copies through the exact engine: the mean lies within 4 standard errors of the
+    # twirled prediction (Wallman & Emerson, PRA 94, 052325 (2016)), and many standard errors below
+    # the structured (coherent) value for this circuit.
+    noisy = _clifford_three_qubit()
+    result = ensemble(noisy, count=120, seed=7, engine="exact")
+    assert result.count == 120 and len(result.values) == 120 and result.engine == "exact"
+    assert abs(result.mean - result.twirled_infidelity) <= 4 * result.standard_error
+    assert result.twirled_infidelity == pytest.approx(cirq_infidelity(twirled_circuit(noisy), "process"), rel=1e-9)
+    structured = cirq_infidelity(noisy, "process")
+    assert structured - result.mean > 10 * result.standard_error
+    again = ensemble(noisy, count=5, seed=7, engine="exact")
+    assert again.values == result.values[:5]  # the seed fixes the frames
+    d = result.to_dict()
+    assert d["count"] == 120 and d["seed"] == 7 and d["mean"] == pytest.approx(result.mean)
+
+
+def _cli(*args: str):
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    return CliRunner().invoke(app, list(args), catch_exceptions=False)
+
+
+def test_compare_twirled_from_the_command_line(tmp_path):
+    # design.md §6: 100 repetitions of an X gate over-rotated by 0.01 rad: coherent 0.2298488471,
+    # twirled 0.0024938019, naive 0.0024969.
+    qasm = tmp_path / "x.qasm"
+    qasm.write_text('OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[1];\nx q[0];\n')
+    model = tmp_path / "m.toml"
+    model.write_text("[gates.x]\noverrotation = 0.01\n")
+    out = tmp_path / "r.json"
+    res = _cli("analyze", str(qasm), "-e", str(model), "--cycles", "100", "--compare-twirled", "--json", str(out),
+               "--width", "120")
+    assert res.exit_code == 0, res.output
+    data = json.loads(out.read_text())
+    assert data["actual"]["infidelity"] == pytest.approx(0.2298488471, abs=1e-9)
+    assert data["twirled"]["infidelity"] == pytest.approx(0.0024938019, abs=1e-9)
+    assert data["naive"]["infidelity"] == pytest.approx(0.0024969, abs=5e-8)
+    assert "Pauli-twirled" in res.output
+
+
+def test_against_and_ensemble_from_the_command_line(tmp_path):
+    root = Path(__file__).resolve().parent.parent / "circuits"
+    out = tmp_path / "r.json"
+    res = _cli("analyze", str(root / "echo_xy4.qasm"), "-e", str(root / "fen_q8.toml"), "--cycles", "5",
+               "--against", "random", "--seed", "3", "--ensemble", "4", "--json", str(out), "--width", "140")
+    assert res.exit_code == 0, res.output
+    data = json.loads(out.read_text())
+    other = data["against"]["result"]
+    assert other["circuit"]["operations"] == data["circuit"]["operations"] == 20
+    assert other["source"].startswith("random counterpart")
+    assert data["against"]["actual_ratio"] == pytest.approx(data["actual"]["infidelity"] / other["actual"]["infidelity"])
+    assert data["ensemble"]["count"] == 4 and data["ensemble"]["seed"] == 3
+    assert "side by side" in res.output and "randomly compiled copies" in res.output
+    # a second circuit file
+    res = _cli("analyze", str(root / "echo_xy4.qasm"), "-e", str(root / "fen_q8.toml"),
+               "--against", str(root / "echo_xy4.qasm"), "--width", "140")
+    assert res.exit_code == 0 and "ratio (first ÷ second): 1" in res.output
+    # bad input: one line, exit code 2, no JSON written
+    bad = tmp_path / "bad.json"
+    res = _cli("analyze", str(root / "echo_xy4.qasm"), "-e", str(root / "fen_q8.toml"),
+               "--against", str(tmp_path / "missing.qasm"), "--json", str(bad))
+    assert res.exit_code == 2 and "missing.qasm" in res.output and not bad.exists()
+
+
+def test_random_counterpart_keeps_gate_counts_and_pairs():
+    from collections import Counter
+
+    from budget.analysis.compare import random_counterpart
+    from budget.circuit.load import load_circuit
+
+    root = Path(__file__).resolve().parent.parent / "circuits"
+    c = load_circuit(str(root / "parity_cycle.qasm")).with_cycles(3)
+    r = random_counterpart(c, seed=11)
+    flat = lambda s: [op for layer in s.iter_layers() for op in layer.operations]  # noqa: E731
+    assert Counter(op.gate for op in flat(r)) == Counter(op.gate for op in flat(c))
+    assert {op.qubits for op in flat(r) if op.gate == "cz"} <= {op.qubits for op in flat(c) if op.gate == "cz"}
+    assert r.qubits == c.qubits and not any(isinstance(it, Repeat) for it in r.body)
+    assert [op.qubits for op in flat(r)] != [op.qubits for op in flat(c)]
