@@ -1,4 +1,4 @@
-// Trotter steps of a 4-site hopping (XX+YY) chain, North Fen Cryogenics Lab demo (invented).
+// Four Trotter steps of a 4-site hopping (XX+YY) chain, North Fen Cryogenics Lab demo (invented).
 // One step applies exp(-i theta (XX+YY)/2) on bonds (0,1), (2,3), then (1,2).
 // The step is written with CZ, H and SX only, the device's native set; the loop is kept folded.
 OPENQASM 3.0;
@@ -22,7 +22,7 @@ bit[4] c;
 
 x q[0];
 x q[2];
-for int step in [0:19] {
+for int step in [0:3] {
   hop(0.1) q[0], q[1];
   hop(0.1) q[2], q[3];
   hop(0.1) q[1], q[2];

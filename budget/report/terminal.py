@@ -30,12 +30,12 @@ def _verdict(result: BudgetResult) -> Text:
     amp = result.coherent_amplification
     if amp is None:
         return Text("no error in the model: nothing accumulates", style="dim")
-    if amp > 1.5:
+    if amp > 1.2:
         return Text(
-            f"coherent build-up: the circuit loses {amp:.1f}x more than the fidelity product says",
+            f"coherent build-up: the circuit loses {amp:.1f}x what the fidelity product predicts",
             style="bold red",
         )
-    if amp < 0.67:
+    if amp < 0.83:
         return Text(
             f"cancellation: the structure echoes errors away ({amp:.2f}x the fidelity product)",
             style="bold green",
