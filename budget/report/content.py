@@ -8,6 +8,7 @@ and the error model itself. :func:`summary_words` writes the opening paragraph i
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 from typing import Any, Callable
 
@@ -92,8 +93,11 @@ def num(x: float | None, digits: int = 3) -> str:
 
 
 def minutes(seconds: float) -> str:
+    """A device time for people: 350 ms, 42 s, 3.5 min, 2.1 h."""
+    if seconds < 1:
+        return f"{1000 * seconds:.3g} ms"
     if seconds < 120:
-        return f"{seconds:.0f} s"
+        return f"{seconds:.3g} s"
     if seconds < 7200:
         return f"{seconds / 60:.1f} min"
     return f"{seconds / 3600:.1f} h"
@@ -272,5 +276,11 @@ def _tolerances_and_plan(noisy: Any, model: Any, metric: str, target: float, cyc
         qf = eng.quadratic_form(noisy, metric)
         report = tolerances(qf, target, metric=metric, cycles=cycles)
         settings = read_calibration(getattr(model, "calibration", None), source=model.source)
-        return report, calibration_plan(report, find_probes(noisy), settings), None
+        known = {f"{row.family}.{row.knob}" for row in report.rows}
+        drifts = dict(settings.drift_rad_per_hour)
+        unused = sorted(k for k in drifts if k not in known)
+        if unused:  # one lab-wide model serves many circuits: drift of knobs this circuit lacks is moot
+            settings = dataclasses.replace(settings, drift_rad_per_hour={k: v for k, v in drifts.items() if k in known})
+        why = f"drift rates for knobs this circuit does not use were ignored: {', '.join(unused)}" if unused else None
+        return report, calibration_plan(report, find_probes(noisy), settings), why
     return None, None, "tolerances left out: no first-order engine fits this circuit"

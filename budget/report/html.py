@@ -45,6 +45,7 @@ table { border-collapse:collapse; margin:10px 0 14px; font-size:14px; background
         border:1px solid var(--line); }
 th { text-align:left; font-weight:600; background:#f1ede5; padding:6px 12px; border-bottom:1px solid var(--line); }
 td { padding:5px 12px; border-bottom:1px solid #efebe4; }
+td:first-child, td:nth-child(2) { white-space:nowrap; }
 td.num, th.num { text-align:right; font-variant-numeric:tabular-nums; }
 tr:last-child td { border-bottom:none; }
 figure { margin:12px 0 16px; background:#fff; border:1px solid var(--line); border-radius:8px; padding:12px; }
