@@ -213,3 +213,33 @@ def cirq_final_states(circuit: NoisyCircuit) -> tuple[np.ndarray, np.ndarray]:
         cirq.Circuit(ident + _noisy_ops(circuit, qs)), qubit_order=qs
     ).final_density_matrix
     return psi, rho
+
+
+def scaled_incoherent(circuit: NoisyCircuit, factor: float) -> NoisyCircuit:
+    """The same circuit with every incoherent probability scaled by ``factor`` (depolarizing λ,
+    Pauli rates, amplitude damping γ, and 1 - c for the dephasing factor c); repeats kept. Keeps
+    random circuits inside the range where a first-order method is meant to hold."""
+    import dataclasses
+
+    def relax(r: Relaxation) -> Relaxation:
+        return dataclasses.replace(r, gamma=r.gamma * factor, dephasing_factor=1 - (1 - r.dephasing_factor) * factor)
+
+    def items(body):
+        out = []
+        for it in body:
+            if isinstance(it, NoisyRepeat):
+                out.append(NoisyRepeat(items(it.body), it.count))
+                continue
+            ops = tuple(
+                dataclasses.replace(
+                    nop,
+                    depolarizing=nop.depolarizing * factor,
+                    pauli_rates={k: v * factor for k, v in nop.pauli_rates.items()},
+                    relaxation=tuple(map(relax, nop.relaxation)),
+                )
+                for nop in it.operations
+            )
+            out.append(NoisyLayer(ops, tuple(map(relax, it.idle)), it.duration_ns))
+        return tuple(out)
+
+    return NoisyCircuit(circuit.qubits, items(circuit.body), circuit.readout_error, circuit.source)

@@ -6,7 +6,6 @@ DensityMatrixSimulator through tests/reference.py (independent of the project's 
 
 from __future__ import annotations
 
-import dataclasses
 import math
 
 import numpy as np
@@ -22,7 +21,7 @@ from budget.engines.generators import MAX_DENSE_QUBITS, GeneratorsEngine
 from budget.errors.fidelity import pauli_hamiltonian, pauli_matrix
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
 from budget.problems import TooLargeError
-from reference import cirq_final_states, cirq_infidelity, random_noisy_circuit
+from reference import cirq_final_states, cirq_infidelity, random_noisy_circuit, scaled_incoherent
 
 ENGINE = GeneratorsEngine()
 
@@ -52,31 +51,6 @@ def _layer(*ops, idle=()):
     return NoisyLayer(tuple(ops), tuple(idle), 0.0)
 
 
-def _soften(items, factor):
-    """The same circuit with every incoherent probability scaled by ``factor`` (keeps the random
-    circuits of tests/reference.py inside the range where first order is meant to hold)."""
-    out = []
-    for it in items:
-        if isinstance(it, NoisyRepeat):
-            out.append(NoisyRepeat(tuple(_soften(it.body, factor)), it.count))
-            continue
-
-        def r(x):
-            return dataclasses.replace(x, gamma=x.gamma * factor, dephasing_factor=1 - (1 - x.dephasing_factor) * factor)
-
-        ops = tuple(
-            dataclasses.replace(
-                nop,
-                depolarizing=nop.depolarizing * factor,
-                pauli_rates={k: v * factor for k, v in nop.pauli_rates.items()},
-                relaxation=tuple(map(r, nop.relaxation)),
-            )
-            for nop in it.operations
-        )
-        out.append(NoisyLayer(ops, tuple(map(r, it.idle)), it.duration_ns))
-    return out
-
-
 def _random_case(seed):
     rng = np.random.default_rng(1000 + seed)
     n = int(rng.integers(1, 6))
@@ -90,7 +64,7 @@ def _random_case(seed):
         repeat_count=repeat,
         pauli_rates=seed % 3 == 0,
     )
-    return NoisyCircuit(c.qubits, tuple(_soften(c.body, 0.3))), metric
+    return scaled_incoherent(c, 0.3), metric
 
 
 # -- design.md §6 check values ----------------------------------------------------------------
@@ -161,7 +135,7 @@ def test_random_circuits_agree_with_cirq():
 def _observable_gaps(seed, scale, labels):
     rng = np.random.default_rng(77 + seed)
     c = random_noisy_circuit(rng, num_qubits=3, num_layers=3, coherent_scale=0.01 * scale, repeat_count=[None, 3][seed % 2])
-    c = NoisyCircuit(c.qubits, tuple(_soften(c.body, 0.3 * scale)))
+    c = scaled_incoherent(c, 0.3 * scale)
     r = ENGINE.run(c, "state", observables=labels)
     psi, rho = cirq_final_states(c)
     out = {}
@@ -293,7 +267,7 @@ def test_sampled_repeats_are_reported():
     # repetition sum (same engine on the unrolled circuit)
     rng = np.random.default_rng(11)
     c = random_noisy_circuit(rng, num_qubits=2, num_layers=1, coherent_scale=0.0, repeat_count=200)
-    c = NoisyCircuit(c.qubits, tuple(_soften(c.body, 0.05)))
+    c = scaled_incoherent(c, 0.05)
     r = ENGINE.run(c, "state")
     assert any("evenly spaced repetitions" in w for w in r.warnings)
     unrolled = NoisyCircuit(c.qubits, tuple(c.iter_layers()))

@@ -26,7 +26,7 @@ from budget.engines.periodic import (
     state_components,
 )
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
-from reference import random_noisy_circuit
+from reference import random_noisy_circuit, scaled_incoherent
 
 _q = cirq.LineQubit.range(3)
 CYCLES = {
@@ -159,3 +159,20 @@ def test_depth_curve_equals_single_runs(metric):
         assert curve.infidelity[i] == pytest.approx(single.infidelity, rel=1e-9)
         assert curve.first_order[i] == pytest.approx(single.first_order, rel=1e-9)
     assert engine.depth_curve(c, metric, counts).counts == tuple(counts)
+
+
+def test_long_repeats_agree_with_the_exact_engine():
+    # blocks repeated up to 10**6 times (errors scaled down with N so the total stays small):
+    # the periodic closed form against the exact engine's matrix powers (budget/engines/exact.py,
+    # dense simulation, itself checked against cirq in its own tests)
+    from budget.engines.exact import ExactEngine
+
+    exact, engine = ExactEngine(), GeneratorsEngine()
+    for seed, count in enumerate([999, 100001, 301, 10**6 + 1]):
+        rng = np.random.default_rng(500 + seed)
+        c = random_noisy_circuit(rng, num_qubits=3 + seed % 2, num_layers=2, coherent_scale=0.02 / count, repeat_count=count)
+        c = scaled_incoherent(c, 0.1 / count)
+        for metric in ("state", "process"):
+            ref = exact.run(c, metric).infidelity
+            assert 1e-4 < ref < 0.02
+            assert engine.run(c, metric).infidelity == pytest.approx(ref, rel=0.01), (seed, metric)
