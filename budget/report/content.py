@@ -8,7 +8,6 @@ and the error model itself. :func:`summary_words` writes the opening paragraph i
 
 from __future__ import annotations
 
-import dataclasses
 from dataclasses import dataclass, field
 from typing import Any, Callable
 
@@ -257,30 +256,22 @@ def gather(
 
 
 def _tolerances_and_plan(noisy: Any, model: Any, metric: str, target: float, cycles: int) -> tuple[Any, Any, str | None]:
-    """The tolerance report and calibration plan, or (None, None, why) when unavailable."""
+    """The tolerance report and calibration plan (as ``budget tolerances`` and ``budget cost``
+    compute them), or (None, None, why) when unavailable."""
     try:
-        from budget.analysis.calibration import calibration_plan, read_calibration
+        from budget.analysis.calibration import calibration_plan, model_knob_keys, read_calibration
         from budget.analysis.phase_estimation import find_probes
+        from budget.analysis.sensitivity import quadratic_form
         from budget.analysis.tolerances import tolerances
     except ImportError as exc:  # pragma: no cover - optional modules
         return None, None, f"tolerances and calibration cost left out: {exc}"
-    from budget.engines import get_engine
+    from budget.problems import TooLargeError
 
-    for name in ("generators", "clifford"):
-        try:
-            eng = get_engine(name)
-        except ImportError:
-            continue
-        if not hasattr(eng, "quadratic_form") or eng.fits(noisy, metric) is not None:
-            continue
-        qf = eng.quadratic_form(noisy, metric)
-        report = tolerances(qf, target, metric=metric, cycles=cycles)
-        settings = read_calibration(getattr(model, "calibration", None), source=model.source)
-        known = {f"{row.family}.{row.knob}" for row in report.rows}
-        drifts = dict(settings.drift_rad_per_hour)
-        unused = sorted(k for k in drifts if k not in known)
-        if unused:  # one lab-wide model serves many circuits: drift of knobs this circuit lacks is moot
-            settings = dataclasses.replace(settings, drift_rad_per_hour={k: v for k, v in drifts.items() if k in known})
-        why = f"drift rates for knobs this circuit does not use were ignored: {', '.join(unused)}" if unused else None
-        return report, calibration_plan(report, find_probes(noisy), settings), why
-    return None, None, "tolerances left out: no first-order engine fits this circuit"
+    try:
+        qf = quadratic_form(noisy, metric)
+    except TooLargeError as exc:
+        return None, None, f"tolerances left out: {exc}"
+    report = tolerances(qf, target, metric=metric, cycles=cycles)
+    settings = read_calibration(getattr(model, "calibration", None), source=model.source)
+    plan = calibration_plan(report, find_probes(noisy), settings, model_knobs=model_knob_keys(model))
+    return report, plan, None
