@@ -109,7 +109,7 @@ class GeneratorsEngine:
         raw = sum(shares.values())
         if raw and abs(raw - total) > 1e-15:
             shares = {f: v * total / raw for f, v in shares.items()}  # only when clipped
-        warnings = self._warnings(circuit, coh["norm"], stoch_total, jumps.approximations)
+        warnings = self._warnings(circuit, metric, coh["norm"], stoch_total, jumps.approximations)
         obs: dict[str, float] = {}
         if observables:
             obs, notes = self._observables(circuit, observables, content_of, dense, path, coh)
@@ -165,21 +165,26 @@ class GeneratorsEngine:
         norm = float(np.max(np.abs(kr.ritz_values - mean)))
         return {"exact": exact, "first": first, "shares": shares, "norm": norm, "psi": psi, "chi": kr.vector}
 
-    def _warnings(self, circuit, norm: float, stoch: float, notes: list[str]) -> list[str]:
-        out = []
-        if norm > NORM_LIMIT_RAD or stoch > STOCHASTIC_LIMIT:
-            what = (
-                f"the summed coherent error reaches {norm:.2f} rad (first order is good below ~{NORM_LIMIT_RAD} rad)"
-                if norm > NORM_LIMIT_RAD
-                else f"the incoherent errors add up to {stoch:.3f} (first order is good below ~{STOCHASTIC_LIMIT})"
-            )
-            trust = (
-                "trust the exact engine instead"
-                if circuit.num_qubits <= 10
-                else "for such circuits only the exact engine (small circuits) is reliable"
-            )
-            out.append(f"the first-order model is leaving its range: {what}; {trust}")
-        return out + notes
+    def _warnings(self, circuit, metric, norm: float, stoch: float, notes: list[str]) -> list[str]:
+        what = []
+        if norm > NORM_LIMIT_RAD:
+            what.append(f"the summed coherent error reaches {norm:.2f} rad (first order holds below ~{NORM_LIMIT_RAD} rad)")
+        if stoch > STOCHASTIC_LIMIT:
+            what.append(f"the incoherent errors add up to {stoch:.3f} (first order holds below ~{STOCHASTIC_LIMIT})")
+        if not what:
+            return list(notes)
+        try:
+            from budget.engines.exact import ExactEngine
+
+            exact_fits = ExactEngine().fits(circuit, metric) is None
+        except ImportError:  # pragma: no cover - the exact engine is part of the package
+            exact_fits = False
+        trust = (
+            "trust the exact engine instead (it fits this circuit)"
+            if exact_fits
+            else "no exact engine fits this circuit, so read the number as an estimate of its size only"
+        )
+        return [f"the first-order model is leaving its range: {' and '.join(what)}; {trust}"] + list(notes)
 
     def _observables(self, circuit, labels, content_of, dense, path: StatePath, coh) -> tuple[dict[str, float], list[str]]:
         n = circuit.num_qubits
