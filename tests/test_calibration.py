@@ -333,7 +333,7 @@ def test_cli_cost_worked_example(tmp_path):
     drift rates of the model's [calibration] table set the schedule."""
     out = tmp_path / "c.json"
     res = _cli("cost", str(EXAMPLES / "parity_cycle.qasm"), "--errors", str(EXAMPLES / "fen_q8.toml"),
-               "--target", "0.085", "--cycles", "3", "--json", str(out), "--width", "140")
+               "--target", "0.06", "--cycles", "3", "--json", str(out), "--width", "140")
     assert res.exit_code == 0, res.output
     doc = json.loads(out.read_text())["calibration"]
     assert doc["settings"]["drift_rad_per_hour"]["cz.cphase"] == 0.002

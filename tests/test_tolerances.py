@@ -328,17 +328,18 @@ def test_cli_tolerances_worked_example(tmp_path):
     """The worked example of docs/tolerances.md: terminal and JSON carry the same numbers."""
     out = tmp_path / "t.json"
     res = _cli("tolerances", str(EXAMPLES / "parity_cycle.qasm"), "--errors", str(EXAMPLES / "fen_q8.toml"),
-               "--target", "0.085", "--cycles", "3", "--json", str(out), "--width", "120")
+               "--target", "0.06", "--cycles", "3", "--json", str(out), "--width", "120")
     assert res.exit_code == 0, res.output
     doc = json.loads(out.read_text())
-    assert doc["schema_version"] == 1 and doc["kind"] == "tolerances" and doc["feasible"] and doc["target"] == 0.085
+    assert doc["schema_version"] == 1 and doc["kind"] == "tolerances" and doc["feasible"] and doc["target"] == 0.06
     top = doc["tolerances"][0]
     assert (top["family"], top["knob"], top["status"]) == ("cz", "cphase", "tighten")
     assert f"{top['tighten_by']:.3g}x" in res.output and "tighten" in res.output
     assert abs(sum(k["share"] for k in doc["sensitivity"]["knobs"]) - doc["sensitivity"]["coherent"]) < 1e-12
     assert "calibration round" in res.output
     docs = (EXAMPLES.parent / "docs" / "tolerances.md").read_text()
-    assert f"│ cz     │ cphase       │       0.012 │ {top['tolerance_rad']:15.4g} │ {top['tighten_by']:9.3g}x │" in docs
+    assert f"│ cz     │ cphase       │        0.03 │ {top['tolerance_rad']:15.4g} │ {top['tighten_by']:9.3g}x │" in docs
+    assert f"calibration must get {doc['common_factor']:.3g}x better" in docs
 
 
 @pytest.mark.parametrize("extra, message", [
