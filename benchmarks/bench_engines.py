@@ -10,6 +10,8 @@ Run: ``python benchmarks/bench_engines.py`` (``--quick``: 8 qubits only). Not pa
    |difference|. Targets: exact >= 10x faster than cirq at 10 qubits, agreement 1e-8.
 2. Cost versus N: a small noisy block repeated N = 1 and N = 10^6 times (plus 10^9), per engine and
    metric. Target: time(N = 10^6) / time(N = 1) <= 2.
+3. Process metric with incoherent errors: the superoperator against the Choi state of the doubled
+   system (same numbers held, timed side by side).
 """
 
 from __future__ import annotations
@@ -158,27 +160,61 @@ def repeated(n: int, count: int) -> NoisyCircuit:
 
 
 def cost_versus_count(n: int) -> None:
+    """Time per engine and metric for N = 1, 10^6, 10^9 repetitions of the same block. The exact
+    engine unrolls N = 1 (cheaper than building the block matrix), so it also runs with
+    repeats="power", which takes the block-power path for every N."""
+    from budget.engines.exact import ExactEngine
+
     print(f"== cost versus repeat count: 4-layer noisy block on {n} qubits")
-    for name, engine in engines():
+    variants = list(engines()) + [("exact[power]", ExactEngine(repeats="power"))]
+    for name, engine in variants:
         for metric in ("state", "process"):
             times = {}
             for count in (1, 10**6, 10**9):
                 circuit = repeated(n, count)
                 reason = engine.fits(circuit, metric)
                 if reason:
-                    print(f"  {name:10s} {metric:7s} N = {count:>10}: does not fit: {reason}")
+                    print(f"  {name:12s} {metric:7s} N = {count:>10}: does not fit: {reason}")
                     continue
                 result, t = _timed(engine, circuit, metric)
                 if result is None:
                     continue
                 times[count] = t
                 print(
-                    f"  {name:10s} {metric:7s} N = {count:>10}: {times[count]:7.3f} s"
-                    f"  infidelity {result.infidelity:.10f}"
+                    f"  {name:12s} {metric:7s} N = {count:>10}: {t:7.3f} s  infidelity {result.infidelity:.10f}"
                 )
             if 1 in times and 10**6 in times:
                 ratio = times[10**6] / times[1]
-                print(f"  {name:10s} {metric:7s} ratio N=10^6 / N=1: {ratio:.2f}  ({'pass' if ratio <= 2 else 'FAIL'}, target <= 2)")
+                verdict = "pass" if ratio <= 2 else "FAIL"
+                print(f"  {name:12s} {metric:7s} ratio N=10^6 / N=1: {ratio:.2f} ({verdict}, target <= 2)")
+
+
+def choi_versus_superoperator(n: int, cycles: int = 10) -> None:
+    """Process metric with incoherent errors, two ways with the same 16^n numbers: the exact
+    engine's superoperator, and the Choi state (2n-qubit density matrix: ancillas entangled with
+    the system by noise-free h and cx, then the noisy circuit on the system) through the exact
+    engine's state metric. 1 - <Φ_U|ρ_Choi|Φ_U> = 1 - F_pro (Nielsen, Phys. Lett. A 303 (2002))."""
+    from budget.engines.exact import ExactEngine
+
+    circuit = brickwork(n, cycles)
+    anc = range(n, 2 * n)
+
+    def clean(gate: str, qubits: tuple[int, ...]) -> NoisyOperation:
+        k = len(qubits)
+        return NoisyOperation(Operation(gate, qubits), gate, np.eye(2**k, dtype=complex), {})
+
+    prep = (
+        NoisyLayer(tuple(clean("h", (a,)) for a in anc), (), 0.0),
+        NoisyLayer(tuple(clean("cx", (a, a - n)) for a in anc), (), 0.0),
+    )
+    doubled = NoisyCircuit(tuple(f"q[{i}]" for i in range(2 * n)), prep + circuit.body)
+    engine = ExactEngine()
+    print(f"== process metric, {n} qubits, {cycles} noisy cycles: superoperator versus Choi state")
+    sup, t_sup = _timed(engine, circuit, "process")
+    choi, t_choi = _timed(engine, doubled, "state")
+    if sup is not None and choi is not None:
+        print(f"  superoperator {t_sup:7.3f} s  infidelity {sup.infidelity:.12f}")
+        print(f"  Choi state    {t_choi:7.3f} s  infidelity {choi.infidelity:.12f}  |diff| {abs(sup.infidelity - choi.infidelity):.1e}")
 
 
 def main() -> None:
@@ -195,6 +231,7 @@ def main() -> None:
     )
     speed([8] if args.quick else [8, 10])
     cost_versus_count(4)
+    choi_versus_superoperator(3 if args.quick else 5)
 
 
 if __name__ == "__main__":
