@@ -235,3 +235,20 @@ def test_bad_arguments() -> None:
     assert "metric" in EXACT.fits(circuit, "average")
     with pytest.raises(ValueError, match="observable"):
         EXACT.run(circuit, "state", observables=("Q0",))
+
+
+@pytest.mark.parametrize("count", [10**6, 10**9])
+def test_long_repeat_reaches_the_channel_fixed_point(count: int) -> None:
+    """sx with amplitude damping and dephasing, repeated 10^6 and 10^9 times (both multiples of
+    4, so the ideal output is |0>): the state is the channel's fixed point ρ*, the null vector of
+    S - 1 with S = Σ K ⊗ conj(K) built from cirq's Kraus operators; infidelity 1 - ρ*[0, 0]."""
+    gamma, phase = 2e-3, 1e-3
+    relax = Relaxation(0, 30.0, gamma, float(np.sqrt(1 - phase)))
+    nop = NoisyOperation(Operation("sx", (0,)), "sx", np.eye(2, dtype=complex), {}, relaxation=(relax,))
+    circuit = NoisyCircuit(("q",), (NoisyRepeat((NoisyLayer((nop,), (), 30.0),), count),))
+    sx = cirq.unitary(cirq.XPowGate(exponent=0.5))
+    kraus = [p @ a @ sx for a in cirq.kraus(cirq.amplitude_damp(gamma)) for p in cirq.kraus(cirq.phase_damp(phase))]
+    superop = sum(np.kron(k, k.conj()) for k in kraus)
+    fixed = np.linalg.svd(superop - np.eye(4))[2][-1].conj().reshape(2, 2)
+    fixed = fixed / np.trace(fixed)
+    assert EXACT.run(circuit, "state").infidelity == pytest.approx(1 - fixed[0, 0].real, abs=1e-10)
