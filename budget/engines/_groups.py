@@ -35,10 +35,13 @@ def group_rows(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     if len(keys) == 0:
         return np.zeros(0, np.int64), np.zeros(0, np.int64)
     w = keys.shape[1]
-    mix = _MIX[:w] if w <= len(_MIX) else np.resize(_MIX, w)
-    with np.errstate(over="ignore"):
-        h = (keys * mix).sum(axis=1, dtype=np.uint64)
-        h ^= h >> np.uint64(29)
+    if w <= 2:  # random fingerprints already: their first word is a good hash
+        h = keys[:, 0]
+    else:
+        mix = _MIX[:w] if w <= len(_MIX) else np.resize(_MIX, w)
+        with np.errstate(over="ignore"):
+            h = (keys * mix).sum(axis=1, dtype=np.uint64)
+            h ^= h >> np.uint64(29)
     _, first, inv = np.unique(h, return_index=True, return_inverse=True)
     inv = inv.reshape(-1)
     if not np.array_equal(keys, keys[first][inv]):

@@ -1,6 +1,6 @@
 """Collect the mapped error terms of every executed layer (what the walker emits into).
 
-Per layer, each site's 16 local Paulis are mapped at once (:func:`site_images`): the image of
+Per layer, each site's local Paulis are mapped at once (:func:`site_images`): the image of
 v = Π_{j∈v} row_j (slot order) has fingerprint XOR_j f_j (fingerprints are linear) and phase
 e0 + Σ_j e_j + 2 Σ_{i<j both in v} |z_i ∧ x_j| (mod 4), from Z X = -X Z. So each term costs O(1)
 after O(W) work per site. Collectors:
@@ -33,24 +33,49 @@ PHASE = np.array([1, 1j, -1, -1j])
 """i^e for e = 0..3."""
 
 
-def site_images(frame: Frame, rows: np.ndarray, *, full: bool) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Fingerprints (S, 16, 2) and phases (S, 16) of the images of all 16 local Paulis per site,
-    plus the sites' frame rows x, z (S, 4, W). ``full`` fingerprints the whole Pauli, else the X part."""
+_PAIRS = [(i, j) for j in range(4) for i in range(j)]
+PAIR_BITS = np.array([[((v >> i) & 1) & ((v >> j) & 1) for i, j in _PAIRS] for v in range(16)])
+"""(16, 6): which ordered generator pairs (i < j) a local Pauli v contains."""
+
+
+def site_keys(frame: Frame, rows: np.ndarray, *, full: bool) -> np.ndarray:
+    """Fingerprints (S, 16, 2) of the images of all 16 local Paulis of each site (XOR of rows)."""
     fp = (frame.fxz if full else frame.fx)[rows]
-    e = frame.e[rows].astype(np.int64)
-    x, z = frame.x[rows], frame.z[rows]
-    cross = np.zeros(rows.shape + (4,), np.int64)
-    for i in range(3):
-        for j in range(i + 1, 4):
-            cross[:, i, j] = popcount(z[:, i] & x[:, j]) & 1
     f16 = np.zeros((len(rows), 16, 2), np.uint64)
-    e16 = np.zeros((len(rows), 16), np.int64)
     for v in range(1, 16):
         j = v.bit_length() - 1
-        rest = v ^ (1 << j)
-        f16[:, v] = f16[:, rest] ^ fp[:, j]
-        e16[:, v] = e16[:, rest] + e[:, j] + 2 * (cross[:, :, j] @ BITS16[rest])
-    return f16, e16 & 3, x, z
+        f16[:, v] = f16[:, v ^ (1 << j)] ^ fp[:, j]
+    return f16
+
+
+def site_cross(frame: Frame, rows: np.ndarray) -> np.ndarray:
+    """(S, 6) parities |z_i ∧ x_j| mod 2 of each site's generator rows, for the pairs i < j.
+
+    One-qubit sites (rows 1 and 3 are the identity) only need the pair (X_a, Z_a)."""
+    x, z = frame.x, frame.z
+    cross = np.zeros((len(rows), len(_PAIRS)), np.int64)
+    cross[:, _PAIRS.index((0, 2))] = popcount(z[rows[:, 0]] & x[rows[:, 2]]) & 1
+    two = rows[:, 1] != frame.n * 2
+    if np.any(two):
+        r2 = rows[two]
+        for p, (i, j) in enumerate(_PAIRS):
+            if (i, j) != (0, 2):
+                cross[two, p] = popcount(z[r2[:, i]] & x[r2[:, j]]) & 1
+    return cross
+
+
+def term_phases(frame: Frame, table: LayerTable, terms) -> np.ndarray:
+    """Phase exponents (T,) of the terms' images: e0 + Σ_j e_j + 2 Σ_{i<j in v} |z_i ∧ x_j| (mod 4)."""
+    rows = table.rows[terms.site]
+    cross = site_cross(frame, table.rows)[terms.site]
+    e = (BITS16[terms.v] * frame.e[rows]).sum(axis=1) + 2 * (PAIR_BITS[terms.v] * cross).sum(axis=1)
+    return (e + terms.e0) & 3
+
+
+def site_images(frame: Frame, rows: np.ndarray, *, full: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Fingerprints (S, 16, 2) and phase exponents (S, 16) of the images of all 16 local Paulis."""
+    e16 = frame.e[rows].astype(np.int64) @ BITS16.T + 2 * site_cross(frame, rows) @ PAIR_BITS.T
+    return site_keys(frame, rows, full=full), e16 & 3
 
 
 class _Batches:
@@ -105,11 +130,9 @@ class GroupSink(_Batches):
         table = self.builder.layer(layer)
         terms = table.unit if self.unit else table.coherent
         state = self.key == "x"
-        if len(terms) or (state and len(table.rows)):
-            f16, e16, _, _ = site_images(frame, table.rows, full=not state)
         if len(terms):
-            self.keys.append(f16[terms.site, terms.v])
-            self.amps.append(terms.coef * PHASE[(e16[terms.site, terms.v] + terms.e0) & 3])
+            self.keys.append(site_keys(frame, table.rows, full=not state)[terms.site, terms.v])
+            self.amps.append(terms.coef * PHASE[term_phases(frame, table, terms)])
             self.tags.append(terms.tag)
             self.batch_of.append(b)
             self.terms_emitted += len(terms)
@@ -117,8 +140,10 @@ class GroupSink(_Batches):
             return
         self.rates_emitted += int(np.count_nonzero(table.rates))
         if state:
-            counted = np.where(np.any(f16 != 0, axis=2), table.rates, 0.0)
-            uniq, sums = _per_source(table, counted.sum(axis=1))
+            site, v, rates = stochastic_terms(table)
+            moved = np.any(site_keys(frame, table.rows, full=False)[site, v] != 0, axis=1)
+            per_site = np.bincount(site[moved], weights=rates[moved], minlength=len(table.rows))
+            uniq, sums = _per_source(table, per_site)
             self.sto.append((b, uniq, sums))
         else:
             if id(table) not in self._static:
@@ -141,42 +166,51 @@ class GroupSink(_Batches):
 
 
 class ObservableSink(_Batches):
-    """First-order error of one Pauli observable O given in the input frame as full rows."""
+    """First-order errors of K Pauli observables O_k, given in the input frame as full rows.
 
-    def __init__(self, builder: TermBuilder, observable: tuple[np.ndarray, np.ndarray, int]):
+    Args:
+        builder: the term builder of this circuit.
+        xo, zo: (K, W) bit rows of the observables pulled back to the input; eo: (K,) phases.
+    """
+
+    def __init__(self, builder: TermBuilder, xo: np.ndarray, zo: np.ndarray, eo: np.ndarray):
         super().__init__()
         self.builder = builder
-        self.xo, self.zo, self.eo = observable
-        self.fo = fingerprints(self.xo[None], None)[0]
-        self.expect = float((1j**self.eo).real) if not np.any(self.xo) else 0.0  # <0|O_in|0>
-        self.values: list[float] = []
+        self.xo, self.zo, self.eo = xo, zo, eo.astype(np.int64)
+        self.fo = fingerprints(xo, None)  # (K, 2)
+        self.expect = np.where(np.any(xo != 0, axis=1), 0.0, PHASE[self.eo].real)  # <0|O_in|0>
+        self.values: list[np.ndarray] = []
 
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:
         self._new()
         table = self.builder.layer(layer)
-        if not len(table.rows):
-            self.values.append(0.0)
-            return
-        f16, e16, x, z = site_images(frame, table.rows, full=False)
-        a = (popcount(x & self.zo) + popcount(z & self.xo)) & 1  # row anticommutes with O
-        b = popcount(z & self.xo) & 1
-        anti16 = (a @ BITS16.T) & 1
-        b16 = (b @ BITS16.T) & 1
-        value = 0.0
-        c = table.coherent
-        if len(c):
-            hit = (anti16[c.site, c.v] == 1) & np.all(f16[c.site, c.v] == self.fo, axis=1)
-            if np.any(hit):
-                s, v = c.site[hit], c.v[hit]
-                ph = (e16[s, v] + c.e0[hit] + self.eo + 2 * b16[s, v]) & 3
-                value += float(np.real(np.sum(2j * c.coef[hit] * PHASE[ph])))
-        if self.expect:
-            value += -2.0 * self.expect * float(np.sum(table.rates * anti16))
+        value = np.zeros(len(self.eo))
         self.values.append(value)
+        if not len(table.rows):
+            return
+        f16, e16 = site_images(frame, table.rows, full=False)
+        x, z = frame.x[table.rows], frame.z[table.rows]
+        xo, zo = self.xo[:, None, None, :], self.zo[:, None, None, :]
+        b = popcount(z[None] & xo) & 1  # (K, S, 4)
+        a = (popcount(x[None] & zo) + b) & 1  # row anticommutes with O_k
+        anti16 = (a @ BITS16.T) & 1  # (K, S, 16)
+        b16 = (b @ BITS16.T) & 1
+        c = table.coherent
+        for k in range(len(value)):
+            if len(c):
+                hit = (anti16[k, c.site, c.v] == 1) & np.all(f16[c.site, c.v] == self.fo[k], axis=1)
+                if np.any(hit):
+                    s, v = c.site[hit], c.v[hit]
+                    ph = (e16[s, v] + c.e0[hit] + self.eo[k] + 2 * b16[k, s, v]) & 3
+                    value[k] += float(np.real(np.sum(2j * c.coef[hit] * PHASE[ph])))
+            if self.expect[k]:
+                value[k] += -2.0 * self.expect[k] * float(np.sum(table.rates * anti16[k]))
 
-    def total(self) -> float:
-        """First-order change of <O>, batch factors applied."""
-        return float(np.dot(self.values, self.prob)) if self.values else 0.0
+    def totals(self) -> np.ndarray:
+        """First-order change of each <O_k>, batch factors applied."""
+        if not self.values:
+            return np.zeros(len(self.eo))
+        return np.asarray(self.prob) @ np.array(self.values)
 
 
 class LandingSink(_Batches):

@@ -131,7 +131,7 @@ class CliffordEngine:
         details = _details(budget, sources, walker, self.top)
         cost = (sink.terms_emitted + sink.rates_emitted) * circuit.num_qubits
         details.update(self._qubit_map(circuit, cost, sink.builder, plans))
-        obs = {label: self.observable_error(circuit, label, _plans=plans) for label in observables}
+        obs = self.observable_errors(circuit, tuple(observables), _plans=plans) if observables else {}
         if observables and _has_relaxation(circuit):
             warnings.append("observables: T1/T2 relaxation enters through its Pauli twirl (first order)")
         return EngineResult(
@@ -158,33 +158,48 @@ class CliffordEngine:
             "qubit_map_quantity": "first-order marginal process infidelity per qubit at the output",
         }
 
-    def observable_error(
-        self, circuit: NoisyCircuit, label: str, *, prune: bool | None = None, _plans: dict | None = None
-    ) -> float:
-        """First-order change <O>_actual - <O>_ideal of the Pauli observable ``label``.
+    def observable_error(self, circuit: NoisyCircuit, label: str, *, prune: bool | None = None) -> float:
+        """First-order change <O>_actual - <O>_ideal of the Pauli observable ``label``."""
+        return self.observable_errors(circuit, (label,), prune=prune)[label]
 
-        δ<O> = i<ψ|[H_total, O]|ψ> (coherent) and -2 p <O> for each stochastic Pauli that
-        anticommutes with O; only the backward light cone of O's qubits is walked unless
-        ``prune`` is False.
+    def observable_errors(
+        self, circuit: NoisyCircuit, labels: tuple[str, ...], *, prune: bool | None = None, _plans: dict | None = None
+    ) -> dict[str, float]:
+        """First-order change of <O> for each Pauli observable (``"Z0Z1"``, ``"X3 Y4"``).
+
+        δ<O> = i<ψ|[H_total, O]|ψ> for the coherent part and -2 p <O> for each stochastic Pauli
+        that anticommutes with O. Each observable is walked on its backward light cone unless
+        ``prune`` is False; observables whose cone is the whole circuit share one walk.
         """
-        paulis = parse_observable(label, circuit.num_qubits)
         prune = self.prune_observables if prune is None else prune
-        if prune:
-            sub, kept = light_cone(circuit, set(paulis))
-            index = {q: i for i, q in enumerate(kept)}
-            paulis = {index[q]: p for q, p in paulis.items()}
-        else:
-            sub = circuit
-        m = sub.num_qubits
-        plans = _plans if (_plans is not None and not prune) else {}
-        whole = Walker(m, "pull", max_unrolled=self.max_unrolled, plans=plans).run(sub.body)
-        qs = sorted(paulis)
-        x, z, e = label_bits("".join(paulis[q] for q in qs))
-        slots = [q for q, b in zip(qs, x) if b] + [m + q for q, b in zip(qs, z) if b]
-        xo, zo, eo = whole.image(np.array([slots]), np.array([e], np.uint8))
-        sink = ObservableSink(TermBuilder(m, sub.qubits, Sources()), (xo[0], zo[0], int(eo[0])))
-        Walker(m, "pull", sink, max_unrolled=self.max_unrolled, plans=plans).run(sub.body)
-        return sink.total()
+        parsed = {label: parse_observable(label, circuit.num_qubits) for label in labels}
+        out: dict[str, float] = {}
+        whole: list[str] = []
+        for label, paulis in parsed.items():
+            if prune:
+                sub, kept = light_cone(circuit, set(paulis))
+                if len(kept) < circuit.num_qubits:
+                    index = {q: i for i, q in enumerate(kept)}
+                    out.update(self._observables(sub, {label: {index[q]: p for q, p in paulis.items()}}, {}))
+                    continue
+            whole.append(label)
+        if whole:
+            out.update(self._observables(circuit, {label: parsed[label] for label in whole}, _plans or {}))
+        return {label: out[label] for label in labels}
+
+    def _observables(self, circuit: NoisyCircuit, paulis: dict[str, dict[int, str]], plans: dict) -> dict[str, float]:
+        m = circuit.num_qubits
+        final = Walker(m, "pull", max_unrolled=self.max_unrolled, plans=plans).run(circuit.body)
+        rows = []
+        for letters in paulis.values():
+            qs = sorted(letters)
+            x, z, e = label_bits("".join(letters[q] for q in qs))
+            slots = [q for q, b in zip(qs, x) if b] + [m + q for q, b in zip(qs, z) if b]
+            rows.append(final.image(np.array([slots]), np.array([e], np.uint8)))
+        xo, zo, eo = (np.concatenate([r[i] for r in rows]) for i in range(3))
+        sink = ObservableSink(TermBuilder(m, circuit.qubits, Sources()), xo, zo, eo)
+        Walker(m, "pull", sink, max_unrolled=self.max_unrolled, plans=plans).run(circuit.body)
+        return dict(zip(paulis, map(float, sink.totals())))
 
     def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:
         """e ≈ δᵀ A δ + floor over (family, knob) labels, from the knobs' first-order generators.
@@ -214,7 +229,7 @@ def _details(b: Budget, sources: Sources, walker: Walker, top: int) -> dict:
         blocks[(count, period)] = blocks.get((count, period), 0) + 1
     return {
         "coherent_first_order": b.coherent,
-        "coherent_exponentiated": b.coherent_resummed,
+        "coherent_exponentiated": b.coherent_resummed + 0.0,
         "stochastic_first_order": b.stochastic,
         "coherent_groups": b.groups,
         "max_group_amplitude_rad": b.max_amplitude,
