@@ -1,0 +1,203 @@
+"""Benchmark of the clifford engine on a 32 x 32 grid (run: python benchmarks/bench_clifford.py).
+
+One cycle = a layer of single-qubit Clifford gates on every qubit, then CZ layers in four
+directions (horizontal even/odd, vertical even/odd couplers). Every gate carries coherent knobs
+(over-rotation, conditional phase, Z phases) and incoherent errors (average infidelity, T1/T2 for
+its duration, idle relaxation). Invented device numbers.
+
+Figures printed (and recorded in docs/benchmarks.md, section "Clifford"); each scenario runs in
+its own process so that its peak RSS is its own; times are wall clock and CPU (user + system):
+
+- ``unrolled``: 100 cycles written out (new layer objects per cycle): build time (circuit +
+  error model), analysis time (process metric, state metric with three observables), ratio,
+  peak RSS;
+- ``folded``: the same cycle as one repeated block, N = 100, 10**6 and 10**9 (cost follows the
+  block's period, not N), for the sx cycle (long period) and the x cycle (short period);
+- ``versus``: generators against clifford on small grids (side by side, same circuit), if the
+  generators engine is present.
+
+Run: ``.venv/bin/python benchmarks/bench_clifford.py`` (all, several minutes) or
+``--scenario unrolled|folded|versus``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import resource
+import time
+
+import numpy as np
+
+from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
+from budget.errors.attach import attach
+from budget.errors.model import ErrorModel
+
+MODEL = {
+    "qubits": {"t1_us": 80.0, "t2_us": 60.0},
+    "gates": {
+        "sx": {"duration_ns": 25.0, "overrotation": 0.002, "avg_infidelity": 2e-4},
+        "h": {"duration_ns": 25.0, "overrotation": 0.0015, "avg_infidelity": 2e-4},
+        "x": {"duration_ns": 25.0, "overrotation": 0.002, "axis_error": 0.001, "avg_infidelity": 2e-4},
+        "s": {"z_phase": 0.001},
+        "cz": {"duration_ns": 60.0, "cphase": 0.01, "z_phase": [0.002, -0.0015], "avg_infidelity": 3e-3},
+    },
+}
+
+PATTERNS = {
+    "sx": lambda r, c: "sx",
+    "x": lambda r, c: "x",
+    "checker": lambda r, c: "h" if (r + c) % 2 else "sx",
+}
+
+
+def grid_cycle(rows: int, cols: int, pattern: str = "sx") -> tuple[Layer, ...]:
+    """One cycle on a rows x cols grid (fresh objects on every call)."""
+    q = lambda r, c: r * cols + c  # noqa: E731
+    single = Layer(tuple(Operation(PATTERNS[pattern](r, c), (q(r, c),)) for r in range(rows) for c in range(cols)))
+    layers = [single]
+    for horizontal in (True, False):
+        for parity in (0, 1):
+            ops = []
+            for r in range(rows):
+                for c in range(cols):
+                    if horizontal and c % 2 == parity and c + 1 < cols:
+                        ops.append(Operation("cz", (q(r, c), q(r, c + 1))))
+                    if not horizontal and r % 2 == parity and r + 1 < rows:
+                        ops.append(Operation("cz", (q(r, c), q(r + 1, c))))
+            layers.append(Layer(tuple(ops)))
+    return tuple(layers)
+
+
+def grid_circuit(rows: int, cols: int, cycles: int, *, folded: bool, pattern: str = "sx") -> StructuredCircuit:
+    names = tuple(f"q[{i}]" for i in range(rows * cols))
+    if folded:
+        body: tuple = (Repeat(grid_cycle(rows, cols, pattern), cycles),)
+    else:
+        body = tuple(layer for _ in range(cycles) for layer in grid_cycle(rows, cols, pattern))
+    return StructuredCircuit(names, body, source=f"<grid {rows}x{cols}, {cycles} cycles>")
+
+
+def build(rows: int, cols: int, cycles: int, *, folded: bool, pattern: str = "sx"):
+    model = ErrorModel.from_dict(MODEL)
+    return attach(grid_circuit(rows, cols, cycles, folded=folded, pattern=pattern), model)
+
+
+def peak_rss_mb() -> float:
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+
+
+def _clock():
+    t = resource.getrusage(resource.RUSAGE_SELF)
+    return time.perf_counter(), t.ru_utime + t.ru_stime
+
+
+def _since(start) -> tuple[float, float]:
+    wall, cpu = _clock()
+    return wall - start[0], cpu - start[1]
+
+
+def unrolled(rows: int = 32, cols: int = 32, cycles: int = 100) -> dict:
+    from budget.engines.clifford import CliffordEngine
+
+    t = _clock()
+    noisy = build(rows, cols, cycles, folded=False)
+    build_wall, build_cpu = _since(t)
+    engine = CliffordEngine()
+    t = _clock()
+    process = engine.run(noisy, "process")
+    centre = (rows // 2) * cols + cols // 2
+    state = engine.run(noisy, "state", observables=("Z0", f"Z{centre}Z{centre + 1}", f"X{centre}"))
+    wall, cpu = _since(t)
+    return {
+        "scenario": f"unrolled {rows}x{cols}, {cycles} cycles",
+        "operations": noisy_ops(noisy),
+        "build_wall_s": build_wall,
+        "build_cpu_s": build_cpu,
+        "analysis_wall_s": wall,
+        "analysis_cpu_s": cpu,
+        "ratio_cpu": cpu / build_cpu,
+        "peak_rss_mb": peak_rss_mb(),
+        "process_first_order": process.first_order,
+        "state_first_order": state.first_order,
+        "qubit_map": "qubit_map" in process.details,
+    }
+
+
+def noisy_ops(noisy) -> int:
+    return sum(len(layer.operations) * m for layer, m in noisy.multiplicities())
+
+
+def folded(pattern: str, count: int, rows: int = 32, cols: int = 32) -> dict:
+    from budget.engines.clifford import CliffordEngine
+
+    noisy = build(rows, cols, count, folded=True, pattern=pattern)
+    t = _clock()
+    r = CliffordEngine().run(noisy, "process")
+    wall, cpu = _since(t)
+    return {
+        "scenario": f"folded {pattern} cycle {rows}x{cols}, N = {count}",
+        "analysis_wall_s": wall,
+        "analysis_cpu_s": cpu,
+        "peak_rss_mb": peak_rss_mb(),
+        "period": r.details["folded_blocks"][0]["period"] if r.details["folded_blocks"] else None,
+        "layers_walked": r.details["layers_walked"],
+        "first_order": r.first_order,
+    }
+
+
+def versus(rows: int, cols: int, cycles: int, metric: str) -> dict:
+    from budget.engines.clifford import CliffordEngine
+    from budget.engines.generators import GeneratorsEngine
+
+    noisy = build(rows, cols, cycles, folded=False)
+    out = {"scenario": f"versus {rows}x{cols}, {cycles} cycles, {metric}"}
+    for name, engine in (("clifford", CliffordEngine()), ("generators", GeneratorsEngine())):
+        t = _clock()
+        r = engine.run(noisy, metric)
+        out[f"{name}_wall_s"], out[f"{name}_cpu_s"] = _since(t)
+        out[f"{name}_first_order"] = r.first_order
+    out["speed_ratio_cpu"] = out["generators_cpu_s"] / out["clifford_cpu_s"]
+    return out
+
+
+SCENARIOS = {
+    "unrolled": [("unrolled", ())],
+    "folded": [("folded", (p, n)) for p in ("sx", "x") for n in (100, 10**6, 10**9)],
+    "versus": [("versus", (2, 5, 20, "process")), ("versus", (3, 4, 20, "state"))],
+}
+
+
+def main() -> None:
+    import json
+    import subprocess
+    import sys
+
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--scenario", choices=[*SCENARIOS, "all"], default="all")
+    parser.add_argument("--one", help=argparse.SUPPRESS)
+    args = parser.parse_args()
+    if args.one:
+        name, params = json.loads(args.one)
+        print(json.dumps(globals()[name](*params)))
+        return
+    chosen = SCENARIOS if args.scenario == "all" else {args.scenario: SCENARIOS[args.scenario]}
+    for group in chosen.values():
+        for name, params in group:
+            if name == "versus":
+                try:
+                    import budget.engines.generators  # noqa: F401
+                except ImportError:
+                    print("versus: skipped (budget/engines/generators.py is absent)")
+                    continue
+            done = subprocess.run(
+                [sys.executable, __file__, "--one", json.dumps([name, list(params)])], capture_output=True, text=True
+            )
+            if done.returncode:
+                print(f"{name} {params}: failed\n{done.stderr[-2000:]}")
+                continue
+            row = json.loads(done.stdout.strip().splitlines()[-1])
+            print("  ".join(f"{k}={v:.4g}" if isinstance(v, float) else f"{k}={v}" for k, v in row.items()), flush=True)
+
+
+if __name__ == "__main__":
+    main()
