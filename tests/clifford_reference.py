@@ -19,11 +19,12 @@ import itertools
 
 import cirq
 import numpy as np
-import scipy.linalg
 
 from budget.circuit.ir import Operation
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
-from reference import pauli_matrix
+from reference import _random_hamiltonian as _random_h
+from reference import _relax, pauli_matrix
+from reference import _unitary_from as _expm
 
 ONE = ["id", "x", "y", "z", "h", "s", "sdg", "sx", "sxdg", "rx", "ry", "rz", "p", "u"]
 TWO = ["cx", "cy", "cz", "swap", "iswap"]
@@ -32,25 +33,6 @@ ANGLES = {"rx": 1, "ry": 1, "rz": 1, "p": 1, "u": 3}
 
 def _labels(k: int) -> list[str]:
     return ["".join(p) for p in itertools.product("IXYZ", repeat=k)][1:]
-
-
-def _random_h(rng, k: int, scale: float) -> dict[str, float]:
-    labels = _labels(k)
-    chosen = rng.choice(len(labels), size=rng.integers(1, 4), replace=False)
-    return {labels[i]: float(rng.normal(0, scale)) for i in chosen}
-
-
-def _expm(h: dict[str, float], k: int) -> np.ndarray:
-    m = sum((c * pauli_matrix(p) for p, c in h.items()), np.zeros((2**k, 2**k), complex))
-    return scipy.linalg.expm(-1j * m)
-
-
-def _relax(rng, q: int, t_ns: float, on: bool) -> Relaxation:
-    if not on or t_ns == 0:
-        return Relaxation(q, t_ns, 0.0, 1.0)
-    t1 = rng.uniform(20, 100) * 1e3
-    t2 = rng.uniform(0.3, 2.0) * t1
-    return Relaxation(q, t_ns, 1 - np.exp(-t_ns / t1), float(np.exp(-t_ns * (1 / t2 - 1 / (2 * t1)))))
 
 
 def random_layer(rng, n: int, *, scale=0.02, depolarizing=True, relaxation=True, rates=False) -> NoisyLayer:
