@@ -22,7 +22,6 @@ import numpy as np
 
 from budget.engines._apply import apply
 from budget.engines._dense import ContentOf, DensePropagator
-from budget.engines._channels import JumpSet
 from budget.engines.periodic import frequency_count, repeated_means, repeated_squares, state_components
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 
@@ -103,19 +102,26 @@ class StateJumps:
         v, energies = state_components(basis, psi)
         if len(energies) > MAX_EIGENSPACES or frequency_count(energies) > MAX_FREQUENCIES:
             return None
-        sets: list[tuple[JumpSet, np.ndarray]] = []
+        decay, ops, rates, families = [], [], [], []
         x = v
         for layer in item.body:
             c = self.content_of(layer)
             for g in c.gates:
                 x = apply(x, g, self.n)
-            sets += [(js, local_gram(x, js.qubits, self.n)) for js in c.jumps]
+            for js in c.jumps:
+                gram = local_gram(x, js.qubits, self.n)
+                decay.append(matrix_elements(gram, js.decay))
+                ops.append(matrix_elements(gram, js.operators))
+                rates.append(js.rates)
+                families += js.families
         out: list[dict[str, float]] = [{} for _ in counts]
-        for js, g in sets:
-            means = repeated_means(matrix_elements(g, js.decay), energies, counts).real
-            squares = repeated_squares(matrix_elements(g, js.operators), energies, counts)
-            for i in range(len(counts)):
-                _add(out[i], js.families, js.rates * (means[:, i] - squares[:, i]))
+        if not families:
+            return out
+        rates_all = np.concatenate(rates)
+        means = repeated_means(np.concatenate(decay), energies, counts).real
+        squares = repeated_squares(np.concatenate(ops), energies, counts)
+        for i in range(len(counts)):
+            _add(out[i], families, rates_all * (means[:, i] - squares[:, i]))
         return out
 
     def _repeat(self, item: NoisyRepeat, psi: np.ndarray, costs: dict[str, float]) -> np.ndarray:

@@ -24,6 +24,7 @@ scaled by exponentiated/first-order coherent, plus its stochastic part; the shar
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Hashable, Sequence
 
 import numpy as np
@@ -43,10 +44,23 @@ from budget.problems import TooLargeError
 
 MAX_DENSE_QUBITS = 11
 """Dense d x d matrices (process metric, repeated blocks, observables with incoherent errors)."""
-MAX_STATE_QUBITS = 20
+MAX_STATE_QUBITS = 16
 """State vectors only (state metric, no repeated block)."""
 NORM_LIMIT_RAD = 0.3
 STOCHASTIC_LIMIT = 0.05
+
+
+@dataclass(frozen=True)
+class _Coherent:
+    """The coherent part: exponentiated and first-order values, family shares (first order),
+    the size of H_total, and for the state metric ψ and e^{-iH_total}ψ."""
+
+    exact: float
+    first: float
+    shares: dict[Hashable, float]
+    norm_rad: float
+    psi: np.ndarray | None = None
+    chi: np.ndarray | None = None
 
 
 def _ground(n: int) -> np.ndarray:
@@ -101,15 +115,15 @@ class GeneratorsEngine:
         path = StatePath(circuit, content_of, dense) if metric == "state" or observables else None
         coh = self._coherent(circuit, metric, dense, path)
         stoch_total = sum(stoch.values())
-        total = float(np.clip(coh["exact"] + stoch_total, 0.0, 1.0))
-        scale = coh["exact"] / coh["first"] if coh["first"] > 0 else 0.0
-        shares = {f: scale * v for f, v in coh["shares"].items()}
+        total = float(np.clip(coh.exact + stoch_total, 0.0, 1.0))
+        scale = coh.exact / coh.first if coh.first > 0 else 0.0
+        shares = {f: scale * v for f, v in coh.shares.items()}
         for f, v in stoch.items():
             shares[f] = shares.get(f, 0.0) + v
         raw = sum(shares.values())
         if raw and abs(raw - total) > 1e-15:
             shares = {f: v * total / raw for f, v in shares.items()}  # only when clipped
-        warnings = self._warnings(circuit, metric, coh["norm"], stoch_total, jumps.approximations)
+        warnings = self._warnings(circuit, metric, coh.norm_rad, stoch_total, jumps.approximations)
         obs: dict[str, float] = {}
         if observables:
             obs, notes = self._observables(circuit, observables, content_of, dense, path, coh)
@@ -119,13 +133,13 @@ class GeneratorsEngine:
             metric=metric,
             infidelity=total,
             shares=shares,
-            first_order=coh["first"] + stoch_total,
+            first_order=coh.first + stoch_total,
             warnings=tuple(dict.fromkeys(warnings)),
             details={
-                "coherent_exponentiated": coh["exact"],
-                "coherent_first_order": coh["first"],
+                "coherent_exponentiated": coh.exact,
+                "coherent_first_order": coh.first,
                 "stochastic_first_order": stoch_total,
-                "hamiltonian_norm_rad": coh["norm"],
+                "hamiltonian_norm_rad": coh.norm_rad,
             },
             observable_errors=obs,
         )
@@ -141,7 +155,7 @@ class GeneratorsEngine:
                 out[f] = out.get(f, 0.0) + mult * v
         return out
 
-    def _coherent(self, circuit, metric, dense: DensePropagator, path: StatePath | None) -> dict:
+    def _coherent(self, circuit, metric, dense: DensePropagator, path: StatePath | None) -> _Coherent:
         if metric == "process":
             block = dense.block(circuit.body, with_unitary=False)
             h = block.total()
@@ -151,11 +165,11 @@ class GeneratorsEngine:
             w = np.linalg.eigvalsh((h + h.conj().T) / 2) if block.keys else np.zeros(d)
             exact = float(np.clip(1 - abs(np.mean(np.exp(-1j * w))) ** 2, 0.0, 1.0))
             first = max(float(np.mean(w**2) - np.mean(w) ** 2), 0.0)
-            return {"exact": exact, "first": first, "shares": shares, "norm": float(np.max(np.abs(w - tr)))}
+            return _Coherent(exact, first, shares, float(np.max(np.abs(w - tr))))
         psi = path.final_state()
         phis = path.group_vectors()
         if not phis:
-            return {"exact": 0.0, "first": 0.0, "shares": {}, "norm": 0.0, "psi": psi, "chi": psi}
+            return _Coherent(0.0, 0.0, {}, 0.0, psi, psi)
         hpsi = sum(phis.values())
         mean = np.vdot(psi, hpsi).real
         shares = {k: float(np.vdot(v, hpsi).real - np.vdot(psi, v).real * mean) for k, v in phis.items()}
@@ -163,7 +177,7 @@ class GeneratorsEngine:
         kr = expm_apply(path.matvec, psi)
         exact = float(np.clip(1 - abs(np.vdot(psi, kr.vector)) ** 2, 0.0, 1.0))
         norm = float(np.max(np.abs(kr.ritz_values - mean)))
-        return {"exact": exact, "first": first, "shares": shares, "norm": norm, "psi": psi, "chi": kr.vector}
+        return _Coherent(exact, first, shares, norm, psi, kr.vector)
 
     def _warnings(self, circuit, metric, norm: float, stoch: float, notes: list[str]) -> list[str]:
         what = []
@@ -186,10 +200,10 @@ class GeneratorsEngine:
         )
         return [f"the first-order model is leaving its range: {' and '.join(what)}; {trust}"] + list(notes)
 
-    def _observables(self, circuit, labels, content_of, dense, path: StatePath, coh) -> tuple[dict[str, float], list[str]]:
+    def _observables(self, circuit, labels, content_of, dense, path: StatePath, coh: _Coherent) -> tuple[dict[str, float], list[str]]:
         n = circuit.num_qubits
-        if "psi" in coh:
-            psi, chi = coh["psi"], coh["chi"]
+        if coh.psi is not None:
+            psi, chi = coh.psi, coh.chi
         else:
             psi = path.final_state()
             chi = expm_apply(path.matvec, psi).vector if path.keys else psi
