@@ -1,8 +1,8 @@
 """The main job in one call: circuit + error model in, naive versus actual accumulation out.
 
     >>> from budget import analyze                                   # doctest: +SKIP
-    >>> result = analyze("circuits/hopping_trotter.qasm", "circuits/fen_q8.toml", cycles=10)
-    >>> result.to_dict()["coherent_amplification"]
+    >>> result = analyze("circuits/hopping_trotter.qasm", "circuits/fen_q8.toml", cycles=10)  # doctest: +SKIP
+    >>> result.to_dict()["coherent_amplification"]                   # doctest: +SKIP
 
 Steps: read the circuit (repeats kept), repeat it ``cycles`` times, attach the error model, compute
 the naive estimate (1 - Π F_pro over operations and idle slots), run the chosen engine, and split
