@@ -387,3 +387,19 @@ def test_parity_cycle_example_through_analyze_matches_generators():
     if GeneratorsEngine is not None:
         g = analyze(qasm, model, cycles=1000, engine="generators")
         assert r.first_order == pytest.approx(g.first_order, rel=1e-10)
+
+
+def test_grouping_in_parts_gives_the_same_sums(monkeypatch):
+    import budget.engines._groups as groups
+
+    rng = np.random.default_rng(13)
+    c = random_clifford_circuit(rng, 4, layers=4, repeat=3)
+    engine = CliffordEngine(qubit_map=False)
+    whole = {m: engine.run(c, m) for m in ("process", "state")}
+    monkeypatch.setattr(groups, "BUCKET_TERMS", 5)
+    for metric, w in whole.items():
+        parts = engine.run(c, metric)
+        assert parts.first_order == pytest.approx(w.first_order, abs=1e-15)
+        assert parts.infidelity == pytest.approx(w.infidelity, abs=1e-15)
+        assert parts.details["first_order_family_shares"] == pytest.approx(w.details["first_order_family_shares"], abs=1e-15)
+        assert np.allclose(engine.quadratic_form(c, metric).matrix, CliffordEngine().quadratic_form(c, metric).matrix, atol=1e-15)

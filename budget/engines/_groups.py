@@ -98,41 +98,63 @@ def _zero_group(keys: np.ndarray, first: np.ndarray) -> np.ndarray:
     return ~np.any(keys[first] != 0, axis=1)
 
 
+BUCKET_TERMS = 2_000_000
+"""Coherent terms grouped at once; larger sets are split by fingerprint bits (less peak memory)."""
+
+
+def _buckets(sink: GroupSink) -> int:
+    parts = 1
+    while parts * BUCKET_TERMS < sink.num_terms and parts < 256:
+        parts *= 2
+    return parts
+
+
 def aggregate(sink: GroupSink, num_sources: int, *, state: bool) -> Budget:
     """Totals from a filled :class:`GroupSink` (``state`` drops the x = 0 group: <H>, no variance)."""
-    keys, amps, src = sink.coherent_terms()
-    inv, first = group_rows(keys)
-    amp_g = np.bincount(inv, weights=amps.real, minlength=len(first)) + 1j * np.bincount(
-        inv, weights=amps.imag, minlength=len(first)
-    )
-    if state and len(first):
-        amp_g[_zero_group(keys, first)] = 0.0
-    mag = np.abs(amp_g)
-    shares = np.bincount(src, weights=np.real(np.conj(amps) * amp_g[inv]), minlength=num_sources)
+    coherent = log_f = max_amp = 0.0
+    groups = 0
+    shares = np.zeros(num_sources)
+    parts = _buckets(sink)
+    for part in range(parts):
+        keys, amps, src = sink.coherent_terms(part, parts)
+        inv, first = group_rows(keys)
+        amp_g = np.bincount(inv, weights=amps.real, minlength=len(first)) + 1j * np.bincount(
+            inv, weights=amps.imag, minlength=len(first)
+        )
+        if state and len(first):
+            amp_g[_zero_group(keys, first)] = 0.0
+        mag = np.abs(amp_g)
+        shares += np.bincount(src, weights=np.real(np.conj(amps) * amp_g[inv]), minlength=num_sources)
+        coherent += float(np.sum(mag**2))
+        cos2 = np.cos(np.minimum(mag, np.pi / 2)) ** 2
+        log_f += float(np.sum(np.log(cos2))) if np.all(cos2 > 0) else -np.inf
+        groups += int(np.count_nonzero(mag))
+        max_amp = max(max_amp, float(mag.max()) if len(mag) else 0.0)
     sto = sink.stochastic_by_source(num_sources)
-    cos2 = np.cos(np.minimum(mag, np.pi / 2)) ** 2
-    log_f = float(np.sum(np.log(cos2))) if np.all(cos2 > 0) else -np.inf
     return Budget(
-        coherent=float(np.sum(mag**2)),
+        coherent=coherent,
         stochastic=float(np.sum(sto)),
         coherent_resummed=float(-np.expm1(log_f)),
         coherent_shares=shares,
         stochastic_shares=sto,
-        groups=int(np.count_nonzero(mag)),
-        max_amplitude=float(mag.max()) if len(mag) else 0.0,
+        groups=groups,
+        max_amplitude=max_amp,
     )
 
 
 def quadratic_matrix(sink: GroupSink, num_labels: int, *, state: bool) -> np.ndarray:
     """A_{ij} = Σ_g Re(conj(B_{g i}) B_{g j}), B_{g i} the summed unit amplitude of knob label i in
     group g (the state metric drops the x = 0 group)."""
-    keys, amps, labels = sink.coherent_terms()
-    if not len(keys) or not num_labels:
-        return np.zeros((num_labels, num_labels))
-    inv, first = group_rows(keys)
-    if state:
-        keep = ~_zero_group(keys, first)[inv]
-        inv, amps, labels = inv[keep], amps[keep], labels[keep]
-    b = scipy.sparse.coo_matrix((amps, (inv, labels)), shape=(len(first), num_labels)).tocsr()
-    a = (b.conj().T @ b).real.toarray()
+    a = np.zeros((num_labels, num_labels))
+    parts = _buckets(sink)
+    for part in range(parts):
+        keys, amps, labels = sink.coherent_terms(part, parts)
+        if not len(keys) or not num_labels:
+            continue
+        inv, first = group_rows(keys)
+        if state:
+            keep = ~_zero_group(keys, first)[inv]
+            inv, amps, labels = inv[keep], amps[keep], labels[keep]
+        b = scipy.sparse.coo_matrix((amps, (inv, labels)), shape=(len(first), num_labels)).tocsr()
+        a += (b.conj().T @ b).real.toarray()
     return (a + a.T) / 2

@@ -116,10 +116,7 @@ class GroupSink(_Batches):
     def __init__(self, builder: TermBuilder, *, key: str, unit: bool = False):
         super().__init__()
         self.builder, self.key, self.unit = builder, key, unit
-        self.keys: list[np.ndarray] = []
-        self.amps: list[np.ndarray] = []
-        self.tags: list[np.ndarray] = []
-        self.batch_of: list[int] = []
+        self.chunks: list[tuple[int, np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = []  # batch, keys, coef, phase, tag
         self.sto: list[tuple[int, np.ndarray, np.ndarray]] = []  # batch, sources, summed rates
         self._static: dict[int, tuple] = {}
         self.terms_emitted = 0
@@ -131,10 +128,9 @@ class GroupSink(_Batches):
         terms = table.unit if self.unit else table.coherent
         state = self.key == "x"
         if len(terms):
-            self.keys.append(site_keys(frame, table.rows, full=not state)[terms.site, terms.v])
-            self.amps.append(terms.coef * PHASE[term_phases(frame, table, terms)])
-            self.tags.append(terms.tag)
-            self.batch_of.append(b)
+            keys = site_keys(frame, table.rows, full=not state)[terms.site, terms.v]
+            phase = term_phases(frame, table, terms).astype(np.uint8)
+            self.chunks.append((b, keys, terms.coef, phase, terms.tag))  # coef, tag shared with the table
             self.terms_emitted += len(terms)
         if not len(table.rows):
             return
@@ -150,12 +146,24 @@ class GroupSink(_Batches):
                 self._static[id(table)] = _per_source(table, table.rates.sum(axis=1))
             self.sto.append((b,) + self._static[id(table)])
 
-    def coherent_terms(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """(fingerprints, amplitudes with batch factors applied, tags) of every coherent term."""
-        if not self.keys:
-            return np.zeros((0, 2), np.uint64), np.zeros(0, complex), np.zeros(0, np.int64)
-        factors = np.concatenate([np.full(len(a), self.amp[b]) for a, b in zip(self.amps, self.batch_of)])
-        return np.concatenate(self.keys), np.concatenate(self.amps) * factors, np.concatenate(self.tags)
+    def coherent_terms(self, bucket: int | None = None, buckets: int = 1):
+        """(fingerprints, amplitudes h·i^e with batch factors applied, tags) of the coherent terms,
+        all of them or only those whose fingerprint falls in ``bucket`` of ``buckets`` (by the top
+        bits of its first word), so that large sets can be grouped a part at a time."""
+        keys, amps, tags = [np.zeros((0, 2), np.uint64)], [np.zeros(0, complex)], [np.zeros(0, np.int64)]
+        shift = np.uint64(64 - max(1, (buckets - 1).bit_length()))
+        for b, k, coef, phase, tag in self.chunks:
+            if bucket is not None and buckets > 1:
+                m = (k[:, 0] >> shift) == bucket
+                k, coef, phase, tag = k[m], coef[m], phase[m], tag[m]
+            keys.append(k)
+            amps.append(coef * self.amp[b] * PHASE[phase])
+            tags.append(tag)
+        return np.concatenate(keys), np.concatenate(amps), np.concatenate(tags)
+
+    @property
+    def num_terms(self) -> int:
+        return sum(len(c[2]) for c in self.chunks)
 
     def stochastic_by_source(self, num_sources: int) -> np.ndarray:
         """Counted first-order stochastic infidelity per source, batch factors applied."""
