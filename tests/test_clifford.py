@@ -403,3 +403,11 @@ def test_grouping_in_parts_gives_the_same_sums(monkeypatch):
         assert parts.infidelity == pytest.approx(w.infidelity, abs=1e-15)
         assert parts.details["first_order_family_shares"] == pytest.approx(w.details["first_order_family_shares"], abs=1e-15)
         assert np.allclose(engine.quadratic_form(c, metric).matrix, CliffordEngine().quadratic_form(c, metric).matrix, atol=1e-15)
+
+
+def test_malformed_observable_is_one_input_error():
+    from budget.problems import InputError
+
+    c = random_clifford_circuit(np.random.default_rng(14), 2, layers=1)
+    with pytest.raises(InputError, match="Z7"):
+        ENGINE.run(c, "process", observables=("Z7",))

@@ -33,7 +33,7 @@ from budget.engines._terms import Sources, TermBuilder
 from budget.engines._walk import MAX_UNROLLED, Walker
 from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable
 from budget.errors.noisy import NoisyCircuit
-from budget.problems import TooLargeError, place
+from budget.problems import InputError, TooLargeError, place
 
 SMALL = 0.1
 LANDING_BUDGET = 4e8
@@ -172,7 +172,10 @@ class CliffordEngine:
         ``prune`` is False; observables whose cone is the whole circuit share one walk.
         """
         prune = self.prune_observables if prune is None else prune
-        parsed = {label: parse_observable(label, circuit.num_qubits) for label in labels}
+        try:
+            parsed = {label: parse_observable(label, circuit.num_qubits) for label in labels}
+        except ValueError as err:
+            raise InputError(f"{circuit.source}: {err}") from None
         out: dict[str, float] = {}
         whole: list[str] = []
         for label, paulis in parsed.items():
