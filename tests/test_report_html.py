@@ -52,7 +52,8 @@ def _circuit() -> StructuredCircuit:
 
 @pytest.fixture(scope="module")
 def data():
-    return gather(_circuit(), MODEL, target=0.01, cycles=4, max_cycles=300, points=6)
+    model = ErrorModel.from_dict(MODEL, source="fen_q8_pair_test.toml")  # an invented test model
+    return gather(_circuit(), model, target=0.01, cycles=4, max_cycles=300, points=12)
 
 
 @pytest.fixture(scope="module")

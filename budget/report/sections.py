@@ -89,7 +89,8 @@ def _depth(data: ReportData, figures: dict[str, str]) -> list[Block]:
         f"The whole circuit is treated as one cycle and repeated N = 1 … {c.max_cycles:,} times. The naive curve "
         "multiplies fidelities; the accumulated curve follows the errors as the circuit is compiled; the "
         "Pauli-twirled curve shows the same errors after random compiling, where coherent errors add in "
-        "probability instead of amplitude."
+        f"probability instead of amplitude. Curves computed by: {c.engine}"
+        + (f" (twirled: {c.twirled_engine})." if c.twirled_engine != c.engine else ".")
     )
     if c.crossover_repetitions is not None:
         text += f" From N = {c.crossover_repetitions:,} on the accumulated error is more than twice the naive estimate."
