@@ -411,3 +411,28 @@ def test_malformed_observable_is_one_input_error():
     c = random_clifford_circuit(np.random.default_rng(14), 2, layers=1)
     with pytest.raises(InputError, match="Z7"):
         ENGINE.run(c, "process", observables=("Z7",))
+
+
+def _grid_cycle(side: int) -> tuple[NoisyLayer, ...]:
+    """sx on every qubit, then CZ in four directions on a side x side grid (no errors)."""
+    q = lambda r, c: r * side + c  # noqa: E731
+    bare = lambda op: NoisyOperation(op, op.gate, np.eye(2 ** len(op.qubits)), {})  # noqa: E731
+    layers = [[bare(Operation("sx", (q(r, c),))) for r in range(side) for c in range(side)]]
+    for horizontal, parity in itertools.product((True, False), (0, 1)):
+        pairs = [
+            (q(r, c), q(r, c + 1)) if horizontal else (q(c, r), q(c + 1, r))
+            for r in range(side)
+            for c in range(parity, side - 1, 2)
+        ]
+        layers.append([bare(Operation("cz", p)) for p in pairs])
+    return tuple(NoisyLayer(tuple(ops), (), 0.0) for ops in layers)
+
+
+def test_long_period_fold_leaves_the_exact_frame_after_the_block():
+    # 8 x 8 grid cycle: period 252 (found by the walker); N = 252 + 70 exercises the snapshot
+    # used to advance the frame by N mod 252 without walking from the start again.
+    cycle = _grid_cycle(8)
+    folded = Walker(64, "pull")
+    frame = folded.run((NoisyRepeat(cycle, 322),))
+    assert folded.periods == [(322, 252)]
+    assert frame.equals(Walker(64, "pull").run(cycle * 322))

@@ -35,6 +35,9 @@ from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 
 MAX_UNROLLED = 4096
 """Default cap on repetitions walked while looking for a block's period."""
+SNAPSHOT_STRIDE = 64
+"""A copy of the frame is kept every this many repetitions, so that advancing the frame by the
+remainder N mod r after folding re-walks fewer than this many repetitions."""
 
 
 class Sink(Protocol):
@@ -129,19 +132,22 @@ class Walker:
         start = self.frame.copy()
         marks = [self.sink.mark()] if self._emit else []
         limit = min(count, self.max_unrolled)
+        snapshots = {0: start}
         for k in range(limit):
             self._items(rep.body)
             if self._emit:
                 marks.append(self.sink.mark())
             if k + 1 < count and self.frame.equals(start):
-                self._fold(rep, k + 1, marks)
+                self._fold(rep, k + 1, marks, snapshots)
                 return
+            if (k + 1) % SNAPSHOT_STRIDE == 0:
+                snapshots[k + 1] = self.frame.copy()
         if count <= self.max_unrolled:
             self.periods.append((count, None))
             return
         self._approximate(rep, start, limit, marks)
 
-    def _fold(self, rep: NoisyRepeat, period: int, marks: list[int]) -> None:
+    def _fold(self, rep: NoisyRepeat, period: int, marks: list[int], snapshots: dict[int, Frame]) -> None:
         q, s = divmod(int(rep.count), period)
         self.periods.append((int(rep.count), period))
         if self._emit:
@@ -149,8 +155,10 @@ class Walker:
                 w = float(q + (1 if k < s else 0))
                 if w != 1.0:
                     self.sink.scale(marks[k], marks[k + 1], w, w)
-        was, self._emit = self._emit, False  # frame is back at the start: advance it by s blocks
-        for _ in range(s):
+        base = s - s % SNAPSHOT_STRIDE  # frame is back at the start: advance it by s blocks
+        self.frame = snapshots[base].copy()
+        was, self._emit = self._emit, False
+        for _ in range(s - base):
             self._items(rep.body)
         self._emit = was
 
