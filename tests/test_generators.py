@@ -288,5 +288,9 @@ def test_too_large_names_the_limit_and_the_alternative():
     assert ENGINE.fits(_circuit(3, _layer(_nop("x", (0,)))), "process") is None
 
 
-def test_registry_returns_the_engine():
+def test_registry_returns_the_engine_and_unknown_metrics_are_refused():
     assert get_engine("generators").name == "generators"
+    c = _circuit(1, _layer(_nop("x", (0,))))
+    assert "not one of" in ENGINE.fits(c, "average")
+    with pytest.raises(ValueError, match="metric 'average'"):
+        ENGINE.run(c, "average")

@@ -37,7 +37,7 @@ from budget.engines._knobs import knob_grouping
 from budget.engines._krylov import expm_apply
 from budget.engines._observables import IncoherentObservables, observable_vector
 from budget.engines._states import StatePath
-from budget.engines.base import EngineResult, Metric, QuadraticForm, parse_observable
+from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable
 from budget.engines.depth import DepthCurve, depth_curve
 from budget.errors.noisy import NoisyCircuit
 from budget.problems import TooLargeError
@@ -86,6 +86,9 @@ class GeneratorsEngine:
     name = "generators"
 
     def fits(self, circuit: NoisyCircuit, metric: Metric, observables: tuple[str, ...] = ()) -> str | None:
+        """None when the circuit fits, else the reason (qubits, limit, memory, engine that fits)."""
+        if metric not in METRICS:
+            return f"metric {metric!r} is not one of {', '.join(METRICS)}"
         n = circuit.num_qubits
         if _needs_dense(circuit, metric, observables):
             if n > MAX_DENSE_QUBITS:
@@ -104,6 +107,10 @@ class GeneratorsEngine:
         return None
 
     def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
+        """The metric to first order (see the module docstring) and the signed first-order errors
+        <O>_actual - <O>_ideal of Pauli observables; TooLargeError when :meth:`fits` refuses."""
+        if metric not in METRICS:
+            raise ValueError(f"metric {metric!r}: expected one of {', '.join(METRICS)}")
         reason = self.fits(circuit, metric, observables)
         if reason is not None:
             raise TooLargeError(f"{circuit.source}: engine generators: {reason}")
