@@ -17,7 +17,6 @@ from budget.analysis.randomized import EnsembleResult, ensemble
 from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary
 from budget.analysis.run import analyze, analyze_noisy
 from budget.analysis.twirl import twirled_circuit
-from budget.circuit.cirq_reader import from_cirq
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
 from budget.circuit.load import load_circuit
 from budget.engines import ENGINE_NAMES, EngineResult, get_engine
@@ -27,6 +26,15 @@ from budget.errors.noisy import NoisyCircuit
 from budget.problems import CircuitSyntaxError, InputError, ModelError, TooLargeError
 
 __version__ = "0.1.0"
+
+
+def from_cirq(circuit, source: str = "<cirq.Circuit>") -> StructuredCircuit:
+    """A cirq circuit as a StructuredCircuit (moments become layers, CircuitOperation repetitions
+    become repeats); see :func:`budget.circuit.cirq_reader.from_cirq`. cirq is imported here, on
+    first use, because it takes seconds to import."""
+    from budget.circuit.cirq_reader import from_cirq as _from_cirq
+
+    return _from_cirq(circuit, source)
 
 __all__ = [
     "BudgetResult",

@@ -12,9 +12,7 @@ the actual value into per-family shares.
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
-
-import cirq
+from typing import TYPE_CHECKING, Any
 
 from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary
 from budget.analysis.select import choose_engine, first_order_shares
@@ -23,11 +21,14 @@ from budget.engines.base import METRICS
 from budget.errors.noisy import IDLE, NoisyCircuit
 from budget.problems import InputError
 
+if TYPE_CHECKING:
+    import cirq
+
 MAX_CYCLES = 10**18
 
 
 def analyze(
-    circuit: str | Path | cirq.Circuit | StructuredCircuit,
+    circuit: "str | Path | cirq.Circuit | StructuredCircuit",
     errors: Any,
     *,
     cycles: int = 1,

@@ -1,7 +1,8 @@
 """The gate table: ideal matrices and the axis each gate's over-rotation turns about.
 
-One entry per gate name. Matrices come from cirq's gate library (so conventions match the
-reference simulator used in tests); the over-rotation generator K is the Hermitian operator with
+One entry per gate name. Matrices are written from their textbook definitions in cirq's
+conventions (tests/test_gates.py checks every one against cirq's gate library, the reference
+simulator's own; cirq is not imported here because it takes seconds to import); the over-rotation generator K is the Hermitian operator with
 ideal gate = exp(-i θ K) up to global phase, so an over-rotation δ is the extra unitary exp(-i δ K)
 after the gate. Parametrised gates instead shift their first angle: U(θ+δ) U(θ)†.
 
@@ -14,7 +15,6 @@ from dataclasses import dataclass
 from functools import lru_cache
 from typing import Callable
 
-import cirq
 import numpy as np
 
 _I = np.eye(2, dtype=complex)
@@ -55,40 +55,54 @@ class GateSpec:
     virtual: bool = False
 
 
-def _fixed(gate: cirq.Gate) -> Callable[..., np.ndarray]:
-    m = cirq.unitary(gate).astype(complex)
+def _fixed(m: np.ndarray) -> Callable[..., np.ndarray]:
+    m = np.asarray(m, dtype=complex)
     return lambda: m
 
 
+def _rot(pauli: np.ndarray) -> Callable[[float], np.ndarray]:
+    """R_P(θ) = exp(-i θ P/2) = cos(θ/2) I - i sin(θ/2) P for a Pauli matrix P."""
+    return lambda t: np.cos(t / 2) * np.eye(len(pauli)) - 1j * np.sin(t / 2) * pauli
+
+
+def _controlled(u: np.ndarray) -> np.ndarray:
+    out = np.eye(4, dtype=complex)
+    out[2:, 2:] = u
+    return out
+
+
+_SX = np.array([[1 + 1j, 1 - 1j], [1 - 1j, 1 + 1j]]) / 2
+_ZZ = np.kron(_Z, _Z)
+
 GATES: dict[str, GateSpec] = {
-    "id": GateSpec(1, 0, _fixed(cirq.I)),
-    "x": GateSpec(1, 0, _fixed(cirq.X), _X / 2, xy_plane=True),
-    "y": GateSpec(1, 0, _fixed(cirq.Y), _Y / 2, xy_plane=True),
-    "z": GateSpec(1, 0, _fixed(cirq.Z), _Z / 2, virtual=True),
-    "h": GateSpec(1, 0, _fixed(cirq.H), (_X + _Z) / (2 * np.sqrt(2))),
-    "s": GateSpec(1, 0, _fixed(cirq.S), _Z / 2, virtual=True),
-    "sdg": GateSpec(1, 0, _fixed(cirq.S**-1), -_Z / 2, virtual=True),
-    "t": GateSpec(1, 0, _fixed(cirq.T), _Z / 2, virtual=True),
-    "tdg": GateSpec(1, 0, _fixed(cirq.T**-1), -_Z / 2, virtual=True),
-    "sx": GateSpec(1, 0, _fixed(cirq.XPowGate(exponent=0.5)), _X / 2, xy_plane=True),
-    "sxdg": GateSpec(1, 0, _fixed(cirq.XPowGate(exponent=-0.5)), -_X / 2, xy_plane=True),
-    "rx": GateSpec(1, 1, lambda t: cirq.unitary(cirq.rx(t)), xy_plane=True),
-    "ry": GateSpec(1, 1, lambda t: cirq.unitary(cirq.ry(t)), xy_plane=True),
-    "rz": GateSpec(1, 1, lambda t: cirq.unitary(cirq.rz(t)), virtual=True),
+    "id": GateSpec(1, 0, _fixed(_I)),
+    "x": GateSpec(1, 0, _fixed(_X), _X / 2, xy_plane=True),
+    "y": GateSpec(1, 0, _fixed(_Y), _Y / 2, xy_plane=True),
+    "z": GateSpec(1, 0, _fixed(_Z), _Z / 2, virtual=True),
+    "h": GateSpec(1, 0, _fixed((_X + _Z) / np.sqrt(2)), (_X + _Z) / (2 * np.sqrt(2))),
+    "s": GateSpec(1, 0, _fixed(np.diag([1, 1j])), _Z / 2, virtual=True),
+    "sdg": GateSpec(1, 0, _fixed(np.diag([1, -1j])), -_Z / 2, virtual=True),
+    "t": GateSpec(1, 0, _fixed(np.diag([1, np.exp(1j * np.pi / 4)])), _Z / 2, virtual=True),
+    "tdg": GateSpec(1, 0, _fixed(np.diag([1, np.exp(-1j * np.pi / 4)])), -_Z / 2, virtual=True),
+    "sx": GateSpec(1, 0, _fixed(_SX), _X / 2, xy_plane=True),
+    "sxdg": GateSpec(1, 0, _fixed(_SX.conj().T), -_X / 2, xy_plane=True),
+    "rx": GateSpec(1, 1, _rot(_X), xy_plane=True),
+    "ry": GateSpec(1, 1, _rot(_Y), xy_plane=True),
+    "rz": GateSpec(1, 1, _rot(_Z), virtual=True),
     "p": GateSpec(1, 1, lambda t: np.diag([1.0, np.exp(1j * t)]), virtual=True),
     "u1": GateSpec(1, 1, lambda t: np.diag([1.0, np.exp(1j * t)]), virtual=True),
     "u2": GateSpec(1, 2, lambda phi, lam: _u3(np.pi / 2, phi, lam)),
     "u3": GateSpec(1, 3, _u3),
     "u": GateSpec(1, 3, _u3),
-    "cx": GateSpec(2, 0, _fixed(cirq.CNOT), np.kron(_P1, (_I - _X) / 2)),
-    "cy": GateSpec(2, 0, _fixed(cirq.ControlledGate(cirq.Y)), np.kron(_P1, (_I - _Y) / 2)),
-    "cz": GateSpec(2, 0, _fixed(cirq.CZ), np.kron(_P1, _P1)),
-    "swap": GateSpec(2, 0, _fixed(cirq.SWAP)),
-    "iswap": GateSpec(2, 0, _fixed(cirq.ISWAP)),
+    "cx": GateSpec(2, 0, _fixed(_controlled(_X)), np.kron(_P1, (_I - _X) / 2)),
+    "cy": GateSpec(2, 0, _fixed(_controlled(_Y)), np.kron(_P1, (_I - _Y) / 2)),
+    "cz": GateSpec(2, 0, _fixed(_controlled(_Z)), np.kron(_P1, _P1)),
+    "swap": GateSpec(2, 0, _fixed(np.eye(4)[[0, 2, 1, 3]])),
+    "iswap": GateSpec(2, 0, _fixed(np.array([[1, 0, 0, 0], [0, 0, 1j, 0], [0, 1j, 0, 0], [0, 0, 0, 1]]))),
     "cp": GateSpec(2, 1, lambda t: np.diag([1.0, 1.0, 1.0, np.exp(1j * t)])),
     "cu1": GateSpec(2, 1, lambda t: np.diag([1.0, 1.0, 1.0, np.exp(1j * t)])),
-    "crz": GateSpec(2, 1, lambda t: cirq.unitary(cirq.ControlledGate(cirq.rz(t)))),
-    "rzz": GateSpec(2, 1, lambda t: cirq.unitary(cirq.ZZPowGate(exponent=t / np.pi, global_shift=-0.5))),
+    "crz": GateSpec(2, 1, lambda t: _controlled(_rot(_Z)(t))),
+    "rzz": GateSpec(2, 1, _rot(_ZZ)),
 }
 """Gate name -> spec. Aliases accepted by readers are mapped in ALIASES."""
 

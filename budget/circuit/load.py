@@ -4,18 +4,20 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import cirq
+from typing import TYPE_CHECKING
 
-from budget.circuit.cirq_reader import from_cirq, read_cirq_json
 from budget.circuit.ir import StructuredCircuit
 from budget.circuit.qasm import read_qasm
 from budget.problems import InputError
+
+if TYPE_CHECKING:
+    import cirq
 
 QASM_SUFFIXES = (".qasm", ".qasm2", ".qasm3")
 JSON_SUFFIXES = (".json",)
 
 
-def load_circuit(source: str | Path | cirq.AbstractCircuit) -> StructuredCircuit:
+def load_circuit(source: "str | Path | cirq.AbstractCircuit") -> StructuredCircuit:
     """Read a circuit, dispatching on its type and file extension.
 
     - ``cirq.Circuit`` (or ``FrozenCircuit``): :func:`budget.circuit.cirq_reader.from_cirq`.
@@ -28,8 +30,13 @@ def load_circuit(source: str | Path | cirq.AbstractCircuit) -> StructuredCircuit
         InputError: missing file or unknown extension (the message names the file).
         CircuitSyntaxError: the file cannot be read as a circuit (message starts ``file:line``).
     """
-    if isinstance(source, cirq.AbstractCircuit):
-        return from_cirq(source)
+    if type(source).__module__.startswith("cirq"):
+        import cirq
+
+        from budget.circuit.cirq_reader import from_cirq
+
+        if isinstance(source, cirq.AbstractCircuit):
+            return from_cirq(source)
     if not isinstance(source, (str, Path)):
         raise TypeError(f"load_circuit expects a path or a cirq.Circuit, got {type(source).__name__}")
     path = Path(source)
@@ -39,6 +46,8 @@ def load_circuit(source: str | Path | cirq.AbstractCircuit) -> StructuredCircuit
     if suffix in QASM_SUFFIXES:
         return read_qasm(path)
     if suffix in JSON_SUFFIXES:
+        from budget.circuit.cirq_reader import read_cirq_json
+
         return read_cirq_json(path)
     known = ", ".join(QASM_SUFFIXES + JSON_SUFFIXES)
     raise InputError(f"{path}: unknown circuit format {suffix or '(no extension)'!r}: expected one of {known}")
