@@ -170,14 +170,7 @@ def _noisy_ops(circuit: NoisyCircuit, qs) -> list[cirq.Operation]:
 
 def cirq_state_infidelity(circuit: NoisyCircuit) -> float:
     """1 - <ψ|ρ|ψ> for input |0…0>, by cirq's simulators."""
-    qs = cirq.LineQubit.range(circuit.num_qubits)
-    ident = [cirq.I(q) for q in qs]
-    psi = cirq.Simulator(dtype=np.complex128).simulate(
-        cirq.Circuit(ident + _ideal_ops(circuit, qs)), qubit_order=qs
-    ).final_state_vector
-    rho = cirq.DensityMatrixSimulator(dtype=np.complex128).simulate(
-        cirq.Circuit(ident + _noisy_ops(circuit, qs)), qubit_order=qs
-    ).final_density_matrix
+    psi, rho = cirq_final_states(circuit)
     return float(1 - np.real(psi.conj() @ rho @ psi))
 
 
