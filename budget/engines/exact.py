@@ -13,12 +13,15 @@ superoperator is the Choi state of the doubled system reshuffled: the same 16^n 
 same work per gate, so the engine keeps the superoperator, which repeated blocks need anyway.
 
 Each operation's channel (ideal gate, coherent unitary, Pauli rates, depolarizing, relaxation;
-budget/errors/noisy.py) is one local matrix (:mod:`budget.engines._exact_local`); consecutive
+budget/errors/noisy.py) is one local matrix (:mod:`budget.engines._exact_local`; density
+matrices and superoperators are held in the real Pauli basis, channels as Pauli transfer
+matrices); consecutive
 matrices on at most two qubits are multiplied together before they touch the register
 (:mod:`budget.engines._exact_register`). A repeated block (NoisyRepeat, nested allowed) is
 either unrolled or replaced by its block matrix to the power N (:mod:`budget.engines._exact_power`:
 Schur form for unitaries, eigendecomposition or squaring for channels), whichever is cheaper, so
-N = 10^9 costs what N = 2 costs. Shares are left to the analysis layer.
+N = 10^9 costs what N = 2 costs. The metrics are read out by :mod:`budget.engines._exact_readout`.
+Shares are left to the analysis layer.
 """
 
 from __future__ import annotations
@@ -32,12 +35,12 @@ from budget.engines._exact_local import (
     PAULI_BASIS,
     channel_superop,
     gate_unitary,
-    pauli_string_matrix,
     pauli_transfer,
     relaxation_superop,
 )
-from budget.engines._exact_plan import REPEAT_MODES, Plan, make_plan, refusal
+from budget.engines._exact_plan import REPEAT_MODES, make_plan, refusal
 from budget.engines._exact_power import channel_power, unitary_power
+from budget.engines._exact_readout import expectation, from_pauli, infidelity
 from budget.engines._exact_register import Fuser, Register
 from budget.engines.base import METRICS, EngineResult, Metric, parse_observable
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
@@ -114,21 +117,6 @@ class _Runner:
         return p
 
 
-def _from_pauli(data: np.ndarray, n: int) -> np.ndarray:
-    """(4^n, C) register in the Pauli basis -> interleaved (r, c) basis on the output side, and on
-    the input side too when C = 4^n (an operator): S = T† R T per qubit."""
-    out = data.astype(complex).reshape((4,) * n + (data.shape[1],))
-    tinv = PAULI_BASIS.conj().T
-    for q in range(n):
-        out = np.moveaxis(np.tensordot(tinv, out, axes=(1, q)), 0, q)
-    if data.shape[1] == 4**n:
-        out = out.reshape((4,) * (2 * n))
-        for q in range(n):
-            out = np.tensordot(out, PAULI_BASIS, axes=(n + q, 0))
-            out = np.moveaxis(out, -1, n + q)
-    return np.ascontiguousarray(out).reshape(4**n, data.shape[1])
-
-
 def _content_key(nop: NoisyOperation) -> tuple:
     """Operations with equal content share one local matrix (built once per run)."""
     op = nop.op
@@ -142,26 +130,6 @@ def _content_key(nop: NoisyOperation) -> tuple:
         nop.depolarizing,
         tuple((r.qubit == op.qubits[0], r.gamma, r.dephasing_factor) for r in nop.relaxation),
     )
-
-
-def _interleaved_to_matrix(rho: np.ndarray, n: int) -> np.ndarray:
-    """Density matrix d x d from the interleaved layout (site index 2 r_q + c_q)."""
-    perm = [2 * q for q in range(n)] + [2 * q + 1 for q in range(n)]
-    return rho.reshape((2,) * (2 * n)).transpose(perm).reshape(2**n, 2**n)
-
-
-def _expectation(state: np.ndarray, paulis: dict[int, str], n: int, density: bool) -> float:
-    """<O> for a Pauli product O on a state vector or an interleaved density matrix."""
-    if density:
-        val = state.reshape((4,) * n)
-        for q in range(n):  # contract the leading axis each time: Tr(Oρ) = Σ_rc O[c, r] ρ[r, c]
-            o = pauli_string_matrix(paulis.get(q, "I")).T.reshape(4)
-            val = np.tensordot(o, val, axes=(0, 0))
-        return float(np.real(val))
-    phi = state.reshape((2,) * n)
-    for q, letter in paulis.items():
-        phi = np.moveaxis(np.tensordot(pauli_string_matrix(letter), phi, axes=(1, q)), 0, q)
-    return float(np.real(np.vdot(state, phi.reshape(-1))))
 
 
 class ExactEngine:
@@ -209,12 +177,12 @@ class ExactEngine:
                 lambda r: pauli_transfer(relaxation_superop(r), 1),
                 plan.powered,
             )
-            actual = _from_pauli(self._propagate(runner, circuit, 4, plan.columns > 1), n)
-        infidelity = _infidelity(plan, actual, ideal, n)
+            actual = from_pauli(self._propagate(runner, circuit, 4, plan.columns > 1), n)
+        value = infidelity(plan.form, actual, ideal, n)
         density = plan.site_dim == 4
         out_state, ideal_state = actual[:, 0], ideal[:, 0]  # output for input |0…0>
         obs = {
-            label: _expectation(out_state, p, n, density) - _expectation(ideal_state, p, n, False)
+            label: expectation(out_state, p, n, density) - expectation(ideal_state, p, n, False)
             for label, p in parsed.items()
         }
         methods = sorted(ideal_runner.methods | runner.methods)
@@ -224,10 +192,10 @@ class ExactEngine:
         return EngineResult(
             engine=self.name,
             metric=metric,
-            infidelity=float(np.clip(infidelity, 0.0, 1.0)),
+            infidelity=float(np.clip(value, 0.0, 1.0)),
             shares={},
             warnings=warnings,
-            details={"form": plan.form, "repeat_methods": ",".join(methods) or "none", "raw_infidelity": infidelity},
+            details={"form": plan.form, "repeat_methods": ",".join(methods) or "none", "raw_infidelity": value},
             observable_errors=obs,
         )
 
@@ -250,20 +218,3 @@ def _repeats(items: tuple[NoisyItem, ...]):
         if isinstance(it, NoisyRepeat):
             yield it
             yield from _repeats(it.body)
-
-
-def _infidelity(plan: Plan, actual: np.ndarray, ideal: np.ndarray, n: int) -> float:
-    d = 2**n
-    if plan.form == "vector":
-        return 1.0 - abs(np.vdot(ideal[:, 0], actual[:, 0])) ** 2
-    if plan.form == "unitary":
-        return 1.0 - abs(np.vdot(ideal, actual)) ** 2 / d**2
-    if plan.form == "density":
-        psi = ideal[:, 0]
-        rho = _interleaved_to_matrix(actual[:, 0], n)
-        return 1.0 - float(np.real(np.vdot(psi, rho @ psi)))
-    # superop: S[(i k), (j l)] in row-major vec order; Tr(S_U† S) = Σ conj(U_ij) U_kl S_ikjl
-    perm = [2 * q for q in range(n)] + [2 * q + 1 for q in range(n)]
-    full = perm + [2 * n + p for p in perm]
-    s = actual.reshape((2,) * (4 * n)).transpose(full).reshape(d, d, d, d)
-    return 1.0 - float(np.real(np.einsum("ij,kl,ikjl->", ideal.conj(), ideal, s, optimize=True))) / d**2
