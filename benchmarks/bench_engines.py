@@ -44,12 +44,12 @@ def _relax(q: int, t_ns: float) -> Relaxation:
 
 
 def _noisy(gate: str, qubits: tuple[int, ...], t_ns: float, h: dict[str, float] | None = None) -> NoisyOperation:
-    from budget.engines._exact_local import pauli_string_matrix  # coherent part, if any
+    from budget.errors.fidelity import pauli_matrix  # coherent part, if any
     import scipy.linalg
 
     h = h or {}
     k = len(qubits)
-    herm = sum((c * pauli_string_matrix(p) for p, c in h.items()), np.zeros((2**k, 2**k), complex))
+    herm = sum((c * pauli_matrix(p) for p, c in h.items()), np.zeros((2**k, 2**k), complex))
     return NoisyOperation(
         op=Operation(gate, qubits),
         family=gate,

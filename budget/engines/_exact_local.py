@@ -27,17 +27,10 @@ from functools import reduce
 
 import numpy as np
 
+from budget.errors.fidelity import pauli_matrix
 from budget.errors.noisy import NoisyOperation, Relaxation
 
-_PAULI = {
-    "I": np.eye(2, dtype=complex),
-    "X": np.array([[0, 1], [1, 0]], dtype=complex),
-    "Y": np.array([[0, -1j], [1j, 0]], dtype=complex),
-    "Z": np.diag([1.0 + 0j, -1.0]),
-}
-
-
-PAULI_BASIS = np.array([_PAULI[p].conj().reshape(-1) for p in "IXYZ"]) / np.sqrt(2)
+PAULI_BASIS = np.array([pauli_matrix(p).conj().reshape(-1) for p in "IXYZ"]) / np.sqrt(2)
 """T with T[P, 2r + c] = conj(P[r, c])/√2: (r, c) coefficients of one qubit -> Pauli coefficients."""
 
 
@@ -45,11 +38,6 @@ def pauli_transfer(superop: np.ndarray, k: int) -> np.ndarray:
     """The real Pauli transfer matrix T_k S T_k† of an interleaved k-qubit superoperator."""
     t = reduce(np.kron, [PAULI_BASIS] * k)
     return np.ascontiguousarray((t @ superop @ t.conj().T).real)
-
-
-def pauli_string_matrix(label: str) -> np.ndarray:
-    """⊗ of the letters of ``label`` (first letter most significant)."""
-    return reduce(np.kron, (_PAULI[ch] for ch in label), np.ones((1, 1), dtype=complex))
 
 
 def gate_unitary(nop: NoisyOperation, *, ideal: bool) -> np.ndarray:
@@ -82,7 +70,7 @@ def channel_superop(nop: NoisyOperation) -> np.ndarray:
     if nop.pauli_rates:
         pauli = (1.0 - sum(nop.pauli_rates.values())) * np.eye(d * d, dtype=complex)
         for label, p in nop.pauli_rates.items():
-            m = pauli_string_matrix(label)
+            m = pauli_matrix(label)
             pauli = pauli + p * np.kron(m, m.conj())
         s = pauli @ s
     if nop.depolarizing:

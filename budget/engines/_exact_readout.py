@@ -17,7 +17,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.engines._exact_local import PAULI_BASIS, pauli_string_matrix
+from budget.engines._exact_local import PAULI_BASIS
+from budget.errors.fidelity import pauli_matrix
 
 
 def from_pauli(data: np.ndarray, n: int) -> np.ndarray:
@@ -46,12 +47,12 @@ def expectation(state: np.ndarray, paulis: dict[int, str], n: int, density: bool
     if density:
         val = state.reshape((4,) * n)
         for q in range(n):  # contract the leading axis each time: Tr(Oρ) = Σ_rc O[c, r] ρ[r, c]
-            o = pauli_string_matrix(paulis.get(q, "I")).T.reshape(4)
+            o = pauli_matrix(paulis.get(q, "I")).T.reshape(4)
             val = np.tensordot(o, val, axes=(0, 0))
         return float(np.real(val))
     phi = state.reshape((2,) * n)
     for q, letter in paulis.items():
-        phi = np.moveaxis(np.tensordot(pauli_string_matrix(letter), phi, axes=(1, q)), 0, q)
+        phi = np.moveaxis(np.tensordot(pauli_matrix(letter), phi, axes=(1, q)), 0, q)
     return float(np.real(np.vdot(state, phi.reshape(-1))))
 
 
