@@ -28,9 +28,12 @@ if __name__ == "__main__":  # BLAS threads must be fixed before numpy loads
 
 import cirq
 import numpy as np
+import scipy.linalg
 
 from budget.circuit.ir import Operation
 from budget.engines import ENGINE_NAMES, get_engine
+from budget.engines.exact import ExactEngine
+from budget.errors.fidelity import pauli_matrix
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
 
 CYCLES = 50
@@ -44,9 +47,6 @@ def _relax(q: int, t_ns: float) -> Relaxation:
 
 
 def _noisy(gate: str, qubits: tuple[int, ...], t_ns: float, h: dict[str, float] | None = None) -> NoisyOperation:
-    from budget.errors.fidelity import pauli_matrix  # coherent part, if any
-    import scipy.linalg
-
     h = h or {}
     k = len(qubits)
     herm = sum((c * pauli_matrix(p) for p, c in h.items()), np.zeros((2**k, 2**k), complex))
@@ -163,8 +163,6 @@ def cost_versus_count(n: int) -> None:
     """Time per engine and metric for N = 1, 10^6, 10^9 repetitions of the same block. The exact
     engine unrolls N = 1 (cheaper than building the block matrix), so it also runs with
     repeats="power", which takes the block-power path for every N."""
-    from budget.engines.exact import ExactEngine
-
     print(f"== cost versus repeat count: 4-layer noisy block on {n} qubits")
     variants = list(engines()) + [("exact[power]", ExactEngine(repeats="power"))]
     for name, engine in variants:
@@ -194,8 +192,6 @@ def choi_versus_superoperator(n: int, cycles: int = 10) -> None:
     engine's superoperator, and the Choi state (2n-qubit density matrix: ancillas entangled with
     the system by noise-free h and cx, then the noisy circuit on the system) through the exact
     engine's state metric. 1 - <Φ_U|ρ_Choi|Φ_U> = 1 - F_pro (Nielsen, Phys. Lett. A 303 (2002))."""
-    from budget.engines.exact import ExactEngine
-
     circuit = brickwork(n, cycles)
     anc = range(n, 2 * n)
 
