@@ -40,6 +40,11 @@ products run at 0.3-1e9 multiply-adds per second here)."""
 
 _OVERHEAD = 3e4  # multiply-adds' worth of Python overhead per local matrix applied (~20 µs)
 _DECOMPOSITION = 40.0  # Schur / eig + inverse of a D x D matrix ≈ 40 D³ multiply-adds, measured
+CHEAP_POWER_WORK = 1e9
+"""A block power estimated below this many multiply-adds (well under a second) is taken in auto mode
+even when unrolling a few repetitions would be cheaper: the cost then does not depend on N at all,
+which keeps run times predictable across repetition counts (issue target: time at N = 10^6 at most
+2x the time at N = 1)."""
 
 FORMS = {
     # (incoherent, metric) -> (form, site dimension, qubit limit, operator?)
@@ -99,11 +104,11 @@ class _Costs:
     def repeat(self, rep: NoisyRepeat, columns: int) -> float:
         unroll = rep.count * self.items(rep.body, columns)
         dim = self.s**self.n
-        if dim > POWER_MAX_DIM or self.mode == "unroll" or (rep.count == 1 and self.mode == "auto"):
+        if dim > POWER_MAX_DIM or self.mode == "unroll":
             self.powered.setdefault(id(rep), False)
             return unroll
         power = self.items(rep.body, dim) + _DECOMPOSITION * dim**3 + dim * dim * columns
-        use = power < unroll or self.mode == "power"
+        use = power < unroll or power <= CHEAP_POWER_WORK or self.mode == "power"
         self.powered[id(rep)] = self.powered.get(id(rep), False) or use
         self.uses_power |= use
         return min(unroll, power)
@@ -116,7 +121,7 @@ def make_plan(circuit: NoisyCircuit, metric: str, repeats: str = "auto") -> Plan
     """Form, estimated work and memory for ``circuit`` and ``metric`` (nothing is allocated).
 
     ``repeats``: ``"auto"`` takes the cheaper of unrolling and the block power for each repeated
-    block; ``"power"`` takes the power whenever the block matrix is at most POWER_MAX_DIM wide;
+    block, and the block power whenever it is cheap in absolute terms (CHEAP_POWER_WORK); ``"power"`` takes the power whenever the block matrix is at most POWER_MAX_DIM wide;
     ``"unroll"`` never takes it (tests and benchmarks compare the two).
     """
     if repeats not in REPEAT_MODES:
