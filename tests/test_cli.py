@@ -102,3 +102,18 @@ def test_too_large_for_the_chosen_engine(tmp_path):
     assert res.exit_code != 0 and "exact" in res.output
     assert "generators" in res.output or "clifford" in res.output
     assert not out.exists()
+
+
+def test_clifford_drilldown_and_qubit_map_in_report_and_json(tmp_path):
+    out = tmp_path / "r.json"
+    res = run("analyze", str(EXAMPLES / "parity_cycle.qasm"), "--errors", str(EXAMPLES / "fen_q8.toml"),
+              "--cycles", "10", "--engine", "clifford", "--json", str(out), "--width", "120")
+    assert res.exit_code == 0, res.output
+    assert "top operations" in res.output and "where the error lands" in res.output
+    data = json.loads(out.read_text())
+    top = data["details"]["top_operations"]
+    assert top and top[0]["gate"] == "cz"
+    # the per-qubit map names every qubit of the circuit
+    assert set(data["details"]["qubit_map"]) == {f"q[{i}]" for i in range(5)}
+    for name in data["details"]["qubit_map"]:
+        assert name in res.output

@@ -76,6 +76,46 @@ def families_table(result: BudgetResult, *, width: int = 24) -> Table:
     return t
 
 
+def drilldown_table(result: BudgetResult, *, rows: int = 8) -> Table | None:
+    """The operations that contribute most (engines that report them put them in details)."""
+    top = result.details.get("top_operations")
+    if not top:
+        return None
+    t = Table(title="top operations", caption="first-order share of each operation", title_justify="left", caption_justify="left")
+    t.add_column("gate")
+    t.add_column("qubits")
+    t.add_column("line", justify="right")
+    t.add_column("share", justify="right")
+    for row in top[:rows]:
+        t.add_row(
+            str(row.get("gate", row.get("family", ""))),
+            ",".join(row.get("qubits", ())),
+            "" if row.get("line") is None else str(row["line"]),
+            fmt(row.get("first_order_share")),
+        )
+    return t
+
+
+def qubit_map_table(result: BudgetResult, *, rows: int = 12) -> Table | Text | None:
+    """Where the error lands, per qubit (when the engine reports it)."""
+    qmap = result.details.get("qubit_map")
+    if not qmap:
+        skipped = result.details.get("qubit_map_skipped")
+        return Text(f"per-qubit map skipped: {skipped}", style="dim") if skipped else None
+    what = result.details.get("qubit_map_quantity", "error per qubit")
+    ranked = sorted(qmap.items(), key=lambda kv: -kv[1])
+    peak = ranked[0][1] or 1.0
+    t = Table(title="where the error lands", caption=what, title_justify="left", caption_justify="left")
+    t.add_column("qubit")
+    t.add_column("value", justify="right")
+    t.add_column("")
+    for name, value in ranked[:rows]:
+        t.add_row(name, fmt(value), Text("█" * int(round(20 * value / peak)), style="cyan"))
+    if len(ranked) > rows:
+        t.add_row(f"… {len(ranked) - rows} more", "", "")
+    return t
+
+
 def render_budget(result: BudgetResult) -> Group:
     """The whole report as one rich renderable."""
     head = Text.assemble(
@@ -86,6 +126,9 @@ def render_budget(result: BudgetResult) -> Group:
     parts: list = [head, Text(""), summary_table(result), _verdict(result), Text("")]
     if result.families:
         parts.append(families_table(result))
+    for extra in (drilldown_table(result), qubit_map_table(result)):
+        if extra is not None:
+            parts.append(extra)
     if result.observables:
         ot = Table(title="observables (error of the expectation value)", title_justify="left")
         ot.add_column("observable")
