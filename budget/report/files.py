@@ -7,13 +7,23 @@ import tempfile
 from pathlib import Path
 
 
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
 def write_text(path: str | Path, text: str) -> None:
-    """Write ``text`` (UTF-8) to ``path`` via a temporary file in the same folder and a rename."""
+    """Write ``text`` (UTF-8) to ``path`` via a temporary file in the same folder and a rename.
+
+    The file gets the usual permissions (0666 less the umask), not the temporary file's 0600.
+    """
     path = Path(path)
     fd, tmp = tempfile.mkstemp(prefix=".budget-", suffix=path.suffix, dir=path.parent)
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
             fh.write(text)
+        os.chmod(tmp, 0o666 & ~_umask())
         os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
