@@ -41,9 +41,10 @@ def channel_power(block: np.ndarray, count: int) -> tuple[np.ndarray, str]:
     """block^count for a superoperator (a CPTP map), and the method used (``"eig"`` or
     ``"squaring"``).
 
-    Eigenvalues of a CPTP map lie in the closed unit disc and a trace-preserving map always has
-    the eigenvalue 1 (its fixed point; e.g. Wolf, "Quantum Channels & Operations", lecture notes
-    2012, §6). eig places that eigenvalue only to ~κ·eps (1 - 2e-14 is typical), which w^N would
+    Eigenvalues of a CPTP map lie in the closed unit disc (it is a contraction in trace norm) and a
+    trace-preserving map always has the eigenvalue 1: its adjoint fixes the identity, so 1 is in
+    the spectrum, and the matching eigenvector is a fixed point (Evans & Høegh-Krohn,
+    J. London Math. Soc. 17, 345 (1978); reference recalled from memory). eig places that eigenvalue only to ~κ·eps (1 - 2e-14 is typical), which w^N would
     turn into a relative error N·2e-14 of the fixed point (2e-5 at N = 10^9). So eigenvalues within
     FIXED_POINT_TOL of 1 are set to 1 (a decay slower than 1e-12 per block counts as none), and
     moduli that rounding pushed above 1 are set back to 1 so that w^N cannot blow up.
