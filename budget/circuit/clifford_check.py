@@ -17,22 +17,15 @@ then ignored (the snapped Clifford is the ideal gate).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import lru_cache
 from typing import Iterable
 
 import numpy as np
 
 from budget.circuit.ir import Operation
+from budget.errors.fidelity import pauli_decompose, pauli_labels, pauli_matrix
 
 TOLERANCE = 1e-9
 """Largest Pauli coefficient allowed off the dominant one (dimensionless; ≈ half an angle offset)."""
-
-_ONE = {
-    "I": np.eye(2, dtype=complex),
-    "X": np.array([[0, 1], [1, 0]], dtype=complex),
-    "Y": np.array([[0, -1j], [1j, 0]], dtype=complex),
-    "Z": np.diag([1.0 + 0j, -1.0]),
-}
 
 LocalPauli = tuple[tuple[int, ...], tuple[int, ...], int]
 """(x bits, z bits, e) meaning i^e X^x Z^z on the gate's qubits in gate order."""
@@ -49,32 +42,16 @@ def label_bits(label: str) -> LocalPauli:
     return x, z, label.count("Y") % 4
 
 
-@lru_cache(maxsize=None)
-def _labels(k: int) -> tuple[str, ...]:
-    out = [""]
-    for _ in range(k):
-        out = [a + b for a in out for b in "IXYZ"]
-    return tuple(out)
-
-
-def _matrix(label: str) -> np.ndarray:
-    m = np.ones((1, 1), dtype=complex)
-    for ch in label:
-        m = np.kron(m, _ONE[ch])
-    return m
-
-
 def _as_pauli(m: np.ndarray, tol: float) -> LocalPauli | None:
     """The signed Pauli equal to Hermitian ``m`` (to ``tol``), or None if it is not one."""
     k = int(round(np.log2(m.shape[0])))
-    d = 2**k
-    coeffs = np.array([np.trace(_matrix(lab) @ m) / d for lab in _labels(k)])
+    coeffs = np.array(list(pauli_decompose(m).values()))
     best = int(np.argmax(np.abs(coeffs)))
     rest = np.delete(coeffs, best)
     c = coeffs[best]
     if rest.size and np.max(np.abs(rest)) > tol or abs(abs(c) - 1) > 2 * tol or abs(c.imag) > 2 * tol:
         return None
-    x, z, e = label_bits(_labels(k)[best])
+    x, z, e = label_bits(pauli_labels(k)[best])
     return x, z, (e + (2 if c.real < 0 else 0)) % 4
 
 
@@ -108,8 +85,8 @@ def local_clifford(unitary: np.ndarray, tol: float = TOLERANCE) -> LocalClifford
     """
     u = np.asarray(unitary, dtype=complex)
     k = int(round(np.log2(u.shape[0])))
-    gens = [_matrix("".join("X" if i == j else "I" for i in range(k))) for j in range(k)]
-    gens += [_matrix("".join("Z" if i == j else "I" for i in range(k))) for j in range(k)]
+    gens = [pauli_matrix("".join("X" if i == j else "I" for i in range(k))) for j in range(k)]
+    gens += [pauli_matrix("".join("Z" if i == j else "I" for i in range(k))) for j in range(k)]
     fwd, bwd = [], []
     for g in gens:
         a = _as_pauli(u @ g @ u.conj().T, tol)
