@@ -8,8 +8,8 @@ up", ``growing_rad`` per cycle), the rest stays bounded by ``bounded_rad`` ("ech
 are in radians, normalised like a Pauli amplitude, so that knob alone costs
 (N · growing)² + b(N)², 0 <= b(N) <= bounded, of process infidelity to first order.
 
-The cycle is propagated densely (2^n x 2^n matrices, at most :data:`MAX_QUBITS` qubits); inner
-repeats use the periodic closed form, so they are not unrolled.
+The cycle is propagated densely by the generators engine's propagation (2^n x 2^n matrices, at
+most :data:`MAX_QUBITS` qubits); inner repeats use the periodic closed form, so they are not unrolled.
 """
 
 from __future__ import annotations
@@ -17,8 +17,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 import numpy as np
 
-from budget.errors.fidelity import pauli_matrix
-from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation
+from budget.engines._channels import Grouping, by_family, content_cache
+from budget.engines._dense import DenseBlock, DensePropagator
+from budget.errors.noisy import NoisyCircuit, NoisyOperation
 
 MAX_QUBITS = 10
 _REL_TOL = 1e-9  # relative to the knob's own size per cycle: below this a part counts as absent
@@ -94,57 +95,28 @@ class CycleErrors:
         return tuple(sorted(out, key=lambda c: (-c.growing_rad, -c.bounded_rad, c.name)))
 
 
-def _embed(local: np.ndarray, qubits: tuple[int, ...], n: int) -> np.ndarray:
-    """A k-qubit matrix (gate order) on ``qubits`` of n, as a 2^n x 2^n matrix (qubit 0 most significant)."""
-    k = len(qubits)
-    rest = [q for q in range(n) if q not in qubits]
-    full = np.kron(local, np.eye(2 ** (n - k))).reshape((2,) * (2 * n))
-    order = np.argsort(list(qubits) + rest)
-    return full.transpose(list(order) + [n + i for i in order]).reshape(2**n, 2**n)
-
-
-def _op_terms(nop: NoisyOperation, by_knob: bool) -> list[tuple[str, dict[str, float], float]]:
-    """(group name, Pauli generator, scale): knob generators times knob values, or the exact
-    Hamiltonian when not split by knob (or when the operation has no knob generators)."""
-    if by_knob and nop.knob_generators:
+def _op_terms(nop: NoisyOperation) -> list[tuple[str, dict[str, float], float]]:
+    """(``"family.knob"``, Pauli generator, knob value) per knob; an operation with a Hamiltonian
+    but no knob generators gives ``"family.pauli"`` with its exact Hamiltonian at value 1."""
+    if nop.knob_generators:
         return [(f"{nop.family}.{k}", g, float(nop.knob_values.get(k, 0.0))) for k, g in nop.knob_generators.items()]
     if nop.hamiltonian:
-        return [(f"{nop.family}.pauli" if by_knob else "total", nop.hamiltonian, 1.0)]
+        return [(f"{nop.family}.pauli", nop.hamiltonian, 1.0)]
     return []
 
 
-def _propagate(items: tuple, n: int, by_knob: bool, memo: dict) -> tuple[np.ndarray, dict[str, np.ndarray]]:
-    """(ideal unitary, group -> Hamiltonian pushed to the end) of a sequence of items.
+def _by_knob(nop: NoisyOperation) -> list[tuple[str, dict[str, float]]]:
+    """Grouping for :func:`budget.engines._channels.content_cache`: each knob's Hamiltonian, value
+    times generator, under ``"family.knob"``."""
+    return [(name, {p: c * scale for p, c in gen.items()}) for name, gen, scale in _op_terms(nop)]
 
-    Recurrence per layer: H <- U_L H U_L† + Σ_op H_op; a repeat of N adds U_b^N H U_b^{-N} + S_N(H_b)
-    with S_N the periodic closed form."""
-    from budget.engines.periodic import cycle_basis, periodic_sum
 
-    d = 2**n
-    u = np.eye(d, dtype=complex)
-    hs: dict[str, np.ndarray] = {}
-    for item in items:
-        if isinstance(item, NoisyLayer):
-            step = np.eye(d, dtype=complex)
-            for nop in item.operations:
-                step = _embed(nop.op.unitary(), nop.qubits, n) @ step
-            hs = {k: step @ h @ step.conj().T for k, h in hs.items()}
-            u = step @ u
-            for nop in item.operations:
-                for name, gen, scale in _op_terms(nop, by_knob):
-                    local = sum(c * scale * pauli_matrix(p) for p, c in gen.items())
-                    hs[name] = hs.get(name, 0) + _embed(local, nop.qubits, n)
-        else:
-            if id(item) not in memo:
-                ub, hb = _propagate(item.body, n, by_knob, memo)
-                memo[id(item)] = (cycle_basis(ub), hb)
-            basis, hb = memo[id(item)]
-            p = basis.power(item.count)
-            hs = {k: p @ h @ p.conj().T for k, h in hs.items()}
-            u = p @ u
-            for k, h in hb.items():
-                hs[k] = hs.get(k, 0) + periodic_sum(basis, h, item.count)
-    return u, hs
+def _propagate(block: NoisyCircuit, grouping: Grouping) -> DenseBlock:
+    """The cycle's ideal unitary and each group's Hamiltonian pushed to its end, by the generators
+    engine's dense propagation (:class:`budget.engines._dense.DensePropagator`: per layer
+    H <- U_L H U_L† + Σ_op H_op; a repeat of N adds U_b^N H U_b^{-N} + S_N(H_b) in closed form)."""
+    n = block.num_qubits
+    return DensePropagator(n, content_cache(n, grouping)).block(block.body)
 
 
 def _check_size(block: NoisyCircuit) -> None:
@@ -159,16 +131,17 @@ def cycle_errors(block: NoisyCircuit) -> CycleErrors:
         ValueError: more than :data:`MAX_QUBITS` qubits.
     """
     _check_size(block)
-    u, hs = _propagate(block.body, block.num_qubits, True, {})
+    dense = _propagate(block, _by_knob)
+    u = dense.unitary
     local: dict[str, float] = {}
     for layer, mult in block.multiplicities():
         for nop in layer.operations:
-            for name, gen, scale in _op_terms(nop, True):
+            for name, gen, scale in _op_terms(nop):
                 size = abs(scale) * float(np.sqrt(sum(c * c for c in gen.values())))
                 local[name] = local.get(name, 0.0) + mult * size
-    names = tuple(sorted(hs))
+    names = tuple(sorted(dense.keys))
     d = u.shape[0]
-    stack = np.array([hs[k] for k in names]) if names else np.zeros((0, d, d), dtype=complex)
+    stack = np.array([dense.group(k) for k in names]) if names else np.zeros((0, d, d), dtype=complex)
     return CycleErrors(u, names, stack, tuple(local.get(k, 0.0) for k in names))
 
 
@@ -176,8 +149,8 @@ def cycle_hamiltonian(block: NoisyCircuit) -> tuple[np.ndarray, np.ndarray]:
     """(U_c, H_c): the cycle's ideal unitary and the sum of every operation's exact Hamiltonian
     error pushed to the end of the cycle (the generators engine's coherent input for a repeat)."""
     _check_size(block)
-    u, hs = _propagate(block.body, block.num_qubits, False, {})
-    return u, hs.get("total", np.zeros_like(u))
+    dense = _propagate(block, by_family)
+    return dense.unitary, dense.total()
 
 
 def components_or_note(block: NoisyCircuit, metric: str) -> tuple[tuple[Component, ...], str | None]:
