@@ -332,13 +332,21 @@ def demo(
     cases = [
         ("Four Trotter steps of a 4-site hopping chain (process metric)", "hopping_trotter.qasm", 1, "process"),
         ("Parity-check cycle on a 5-qubit line, repeated 10 times (process metric)", "parity_cycle.qasm", 10, "process"),
-        ("XY4 echo on one qubit, 25 repetitions, output state of |0> (state metric)", "echo_xy4.qasm", 25, "state"),
+        ("XY4 echo on one qubit, 25 repetitions: the echo cancels over-rotations (process metric)", "echo_xy4.qasm", 25, "process"),
     ]
     console.rule("[bold]budget demo · North Fen Cryogenics Lab, device fen-q8 (invented)")
     for title, name, cycles, metric in cases:
         console.print(f"\n[bold]{title}[/]")
-        result = run_analysis(str(EXAMPLES / name), str(model), cycles=cycles, metric=metric, compare_twirled=True)
+        result = run_analysis(_shown(EXAMPLES / name), _shown(model), cycles=cycles, metric=metric, compare_twirled=True)
         console.print(render_budget(result))
+
+
+def _shown(path: Path) -> str:
+    """A path as a reader would type it: relative to the working folder when that is shorter."""
+    import os
+
+    rel = os.path.relpath(path)
+    return rel if not rel.startswith("..") and len(rel) < len(str(path)) else str(path)
 
 
 def main() -> None:  # pragma: no cover - console entry point alias

@@ -120,10 +120,18 @@ def render_budget(result: BudgetResult) -> Group:
     """The whole report as one rich renderable."""
     head = Text.assemble(
         (f"{result.source}", "bold"),
-        f"  ·  {result.qubits} qubits, {result.operations:,} operations in {result.layers:,} layers",
+        f"  ·  {result.qubits} qubit{'' if result.qubits == 1 else 's'}, {result.operations:,} operations in {result.layers:,} layers",
         f"  ·  {result.cycles:,} cycle(s)" if result.cycles != 1 else "",
     )
-    parts: list = [head, Text(""), summary_table(result), _verdict(result), Text("")]
+    parts: list = [head, Text(""), summary_table(result), _verdict(result)]
+    if result.metric == "state":
+        parts.append(Text(
+            "note: the fidelity product uses process fidelities, as a spreadsheet would; for the "
+            "state metric part of the gap comes from errors that leave this input state alone "
+            "(amplitude damping and dephasing of |0>), not from the circuit's structure",
+            style="dim",
+        ))
+    parts.append(Text(""))
     if result.families:
         parts.append(families_table(result))
     for extra in (drilldown_table(result), qubit_map_table(result)):
