@@ -25,6 +25,7 @@ from typing import Callable
 import numpy as np
 
 from budget.circuit.clifford_check import label_bits
+from budget.errors.fidelity import pauli_labels
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
 
 
@@ -113,20 +114,13 @@ def twirl_rates(r: Relaxation, k: int, pos: int) -> dict[str, float]:
     return {pad("X"): px, pad("Y"): py, pad("Z"): pz}
 
 
-def _labels(k: int) -> list[str]:
-    out = [""]
-    for _ in range(k):
-        out = [a + b for a in out for b in "IXYZ"]
-    return out[1:]
-
-
 def stochastic_rates(nop: NoisyOperation) -> dict[str, float]:
     """Label -> first-order stochastic rate of one operation (Pauli rates + depolarizing + twirl)."""
     k = len(nop.qubits)
     rates: dict[str, float] = {}
     parts = [nop.pauli_rates]
     if nop.depolarizing:
-        parts.append({label: nop.depolarizing / 4**k for label in _labels(k)})
+        parts.append({label: nop.depolarizing / 4**k for label in pauli_labels(k)[1:]})
     parts += [twirl_rates(r, k, nop.qubits.index(r.qubit)) for r in nop.relaxation if not r.is_trivial]
     for part in parts:
         for label, p in part.items():
