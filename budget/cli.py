@@ -67,6 +67,8 @@ CyclesOpt = typer.Option(1, "--cycles", "-n", min=1, help="Repeat the whole circ
 MetricOpt = typer.Option(MetricChoice.process, "--metric", "-m", help="process: 1 - F_pro; state: output state for |0…0>.")
 EngineOpt = typer.Option(EngineChoice.auto, "--engine", help="auto picks the most accurate engine that fits.")
 QuietOpt = typer.Option(False, "--quiet", "-q", help="No progress bar on stderr.")
+ByPairOpt = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate.")
+WidthOpt = typer.Option(None, "--width", help="Report width in characters (default: terminal).")
 
 
 @app.command()
@@ -78,10 +80,10 @@ def analyze(
     metric: MetricChoice = MetricOpt,
     engine: EngineChoice = EngineOpt,
     observable: List[str] = typer.Option([], "--observable", "-o", help="Pauli observable such as Z0Z1 (repeatable)."),
-    by_pair: bool = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate."),
+    by_pair: bool = ByPairOpt,
     compare_twirled: bool = typer.Option(False, "--compare-twirled", help="Also analyse the Pauli-twirled variant."),
     json_path: Optional[Path] = typer.Option(None, "--json", help="Write the result as JSON (schema in docs/json-schema.md)."),
-    width: Optional[int] = typer.Option(None, "--width", help="Report width in characters (default: terminal)."),
+    width: Optional[int] = WidthOpt,
     against: Optional[str] = typer.Option(
         None, "--against", help="Second circuit file, or 'random' for a random circuit with the same gate counts, "
         "analysed under the same error model and shown side by side."),
@@ -164,11 +166,11 @@ def depth(
     target: Optional[float] = typer.Option(None, "--target", help="Infidelity E: deepest N meeting it, per curve."),
     metric: MetricChoice = MetricOpt,
     engine: EngineChoice = EngineOpt,
-    by_pair: bool = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate."),
+    by_pair: bool = ByPairOpt,
     json_path: Optional[Path] = typer.Option(None, "--json", help="Write the curves as JSON (docs/report.md)."),
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write the curves as an SVG picture."),
     quiet: bool = QuietOpt,
-    width: Optional[int] = typer.Option(None, "--width", help="Report width in characters (default: terminal)."),
+    width: Optional[int] = WidthOpt,
 ) -> None:
     """Infidelity against repetitions: naive, accumulated and Pauli-twirled, with the crossover."""
     from budget.analysis.depth import depth_curve
@@ -211,7 +213,7 @@ def report(
     max_cycles: Optional[int] = typer.Option(None, "--max-cycles", min=1, help="Deepest N of the depth curves "
                                              "(default: max(1000, 100 × cycles))."),
     points: int = typer.Option(25, "--points", min=2, max=200, help="Points of the depth curves."),
-    by_pair: bool = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate."),
+    by_pair: bool = ByPairOpt,
     quiet: bool = QuietOpt,
 ) -> None:
     """A report a group lead can read: HTML page (self-contained) and Markdown, with pictures."""
@@ -266,11 +268,11 @@ def _decision_command(name: str, summary: str, views: Callable) -> None:
         assume: AssumeChoice = AssumeOpt,
         allocation: AllocationChoice = AllocationOpt,
         engine: EngineChoice = EngineOpt,
-        by_pair: bool = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate."),
+        by_pair: bool = ByPairOpt,
         by_operation: bool = ByOperationOpt,
         json_path: Optional[Path] = typer.Option(None, "--json", help="Write tolerances, sensitivity and calibration "
                                                  "plan as JSON (docs/tolerances.md)."),
-        width: Optional[int] = typer.Option(None, "--width", help="Report width in characters (default: terminal)."),
+        width: Optional[int] = WidthOpt,
     ) -> None:
         d = _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair,
                        by_operation)
