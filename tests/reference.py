@@ -168,6 +168,18 @@ def _noisy_ops(circuit: NoisyCircuit, qs) -> list[cirq.Operation]:
     return out
 
 
+def _simulate(circuit: NoisyCircuit, prefix: list, qs, order) -> tuple[np.ndarray, np.ndarray]:
+    """(ideal state vector from cirq.Simulator, noisy density matrix from
+    cirq.DensityMatrixSimulator) after ``prefix`` and the circuit on ``qs``, in ``order``."""
+    psi = cirq.Simulator(dtype=np.complex128).simulate(
+        cirq.Circuit(prefix + _ideal_ops(circuit, qs)), qubit_order=order
+    ).final_state_vector
+    rho = cirq.DensityMatrixSimulator(dtype=np.complex128).simulate(
+        cirq.Circuit(prefix + _noisy_ops(circuit, qs)), qubit_order=order
+    ).final_density_matrix
+    return psi, rho
+
+
 def cirq_state_infidelity(circuit: NoisyCircuit) -> float:
     """1 - <ψ|ρ|ψ> for input |0…0>, by cirq's simulators."""
     psi, rho = cirq_final_states(circuit)
@@ -180,13 +192,7 @@ def cirq_process_infidelity(circuit: NoisyCircuit) -> float:
     qs = cirq.LineQubit.range(n)
     anc = cirq.LineQubit.range(n, 2 * n)
     prep = [cirq.H(a) for a in anc] + [cirq.CNOT(a, q) for a, q in zip(anc, qs)]
-    order = qs + anc
-    phi_u = cirq.Simulator(dtype=np.complex128).simulate(
-        cirq.Circuit(prep + _ideal_ops(circuit, qs)), qubit_order=order
-    ).final_state_vector
-    rho = cirq.DensityMatrixSimulator(dtype=np.complex128).simulate(
-        cirq.Circuit(prep + _noisy_ops(circuit, qs)), qubit_order=order
-    ).final_density_matrix
+    phi_u, rho = _simulate(circuit, prep, qs, qs + anc)
     return float(1 - np.real(phi_u.conj() @ rho @ phi_u))
 
 
@@ -198,14 +204,7 @@ def cirq_final_states(circuit: NoisyCircuit) -> tuple[np.ndarray, np.ndarray]:
     """(ideal ψ from cirq.Simulator, noisy ρ from cirq.DensityMatrixSimulator) for input |0…0>,
     qubit i = cirq.LineQubit(i) (added for the exact engine's observable checks)."""
     qs = cirq.LineQubit.range(circuit.num_qubits)
-    ident = [cirq.I(q) for q in qs]
-    psi = cirq.Simulator(dtype=np.complex128).simulate(
-        cirq.Circuit(ident + _ideal_ops(circuit, qs)), qubit_order=qs
-    ).final_state_vector
-    rho = cirq.DensityMatrixSimulator(dtype=np.complex128).simulate(
-        cirq.Circuit(ident + _noisy_ops(circuit, qs)), qubit_order=qs
-    ).final_density_matrix
-    return psi, rho
+    return _simulate(circuit, [cirq.I(q) for q in qs], qs, qs)
 
 
 def scaled_incoherent(circuit: NoisyCircuit, factor: float) -> NoisyCircuit:
