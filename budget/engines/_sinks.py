@@ -235,21 +235,30 @@ class LandingSink(_Batches):
         self.amps: list[np.ndarray] = []
         self.batch_of: list[int] = []
         self.land: dict[int, np.ndarray] = {}
+        self._slots: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}  # id(table) -> slots
+
+    def _layer_slots(self, table: LayerTable, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(coherent slots, stochastic slots, stochastic rates) of a table; they do not depend on
+        the frame, so each table's are built once (tables stay alive in the builder)."""
+        hit = self._slots.get(id(table))
+        if hit is None:
+            c = table.coherent
+            site, v, rates = stochastic_terms(table)
+            hit = self._slots[id(table)] = (term_slots(table, c.site, c.v, n), term_slots(table, site, v, n), rates)
+        return hit
 
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:
         b = self._new()
         table = self.builder.layer(layer)
         n = frame.n
         c = table.coherent
+        coherent_slots, slots, rates = self._layer_slots(table, n)
         if len(c):
-            x, z, e = frame.image(term_slots(table, c, n), c.e0)
+            x, z, e = frame.image(coherent_slots, c.e0)
             self.keys.append(np.concatenate([x, z], axis=1))
             self.amps.append(c.coef * PHASE[e])
             self.batch_of.append(b)
-        site, v, rates = stochastic_terms(table)
         if len(rates):
-            bits = (v[:, None].astype(np.int64) >> np.arange(4)) & 1
-            slots = np.where(bits == 1, table.rows[site], 2 * n)
             supp = frame.image_x(slots) | frame.image_z(slots)
             self.land[b] = rates @ unpack_bits(supp, n)
 

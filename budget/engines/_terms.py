@@ -233,10 +233,11 @@ def _pack(parts: list[tuple]) -> SiteTerms:
     )
 
 
-def term_slots(table: LayerTable, terms: SiteTerms, n: int) -> np.ndarray:
-    """(T, 4) frame rows of each term's generators (2n where absent), for full-bit images."""
-    bits = (terms.v[:, None].astype(np.int64) >> np.arange(4)) & 1
-    return np.where(bits == 1, table.rows[terms.site], 2 * n)
+def term_slots(table: LayerTable, site: np.ndarray, v: np.ndarray, n: int) -> np.ndarray:
+    """(T, 4) frame rows of the generators of local Paulis ``v`` on ``site`` (2n where absent),
+    for full-bit images."""
+    bits = (v[:, None].astype(np.int64) >> np.arange(4)) & 1
+    return np.where(bits == 1, table.rows[site], 2 * n)
 
 
 def stochastic_terms(table: LayerTable) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
