@@ -56,8 +56,9 @@ class IncoherentObservables:
                         ddpsi = apply_gate(psi, dec, js.qubits, self.n)
                         total += p * (np.vdot(lpsi, o @ lpsi).real - np.vdot(ddpsi, o_psi).real)
                 for g in reversed(c.gate_list):
-                    psi = apply(psi, g.adjoint(), self.n)
-                    o = conjugate(o, g.adjoint(), self.n)
+                    adj = g.adjoint()
+                    psi = apply(psi, adj, self.n)
+                    o = conjugate(o, adj, self.n)
             else:
                 total_r, psi, o = self._repeat(item, psi, o)
                 total += total_r
