@@ -204,9 +204,10 @@ class ObservableSink(_Batches):
         anti16 = (a @ BITS16.T) & 1  # (K, S, 16)
         b16 = (b @ BITS16.T) & 1
         c = table.coherent
+        fc = f16[c.site, c.v]  # fingerprint of each coherent term's image, the same for every O_k
         for k in range(len(value)):
             if len(c):
-                hit = (anti16[k, c.site, c.v] == 1) & np.all(f16[c.site, c.v] == self.fo[k], axis=1)
+                hit = (anti16[k, c.site, c.v] == 1) & np.all(fc == self.fo[k], axis=1)
                 if np.any(hit):
                     s, v = c.site[hit], c.v[hit]
                     ph = (e16[s, v] + c.e0[hit] + self.eo[k] + 2 * b16[k, s, v]) & 3
