@@ -130,6 +130,15 @@ def aggregate(sink: GroupSink, num_sources: int, *, state: bool) -> Budget:
         log_f += float(np.sum(np.log(cos2))) if np.all(cos2 > 0) else -np.inf
         groups += int(np.count_nonzero(mag))
         max_amp = max(max_amp, float(mag.max()) if len(mag) else 0.0)
+    for fb in sink.folded:  # runs of equal amplitude from blocks folded by orbits
+        amp_g = fb.w @ fb.amps
+        mag = np.abs(amp_g)
+        shares += np.bincount(fb.tags, weights=fb.amps * (fb.w.T @ (fb.lens * amp_g)), minlength=num_sources)
+        coherent += float(fb.lens @ mag**2)
+        cos2 = np.cos(np.minimum(mag, np.pi / 2)) ** 2
+        log_f += float(fb.lens @ np.log(cos2)) if np.all(cos2 > 0) else -np.inf
+        groups += int(fb.lens[mag > 0].sum())
+        max_amp = max(max_amp, float(mag.max()) if len(mag) else 0.0)
     sto = sink.stochastic_by_source(num_sources)
     return Budget(
         coherent=coherent,
@@ -157,4 +166,8 @@ def quadratic_matrix(sink: GroupSink, num_labels: int, *, state: bool) -> np.nda
             inv, amps, labels = inv[keep], amps[keep], labels[keep]
         b = scipy.sparse.coo_matrix((amps, (inv, labels)), shape=(len(first), num_labels)).tocsr()
         a += (b.conj().T @ b).real.toarray()
+    for fb in sink.folded:  # B_g = Σ_t w_gt amps_t e_label(t), each run counted lens_g times
+        per_label = scipy.sparse.csr_matrix((fb.amps, (np.arange(len(fb.amps)), fb.tags)), shape=(len(fb.amps), num_labels))
+        b = fb.w @ per_label
+        a += (b.T @ scipy.sparse.diags(fb.lens) @ b).toarray()
     return (a + a.T) / 2

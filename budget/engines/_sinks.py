@@ -121,11 +121,28 @@ class GroupSink(_Batches):
         self._static: dict[int, tuple] = {}
         self.terms_emitted = 0
         self.rates_emitted = 0
+        self.folded: list = []  # FoldedTerms of blocks folded by orbits (budget/engines/_orbits.py)
+
+    def _terms(self, table: LayerTable):
+        return table.unit if self.unit else table.coherent
+
+    def orbit_terms(self, layer: NoisyLayer) -> int:
+        """Number of coherent terms of a layer (the walker's test for folding by orbits, which
+        applies to the process metric only; -1 for the state metric)."""
+        return len(self._terms(self.builder.layer(layer))) if self.key == "xz" else -1
+
+    def explicit_terms(self, layer: NoisyLayer, frame: Frame):
+        """Full images (x, z, e) of the layer's coherent terms through ``frame``, or None."""
+        table = self.builder.layer(layer)
+        terms = self._terms(table)
+        if not len(terms):
+            return None
+        return frame.image(term_slots(table, terms.site, terms.v, frame.n), terms.e0)
 
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:
         b = self._new()
         table = self.builder.layer(layer)
-        terms = table.unit if self.unit else table.coherent
+        terms = self._terms(table)
         state = self.key == "x"
         if len(terms):
             keys = site_keys(frame, table.rows, full=not state)[terms.site, terms.v]

@@ -35,6 +35,10 @@ from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 
 MAX_UNROLLED = 4096
 """Default cap on repetitions walked while looking for a block's period."""
+ORBIT_BABY = 64
+"""Baby steps (repetitions walked) of the orbit search for long-period blocks (see _orbits)."""
+ORBIT_MIN_FACTOR = 4
+"""The orbit search is used for blocks repeated at least this many times ORBIT_BABY."""
 SNAPSHOT_STRIDE = 64
 """A copy of the frame is kept every this many repetitions, so that advancing the frame by the
 remainder N mod r after folding re-walks fewer than this many repetitions."""
@@ -71,6 +75,7 @@ class Walker:
         *,
         max_unrolled: int = MAX_UNROLLED,
         plans: dict | None = None,
+        orbit_baby: int = ORBIT_BABY,
     ):
         if direction not in ("pull", "push"):
             raise ValueError(f"direction {direction!r}: expected 'pull' or 'push'")
@@ -84,10 +89,45 @@ class Walker:
         self.layers_walked = 0
         self._emit = sink is not None
         self._plans: dict[tuple, tuple[GateClass, ...]] = {} if plans is None else plans
+        self.orbit_baby = orbit_baby
+        self.orbit_records: list[dict] = []
+        self._orbit_block: int | None = None
+        self._frame_lost = False
 
     def run(self, items: tuple[NoisyItem, ...]) -> Frame:
+        """Walk ``items`` (the whole circuit body). Returns the frame of the whole circuit, except
+        when a block was folded by its orbits (see :meth:`_orbit_repeat`): then the frame is not
+        computed (no caller needs it there) and None is returned."""
+        self._orbit_block = self._orbit_candidate(items)
+        if self._orbit_block is not None:
+            self._frame_lost = True  # only the block's own frame matters (see _orbit_repeat)
         self._items(items)
-        return self.frame
+        return None if self._frame_lost else self.frame
+
+    def _orbit_candidate(self, items: tuple[NoisyItem, ...]) -> int | None:
+        """id of the top-level block to fold by orbits, or None.
+
+        Eligible: process-type sinks (``orbit_terms``), the only item of the circuit whose layers
+        carry coherent terms, repeated at least ORBIT_MIN_FACTOR x ORBIT_BABY times, plain layers
+        inside. Terms outside it would have to be matched against its orbits, which is not done;
+        such circuits keep the period fold.
+        """
+        count_terms = getattr(self.sink, "orbit_terms", None)
+        if self.direction != "push" or not self._emit or not self.orbit_baby or count_terms is None:
+            return None
+
+        def coherent(item: NoisyItem) -> bool:
+            if isinstance(item, NoisyLayer):
+                return count_terms(item) > 0
+            return any(coherent(x) for x in item.body)
+
+        carrying = [it for it in items if coherent(it)]
+        if len(carrying) != 1 or not isinstance(carrying[0], NoisyRepeat):
+            return None
+        rep = carrying[0]
+        if int(rep.count) < ORBIT_MIN_FACTOR * self.orbit_baby or not all(isinstance(x, NoisyLayer) for x in rep.body):
+            return None
+        return id(rep)
 
     def _items(self, items: tuple[NoisyItem, ...]) -> None:
         for it in items if self.direction == "pull" else reversed(items):
@@ -120,6 +160,10 @@ class Walker:
 
     def _layer(self, layer: NoisyLayer) -> None:
         self.layers_walked += 1
+        if self._frame_lost:  # no coherent terms here: the sink does not read the frame
+            if self._emit:
+                self.sink.emit(layer, self.frame)
+            return
         if self.direction == "pull":
             self.frame.apply(self._plan(layer))
         if self._emit:
@@ -129,6 +173,16 @@ class Walker:
 
     def _repeat(self, rep: NoisyRepeat) -> None:
         count = int(rep.count)
+        if id(rep) == self._orbit_block:
+            self._orbit_repeat(rep)
+            return
+        if self._frame_lost:  # stochastic terms only: one repetition, rates times N
+            marks = [self.sink.mark()] if self._emit else []
+            self._items(rep.body)
+            if self._emit:
+                self.sink.scale(marks[0], self.sink.mark(), float(count), float(count))
+            self.periods.append((count, 1))
+            return
         start = self.frame.copy()
         marks = [self.sink.mark()] if self._emit else []
         limit = min(count, self.max_unrolled)
@@ -146,6 +200,67 @@ class Walker:
             self.periods.append((count, None))
             return
         self._approximate(rep, start, limit, marks)
+
+    def _orbit_repeat(self, rep: NoisyRepeat) -> None:
+        """Fold the one coherent-carrying block by the orbits of its terms (see :mod:`_orbits`).
+
+        The block is walked from the identity frame (its own end frame): no other item carries
+        coherent terms, so Paulis need only be told apart within the block. B = ``orbit_baby``
+        repetitions are emitted as usual (baby steps); if the frame comes back within them the
+        block is folded by its period; otherwise the orbit search replaces the emitted coherent
+        terms by runs of equal amplitude, and the stochastic rates are scaled by N / B.
+        """
+        from budget.engines._orbits import OrbitSearch
+
+        count, b, sink = int(rep.count), self.orbit_baby, self.sink
+        self._frame_lost = False
+        self.frame = Frame.identity(self.n)
+        start = self.frame.copy()
+        marks, chunk_at = [sink.mark()], [len(sink.chunks)]
+        emitted = sink.terms_emitted + sink.rates_emitted
+        recorder = _Recorder(sink)
+        for k in range(b):
+            self.sink = recorder if k == 0 else sink
+            self._items(rep.body)
+            self.sink = sink
+            marks.append(sink.mark())
+            chunk_at.append(len(sink.chunks))
+            if self.frame.equals(start):
+                q, s = divmod(count, k + 1)
+                for j in range(k + 1):
+                    w = float(q + (1 if j < s else 0))
+                    sink.scale(marks[j], marks[j + 1], w, w)
+                self.periods.append((count, k + 1))
+                self._frame_lost = True
+                return
+        per_rep = [sink.chunks[chunk_at[k] : chunk_at[k + 1]] for k in range(b)]
+        keys = np.stack([np.concatenate([c[1] for c in rep_chunks]) for rep_chunks in per_rep]) if per_rep[0] else None
+        self._frame_lost = True
+        if keys is None:  # nothing coherent after all: rates times N / B
+            sink.scale(marks[0], marks[-1], 1.0, count / b)
+            self.periods.append((count, None))
+            return
+        phases = np.stack([np.concatenate([c[3] for c in rep_chunks]) for rep_chunks in per_rep])
+        coef = np.concatenate([c[2] for c in per_rep[0]])
+        tags = np.concatenate([c[4] for c in per_rep[0]])
+        images = tuple(np.concatenate([im[i] for im in recorder.images]) for i in range(3))
+        found = OrbitSearch(count, keys, phases, images, self.frame).folded(coef, tags)
+        if found is None:
+            sink.scale(marks[0], marks[-1], float(np.sqrt(count / b)), count / b)
+            self.periods.append((count, None))
+            self.warnings.append(
+                f"a block repeated {count} times: the orbits of its error terms did not close within the "
+                "searched range; its errors were folded assuming errors more than "
+                f"{b} repetitions apart never land on the same Pauli (not checked); the result is approximate"
+            )
+            return
+        terms, record = found
+        del sink.chunks[chunk_at[0] :]
+        sink.folded.append(terms)
+        sink.scale(marks[0], marks[-1], 1.0, count / b)
+        self.periods.append((count, None))
+        per_rep = (sink.terms_emitted + sink.rates_emitted - emitted) / b
+        self.orbit_records.append(record.as_dict() | {"terms_per_repetition": per_rep})
 
     def _fold(self, rep: NoisyRepeat, period: int, marks: list[int], snapshots: dict[int, Frame]) -> None:
         q, s = divmod(int(rep.count), period)
@@ -177,3 +292,23 @@ class Walker:
             f"folded assuming errors more than {walked} repetitions apart never land on the same Pauli "
             "(true for scrambling blocks, not checked); the result is approximate"
         )
+
+
+class _Recorder:
+    """Passes emissions on to a GroupSink and keeps the explicit images of its coherent terms."""
+
+    def __init__(self, sink):
+        self.sink = sink
+        self.images: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
+
+    def mark(self) -> int:
+        return self.sink.mark()
+
+    def scale(self, *args) -> None:
+        self.sink.scale(*args)
+
+    def emit(self, layer: NoisyLayer, frame: Frame) -> None:
+        self.sink.emit(layer, frame)
+        got = self.sink.explicit_terms(layer, frame)
+        if got is not None:
+            self.images.append(got)

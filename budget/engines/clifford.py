@@ -30,7 +30,7 @@ from budget.engines._knobs import knob_grouping
 from budget.engines._groups import Budget, aggregate, quadratic_matrix
 from budget.engines._sinks import GroupSink, LandingSink, ObservableSink
 from budget.engines._terms import Sources, TermBuilder
-from budget.engines._walk import MAX_UNROLLED, Walker
+from budget.engines._walk import MAX_UNROLLED, ORBIT_BABY, Walker
 from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable
 from budget.errors.noisy import NoisyCircuit
 from budget.problems import InputError, TooLargeError, place
@@ -76,11 +76,13 @@ class CliffordEngine:
         qubit_map: bool | str = True,
         top: int = 10,
         prune_observables: bool = True,
+        orbit_baby: int = ORBIT_BABY,
     ):
         self.max_unrolled = max_unrolled
         self.qubit_map = qubit_map
         self.top = top
         self.prune_observables = prune_observables
+        self.orbit_baby = orbit_baby
 
     def fits(self, circuit: NoisyCircuit, metric: Metric) -> str | None:
         """None when every ideal gate is Clifford, else the first offending gate and its line."""
@@ -107,7 +109,9 @@ class CliffordEngine:
         builder = TermBuilder(circuit.num_qubits, circuit.qubits, sources, grouping)
         sink = GroupSink(builder, key="x" if metric == "state" else "xz", unit=grouping is not None)
         direction = "pull" if metric == "state" else "push"
-        walker = Walker(circuit.num_qubits, direction, sink, max_unrolled=self.max_unrolled, plans=plans)
+        walker = Walker(
+            circuit.num_qubits, direction, sink, max_unrolled=self.max_unrolled, plans=plans, orbit_baby=self.orbit_baby
+        )
         walker.run(circuit.body)
         return sources, sink, walker
 
@@ -129,7 +133,11 @@ class CliffordEngine:
         if metric == "state" and _has_relaxation(circuit):
             warnings.append(TWIRL_NOTE)
         details = _details(budget, sources, walker, self.top)
-        cost = (sink.terms_emitted + sink.rates_emitted) * circuit.num_qubits
+        emitted = sink.terms_emitted + sink.rates_emitted
+        for rec in walker.orbit_records:  # the landing walk enumerates what the orbit search skipped
+            walks = min(rec["count"], rec["longest_orbit"] or self.max_unrolled)
+            emitted += rec["terms_per_repetition"] * max(0, walks - rec["baby_steps"])
+        cost = emitted * circuit.num_qubits
         details.update(self._qubit_map(circuit, cost, sink.builder, plans))
         obs = self.observable_errors(circuit, tuple(observables), _plans=plans) if observables else {}
         if observables and _has_relaxation(circuit):
@@ -238,6 +246,7 @@ def _details(b: Budget, sources: Sources, walker: Walker, top: int) -> dict:
         "max_group_amplitude_rad": b.max_amplitude,
         "folded_blocks": [{"count": c, "period": p, "walks": w} for (c, p), w in blocks.items()],
         "layers_walked": walker.layers_walked,
+        "orbit_folds": walker.orbit_records,
         "first_order_family_shares": _by_family(sources, shares),
         "top_operations": [dict(sources.info[i], first_order_share=float(shares[i])) for i in order if shares[i]],
     }

@@ -1,0 +1,393 @@
+"""Fold a long-period repeated block by the orbits of its error terms (baby-step giant-step).
+
+Setting (process metric, ``"push"`` walk). A block C of Clifford layers maps Paulis by a signed
+permutation c. The coherent term t of the block (a Hermitian Pauli P_t with coefficient h_t at the
+block's end) lands, in repetition k counted from the last one, on c^k(P_t); N repetitions give the
+multiset {c^k(P_t) : 0 <= k < N}. The period r of c can be long (4,092 repetitions for a
+scrambling cycle on a 32 x 32 grid), so walking min(N, r) repetitions, as :mod:`_walk` does when it
+folds by the period, costs r times the terms of one repetition.
+
+Orbits. Each Pauli P_t lies on an orbit of c: the smallest L_t > 0 with c^L_t(P_t) = ε_t P_t
+(ε_t = ±1; when ε_t = -1 the signed orbit has length 2 L_t). Two terms interfere only when they lie
+on one orbit, P_u = σ c^m(P_t); placing every term of an orbit at its offset m from a root term, the
+amplitude on the orbit's Pauli at position j is a step function of j, so Σ_Q |A_Q|² over all
+landing Paulis is a sum over a few runs of equal amplitude (closed form for any N, 10^9 included).
+
+Finding orbits without walking them: baby-step giant-step (Shanks, "Class number, a theory of
+factorization, and genera", Proc. Symp. Pure Math. 20 (1971); the discrete-logarithm form of the
+method). Baby steps: the walker emits B repetitions as usual, giving the 128-bit fingerprints of
+c^j(P) for j < B and every distinct term Pauli P. Giant steps: the fingerprint is GF(2)-linear,
+fp(c^{iB}(P)) = Φ_i · bits(P) with Φ_i the fingerprints of c^{iB}(X_q), c^{iB}(Z_q); Φ_{i+1} is
+Φ_i times the bit matrix of c^B (one GF(2) product of 2n x 2n by 2n x 128, done as a float matrix
+product mod 2), so a giant step costs no walk at all. A giant fingerprint equal to a baby one,
+c^{iB}(P_t) = ± c^j(P_u), gives the offset m = iB - j of u from t (u = t: the orbit length). Giant
+steps go on until every term's orbit has closed (or has no neighbour within N repetitions); the cost
+is B repetitions plus about max L / B cheap steps instead of max L repetitions.
+
+Signs are not linear, so they are taken only for the few relations used: c^{iB} as a stim tableau
+power of c^B, applied to P_t, compared with the phase of the baby image.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.sparse
+
+from budget.engines._groups import group_rows
+from budget.engines._pauli_frame import Frame, fingerprints, hermitian_sign, num_words, popcount, unpack_bits
+
+MAX_GIANT_STEPS = 1024
+"""Giant steps taken at most (offsets up to this many times B repetitions) before giving up."""
+
+
+@dataclass(frozen=True)
+class FoldedTerms:
+    """The coherent terms of one folded block as runs of equal group amplitude.
+
+    Row g of ``w`` is a run of ``lens[g]`` landing Paulis that all carry the amplitude
+    (w @ amps)[g]; ``w[g, t]`` is how many times (with sign) term t lands on each of them. Shares
+    of term t: Re(conj(amps[t]) · Σ_g lens[g] w[g, t] A_g).
+    """
+
+    w: scipy.sparse.csr_matrix
+    lens: np.ndarray
+    amps: np.ndarray
+    tags: np.ndarray
+
+
+@dataclass
+class OrbitRecord:
+    """What the search found (for ``details`` and tests)."""
+
+    count: int
+    baby: int
+    giant_steps: int
+    points: int
+    orbits: int
+    longest_orbit: int | None
+    open_points: int
+    stim_powers: list[int] = field(default_factory=list)
+
+    def as_dict(self) -> dict:
+        return {
+            "count": self.count,
+            "baby_steps": self.baby,
+            "giant_steps": self.giant_steps,
+            "distinct_paulis": self.points,
+            "orbits": self.orbits,
+            "longest_orbit": self.longest_orbit,
+            "open_orbits": self.open_points,
+        }
+
+
+def _slots(x: np.ndarray, z: np.ndarray, n: int) -> np.ndarray:
+    """(R, w) frame-row indices of the set bits of Pauli rows (X_q -> q, Z_q -> n + q), padded
+    with 2n (the identity row), X bits first: the generator order of ``Frame.image``."""
+    bits = np.concatenate([unpack_bits(x, n), unpack_bits(z, n)], axis=1)
+    width = max(1, int(bits.sum(axis=1).max()) if len(bits) else 1)
+    order = np.argsort(-bits.astype(np.int16), axis=1, kind="stable")[:, :width]
+    return np.where(np.take_along_axis(bits, order, axis=1) == 1, order, 2 * n)
+
+
+def _xor_product(rows: np.ndarray, table_of: np.ndarray) -> np.ndarray:
+    """GF(2) product: out[r] = XOR of ``table_of[b]`` over the set bits b of byte-rows ``rows``.
+
+    ``rows`` (R, C) uint8, bit b at byte b // 8, bit b % 8; ``table_of`` (8C, 2) uint64. Uses a
+    table of all 256 XOR combinations per byte (the "four Russians" method, Arlazarov, Dinic,
+    Kronrod & Faradzev, Dokl. Akad. Nauk SSSR 194 (1970)): C gathers per row instead of 8C.
+    """
+    c = rows.shape[1]
+    per_bit = table_of.reshape(c, 8, 2)
+    table = np.zeros((c, 256, 2), np.uint64)
+    for v in range(1, 256):
+        low = (v & -v).bit_length() - 1
+        table[:, v] = table[:, v & (v - 1)] ^ per_bit[:, low]
+    out = np.zeros((len(rows), 2), np.uint64)
+    cols = np.arange(c)
+    for lo in range(0, len(rows), 512):
+        out[lo : lo + 512] = np.bitwise_xor.reduce(table[cols, rows[lo : lo + 512]], axis=1)
+    return out
+
+
+def _padded_bytes(frame: Frame) -> np.ndarray:
+    """(2n, 16W) uint8: x words then z words of each generator row, as bytes."""
+    n = frame.n
+    return np.ascontiguousarray(np.concatenate([frame.x[: 2 * n], frame.z[: 2 * n]], axis=1)).view(np.uint8)
+
+
+def _padded_index(n: int) -> np.ndarray:
+    """Position in the padded bit space (x bits 0..64W-1, z bits 64W..) of generator b < 2n."""
+    wb = num_words(n) * 64
+    q = np.arange(n)
+    return np.concatenate([q, wb + q])
+
+
+class _BabyTable:
+    """Lookup of (point, step) by fingerprint."""
+
+    def __init__(self, keys: np.ndarray):  # keys (B, D, 2)
+        b, d = keys.shape[:2]
+        flat = keys.reshape(-1, 2)
+        self.order = np.argsort(flat[:, 0], kind="stable")
+        self.k0 = flat[self.order, 0]
+        self.k1 = flat[self.order, 1]
+        self.d = d
+
+    def find(self, q: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(query index, step j, point) of every baby entry equal to a query fingerprint."""
+        lo = np.searchsorted(self.k0, q[:, 0], "left")
+        hi = np.searchsorted(self.k0, q[:, 0], "right")
+        n = hi - lo
+        qi = np.repeat(np.arange(len(q)), n)
+        pos = np.repeat(lo - np.cumsum(n) + n, n) + np.arange(n.sum())
+        ok = self.k1[pos] == q[qi, 1]
+        qi, flat = qi[ok], self.order[pos[ok]]
+        return qi, flat // self.d, flat % self.d
+
+
+class _Forest:
+    """Union-find over points, keeping the spanning edges (u, v, m, hit) that joined components."""
+
+    def __init__(self, d: int):
+        self.parent = np.arange(d)
+        self.edges: list[tuple[int, int, int, tuple[int, int]]] = []
+        self.joined = np.zeros(d, bool)
+
+    def root(self, a: int) -> int:
+        p = self.parent
+        while p[a] != a:
+            p[a] = p[p[a]]
+            a = p[a]
+        return a
+
+    def join(self, u: int, v: int, m: int, hit: tuple[int, int]) -> None:
+        ru, rv = self.root(u), self.root(v)
+        if ru != rv:
+            self.parent[ru] = rv
+            self.edges.append((u, v, m, hit))
+            self.joined[u] = self.joined[v] = True
+
+
+class OrbitSearch:
+    """Orbits of the distinct term Paulis of one block (see module docstring).
+
+    Args:
+        count: repetitions N of the block.
+        baby_keys: (B, T, 2) fingerprints of c^j(P_t), j < B, for the T coherent terms of one
+            repetition (emission order); baby_phases (B, T) their phase exponents.
+        images: (x, z, e) explicit rows of P_t at the block's end (repetition 0).
+        step: the frame of c^B (block-relative).
+    """
+
+    def __init__(self, count: int, baby_keys: np.ndarray, baby_phases: np.ndarray, images, step: Frame):
+        self.count = count
+        self.n = step.n
+        self.baby = baby_keys.shape[0]
+        x, z, e = images
+        inv, first = group_rows(baby_keys[0])
+        self.inv, self.first = inv, first
+        rel = (e.astype(np.int64) - e[first][inv]) & 3
+        if np.any(rel & 1):
+            raise ValueError("terms on one Pauli differ by a phase other than ±1 (internal error)")
+        self.rho = 1 - rel  # term sign relative to its point's representative
+        self.px, self.pz, self.pe = x[first], z[first], e[first]
+        self.keys = baby_keys[:, first]
+        self.phases = baby_phases[:, first].astype(np.int64)
+        self.step = step
+        self.slots = _slots(self.px, self.pz, self.n)
+        self._powers: dict[int, Frame] = {}
+
+    # -- giant steps -------------------------------------------------------------------------
+    def run(self, *, max_giant: int = MAX_GIANT_STEPS) -> tuple[list, OrbitRecord] | None:
+        n, b, d = self.n, self.baby, len(self.first)
+        table = _BabyTable(self.keys)
+        cb = _padded_bytes(self.step)  # bits of c^B(generator b), row b
+        where = _padded_index(n)
+        phi = np.zeros((2 * num_words(n) * 64, 2), np.uint64)  # fp of c^{iB}(generator), padded space
+        phi[where] = Frame.identity(n).fxz[: 2 * n]  # i = 0: fingerprints of the generators
+        slots = self.slots
+        length = np.zeros(d, np.int64)  # 0: orbit not closed yet
+        close_hit: dict[int, tuple[int, int]] = {}
+        forest = _Forest(d)
+        i = 0
+        while True:
+            i += 1
+            if i > max_giant:
+                return None
+            step = _xor_product(cb, phi)  # fp of c^{iB}(generator b) = fp of c^{(i-1)B}(c^B(b))
+            phi = np.zeros_like(phi)
+            phi[where] = step
+            g = np.bitwise_xor.reduce(np.concatenate([step, np.zeros((1, 2), np.uint64)])[slots], axis=1)
+            qi, j, p = table.find(g)
+            m = i * b - j
+            own = p == qi
+            sel = own & (length[qi] == 0)
+            best = np.full(d, -1, np.int64)
+            np.maximum.at(best, qi[sel], j[sel])  # largest j: the smallest offset, the orbit length
+            for u in np.flatnonzero(best >= 0):
+                length[u] = i * b - best[u]
+                close_hit[int(u)] = (i, int(best[u]))
+            for u, w, mm, jj in zip(qi[~own], p[~own], m[~own], j[~own]):
+                forest.join(int(u), int(w), int(mm), (i, int(jj)))
+            open_ = length == 0
+            if not open_.any():
+                break
+            if i * b >= self.count - 1 and not np.any(open_ & forest.joined):
+                break
+        return self._assemble(length, close_hit, forest, i)
+
+    # -- signs -------------------------------------------------------------------------------
+    def _power(self, i: int) -> Frame:
+        """The frame of c^{iB} (stim tableau power of c^B, by repeated squaring)."""
+        if i not in self._powers:
+            if not self._powers:
+                self._base = self.step.to_stim()
+            self._powers[i] = Frame.from_stim(self._base**i)
+        return self._powers[i]
+
+    def _signs(self, asks: list[tuple[int, tuple[int, int], int]]) -> np.ndarray:
+        """σ in c^{iB}(P_u) = σ c^j(P_w) for each (u, (i, j), w): the image through c^{iB} with its
+        phase, compared with the phase of the baby image."""
+        out = np.zeros(len(asks), np.int64)
+        by_i: dict[int, list[int]] = {}
+        for a, (_, (i, _j), _) in enumerate(asks):
+            by_i.setdefault(i, []).append(a)
+        for i, idx in by_i.items():
+            u = np.array([asks[a][0] for a in idx])
+            j = np.array([asks[a][1][1] for a in idx])
+            w = np.array([asks[a][2] for a in idx])
+            x, z, e = self._power(i).image(self.slots[u], self.pe[u])
+            if not np.array_equal(fingerprints(x, z), self.keys[j, w]):
+                raise ValueError("orbit search: a matched fingerprint is not the same Pauli (internal error)")
+            d = (e.astype(np.int64) - self.phases[j, w]) & 3
+            if np.any(d & 1):
+                raise ValueError("orbit search: non-Hermitian relation (internal error)")
+            out[idx] = 1 - d
+        return out
+
+    # -- positions and runs ------------------------------------------------------------------
+    def _assemble(self, length, close_hit, forest: _Forest, steps: int):
+        d = len(self.first)
+        eps = np.ones(d, np.int64)
+        closing = [(u, hit, u) for u, hit in close_hit.items()]
+        signs = self._signs(closing + [(u, hit, w) for u, w, _, hit in forest.edges])
+        eps[[u for u, _, _ in closing]] = signs[: len(closing)]
+        adj: dict[int, list[tuple[int, int, int]]] = {}
+        for (u, w, m, _), sg in zip(forest.edges, signs[len(closing) :]):
+            sg = int(sg)  # P_w = sg c^m(P_u)
+            adj.setdefault(u, []).append((w, m, sg))
+            adj.setdefault(w, []).append((u, -m, sg))
+        pos = np.zeros(d, np.int64)
+        sign = np.ones(d, np.int64)
+        seen = np.zeros(d, bool)
+        comps: list[list[int]] = []
+        for r in range(d):
+            if seen[r]:
+                continue
+            seen[r] = True
+            comp, stack = [r], [r]
+            while stack:
+                a = stack.pop()
+                for w, m, sg in adj.get(a, ()):
+                    if seen[w]:
+                        continue
+                    seen[w] = True
+                    p, s = pos[a] + m, sign[a] * sg
+                    if length[r]:
+                        wraps, p = divmod(int(p), int(length[r]))
+                        s *= int(eps[r]) ** (wraps & 1)
+                    pos[w], sign[w] = p, s
+                    comp.append(w)
+                    stack.append(w)
+            comps.append(comp)
+        record = OrbitRecord(
+            count=self.count,
+            baby=self.baby,
+            giant_steps=steps,
+            points=d,
+            orbits=len(comps),
+            longest_orbit=int(length.max()) if length.any() else None,
+            open_points=int(np.count_nonzero(length == 0)),
+            stim_powers=sorted(self._powers),
+        )
+        return (comps, pos, sign, length, eps), record
+
+    def folded(self, coef: np.ndarray, tags: np.ndarray) -> tuple[FoldedTerms, OrbitRecord] | None:
+        """Run the search and return the block's terms as runs, or None when it gave up."""
+        found = self.run()
+        if found is None:
+            return None
+        (comps, pos, sign, length, eps), record = found
+        n_pts, t = len(self.first), len(self.inv)
+        single = np.array([c[0] for c in comps if len(c) == 1], np.int64)
+        lens, pts, vals = _single_runs(self.count, length[single], eps[single])
+        rows = [np.arange(len(lens))]
+        cols, data, all_lens = [single[pts]], [vals], [lens]
+        g = len(lens)
+        for comp in comps:
+            if len(comp) == 1:
+                continue
+            seg_lens, weights = runs(self.count, int(length[comp[0]]), int(eps[comp[0]]), pos[comp])
+            r, k = np.nonzero(weights)
+            rows.append(g + r)
+            cols.append(np.asarray(comp)[k])
+            data.append(weights[r, k])
+            all_lens.append(seg_lens)
+            g += len(seg_lens)
+        per_point = scipy.sparse.csr_matrix(
+            (np.concatenate(data), (np.concatenate(rows), np.concatenate(cols))), shape=(g, n_pts)
+        )
+        incidence = scipy.sparse.csr_matrix((np.ones(t), (self.inv, np.arange(t))), shape=(n_pts, t))
+        amps = coef * self.rho * sign[self.inv]
+        return FoldedTerms((per_point @ incidence).tocsr(), np.concatenate(all_lens), amps.astype(float), tags), record
+
+
+def _single_runs(count: int, length: np.ndarray, eps: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Runs of orbits holding one distinct Pauli (see :func:`runs`), vectorised:
+    (run lengths, index into the inputs, weights)."""
+    idx = np.arange(len(length))
+    parts = []
+    open_ = length == 0
+    parts.append((np.full(open_.sum(), float(count)), idx[open_], np.ones(open_.sum())))
+    plus = (length > 0) & (eps == 1)
+    q, s = np.divmod(count, np.maximum(length, 1))
+    for sel, size, weight in ((plus & (s > 0), s, q + 1), (plus & (q > 0), length - s, q)):
+        parts.append((size[sel].astype(float), idx[sel], weight[sel].astype(float)))
+    minus = (length > 0) & (eps == -1)
+    s2 = count % np.maximum(2 * length, 1)
+    size = np.minimum(s2, 2 * length - s2)
+    sel = minus & (size > 0)
+    parts.append((size[sel].astype(float), idx[sel], np.ones(sel.sum())))
+    return tuple(np.concatenate([p[i] for p in parts]) for i in range(3))
+
+
+def runs(count: int, length: int, eps: int, pos: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Runs of equal weights for terms at offsets ``pos`` on one orbit, after ``count`` repetitions.
+
+    Term k lands on orbit positions pos_k, pos_k + 1, ..., pos_k + count - 1. On a closed orbit of
+    length L and sign ε (c^L(P) = ε P), position p stands for the Pauli at p mod L with sign
+    ε^(p div L). Returns (run lengths (S,), weights (S, K)): the signed number of times term k lands
+    on each Pauli of run s. ``length`` 0 means an open orbit (a line: no wrapping).
+    """
+    pos = np.asarray(pos, np.int64)
+    if length == 0:
+        starts = np.unique(np.concatenate([pos, pos + count]))
+        ends = starts[1:]
+        starts = starts[:-1]
+        w = ((starts[:, None] >= pos[None]) & (starts[:, None] < pos[None] + count)).astype(float)
+    else:
+        circle = length if eps == 1 else 2 * length
+        q, s = divmod(count, circle)
+        cuts = np.concatenate([[0], pos % length, ((pos + s) % circle) % length])
+        starts = np.unique(cuts)
+        ends = np.append(starts[1:], length)
+
+        def on(p: np.ndarray) -> np.ndarray:
+            return (((p[:, None] - pos[None]) % circle) < s).astype(float)
+
+        w = q + on(starts) if eps == 1 else on(starts) - on(starts + length)
+    lens = (ends - starts).astype(float)
+    keep = np.any(w != 0, axis=1) & (lens > 0)
+    return lens[keep], w[keep]
