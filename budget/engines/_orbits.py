@@ -68,6 +68,8 @@ class OrbitRecord:
     orbits: int
     longest_orbit: int | None
     open_points: int
+    twisted: int = 0
+    shared: int = 0
     stim_powers: list[int] = field(default_factory=list)
 
     def as_dict(self) -> dict:
@@ -79,6 +81,8 @@ class OrbitRecord:
             "orbits": self.orbits,
             "longest_orbit": self.longest_orbit,
             "open_orbits": self.open_points,
+            "sign_flipping_orbits": self.twisted,
+            "orbits_with_several_paulis": self.shared,
         }
 
 
@@ -200,7 +204,8 @@ class OrbitSearch:
         self._powers: dict[int, Frame] = {}
 
     # -- giant steps -------------------------------------------------------------------------
-    def run(self, *, max_giant: int = MAX_GIANT_STEPS) -> tuple[list, OrbitRecord] | None:
+    def run(self, *, max_giant: int | None = None) -> tuple[list, OrbitRecord] | None:
+        max_giant = MAX_GIANT_STEPS if max_giant is None else max_giant
         n, b, d = self.n, self.baby, len(self.first)
         table = _BabyTable(self.keys)
         cb = _padded_bytes(self.step)  # bits of c^B(generator b), row b
@@ -310,6 +315,8 @@ class OrbitSearch:
             orbits=len(comps),
             longest_orbit=int(length.max()) if length.any() else None,
             open_points=int(np.count_nonzero(length == 0)),
+            twisted=sum(1 for c in comps if eps[c[0]] == -1),
+            shared=sum(1 for c in comps if len(c) > 1),
             stim_powers=sorted(self._powers),
         )
         return (comps, pos, sign, length, eps), record

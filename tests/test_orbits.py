@@ -1,0 +1,173 @@
+"""Folding long-period blocks by the orbits of their error terms (budget/engines/_orbits.py).
+
+References outside the code under test: explicit unrolling of the block (every repetition walked
+and grouped Pauli by Pauli, itself checked against dense cirq matrices in test_clifford.py), the
+period fold of the walker, and brute-force enumeration of orbit positions for the run lengths.
+"""
+
+from __future__ import annotations
+
+import itertools
+
+import numpy as np
+import pytest
+
+import budget.engines._orbits as orbits
+from budget.circuit.ir import Operation
+from budget.engines._orbits import runs
+from budget.engines.clifford import CliffordEngine
+from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat
+from clifford_reference import random_layer, unrolled
+
+SMALL_BABY = CliffordEngine(orbit_baby=2, qubit_map=False)
+PERIOD_FOLD = CliffordEngine(orbit_baby=0, qubit_map=False)
+
+
+def _block_circuit(rng, n: int, count: int, *, body_layers: int = 2, noisy_outside: bool = False) -> NoisyCircuit:
+    """Only the repeated block carries coherent errors; outside layers (optional) carry stochastic
+    errors only, so the block may be folded by orbits."""
+    body: list = [NoisyRepeat(tuple(random_layer(rng, n, rates=True) for _ in range(body_layers)), count)]
+    if noisy_outside:
+        body = [random_layer(rng, n, scale=0, rates=True)] + body + [random_layer(rng, n, scale=0)]
+    return NoisyCircuit(tuple(f"q[{i}]" for i in range(n)), tuple(body))
+
+
+def _same(a, b, *, rel=1e-10) -> None:
+    assert a.first_order == pytest.approx(b.first_order, rel=rel, abs=1e-14)
+    assert a.infidelity == pytest.approx(b.infidelity, rel=rel, abs=1e-14)
+    for key in ("coherent_first_order", "coherent_exponentiated", "stochastic_first_order", "max_group_amplitude_rad"):
+        assert a.details[key] == pytest.approx(b.details[key], rel=rel, abs=1e-14), key
+    # a group that cancels exactly may be left at rounding level (1e-18) by one of the two sums
+    assert abs(a.details["coherent_groups"] - b.details["coherent_groups"]) <= 2
+    for f, v in b.details["first_order_family_shares"].items():
+        assert a.details["first_order_family_shares"][f] == pytest.approx(v, rel=1e-8, abs=1e-13), f
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_orbit_fold_equals_explicit_unrolling(seed):
+    rng = np.random.default_rng(900 + seed)
+    n = int(rng.integers(2, 6))
+    count = int(rng.choice([8, 13, 40, 97, 256]))
+    c = _block_circuit(rng, n, count, body_layers=int(rng.integers(1, 4)), noisy_outside=seed % 3 == 0)
+    folded = SMALL_BABY.run(c, "process")
+    if not folded.details["orbit_folds"]:  # the frame came back within the baby steps
+        assert folded.details["folded_blocks"][0]["period"] <= 2
+    _same(folded, PERIOD_FOLD.run(unrolled(c), "process"))
+
+
+def test_orbit_fold_meets_twisted_shared_and_open_orbits():
+    # The cases the run lengths distinguish all occur across these random blocks: orbits whose
+    # Pauli comes back with a minus sign, orbits holding several of the block's Paulis, and
+    # orbits longer than N (never closed). Each case is checked against unrolling.
+    seen = {"sign_flipping_orbits": 0, "orbits_with_several_paulis": 0, "open_orbits": 0}
+    cases = []
+    for seed in range(40):
+        rng = np.random.default_rng(1300 + seed)
+        n = int(rng.integers(3, 6))
+        count = int(rng.choice([9, 30, 64]))
+        cases.append(_block_circuit(rng, n, count, body_layers=int(rng.integers(1, 3))))
+    for c in cases + [_grid(5, 9), _grid(6, 30)]:  # grid cycles: orbits longer than N
+        folded = SMALL_BABY.run(c, "process")
+        for rec in folded.details["orbit_folds"]:
+            hit = [k for k in seen if rec[k]]
+            if hit and not all(seen[k] >= 2 for k in hit):
+                _same(folded, PERIOD_FOLD.run(unrolled(c), "process"))
+                for k in hit:
+                    seen[k] += 1
+    assert all(v >= 2 for v in seen.values()), seen
+
+
+@pytest.mark.parametrize("count", [10**6 + 3, 10**9])
+def test_orbit_fold_equals_period_fold_for_huge_counts(count):
+    rng = np.random.default_rng(77)
+    c = _block_circuit(rng, 5, count, body_layers=3, noisy_outside=True)
+    a, b = SMALL_BABY.run(c, "process"), PERIOD_FOLD.run(c, "process")
+    assert a.details["orbit_folds"] and b.details["folded_blocks"][0]["period"]
+    _same(a, b)
+
+
+def test_quadratic_form_of_an_orbit_folded_block_equals_unrolling():
+    rng = np.random.default_rng(31)
+    c = _block_circuit(rng, 4, 97, body_layers=2)
+    a, b = SMALL_BABY.quadratic_form(c, "process"), PERIOD_FOLD.quadratic_form(unrolled(c), "process")
+    assert a.labels == b.labels
+    np.testing.assert_allclose(a.matrix, b.matrix, rtol=1e-10, atol=1e-14)
+    assert a.floor == pytest.approx(b.floor, rel=1e-12)
+
+
+def test_grid_cycle_with_default_baby_steps_matches_the_period_fold():
+    # 8 x 8 grid (sx layer, CZ in four directions; period 252): long orbits, found by giant steps with the
+    # default 64 baby steps; the period fold walks the whole period instead.
+    c = _grid(8, 10**6)
+    a, b = CliffordEngine(qubit_map=False).run(c, "process"), PERIOD_FOLD.run(c, "process")
+    rec = a.details["orbit_folds"][0]
+    assert rec["longest_orbit"] > 64 and rec["giant_steps"] >= 2
+    _same(a, b)
+
+
+def test_coherent_errors_outside_the_block_keep_the_period_fold():
+    rng = np.random.default_rng(12)
+    c = _block_circuit(rng, 4, 300)
+    c = NoisyCircuit(c.qubits, (random_layer(rng, 4),) + c.body)
+    r = SMALL_BABY.run(c, "process")
+    assert r.details["orbit_folds"] == []
+    _same(r, PERIOD_FOLD.run(unrolled(c), "process"))
+
+
+def test_state_metric_is_not_folded_by_orbits():
+    rng = np.random.default_rng(13)
+    c = _block_circuit(rng, 3, 300)
+    r = SMALL_BABY.run(c, "state")
+    assert r.details["orbit_folds"] == []
+    _same(r, PERIOD_FOLD.run(unrolled(c), "state"))
+
+
+def test_search_that_does_not_close_is_approximated_with_a_warning(monkeypatch):
+    monkeypatch.setattr(orbits, "MAX_GIANT_STEPS", 1)
+    c = _grid(6, 10**4)
+    r = CliffordEngine(qubit_map=False, orbit_baby=4).run(c, "process")
+    assert r.details["orbit_folds"] == []
+    assert any("did not close" in w for w in r.warnings)
+
+
+@pytest.mark.parametrize("seed", range(30))
+def test_run_lengths_equal_brute_force_enumeration(seed):
+    rng = np.random.default_rng(seed)
+    length = int(rng.integers(0, 9))
+    eps = int(rng.choice([1, -1]))
+    count = int(rng.integers(1, 40))
+    k = int(rng.integers(1, 4))
+    pos = rng.integers(0, max(length, 1) if length else 30, k)
+    lens, w = runs(count, length, eps, pos)
+    # brute force: the signed count of each term on each Pauli of the orbit (or of the line)
+    size = length if length else int(pos.max()) + count
+    want = np.zeros((size, k))
+    for t, p0 in enumerate(pos):
+        for step in range(count):
+            p = int(p0) + step
+            if length:
+                wraps, p = divmod(p, length)
+                want[p, t] += eps**wraps
+            else:
+                want[p, t] += 1
+    got = np.repeat(w, lens.astype(int), axis=0)
+    # the same rows with the same multiplicities (runs are unordered)
+    assert sorted(map(tuple, got)) == sorted(tuple(r) for r in want if np.any(r))
+
+
+def _grid(side: int, count: int) -> NoisyCircuit:
+    q = lambda r, c: r * side + c  # noqa: E731
+
+    def op(gate: str, qs: tuple[int, ...], h: dict[str, float]) -> NoisyOperation:
+        return NoisyOperation(Operation(gate, qs), gate, np.eye(2 ** len(qs)), h, depolarizing=1e-4)
+
+    layers = [[op("sx", (q(r, c),), {"X": 1e-3}) for r in range(side) for c in range(side)]]
+    for horizontal, parity in itertools.product((True, False), (0, 1)):
+        pairs = [
+            (q(r, c), q(r, c + 1)) if horizontal else (q(c, r), q(c + 1, r))
+            for r in range(side)
+            for c in range(parity, side - 1, 2)
+        ]
+        layers.append([op("cz", p, {"ZZ": 2e-3, "ZI": 1e-3, "IZ": -5e-4}) for p in pairs])
+    block = NoisyRepeat(tuple(NoisyLayer(tuple(ops), (), 0.0) for ops in layers), count)
+    return NoisyCircuit(tuple(f"q[{i}]" for i in range(side * side)), (block,))
