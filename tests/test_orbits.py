@@ -171,3 +171,24 @@ def _grid(side: int, count: int) -> NoisyCircuit:
         layers.append([op("cz", p, {"ZZ": 2e-3, "ZI": 1e-3, "IZ": -5e-4}) for p in pairs])
     block = NoisyRepeat(tuple(NoisyLayer(tuple(ops), (), 0.0) for ops in layers), count)
     return NoisyCircuit(tuple(f"q[{i}]" for i in range(side * side)), (block,))
+
+
+def test_identity_fingerprints_read_off_the_masks_equal_the_computed_ones():
+    from budget.engines._pauli_frame import Frame, fingerprints, identity_fingerprints
+
+    for n in (1, 63, 64, 130):
+        f = Frame.identity(n)
+        fx, fxz = identity_fingerprints(n)
+        np.testing.assert_array_equal(fx, fingerprints(f.x, None))
+        np.testing.assert_array_equal(fxz, fingerprints(f.x, f.z))
+
+
+def test_byte_table_product_equals_bitwise_xor():
+    from budget.engines._orbits import _xor_product
+
+    rng = np.random.default_rng(3)
+    rows = rng.integers(0, 256, (37, 5), dtype=np.uint8)
+    of = rng.integers(0, 2**63, (40, 2), dtype=np.uint64)
+    bits = np.unpackbits(rows, axis=1, bitorder="little")
+    want = np.array([np.bitwise_xor.reduce(of[np.flatnonzero(b)], axis=0) if b.any() else np.zeros(2, np.uint64) for b in bits])
+    np.testing.assert_array_equal(_xor_product(rows, of), want)

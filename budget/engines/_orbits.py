@@ -100,19 +100,20 @@ def _xor_product(rows: np.ndarray, table_of: np.ndarray) -> np.ndarray:
 
     ``rows`` (R, C) uint8, bit b at byte b // 8, bit b % 8; ``table_of`` (8C, 2) uint64. Uses a
     table of all 256 XOR combinations per byte (the "four Russians" method, Arlazarov, Dinic,
-    Kronrod & Faradzev, Dokl. Akad. Nauk SSSR 194 (1970)): C gathers per row instead of 8C.
+    Kronrod & Faradzev, Dokl. Akad. Nauk SSSR 194 (1970)): C lookups per row instead of 8C.
     """
     c = rows.shape[1]
     per_bit = table_of.reshape(c, 8, 2)
-    table = np.zeros((c, 256, 2), np.uint64)
+    table = np.zeros((256, c, 2), np.uint64)
     for v in range(1, 256):
         low = (v & -v).bit_length() - 1
-        table[:, v] = table[:, v & (v - 1)] ^ per_bit[:, low]
-    out = np.zeros((len(rows), 2), np.uint64)
-    cols = np.arange(c)
-    for lo in range(0, len(rows), 512):
-        out[lo : lo + 512] = np.bitwise_xor.reduce(table[cols, rows[lo : lo + 512]], axis=1)
-    return out
+        table[v] = table[v & (v - 1)] ^ per_bit[:, low]
+    flat = table.transpose(1, 0, 2).reshape(c * 256, 2)
+    lo, hi = np.ascontiguousarray(flat[:, 0]), np.ascontiguousarray(flat[:, 1])
+    index = rows.astype(np.int64) + (np.arange(c, dtype=np.int64) * 256)[None]
+    return np.stack(
+        [np.bitwise_xor.reduce(np.take(lo, index), axis=1), np.bitwise_xor.reduce(np.take(hi, index), axis=1)], axis=1
+    )
 
 
 def _padded_bytes(frame: Frame) -> np.ndarray:

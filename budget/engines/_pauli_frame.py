@@ -133,6 +133,20 @@ def fingerprints(x: np.ndarray, z: np.ndarray | None) -> np.ndarray:
     return np.packbits(bits, axis=1, bitorder="little").view(np.uint64).reshape(-1, 2)
 
 
+@lru_cache(maxsize=8)
+def identity_fingerprints(n: int) -> tuple[np.ndarray, np.ndarray]:
+    """(fx, fxz) of the identity frame's 2n + 1 rows, read off the masks: bit k of the
+    fingerprint of X_q (or Z_q) is bit q of the k-th x (or z) mask. Treat as read-only."""
+    mx, mz = _masks(n)
+    bx = np.ascontiguousarray(unpack_bits(mx, n).T)  # (n, 128): bit k of the fingerprint of X_q
+    bz = np.ascontiguousarray(unpack_bits(mz, n).T)
+    pack = lambda b: np.packbits(b, axis=1, bitorder="little").view(np.uint64).reshape(-1, 2)  # noqa: E731
+    zero = np.zeros((1, 2), np.uint64)
+    fxz = np.concatenate([pack(bx), pack(bz), zero])
+    fx = np.concatenate([pack(bx), np.zeros((n, 2), np.uint64), zero])
+    return fx, fxz
+
+
 class Frame:
     """A Pauli map P -> W† P W (or W P W†) kept as the images of the generators.
 
@@ -145,10 +159,10 @@ class Frame:
             by XOR, since they are linear).
     """
 
-    def __init__(self, n: int, x: np.ndarray, z: np.ndarray, e: np.ndarray):
+    def __init__(self, n: int, x: np.ndarray, z: np.ndarray, e: np.ndarray, *, fx=None, fxz=None):
         self.n, self.x, self.z, self.e = n, x, z, e
-        self.fx = fingerprints(x, None)
-        self.fxz = fingerprints(x, z)
+        self.fx = fingerprints(x, None) if fx is None else fx
+        self.fxz = fingerprints(x, z) if fxz is None else fxz
 
     @classmethod
     def identity(cls, n: int) -> "Frame":
@@ -159,7 +173,8 @@ class Frame:
         bits = np.uint64(1) << (q % WORD_BITS).astype(np.uint64)
         x[q, q // WORD_BITS] = bits
         z[n + q, q // WORD_BITS] = bits
-        return cls(n, x, z, np.zeros(2 * n + 1, dtype=np.uint8))
+        fx, fxz = identity_fingerprints(n)
+        return cls(n, x, z, np.zeros(2 * n + 1, dtype=np.uint8), fx=fx.copy(), fxz=fxz.copy())
 
     def copy(self) -> "Frame":
         f = Frame.__new__(Frame)
@@ -237,8 +252,8 @@ class Frame:
     def from_stim(cls, tab) -> "Frame":
         n = len(tab)
         x2x, x2z, z2x, z2z, xs, zs = tab.to_numpy()
-        f = cls.identity(n)
         w = num_words(n)
+        f = cls(n, np.zeros((2 * n + 1, w), np.uint64), np.zeros((2 * n + 1, w), np.uint64), np.zeros(2 * n + 1, np.uint8), fx=0, fxz=0)
 
         def pack(bits: np.ndarray) -> np.ndarray:
             padded = np.zeros((bits.shape[0], w * WORD_BITS), dtype=bool)
