@@ -255,14 +255,18 @@ class LandingSink(_Batches):
         self.land: dict[int, np.ndarray] = {}
         self._slots: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}  # id(table) -> slots
 
-    def _layer_slots(self, table: LayerTable, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """(coherent slots, stochastic slots, stochastic rates) of a table; they do not depend on
+    def _layer_slots(self, table: LayerTable, n: int) -> tuple[np.ndarray, np.ndarray, list]:
+        """(coherent slots, stochastic slots, runs (rate, term indices) of equal stochastic rates)
+        of a table; they do not depend on
         the frame, so each table's are built once (tables stay alive in the builder)."""
         hit = self._slots.get(id(table))
         if hit is None:
             c = table.coherent
             site, v, rates = stochastic_terms(table)
-            hit = self._slots[id(table)] = (term_slots(table, c.site, c.v, n), term_slots(table, site, v, n), rates)
+            order = np.argsort(rates, kind="stable")  # runs of equal rates (few per layer)
+            values, starts = np.unique(rates[order], return_index=True)
+            runs = [(float(r), order[a:b]) for r, a, b in zip(values, starts, [*starts[1:], len(order)])]
+            hit = self._slots[id(table)] = (term_slots(table, c.site, c.v, n), term_slots(table, site, v, n), runs)
         return hit
 
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:
@@ -270,15 +274,18 @@ class LandingSink(_Batches):
         table = self.builder.layer(layer)
         n = frame.n
         c = table.coherent
-        coherent_slots, slots, rates = self._layer_slots(table, n)
+        coherent_slots, slots, runs = self._layer_slots(table, n)
         if len(c):
             x, z, e = frame.image(coherent_slots, c.e0)
             self.keys.append(np.concatenate([x, z], axis=1))
             self.amps.append(c.coef * PHASE[e])
             self.batch_of.append(b)
-        if len(rates):
+        if runs:
             supp = frame.image_x(slots) | frame.image_z(slots)
-            self.land[b] = rates @ unpack_bits(supp, n)
+            land = np.zeros(n)
+            for rate, idx in runs:  # column counts of the support bits, one run of equal rates at a time
+                land += rate * unpack_bits(supp[idx], n).sum(axis=0, dtype=np.int64)
+            self.land[b] = land
 
     def landing(self, n: int) -> np.ndarray:
         """Σ_g |A_g|² [q ∈ supp Q_g] + Σ_t p_t [q ∈ supp Q_t], batch factors applied."""
@@ -295,5 +302,6 @@ class LandingSink(_Batches):
             w = keys.shape[1] // 2
             for i in range(0, len(first), 8192):
                 k = keys[first[i : i + 8192]]
-                out += weight[i : i + 8192] @ unpack_bits(k[:, :w] | k[:, w:], n)
+                bits = unpack_bits(k[:, :w] | k[:, w:], n).astype(np.float32)
+                out += weight[i : i + 8192].astype(np.float32) @ bits
         return out
