@@ -105,10 +105,43 @@ def test_grid_cycle_with_default_baby_steps_matches_the_period_fold():
     _same(a, b)
 
 
-def test_coherent_errors_outside_the_block_keep_the_period_fold():
+@pytest.mark.parametrize("seed", range(10))
+def test_coherent_errors_before_and_after_the_block_are_matched_against_its_orbits(seed):
+    # Plain layers with coherent errors before and after the block: their Paulis are mapped to
+    # the block's frame and placed on its orbits (before: N repetitions later).
+    rng = np.random.default_rng(1700 + seed)
+    n = int(rng.integers(2, 6))
+    c = _block_circuit(rng, n, int(rng.choice([9, 40, 97, 256])), body_layers=int(rng.integers(1, 3)))
+    before = tuple(random_layer(rng, n, rates=True) for _ in range(int(rng.integers(0, 3))))
+    after = tuple(random_layer(rng, n) for _ in range(int(rng.integers(1 if not before else 0, 3))))
+    c = NoisyCircuit(c.qubits, before + c.body + after)
+    r = SMALL_BABY.run(c, "process")
+    assert r.details["orbit_folds"], "the block was not folded by orbits"
+    _same(r, PERIOD_FOLD.run(unrolled(c), "process"))
+
+
+def test_terms_outside_landing_on_the_block_orbits_are_grouped_with_them():
+    # An X error on qubit 0 after an x-echo block and before it: X commutes with the block, so
+    # every repetition's X error and both outside ones land on X_0 and add in amplitude (hand
+    # derivation: (N h + h_before + h_after)², N = 300). The block's h gate on qubit 1 makes its
+    # period 2, found by the search rather than by the frame alone.
+    def op(gate, qs, h):
+        return NoisyOperation(Operation(gate, qs), gate, np.eye(2 ** len(qs)), h)
+
+    block = NoisyRepeat((NoisyLayer((op("x", (0,), {"X": 1e-4}), op("h", (1,), {})), (), 0.0),), 300)
+    c = NoisyCircuit(
+        ("q[0]", "q[1]"),
+        (NoisyLayer((op("x", (0,), {"X": 2e-4}),), (), 0.0), block, NoisyLayer((op("x", (0,), {"X": -5e-5}),), (), 0.0)),
+    )
+    r = SMALL_BABY.run(c, "process")
+    assert r.details["orbit_folds"]
+    assert r.first_order == pytest.approx((300 * 1e-4 + 2e-4 - 5e-5) ** 2, rel=1e-12)
+
+
+def test_coherent_errors_in_another_repeated_block_keep_the_period_fold():
     rng = np.random.default_rng(12)
     c = _block_circuit(rng, 4, 300)
-    c = NoisyCircuit(c.qubits, (random_layer(rng, 4),) + c.body)
+    c = NoisyCircuit(c.qubits, (NoisyRepeat((random_layer(rng, 4),), 3),) + c.body)
     r = SMALL_BABY.run(c, "process")
     assert r.details["orbit_folds"] == []
     _same(r, PERIOD_FOLD.run(unrolled(c), "process"))
@@ -130,20 +163,36 @@ def test_search_that_does_not_close_is_approximated_with_a_warning(monkeypatch):
     assert any("did not close" in w for w in r.warnings)
 
 
-@pytest.mark.parametrize("seed", range(30))
+def test_approximate_fallback_counts_terms_outside_the_block_once(monkeypatch):
+    # When the search gives up, terms outside the block are kept as their own groups (not matched
+    # against the block): an extra layer of X errors h on 36 qubits adds exactly 36 h².
+    monkeypatch.setattr(orbits, "MAX_GIANT_STEPS", 1)
+    c = _grid(6, 10**4)
+    h = 3e-4
+    extra = NoisyLayer(
+        tuple(NoisyOperation(Operation("sx", (q,)), "sx", np.eye(2), {"X": h}) for q in range(36)), (), 0.0
+    )
+    engine = CliffordEngine(qubit_map=False, orbit_baby=4)
+    base = engine.run(c, "process")
+    more = engine.run(NoisyCircuit(c.qubits, (extra,) + c.body), "process")
+    assert any("did not close" in w for w in more.warnings)
+    assert more.first_order - base.first_order == pytest.approx(36 * h**2, rel=1e-9)
+
+
+@pytest.mark.parametrize("seed", range(40))
 def test_run_lengths_equal_brute_force_enumeration(seed):
     rng = np.random.default_rng(seed)
     length = int(rng.integers(0, 9))
     eps = int(rng.choice([1, -1]))
-    count = int(rng.integers(1, 40))
     k = int(rng.integers(1, 4))
-    pos = rng.integers(0, max(length, 1) if length else 30, k)
-    lens, w = runs(count, length, eps, pos)
+    counts = rng.integers(1, 40, k) if seed % 2 else np.full(k, int(rng.integers(1, 40)))
+    pos = rng.integers(0, 3 * length if length else 30, k)
+    lens, w = runs(0, length, eps, pos, counts)
     # brute force: the signed count of each term on each Pauli of the orbit (or of the line)
-    size = length if length else int(pos.max()) + count
+    size = length if length else int((pos + counts).max())
     want = np.zeros((size, k))
-    for t, p0 in enumerate(pos):
-        for step in range(count):
+    for t, (p0, cnt) in enumerate(zip(pos, counts)):
+        for step in range(int(cnt)):
             p = int(p0) + step
             if length:
                 wraps, p = divmod(p, length)

@@ -180,16 +180,34 @@ class OrbitSearch:
 
     Args:
         count: repetitions N of the block.
-        baby_keys: (B, T, 2) fingerprints of c^j(P_t), j < B, for the T coherent terms of one
-            repetition (emission order); baby_phases (B, T) their phase exponents.
-        images: (x, z, e) explicit rows of P_t at the block's end (repetition 0).
+        baby_keys: (B, T, 2) fingerprints of c^j(P_t), j < B, for T terms (emission order);
+            baby_phases (B, T) their phase exponents, -1 where not known yet (then taken from
+            ``frames[j]``, the frame of c^j, when needed).
+        images: (x, z, e) explicit rows of P_t at the block's end (j = 0).
         step: the frame of c^B (block-relative).
+        starts, counts: term t lands on c^{start + k}(P_t) for k < count (block terms: 0 and N;
+            terms after the block: 0 and 1; terms before it, pushed to the block's start: N and 1).
     """
 
-    def __init__(self, count: int, baby_keys: np.ndarray, baby_phases: np.ndarray, images, step: Frame):
+    def __init__(
+        self,
+        count: int,
+        baby_keys: np.ndarray,
+        baby_phases: np.ndarray,
+        images,
+        step: Frame,
+        *,
+        starts: np.ndarray | None = None,
+        counts: np.ndarray | None = None,
+        frames: list[Frame] | None = None,
+    ):
         self.count = count
         self.n = step.n
         self.baby = baby_keys.shape[0]
+        t = baby_keys.shape[1]
+        self.starts = np.zeros(t, np.int64) if starts is None else np.asarray(starts, np.int64)
+        self.counts = np.full(t, count, np.int64) if counts is None else np.asarray(counts, np.int64)
+        self.outside = bool(np.any(self.counts != count) or np.any(self.starts != 0))
         x, z, e = images
         inv, first = group_rows(baby_keys[0])
         self.inv, self.first = inv, first
@@ -200,6 +218,7 @@ class OrbitSearch:
         self.px, self.pz, self.pe = x[first], z[first], e[first]
         self.keys = baby_keys[:, first]
         self.phases = baby_phases[:, first].astype(np.int64)
+        self.frames = frames
         self.step = step
         self.slots = _slots(self.px, self.pz, self.n)
         self._powers: dict[int, Frame] = {}
@@ -240,7 +259,8 @@ class OrbitSearch:
             open_ = length == 0
             if not open_.any():
                 break
-            if i * b >= self.count - 1 and not np.any(open_ & forest.joined):
+            reach = self.count + b if self.outside else self.count - 1
+            if i * b >= reach and not np.any(open_ & forest.joined):
                 break
         return self._assemble(length, close_hit, forest, i)
 
@@ -265,6 +285,7 @@ class OrbitSearch:
             j = np.array([asks[a][1][1] for a in idx])
             w = np.array([asks[a][2] for a in idx])
             x, z, e = self._power(i).image(self.slots[u], self.pe[u])
+            self._fill_phases(j, w)
             if not np.array_equal(fingerprints(x, z), self.keys[j, w]):
                 raise ValueError("orbit search: a matched fingerprint is not the same Pauli (internal error)")
             d = (e.astype(np.int64) - self.phases[j, w]) & 3
@@ -272,6 +293,12 @@ class OrbitSearch:
                 raise ValueError("orbit search: non-Hermitian relation (internal error)")
             out[idx] = 1 - d
         return out
+
+    def _fill_phases(self, j: np.ndarray, w: np.ndarray) -> None:
+        """Phase exponents of c^j(P_w) not recorded by the walk, from the frames of c^j."""
+        for jj in np.unique(j[self.phases[j, w] < 0]):
+            ws = np.unique(w[(j == jj) & (self.phases[j, w] < 0)])
+            self.phases[jj, ws] = self.frames[jj].image(self.slots[ws], self.pe[ws])[2]
 
     # -- positions and runs ------------------------------------------------------------------
     def _assemble(self, length, close_hit, forest: _Forest, steps: int):
@@ -322,6 +349,14 @@ class OrbitSearch:
         )
         return (comps, pos, sign, length, eps), record
 
+    def unmatched(self, coef: np.ndarray, tags: np.ndarray, *, first: int) -> FoldedTerms:
+        """Terms from ``first`` on (those outside the block) as groups of equal Pauli, not matched
+        against the block's images: the approximate fallback when the search gave up."""
+        keep = np.arange(first, len(self.inv))
+        points, inv = np.unique(self.inv[keep], return_inverse=True)
+        w = scipy.sparse.csr_matrix((np.ones(len(keep)), (inv.reshape(-1), keep)), shape=(len(points), len(self.inv)))
+        return FoldedTerms(w, np.ones(len(points)), (coef * self.rho).astype(float), tags)
+
     def folded(self, coef: np.ndarray, tags: np.ndarray) -> tuple[FoldedTerms, OrbitRecord] | None:
         """Run the search and return the block's terms as runs, or None when it gave up."""
         found = self.run()
@@ -329,27 +364,43 @@ class OrbitSearch:
             return None
         (comps, pos, sign, length, eps), record = found
         n_pts, t = len(self.first), len(self.inv)
-        single = np.array([c[0] for c in comps if len(c) == 1], np.int64)
-        lens, pts, vals = _single_runs(self.count, length[single], eps[single])
-        rows = [np.arange(len(lens))]
-        cols, data, all_lens = [single[pts]], [vals], [lens]
+        # pulses: distinct (point, start, count) among the terms
+        pulse_key = np.stack([self.inv, self.starts, self.counts], axis=1)
+        pulses, term_pulse = np.unique(pulse_key, axis=0, return_inverse=True)
+        term_pulse = term_pulse.reshape(-1)
+        by_point = _terms_by_point(pulses[:, 0], n_pts)
+        plain = np.array([len(by_point[c[0]]) == 1 for c in comps], bool)
+        single = np.array([c[0] for c, ok in zip(comps, plain) if ok and len(c) == 1], np.int64)
+        one = np.array([by_point[p][0] for p in single], np.int64)
+        lone = (pulses[one, 1] == 0) & (pulses[one, 2] == self.count) if len(one) else np.zeros(0, bool)
+        lens, idx, vals = _single_runs(self.count, length[single[lone]], eps[single[lone]])
+        rows, cols, data, all_lens = [np.arange(len(lens))], [one[lone][idx]], [vals], [lens]
         g = len(lens)
+        done = set(single[lone].tolist())
         for comp in comps:
-            if len(comp) == 1:
+            if comp[0] in done:
                 continue
-            seg_lens, weights = runs(self.count, int(length[comp[0]]), int(eps[comp[0]]), pos[comp])
+            members = np.concatenate([by_point[p] for p in comp])
+            at = pos[pulses[members, 0]] + pulses[members, 1]
+            seg_lens, weights = runs(self.count, int(length[comp[0]]), int(eps[comp[0]]), at, pulses[members, 2])
             r, k = np.nonzero(weights)
             rows.append(g + r)
-            cols.append(np.asarray(comp)[k])
+            cols.append(members[k])
             data.append(weights[r, k])
             all_lens.append(seg_lens)
             g += len(seg_lens)
-        per_point = scipy.sparse.csr_matrix(
-            (np.concatenate(data), (np.concatenate(rows), np.concatenate(cols))), shape=(g, n_pts)
+        per_pulse = scipy.sparse.csr_matrix(
+            (np.concatenate(data), (np.concatenate(rows), np.concatenate(cols))), shape=(g, len(pulses))
         )
-        incidence = scipy.sparse.csr_matrix((np.ones(t), (self.inv, np.arange(t))), shape=(n_pts, t))
+        incidence = scipy.sparse.csr_matrix((np.ones(t), (term_pulse, np.arange(t))), shape=(len(pulses), t))
         amps = coef * self.rho * sign[self.inv]
-        return FoldedTerms((per_point @ incidence).tocsr(), np.concatenate(all_lens), amps.astype(float), tags), record
+        return FoldedTerms((per_pulse @ incidence).tocsr(), np.concatenate(all_lens), amps.astype(float), tags), record
+
+
+def _terms_by_point(inv: np.ndarray, d: int) -> list[np.ndarray]:
+    order = np.argsort(inv, kind="stable")
+    bounds = np.searchsorted(inv[order], np.arange(d + 1))
+    return [order[bounds[k] : bounds[k + 1]] for k in range(d)]
 
 
 def _single_runs(count: int, length: np.ndarray, eps: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -371,31 +422,34 @@ def _single_runs(count: int, length: np.ndarray, eps: np.ndarray) -> tuple[np.nd
     return tuple(np.concatenate([p[i] for p in parts]) for i in range(3))
 
 
-def runs(count: int, length: int, eps: int, pos: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Runs of equal weights for terms at offsets ``pos`` on one orbit, after ``count`` repetitions.
+def runs(count, length: int, eps: int, pos: np.ndarray, counts: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Runs of equal weights for terms at offsets ``pos`` on one orbit.
 
-    Term k lands on orbit positions pos_k, pos_k + 1, ..., pos_k + count - 1. On a closed orbit of
-    length L and sign ε (c^L(P) = ε P), position p stands for the Pauli at p mod L with sign
-    ε^(p div L). Returns (run lengths (S,), weights (S, K)): the signed number of times term k lands
-    on each Pauli of run s. ``length`` 0 means an open orbit (a line: no wrapping).
+    Term k lands on orbit positions pos_k, pos_k + 1, ..., pos_k + counts_k - 1 (``counts``
+    defaults to ``count`` for every term). On a closed orbit of length L and sign ε
+    (c^L(P) = ε P), position p stands for the Pauli at p mod L with sign ε^(p div L). Returns
+    (run lengths (S,), weights (S, K)): the signed number of times term k lands on each Pauli of
+    run s. ``length`` 0 means an open orbit (a line: no wrapping).
     """
     pos = np.asarray(pos, np.int64)
+    cnt = np.full(len(pos), count, np.int64) if counts is None else np.asarray(counts, np.int64)
     if length == 0:
-        starts = np.unique(np.concatenate([pos, pos + count]))
+        starts = np.unique(np.concatenate([pos, pos + cnt]))
         ends = starts[1:]
         starts = starts[:-1]
-        w = ((starts[:, None] >= pos[None]) & (starts[:, None] < pos[None] + count)).astype(float)
+        w = ((starts[:, None] >= pos[None]) & (starts[:, None] < (pos + cnt)[None])).astype(float)
     else:
         circle = length if eps == 1 else 2 * length
-        q, s = divmod(count, circle)
+        q, s = np.divmod(cnt, circle)
+        pos = pos % circle
         cuts = np.concatenate([[0], pos % length, ((pos + s) % circle) % length])
         starts = np.unique(cuts)
         ends = np.append(starts[1:], length)
 
         def on(p: np.ndarray) -> np.ndarray:
-            return (((p[:, None] - pos[None]) % circle) < s).astype(float)
+            return (((p[:, None] - pos[None]) % circle) < s[None]).astype(float)
 
-        w = q + on(starts) if eps == 1 else on(starts) - on(starts + length)
+        w = q[None] + on(starts) if eps == 1 else on(starts) - on(starts + length)
     lens = (ends - starts).astype(float)
     keep = np.any(w != 0, axis=1) & (lens > 0)
     return lens[keep], w[keep]

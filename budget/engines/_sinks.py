@@ -131,20 +131,22 @@ class GroupSink(_Batches):
         applies to the process metric only; -1 for the state metric)."""
         return len(self._terms(self.builder.layer(layer))) if self.key == "xz" else -1
 
-    def explicit_terms(self, layer: NoisyLayer, frame: Frame):
-        """Full images (x, z, e) of the layer's coherent terms through ``frame``, or None."""
+    def explicit_terms(self, layer: NoisyLayer, frame: Frame, *, full: bool = False):
+        """Full images (x, z, e) of the layer's coherent terms through ``frame`` (with their
+        coefficients and tags when ``full``), or None."""
         table = self.builder.layer(layer)
         terms = self._terms(table)
         if not len(terms):
             return None
-        return frame.image(term_slots(table, terms.site, terms.v, frame.n), terms.e0)
+        x, z, e = frame.image(term_slots(table, terms.site, terms.v, frame.n), terms.e0)
+        return (x, z, e, terms.coef, terms.tag) if full else (x, z, e)
 
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:
         b = self._new()
         table = self.builder.layer(layer)
         terms = self._terms(table)
         state = self.key == "x"
-        if len(terms):
+        if len(terms) and frame is not None:  # None: the walker collected them elsewhere
             keys = site_keys(frame, table.rows, full=not state)[terms.site, terms.v]
             phase = term_phases(frame, table, terms).astype(np.uint8)
             self.chunks.append((b, keys, terms.coef, phase, terms.tag))  # coef, tag shared with the table

@@ -103,19 +103,22 @@ class Walker:
         """Walk ``items`` (the whole circuit body). Returns the frame of the whole circuit, except
         when a block was folded by its orbits (see :meth:`_orbit_repeat`): then the frame is not
         computed (no caller needs it there) and None is returned."""
-        self._orbit_block = self._orbit_candidate(items)
-        if self._orbit_block is not None:
+        found = self._orbit_candidate(items)
+        if found is not None:
+            at = found
+            self._orbit_block = id(items[at])
+            self._outside = (self._collect(items[at + 1 :], "pull"), self._collect(items[:at], "push"))
             self._frame_lost = True  # only the block's own frame matters (see _orbit_repeat)
         self._items(items)
         return None if self._frame_lost else self.frame
 
     def _orbit_candidate(self, items: tuple[NoisyItem, ...]) -> int | None:
-        """id of the top-level block to fold by orbits, or None.
+        """Index of the top-level block to fold by orbits, or None.
 
-        Eligible: process-type sinks (``orbit_terms``), the only item of the circuit whose layers
-        carry coherent terms, repeated at least ORBIT_MIN_FACTOR x ORBIT_BABY times, plain layers
-        inside. Terms outside it would have to be matched against its orbits, which is not done;
-        such circuits keep the period fold.
+        Eligible: process-type sinks (``orbit_terms``), the only repeated block of the circuit
+        whose layers carry coherent terms, repeated at least ORBIT_MIN_FACTOR x ORBIT_BABY times,
+        plain layers inside. Other items with coherent terms must be plain top-level layers: their
+        terms are mapped to the block's end frame and matched against its orbits.
         """
         count_terms = getattr(self.sink, "orbit_terms", None)
         if self.direction != "push" or not self._emit or not self.orbit_baby or count_terms is None:
@@ -126,13 +129,24 @@ class Walker:
                 return count_terms(item) > 0
             return any(coherent(x) for x in item.body)
 
-        carrying = [it for it in items if coherent(it)]
-        if len(carrying) != 1 or not isinstance(carrying[0], NoisyRepeat):
+        blocks = [i for i, it in enumerate(items) if isinstance(it, NoisyRepeat) and coherent(it)]
+        if len(blocks) != 1:
             return None
-        rep = carrying[0]
+        rep = items[blocks[0]]
         if int(rep.count) < ORBIT_MIN_FACTOR * self.orbit_baby or not all(isinstance(x, NoisyLayer) for x in rep.body):
             return None
-        return id(rep)
+        return blocks[0]
+
+    def _collect(self, items: tuple[NoisyItem, ...], direction: str):
+        """Explicit coherent terms of ``items`` (outside the block) in the block's end frame
+        (``"pull"`` from the block's end for items after it) or start frame (``"push"`` to the
+        block's start for items before it): (x, z, e, coef, tag) or None."""
+        sink = _Collector(self.sink)
+        if any(self.sink.orbit_terms(it) > 0 for it in items):  # only plain layers carry terms here
+            Walker(self.n, direction, sink, max_unrolled=self.max_unrolled, plans=self._plans, orbit_baby=0).run(items)
+        if not sink.parts:
+            return None
+        return tuple(np.concatenate([p[i] for p in sink.parts]) for i in range(5))
 
     def _items(self, items: tuple[NoisyItem, ...]) -> None:
         for it in items if self.direction == "pull" else reversed(items):
@@ -165,9 +179,9 @@ class Walker:
 
     def _layer(self, layer: NoisyLayer) -> None:
         self.layers_walked += 1
-        if self._frame_lost:  # no coherent terms here: the sink does not read the frame
+        if self._frame_lost:  # rates only; coherent terms here were collected by _collect
             if self._emit:
-                self.sink.emit(layer, self.frame)
+                self.sink.emit(layer, None)
             return
         if self.direction == "pull":
             self.frame.apply(self._plan(layer))
@@ -207,30 +221,39 @@ class Walker:
         self._approximate(rep, start, limit, marks)
 
     def _orbit_repeat(self, rep: NoisyRepeat) -> None:
-        """Fold the one coherent-carrying block by the orbits of its terms (see :mod:`_orbits`).
+        """Fold the block by the orbits of its terms (see :mod:`budget.engines._orbits`).
 
-        The block is walked from the identity frame (its own end frame): no other item carries
-        coherent terms, so Paulis need only be told apart within the block. B = ``orbit_baby``
-        repetitions are emitted as usual (baby steps); if the frame comes back within them the
-        block is folded by its period; otherwise the orbit search replaces the emitted coherent
-        terms by runs of equal amplitude, and the stochastic rates are scaled by N / B.
+        The block is walked from the identity frame (its own end frame); coherent terms of plain
+        layers outside it were collected by :meth:`_collect` in the block's end frame (after it)
+        or start frame (before it, landing N repetitions later). B = ``orbit_baby`` repetitions
+        are emitted as usual (baby steps); if the frame comes back within them and nothing
+        outside carries coherent terms, the block is folded by its period; otherwise the orbit
+        search replaces the coherent terms by runs of equal amplitude, and the stochastic rates of
+        the block are scaled by N / B.
         """
-        from budget.engines._orbits import OrbitSearch
+        from budget.engines._orbits import OrbitSearch, _slots
 
         count, b, sink = int(rep.count), self.orbit_baby, self.sink
+        outside = [(part, start) for part, start in zip(self._outside, (0, count)) if part is not None]
         self._frame_lost = False
         self.frame = Frame.identity(self.n)
         start = self.frame.copy()
         marks, chunk_at = [sink.mark()], [len(sink.chunks)]
         emitted = sink.terms_emitted + sink.rates_emitted
         recorder = _Recorder(sink)
+        o_slots = [_slots(part[0], part[1], self.n) for part, _ in outside]
+        o_keys: list[np.ndarray] = []
+        frames: list[Frame] = []
         for k in range(b):
+            if outside:  # fingerprints of c^k(Q) for the outside terms Q; frames for their phases
+                o_keys.append(np.concatenate([np.bitwise_xor.reduce(self.frame.fxz[sl], axis=1) for sl in o_slots]))
+                frames.append(self.frame.copy())
             self.sink = recorder if k == 0 else sink
             self._items(rep.body)
             self.sink = sink
             marks.append(sink.mark())
             chunk_at.append(len(sink.chunks))
-            if self.frame.equals(start):
+            if self.frame.equals(start) and not outside:
                 q, s = divmod(count, k + 1)
                 for j in range(k + 1):
                     w = float(q + (1 if j < s else 0))
@@ -238,21 +261,39 @@ class Walker:
                 self.periods.append((count, k + 1))
                 self._frame_lost = True
                 return
-        per_rep = [sink.chunks[chunk_at[k] : chunk_at[k + 1]] for k in range(b)]
-        keys = np.stack([np.concatenate([c[1] for c in rep_chunks]) for rep_chunks in per_rep]) if per_rep[0] else None
         self._frame_lost = True
-        if keys is None:  # nothing coherent after all: rates times N / B
+        self.periods.append((count, None))
+        per_rep = [sink.chunks[chunk_at[k] : chunk_at[k + 1]] for k in range(b)]
+        block = [np.stack([np.concatenate([c[i] for c in chunks]) for chunks in per_rep]) for i in (1, 3)] if per_rep[0] else None
+        parts = []  # (keys (B, T, 2), phases (B, T), x, z, e, coef, tag, start, count) per kind of term
+        if block is not None:
+            images = [np.concatenate([im[i] for im in recorder.images]) for i in range(3)]
+            coef, tags = (np.concatenate([c[i] for c in per_rep[0]]) for i in (2, 4))
+            parts.append((block[0], block[1].astype(np.int64), *images, coef, tags, 0, count))
+        for (x, z, e, coef, tags), start_at in outside:
+            keys = np.stack([k[: len(coef)] for k in o_keys])
+            o_keys = [k[len(coef) :] for k in o_keys]
+            parts.append((keys, np.full(keys.shape[:2], -1, np.int64), x, z, e, coef, tags, start_at, 1))
+        if not parts:  # nothing coherent after all: rates times N / B
             sink.scale(marks[0], marks[-1], 1.0, count / b)
-            self.periods.append((count, None))
             return
-        phases = np.stack([np.concatenate([c[3] for c in rep_chunks]) for rep_chunks in per_rep])
-        coef = np.concatenate([c[2] for c in per_rep[0]])
-        tags = np.concatenate([c[4] for c in per_rep[0]])
-        images = tuple(np.concatenate([im[i] for im in recorder.images]) for i in range(3))
-        found = OrbitSearch(count, keys, phases, images, self.frame).folded(coef, tags)
+        cat = lambda i: np.concatenate([p[i] for p in parts], axis=1 if i < 2 else 0)  # noqa: E731
+        sizes = [len(p[5]) for p in parts]
+        search = OrbitSearch(
+            count,
+            cat(0),
+            cat(1),
+            (cat(2), cat(3), cat(4)),
+            self.frame,
+            starts=np.repeat([p[7] for p in parts], sizes),
+            counts=np.repeat([p[8] for p in parts], sizes),
+            frames=frames or None,
+        )
+        found = search.folded(cat(5), cat(6))
         if found is None:
             sink.scale(marks[0], marks[-1], float(np.sqrt(count / b)), count / b)
-            self.periods.append((count, None))
+            if outside:
+                sink.folded.append(search.unmatched(cat(5), cat(6), first=sizes[0] if block is not None else 0))
             self.warnings.append(
                 f"a block repeated {count} times: the orbits of its error terms did not close within the "
                 "searched range; its errors were folded assuming errors more than "
@@ -263,9 +304,8 @@ class Walker:
         del sink.chunks[chunk_at[0] :]
         sink.folded.append(terms)
         sink.scale(marks[0], marks[-1], 1.0, count / b)
-        self.periods.append((count, None))
-        per_rep = (sink.terms_emitted + sink.rates_emitted - emitted) / b
-        self.orbit_records.append(record.as_dict() | {"terms_per_repetition": per_rep})
+        per_rep_terms = (sink.terms_emitted + sink.rates_emitted - emitted) / b
+        self.orbit_records.append(record.as_dict() | {"terms_per_repetition": per_rep_terms})
 
     def _fold(self, rep: NoisyRepeat, period: int, marks: list[int], snapshots: dict[int, Frame]) -> None:
         q, s = divmod(int(rep.count), period)
@@ -297,6 +337,25 @@ class Walker:
             f"folded assuming errors more than {walked} repetitions apart never land on the same Pauli "
             "(true for scrambling blocks, not checked); the result is approximate"
         )
+
+
+class _Collector:
+    """A sink that keeps the explicit coherent terms (x, z, e, coef, tag) of every layer."""
+
+    def __init__(self, sink):
+        self.sink = sink
+        self.parts: list[tuple] = []
+
+    def mark(self) -> int:
+        return 0
+
+    def scale(self, *args) -> None:
+        return None
+
+    def emit(self, layer: NoisyLayer, frame: Frame) -> None:
+        got = self.sink.explicit_terms(layer, frame, full=True)
+        if got is not None:
+            self.parts.append(got)
 
 
 class _Recorder:
