@@ -22,10 +22,11 @@ approximately: the window of repetitions walked stands for N/K windows that do n
 the Pauli of an error in another), and the frame after the block is the exact power c^N computed by
 repeated squaring of tableaus (stim.Tableau ** N). A warning says so.
 
-Long periods, process metric: when a top-level block is the only item carrying coherent terms,
-:meth:`Walker._orbit_repeat` walks only ``orbit_baby`` repetitions and hands the rest to the orbit
-search of :mod:`budget.engines._orbits` (cost independent of N and about B + r/B steps instead of
-r repetitions).
+Long periods, process metric: when a top-level block is the only repeated block carrying coherent
+terms, :meth:`Walker._orbit_repeat` walks only ``orbit_baby`` repetitions and hands the rest to
+the orbit search of :mod:`budget.engines._orbits` (cost independent of N and about B + r/B steps
+instead of r repetitions); coherent terms of plain layers around it are collected in its frame by
+:meth:`Walker._collect` and matched against its orbits.
 """
 
 from __future__ import annotations
