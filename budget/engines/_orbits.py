@@ -30,13 +30,13 @@ power of c^B, applied to P_t, compared with the phase of the baby image.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse
 
 from budget.engines._groups import group_rows
-from budget.engines._pauli_frame import Frame, fingerprints, hermitian_sign, num_words, popcount, unpack_bits
+from budget.engines._pauli_frame import Frame, fingerprints, num_words, unpack_bits
 
 MAX_GIANT_STEPS = 1024
 """Giant steps taken at most (offsets up to this many times B repetitions) before giving up."""
@@ -70,7 +70,7 @@ class OrbitRecord:
     open_points: int
     twisted: int = 0
     shared: int = 0
-    stim_powers: list[int] = field(default_factory=list)
+    tableau_powers: int = 0
 
     def as_dict(self) -> dict:
         return {
@@ -83,6 +83,7 @@ class OrbitRecord:
             "open_orbits": self.open_points,
             "sign_flipping_orbits": self.twisted,
             "orbits_with_several_paulis": self.shared,
+            "tableau_powers": self.tableau_powers,
         }
 
 
@@ -345,7 +346,7 @@ class OrbitSearch:
             open_points=int(np.count_nonzero(length == 0)),
             twisted=sum(1 for c in comps if eps[c[0]] == -1),
             shared=sum(1 for c in comps if len(c) > 1),
-            stim_powers=sorted(self._powers),
+            tableau_powers=len(self._powers),
         )
         return (comps, pos, sign, length, eps), record
 

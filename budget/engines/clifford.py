@@ -160,7 +160,10 @@ class CliffordEngine:
         if not self.qubit_map:
             return {}
         if self.qubit_map != "always" and cost > LANDING_BUDGET:
-            return {"qubit_map_skipped": f"about {cost:.2g} bit operations (limit {LANDING_BUDGET:.2g}); use qubit_map='always'"}
+            return {
+                "qubit_map_skipped": f"it needs about {cost:.2g} bit operations (default limit {LANDING_BUDGET:.2g}; "
+                "from Python, CliffordEngine(qubit_map='always') computes it)"
+            }
         sink = LandingSink(builder)
         Walker(circuit.num_qubits, "push", sink, max_unrolled=self.max_unrolled, plans=plans).run(circuit.body)
         land = sink.landing(circuit.num_qubits)
