@@ -86,9 +86,12 @@ def test_orbit_fold_equals_period_fold_for_huge_counts(count):
     _same(a, b)
 
 
-def test_quadratic_form_of_an_orbit_folded_block_equals_unrolling():
+@pytest.mark.parametrize("around", [False, True])
+def test_quadratic_form_of_an_orbit_folded_block_equals_unrolling(around):
     rng = np.random.default_rng(31)
     c = _block_circuit(rng, 4, 97, body_layers=2)
+    if around:  # coherent layers before and after the block
+        c = NoisyCircuit(c.qubits, (random_layer(rng, 4),) + c.body + (random_layer(rng, 4),))
     a, b = SMALL_BABY.quadratic_form(c, "process"), PERIOD_FOLD.quadratic_form(unrolled(c), "process")
     assert a.labels == b.labels
     np.testing.assert_allclose(a.matrix, b.matrix, rtol=1e-10, atol=1e-14)
