@@ -141,6 +141,16 @@ def test_terms_outside_landing_on_the_block_orbits_are_grouped_with_them():
     assert r.first_order == pytest.approx((300 * 1e-4 + 2e-4 - 5e-5) ** 2, rel=1e-12)
 
 
+def test_blocks_with_rates_only_around_the_folded_block_are_walked_with_it():
+    rng = np.random.default_rng(21)
+    c = _block_circuit(rng, 4, 120)
+    quiet = NoisyRepeat((random_layer(rng, 4, scale=0, rates=True),), 5)
+    c = NoisyCircuit(c.qubits, (quiet, random_layer(rng, 4)) + c.body + (random_layer(rng, 4), quiet))
+    r = SMALL_BABY.run(c, "process")
+    assert r.details["orbit_folds"]
+    _same(r, PERIOD_FOLD.run(unrolled(c), "process"))
+
+
 def test_coherent_errors_in_another_repeated_block_keep_the_period_fold():
     rng = np.random.default_rng(12)
     c = _block_circuit(rng, 4, 300)

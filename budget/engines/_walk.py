@@ -98,6 +98,7 @@ class Walker:
         self.orbit_baby = orbit_baby
         self.orbit_records: list[dict] = []
         self._orbit_block: int | None = None
+        self._outside: tuple = (None, None)  # coherent terms after / before that block (_collect)
         self._frame_lost = False
 
     def run(self, items: tuple[NoisyItem, ...]) -> Frame:
@@ -143,7 +144,7 @@ class Walker:
         (``"pull"`` from the block's end for items after it) or start frame (``"push"`` to the
         block's start for items before it): (x, z, e, coef, tag) or None."""
         sink = _Collector(self.sink)
-        if any(self.sink.orbit_terms(it) > 0 for it in items):  # only plain layers carry terms here
+        if any(isinstance(it, NoisyLayer) and self.sink.orbit_terms(it) > 0 for it in items):
             Walker(self.n, direction, sink, max_unrolled=self.max_unrolled, plans=self._plans, orbit_baby=0).run(items)
         if not sink.parts:
             return None
