@@ -11,6 +11,7 @@ import dataclasses
 import re
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from budget.errors.model import ErrorModel, key_path, load_model
@@ -60,7 +61,8 @@ def test_contract_example_loads(tmp_path):
     cz = GateParams(duration_ns=40.0, cphase=0.01, swap_angle=0.0, z_phase=(0.001, -0.002), avg_infidelity=4e-3)
     assert m.gate("cz", ("q[1]", "q[2]")) == cz
     assert m.gate("cz", ("q[0]", "q[1]")) == dataclasses.replace(cz, cphase=0.03)
-    assert m.gate("cz", ("q[1]", "q[0]")) == cz  # pair tables are in gate order
+    # cz is symmetric under exchange of its qubits: the pair table applies in either order
+    assert m.gate("cz", ("q[1]", "q[0]")) == dataclasses.replace(cz, cphase=0.03)
     assert m.gate("rx", ("q[0]",)).pauli == (("X", 1e-3), ("Z", -5e-4))
     assert m.gate("rz", ("q[0]",)) == GateParams()  # absent gates are ideal with zero duration
     assert m.source == str(tmp_path / "lab.toml")
@@ -186,3 +188,33 @@ def test_every_toml_block_in_the_docs_loads(tmp_path):
     assert blocks
     for i, block in enumerate(blocks):
         load_model(write(tmp_path, block, f"doc{i}.toml"))
+
+
+def test_pair_table_of_a_symmetric_gate_applies_with_its_qubits_exchanged():
+    # A cz, iswap or rzz coupler is the same physical gate whichever qubit is written first
+    # (SWAP U SWAP = U; common practice, no source), so its pair calibration applies in both orders:
+    # the error unitary of "cz q[2],q[1]" is the one of "cz q[1],q[2]" with the qubits exchanged.
+    # Per-qubit values the table itself names are reversed; values inherited from the gate's
+    # table stay in gate order (their documented meaning); cx, not symmetric, is not mirrored.
+    from budget.circuit.ir import Layer, Operation, StructuredCircuit
+    from budget.errors.attach import attach
+
+    m = ErrorModel.from_dict({"gates": {
+        "cz": {"cphase": 0.01, "q[1],q[2]": {"cphase": 0.05, "z_phase": [0.004, -0.003], "pauli": {"ZX": 2e-3}}},
+        "cx": {"q[1],q[2]": {"overrotation": 0.02}},
+    }})
+    swap = np.array([[1, 0, 0, 0], [0, 0, 1, 0], [0, 1, 0, 0], [0, 0, 0, 1]])
+
+    def coherent(gate, qubits):
+        c = StructuredCircuit(("q[0]", "q[1]", "q[2]"), (Layer((Operation(gate, qubits),)),))
+        return attach(c, m).body[0].operations[0].coherent
+
+    forward, backward = coherent("cz", (1, 2)), coherent("cz", (2, 1))
+    assert not np.allclose(forward, backward)  # the table is not symmetric itself
+    np.testing.assert_allclose(backward, swap @ forward @ swap, atol=1e-12)
+    assert m.gate("cz", ("q[2]", "q[1]")).z_phase == (-0.003, 0.004)
+    assert m.gate("cx", ("q[2]", "q[1]")).overrotation is None
+    inherited = ErrorModel.from_dict({"gates": {"cz": {"z_phase": [0.001, 0.002], "q[1],q[2]": {"cphase": 0.05}}}})
+    assert inherited.gate("cz", ("q[2]", "q[1]")).z_phase == (0.001, 0.002)
+    both = ErrorModel.from_dict({"gates": {"cz": {"q[1],q[2]": {"cphase": 0.05}, "q[2],q[1]": {"cphase": 0.07}}}})
+    assert both.gate("cz", ("q[2]", "q[1]")).cphase == 0.07  # a table for each order: each wins

@@ -136,6 +136,27 @@ def ideal_unitary(name: str, params: tuple[float, ...] = ()) -> np.ndarray:
     return _cached(name, tuple(float(p) for p in params))
 
 
+_SWAP = np.array([[1, 0, 0, 0], [0, 0, 1, 0], [0, 1, 0, 0], [0, 0, 0, 1]], dtype=complex)
+
+
+@lru_cache(maxsize=None)
+def exchange_symmetric(name: str) -> bool:
+    """True for a two-qubit gate unchanged when its qubits are exchanged, SWAP U SWAP = U, at any
+    angles (checked at two generic angle sets) and with a symmetric over-rotation generator:
+    cz, swap, iswap, rzz, cp, ... but not cx or cy.
+
+    >>> exchange_symmetric("cz"), exchange_symmetric("cx")
+    (True, False)
+    """
+    s = spec(name)
+    if s.num_qubits != 2:
+        return False
+    mats = [np.asarray(s.matrix(*angles[: s.num_params]), dtype=complex) for angles in ((0.37, 1.21, -0.64), (2.03, -0.29, 0.88))]
+    if s.rotation_generator is not None:
+        mats.append(np.asarray(s.rotation_generator, dtype=complex))
+    return all(np.allclose(_SWAP @ m @ _SWAP, m, atol=1e-12) for m in mats)
+
+
 def overrotation_unitary(name: str, params: tuple[float, ...], delta_rad: float) -> np.ndarray:
     """The extra unitary an over-rotation δ adds after the gate.
 

@@ -23,7 +23,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
-from budget.circuit.gates import ALIASES, GATES
+from budget.circuit.gates import ALIASES, GATES, exchange_symmetric
 from budget.errors.params import FieldError, GateParams, QubitParams, show
 from budget.problems import ModelError, place
 
@@ -77,6 +77,18 @@ class ErrorModel:
         name = ALIASES.get(name, name)
         hit = self.gate_overrides.get((name, tuple(qubit_names)))
         return hit if hit is not None else self.gates.get(name, _IDEAL)
+
+
+def _mirrored(extra: Mapping[str, Any]) -> dict[str, Any]:
+    """A qubit-specific gate table for the exchanged qubit order of a symmetric gate: per-qubit
+    values (``z_phase`` lists, ``pauli`` labels) reversed; everything else is symmetric. Only the
+    table's own keys are reversed: values inherited from the gate's table already follow gate order."""
+    out = dict(extra)
+    if isinstance(out.get("z_phase"), (list, tuple)):
+        out["z_phase"] = list(out["z_phase"])[::-1]
+    if isinstance(out.get("pauli"), Mapping):
+        out["pauli"] = {str(label)[::-1]: h for label, h in out["pauli"].items()}
+    return out
 
 
 def load_model(path: str | Path) -> ErrorModel:
@@ -193,6 +205,7 @@ class _Parser:
     def gates(self, raw: Any) -> tuple[dict[str, GateParams], dict]:
         gates: dict[str, GateParams] = {}
         overrides: dict[tuple[str, tuple[str, ...]], GateParams] = {}
+        mirrors: dict[tuple[str, tuple[str, ...]], tuple] = {}  # symmetric gates, qubits exchanged
         seen: dict[str, str] = {}
         for raw_name, table in self.table(("gates",), raw).items():
             base = ("gates", raw_name)
@@ -218,4 +231,9 @@ class _Parser:
                 overrides[(name, names)] = self.build(GateParams, {**own, **extra}, base, path, extra, name)
                 for q in names:
                     self.mentions.setdefault(q, key_path(path))
+                if exchange_symmetric(name):
+                    mirrors[(name, names[::-1])] = (own, _mirrored(extra), base, path, name)
+        for key, (own, extra, base, path, name) in mirrors.items():
+            if key not in overrides:  # a table written for the other order wins
+                overrides[key] = self.build(GateParams, {**own, **extra}, base, path, extra, name)
         return gates, overrides
