@@ -174,7 +174,7 @@ def depth(
 ) -> None:
     """Infidelity against repetitions: naive, accumulated and Pauli-twirled, with the crossover."""
     from budget.analysis.depth import depth_curve
-    from budget.analysis.run import _read_circuit, _read_model
+    from budget.analysis.run import read_circuit, read_model
     from budget.errors.attach import attach
     from budget.report.json_out import write_json
     from budget.report.progress import progress_bar
@@ -182,7 +182,7 @@ def depth(
 
     check_output_path(json_path, "--json")
     check_output_path(plot, "--plot")
-    block = attach(_read_circuit(str(circuit)), _read_model(str(errors)), family_by="pair" if by_pair else "gate")
+    block = attach(read_circuit(str(circuit)), read_model(str(errors)), family_by="pair" if by_pair else "gate")
     with progress_bar("depth curve", quiet=quiet) as tick:
         curve = depth_curve(block, max_cycles=max_cycles, points=points, metric=metric.value,
                             engine=engine.value, target=target, progress=tick)

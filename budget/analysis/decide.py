@@ -61,7 +61,7 @@ def decide(
             as written).
         engine: ``"auto"``, ``"clifford"`` or ``"generators"`` for the quadratic form.
     """
-    from budget.analysis.run import _read_circuit, _read_model
+    from budget.analysis.run import read_circuit, read_model
     from budget.errors.attach import attach
 
     check_target(target)
@@ -69,8 +69,8 @@ def decide(
         raise InputError(f"cycles = {cycles!r}: expected a whole number >= 1")
     if family_by not in GROUPINGS:
         raise InputError(f"family_by = {family_by!r}: expected one of {', '.join(GROUPINGS)}")
-    structured = _read_circuit(circuit).with_cycles(cycles)
-    model = _read_model(errors)
+    structured = read_circuit(circuit).with_cycles(cycles)
+    model = read_model(errors)
     settings = read_calibration(model.calibration, source=model.source)  # bad tables fail before any work
     noisy = attach(structured, model, family_by="pair" if family_by == "pair" else "gate")
     if family_by == "operation":

@@ -61,8 +61,8 @@ def analyze(
         raise InputError(f"metric = {metric!r}: expected one of {', '.join(METRICS)}")
     if isinstance(cycles, bool) or not isinstance(cycles, int) or not 1 <= cycles <= MAX_CYCLES:
         raise InputError(f"cycles = {cycles!r}: expected a whole number from 1 to 10**18")
-    structured = _read_circuit(circuit).with_cycles(cycles)
-    model = _read_model(errors)
+    structured = read_circuit(circuit).with_cycles(cycles)
+    model = read_model(errors)
     noisy = attach(structured, model, family_by=family_by)
     return analyze_noisy(
         noisy,
@@ -140,7 +140,8 @@ def _family_counts(noisy: NoisyCircuit) -> dict[str, int]:
     return counts
 
 
-def _read_circuit(circuit: Any) -> StructuredCircuit:
+def read_circuit(circuit: Any) -> StructuredCircuit:
+    """A StructuredCircuit from a path (OpenQASM 2/3, cirq JSON), a cirq.Circuit or itself."""
     if isinstance(circuit, StructuredCircuit):
         return circuit
     from budget.circuit.load import load_circuit
@@ -148,7 +149,8 @@ def _read_circuit(circuit: Any) -> StructuredCircuit:
     return load_circuit(circuit)
 
 
-def _read_model(errors: Any):
+def read_model(errors: Any):
+    """An ErrorModel from a TOML path, a dict in the TOML layout, or itself."""
     from budget.errors.model import ErrorModel, load_model
 
     if isinstance(errors, ErrorModel):

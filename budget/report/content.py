@@ -219,14 +219,14 @@ def gather(
     """
     from budget.analysis.depth import depth_curve
     from budget.analysis.heatmap import error_map
-    from budget.analysis.run import _read_circuit, _read_model, analyze_noisy
+    from budget.analysis.run import read_circuit, read_model, analyze_noisy
     from budget.errors.attach import attach
     from budget.problems import InputError, TooLargeError
 
     if isinstance(target, bool) or not isinstance(target, (int, float)) or not 0 < target < 1:
         raise InputError(f"target = {target!r}: expected an infidelity E with 0 < E < 1")
-    structured = _read_circuit(circuit)
-    model = _read_model(errors)
+    structured = read_circuit(circuit)
+    model = read_model(errors)
     block = attach(structured, model, family_by=family_by)
     whole = attach(structured.with_cycles(cycles), model, family_by=family_by)
     result = analyze_noisy(whole, structured.with_cycles(cycles), metric=metric, engine=engine,
