@@ -145,13 +145,12 @@ def phase_per_radian(nop: NoisyOperation, knob: str) -> float:
     phase grows by a·δ per repetition with a = λ_max(K_c) - λ_min(K_c). a = 0 means repetition
     alone does not amplify the knob (e.g. an axis error on a π pulse is echoed away).
     """
-    from budget.errors.fidelity import pauli_matrix
+    from budget.errors.fidelity import pauli_sum
 
     generator = nop.knob_generators.get(knob)
     if generator is None:
         raise KeyError(f"operation {nop.op.gate} on {nop.qubits} has no knob {knob!r}")
-    d = 2 ** len(nop.qubits)
-    k = sum((h * pauli_matrix(p) for p, h in generator.items()), np.zeros((d, d), dtype=complex))
+    k = pauli_sum(generator, len(nop.qubits))
     t, q = scipy.linalg.schur(np.asarray(nop.op.unitary(), dtype=complex), output="complex")
     eig = np.diag(t)
     same = np.abs(eig[:, None] - eig[None, :]) < 1e-9

@@ -23,7 +23,7 @@ from typing import Callable, Iterable
 import numpy as np
 
 from budget.engines._apply import LocalOp, embed, fuse
-from budget.errors.fidelity import pauli_labels, pauli_matrix
+from budget.errors.fidelity import pauli_labels, pauli_matrix, pauli_sum
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
 
 _SIGMA_MINUS = np.array([[0, 1], [0, 0]], dtype=complex)
@@ -36,15 +36,6 @@ Grouping = Callable[[NoisyOperation], Iterable[tuple[object, dict[str, float]]]]
 def by_family(nop: NoisyOperation) -> list[tuple[object, dict[str, float]]]:
     """Group every operation's whole Hamiltonian under its family (used for shares)."""
     return [(nop.family, nop.hamiltonian)] if nop.hamiltonian else []
-
-
-def pauli_sum(terms: dict[str, float]) -> np.ndarray:
-    """Σ h_P P as a matrix (gate order)."""
-    k = len(next(iter(terms)))
-    out = np.zeros((2**k, 2**k), dtype=complex)
-    for label, h in terms.items():
-        out += h * pauli_matrix(label)
-    return out
 
 
 @dataclass(frozen=True)

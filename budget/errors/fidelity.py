@@ -55,6 +55,23 @@ def pauli_matrix(label: str) -> np.ndarray:
     return m
 
 
+def pauli_sum(terms, num_qubits: int | None = None) -> np.ndarray:
+    """Σ h_P P as a matrix (gate order) from a dict or (label, h) pairs; ``num_qubits`` sizes an
+    empty sum.
+
+    >>> pauli_sum({"Z": 0.5}).real.tolist()
+    [[0.5, 0.0], [0.0, -0.5]]
+    """
+    items = list(terms.items()) if isinstance(terms, dict) else list(terms)
+    k = len(items[0][0]) if items else num_qubits
+    if k is None:
+        raise ValueError("pauli_sum: an empty sum needs num_qubits")
+    out = np.zeros((2**k, 2**k), dtype=complex)
+    for label, h in items:
+        out += h * pauli_matrix(label)
+    return out
+
+
 def pauli_decompose(matrix: np.ndarray, *, tol: float | None = None) -> dict[str, complex]:
     """Coefficients c_P with matrix = Σ_P c_P P, c_P = Tr(P M)/d.
 

@@ -25,7 +25,7 @@ from functools import reduce
 import numpy as np
 
 from budget.circuit.gates import ideal_unitary, overrotation_unitary
-from budget.errors.fidelity import pauli_decompose, pauli_hamiltonian, pauli_matrix
+from budget.errors.fidelity import pauli_decompose, pauli_hamiltonian, pauli_sum
 from budget.errors.params import GateParams
 
 _Z = np.diag([1.0 + 0j, -1.0])
@@ -62,9 +62,7 @@ def swap_unitary(theta_rad: float) -> np.ndarray:
 
 def pauli_unitary(terms: dict[str, float] | tuple[tuple[str, float], ...]) -> np.ndarray:
     """exp(-i Σ h_P P) through an eigendecomposition of the Hermitian sum."""
-    items = list(terms.items()) if isinstance(terms, dict) else list(terms)
-    h = sum(c * pauli_matrix(p) for p, c in items)
-    w, v = np.linalg.eigh(h)
+    w, v = np.linalg.eigh(pauli_sum(terms))
     return (v * np.exp(-1j * w)) @ v.conj().T
 
 
