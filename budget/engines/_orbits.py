@@ -96,25 +96,37 @@ def _slots(x: np.ndarray, z: np.ndarray, n: int) -> np.ndarray:
     return np.where(np.take_along_axis(bits, order, axis=1) == 1, order, 2 * n)
 
 
-def _xor_product(rows: np.ndarray, table_of: np.ndarray) -> np.ndarray:
-    """GF(2) product: out[r] = XOR of ``table_of[b]`` over the set bits b of byte-rows ``rows``.
+class _XorProduct:
+    """GF(2) products out[r] = XOR of ``table_of[b]`` over the set bits b of fixed byte-rows.
 
-    ``rows`` (R, C) uint8, bit b at byte b // 8, bit b % 8; ``table_of`` (8C, 2) uint64. Uses a
-    table of all 256 XOR combinations per byte (the "four Russians" method, Arlazarov, Dinic,
-    Kronrod & Faradzev, Dokl. Akad. Nauk SSSR 194 (1970)): C lookups per row instead of 8C.
+    ``rows`` (R, C) uint8, bit b at byte b // 8, bit b % 8; ``table_of`` (8C, 2) uint64 changes
+    from call to call. Uses a table of all 256 XOR combinations per byte (the "four Russians"
+    method, Arlazarov, Dinic, Kronrod & Faradzev, Dokl. Akad. Nauk SSSR 194 (1970)): C lookups per
+    row instead of 8C; the lookup positions depend only on ``rows`` and are built once.
     """
-    c = rows.shape[1]
-    per_bit = table_of.reshape(c, 8, 2)
-    table = np.zeros((256, c, 2), np.uint64)
-    for v in range(1, 256):
-        low = (v & -v).bit_length() - 1
-        table[v] = table[v & (v - 1)] ^ per_bit[:, low]
-    flat = table.transpose(1, 0, 2).reshape(c * 256, 2)
-    lo, hi = np.ascontiguousarray(flat[:, 0]), np.ascontiguousarray(flat[:, 1])
-    index = rows.astype(np.int64) + (np.arange(c, dtype=np.int64) * 256)[None]
-    return np.stack(
-        [np.bitwise_xor.reduce(np.take(lo, index), axis=1), np.bitwise_xor.reduce(np.take(hi, index), axis=1)], axis=1
-    )
+
+    def __init__(self, rows: np.ndarray):
+        self.c = rows.shape[1]
+        self.index = rows.astype(np.int32) + (np.arange(self.c, dtype=np.int32) * 256)[None]
+
+    def __call__(self, table_of: np.ndarray) -> np.ndarray:
+        c = self.c
+        per_bit = table_of.reshape(c, 8, 2)
+        table = np.zeros((256, c, 2), np.uint64)
+        for v in range(1, 256):
+            low = (v & -v).bit_length() - 1
+            table[v] = table[v & (v - 1)] ^ per_bit[:, low]
+        flat = table.transpose(1, 0, 2).reshape(c * 256, 2)
+        lo, hi = np.ascontiguousarray(flat[:, 0]), np.ascontiguousarray(flat[:, 1])
+        return np.stack(
+            [np.bitwise_xor.reduce(np.take(lo, self.index), axis=1), np.bitwise_xor.reduce(np.take(hi, self.index), axis=1)],
+            axis=1,
+        )
+
+
+def _xor_product(rows: np.ndarray, table_of: np.ndarray) -> np.ndarray:
+    """One product of :class:`_XorProduct` (for tests and single use)."""
+    return _XorProduct(rows)(table_of)
 
 
 def _padded_bytes(frame: Frame) -> np.ndarray:
@@ -229,7 +241,7 @@ class OrbitSearch:
         max_giant = MAX_GIANT_STEPS if max_giant is None else max_giant
         n, b, d = self.n, self.baby, len(self.first)
         table = _BabyTable(self.keys)
-        cb = _padded_bytes(self.step)  # bits of c^B(generator b), row b
+        product = _XorProduct(_padded_bytes(self.step))  # rows: bits of c^B(generator b)
         where = _padded_index(n)
         phi = np.zeros((2 * num_words(n) * 64, 2), np.uint64)  # fp of c^{iB}(generator), padded space
         phi[where] = Frame.identity(n).fxz[: 2 * n]  # i = 0: fingerprints of the generators
@@ -242,7 +254,7 @@ class OrbitSearch:
             i += 1
             if i > max_giant:
                 return None
-            step = _xor_product(cb, phi)  # fp of c^{iB}(generator b) = fp of c^{(i-1)B}(c^B(b))
+            step = product(phi)  # fp of c^{iB}(generator b) = fp of c^{(i-1)B}(c^B(b))
             phi = np.zeros_like(phi)
             phi[where] = step
             g = np.bitwise_xor.reduce(np.concatenate([step, np.zeros((1, 2), np.uint64)])[slots], axis=1)
