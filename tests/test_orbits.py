@@ -141,6 +141,20 @@ def test_terms_outside_landing_on_the_block_orbits_are_grouped_with_them():
     assert r.first_order == pytest.approx((300 * 1e-4 + 2e-4 - 5e-5) ** 2, rel=1e-12)
 
 
+@pytest.mark.parametrize("seed", range(6))
+def test_blocks_nested_in_the_folded_block_fold_by_their_period_inside_it(seed):
+    # e.g. `--cycles N` around a file that has its own loop: Repeat(layer, Repeat(inner, m)) x N
+    rng = np.random.default_rng(1900 + seed)
+    n = int(rng.integers(2, 5))
+    inner = NoisyRepeat(tuple(random_layer(rng, n, rates=True) for _ in range(2)), int(rng.integers(2, 6)))
+    block = NoisyRepeat((random_layer(rng, n), inner), int(rng.choice([9, 40, 97])))
+    c = NoisyCircuit(tuple(f"q[{i}]" for i in range(n)), (block,) + ((random_layer(rng, n),) if seed % 2 else ()))
+    r = SMALL_BABY.run(c, "process")
+    if seed % 2:  # a coherent layer outside: always the orbit search (else the period may be <= 2)
+        assert r.details["orbit_folds"], "the block was not folded by orbits"
+    _same(r, PERIOD_FOLD.run(unrolled(c), "process"))
+
+
 def test_blocks_with_rates_only_around_the_folded_block_are_walked_with_it():
     rng = np.random.default_rng(21)
     c = _block_circuit(rng, 4, 120)

@@ -118,8 +118,8 @@ class Walker:
         """Index of the top-level block to fold by orbits, or None.
 
         Eligible: process-type sinks (``orbit_terms``), the only repeated block of the circuit
-        whose layers carry coherent terms, repeated at least ORBIT_MIN_FACTOR x ORBIT_BABY times,
-        plain layers inside. Other items with coherent terms must be plain top-level layers: their
+        whose layers carry coherent terms, repeated at least ORBIT_MIN_FACTOR x ORBIT_BABY times
+        (blocks nested in it fold by their period within each repetition). Other items with coherent terms must be plain top-level layers: their
         terms are mapped to the block's end frame and matched against its orbits.
         """
         count_terms = getattr(self.sink, "orbit_terms", None)
@@ -135,7 +135,7 @@ class Walker:
         if len(blocks) != 1:
             return None
         rep = items[blocks[0]]
-        if int(rep.count) < ORBIT_MIN_FACTOR * self.orbit_baby or not all(isinstance(x, NoisyLayer) for x in rep.body):
+        if int(rep.count) < ORBIT_MIN_FACTOR * self.orbit_baby:
             return None
         return blocks[0]
 
@@ -270,7 +270,9 @@ class Walker:
         parts = []  # (keys (B, T, 2), phases (B, T), x, z, e, coef, tag, start, count) per kind of term
         if block is not None:
             images = [np.concatenate([im[i] for im in recorder.images]) for i in range(3)]
-            coef, tags = (np.concatenate([c[i] for c in per_rep[0]]) for i in (2, 4))
+            # amplitude factors of folded inner blocks (the same in every repetition) join the coefficients
+            coef = np.concatenate([c[2] * sink.amp[c[0]] for c in per_rep[0]])
+            tags = np.concatenate([c[4] for c in per_rep[0]])
             parts.append((block[0], block[1].astype(np.int64), *images, coef, tags, 0, count))
         for (x, z, e, coef, tags), start_at in outside:
             keys = np.stack([k[: len(coef)] for k in o_keys])
