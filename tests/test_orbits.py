@@ -283,3 +283,12 @@ def test_grouping_hash_separates_rows_differing_in_the_top_bits_of_two_words():
     assert len(set(row_hash(keys).tolist())) == 4
     inv, first = group_rows(keys)
     assert len(first) == 4 and sorted(inv.tolist()) == [0, 1, 2, 3]
+
+
+def test_exact_engine_refuses_a_thousand_qubits_without_overflow():
+    # 4^n x 4^n sizes overflow a float from about 256 qubits on; the plan must still refuse cleanly.
+    from budget.engines.exact import ExactEngine
+
+    c = _grid(32, 3)
+    reason = ExactEngine().fits(c, "process")
+    assert reason is not None and "more than 10^300 bytes" in reason and "clifford engine fits it" in reason

@@ -15,6 +15,8 @@ multiply-adds; the constants were measured on the 2-core development machine (do
 
 from __future__ import annotations
 
+import math
+
 from dataclasses import dataclass
 
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
@@ -80,6 +82,12 @@ class Plan:
     ideal_powered: dict[int, bool]
 
 
+def _big(x: int) -> float:
+    """A (possibly astronomically large) integer as a float, inf beyond the float range: sizes
+    like 4^n x 4^n overflow a float from about 256 qubits on."""
+    return float(x) if x.bit_length() < 1000 else math.inf
+
+
 class _Costs:
     """Work estimates with a per-repeat choice between unrolling and a matrix power."""
 
@@ -89,7 +97,7 @@ class _Costs:
         self.uses_power = False
 
     def items(self, items: tuple[NoisyItem, ...], columns: int) -> float:
-        size = self.s**self.n * columns
+        size = _big(self.s**self.n * columns)
         total = 0.0
         for it in items:
             if isinstance(it, NoisyLayer):
@@ -132,15 +140,17 @@ def make_plan(circuit: NoisyCircuit, metric: str, repeats: str = "auto") -> Plan
     costs = _Costs(n, s, repeats)
     ideal = _Costs(n, 2, repeats)
     work = costs.items(circuit.body, columns) + ideal.items(circuit.body, 2**n if operator else 1)
-    register = 2 * 16.0 * s**n * columns  # the tensor and its output buffer
-    ideal_bytes = 2 * 16.0 * 2**n * (2**n if operator else 1)
-    blocks = 8 * 16.0 * (s**n) ** 2 if costs.uses_power else 0.0  # block register, eig, inverse
-    final = 16.0 * s**n * columns if form == "superop" else 0.0  # reordered copy for F_pro
+    register = 2 * 16.0 * _big(s**n * columns)  # the tensor and its output buffer
+    ideal_bytes = 2 * 16.0 * _big(2**n * (2**n if operator else 1))
+    blocks = 8 * 16.0 * _big((s**n) ** 2) if costs.uses_power else 0.0  # block register, eig, inverse
+    final = 16.0 * _big(s**n * columns) if form == "superop" else 0.0  # reordered copy for F_pro
     memory = register + ideal_bytes + blocks + final
     return Plan(form, s, limit, columns, work, memory, costs.powered, ideal.powered)
 
 
 def _size(num_bytes: float) -> str:
+    if math.isinf(num_bytes):
+        return "more than 10^300 bytes"
     for unit, scale in (("TiB", 2**40), ("GiB", 2**30), ("MiB", 2**20)):
         if num_bytes >= scale:
             return f"{num_bytes / scale:.3g} {unit}"
@@ -167,7 +177,8 @@ def refusal(circuit: NoisyCircuit, metric: str, plan: Plan) -> str | None:
     if n > plan.max_qubits or plan.memory_bytes > MEMORY_LIMIT_BYTES:
         return (
             f"{head} up to {plan.max_qubits} qubits and {_size(MEMORY_LIMIT_BYTES)}; this one would "
-            f"need about {_size(plan.memory_bytes)}.{_NOTE.get(plan.form, '')} {other_engines(circuit, metric)}"
+            f"need {'' if math.isinf(plan.memory_bytes) else 'about '}{_size(plan.memory_bytes)}."
+            f"{_NOTE.get(plan.form, '')} {other_engines(circuit, metric)}"
         )
     if plan.work > WORK_LIMIT:
         return (
