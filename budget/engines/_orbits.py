@@ -36,7 +36,7 @@ import numpy as np
 import scipy.sparse
 
 from budget.engines._groups import group_rows
-from budget.engines._pauli_frame import Frame, fingerprints, num_words, unpack_bits
+from budget.engines._pauli_frame import Frame, num_words, unpack_bits
 
 MAX_GIANT_STEPS = 1024
 """Giant steps taken at most (offsets up to this many times B repetitions) before giving up."""
@@ -155,8 +155,10 @@ class _BabyTable:
 
     def find(self, q: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """(query index, step j, point) of every baby entry equal to a query fingerprint."""
-        lo = np.searchsorted(self.k0, q[:, 0], "left")
-        hi = np.searchsorted(self.k0, q[:, 0], "right")
+        order = np.argsort(q[:, 0])  # sorted queries walk the table in order (cache friendly)
+        lo, hi = np.empty(len(q), np.int64), np.empty(len(q), np.int64)
+        lo[order] = np.searchsorted(self.k0, q[order, 0], "left")
+        hi[order] = np.searchsorted(self.k0, q[order, 0], "right")
         n = hi - lo
         qi = np.repeat(np.arange(len(q)), n)
         pos = np.repeat(lo - np.cumsum(n) + n, n) + np.arange(n.sum())
@@ -186,6 +188,26 @@ class _Forest:
             self.parent[ru] = rv
             self.edges.append((u, v, m, hit))
             self.joined[u] = self.joined[v] = True
+
+    def labels(self) -> np.ndarray:
+        """Root of every point (vectorised path halving)."""
+        p = self.parent
+        while True:
+            q = p[p]
+            if np.array_equal(q, p):
+                return p
+            p[:] = q
+
+    def join_all(self, u: np.ndarray, v: np.ndarray, m: np.ndarray, i: int, j: np.ndarray) -> None:
+        """Join the pairs that link different components (one pair per pair of components)."""
+        lab = self.labels()
+        cross = lab[u] != lab[v]
+        if not cross.any():
+            return
+        u, v, m, j = u[cross], v[cross], m[cross], j[cross]
+        _, first = np.unique(np.stack([lab[u], lab[v]], axis=1), axis=0, return_index=True)
+        for k in np.sort(first):
+            self.join(int(u[k]), int(v[k]), int(m[k]), (i, int(j[k])))
 
 
 class OrbitSearch:
@@ -246,6 +268,8 @@ class OrbitSearch:
         phi = np.zeros((2 * num_words(n) * 64, 2), np.uint64)  # fp of c^{iB}(generator), padded space
         phi[where] = Frame.identity(n).fxz[: 2 * n]  # i = 0: fingerprints of the generators
         slots = self.slots
+        point_bytes = np.ascontiguousarray(np.concatenate([self.px, self.pz], axis=1)).view(np.uint8)
+        by_bytes = _XorProduct(point_bytes) if slots.shape[1] > point_bytes.shape[1] // 4 else None
         length = np.zeros(d, np.int64)  # 0: orbit not closed yet
         close_hit: dict[int, tuple[int, int]] = {}
         forest = _Forest(d)
@@ -257,7 +281,10 @@ class OrbitSearch:
             step = product(phi)  # fp of c^{iB}(generator b) = fp of c^{(i-1)B}(c^B(b))
             phi = np.zeros_like(phi)
             phi[where] = step
-            g = np.bitwise_xor.reduce(np.concatenate([step, np.zeros((1, 2), np.uint64)])[slots], axis=1)
+            if by_bytes is None:  # few generators per point: XOR their fingerprints
+                g = np.bitwise_xor.reduce(np.concatenate([step, np.zeros((1, 2), np.uint64)])[slots], axis=1)
+            else:  # dense points: one byte-table product, like the step itself
+                g = by_bytes(phi)
             qi, j, p = table.find(g)
             m = i * b - j
             own = p == qi
@@ -267,8 +294,7 @@ class OrbitSearch:
             for u in np.flatnonzero(best >= 0):
                 length[u] = i * b - best[u]
                 close_hit[int(u)] = (i, int(best[u]))
-            for u, w, mm, jj in zip(qi[~own], p[~own], m[~own], j[~own]):
-                forest.join(int(u), int(w), int(mm), (i, int(jj)))
+            forest.join_all(qi[~own], p[~own], m[~own], i, j[~own])
             open_ = length == 0
             if not open_.any():
                 break
@@ -287,25 +313,43 @@ class OrbitSearch:
         return self._powers[i]
 
     def _signs(self, asks: list[tuple[int, tuple[int, int], int]]) -> np.ndarray:
-        """σ in c^{iB}(P_u) = σ c^j(P_w) for each (u, (i, j), w): the image through c^{iB} with its
-        phase, compared with the phase of the baby image."""
+        """σ in c^{iB}(P_u) = σ c^j(P_w) for each (u, (i, j), w).
+
+        When the offset m = iB - j is below B, c^m(P_u) is a baby image whose phase the walk
+        recorded: σ compares it with P_w's. Otherwise the image through c^{iB} (a stim tableau
+        power) is formed with its phase and compared with the phase of the baby image."""
         out = np.zeros(len(asks), np.int64)
+        b = self.baby
         by_i: dict[int, list[int]] = {}
-        for a, (_, (i, _j), _) in enumerate(asks):
-            by_i.setdefault(i, []).append(a)
+        near: list[int] = []
+        for a, (_, (i, j), _) in enumerate(asks):
+            (near if i * b - j < b else by_i.setdefault(i, [])).append(a)
+        if near:
+            u = np.array([asks[a][0] for a in near])
+            m = np.array([asks[a][1][0] * b - asks[a][1][1] for a in near])
+            w = np.array([asks[a][2] for a in near])
+            self._fill_phases(m, u)
+            self._fill_phases(np.zeros_like(w), w)
+            if not np.array_equal(self.keys[m, u], self.keys[0, w]):
+                raise ValueError("orbit search: a matched fingerprint is not the same Pauli (internal error)")
+            out[near] = self._sign_of((self.phases[m, u] - self.phases[0, w]) & 3)
         for i, idx in by_i.items():
             u = np.array([asks[a][0] for a in idx])
             j = np.array([asks[a][1][1] for a in idx])
             w = np.array([asks[a][2] for a in idx])
-            x, z, e = self._power(i).image(self.slots[u], self.pe[u])
+            frame = self._power(i)
+            _, _, e = frame.image(self.slots[u], self.pe[u])
             self._fill_phases(j, w)
-            if not np.array_equal(fingerprints(x, z), self.keys[j, w]):
+            if not np.array_equal(np.bitwise_xor.reduce(frame.fxz[self.slots[u]], axis=1), self.keys[j, w]):
                 raise ValueError("orbit search: a matched fingerprint is not the same Pauli (internal error)")
-            d = (e.astype(np.int64) - self.phases[j, w]) & 3
-            if np.any(d & 1):
-                raise ValueError("orbit search: non-Hermitian relation (internal error)")
-            out[idx] = 1 - d
+            out[idx] = self._sign_of((e.astype(np.int64) - self.phases[j, w]) & 3)
         return out
+
+    @staticmethod
+    def _sign_of(d: np.ndarray) -> np.ndarray:
+        if np.any(d & 1):
+            raise ValueError("orbit search: non-Hermitian relation (internal error)")
+        return 1 - d
 
     def _fill_phases(self, j: np.ndarray, w: np.ndarray) -> None:
         """Phase exponents of c^j(P_w) not recorded by the walk, from the frames of c^j."""
