@@ -292,3 +292,21 @@ def test_exact_engine_refuses_a_thousand_qubits_without_overflow():
     c = _grid(32, 3)
     reason = ExactEngine().fits(c, "process")
     assert reason is not None and "more than 10^300 bytes" in reason and "clifford engine fits it" in reason
+
+
+def test_auto_engine_on_three_hundred_qubits_picks_clifford_and_folds_by_orbits(tmp_path):
+    # End to end from an OpenQASM 3 file: the exact engine's size estimate must not overflow before
+    # `auto` reaches the clifford engine (it used to raise OverflowError from about 250 qubits).
+    from budget import analyze
+
+    n = 300
+    lines = ['OPENQASM 3.0;', 'include "stdgates.inc";', f"qubit[{n}] q;", "for int i in [0:999999] {"]
+    lines += [f"  sx q[{k}];" for k in range(n)]
+    lines += [f"  cz q[{k}], q[{k + 1}];" for p in (0, 1) for k in range(p, n - 1, 2)]
+    lines.append("}")
+    path = tmp_path / "line.qasm"
+    path.write_text("\n".join(lines) + "\n")
+    model = {"gates": {"sx": {"overrotation": 1e-4, "avg_infidelity": 1e-5}, "cz": {"cphase": 2e-4}}}
+    r = analyze(path, model)
+    assert r.engine == "clifford"
+    assert r.details["orbit_folds"] and r.details["orbit_folds"][0]["count"] == 10**6
