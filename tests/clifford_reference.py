@@ -20,11 +20,9 @@ import itertools
 import cirq
 import numpy as np
 
-from budget.circuit.ir import Operation
-from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
-from reference import _random_hamiltonian as _random_h
+from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyRepeat
 from reference import _relax, pauli_matrix
-from reference import _unitary_from as _expm
+from reference import random_layer as _random_layer
 
 ONE = ["id", "x", "y", "z", "h", "s", "sdg", "sx", "sxdg", "rx", "ry", "rz", "p", "u"]
 TWO = ["cx", "cy", "cz", "swap", "iswap"]
@@ -36,37 +34,18 @@ def _labels(k: int) -> list[str]:
 
 
 def random_layer(rng, n: int, *, scale=0.02, depolarizing=True, relaxation=True, rates=False) -> NoisyLayer:
-    free = list(rng.permutation(n))
-    ops: list[NoisyOperation] = []
-    busy: dict[int, float] = {}
-    while free:
-        if len(free) >= 2 and rng.random() < 0.5:
-            qs, gate = (int(free.pop()), int(free.pop())), str(rng.choice(TWO))
-        else:
-            qs, gate = (int(free.pop()),), str(rng.choice(ONE))
-        if rng.random() < 0.2:
-            continue
-        k = len(qs)
-        params = tuple(float(a) for a in rng.integers(-4, 5, ANGLES.get(gate, 0)) * np.pi / 2)
-        h = _random_h(rng, k, scale) if scale else {}
-        dur = float(rng.choice([20.0, 35.0, 60.0])) if relaxation else 0.0
-        pr = {p: float(abs(c)) ** 2 for p, c in _random_h(rng, k, 0.03).items()} if rates else {}
-        ops.append(
-            NoisyOperation(
-                op=Operation(gate, qs, params),
-                family=gate,
-                coherent=_expm(h, k),
-                hamiltonian=h,
-                pauli_rates=pr,
-                depolarizing=float(rng.uniform(0, 3e-3)) if depolarizing else 0.0,
-                relaxation=tuple(_relax(rng, q, dur, relaxation) for q in qs),
-                duration_ns=dur,
-            )
-        )
-        busy.update({q: dur for q in qs})
-    t = max(busy.values(), default=0.0)
-    idle = tuple(_relax(rng, q, t - busy.get(q, 0.0), relaxation) for q in range(n) if t - busy.get(q, 0.0) > 0)
-    return NoisyLayer(tuple(ops), idle, t)
+    """A random layer of Clifford gates (rotation angles at multiples of π/2)."""
+    return _random_layer(
+        rng,
+        n,
+        one=ONE,
+        two=TWO,
+        angles=lambda gate: tuple(float(a) for a in rng.integers(-4, 5, ANGLES.get(gate, 0)) * np.pi / 2),
+        scale=scale,
+        rates=rates,
+        depolarizing=depolarizing,
+        relaxation=relaxation,
+    )
 
 
 def random_clifford_circuit(rng, n: int, *, layers: int = 4, repeat: int | None = None, nested: bool = False, **kw) -> NoisyCircuit:

@@ -62,6 +62,58 @@ def _relax(rng: np.random.Generator, q: int, t_ns: float, incoherent: bool) -> R
     return Relaxation(q, t_ns, 1 - np.exp(-t_ns / t1), float(np.exp(-t_ns * tphi_inv)))
 
 
+def random_layer(
+    rng: np.random.Generator,
+    n: int,
+    *,
+    one: list[str],
+    two: list[str],
+    angles,
+    scale: float = 0.02,
+    rates: bool = False,
+    depolarizing: bool = True,
+    relaxation: bool = True,
+) -> NoisyLayer:
+    """One random layer on n qubits: gates drawn from ``one``/``two`` (a qubit left idle with
+    probability 0.2), ``angles(gate)`` for their parameters, random coherent Pauli generators of
+    size ``scale``, optional stochastic Pauli rates, depolarizing and relaxation, idle slots."""
+    free = list(rng.permutation(n))
+    ops: list[NoisyOperation] = []
+    durations: dict[int, float] = {}
+    while free:
+        if len(free) >= 2 and rng.random() < 0.5:
+            qs, name = (int(free.pop()), int(free.pop())), str(rng.choice(two))
+        else:
+            qs, name = (int(free.pop()),), str(rng.choice(one))
+        if rng.random() < 0.2:
+            continue  # leave the qubit idle
+        k = len(qs)
+        params = angles(name)
+        h = _random_hamiltonian(rng, k, scale) if scale else {}
+        dur = float(rng.choice([20.0, 35.0, 60.0])) if relaxation else 0.0
+        pr = {p: float(abs(c)) ** 2 for p, c in _random_hamiltonian(rng, k, 0.03).items()} if rates else {}
+        ops.append(
+            NoisyOperation(
+                op=Operation(name, qs, params),
+                family=name,
+                coherent=_unitary_from(h, k),
+                hamiltonian=h,
+                pauli_rates=pr,
+                depolarizing=float(rng.uniform(0, 3e-3)) if depolarizing else 0.0,
+                relaxation=tuple(_relax(rng, q, dur, relaxation) for q in qs),
+                duration_ns=dur,
+            )
+        )
+        durations.update({q: dur for q in qs})
+    layer_t = max(durations.values(), default=0.0)
+    idle = tuple(
+        _relax(rng, q, layer_t - durations.get(q, 0.0), relaxation)
+        for q in range(n)
+        if layer_t - durations.get(q, 0.0) > 0
+    )
+    return NoisyLayer(tuple(ops), idle, layer_t)
+
+
 def random_noisy_circuit(
     rng: np.random.Generator,
     *,
@@ -79,46 +131,17 @@ def random_noisy_circuit(
     two = [g for g, s in GATES.items() if s.num_qubits == 2]
 
     def layer() -> NoisyLayer:
-        free = list(rng.permutation(num_qubits))
-        ops: list[NoisyOperation] = []
-        durations: dict[int, float] = {}
-        while free:
-            if len(free) >= 2 and rng.random() < 0.5:
-                qs = (int(free.pop()), int(free.pop()))
-                name = str(rng.choice(two))
-            else:
-                qs = (int(free.pop()),)
-                name = str(rng.choice(one))
-            if rng.random() < 0.2:
-                continue  # leave the qubit idle
-            k = len(qs)
-            params = tuple(float(x) for x in rng.uniform(-np.pi, np.pi, GATES[name].num_params))
-            h = _random_hamiltonian(rng, k, coherent_scale) if coherent_scale else {}
-            dur = float(rng.choice([20.0, 35.0, 60.0])) if incoherent else 0.0
-            rates = {}
-            if pauli_rates and incoherent:
-                rates = {p: float(abs(c)) ** 2 for p, c in _random_hamiltonian(rng, k, 0.03).items()}
-            ops.append(
-                NoisyOperation(
-                    op=Operation(name, qs, params),
-                    family=name,
-                    coherent=_unitary_from(h, k),
-                    hamiltonian=h,
-                    pauli_rates=rates,
-                    depolarizing=float(rng.uniform(0, 3e-3)) if incoherent else 0.0,
-                    relaxation=tuple(_relax(rng, q, dur, incoherent) for q in qs),
-                    duration_ns=dur,
-                )
-            )
-            for q in qs:
-                durations[q] = dur
-        layer_t = max(durations.values(), default=0.0)
-        idle = tuple(
-            _relax(rng, q, layer_t - durations.get(q, 0.0), incoherent)
-            for q in range(num_qubits)
-            if layer_t - durations.get(q, 0.0) > 0
+        return random_layer(
+            rng,
+            num_qubits,
+            one=one,
+            two=two,
+            angles=lambda name: tuple(float(x) for x in rng.uniform(-np.pi, np.pi, GATES[name].num_params)),
+            scale=coherent_scale,
+            rates=pauli_rates and incoherent,
+            depolarizing=incoherent,
+            relaxation=incoherent,
         )
-        return NoisyLayer(tuple(ops), idle, layer_t)
 
     body: list = [layer() for _ in range(num_layers)]
     if repeat_count is not None:
