@@ -260,14 +260,14 @@ def test_identity_fingerprints_read_off_the_masks_equal_the_computed_ones():
 
 
 def test_byte_table_product_equals_bitwise_xor():
-    from budget.engines._orbits import _xor_product
+    from budget.engines._orbits import _XorProduct
 
     rng = np.random.default_rng(3)
     rows = rng.integers(0, 256, (37, 5), dtype=np.uint8)
     of = rng.integers(0, 2**63, (40, 2), dtype=np.uint64)
     bits = np.unpackbits(rows, axis=1, bitorder="little")
     want = np.array([np.bitwise_xor.reduce(of[np.flatnonzero(b)], axis=0) if b.any() else np.zeros(2, np.uint64) for b in bits])
-    np.testing.assert_array_equal(_xor_product(rows, of), want)
+    np.testing.assert_array_equal(_XorProduct(rows)(of), want)
 
 
 def test_grouping_hash_separates_rows_differing_in_the_top_bits_of_two_words():

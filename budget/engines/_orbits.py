@@ -30,6 +30,7 @@ power of c^B, applied to P_t, compared with the phase of the baby image.
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
@@ -59,32 +60,21 @@ class FoldedTerms:
 
 @dataclass
 class OrbitRecord:
-    """What the search found (for ``details`` and tests)."""
+    """What the search found (``details["orbit_folds"]`` and tests); field names are the keys."""
 
     count: int
-    baby: int
+    baby_steps: int
     giant_steps: int
-    points: int
+    distinct_paulis: int
     orbits: int
     longest_orbit: int | None
-    open_points: int
-    twisted: int = 0
-    shared: int = 0
-    tableau_powers: int = 0
+    open_orbits: int
+    sign_flipping_orbits: int
+    orbits_with_several_paulis: int
+    tableau_powers: int
 
     def as_dict(self) -> dict:
-        return {
-            "count": self.count,
-            "baby_steps": self.baby,
-            "giant_steps": self.giant_steps,
-            "distinct_paulis": self.points,
-            "orbits": self.orbits,
-            "longest_orbit": self.longest_orbit,
-            "open_orbits": self.open_points,
-            "sign_flipping_orbits": self.twisted,
-            "orbits_with_several_paulis": self.shared,
-            "tableau_powers": self.tableau_powers,
-        }
+        return dataclasses.asdict(self)
 
 
 def _slots(x: np.ndarray, z: np.ndarray, n: int) -> np.ndarray:
@@ -122,11 +112,6 @@ class _XorProduct:
             [np.bitwise_xor.reduce(np.take(lo, self.index), axis=1), np.bitwise_xor.reduce(np.take(hi, self.index), axis=1)],
             axis=1,
         )
-
-
-def _xor_product(rows: np.ndarray, table_of: np.ndarray) -> np.ndarray:
-    """One product of :class:`_XorProduct` (for tests and single use)."""
-    return _XorProduct(rows)(table_of)
 
 
 def _padded_bytes(frame: Frame) -> np.ndarray:
@@ -394,14 +379,14 @@ class OrbitSearch:
             comps.append(comp)
         record = OrbitRecord(
             count=self.count,
-            baby=self.baby,
+            baby_steps=self.baby,
             giant_steps=steps,
-            points=d,
+            distinct_paulis=d,
             orbits=len(comps),
             longest_orbit=int(length.max()) if length.any() else None,
-            open_points=int(np.count_nonzero(length == 0)),
-            twisted=sum(1 for c in comps if eps[c[0]] == -1),
-            shared=sum(1 for c in comps if len(c) > 1),
+            open_orbits=int(np.count_nonzero(length == 0)),
+            sign_flipping_orbits=sum(1 for c in comps if eps[c[0]] == -1),
+            orbits_with_several_paulis=sum(1 for c in comps if len(c) > 1),
             tableau_powers=len(self._powers),
         )
         return (comps, pos, sign, length, eps), record

@@ -131,15 +131,15 @@ class GroupSink(_Batches):
         applies to the process metric only; -1 for the state metric)."""
         return len(self._terms(self.builder.layer(layer))) if self.key == "xz" else -1
 
-    def explicit_terms(self, layer: NoisyLayer, frame: Frame, *, full: bool = False):
-        """Full images (x, z, e) of the layer's coherent terms through ``frame`` (with their
-        coefficients and tags when ``full``), or None."""
+    def explicit_terms(self, layer: NoisyLayer, frame: Frame):
+        """Full images (x, z, e) of the layer's coherent terms through ``frame``, with their
+        coefficients and tags, or None."""
         table = self.builder.layer(layer)
         terms = self._terms(table)
         if not len(terms):
             return None
         x, z, e = frame.image(term_slots(table, terms.site, terms.v, frame.n), terms.e0)
-        return (x, z, e, terms.coef, terms.tag) if full else (x, z, e)
+        return x, z, e, terms.coef, terms.tag
 
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:
         b = self._new()

@@ -143,7 +143,7 @@ class Walker:
         """Explicit coherent terms of ``items`` (outside the block) in the block's end frame
         (``"pull"`` from the block's end for items after it) or start frame (``"push"`` to the
         block's start for items before it): (x, z, e, coef, tag) or None."""
-        sink = _Collector(self.sink)
+        sink = _Explicit(self.sink, forward=False)
         if any(isinstance(it, NoisyLayer) and self.sink.orbit_terms(it) > 0 for it in items):
             Walker(self.n, direction, sink, max_unrolled=self.max_unrolled, plans=self._plans, orbit_baby=0).run(items)
         if not sink.parts:
@@ -242,7 +242,7 @@ class Walker:
         start = self.frame.copy()
         marks, chunk_at = [sink.mark()], [len(sink.chunks)]
         emitted = sink.terms_emitted + sink.rates_emitted
-        recorder = _Recorder(sink)
+        recorder = _Explicit(sink, forward=True)
         o_slots = [_slots(part[0], part[1], self.n) for part, _ in outside]
         o_keys: list[np.ndarray] = []
         frames: list[Frame] = []
@@ -269,7 +269,7 @@ class Walker:
         block = [np.stack([np.concatenate([c[i] for c in chunks]) for chunks in per_rep]) for i in (1, 3)] if per_rep[0] else None
         parts = []  # (keys (B, T, 2), phases (B, T), x, z, e, coef, tag, start, count) per kind of term
         if block is not None:
-            images = [np.concatenate([im[i] for im in recorder.images]) for i in range(3)]
+            images = [np.concatenate([im[i] for im in recorder.parts]) for i in range(3)]
             # amplitude factors of folded inner blocks (the same in every repetition) join the coefficients
             coef = np.concatenate([c[2] * sink.amp[c[0]] for c in per_rep[0]])
             tags = np.concatenate([c[4] for c in per_rep[0]])
@@ -343,40 +343,24 @@ class Walker:
         )
 
 
-class _Collector:
-    """A sink that keeps the explicit coherent terms (x, z, e, coef, tag) of every layer."""
+class _Explicit:
+    """A sink that keeps the explicit coherent terms (x, z, e, coef, tag) of every layer it sees,
+    passing emissions on to ``forward`` (the GroupSink) when given."""
 
-    def __init__(self, sink):
-        self.sink = sink
+    def __init__(self, sink, forward: bool):
+        self.sink, self.forward = sink, forward
         self.parts: list[tuple] = []
 
     def mark(self) -> int:
-        return 0
+        return self.sink.mark() if self.forward else 0
 
     def scale(self, *args) -> None:
-        return None
+        if self.forward:
+            self.sink.scale(*args)
 
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:
-        got = self.sink.explicit_terms(layer, frame, full=True)
-        if got is not None:
-            self.parts.append(got)
-
-
-class _Recorder:
-    """Passes emissions on to a GroupSink and keeps the explicit images of its coherent terms."""
-
-    def __init__(self, sink):
-        self.sink = sink
-        self.images: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
-
-    def mark(self) -> int:
-        return self.sink.mark()
-
-    def scale(self, *args) -> None:
-        self.sink.scale(*args)
-
-    def emit(self, layer: NoisyLayer, frame: Frame) -> None:
-        self.sink.emit(layer, frame)
+        if self.forward:
+            self.sink.emit(layer, frame)
         got = self.sink.explicit_terms(layer, frame)
         if got is not None:
-            self.images.append(got)
+            self.parts.append(got)
