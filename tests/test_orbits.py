@@ -310,3 +310,16 @@ def test_auto_engine_on_three_hundred_qubits_picks_clifford_and_folds_by_orbits(
     r = analyze(path, model)
     assert r.engine == "clifford"
     assert r.details["orbit_folds"] and r.details["orbit_folds"][0]["count"] == 10**6
+
+
+def test_brief_engine_skips_only_the_per_qubit_map():
+    # Depth curves, twirled variants and compiled ensembles read only totals: their engine runs
+    # without the per-qubit map, which can cost more than the rest of a run.
+    from budget.analysis.select import choose_engine
+
+    c = _grid(4, 20)
+    full = choose_engine(c, "process")
+    brief = choose_engine(c, "process", brief=True)
+    a, b = full.run(c, "process"), brief.run(c, "process")
+    assert "qubit_map" in a.details and "qubit_map" not in b.details
+    assert (a.infidelity, a.first_order, a.shares) == (b.infidelity, b.first_order, b.shares)

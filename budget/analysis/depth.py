@@ -164,7 +164,7 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, deepest: int, 
             deep = gen.run(_repeated(block, deepest), metric)
             notes.extend(f"{label} curve (generators engine) at N = {deepest:,}: {w}" for w in deep.warnings[:1])
             return _closed_form(block, gen), "generators (periodic closed form)", notes
-    chosen = choose_engine(_repeated(block, 2), metric, engine)
+    chosen = choose_engine(_repeated(block, 2), metric, engine, brief=True)
 
     def run(n: int) -> float:
         result = chosen.run(_repeated(block, n), metric)

@@ -234,11 +234,11 @@ def ensemble(
     for i in range(count):
         copy, why = compiled_copy(circuit, rng)
         notes.extend(why)
-        eng = choose_engine(copy, metric, engine)
+        eng = choose_engine(copy, metric, engine, brief=True)
         name = eng.name
         values.append(float(eng.run(copy, metric).infidelity))
         if progress is not None:
             progress(i + 1, count)
     tw = twirled_circuit(circuit)
-    twirled = float(choose_engine(tw, metric, engine).run(tw, metric).infidelity)
+    twirled = float(choose_engine(tw, metric, engine, brief=True).run(tw, metric).infidelity)
     return EnsembleResult(count, seed, metric, name, tuple(values), twirled, tuple(dict.fromkeys(notes)))

@@ -102,7 +102,7 @@ def analyze_noisy(
         from budget.analysis.twirl import twirled_circuit
 
         tw = twirled_circuit(noisy)
-        twirled = choose_engine(tw, metric, engine).run(tw, metric).infidelity
+        twirled = choose_engine(tw, metric, engine, brief=True).run(tw, metric).infidelity
     counts = _family_counts(noisy)
     families = tuple(
         FamilyShare(name, counts.get(name, 0), float(shares.get(name, 0.0)))

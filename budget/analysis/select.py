@@ -21,8 +21,10 @@ def _available(name: str) -> Engine | None:
         return None
 
 
-def choose_engine(circuit: NoisyCircuit, metric: str, name: str = "auto") -> Engine:
-    """The engine to run: ``name`` itself (checked to fit), or the first of AUTO_ORDER that fits.
+def choose_engine(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: bool = False) -> Engine:
+    """The engine to run: ``name`` itself (checked to fit), or the first of AUTO_ORDER that fits;
+    ``brief``: its :meth:`~budget.engines.base.Engine.brief` variant, for callers that read only
+    the totals and shares.
 
     Raises:
         TooLargeError: the named engine (or every engine) cannot hold the circuit; the message
@@ -37,7 +39,7 @@ def choose_engine(circuit: NoisyCircuit, metric: str, name: str = "auto") -> Eng
         reason = engine.fits(circuit, metric)
         if reason is not None:
             raise TooLargeError(f"engine {name}: {reason}")
-        return engine
+        return engine.brief() if brief else engine
     reasons = []
     for candidate in AUTO_ORDER:
         engine = _available(candidate)
@@ -45,7 +47,7 @@ def choose_engine(circuit: NoisyCircuit, metric: str, name: str = "auto") -> Eng
             continue
         reason = engine.fits(circuit, metric)
         if reason is None:
-            return engine
+            return engine.brief() if brief else engine
         reasons.append(f"{candidate}: {reason}")
     raise TooLargeError(
         f"{circuit.source}: no engine fits this {circuit.num_qubits}-qubit circuit for the "
@@ -68,7 +70,7 @@ def first_order_shares(
         engine = _available(candidate)
         if engine is None or engine.fits(circuit, metric) is not None:
             continue
-        fo = engine.run(circuit, metric)
+        fo = engine.brief().run(circuit, metric)
         s = sum(fo.shares.values())
         if s > 0:
             return {k: v * total / s for k, v in fo.shares.items()}, None

@@ -84,6 +84,10 @@ class Engine(Protocol):
         """Compute the metric (and the errors of the named Pauli observables, when the engine
         supports them); raises TooLargeError if :meth:`fits` would refuse."""
 
+    def brief(self) -> "Engine":
+        """The same engine without optional extras that cost time but do not change the totals
+        and shares (the clifford engine's per-qubit map), for callers that read only those."""
+
 
 def parse_observable(label: str, num_qubits: int) -> dict[int, str]:
     """A Pauli observable written as letters with qubit indices, ``"Z0Z1"`` or ``"X3 Y4"``.

@@ -102,6 +102,16 @@ class CliffordEngine:
             "Clifford (angles must be multiples of π/2); use the generators or exact engine"
         )
 
+    def brief(self) -> "CliffordEngine":
+        """The same engine without the per-qubit map (often the costliest part of a run)."""
+        return CliffordEngine(
+            max_unrolled=self.max_unrolled,
+            qubit_map=False,
+            top=self.top,
+            prune_observables=self.prune_observables,
+            orbit_baby=self.orbit_baby,
+        )
+
     def _check(self, circuit: NoisyCircuit, metric: Metric) -> None:
         reason = self.fits(circuit, metric)
         if reason is not None:

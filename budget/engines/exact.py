@@ -153,6 +153,10 @@ class ExactEngine:
             return f"metric {metric!r} is not one of {', '.join(METRICS)}"
         return refusal(circuit, metric, make_plan(circuit, metric, self.repeats))
 
+    def brief(self) -> "ExactEngine":
+        """This engine (it has no optional extras to skip)."""
+        return self
+
     def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
         """The metric, exactly (to rounding), and signed observable errors <O>_actual - <O>_ideal
         for input |0…0>. Raises TooLargeError (before allocating) when :meth:`fits` refuses."""

@@ -106,6 +106,10 @@ class GeneratorsEngine:
             )
         return None
 
+    def brief(self) -> "GeneratorsEngine":
+        """This engine (it has no optional extras to skip)."""
+        return self
+
     def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
         """The metric to first order (see the module docstring) and the signed first-order errors
         <O>_actual - <O>_ideal of Pauli observables; TooLargeError when :meth:`fits` refuses."""
