@@ -55,7 +55,13 @@ def _rows_times(rows: np.ndarray, m: np.ndarray) -> np.ndarray:
     tall thin matrix is far slower on a busy machine)."""
     left, k = rows.shape
     chunk = max(1, min(left, 2**15 // (k * k)))
-    return np.matmul(rows.reshape(left // chunk, chunk, k), m).reshape(left, k)
+    whole = left - left % chunk
+    out = np.empty((left, k), dtype=np.result_type(rows, m))
+    if whole:
+        out[:whole] = np.matmul(rows[:whole].reshape(whole // chunk, chunk, k), m).reshape(whole, k)
+    if whole < left:  # the rows left over when ``chunk`` does not divide ``left``
+        out[whole:] = rows[whole:] @ m
+    return out
 
 
 def apply(batch: np.ndarray, op: LocalOp, num_qubits: int) -> np.ndarray:
