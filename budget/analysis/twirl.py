@@ -69,7 +69,7 @@ def _twirl_items(items: tuple[NoisyItem, ...], memo: dict[int, NoisyItem]) -> tu
         key = id(it)
         if key not in memo:
             if isinstance(it, NoisyLayer):
-                memo[key] = NoisyLayer(tuple(_twirl_op(n) for n in it.operations), it.idle, it.duration_ns)
+                memo[key] = replace(it, operations=tuple(_twirl_op(n) for n in it.operations))
             else:
                 memo[key] = NoisyRepeat(_twirl_items(it.body, memo), it.count)
         out.append(memo[key])

@@ -6,6 +6,7 @@ Layout::
     [qubits."q[3]"]          one qubit, named as in the circuit; replaces what it names
     [gates.cz]               one gate (duration_ns, knobs, avg_infidelity, family)
     [gates.cz."q[0],q[1]"]   that gate on given qubits, in gate order; inherits gates.cz
+    [couplings], [crosstalk], [bleed], [[context]]   context errors (budget/errors/context.py)
 
 Every rule violation raises one :class:`~budget.problems.ModelError` naming the full key path,
 the value, the file and the rule, e.g.
@@ -24,7 +25,8 @@ from pathlib import Path
 from typing import Any, Mapping
 
 from budget.circuit.gates import ALIASES, GATES, exchange_symmetric
-from budget.errors.params import FieldError, GateParams, QubitParams, show
+from budget.errors.context import SECTIONS, ContextModel, parse_context
+from budget.errors.params import FieldError, GateParams, QubitParams, mirrored, show
 from budget.problems import ModelError, place
 
 __all__ = ["ErrorModel", "GateParams", "QubitParams", "key_path", "load_model"]
@@ -47,6 +49,8 @@ class ErrorModel:
         source: file name, or ``"<dict>"``.
         calibration: the optional ``[calibration]`` table as parsed (validated by
             :func:`budget.analysis.calibration.read_calibration`), or None.
+        context: spectator ZZ, drive crosstalk, pulse bleed and calibration in context
+            (:mod:`budget.errors.context`; empty when the file has none of those sections).
     """
 
     qubit_defaults: QubitParams = QubitParams()
@@ -56,6 +60,7 @@ class ErrorModel:
     mentions: Mapping[str, str] = field(default_factory=dict)
     source: str = "<dict>"
     calibration: Mapping[str, Any] | None = None
+    context: ContextModel = ContextModel()
 
     @classmethod
     def from_dict(cls, data: Mapping[str, Any], source: str = "<dict>") -> "ErrorModel":
@@ -77,18 +82,6 @@ class ErrorModel:
         name = ALIASES.get(name, name)
         hit = self.gate_overrides.get((name, tuple(qubit_names)))
         return hit if hit is not None else self.gates.get(name, _IDEAL)
-
-
-def _mirrored(extra: Mapping[str, Any]) -> dict[str, Any]:
-    """A qubit-specific gate table for the exchanged qubit order of a symmetric gate: per-qubit
-    values (``z_phase`` lists, ``pauli`` labels) reversed; everything else is symmetric. Only the
-    table's own keys are reversed: values inherited from the gate's table already follow gate order."""
-    out = dict(extra)
-    if isinstance(out.get("z_phase"), (list, tuple)):
-        out["z_phase"] = list(out["z_phase"])[::-1]
-    if isinstance(out.get("pauli"), Mapping):
-        out["pauli"] = {str(label)[::-1]: h for label, h in out["pauli"].items()}
-    return out
 
 
 def load_model(path: str | Path) -> ErrorModel:
@@ -179,13 +172,15 @@ class _Parser:
 
     def model(self, data: Mapping[str, Any]) -> ErrorModel:
         data = self.table(("<top>",), data)
+        top = ("qubits", "gates", "calibration") + SECTIONS
         for k, v in data.items():
-            if k not in ("qubits", "gates", "calibration"):
-                raise self.unknown((k,), v, ("qubits", "gates", "calibration"))
+            if k not in top:
+                raise self.unknown((k,), v, top)
         defaults, overrides = self.qubits(data.get("qubits", {}))
         gates, gate_overrides = self.gates(data.get("gates", {}))
         calibration = self.table(("calibration",), data["calibration"]) if "calibration" in data else None
-        return ErrorModel(defaults, overrides, gates, gate_overrides, dict(self.mentions), self.source, calibration)
+        context = parse_context(self, data, gates, gate_overrides)
+        return ErrorModel(defaults, overrides, gates, gate_overrides, dict(self.mentions), self.source, calibration, context)
 
     def qubits(self, raw: Any) -> tuple[QubitParams, dict[str, QubitParams]]:
         base = ("qubits",)
@@ -232,7 +227,7 @@ class _Parser:
                 for q in names:
                     self.mentions.setdefault(q, key_path(path))
                 if exchange_symmetric(name):
-                    mirrors[(name, names[::-1])] = (own, _mirrored(extra), base, path, name)
+                    mirrors[(name, names[::-1])] = (own, mirrored(extra), base, path, name)
         for key, (own, extra, base, path, name) in mirrors.items():
             if key not in overrides:  # a table written for the other order wins
                 overrides[key] = self.build(GateParams, {**own, **extra}, base, path, extra, name)

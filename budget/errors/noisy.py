@@ -113,11 +113,18 @@ class NoisyOperation:
 
 @dataclass(frozen=True)
 class NoisyLayer:
-    """A layer of noisy operations plus idle relaxation to fill the layer's duration."""
+    """A layer of noisy operations plus idle relaxation to fill the layer's duration.
+
+    ``context`` marks a zero-duration layer of context errors (spectator ZZ, drive crosstalk, pulse
+    bleed; :mod:`budget.errors.context_layers`): its operations are error-only pseudo-operations
+    whose ideal gate is the identity. Engines treat it like any layer; depth counts, heat-map
+    columns and random compiling skip it.
+    """
 
     operations: tuple[NoisyOperation, ...]
     idle: tuple[Relaxation, ...]
     duration_ns: float
+    context: bool = False
 
     def __hash__(self) -> int:
         return id(self)

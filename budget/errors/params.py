@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 import numbers
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Mapping
 
 from budget.circuit.gates import GATES, spec
 from budget.errors.noisy import Relaxation
@@ -86,6 +86,18 @@ class QubitParams:
         if self.t2_us is not None:
             rate = 1.0 / self.t2_us - (0.5 / self.t1_us if self.t1_us is not None else 0.0)
         return Relaxation(qubit, float(duration_ns), gamma, math.exp(-t_us * max(rate, 0.0)))
+
+
+def mirrored(extra: Mapping[str, Any]) -> dict[str, Any]:
+    """A qubit-specific gate table for the exchanged qubit order of a symmetric gate: per-qubit
+    values (``z_phase`` lists, ``pauli`` labels) reversed; everything else is symmetric. Only the
+    table's own keys are reversed: values inherited from the gate's table already follow gate order."""
+    out = dict(extra)
+    if isinstance(out.get("z_phase"), (list, tuple)):
+        out["z_phase"] = list(out["z_phase"])[::-1]
+    if isinstance(out.get("pauli"), Mapping):
+        out["pauli"] = {str(label)[::-1]: h for label, h in out["pauli"].items()}
+    return out
 
 
 _XY = ", ".join(g for g, s in GATES.items() if s.xy_plane)

@@ -1,0 +1,158 @@
+"""Context errors as error-only pseudo-operations in zero-duration layers.
+
+Every engine already consumes layers of noisy operations, so a context error becomes one more
+operation whose ideal gate is the identity on its support and whose coherent part is the error
+(docs/error-model.md, "Context errors"). They sit in *context layers* (``NoisyLayer.context``) of
+zero duration, so they add no time and no idle relaxation. Around a circuit layer L (duration T,
+its longest operation) the order is::
+
+    ... L-1 | ctx(L-1) | bleed(L-1 -> L) | L: gates, their own errors | crosstalk(L) | zz(L) | bleed(L -> L+1) | L+1 ...
+
+- **Spectator ZZ** on an unordered pair with rate ζ (kHz), in every layer where the pair is not
+  the target of a two-qubit gate: U = diag(1, 1, 1, e^{iφ}), φ = 2π·ζ·T (the ``cphase``
+  convention), i.e. H = (φ/4)(ZI + IZ - ZZ). Pairs sharing a qubit cannot share a layer, so the
+  pairs are edge-coloured (greedy colouring of the line graph, networkx) into sub-layers; all ZZ
+  terms are diagonal and commute, so their order does not matter.
+- **Drive crosstalk** source -> target: a driven single-qubit gate G on the source rotates the
+  target by f·θ_G about G's own axis (or about x, y, z): the over-rotation unitary of G with
+  δ = f·θ_G (:func:`budget.circuit.gates.overrotation_unitary`), after the target's own gate.
+  Several sources onto one target: one sub-layer each, in the order of the source qubits.
+- **Pulse bleed** A -> B on qubit q: A in layer L-1 and B in layer L on q; a rotation by f·θ_A
+  about A's axis between the two layers (after L-1's context errors, before B).
+
+Knobs (for sensitivity and tolerances): ZZ pseudo-operations carry ``zz_rad_per_us`` = 2π·ζ·1 µs
+with generator (T / 1 µs)·{ZI: 1/4, IZ: 1/4, ZZ: -1/4}, so one value serves every layer duration
+and a tolerance converts to kHz as ζ = value / (2π·1 µs) (:func:`knob_in_lab_units`); crosstalk
+and bleed carry ``rotation``, the spilled angle f·θ in radians.
+"""
+
+from __future__ import annotations
+
+import math
+
+import networkx as nx
+import numpy as np
+
+from budget.circuit.gates import GATES, spec
+from budget.circuit.ir import Operation
+from budget.errors.context import Crosstalk
+from budget.errors.knobs import coherent_error
+from budget.errors.noisy import NoisyLayer, NoisyOperation
+from budget.errors.params import GateParams
+
+ZZ_KNOB = "zz_rad_per_us"
+"""Knob of a spectator-ZZ family: the conditional phase per microsecond, 2π·ζ·1 µs, in radians."""
+SPILL_KNOB = "rotation"
+"""Knob of a crosstalk or bleed family: the spilled rotation angle in radians."""
+_CPHASE_GENERATOR = {"ZI": 0.25, "IZ": 0.25, "ZZ": -0.25}  # diag(1,1,1,e^{iφ}) = e^{iφ/4} exp(-iφ(ZI+IZ-ZZ)/4)
+_EYE = {k: np.eye(2**k, dtype=complex) for k in (1, 2)}
+for _m in _EYE.values():
+    _m.setflags(write=False)
+
+
+def knob_in_lab_units(knob: str, value_rad: float) -> tuple[float, str]:
+    """A knob value in the unit a lab sets it in: ``zz_rad_per_us`` as the rate ζ in kHz
+    (ζ = value / (2π·1 µs)), every other knob in radians.
+
+    >>> round(knob_in_lab_units(ZZ_KNOB, 2 * math.pi * 0.15)[0], 9), knob_in_lab_units("cphase", 0.1)
+    (150.0, (0.1, 'rad'))
+    """
+    if knob == ZZ_KNOB:
+        return value_rad * 1000.0 / (2 * math.pi), "kHz"
+    return value_rad, "rad"
+
+
+def zz_phase_rad(zz_khz: float, duration_ns: float) -> float:
+    """φ = 2π·ζ·T, ζ in kHz and T in ns (ζ = 100 kHz for 1 µs: 0.6283 rad)."""
+    return 2 * math.pi * zz_khz * duration_ns * 1e-6
+
+
+def rotation_angle(gate: str, params: tuple[float, ...]) -> float:
+    """θ of a driven single-qubit gate: its first angle (u2: the hidden π/2), or for a fixed gate
+    the θ with gate = exp(-i θ K) up to global phase, K its rotation generator (x: π, sx: π/2, h: π).
+
+    >>> round(rotation_angle("sx", ()), 12), round(rotation_angle("rx", (0.3,)), 12)
+    (1.570796326795, 0.3)
+    """
+    s = spec(gate)
+    if gate == "u2":
+        return math.pi / 2
+    if s.num_params:
+        return float(params[0])
+    u, k2 = np.asarray(s.matrix(), complex), 2 * np.asarray(s.rotation_generator, complex)
+    # u = e^{iα}(cos(θ/2) I - i sin(θ/2) 2K): tr u = 2e^{iα}cos(θ/2), i·tr(u 2K) = 2e^{iα}sin(θ/2)
+    a, b = np.trace(u), 1j * np.trace(u @ k2)
+    phase = (a if abs(a) > abs(b) else b) / max(abs(a), abs(b))
+    return float(2 * math.atan2((b / phase).real, (a / phase).real)) % (2 * math.pi)
+
+
+def pseudo_operation(qubits: tuple[int, ...], kind: str, family: str, unitary: np.ndarray,
+                     hamiltonian: dict[str, float], knob: str, value: float, generator: dict[str, float]) -> NoisyOperation:
+    """An error-only operation: ideal gate the identity, coherent part ``unitary``, no duration."""
+    return NoisyOperation(
+        op=Operation("unitary", qubits, label=kind, matrix=_EYE[len(qubits)]),
+        family=family,
+        coherent=unitary,
+        hamiltonian=hamiltonian,
+        knob_generators={knob: generator},
+        knob_values={knob: value},
+    )
+
+
+def zz_operation(pair: tuple[int, int], names: tuple[str, ...], zz_khz: float, duration_ns: float) -> NoisyOperation:
+    """The spectator-ZZ pseudo-operation of one pair for one layer duration."""
+    phi = zz_phase_rad(zz_khz, duration_ns)
+    scale = duration_ns / 1000.0
+    return pseudo_operation(
+        pair, "zz", f"zz {names[pair[0]]},{names[pair[1]]}",
+        np.diag([1, 1, 1, np.exp(1j * phi)]).astype(complex),
+        {p: c * phi for p, c in _CPHASE_GENERATOR.items()},
+        ZZ_KNOB, zz_phase_rad(zz_khz, 1000.0), {p: c * scale for p, c in _CPHASE_GENERATOR.items()},
+    )
+
+
+def spill_operation(qubit: int, family: str, kind: str, gate: str, params: tuple[float, ...], fraction: float,
+                    axis: str | None = None) -> NoisyOperation:
+    """A rotation by ``fraction`` of the gate's rotation θ, about its own axis (the over-rotation of
+    the gate by δ = f·θ) or about ``axis`` (an rx/ry/rz over-rotation of f·θ), on ``qubit``."""
+    angle = fraction * rotation_angle(gate, params)
+    gate_, params_ = (gate, params) if axis is None else ("r" + axis, (0.0,))
+    ce = coherent_error(gate_, params_, GateParams(overrotation=angle), 1)
+    return pseudo_operation((qubit,), kind, family, ce.unitary, dict(ce.hamiltonian), SPILL_KNOB, angle,
+                            dict(ce.generators["overrotation"]))
+
+
+def edge_layers(pairs: list[tuple[int, int]]) -> list[list[tuple[int, int]]]:
+    """Pairs split into groups of disjoint pairs: a greedy colouring of the line graph (networkx,
+    largest degree first); deterministic for a given order of ``pairs``."""
+    graph = nx.Graph()
+    graph.add_edges_from(pairs)
+    colours = nx.greedy_color(nx.line_graph(graph), strategy="largest_first") if pairs else {}
+    out: dict[int, list[tuple[int, int]]] = {}
+    for e in pairs:
+        key = e if e in colours else e[::-1]
+        out.setdefault(colours[key], []).append(e)
+    return [out[c] for c in sorted(out)]
+
+
+def context_layer(ops: list[NoisyOperation]) -> NoisyLayer:
+    return NoisyLayer(tuple(ops), (), 0.0, context=True)
+
+
+def crosstalk_layers(ops, rules: dict[str, list[Crosstalk]], names: tuple[str, ...], index: dict[str, int]) -> list[NoisyLayer]:
+    """Drive-crosstalk sub-layers of one layer: ``ops`` its operations, ``rules`` source name ->
+    rules. Each target gets one pseudo-operation per driving neighbour, in source order."""
+    per_target: dict[int, list[NoisyOperation]] = {}
+    for op in sorted(ops, key=lambda o: o.qubits):
+        s = GATES.get(op.gate)
+        if s is None or s.num_qubits != 1 or s.virtual or (not s.num_params and s.rotation_generator is None):
+            continue
+        for rule in rules.get(names[op.qubits[0]], ()):
+            target = index.get(rule.target)
+            if target is None or not rule.applies_to(op.gate):
+                continue
+            family = f"crosstalk {op.gate} {rule.source}->{rule.target}"
+            per_target.setdefault(target, []).append(
+                spill_operation(target, family, "crosstalk", op.gate, op.params, rule.fraction, rule.axis))
+    depth = max((len(v) for v in per_target.values()), default=0)
+    return [context_layer([v[k] for _, v in sorted(per_target.items()) if k < len(v)]) for k in range(depth)]
