@@ -10,7 +10,8 @@ and relaxation; :func:`budget.errors.fidelity.operation_process_fidelity`), spli
 k_op qubits, e_idle the process infidelity of the qubit's idle relaxation in that layer, and m the
 layer's execution count. Summed over the whole map this is the first-order (small-error) sum of the
 naive estimate, Σ m_i e_i ≈ -log Π F_pro. It says where the local error sits; it does not show
-coherent build-up or echo between operations (the family shares and depth curves do).
+coherent build-up or echo between operations (the family shares and depth curves do). Context
+layers (spectator ZZ, crosstalk, bleed; zero duration) add to the column of the layer before them.
 """
 
 from __future__ import annotations
@@ -59,13 +60,17 @@ class ErrorMap:
 
 def error_map(circuit: NoisyCircuit, *, max_columns: int = MAX_COLUMNS) -> ErrorMap:
     """The layer-by-qubit map of first-order local infidelity (see module docstring)."""
-    layers = circuit.multiplicities()
+    everything = circuit.multiplicities()
+    layers = [x for x in everything if not x[0].context]
     n = circuit.num_qubits
     width = min(len(layers), max_columns)
     values = np.zeros((n, max(width, 1)))
     labels: list[str] = []
     cache: dict[int, float] = {}
-    for i, (layer, mult) in enumerate(layers):
+    i = -1
+    for layer, mult in everything:
+        if not layer.context or i < 0:
+            i += 1
         col = min(i, width - 1)
         for nop in layer.operations:
             if id(nop) not in cache:
@@ -74,7 +79,7 @@ def error_map(circuit: NoisyCircuit, *, max_columns: int = MAX_COLUMNS) -> Error
                 values[q, col] += mult * cache[id(nop)] / len(nop.qubits)
         for r in layer.idle:
             values[r.qubit, col] += mult * (1.0 - relaxation_process_fidelity(r))
-        if i < width:
+        if i < width and len(labels) == i:
             labels.append(f"L{i + 1}" + (f" ×{mult:,}" if mult != 1 else ""))
     note = ""
     if len(layers) > width:
