@@ -17,10 +17,12 @@ its own process so that its peak RSS is its own; times are wall clock and CPU (u
   the best CPU times);
 - ``orbits``: the orbit fold against the period fold on the sx cycle, N = 10^6, side by side;
 - ``versus``: generators against clifford on small grids (side by side, same circuit), if the
-  generators engine is present.
+  generators engine is present;
+- ``zz``: spectator ZZ on every coupler against none, the folded cycle with N = 100, side by side
+  (attach and process-metric run, best CPU times and their ratio; goal: within 2x).
 
 Run: ``.venv/bin/python benchmarks/bench_clifford.py`` (all, several minutes) or
-``--scenario unrolled|folded|ratio|orbits|versus``.
+``--scenario unrolled|folded|ratio|orbits|versus|zz``.
 """
 
 from __future__ import annotations
@@ -80,8 +82,8 @@ def grid_circuit(rows: int, cols: int, cycles: int, *, folded: bool, pattern: st
     return StructuredCircuit(names, body, source=f"<grid {rows}x{cols}, {cycles} cycles>")
 
 
-def build(rows: int, cols: int, cycles: int, *, folded: bool, pattern: str = "sx"):
-    model = ErrorModel.from_dict(MODEL)
+def build(rows: int, cols: int, cycles: int, *, folded: bool, pattern: str = "sx", zz_khz: float = 0.0):
+    model = ErrorModel.from_dict(MODEL | ({"couplings": {"zz_khz": zz_khz}} if zz_khz else {}))
     return attach(grid_circuit(rows, cols, cycles, folded=folded, pattern=pattern), model)
 
 
@@ -203,12 +205,46 @@ def versus(rows: int, cols: int, cycles: int, metric: str) -> dict:
     return out
 
 
+def with_zz(pattern: str = "sx", count: int = 100, rounds: int = 2, rows: int = 32, cols: int = 32) -> dict:
+    """Spectator ZZ on every coupler (50 kHz, the default of [couplings]) against no ZZ, the same
+    folded cycle, alternated in one process; best CPU time of attach and of the process-metric run
+    (per-qubit map off in both, so that its budget cut-off cannot favour either)."""
+    from budget.engines.clifford import CliffordEngine
+
+    best = {k: [float("inf"), float("inf")] for k in ("plain", "zz")}
+    values, ops = {}, {}
+    for _ in range(rounds):
+        for key, zz in (("plain", 0.0), ("zz", 50.0)):
+            t = _clock()
+            noisy = build(rows, cols, count, folded=True, pattern=pattern, zz_khz=zz)
+            best[key][0] = min(best[key][0], _since(t)[1])
+            t = _clock()
+            r = CliffordEngine(qubit_map=False).run(noisy, "process")
+            best[key][1] = min(best[key][1], _since(t)[1])
+            values[key], ops[key] = r.first_order, noisy_ops(noisy)
+    return {
+        "scenario": f"spectator ZZ on every coupler, {pattern} cycle {rows}x{cols}, N = {count}, best of {rounds}",
+        "operations_plain": ops["plain"],
+        "operations_zz": ops["zz"],
+        "attach_cpu_plain_s": best["plain"][0],
+        "attach_cpu_zz_s": best["zz"][0],
+        "run_cpu_plain_s": best["plain"][1],
+        "run_cpu_zz_s": best["zz"][1],
+        "ratio_run": best["zz"][1] / best["plain"][1],
+        "ratio_total": sum(best["zz"]) / sum(best["plain"]),
+        "first_order_plain": values["plain"],
+        "first_order_zz": values["zz"],
+        "peak_rss_mb": peak_rss_mb(),
+    }
+
+
 SCENARIOS = {
     "unrolled": [("unrolled", ())],
     "folded": [("folded", (p, n)) for p in ("sx", "x") for n in (100, 10**6, 10**9)],
     "ratio": [("fold_ratio", ("sx",)), ("fold_ratio", ("x",))],
     "orbits": [("orbits_vs_period", ("sx",))],
     "versus": [("versus", (2, 5, 20, "process")), ("versus", (3, 4, 20, "state"))],
+    "zz": [("with_zz", ("sx",)), ("with_zz", ("x",))],
 }
 
 

@@ -375,3 +375,15 @@ def test_unknown_pair_names_are_caught_against_the_circuit():
     model = ErrorModel.from_dict({"couplings": {"q[0],Q[1]": {"zz_khz": 5.0}}}, "lab.toml")
     with pytest.raises(ModelError, match=r'couplings\."q\[0\],Q\[1\]" in lab.toml: qubit .Q\[1\]. .*did you mean'):
         attach(_circuit(2, Layer((Operation("x", (0,)),))), model)
+
+
+def test_measuring_zz_is_priced_with_the_idle_time():
+    # A ZZ Ramsey repeats idle spans of T; per unit of zz_rad_per_us the conditional phase of one
+    # span is (T/1 µs)·[eigenvalue spread of (ZI + IZ - ZZ)/4] = (T/1 µs)·(1/4 - (-3/4)) (hand derivation).
+    from budget.analysis.phase_estimation import find_probes
+
+    model = ErrorModel.from_dict({"gates": {"id": {"duration_ns": 200.0}}, "couplings": {"q[0],q[1]": {"zz_khz": 20.0}}})
+    probes = find_probes(attach(_circuit(2, Layer((Operation("id", (0,)),))), model))
+    (probe,) = probes[("zz q[0],q[1]", ZZ_KNOB)]
+    assert probe.duration_ns == 200.0
+    assert probe.phase_per_rad == pytest.approx(0.2, rel=1e-12)

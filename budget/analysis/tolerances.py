@@ -29,6 +29,7 @@ from typing import Literal
 import numpy as np
 
 from budget.analysis.sensitivity import check_form, knob_key
+from budget.errors.context_layers import knob_in_lab_units
 from budget.analysis.worstcase import EXACT_UP_TO, box_maximum
 from budget.engines.base import QuadraticForm
 from budget.problems import InputError
@@ -244,6 +245,8 @@ def tolerances_json(report: ToleranceReport) -> dict:
                 "key": knob_key((r.family, r.knob)),
                 "current_rad": r.current_rad,
                 "tolerance_rad": _finite(r.tolerance_rad),
+                "lab_unit": knob_in_lab_units(r.knob, 0.0)[1],  # kHz for spectator ZZ (zz_rad_per_us)
+                "tolerance_lab": _finite(knob_in_lab_units(r.knob, r.tolerance_rad)[0]),
                 "tighten_by": _finite(r.tighten_by),
                 "status": r.status,
             }

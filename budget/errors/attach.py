@@ -158,7 +158,7 @@ class _Attacher:
         key = id(layer)
         if key not in self._items:
             real = self.layer(layer)
-            after = crosstalk_layers(layer.operations, self.crosstalk, self.names, self.index) if self.crosstalk else []
+            after = crosstalk_layers(real.operations, self.crosstalk, self.names, self.index) if self.crosstalk else []
             self._items[key] = (real, *after, *self.zz_layers(layer, real.duration_ns))
         return self._items[key]
 
@@ -216,7 +216,8 @@ class _Attacher:
         if not key[1]:
             return ()
         if key not in self._items:
-            ops = [spill_operation(q, f"bleed {a}->{b} {self.names[q]}", "bleed", a, params, f)
+            ops = [spill_operation(q, f"bleed {a}->{b} {self.names[q]}", "bleed", a, params, f,
+                                   duration_ns=self.model.gate(a, (self.names[q],)).duration_ns)
                    for q, a, params, b, f in key[1]]
             self._items[key] = (context_layer(ops),)
         return self._items[key]

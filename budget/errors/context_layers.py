@@ -87,8 +87,11 @@ def rotation_angle(gate: str, params: tuple[float, ...]) -> float:
 
 
 def pseudo_operation(qubits: tuple[int, ...], kind: str, family: str, unitary: np.ndarray,
-                     hamiltonian: dict[str, float], knob: str, value: float, generator: dict[str, float]) -> NoisyOperation:
-    """An error-only operation: ideal gate the identity, coherent part ``unitary``, no duration."""
+                     hamiltonian: dict[str, float], knob: str, value: float, generator: dict[str, float],
+                     duration_ns: float) -> NoisyOperation:
+    """An error-only operation: ideal gate the identity, coherent part ``unitary``. Its
+    ``duration_ns`` is the time over which the error builds up (the layer for ZZ, the spilling
+    pulse for crosstalk and bleed), so that measuring it is priced right; its context layer lasts 0 ns."""
     return NoisyOperation(
         op=Operation("unitary", qubits, label=kind, matrix=_EYE[len(qubits)]),
         family=family,
@@ -96,6 +99,7 @@ def pseudo_operation(qubits: tuple[int, ...], kind: str, family: str, unitary: n
         hamiltonian=hamiltonian,
         knob_generators={knob: generator},
         knob_values={knob: value},
+        duration_ns=duration_ns,
     )
 
 
@@ -107,19 +111,19 @@ def zz_operation(pair: tuple[int, int], names: tuple[str, ...], zz_khz: float, d
         pair, "zz", f"zz {names[pair[0]]},{names[pair[1]]}",
         np.diag([1, 1, 1, np.exp(1j * phi)]).astype(complex),
         {p: c * phi for p, c in _CPHASE_GENERATOR.items()},
-        ZZ_KNOB, zz_phase_rad(zz_khz, 1000.0), {p: c * scale for p, c in _CPHASE_GENERATOR.items()},
+        ZZ_KNOB, zz_phase_rad(zz_khz, 1000.0), {p: c * scale for p, c in _CPHASE_GENERATOR.items()}, duration_ns,
     )
 
 
 def spill_operation(qubit: int, family: str, kind: str, gate: str, params: tuple[float, ...], fraction: float,
-                    axis: str | None = None) -> NoisyOperation:
+                    axis: str | None = None, duration_ns: float = 0.0) -> NoisyOperation:
     """A rotation by ``fraction`` of the gate's rotation θ, about its own axis (the over-rotation of
     the gate by δ = f·θ) or about ``axis`` (an rx/ry/rz over-rotation of f·θ), on ``qubit``."""
     angle = fraction * rotation_angle(gate, params)
     gate_, params_ = (gate, params) if axis is None else ("r" + axis, (0.0,))
     ce = coherent_error(gate_, params_, GateParams(overrotation=angle), 1)
     return pseudo_operation((qubit,), kind, family, ce.unitary, dict(ce.hamiltonian), SPILL_KNOB, angle,
-                            dict(ce.generators["overrotation"]))
+                            dict(ce.generators["overrotation"]), duration_ns)
 
 
 def edge_layers(pairs: list[tuple[int, int]]) -> list[list[tuple[int, int]]]:
@@ -139,11 +143,12 @@ def context_layer(ops: list[NoisyOperation]) -> NoisyLayer:
     return NoisyLayer(tuple(ops), (), 0.0, context=True)
 
 
-def crosstalk_layers(ops, rules: dict[str, list[Crosstalk]], names: tuple[str, ...], index: dict[str, int]) -> list[NoisyLayer]:
-    """Drive-crosstalk sub-layers of one layer: ``ops`` its operations, ``rules`` source name ->
-    rules. Each target gets one pseudo-operation per driving neighbour, in source order."""
+def crosstalk_layers(noisy_ops, rules: dict[str, list[Crosstalk]], names: tuple[str, ...], index: dict[str, int]) -> list[NoisyLayer]:
+    """Drive-crosstalk sub-layers of one layer: ``noisy_ops`` its noisy operations, ``rules``
+    source name -> rules. Each target gets one pseudo-operation per driving neighbour, in source order."""
     per_target: dict[int, list[NoisyOperation]] = {}
-    for op in sorted(ops, key=lambda o: o.qubits):
+    for nop in sorted(noisy_ops, key=lambda o: o.qubits):
+        op = nop.op
         s = GATES.get(op.gate)
         if s is None or s.num_qubits != 1 or s.virtual or (not s.num_params and s.rotation_generator is None):
             continue
@@ -153,6 +158,6 @@ def crosstalk_layers(ops, rules: dict[str, list[Crosstalk]], names: tuple[str, .
                 continue
             family = f"crosstalk {op.gate} {rule.source}->{rule.target}"
             per_target.setdefault(target, []).append(
-                spill_operation(target, family, "crosstalk", op.gate, op.params, rule.fraction, rule.axis))
+                spill_operation(target, family, "crosstalk", op.gate, op.params, rule.fraction, rule.axis, nop.duration_ns))
     depth = max((len(v) for v in per_target.values()), default=0)
     return [context_layer([v[k] for _, v in sorted(per_target.items()) if k < len(v)]) for k in range(depth)]

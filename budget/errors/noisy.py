@@ -81,7 +81,8 @@ class NoisyOperation:
             from a file; the twirled variant of a circuit moves coherent errors here).
         depolarizing: λ of ρ -> (1-λ) ρ + λ I/d on the operation's qubits, λ = r d/(d-1).
         relaxation: relaxation of each of the operation's qubits during the operation.
-        duration_ns: the operation's duration.
+        duration_ns: the operation's duration (for a context pseudo-operation: the time its error
+            builds up over; its context layer itself lasts 0 ns).
     """
 
     op: Operation

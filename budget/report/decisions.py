@@ -18,13 +18,18 @@ from rich.text import Text
 from budget.analysis.calibration import CalibrationPlan
 from budget.analysis.sensitivity import Sensitivity
 from budget.analysis.tolerances import NO_EFFECT, ToleranceReport, floor_message
+from budget.errors.context_layers import knob_in_lab_units
 from budget.report.terminal import fmt
 
 _STATUS = {"tighten": "bold red", "ok": "green", NO_EFFECT: "dim", "floor too high": "bold red"}
 
 
-def _rad(x: float) -> str:
-    return "unbounded" if math.isinf(x) else fmt(x)
+def _rad(x: float, knob: str = "") -> str:
+    """A knob angle; a spectator-ZZ knob (rad per µs) also in kHz, the unit a lab sets it in."""
+    if math.isinf(x):
+        return "unbounded"
+    value, unit = knob_in_lab_units(knob, x)
+    return fmt(x) if unit == "rad" else f"{fmt(x)} = {fmt(value)} {unit}"
 
 
 def _times(x: float) -> str:
@@ -99,7 +104,7 @@ def tolerance_view(report: ToleranceReport) -> Group:
                         ("tighten by", True), ("status", False)):
         t.add_column(name, justify="right" if right else "left")
     for r in report.rows:
-        t.add_row(r.family, r.knob, fmt(r.current_rad), _rad(r.tolerance_rad), _times(r.tighten_by),
+        t.add_row(r.family, r.knob, _rad(r.current_rad, r.knob), _rad(r.tolerance_rad, r.knob), _times(r.tighten_by),
                   Text(r.status, style=_STATUS.get(r.status, "")))
     parts.append(t)
     parts += [Text(f"! {w}", style="yellow") for w in report.warnings]
