@@ -387,3 +387,90 @@ def test_measuring_zz_is_priced_with_the_idle_time():
     (probe,) = probes[("zz q[0],q[1]", ZZ_KNOB)]
     assert probe.duration_ns == 200.0
     assert probe.phase_per_rad == pytest.approx(0.2, rel=1e-12)
+
+
+# ---- crosstalk and bleed against cirq: seeded random circuits -------------------------------------
+
+_X = np.array([[0, 1], [1, 0]], complex)
+_Z = np.diag([1.0 + 0j, -1.0])
+_AXIS = {"x": _X, "y": np.array([[0, -1j], [1j, 0]]), "z": _Z, "h": (_X + _Z) / np.sqrt(2)}
+# a pulse's rotation angle and axis, from the textbook forms x = i·Rx(π), sx = e^{iπ/4}·Rx(π/2),
+# h = i·exp(-i (π/2)(X + Z)/√2), rx(θ) = Rx(θ) (common knowledge, no source)
+_PULSE = {"x": (lambda p: np.pi, "x"), "sx": (lambda p: np.pi / 2, "x"), "h": (lambda p: np.pi, "h"),
+          "rx": (lambda p: p[0], "x")}
+
+
+def _rotation(angle, axis):
+    """exp(-i angle n·σ/2) for the unit axis n (σ_n = the axis matrix above), as a cirq gate."""
+    m = _AXIS[axis]
+    return cirq.MatrixGate(np.cos(angle / 2) * np.eye(2) - 1j * np.sin(angle / 2) * m)
+
+
+def _random_spill_case(seed):
+    rng = np.random.default_rng(1000 + seed)
+    n = 3
+
+    def layer():
+        free, ops = list(rng.permutation(n)), []
+        while free:
+            if len(free) >= 2 and rng.random() < 0.25:
+                ops.append(Operation("cz", (int(free.pop()), int(free.pop()))))
+            elif rng.random() < 0.8:
+                g = str(rng.choice(["sx", "x", "h", "rx"]))
+                ops.append(Operation(g, (int(free.pop()),), (float(rng.uniform(-3, 3)),) if g == "rx" else ()))
+            else:
+                free.pop()
+        return Layer(tuple(ops))
+
+    items = [layer(), Repeat((layer(), layer()), int(rng.integers(2, 4))), layer()]
+    crosstalk = {}
+    for s, t in [(a, b) for a in range(n) for b in range(n) if a != b]:
+        if rng.random() < 0.5:
+            crosstalk[(s, t)] = (float(rng.uniform(-0.2, 0.2)), [None, "x", "y", "z"][int(rng.integers(4))])
+    bleed = {(a, b): float(rng.uniform(-0.2, 0.2)) for a in ("sx", "x", "h", "rx") for b in ("sx", "x", "h", "rx")
+             if rng.random() < 0.5}
+    gates = {"sx": {"duration_ns": 25.0, "overrotation": 0.01}, "x": {"duration_ns": 30.0, "avg_infidelity": 1e-3},
+             "h": {"duration_ns": 35.0}, "rx": {"duration_ns": 40.0}, "cz": {"duration_ns": 60.0, "cphase": 0.02}}
+    model = {"qubits": {"t1_us": 40.0, "t2_us": 30.0}, "gates": gates}
+    context = {
+        "crosstalk": {f"q[{s}]->q[{t}]": {"fraction": f} | ({"axis": a} if a else {}) for (s, t), (f, a) in crosstalk.items()},
+        "bleed": {f"{a}->{b}": {"fraction": f} for (a, b), f in bleed.items()},
+        "couplings": {"q[0],q[1]": {"zz_khz": 300.0}},
+    }
+    return _circuit(n, *items), model, context, crosstalk, bleed
+
+
+@pytest.mark.parametrize("seed", range(10))
+def test_exact_engine_matches_cirq_with_crosstalk_and_bleed(seed):
+    circuit, model, context, crosstalk, bleed = _random_spill_case(seed)
+    base = attach(circuit, ErrorModel.from_dict(model))
+    noisy = attach(circuit, ErrorModel.from_dict(model | context))
+    n = circuit.num_qubits
+    qs, anc = cirq.LineQubit.range(n), cirq.LineQubit.range(n, 2 * n)
+    prep = [cirq.H(a) for a in anc] + [cirq.CNOT(a, q) for a, q in zip(anc, qs)]
+    ideal, ops = list(prep), list(prep)
+    prev = {}
+    for layer, nl in zip(circuit.iter_layers(), base.iter_layers()):
+        now = {op.qubits[0]: op for op in layer.operations if len(op.qubits) == 1}
+        for q, b in sorted(now.items()):  # bleed of the pulse before, then the layer
+            a = prev.get(q)
+            if a is not None and (a.gate, b.gate) in bleed:
+                theta, axis = _PULSE[a.gate]
+                ops.append(_rotation(bleed[(a.gate, b.gate)] * theta(a.params), axis).on(qs[q]))
+        ops += _noisy_ops(NoisyCircuit(base.qubits, (nl,)), qs)
+        ideal += [cirq.MatrixGate(op.unitary()).on(*[qs[q] for q in op.qubits]) for op in layer.operations]
+        for s, op in sorted(now.items()):  # crosstalk in the order of the source qubits
+            for t in range(n):
+                if (s, t) in crosstalk:
+                    f, axis = crosstalk[(s, t)]
+                    theta, own = _PULSE[op.gate]
+                    ops.append(_rotation(f * theta(op.params), axis or own).on(qs[t]))
+        t_ns = max((model["gates"][op.gate]["duration_ns"] for op in layer.operations), default=0.0)
+        if t_ns and not any(set(op.qubits) == {0, 1} for op in layer.operations):
+            ops.append(cirq.CZPowGate(exponent=2 * 300e3 * t_ns * 1e-9).on(qs[0], qs[1]))
+        prev = now
+    order = qs + anc
+    psi = cirq.Simulator(dtype=np.complex128).simulate(cirq.Circuit(ideal), qubit_order=order).final_state_vector
+    rho = cirq.DensityMatrixSimulator(dtype=np.complex128).simulate(cirq.Circuit(ops), qubit_order=order).final_density_matrix
+    want = float(1 - np.real(psi.conj() @ rho @ psi))
+    assert _run("exact", noisy).infidelity == pytest.approx(want, abs=1e-8)
