@@ -224,6 +224,17 @@ def test_context_table_replaces_knobs_most_specific_wins():
     assert got[(1, (0, 1))] == ("cz", 0.01)  # alone: the gate's own table
 
 
+def test_context_table_for_the_other_qubit_order_of_a_symmetric_gate():
+    # cz is symmetric: a table written for q[1],q[0] applies to cz q[0],q[1] with its per-qubit
+    # z_phase reversed, so each value stays on its physical qubit (as for [gates.GATE."Q1,Q2"])
+    model = ErrorModel.from_dict({"gates": {"cz": {"duration_ns": 60.0}, "x": {"duration_ns": 30.0}},
+                                  "context": [{"gate": "cz", "qubits": "q[1],q[0]", "with": ["x q[2]"],
+                                               "z_phase": [0.01, -0.02]}]})
+    noisy = attach(_circuit(3, Layer((Operation("cz", (0, 1)), Operation("x", (2,))))), model)
+    cz = noisy.body[0].operations[0]
+    assert cz.knob_values == {"z_phase[0]": -0.02, "z_phase[1]": 0.01}
+
+
 def test_all_driven_context():
     model = ErrorModel.from_dict({"gates": {"sx": {"duration_ns": 25.0, "overrotation": 0.001}},
                                   "context": [{"gate": "sx", "all_driven": True, "overrotation": 0.004, "name": "full"}]})
@@ -310,8 +321,9 @@ def test_exact_engine_matches_cirq_with_zz(seed):
     assert _run("exact", noisy).infidelity == pytest.approx(want, abs=1e-8)
 
 
+@pytest.mark.parametrize("metric", ["process", "state"])
 @pytest.mark.parametrize("seed", range(5))
-def test_first_order_engines_agree_with_exact_on_small_zz(seed):
+def test_first_order_engines_agree_with_exact_on_small_zz(seed, metric):
     # Clifford gates, ZZ only (coherent): generators = clifford (same first order) and both ≈ exact
     rng = np.random.default_rng(100 + seed)
     n = 4
@@ -323,8 +335,8 @@ def test_first_order_engines_agree_with_exact_on_small_zz(seed):
     model = ErrorModel.from_dict({"gates": {g: {"duration_ns": DUR[g]} for g in ("sx", "h", "x", "cz")},
                                   "couplings": {"zz_khz": float(rng.uniform(20, 60))}})
     noisy = attach(_circuit(n, Repeat(tuple(layers), 3)), model)
-    exact = _run("exact", noisy).infidelity
-    gen, cl = _run("generators", noisy), _run("clifford", noisy)
+    exact = _run("exact", noisy, metric).infidelity
+    gen, cl = _run("generators", noisy, metric), _run("clifford", noisy, metric)
     assert gen.first_order == pytest.approx(cl.first_order, rel=1e-9)
     assert gen.infidelity == pytest.approx(exact, rel=0.02) and cl.infidelity == pytest.approx(exact, rel=0.02)
 
