@@ -486,3 +486,33 @@ def test_exact_engine_matches_cirq_with_crosstalk_and_bleed(seed):
     rho = cirq.DensityMatrixSimulator(dtype=np.complex128).simulate(cirq.Circuit(ops), qubit_order=order).final_density_matrix
     want = float(1 - np.real(psi.conj() @ rho @ psi))
     assert _run("exact", noisy).infidelity == pytest.approx(want, abs=1e-8)
+
+
+def test_heat_map_puts_context_errors_in_the_column_of_their_layer():
+    # columns are circuit layers; a ZZ error sits in its layer's column, split over its two qubits;
+    # its local infidelity is that of diag(1, 1, 1, e^{iφ}) (see _cphase_infidelity)
+    from budget.analysis.heatmap import error_map
+
+    model = ErrorModel.from_dict({"gates": {"id": {"duration_ns": 1000.0}}, "couplings": {"q[0],q[1]": {"zz_khz": 100.0}}})
+    noisy = attach(_circuit(3, Layer((Operation("id", (2,)),)), Layer((Operation("rz", (2,), (0.1,)),))), model)
+    m = error_map(noisy)
+    assert m.columns == ("L1", "L2")
+    e = _cphase_infidelity(2 * np.pi * 0.1)
+    assert m.values[:, 0] == pytest.approx([e / 2, e / 2, 0.0], abs=1e-12)
+    assert m.values[:, 1] == pytest.approx([0.0, 0.0, 0.0], abs=1e-15)
+
+
+def test_random_compiling_puts_no_frames_around_context_layers():
+    # two cz layers, each followed by a ZZ context layer: frames (before and after) may dress the
+    # two gate layers only, so at most 4 frame layers, and 4 for most draws; dressing the context
+    # layers too would give up to 8
+    from budget.analysis.randomized import FRAME, compiled_copy
+
+    model = ErrorModel.from_dict({"gates": {"cz": {"duration_ns": 60.0}}, "couplings": {"zz_khz": 100.0}})
+    noisy = attach(_circuit(3, Layer((Operation("cz", (0, 1)),)), Layer((Operation("cz", (1, 2)),))), model)
+    counts = []
+    for seed in range(20):
+        copy, _ = compiled_copy(noisy, np.random.default_rng(seed))
+        counts.append(sum(any(op.family == FRAME for op in l.operations) for l in copy.body))
+        assert sum(l.context for l in copy.body) == 2
+    assert max(counts) == 4
