@@ -8,8 +8,8 @@ knobs (:mod:`budget.errors.knobs`), depolarizing λ = r d/(d-1) from the average
 its duration. Per layer: the layer lasts as long as its longest operation; every qubit relaxes for
 the part of the layer it spends outside an operation (idle). Relaxations that do nothing (zero time,
 or a qubit without T1 and T2) are left out. Context errors (spectator ZZ, drive crosstalk, pulse
-bleed) follow each layer as zero-duration context layers (:mod:`budget.errors.context_layers`);
-calibration in context replaces an operation's parameters by the most specific matching
+bleed) follow each layer as zero-duration context layers (:mod:`budget.errors.context_layers`,
+placed by :mod:`budget.errors.context_attach`); calibration in context replaces an operation's parameters by the most specific matching
 ``[[context]]`` table. Pulse bleed depends on the previous layer, so a repeated block whose first
 layer sees a different predecessor in its first repetition is split into that repetition and a
 repeat of the rest (one extra copy of the block's structure, never an unrolling).
@@ -21,12 +21,9 @@ import difflib
 import re
 from typing import Literal
 
-import dataclasses
-
-from budget.circuit.gates import GATES, exchange_symmetric
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
-from budget.errors.context import ContextTable, mirrored_fields
-from budget.errors.context_layers import context_layer, crosstalk_layers, edge_layers, spill_operation, zz_operation
+from budget.errors.context import ContextTable
+from budget.errors.context_attach import ContextPlacer
 from budget.errors.knobs import CoherentError, coherent_error
 from budget.errors.model import ErrorModel
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
@@ -109,15 +106,7 @@ class _Attacher:
         self._coherent: dict[tuple, CoherentError] = {}
         self._ops: dict[tuple, NoisyOperation] = {}
         self._items: dict = {}
-        self.index = {n: i for i, n in enumerate(circuit.qubits)}
-        self.zz = _zz_rates(circuit, model, self.index)
-        self.crosstalk: dict[str, list] = {}
-        for rule in model.context.crosstalk:
-            self.crosstalk.setdefault(rule.source, []).append(rule)
-        self.bleed_rules = bool(model.context.bleed or model.context.bleed_qubit)
-        self.tables: dict[str, list[ContextTable]] = {}
-        for t in model.context.tables:
-            self.tables.setdefault(t.gate, []).append(t)
+        self.context = ContextPlacer(circuit, model)
 
     def relax(self, qubit: int, duration_ns: float) -> Relaxation | None:
         key = (qubit, duration_ns)
@@ -131,7 +120,7 @@ class _Attacher:
         out: list[NoisyItem] = []
         for it in items:
             if isinstance(it, Layer):
-                out.extend(self.bleed(prev, it))
+                out.extend(self.context.bleed(prev, it))
                 out.extend(self.expanded(it))
                 prev = it
             elif isinstance(it, Repeat):
@@ -142,11 +131,11 @@ class _Attacher:
         return tuple(out), prev
 
     def repeat(self, rep: Repeat, prev: Layer | None) -> tuple[tuple[NoisyItem, ...], Layer | None]:
-        key = (id(rep), self.bleed_key(prev, _first_layer(rep)))
+        key = (id(rep), self.context.bleed_key(prev, _first_layer(rep)))
         if key not in self._items:
             first, last = self.items(rep.body, prev)
             block: tuple[NoisyItem, ...] = (NoisyRepeat(first, rep.count),)
-            if rep.count > 1 and self.bleed_rules:
+            if rep.count > 1 and self.context.has_bleed:
                 again, _ = self.items(rep.body, last)
                 if len(again) != len(first) or any(a is not b for a, b in zip(again, first)):
                     block = (*first, NoisyRepeat(again, rep.count - 1))  # first repetition peeled
@@ -158,12 +147,11 @@ class _Attacher:
         key = id(layer)
         if key not in self._items:
             real = self.layer(layer)
-            after = crosstalk_layers(real.operations, self.crosstalk, self.names, self.index) if self.crosstalk else []
-            self._items[key] = (real, *after, *self.zz_layers(layer, real.duration_ns))
+            self._items[key] = (real, *self.context.after(layer, real))
         return self._items[key]
 
     def layer(self, layer: Layer) -> NoisyLayer:
-        ops = tuple(self.operation(op, self.context_table(op, layer)) for op in layer.operations)
+        ops = tuple(self.operation(op, self.context.table(op, layer)) for op in layer.operations)
         length = max((n.duration_ns for n in ops), default=0.0)
         idle: list[Relaxation] = []
         if length > 0:
@@ -174,94 +162,6 @@ class _Attacher:
                     idle.append(r)
         return NoisyLayer(ops, tuple(idle), length)
 
-    # --- context errors (issue 14): spectator ZZ, crosstalk, bleed, calibration in context ---
-
-    def zz_layers(self, layer: Layer, duration_ns: float) -> tuple[NoisyLayer, ...]:
-        """Spectator ZZ of every coupled pair not running its own two-qubit gate in ``layer``."""
-        if duration_ns <= 0 or not self.zz:
-            return ()
-        busy = {frozenset(op.qubits) for op in layer.operations if len(op.qubits) == 2}
-        active = tuple(p for p in self.zz if frozenset(p) not in busy)
-        key = ("zz", duration_ns, active)
-        if key not in self._items:
-            ops = {p: self.zz_op(p, duration_ns) for p in active}
-            self._items[key] = tuple(context_layer([ops[p] for p in group]) for group in edge_layers(list(active)))
-        return self._items[key]
-
-    def zz_op(self, pair: tuple[int, int], duration_ns: float) -> NoisyOperation:
-        key = ("zz-op", pair, duration_ns)
-        if key not in self._items:
-            self._items[key] = zz_operation(pair, self.names, self.zz[pair], duration_ns)
-        return self._items[key]
-
-    def bleed_key(self, prev: Layer | None, layer: Layer | None) -> tuple:
-        """(qubit, previous gate, its angles, next gate, fraction) of every bleed between the layers."""
-        if prev is None or layer is None or not self.bleed_rules:
-            return ()
-        before = {op.qubits[0]: op for op in prev.operations if len(op.qubits) == 1}
-        out = []
-        for op in layer.operations:
-            a = before.get(op.qubits[0]) if len(op.qubits) == 1 else None
-            if a is None:
-                continue
-            name = self.names[op.qubits[0]]
-            f = self.model.context.bleed_qubit.get((a.gate, op.gate, name), self.model.context.bleed.get((a.gate, op.gate)))
-            if f:
-                out.append((op.qubits[0], a.gate, a.params, op.gate, f))
-        return tuple(out)
-
-    def bleed(self, prev: Layer | None, layer: Layer) -> tuple[NoisyLayer, ...]:
-        """The pulse-bleed context layer between ``prev`` and ``layer`` (empty without bleed)."""
-        key = ("bleed", self.bleed_key(prev, layer))
-        if not key[1]:
-            return ()
-        if key not in self._items:
-            ops = [spill_operation(q, f"bleed {a}->{b} {self.names[q]}", "bleed", a, params, f,
-                                   duration_ns=self.model.gate(a, (self.names[q],)).duration_ns)
-                   for q, a, params, b, f in key[1]]
-            self._items[key] = (context_layer(ops),)
-        return self._items[key]
-
-    def context_table(self, op: Operation, layer: Layer) -> ContextTable | None:
-        """The most specific ``[[context]]`` table of this operation's gate that matches the layer."""
-        tables = self.tables.get(op.gate)
-        if not tables:
-            return None
-        names = tuple(self.names[q] for q in op.qubits)
-        symmetric = exchange_symmetric(op.gate)
-        present = set()
-        for o in layer.operations:
-            if o is not op:
-                ns = tuple(self.names[q] for q in o.qubits)
-                present.add((o.gate, ns))
-                if exchange_symmetric(o.gate):
-                    present.add((o.gate, ns[::-1]))
-        driven = all(self.driven(o) for o in layer.operations) and sum(len(o.qubits) for o in layer.operations) == len(self.names)
-        hits = [t for t in tables
-                if (t.qubits is None or t.qubits == names or symmetric and t.qubits == names[::-1])
-                and all(w in present for w in t.with_ops) and (driven or not t.all_driven)]
-        if not hits:
-            return None
-        best = max(t.specificity for t in hits)
-        top = [t for t in hits if t.specificity == best]
-        if len(top) > 1:
-            raise ModelError(
-                f"{top[0].path} and {top[1].path} in {self.model.source}: both match {op.gate} on "
-                f"{','.join(names)} equally specifically (line {op.line}); add a condition to one of them"
-            )
-        return top[0]
-
-    @staticmethod
-    def driven(op: Operation) -> bool:
-        s = GATES.get(op.gate)
-        return s is None or not s.virtual
-
-    def calibrated(self, gp: GateParams, table: ContextTable, names: tuple[str, ...]) -> GateParams:
-        fields = table.fields if table.qubits is None or table.qubits == names else mirrored_fields(table)
-        return dataclasses.replace(gp, **fields)
-
-    # --- end of context errors ---
-
     def operation(self, op: Operation, table: ContextTable | None = None) -> NoisyOperation:
         key = (op.gate, op.qubits, op.params, None if op.matrix is None else id(op.matrix), id(table))
         if key in self._ops:
@@ -269,7 +169,7 @@ class _Attacher:
         names = tuple(self.names[q] for q in op.qubits)
         gp = self.model.gate(op.gate, names)
         if table is not None:
-            gp = self.calibrated(gp, table, names)
+            gp = self.context.calibrated(gp, table, names)
         k = len(op.qubits)
         ckey = (op.gate, op.params, gp, k)
         if ckey not in self._coherent:
@@ -305,19 +205,3 @@ def _first_layer(rep: Repeat) -> Layer | None:
             return found
     return None
 
-
-def _zz_rates(circuit: StructuredCircuit, model: ErrorModel, index: dict[str, int]) -> dict[tuple[int, int], float]:
-    """(i, j) with i < j -> ζ in kHz for every coupled pair of the circuit with a non-zero rate: the
-    pairs named in [couplings."A,B"] whose qubits the circuit has, and, with a default rate, every
-    pair some two-qubit gate of the circuit acts on."""
-    ctx = model.context
-    rates: dict[tuple[int, int], float] = {}
-    if ctx.zz_default_khz:
-        for op in circuit.distinct_operations():
-            if len(op.qubits) == 2:
-                rates.setdefault(tuple(sorted(op.qubits)), ctx.zz_default_khz)
-    for pair, khz in ctx.zz_khz.items():
-        ids = [index.get(n) for n in pair]
-        if None not in ids:
-            rates[tuple(sorted(ids))] = khz
-    return {p: rates[p] for p in sorted(rates) if rates[p] > 0}

@@ -1,0 +1,157 @@
+"""Where context errors go in one attach call: which layers get which context layers, and which
+``[[context]]`` table calibrates an operation (docs/error-model.md, "Context errors").
+
+:class:`ContextPlacer` is used by :func:`budget.errors.attach.attach`; it caches by structure as
+attach does, so a layer repeated 10**9 times is looked at once. The pseudo-operations themselves
+are built in :mod:`budget.errors.context_layers`.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+from budget.circuit.gates import GATES, exchange_symmetric
+from budget.circuit.ir import Layer, Operation, StructuredCircuit
+from budget.errors.context import ContextTable, Crosstalk, mirrored_fields
+from budget.errors.context_layers import context_layer, crosstalk_layers, edge_layers, spill_operation, zz_operation
+from budget.errors.model import ErrorModel
+from budget.errors.noisy import NoisyLayer, NoisyOperation
+from budget.errors.params import GateParams
+from budget.problems import ModelError
+
+
+class ContextPlacer:
+    """The context errors of one model on one circuit (see module docstring).
+
+    Attributes:
+        zz: (i, j), i < j -> ζ in kHz of every coupled pair with a non-zero rate.
+        has_bleed: the model has pulse-bleed rules (attach then tracks the previous layer).
+    """
+
+    def __init__(self, circuit: StructuredCircuit, model: ErrorModel):
+        self.names = circuit.qubits
+        self.model = model
+        self.index = {n: i for i, n in enumerate(circuit.qubits)}
+        self.zz = zz_rates(circuit, model, self.index)
+        self.crosstalk: dict[str, list[Crosstalk]] = {}
+        for rule in model.context.crosstalk:
+            self.crosstalk.setdefault(rule.source, []).append(rule)
+        self.has_bleed = bool(model.context.bleed or model.context.bleed_qubit)
+        self.tables: dict[str, list[ContextTable]] = {}
+        for t in model.context.tables:
+            self.tables.setdefault(t.gate, []).append(t)
+        self._cache: dict = {}
+
+    def after(self, layer: Layer, noisy: NoisyLayer) -> tuple[NoisyLayer, ...]:
+        """The context layers after a layer (``noisy`` its attached form): crosstalk, then ZZ."""
+        out = crosstalk_layers(noisy.operations, self.crosstalk, self.names, self.index) if self.crosstalk else []
+        return (*out, *self.zz_layers(layer, noisy.duration_ns))
+
+    def zz_layers(self, layer: Layer, duration_ns: float) -> tuple[NoisyLayer, ...]:
+        """Spectator ZZ of every coupled pair not running its own two-qubit gate in ``layer``."""
+        if duration_ns <= 0 or not self.zz:
+            return ()
+        busy = {frozenset(op.qubits) for op in layer.operations if len(op.qubits) == 2}
+        active = tuple(p for p in self.zz if frozenset(p) not in busy)
+        key = ("zz", duration_ns, active)
+        if key not in self._cache:
+            ops = {p: self._zz_op(p, duration_ns) for p in active}
+            self._cache[key] = tuple(context_layer([ops[p] for p in group]) for group in edge_layers(list(active)))
+        return self._cache[key]
+
+    def _zz_op(self, pair: tuple[int, int], duration_ns: float) -> NoisyOperation:
+        key = ("zz-op", pair, duration_ns)
+        if key not in self._cache:
+            self._cache[key] = zz_operation(pair, self.names, self.zz[pair], duration_ns)
+        return self._cache[key]
+
+    def bleed_key(self, prev: Layer | None, layer: Layer | None) -> tuple:
+        """(qubit, previous gate, its angles, next gate, fraction) of every bleed between the layers."""
+        if prev is None or layer is None or not self.has_bleed:
+            return ()
+        before = {op.qubits[0]: op for op in prev.operations if len(op.qubits) == 1}
+        every, per_qubit = self.model.context.bleed, self.model.context.bleed_qubit
+        out = []
+        for op in layer.operations:
+            a = before.get(op.qubits[0]) if len(op.qubits) == 1 else None
+            if a is None:
+                continue
+            f = per_qubit.get((a.gate, op.gate, self.names[op.qubits[0]]), every.get((a.gate, op.gate)))
+            if f:
+                out.append((op.qubits[0], a.gate, a.params, op.gate, f))
+        return tuple(out)
+
+    def bleed(self, prev: Layer | None, layer: Layer) -> tuple[NoisyLayer, ...]:
+        """The pulse-bleed context layer between ``prev`` and ``layer`` (empty without bleed)."""
+        key = ("bleed", self.bleed_key(prev, layer))
+        if not key[1]:
+            return ()
+        if key not in self._cache:
+            ops = [spill_operation(q, f"bleed {a}->{b} {self.names[q]}", "bleed", a, params, f,
+                                   duration_ns=self.model.gate(a, (self.names[q],)).duration_ns)
+                   for q, a, params, b, f in key[1]]
+            self._cache[key] = (context_layer(ops),)
+        return self._cache[key]
+
+    def table(self, op: Operation, layer: Layer) -> ContextTable | None:
+        """The most specific ``[[context]]`` table of this operation's gate that matches the layer.
+
+        Raises:
+            ModelError: two tables match equally specifically.
+        """
+        tables = self.tables.get(op.gate)
+        if not tables:
+            return None
+        names = tuple(self.names[q] for q in op.qubits)
+        symmetric = exchange_symmetric(op.gate)
+        present = set()
+        for o in layer.operations:
+            if o is not op:
+                ns = tuple(self.names[q] for q in o.qubits)
+                present.add((o.gate, ns))
+                if exchange_symmetric(o.gate):
+                    present.add((o.gate, ns[::-1]))
+        driven = (all(_driven(o) for o in layer.operations)
+                  and sum(len(o.qubits) for o in layer.operations) == len(self.names))
+        hits = [t for t in tables
+                if (t.qubits is None or t.qubits == names or symmetric and t.qubits == names[::-1])
+                and all(w in present for w in t.with_ops) and (driven or not t.all_driven)]
+        if not hits:
+            return None
+        best = max(t.specificity for t in hits)
+        top = [t for t in hits if t.specificity == best]
+        if len(top) > 1:
+            raise ModelError(
+                f"{top[0].path} and {top[1].path} in {self.model.source}: both match {op.gate} on "
+                f"{','.join(names)} equally specifically (line {op.line}); add a condition to one of them"
+            )
+        return top[0]
+
+    @staticmethod
+    def calibrated(gp: GateParams, table: ContextTable, names: tuple[str, ...]) -> GateParams:
+        """``gp`` with the table's keys replaced (per-qubit values reversed for the other order)."""
+        fields = table.fields if table.qubits is None or table.qubits == names else mirrored_fields(table)
+        return dataclasses.replace(gp, **fields)
+
+
+def _driven(op: Operation) -> bool:
+    """A pulse drives the qubit: any gate but a virtual Z gate (fallback gates count as driven)."""
+    s = GATES.get(op.gate)
+    return s is None or not s.virtual
+
+
+def zz_rates(circuit: StructuredCircuit, model: ErrorModel, index: dict[str, int]) -> dict[tuple[int, int], float]:
+    """(i, j) with i < j -> ζ in kHz for every coupled pair of the circuit with a non-zero rate: the
+    pairs named in [couplings."A,B"] whose qubits the circuit has, and, with a default rate, every
+    pair some two-qubit gate of the circuit acts on."""
+    ctx = model.context
+    rates: dict[tuple[int, int], float] = {}
+    if ctx.zz_default_khz:
+        for op in circuit.distinct_operations():
+            if len(op.qubits) == 2:
+                rates.setdefault(tuple(sorted(op.qubits)), ctx.zz_default_khz)
+    for pair, khz in ctx.zz_khz.items():
+        ids = [index.get(n) for n in pair]
+        if None not in ids:
+            rates[tuple(sorted(ids))] = khz
+    return {p: rates[p] for p in sorted(rates) if rates[p] > 0}
