@@ -9,10 +9,11 @@ its duration. Per layer: the layer lasts as long as its longest operation; every
 the part of the layer it spends outside an operation (idle). Relaxations that do nothing (zero time,
 or a qubit without T1 and T2) are left out. Context errors (spectator ZZ, drive crosstalk, pulse
 bleed) follow each layer as zero-duration context layers (:mod:`budget.errors.context_layers`,
-placed by :mod:`budget.errors.context_attach`); calibration in context replaces an operation's parameters by the most specific matching
-``[[context]]`` table. Pulse bleed depends on the previous layer, so a repeated block whose first
-layer sees a different predecessor in its first repetition is split into that repetition and a
-repeat of the rest (one extra copy of the block's structure, never an unrolling).
+placed by :mod:`budget.errors.context_attach`); calibration in context replaces an operation's
+parameters by the most specific matching ``[[context]]`` table. Pulse bleed depends on the previous
+layer, so a repeated block whose first layer sees a different predecessor in its first repetition
+is split into that repetition and a repeat of the rest (one extra copy of the block's structure,
+never an unrolling).
 """
 
 from __future__ import annotations
