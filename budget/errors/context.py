@@ -25,7 +25,7 @@ from dataclasses import dataclass, field
 from typing import Any, Mapping
 
 from budget.circuit.gates import ALIASES, GATES, exchange_symmetric
-from budget.errors.params import FieldError, GateParams, mirrored, number
+from budget.errors.params import FieldError, GateParams, key_path, mirrored, number
 
 AXES = ("x", "y", "z")
 _GATE_KEYS = tuple(f.name for f in dataclasses.fields(GateParams))
@@ -133,14 +133,8 @@ def _names(p, path: tuple[str, ...], key: str, sep: str, count: int, value: Any)
         example = {",": '"q[0],q[1]"', "->": '"q[2]->q[3]"'}[sep]
         raise p.fail(path, value, f"expected {count} distinct qubit names separated by {sep!r} (e.g. {example})")
     for n in names:
-        p.mentions.setdefault(n, _key(path))
+        p.mentions.setdefault(n, key_path(path))
     return names
-
-
-def _key(path: tuple[str, ...]) -> str:
-    from budget.errors.model import key_path  # model imports this module
-
-    return key_path(path)
 
 
 def _couplings(p, raw: Any) -> tuple[float | None, dict[frozenset, float]]:
@@ -281,7 +275,7 @@ def _context(p, path, raw, gates, overrides, index: int) -> ContextTable:
     elif not isinstance(name, str) or not name.strip():
         raise p.fail(path + ("name",), name, "expected a non-empty string")
     fields = {k: getattr(params, k) for k in own}
-    return ContextTable(name.strip(), gate, qubits, with_ops, all_driven, fields, _key(path))
+    return ContextTable(name.strip(), gate, qubits, with_ops, all_driven, fields, key_path(path))
 
 
 def mirrored_fields(table: ContextTable) -> Mapping[str, Any]:

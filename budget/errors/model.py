@@ -17,7 +17,6 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
-import json
 import re
 import tomllib
 from dataclasses import dataclass, field
@@ -26,7 +25,7 @@ from typing import Any, Mapping
 
 from budget.circuit.gates import ALIASES, GATES, exchange_symmetric
 from budget.errors.context import SECTIONS, ContextModel, parse_context
-from budget.errors.params import FieldError, GateParams, QubitParams, mirrored, show
+from budget.errors.params import FieldError, GateParams, QubitParams, key_path, mirrored, show
 from budget.problems import ModelError, place
 
 __all__ = ["ErrorModel", "GateParams", "QubitParams", "key_path", "load_model"]
@@ -104,11 +103,6 @@ def load_model(path: str | Path) -> ErrorModel:
         m = re.search(r"at line (\d+)", str(e))
         raise ModelError(f"{place(source, int(m.group(1)) if m else None)}: not valid TOML: {e}") from None
     return ErrorModel.from_dict(data, source)
-
-
-def key_path(parts: tuple[str, ...] | list[str]) -> str:
-    """TOML key path, quoting parts that are not bare keys: ``gates.cz."q[0],q[1]".cphase``."""
-    return ".".join(p if re.fullmatch(r"[A-Za-z0-9_-]+", p) else json.dumps(p) for p in parts)
 
 
 def _split_names(key: str) -> tuple[str, ...]:

@@ -8,8 +8,10 @@ the file name. Gate-dependent rules (which knobs apply to which gate) live in
 
 from __future__ import annotations
 
+import json
 import math
 import numbers
+import re
 from dataclasses import dataclass
 from typing import Any, Mapping
 
@@ -86,6 +88,11 @@ class QubitParams:
         if self.t2_us is not None:
             rate = 1.0 / self.t2_us - (0.5 / self.t1_us if self.t1_us is not None else 0.0)
         return Relaxation(qubit, float(duration_ns), gamma, math.exp(-t_us * max(rate, 0.0)))
+
+
+def key_path(parts: tuple[str, ...] | list[str]) -> str:
+    """TOML key path, quoting parts that are not bare keys: ``gates.cz."q[0],q[1]".cphase``."""
+    return ".".join(p if re.fullmatch(r"[A-Za-z0-9_-]+", p) else json.dumps(p) for p in parts)
 
 
 def mirrored(extra: Mapping[str, Any]) -> dict[str, Any]:
