@@ -335,11 +335,15 @@ def demo(
         ("Four Trotter steps of a 4-site hopping chain (process metric)", "hopping_trotter.qasm", 1, "process"),
         ("Parity-check cycle on a 5-qubit line, repeated 10 times (process metric)", "parity_cycle.qasm", 10, "process"),
         ("XY4 echo on one qubit, 25 repetitions: the echo cancels over-rotations (process metric)", "echo_xy4.qasm", 25, "process"),
+        ("A coupled pair in memory, 20 cycles: the spectator ZZ builds up (process metric)", "pair_memory_zz.qasm", 20, "process"),
+        ("The same memory echoed: the ZZ cancels (process metric)", "pair_memory_echo.qasm", 20, "process"),
     ]
+    own = {"pair_memory_zz.qasm": "fen_pair_zz.toml", "pair_memory_echo.qasm": "fen_pair_zz.toml"}
     console.rule("[bold]budget demo · North Fen Cryogenics Lab, device fen-q8 (invented)")
     for title, name, cycles, metric in cases:
         console.print(f"\n[bold]{title}[/]")
-        result = run_analysis(_shown(EXAMPLES / name), _shown(model), cycles=cycles, metric=metric, compare_twirled=True)
+        errors = EXAMPLES / own[name] if name in own else model
+        result = run_analysis(_shown(EXAMPLES / name), _shown(errors), cycles=cycles, metric=metric, compare_twirled=True)
         console.print(render_budget(result))
 
 

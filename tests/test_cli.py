@@ -36,6 +36,7 @@ def test_demo_runs():
     res = run("demo", "--width", "120")
     assert res.exit_code == 0, res.output
     assert "North Fen" in res.output
+    assert "zz q[0],q[1]" in res.output  # the spectator-ZZ memory examples run with their own model
 
 
 def _bad(tmp_path: Path, model_text: str | None = None, circuit_text: str | None = None, extra=()):
