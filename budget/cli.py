@@ -361,3 +361,40 @@ def main() -> None:  # pragma: no cover - console entry point alias
 
 if __name__ == "__main__":  # pragma: no cover
     app()
+
+
+# ---- measured calibration data: import, uncertainty sweeps, free compensation, schedules (issue 15) ----
+
+model_app = typer.Typer(no_args_is_help=True, help="Error-model files: build one from measured calibration tables.")
+app.add_typer(model_app, name="model")
+
+
+@model_app.command("import")
+@user_errors
+def model_import(
+    files: List[Path] = typer.Argument(..., help="CSV/TSV tables (header = model keys) and device-properties or "
+                                       "calibration-metrics JSON files (docs/import.md).", show_default=False),
+    out: Path = typer.Option(..., "--out", help="The TOML error model to write."),
+    circuit: Optional[Path] = typer.Option(None, "--circuit", help="Report rows for qubits or pairs this circuit "
+                                           "does not use (they are kept)."),
+    register: str = typer.Option("q", "--register", help="Register name for qubit indices in backend JSON (q -> q[3])."),
+    one_qubit_gates: str = typer.Option("sx,x", "--one-qubit-gates", help="Gates (comma-separated) that receive "
+                                        "single-qubit error metrics of calibration-metrics JSON."),
+    two_qubit_gate: Optional[str] = typer.Option(None, "--two-qubit-gate", help="Gate that receives two-qubit "
+                                                 "metrics (default: the gate the metric names)."),
+    gates_per_clifford: Optional[float] = typer.Option(None, "--gates-per-clifford", min=1.0, help="Physical gates "
+                                                       "per Clifford, for error_per_clifford columns."),
+    width: Optional[int] = WidthOpt,
+) -> None:
+    """Write a TOML error model from measured calibration tables, with each value's source as a comment."""
+    from budget.calibdata.importer import import_tables, to_toml
+    from budget.report.calib_views import render_import
+    from budget.report.files import write_text
+
+    check_output_path(out, "--out")
+    imported = import_tables(files, circuit=circuit, register=register, two_qubit_gate=two_qubit_gate,
+                             one_qubit_gates=tuple(g.strip() for g in one_qubit_gates.split(",") if g.strip()),
+                             gates_per_clifford=gates_per_clifford)
+    text = to_toml(imported)
+    write_text(out, text)
+    make_console(width=width).print(render_import(imported, out))

@@ -28,6 +28,14 @@ def command_names() -> list[str]:
     return list(group.commands)  # type: ignore[attr-defined]
 
 
+def _subcommands(name: str) -> list[str]:
+    """The commands of a command group (``budget model import``), else none."""
+    import typer.main
+
+    group = typer.main.get_command(app)
+    return list(getattr(group.commands[name], "commands", {}))  # type: ignore[attr-defined]
+
+
 def render() -> str:
     parts = [
         "# Command reference",
@@ -42,6 +50,8 @@ def render() -> str:
     ]
     for name in command_names():
         parts += ["", f"## budget {name}", "", "```text", _help(name), "```"]
+        for sub in _subcommands(name):
+            parts += ["", f"## budget {name} {sub}", "", "```text", _help(name, sub), "```"]
     return "\n".join(parts) + "\n"
 
 

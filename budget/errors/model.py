@@ -106,7 +106,9 @@ def load_model(path: str | Path) -> ErrorModel:
 
 
 def _split_names(key: str) -> tuple[str, ...]:
-    return tuple(n.strip() for n in key.split(","))
+    """Qubit names separated by commas; a comma inside parentheses belongs to the name (cirq's
+    grid qubits are named ``q(1, 2)``)."""
+    return tuple(n.strip() for n in re.split(r",(?![^()]*\))", key))
 
 
 class _Parser:
