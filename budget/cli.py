@@ -398,3 +398,45 @@ def model_import(
     text = to_toml(imported)
     write_text(out, text)
     make_console(width=width).print(render_import(imported, out))
+
+
+@app.command()
+@user_errors
+def sweep(
+    circuit: Path = CircuitArg,
+    errors: Path = typer.Option(..., "--errors", "-e", help="Error model with uncertainties ({ value, sigma } or "
+                                "{ low, high }) and/or drift rates (docs/error-model.md)."),
+    samples: int = typer.Option(2000, "--samples", min=2, help="Monte Carlo samples (each a seeded draw of the model)."),
+    hours: float = typer.Option(0.0, "--hours", min=0.0, help="Also follow the distribution over H hours of drift."),
+    hour_points: int = typer.Option(5, "--hour-points", min=2, help="Times from 0 to H for --hours."),
+    target: Optional[float] = typer.Option(None, "--target", "-t", help="Infidelity E: probability of meeting it."),
+    sobol_base: int = typer.Option(64, "--sobol-base", min=0, help="Saltelli base size n (power of 2) for the Sobol "
+                                   "indices: n·(d+2) more runs for d uncertain values; 0 = none."),
+    seed: int = typer.Option(1, "--seed", min=0, help="Seed of the draws (sample k uses rng([seed, k]))."),
+    cycles: int = CyclesOpt,
+    metric: MetricChoice = MetricOpt,
+    engine: EngineChoice = EngineOpt,
+    workers: Optional[int] = typer.Option(None, "--workers", min=1, help="Local processes (default: all cores)."),
+    scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Run on a Dask cluster: 'local' (a local "
+                                            "cluster) or a scheduler address such as tcp://host:8786."),
+    out: Optional[Path] = typer.Option(None, "--out", help="Stream results to this JSON-lines file; an interrupted "
+                                       "sweep given the same file resumes."),
+    json_path: Optional[Path] = typer.Option(None, "--json", help="Write the summary as JSON (docs/json-schema.md)."),
+    quiet: bool = QuietOpt,
+    width: Optional[int] = WidthOpt,
+) -> None:
+    """Distribution of the infidelity under the model's uncertainties and drift, and which value matters most."""
+    from budget.analysis.sweep import sweep as run_sweep
+    from budget.report.calib_views import render_sweep
+    from budget.report.json_out import write_json
+    from budget.report.progress import progress_bar
+
+    check_output_path(json_path, "--json")
+    check_output_path(out, "--out")
+    with progress_bar("sweep", quiet=quiet) as tick:
+        result = run_sweep(str(circuit), str(errors), samples=samples, hours=hours, hour_points=hour_points,
+                           target=target, seed=seed, cycles=cycles, metric=metric.value, engine=engine.value,
+                           sobol_base=sobol_base, out=out, workers=workers, scheduler=scheduler, progress=tick)
+    make_console(width=width).print(render_sweep(result))
+    if json_path is not None:
+        write_json(json_path, result.to_dict())

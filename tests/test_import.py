@@ -239,3 +239,13 @@ def test_json_that_is_neither_layout(tmp_path):
     t = write(tmp_path, "x.json", json.dumps({"hello": 1}))
     with pytest.raises(ModelError, match="x.json: not a known calibration layout"):
         import_tables([t])
+
+
+def test_sigma_and_drift_columns_become_uncertainty_tables(tmp_path):
+    t = write(tmp_path, "g.csv", "gate,cphase,cphase_sigma,cphase_drift_per_hour,duration_ns\ncz,0.03,0.004,0.002,60\n")
+    text = to_toml(import_tables([t]))
+    assert "cphase = {value = 0.03, sigma = 0.004, drift_per_hour = 0.002}" in text.replace("  ", " ")
+    model = ErrorModel.from_dict(tomllib.loads(text))
+    assert model.gates["cz"].cphase == 0.03
+    (spread,) = model.uncertain
+    assert (spread.sigma, spread.drift_per_hour) == (0.004, 0.002)

@@ -26,6 +26,7 @@ from typing import Any, Mapping
 from budget.circuit.gates import ALIASES, GATES, exchange_symmetric
 from budget.errors.context import SECTIONS, ContextModel, parse_context
 from budget.errors.params import FieldError, GateParams, QubitParams, key_path, mirrored, show
+from budget.errors.uncertain import central_values
 from budget.problems import ModelError, place
 
 __all__ = ["ErrorModel", "GateParams", "QubitParams", "key_path", "load_model"]
@@ -60,6 +61,9 @@ class ErrorModel:
     source: str = "<dict>"
     calibration: Mapping[str, Any] | None = None
     context: ContextModel = ContextModel()
+    uncertain: tuple = ()
+    """:class:`~budget.errors.uncertain.Spread` of every value given with an uncertainty or drift
+    (the model itself holds the central values)."""
 
     @classmethod
     def from_dict(cls, data: Mapping[str, Any], source: str = "<dict>") -> "ErrorModel":
@@ -167,7 +171,7 @@ class _Parser:
             raise self.fail(blamed + path, value, e.rule) from None
 
     def model(self, data: Mapping[str, Any]) -> ErrorModel:
-        data = self.table(("<top>",), data)
+        data, spreads = central_values(self.table(("<top>",), data), self.source)
         top = ("qubits", "gates", "calibration") + SECTIONS
         for k, v in data.items():
             if k not in top:
@@ -176,7 +180,8 @@ class _Parser:
         gates, gate_overrides = self.gates(data.get("gates", {}))
         calibration = self.table(("calibration",), data["calibration"]) if "calibration" in data else None
         context = parse_context(self, data, gates, gate_overrides)
-        return ErrorModel(defaults, overrides, gates, gate_overrides, dict(self.mentions), self.source, calibration, context)
+        return ErrorModel(defaults, overrides, gates, gate_overrides, dict(self.mentions), self.source, calibration,
+                          context, spreads)
 
     def qubits(self, raw: Any) -> tuple[QubitParams, dict[str, QubitParams]]:
         base = ("qubits",)

@@ -19,3 +19,41 @@ def render_import(imported, out: Path) -> Group:
     for s in imported.off_circuit:
         lines.append(Text(f"note: {s}", style="yellow"))
     return Group(*lines)
+
+
+def _e(x: float | None) -> str:
+    return "—" if x is None else f"{x:.3e}"
+
+
+def render_sweep(result) -> Group:
+    """Distribution now, over the drift hours, and the Sobol indices."""
+    from rich.table import Table
+
+    d = result.now
+    varied = ", ".join(f"{v.knob}@{v.site}" for v in result.varied) or "none (the model gives no uncertainty)"
+    head = [
+        Text.assemble(("uncertainty sweep: ", "bold"), f"{result.source}, {result.samples} samples; varied: {varied}"),
+        Text(f"infidelity: mean {_e(d.mean)} ± {_e(d.mean_stderr)} (Monte Carlo error), std {_e(d.std)}, "
+             f"median {_e(d.median)}, 5-95 % [{_e(d.q05)}, {_e(d.q95)}]"),
+    ]
+    if d.p_meet_target is not None:
+        head.append(Text(f"P(infidelity <= {result.target:g}) = {d.p_meet_target:.3f}"))
+    parts: list = list(head)
+    if result.hours:
+        t = Table(title="over the drift hours", title_justify="left")
+        for col in ("hour", "mean", "median", "5 %", "95 %") + (("P(meet)",) if result.target is not None else ()):
+            t.add_column(col, justify="right")
+        for h, x in result.hours:
+            t.add_row(f"{h:g}", _e(x.mean), _e(x.median), _e(x.q05), _e(x.q95),
+                      *((f"{x.p_meet_target:.3f}",) if result.target is not None else ()))
+        parts.append(t)
+    if result.contributions:
+        t = Table(title=f"share of the spread (Sobol indices, Saltelli design, base {result.sobol_base})",
+                  title_justify="left")
+        for col in ("value", "site", "total index", "first order"):
+            t.add_column(col, justify="right" if "index" in col or "order" in col else "left")
+        for c in result.contributions:
+            t.add_row(c.knob, c.site, f"{c.index:.3f}", f"{c.first_order:.3f}")
+        parts.append(t)
+    parts.append(Text(CAUTION, style="dim"))
+    return Group(*parts)
