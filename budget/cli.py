@@ -440,3 +440,57 @@ def sweep(
     make_console(width=width).print(render_sweep(result))
     if json_path is not None:
         write_json(json_path, result.to_dict())
+
+
+class PointsChoice(str, Enum):
+    all = "all"
+    blocks = "blocks"
+    end = "end"
+
+
+@app.command()
+@user_errors
+def compensate(
+    circuit: Path = CircuitArg,
+    errors: Path = ErrorsOpt,
+    cycles: int = CyclesOpt,
+    metric: MetricChoice = MetricOpt,
+    engine: EngineChoice = EngineOpt,
+    points: PointsChoice = typer.Option(PointsChoice.all, "--points", help="Where corrections go: the end of each "
+                                        "repeated block (after every repetition), the end of the circuit, or both."),
+    json_path: Optional[Path] = typer.Option(None, "--json", help="Write before/after and the corrections as JSON."),
+    out_circuit: Optional[Path] = typer.Option(None, "--out-circuit", help="Write the corrected circuit (OpenQASM 3 "
+                                               "with the added rz gates)."),
+    out_model: Optional[Path] = typer.Option(None, "--out-model", help="Write the model with the corrections folded "
+                                             "into gates' z_phase (when each folds into one gate)."),
+    width: Optional[int] = WidthOpt,
+) -> None:
+    """Virtual-Z corrections (free frame changes) that minimise the accumulated infidelity, verified."""
+    from budget.analysis.compensate import compensate as run_compensate, corrected_circuit
+    from budget.analysis.run import read_circuit, read_model
+    from budget.report.calib_views import render_compensation
+    from budget.report.files import write_text
+    from budget.report.json_out import write_json
+
+    for path, option in ((json_path, "--json"), (out_circuit, "--out-circuit"), (out_model, "--out-model")):
+        check_output_path(path, option)
+    result = run_compensate(str(circuit), str(errors), cycles=cycles, metric=metric.value, engine=engine.value,
+                            points=points.value)
+    structured = read_circuit(str(circuit)).with_cycles(cycles)
+    texts: dict[Path, str] = {}
+    if out_circuit is not None:
+        from budget.circuit.qasm_write import to_qasm3
+
+        texts[out_circuit] = to_qasm3(corrected_circuit(structured, result.corrections),
+                                      header=f"{structured.source} with virtual-Z corrections from budget compensate"
+                                      f"\n(--cycles {cycles} included; model {errors})")
+    if out_model is not None:
+        from budget.analysis.compensate_model import updated_model_text, z_phase_updates
+
+        texts[out_model] = updated_model_text(errors, z_phase_updates(structured, read_model(str(errors)),
+                                                                      result.corrections))
+    make_console(width=width).print(render_compensation(result))
+    for path, text in texts.items():
+        write_text(path, text)
+    if json_path is not None:
+        write_json(json_path, result.to_dict())

@@ -57,3 +57,28 @@ def render_sweep(result) -> Group:
         parts.append(t)
     parts.append(Text(CAUTION, style="dim"))
     return Group(*parts)
+
+
+def render_compensation(result) -> Group:
+    """Corrections, and the infidelity before and after (engine and first-order prediction)."""
+    from rich.table import Table
+
+    parts: list = [Text.assemble(("free compensation (virtual Z): ", "bold"), f"{result.source}, {result.metric} "
+                                 f"metric, verified with the {result.engine} engine")]
+    t = Table(title_justify="left")
+    for col in ("", "infidelity", "first-order prediction"):
+        t.add_column(col, justify="right" if col else "left")
+    t.add_row("before", _e(result.before), _e(result.before_first_order))
+    t.add_row("after", _e(result.after), _e(result.after_first_order))
+    parts.append(t)
+    if result.corrections:
+        c = Table(title="corrections (add rz(angle) on the qubit at that point)", title_justify="left")
+        for col in ("qubit", "where", "angle (rad)"):
+            c.add_column(col, justify="right" if col.startswith("angle") else "left")
+        for k in result.corrections:
+            c.add_row(k.qubit, k.where, f"{k.angle_rad:+.6f}")
+        parts.append(c)
+    else:
+        parts.append(Text("no virtual-Z correction lowers the leading-order infidelity"))
+    parts.append(Text(CAUTION, style="dim"))
+    return Group(*parts)
