@@ -494,3 +494,28 @@ def compensate(
         write_text(path, text)
     if json_path is not None:
         write_json(json_path, result.to_dict())
+
+
+@app.command()
+@user_errors
+def plan(
+    circuit: Path = CircuitArg,
+    errors: Path = ErrorsOpt,
+    target: float = TargetOpt,
+    hours: float = typer.Option(..., "--hours", help="Horizon H: the schedule keeps the prediction below the target "
+                                "for this long."),
+    cycles: int = CyclesOpt,
+    metric: MetricChoice = MetricOpt,
+    json_path: Optional[Path] = typer.Option(None, "--json", help="Write the schedule as JSON (docs/json-schema.md)."),
+    width: Optional[int] = WidthOpt,
+) -> None:
+    """The cheapest calibration schedule (which knobs, how precisely, how often) for a target over H hours."""
+    from budget.analysis.plan import plan as run_plan, schedule_json
+    from budget.report.calib_views import render_schedule
+    from budget.report.json_out import write_json
+
+    check_output_path(json_path, "--json")
+    schedule = run_plan(str(circuit), str(errors), target=target, hours=hours, cycles=cycles, metric=metric.value)
+    make_console(width=width).print(render_schedule(schedule))
+    if json_path is not None:
+        write_json(json_path, schedule_json(schedule))

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 from rich.console import Group
@@ -80,5 +81,36 @@ def render_compensation(result) -> Group:
         parts.append(c)
     else:
         parts.append(Text("no virtual-Z correction lowers the leading-order infidelity"))
+    parts.append(Text(CAUTION, style="dim"))
+    return Group(*parts)
+
+
+def render_schedule(s) -> Group:
+    """The schedule: per knob what, how precisely, how often, shots and depth, device time."""
+    from rich.table import Table
+
+    parts: list = [
+        Text.assemble(("calibration schedule: ", "bold"), f"{s.source}, target {s.target:g} for {s.hours:g} h "
+                      f"(incoherent floor {_e(s.floor)}, predicted at the worst time {_e(s.predicted)})"),
+    ]
+    t = Table(title_justify="left")
+    for col in ("knob", "action", "σ (rad)", "every (h)", "depth", "shots/round", "sites", "device min"):
+        t.add_column(col, justify="left" if col in ("knob", "action") else "right")
+    for k in s.knobs:
+        cal = k.action == "calibrate"
+        t.add_row(f"{k.family}.{k.knob}", k.action, _e(k.sigma_rad) if cal else "—",
+                  f"{k.every_hours:.3g}" if cal else "—",
+                  str(max(r.depth for r in k.sites)) if cal else "—",
+                  str(sum(r.shots_total for r in k.sites)) if cal else "—", str(len(k.sites)) if cal else "—",
+                  f"{k.device_s / 60:.3g}" if cal else "0")
+    parts.append(t)
+    parts.append(Text(f"device time: {s.device_s / 60:.3g} min over {s.hours:g} h = {s.minutes_per_day:.3g} min per day"))
+    if s.baseline_device_s is not None:
+        ratio = s.baseline_device_s / s.device_s if s.device_s > 0 else math.inf
+        parts.append(Text(f"everything at the tightest tolerance (σ = {s.baseline_sigma_rad:.3g} rad, "
+                          f"{s.baseline_rounds} round(s)): {s.baseline_device_s / 60:.3g} min"
+                          + (f", {ratio:.3g}× this schedule" if math.isfinite(ratio) else "")))
+    elif s.baseline_sigma_rad is not None:
+        parts.append(Text("everything at the tightest tolerance: no common schedule meets the target"))
     parts.append(Text(CAUTION, style="dim"))
     return Group(*parts)
