@@ -214,6 +214,7 @@ def report(
                                              "(default: max(1000, 100 × cycles))."),
     points: int = typer.Option(25, "--points", min=2, max=200, help="Points of the depth curves."),
     by_pair: bool = ByPairOpt,
+    hours: float = typer.Option(24.0, "--hours", min=0.001, help="Horizon of the calibration schedule section."),
     quiet: bool = QuietOpt,
 ) -> None:
     """A report a group lead can read: HTML page (self-contained) and Markdown, with pictures."""
@@ -227,7 +228,7 @@ def report(
     with progress_bar("report", quiet=quiet) as tick:
         data = gather(str(circuit), str(errors), target=target, cycles=cycles, metric=metric.value,
                       engine=engine.value, max_cycles=max_cycles, points=points,
-                      family_by="pair" if by_pair else "gate", progress=tick)
+                      family_by="pair" if by_pair else "gate", hours=hours, progress=tick)
     files = report_files(data)
     from budget.report.files import write_folder
 

@@ -68,6 +68,7 @@ class ReportData:
     model_source: str = ""
     model_rows: tuple[ModelRow, ...] = ()
     notes: tuple[str, ...] = field(default=())
+    extras: Any = None  # budget.report.calib_sections.Extras: provenance, uncertainty band, compensation, schedule
 
     @property
     def title(self) -> str:
@@ -205,6 +206,7 @@ def gather(
     max_cycles: int | None = None,
     points: int = 25,
     family_by: str = "gate",
+    hours: float = 24.0,
     progress: Progress | None = None,
 ) -> ReportData:
     """Run every analysis the report shows.
@@ -215,6 +217,7 @@ def gather(
         cycles: the circuit as analysed is run this many times.
         max_cycles: deepest repetition count of the depth curves (default max(1000, 100 × cycles)).
         points: grid points of the depth curves.
+        hours: horizon of the calibration schedule.
         progress: progress(done, total) over the depth grid.
     """
     from budget.analysis.depth import depth_curve
@@ -242,6 +245,10 @@ def gather(
     tol, plan, why = _tolerances_and_plan(whole, model, metric, target, cycles)
     if why:
         notes.append(why)
+    from budget.report.calib_sections import gather_extras
+
+    extras = gather_extras(structured, errors, model, target=target, cycles=cycles, metric=metric, engine=engine,
+                           max_cycles=deepest, hours=hours)
     return ReportData(
         result=result,
         target=float(target),
@@ -252,6 +259,7 @@ def gather(
         model_source=model.source,
         model_rows=model_rows(model),
         notes=tuple(notes),
+        extras=extras,
     )
 
 

@@ -17,6 +17,10 @@ def figures(data: ReportData) -> dict[str, str]:
     if data.result.families:
         out["family-shares"] = shares_svg(data.result.families, data.result.actual_infidelity)
     out["error-map"] = heatmap_svg(data.emap)
+    if data.extras is not None and data.extras.band is not None:
+        from budget.report.calib_sections import band_svg
+
+        out["uncertainty-band"] = band_svg(data.extras.band)
     return out
 
 

@@ -69,6 +69,9 @@ def build(data: ReportData, figures: dict[str, str]) -> list[Block]:
     out += _error_map(data, figures)
     out += _tolerances(data)
     out += _calibration(data)
+    from budget.report.calib_sections import blocks as calibration_blocks  # import cycle: it uses this module's blocks
+
+    out += calibration_blocks(data.extras, figures)
     out += _model(data)
     out.append(Heading("Engine and validity", "engine"))
     out.append(Para(f"Engine: {r.engine} — {ENGINE_WORDS.get(r.engine, 'see docs/methods.md')}"))
