@@ -100,3 +100,21 @@ def test_cli_json(tmp_path):
     assert "tightest tolerance" in res.output and "model predictions" in res.output
     res = runner.invoke(app, ["plan", str(c), "-e", str(m), "--target", "0.01", "--hours", "-1"])
     assert res.exit_code == 2 and "hours = -1.0" in res.output
+
+
+def test_inline_drift_equals_the_calibration_table(tmp_path):
+    base = "[gates.x]\nduration_ns = 40.0\navg_infidelity = 1e-5\n"
+    c, m1 = files(tmp_path, ONE_X, base + "overrotation = 0.01\n[calibration.drift_rad_per_hour]\n\"x.overrotation\" = 0.003\n")
+    m2 = tmp_path / "inline.toml"
+    m2.write_text(base + "overrotation = { value = 0.01, drift_per_hour = 0.003 }\n")
+    a, b = plan(c, m1, target=2e-2, hours=12, cycles=N), plan(c, m2, target=2e-2, hours=12, cycles=N)
+    assert (a.knobs[0].sigma_rad, a.knobs[0].rounds, a.device_s) == (b.knobs[0].sigma_rad, b.knobs[0].rounds, b.device_s)
+    assert a.knobs[0].rounds > 1
+
+
+def test_an_uncertain_knob_left_alone_counts_its_spread(tmp_path):
+    # δ = 0.001 alone passes (N²δ²/4 = 6.25e-4 < 0.01); known only to σ = 0.004 its mean square is
+    # δ² + σ², N²(δ² + σ²)/4 = 0.0106 > 0.01: it must be calibrated.
+    c, m = files(tmp_path, ONE_X, "[gates.x]\nduration_ns = 40.0\noverrotation = { value = 0.001, sigma = 0.004 }\n")
+    s = plan(c, m, target=1e-2, hours=8, cycles=N)
+    assert s.knobs[0].action == "calibrate"

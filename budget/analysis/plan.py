@@ -3,9 +3,11 @@
 Model (docs/methods.md, *Calibration schedule*). Under the random-sign assumption of
 ``budget tolerances --assume random`` the leading-order infidelity is s + Σ_i A_ii m_i, m_i the
 mean square of knob i (A the quadratic form, s the incoherent floor). A knob measured to a standard
-deviation σ and recalibrated every τ hours while drifting at D rad/hour in an unknown direction has,
+deviation σ and recalibrated every τ hours while drifting at D rad/hour in an unknown direction (the ``[calibration.drift_rad_per_hour]`` rate, else
+the knob's inline ``drift_per_hour``) has,
 at the end of each interval (its worst time), m = σ² + (D τ)². A knob left alone keeps today's
-value δ and drifts for the whole horizon: m = (|δ| + D H)². Each measurement costs device time
+value δ, known to σ_now when the model gives an uncertainty, and drifts for the whole horizon:
+m = (|δ| + D H)² + σ_now². Each measurement costs device time
 c(σ) of amplified phase estimation (:mod:`budget.analysis.calibration`, Kimmel, Low, Yoder,
 PRA 92, 062315 (2015)), paid H/τ times.
 
@@ -35,6 +37,9 @@ from budget.analysis.calibration import CalibrationSettings, SiteRun, _drift_of,
 from budget.analysis.phase_estimation import Probe, find_probes
 from budget.analysis.sensitivity import knob_key, quadratic_form
 from budget.analysis.tolerances import check_target
+from budget.analysis.uncertainty import name_of
+from budget.circuit.gates import ALIASES
+from budget.errors.params import GateParams
 from budget.problems import InputError
 
 SIGMA_STEPS = 16  # σ grid: σ_ref·2^{-j/2}, j = 1..16 (σ_ref: one knob alone using the whole budget)
@@ -100,7 +105,9 @@ def plan(circuit: Any, errors: Any, *, target: float, hours: float, cycles: int 
                          "rates); no calibration of the coherent knobs can meet it")
     probes = find_probes(noisy)
     diag = np.diag(np.asarray(qf.matrix, float))
-    menus = [_menu(label, float(diag[i]), float(qf.values_rad[i]), probes.get(label, ()), settings, budget, hours)
+    spreads = knob_spreads(model)
+    menus = [_menu(label, float(diag[i]), float(qf.values_rad[i]), probes.get(label, ()), settings, budget, hours,
+                   *spreads.get(label, (0.0, 0.0)))
              for i, label in enumerate(qf.labels)]
     choice = _solve(menus, diag, budget, structured.source)
     knobs = tuple(sorted((m[c] for m, c in zip(menus, choice)), key=lambda k: (-k.device_s, k.family, k.knob)))
@@ -110,13 +117,32 @@ def plan(circuit: Any, errors: Any, *, target: float, hours: float, cycles: int 
                     float(sum(k.device_s for k in knobs)), *base)
 
 
+def knob_spreads(model: Any) -> dict[tuple[str, str], tuple[float, float]]:
+    """(family, knob) -> (standard deviation today, drift rad/hour) of knobs the model gives with an
+    uncertainty or an inline ``drift_per_hour`` (the largest over a family's tables; a uniform
+    uncertainty on [low, high] has standard deviation (high - low)/√12)."""
+    out: dict[tuple[str, str], tuple[float, float]] = {}
+    for s in model.uncertain:
+        if s.path[0] != "gates":
+            continue
+        gate = ALIASES.get(s.path[1], s.path[1])
+        knob = name_of(s.path)[0].split(".", 1)[1]
+        family = (model.gates.get(gate) or GateParams()).family or gate
+        sigma = s.sigma or ((s.high - s.low) / math.sqrt(12) if s.low is not None else 0.0)
+        old = out.get((family, knob), (0.0, 0.0))
+        out[(family, knob)] = (max(old[0], sigma), max(old[1], s.drift_per_hour))
+    return out
+
+
 def _menu(label: tuple[str, str], a: float, value: float, sites: tuple[Probe, ...], settings: CalibrationSettings,
-          budget: float, hours: float) -> list[KnobSchedule]:
-    """Every option of one knob: leave it, or (σ, rounds) pairs whose experiment exists."""
+          budget: float, hours: float, sigma_now: float = 0.0, drift_inline: float = 0.0) -> list[KnobSchedule]:
+    """Every option of one knob: leave it, or (σ, rounds) pairs whose experiment exists. A knob left
+    alone has mean square (|δ| + D H)² + σ_now² (today's value, its drift, its uncertainty)."""
     family, knob = label
-    drift = _drift_of(label, settings.drift_rad_per_hour) or 0.0
+    drift = _drift_of(label, settings.drift_rad_per_hour) or drift_inline
     common = dict(per_rad2=a, current_rad=value, drift_rad_per_hour=drift)
-    out = [KnobSchedule(family, knob, "leave", None, None, 0, (), 0.0, 0.0, (abs(value) + drift * hours) ** 2, **common)]
+    leave = (abs(value) + drift * hours) ** 2 + sigma_now**2
+    out = [KnobSchedule(family, knob, "leave", None, None, 0, (), 0.0, 0.0, leave, **common)]
     if a <= 0 or not sites:
         return out
     sigma_ref = math.sqrt(budget / a)

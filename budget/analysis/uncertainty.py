@@ -47,7 +47,7 @@ def varied_values(model: ErrorModel, plain: Mapping[str, Any]) -> tuple[Varied, 
 
     ``plain`` is the model dict with central values (:func:`budget.errors.uncertain.central_values`).
     """
-    out = {s.path: Varied(s, *_name(s.path)) for s in model.uncertain}
+    out = {s.path: Varied(s, *name_of(s.path)) for s in model.uncertain}
     drifts = (model.calibration or {}).get("drift_rad_per_hour", {}) if isinstance(model.calibration, Mapping) else {}
     for key, rate in drifts.items():
         family, _, knob = str(key).rpartition(".")
@@ -58,11 +58,12 @@ def varied_values(model: ErrorModel, plain: Mapping[str, Any]) -> tuple[Varied, 
                     out[path] = Varied(Spread(s.path, s.center, s.sigma, s.low, s.high, float(rate)), out[path].knob,
                                        out[path].site)
             else:
-                out[path] = Varied(Spread(path, float(_get(plain, path)), drift_per_hour=float(rate)), *_name(path))
+                out[path] = Varied(Spread(path, float(_get(plain, path)), drift_per_hour=float(rate)), *name_of(path))
     return tuple(out.values())
 
 
-def _name(path: tuple[str, ...]) -> tuple[str, str]:
+def name_of(path: tuple[str, ...]) -> tuple[str, str]:
+    """(knob, site) of a model path: ``("cz.cphase", "q[1],q[2]")``, ``("t1_us", "all")``."""
     if path[0] == "qubits":
         return (path[-1], path[1] if len(path) == 3 else "all")
     gate, rest = path[1], path[2:]
