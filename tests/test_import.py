@@ -158,10 +158,17 @@ def test_duplicate_rows_are_refused(tmp_path):
         import_tables([t])
 
 
-def test_value_given_in_two_files_is_refused(tmp_path):
-    a = write(tmp_path, "a.csv", "qubit,t1_us\nq[0],100\n")
-    b = write(tmp_path, "b.csv", "qubit,t1_us\nq[0],101\n")
-    with pytest.raises(ModelError, match=r'qubits."q\[0\]".t1_us = 101.0 in b.csv row 2: given twice, also in a.csv row 2'):
+@pytest.mark.parametrize("first,second,message", [
+    # the same value in two files
+    ("qubit,t1_us\nq[0],100\n", "qubit,t1_us\nq[0],101\n",
+     r'qubits."q\[0\]".t1_us = 101.0 in b.csv row 2: given twice, also in a.csv row 2'),
+    # a rule spanning files, checked after merging
+    ("qubit,t1_us\nq[0],40\n", "qubit,t2_us\nq[0],100\n",
+     r'qubits."q\[0\]".t2_us = 100.0 in a.csv \+ b.csv: needs T2 <= 2·T1'),
+])
+def test_two_files_merged(tmp_path, first, second, message):
+    a, b = write(tmp_path, "a.csv", first), write(tmp_path, "b.csv", second)
+    with pytest.raises(ModelError, match=message):
         import_tables([a, b])
 
 
@@ -186,13 +193,6 @@ def test_bad_values_get_the_model_messages_with_file_and_row(tmp_path, row, mess
     t = write(tmp_path, "q.csv", f"qubit,t1_us,t2_us\n{row}\n")
     with pytest.raises(ModelError, match=message):
         import_tables([t])
-
-
-def test_rules_spanning_files_are_checked_after_merging(tmp_path):
-    a = write(tmp_path, "a.csv", "qubit,t1_us\nq[0],40\n")
-    b = write(tmp_path, "b.csv", "qubit,t2_us\nq[0],100\n")
-    with pytest.raises(ModelError, match=r'qubits."q\[0\]".t2_us = 100.0 in a.csv \+ b.csv: needs T2 <= 2·T1'):
-        import_tables([a, b])
 
 
 def test_pauli_error_and_clifford_columns(tmp_path):

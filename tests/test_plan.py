@@ -10,27 +10,17 @@ from __future__ import annotations
 import itertools
 import json
 import math
-from pathlib import Path
 
-import numpy as np
 import pytest
 from typer.testing import CliRunner
 
 from budget.analysis.plan import _menu, plan
 from budget.cli import app
 from budget.problems import InputError
+from calib_cases import ONE_X, X_AND_SX, files
 
 runner = CliRunner()
 N = 50
-ONE_X = 'OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[1];\nx q[0];\n'
-X_AND_SX = 'OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\nx q[0];\nsx q[1];\n'
-
-
-def files(tmp_path: Path, circuit: str, model: str) -> tuple[Path, Path]:
-    c, m = tmp_path / "c.qasm", tmp_path / "m.toml"
-    c.write_text(circuit)
-    m.write_text(model)
-    return c, m
 
 
 def test_no_drift_one_knob_by_hand(tmp_path):

@@ -12,7 +12,6 @@ import json
 import math
 from pathlib import Path
 
-import numpy as np
 import pytest
 from typer.testing import CliRunner
 
@@ -20,19 +19,11 @@ from budget.analysis.sweep import sweep
 from budget.cli import app
 from budget.errors.model import ErrorModel, load_model
 from budget.problems import InputError, ModelError
+from calib_cases import ONE_X, X_AND_SX, files
 
 ROOT = Path(__file__).resolve().parent.parent
 runner = CliRunner()
 
-ONE_X = 'OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[1];\nx q[0];\n'
-X_AND_SX = 'OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\nx q[0];\nsx q[1];\n'
-
-
-def files(tmp_path: Path, circuit: str, model: str) -> tuple[Path, Path]:
-    c, m = tmp_path / "c.qasm", tmp_path / "m.toml"
-    c.write_text(circuit)
-    m.write_text(model)
-    return c, m
 
 
 def test_uncertain_values_load_with_their_central_value():

@@ -22,14 +22,14 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Callable
 
 import numpy as np
 import scipy.linalg
 
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
 from budget.errors.knobs import coherent_error
-from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat
+from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation
 from budget.errors.params import GateParams
 from budget.problems import InputError
 
@@ -121,31 +121,39 @@ def _rz_op(qubit: int, name: str, where: str, angle: float) -> NoisyOperation:
                           knob_values=dict(coh.values))
 
 
+def _extend_blocks(items: tuple, extra: Callable[[int], tuple]) -> tuple:
+    """The same items with ``extra(k)`` appended to the body of the k-th repeated block (pre-order,
+    as :func:`correction_points` numbers them); works on circuits and noisy circuits alike."""
+    counter = [0]
+
+    def walk(items: tuple) -> tuple:
+        out: list = []
+        for it in items:
+            if isinstance(it, (Layer, NoisyLayer)):
+                out.append(it)
+            else:
+                index = counter[0]
+                counter[0] += 1
+                out.append(type(it)(walk(it.body) + extra(index), it.count))
+        return tuple(out)
+
+    return walk(items)
+
+
 def with_corrections(noisy: NoisyCircuit, points: tuple[Point, ...], angles: dict[tuple, float]) -> NoisyCircuit:
     """The noisy circuit with a layer of correction rz at each point; ``angles[(block, qubit)]``
     gives each correction (0 where absent: a knob at zero, for the quadratic form)."""
-    counter = [0]
-
     def layer(point: Point) -> NoisyLayer:
         ops = tuple(_rz_op(q, noisy.qubits[q], point.where, angles.get((point.block, q), 0.0)) for q in point.qubits)
         return NoisyLayer(ops, (), 0.0)
 
     by_block = {p.block: p for p in points}
 
-    def walk(items: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
-        out: list[NoisyItem] = []
-        for it in items:
-            if isinstance(it, NoisyLayer):
-                out.append(it)
-            else:
-                index = counter[0]
-                counter[0] += 1
-                body = walk(it.body)
-                point = by_block.get(index)
-                out.append(NoisyRepeat(body + ((layer(point),) if point and point.qubits else ()), it.count))
-        return tuple(out)
+    def extra(index: int) -> tuple:
+        point = by_block.get(index)
+        return (layer(point),) if point and point.qubits else ()
 
-    body = walk(noisy.body)
+    body = _extend_blocks(noisy.body, extra)
     end = by_block.get(None)
     if end is not None and end.qubits:
         body += (layer(end),)
@@ -209,20 +217,8 @@ def corrected_circuit(circuit: StructuredCircuit, corrections: tuple[Correction,
     by_block: dict[int | None, list[Operation]] = {}
     for k in corrections:
         by_block.setdefault(k.block, []).append(Operation("rz", (k.qubit_index,), (k.angle_rad,)))
-    counter = [0]
+    def extra(index: int) -> tuple:
+        return (Layer(tuple(by_block[index])),) if index in by_block else ()
 
-    def walk(items: tuple) -> tuple:
-        out: list = []
-        for it in items:
-            if isinstance(it, Layer):
-                out.append(it)
-            else:
-                index = counter[0]
-                counter[0] += 1
-                body = walk(it.body)
-                extra = (Layer(tuple(by_block[index])),) if index in by_block else ()
-                out.append(Repeat(body + extra, it.count))
-        return tuple(out)
-
-    body = walk(circuit.body) + ((Layer(tuple(by_block[None])),) if None in by_block else ())
+    body = _extend_blocks(circuit.body, extra) + ((Layer(tuple(by_block[None])),) if None in by_block else ())
     return dataclasses.replace(circuit, body=body)

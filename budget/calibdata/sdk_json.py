@@ -127,7 +127,6 @@ def _metrics(metrics: Any, source: str, one_qubit_gates: tuple[str, ...],
         raise ModelError(f"{source} metrics.metrics: expected a list of metrics")
     qubit: dict[str, dict] = defaultdict(dict)
     gate: dict[tuple[str, str], dict] = defaultdict(dict)
-    places: dict[tuple, str] = {}
     skipped = []
     for k, m in enumerate(metrics):
         where = f"{source} metrics[{k}]"
