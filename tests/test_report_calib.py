@@ -59,5 +59,11 @@ def test_imported_model_shows_its_sources(tmp_path):
     data = gather(ECHO, m, target=0.05, cycles=2, max_cycles=50, points=4)
     rows = {k: note for k, _, note in data.extras.provenance}
     assert rows["qubits.t1_us"] == "fen_q8_qubits.csv row 2, t1 [ms] (ms × 1000)"
-    assert data.extras.band is None  # no uncertainties in that model
-    assert "no uncertainties" in report_files(data)["report.md"]
+    assert data.extras.band is not None  # the gates table gives standard deviations
+
+
+def test_a_model_without_notes_or_uncertainties(tmp_path):
+    data = gather(ECHO, {"gates": {"x": {"overrotation": 0.01}}}, target=0.05, cycles=2, max_cycles=20, points=3)
+    assert data.extras.band is None and data.extras.provenance == ()
+    md = report_files(data)["report.md"]
+    assert "no uncertainties" in md and "carries no notes" in md
