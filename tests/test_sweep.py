@@ -143,3 +143,23 @@ def test_cli_json_schema_and_bad_input(tmp_path):
 
 def test_model_examples_still_load():
     load_model(ROOT / "circuits" / "fen_q8.toml")
+
+
+def test_uncertain_t1_against_the_coherence_limit_formula(tmp_path):
+    # One X of 40 ns, T2 = 100 µs fixed, T1 uniform on [80, 120] µs. Per draw the average fidelity is
+    # (3 + e^{-t/T1} + 2 e^{-t/T2})/6 (design.md §6, widely used) and F_pro = (3 F_avg - 1)/2
+    # (Nielsen 2002, d = 2); the sweep's mean must match its average over T1 (scipy quad).
+    from scipy.integrate import quad
+
+    c, m = files(tmp_path, ONE_X, "[qubits]\nt1_us = { low = 80.0, high = 120.0 }\nt2_us = 100.0\n"
+                                  "[gates.x]\nduration_ns = 40.0\n")
+    r = sweep(c, m, samples=64, workers=1, sobol_base=0)
+    t = 0.040
+
+    def infidelity(t1: float) -> float:
+        f_avg = (3 + math.exp(-t / t1) + 2 * math.exp(-t / 100.0)) / 6
+        return 1 - (3 * f_avg - 1) / 2
+
+    expected = quad(infidelity, 80.0, 120.0)[0] / 40.0
+    assert abs(r.now.mean - expected) < 3 * r.now.mean_stderr + 1e-12
+    assert r.now.q05 < expected < r.now.q95
