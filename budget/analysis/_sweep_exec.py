@@ -141,13 +141,13 @@ def _dask(context: Context, chunks: list, scheduler: Any) -> Iterable[list]:
         own = client = distributed.Client(distributed.LocalCluster(), set_as_default=False)
     else:
         try:
-            own = client = distributed.Client(scheduler, timeout="20s", set_as_default=False)
+            own = client = distributed.Client(scheduler, timeout="5s", set_as_default=False)
         except (OSError, TimeoutError, ValueError) as e:
             raise InputError(f"--scheduler {scheduler}: cannot reach a Dask scheduler there ({e})") from None
     try:
         shared = client.scatter(context, broadcast=True)
         futures = [client.submit(evaluate, shared, chunk, pure=False) for chunk in chunks]
-        for f in distributed.as_completed(futures):
+        for f in distributed.as_completed(futures, loop=client.loop):
             yield f.result()
     finally:
         if own is not None:

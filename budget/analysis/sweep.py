@@ -17,7 +17,8 @@ Method (docs/methods.md, sweeps):
   Saltelli design (Saltelli et al., Comput. Phys. Commun. 181, 259 (2010)): two scrambled Sobol'
   point sets A and B and, per uncertain value i, A with column i from B; n·(d+2) evaluations for
   base size n; estimators of ``scipy.stats.sobol_indices`` (Saltelli 2010 first order, Jansen 1999
-  total order). The total index S_T,i is the share of the variance that value i takes part in.
+  total order). The total index S_T,i is the share of the variance that value i takes part in;
+  its 90 % bootstrap interval (seeded) states the estimator's own error.
 """
 
 from __future__ import annotations
@@ -33,6 +34,8 @@ from budget.analysis._sweep_exec import Context, Stream, run_tasks
 from budget.analysis.uncertainty import Varied, at_hour, draw, varied_values
 from budget.errors.uncertain import central_values
 from budget.problems import InputError
+
+BOOTSTRAP = 200  # resamples for the Sobol indices' confidence intervals
 
 
 @dataclass(frozen=True)
@@ -58,12 +61,15 @@ class Distribution:
 
 @dataclass(frozen=True)
 class Contribution:
-    """One uncertain value's Sobol indices: total order (``index``) and first order."""
+    """One uncertain value's Sobol indices: total order (``index``) with its 90 % bootstrap
+    interval (``index_low``, ``index_high``; the estimator's own Monte Carlo error), and first order."""
 
     knob: str
     site: str
     index: float
     first_order: float
+    index_low: float | None = None
+    index_high: float | None = None
 
 
 @dataclass(frozen=True)
@@ -143,7 +149,7 @@ def sweep(circuit: Any, errors: Any, *, samples: int = 2000, hours: float = 0.0,
     res = stream.done
     dists = tuple((h, Distribution.of(np.array([res[("mc", k, t)] for k in range(samples)]), target))
                   for t, h in enumerate(times))
-    contributions = _sobol(res, varied, random, n_sobol) if n_sobol else ()
+    contributions = _sobol(res, varied, random, n_sobol, seed) if n_sobol else ()
     if len(random) == 1 and sobol_base and dists[0][1].std > 0:
         v = varied[random[0]]
         contributions = (Contribution(v.knob, v.site, 1.0, 1.0),)
@@ -188,14 +194,17 @@ def _saltelli_tasks(varied: tuple[Varied, ...], random: list[int], n: int, seed:
     return tasks
 
 
-def _sobol(res: dict, varied: tuple[Varied, ...], random: list[int], n: int) -> tuple[Contribution, ...]:
+def _sobol(res: dict, varied: tuple[Varied, ...], random: list[int], n: int, seed: int) -> tuple[Contribution, ...]:
     f_a = np.array([[res[("sobol", "A", j)] for j in range(n)]])
     f_b = np.array([[res[("sobol", "B", j)] for j in range(n)]])
     f_ab = np.array([[[res[("sobol", f"AB{i}", j)] for j in range(n)]] for i in range(len(random))])
     if np.var(np.concatenate([f_a, f_b], axis=1)) == 0:
         return tuple(Contribution(varied[i].knob, varied[i].site, 0.0, 0.0) for i in random)
-    idx = stats.sobol_indices(func={"f_A": f_a, "f_B": f_b, "f_AB": f_ab}, n=n)
+    idx = stats.sobol_indices(func={"f_A": f_a, "f_B": f_b, "f_AB": f_ab}, n=n, rng=np.random.default_rng(seed))
     first, total = np.atleast_2d(idx.first_order), np.atleast_2d(idx.total_order)
-    out = [Contribution(varied[i].knob, varied[i].site, float(total[0, j]), float(first[0, j]))
+    ci = idx.bootstrap(confidence_level=0.9, n_resamples=BOOTSTRAP).total_order.confidence_interval
+    low, high = np.atleast_2d(ci.low), np.atleast_2d(ci.high)
+    out = [Contribution(varied[i].knob, varied[i].site, float(total[0, j]), float(first[0, j]),
+                        float(low[0, j]), float(high[0, j]))
            for j, i in enumerate(random)]
     return tuple(sorted(out, key=lambda c: -c.index))

@@ -51,11 +51,14 @@ def render_sweep(result) -> Group:
     if result.contributions:
         t = Table(title=f"share of the spread (Sobol indices, Saltelli design, base {result.sobol_base})",
                   title_justify="left")
-        for col in ("value", "site", "total index", "first order"):
-            t.add_column(col, justify="right" if "index" in col or "order" in col else "left")
+        for col in ("value", "site", "total index", "90 % interval", "first order"):
+            t.add_column(col, justify="left" if col in ("value", "site") else "right")
         for c in result.contributions:
-            t.add_row(c.knob, c.site, f"{c.index:.3f}", f"{c.first_order:.3f}")
+            ci = "—" if c.index_low is None else f"[{c.index_low:.3f}, {c.index_high:.3f}]"
+            t.add_row(c.knob, c.site, f"{c.index:.3f}", ci, f"{c.first_order:.3f}")
         parts.append(t)
+        if any(c.index_low is not None and c.index_high - c.index_low > 0.2 for c in result.contributions):
+            parts.append(Text("wide intervals: the design is small for these values; raise --sobol-base", style="yellow"))
     parts.append(Text(CAUTION, style="dim"))
     return Group(*parts)
 
