@@ -16,8 +16,11 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable, Iterable, Mapping
 
+from budget.analysis.select import choose_engine
 from budget.analysis.uncertainty import with_values
 from budget.circuit.ir import StructuredCircuit
+from budget.errors.attach import attach
+from budget.errors.model import ErrorModel
 from budget.problems import InputError
 
 
@@ -36,10 +39,6 @@ class Context:
 
 def evaluate(context: Context, chunk: list[tuple[tuple, list[float]]]) -> list[tuple[tuple, float]]:
     """The infidelity of each task's drawn model (the engine's brief path, as depth curves use)."""
-    from budget.analysis.select import choose_engine
-    from budget.errors.attach import attach
-    from budget.errors.model import ErrorModel
-
     out = []
     for key, values in chunk:
         model = ErrorModel.from_dict(with_values(context.plain, context.paths, values), source=context.source)

@@ -27,7 +27,11 @@ from typing import Any, Callable
 import numpy as np
 import scipy.linalg
 
+from budget.analysis.run import read_circuit, read_model
+from budget.analysis.select import choose_engine
+from budget.analysis.sensitivity import quadratic_form
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
+from budget.errors.attach import attach
 from budget.errors.knobs import coherent_error
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation
 from budget.errors.params import GateParams
@@ -170,11 +174,6 @@ def compensate(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "pro
         form_engine: the engine that builds the quadratic form (``"auto"``, ``"clifford"``, ``"generators"``).
         points: ``"all"``, ``"blocks"`` (end of each repeated block) or ``"end"`` (end of circuit).
     """
-    from budget.analysis.run import read_circuit, read_model
-    from budget.analysis.select import choose_engine
-    from budget.analysis.sensitivity import quadratic_form
-    from budget.errors.attach import attach
-
     if points not in POINTS:
         raise InputError(f"points = {points!r}: expected one of {', '.join(POINTS)}")
     structured = read_circuit(circuit).with_cycles(cycles)

@@ -35,10 +35,12 @@ from scipy.optimize import Bounds, LinearConstraint, milp
 
 from budget.analysis.calibration import CalibrationSettings, SiteRun, _drift_of, _site, read_calibration
 from budget.analysis.phase_estimation import Probe, find_probes
+from budget.analysis.run import read_circuit, read_model
 from budget.analysis.sensitivity import knob_key, quadratic_form
-from budget.analysis.tolerances import check_target
+from budget.analysis.tolerances import check_target, tolerances
 from budget.analysis.uncertainty import name_of
 from budget.circuit.gates import ALIASES
+from budget.errors.attach import attach
 from budget.errors.params import GateParams
 from budget.problems import InputError
 
@@ -88,9 +90,6 @@ class Schedule:
 def plan(circuit: Any, errors: Any, *, target: float, hours: float, cycles: int = 1, metric: str = "process",
          engine: str = "auto") -> Schedule:
     """The cheapest calibration schedule keeping the predicted infidelity below ``target`` for ``hours``."""
-    from budget.analysis.run import read_circuit, read_model
-    from budget.errors.attach import attach
-
     target = check_target(target)
     if isinstance(hours, bool) or not isinstance(hours, (int, float)) or not 0 < hours < math.inf:
         raise InputError(f"hours = {hours!r}: expected a positive number of hours")
@@ -187,8 +186,6 @@ def _solve(menus: list[list[KnobSchedule]], diag: np.ndarray, budget: float, sou
 
 def _baseline(menus, diag, budget, qf, settings, probes, hours, target) -> tuple:
     """Every calibratable knob at σ = t_min/k (equal-share tolerances, random signs), common rounds."""
-    from budget.analysis.tolerances import tolerances
-
     report = tolerances(qf, target, assume="random", allocation="equal")
     finite = [r.tolerance_rad for r in report.rows if 0 < r.tolerance_rad < math.inf]
     if not finite:

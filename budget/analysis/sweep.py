@@ -24,14 +24,18 @@ Method (docs/methods.md, sweeps):
 from __future__ import annotations
 
 import math
+import tomllib
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any, Callable
 
 import numpy as np
 from scipy import stats
 
 from budget.analysis._sweep_exec import Context, Stream, run_tasks
+from budget.analysis.run import read_circuit
 from budget.analysis.uncertainty import Varied, at_hour, draw, varied_values
+from budget.errors.model import ErrorModel, load_model
 from budget.errors.uncertain import central_values
 from budget.problems import InputError
 
@@ -114,8 +118,6 @@ def sweep(circuit: Any, errors: Any, *, samples: int = 2000, hours: float = 0.0,
             (``"local"``, an address, or a ``distributed.Client``); overrides ``workers``.
         progress: ``progress(done, total)`` callback.
     """
-    from budget.analysis.run import read_circuit
-
     if isinstance(samples, bool) or not isinstance(samples, int) or samples < 2:
         raise InputError(f"samples = {samples!r}: expected a whole number >= 2")
     if not (isinstance(hours, (int, float)) and math.isfinite(hours) and hours >= 0):
@@ -159,11 +161,6 @@ def sweep(circuit: Any, errors: Any, *, samples: int = 2000, hours: float = 0.0,
 
 def _raw_model(errors: Any) -> tuple[dict, Any]:
     """The model as a dict with its uncertainty tables kept (for drawing), and the validated model."""
-    import tomllib
-    from pathlib import Path
-
-    from budget.errors.model import ErrorModel, load_model
-
     if isinstance(errors, dict):
         return errors, ErrorModel.from_dict(errors)
     model = load_model(errors)  # every rule checked first, with the loader's messages

@@ -19,6 +19,7 @@ from typing import Any, Sequence
 
 import tomlkit
 
+from budget.analysis.run import read_circuit
 from budget.calibdata.csv_tables import read_csv
 from budget.calibdata.records import Entry, Imported, merge, off_circuit
 from budget.calibdata.sdk_json import read_json
@@ -67,8 +68,6 @@ def import_tables(
     ErrorModel.from_dict(data, source=" + ".join(names))
     off: tuple[str, ...] = ()
     if circuit is not None:
-        from budget.analysis.run import read_circuit
-
         off = off_circuit(entries, read_circuit(circuit))
     return Imported(data, notes, names, tuple(skipped), off)
 

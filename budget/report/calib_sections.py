@@ -14,7 +14,16 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+import tomlkit
 
+from budget.analysis.compensate import compensate
+from budget.analysis.depth import depth_curve
+from budget.analysis.plan import plan
+from budget.analysis.uncertainty import draw, varied_values, with_values
+from budget.errors.attach import attach
+from budget.errors.model import ErrorModel, key_path
+from budget.errors.uncertain import central_values
+from budget.problems import InputError
 from budget.report.content import minutes, num
 from budget.report.sections import Block, Figure, Heading, Para, Table
 
@@ -51,10 +60,6 @@ class Extras:
 def provenance_rows(path: str | Path) -> tuple[tuple[tuple[str, str, str], ...], int]:
     """(key path, value, comment) for every value or table of a TOML model that carries a comment
     (an imported model says where each value came from), and the number of values without one."""
-    import tomlkit
-
-    from budget.errors.model import key_path
-
     rows: list[tuple[str, str, str]] = []
     bare = 0
 
@@ -82,10 +87,6 @@ def provenance_rows(path: str | Path) -> tuple[tuple[tuple[str, str, str], ...],
 def gather_extras(structured: Any, errors: Any, model: Any, *, target: float, cycles: int, metric: str, engine: str,
                   max_cycles: int, hours: float, band_samples: int = BAND_SAMPLES) -> Extras:
     """Run the four analyses; each failure of fit (too large, no repeated block) becomes a note."""
-    from budget.analysis.compensate import compensate
-    from budget.analysis.plan import plan
-    from budget.problems import InputError
-
     notes: list[str] = []
     prov, bare = ((), 0)
     if isinstance(errors, (str, Path)):
@@ -110,12 +111,6 @@ def gather_extras(structured: Any, errors: Any, model: Any, *, target: float, cy
 
 def _band(structured, errors, model, max_cycles, metric, engine, target, samples) -> Band:
     """Depth curves (8 points) of ``samples`` drawn models (seeded: sample k uses rng([1, k]))."""
-    from budget.analysis.depth import depth_curve
-    from budget.analysis.uncertainty import draw, varied_values, with_values
-    from budget.errors.attach import attach
-    from budget.errors.model import ErrorModel
-    from budget.errors.uncertain import central_values
-
     raw = errors if isinstance(errors, dict) else tomllib.loads(Path(errors).read_text(encoding="utf-8"))
     plain, _ = central_values(raw, model.source)
     varied = tuple(v for v in varied_values(model, plain) if v.spread.random)
@@ -133,9 +128,9 @@ def _band(structured, errors, model, max_cycles, metric, engine, target, samples
 
 def band_svg(band: Band) -> str:
     """The accumulated curve of the central model with the 5-95 % band of the drawn models."""
-    import matplotlib.pyplot as plt
+    import matplotlib.pyplot as plt  # slow import: only reports with an uncertainty band draw it
 
-    from budget.report.plots import _STYLE, _svg, COLOURS, GRID, INK
+    from budget.report.plots import _STYLE, _svg, COLOURS, GRID, INK  # loads matplotlib too
 
     with plt.rc_context(_STYLE):
         fig, ax = plt.subplots(figsize=(7.2, 4.0))

@@ -6,6 +6,7 @@ import math
 from pathlib import Path
 
 from rich.console import Group
+from rich.table import Table
 from rich.text import Text
 
 CAUTION = "Numbers are model predictions, to be confirmed on the device; local lab practice decides."
@@ -28,8 +29,6 @@ def _e(x: float | None) -> str:
 
 def render_sweep(result) -> Group:
     """Distribution now, over the drift hours, and the Sobol indices."""
-    from rich.table import Table
-
     d = result.now
     varied = ", ".join(f"{v.knob}@{v.site}" for v in result.varied) or "none (the model gives no uncertainty)"
     head = [
@@ -65,8 +64,6 @@ def render_sweep(result) -> Group:
 
 def render_compensation(result) -> Group:
     """Corrections, and the infidelity before and after (engine and first-order prediction)."""
-    from rich.table import Table
-
     parts: list = [Text.assemble(("free compensation (virtual Z): ", "bold"), f"{result.source}, {result.metric} "
                                  f"metric, verified with the {result.engine} engine")]
     t = Table(title_justify="left")
@@ -90,8 +87,6 @@ def render_compensation(result) -> Group:
 
 def render_schedule(s) -> Group:
     """The schedule: per knob what, how precisely, how often, shots and depth, device time."""
-    from rich.table import Table
-
     parts: list = [
         Text.assemble(("calibration schedule: ", "bold"), f"{s.source}, target {s.target:g} for {s.hours:g} h "
                       f"(incoherent floor {_e(s.floor)}, predicted at the worst time {_e(s.predicted)})"),

@@ -245,7 +245,7 @@ def gather(
     tol, plan, why = _tolerances_and_plan(whole, model, metric, target, cycles)
     if why:
         notes.append(why)
-    from budget.report.calib_sections import gather_extras
+    from budget.report.calib_sections import gather_extras  # import cycle: it builds on this module and sections
 
     extras = gather_extras(structured, errors, model, target=target, cycles=cycles, metric=metric, engine=engine,
                            max_cycles=deepest, hours=hours)
