@@ -459,6 +459,8 @@ def compensate(
     engine: EngineChoice = EngineOpt,
     points: PointsChoice = typer.Option(PointsChoice.all, "--points", help="Where corrections go: the end of each "
                                         "repeated block (after every repetition), the end of the circuit, or both."),
+    echoes: bool = typer.Option(False, "--echoes", help="Also try an x pulse pair on each waiting qubit of each "
+                                "repeated block (one engine run per candidate) and suggest those that help."),
     json_path: Optional[Path] = typer.Option(None, "--json", help="Write before/after and the corrections as JSON."),
     out_circuit: Optional[Path] = typer.Option(None, "--out-circuit", help="Write the corrected circuit (OpenQASM 3 "
                                                "with the added rz gates)."),
@@ -478,6 +480,13 @@ def compensate(
     result = run_compensate(str(circuit), str(errors), cycles=cycles, metric=metric.value, engine=engine.value,
                             points=points.value)
     structured = read_circuit(str(circuit)).with_cycles(cycles)
+    if echoes:
+        import dataclasses
+
+        from budget.analysis.echo import echo_suggestions
+
+        result = dataclasses.replace(result, echoes=echo_suggestions(
+            structured, read_model(str(errors)), metric=metric.value, engine=engine.value, before=result.before))
     texts: dict[Path, str] = {}
     if out_circuit is not None:
         from budget.circuit.qasm_write import to_qasm3

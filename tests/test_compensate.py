@@ -131,3 +131,49 @@ def test_cli_outputs_and_folded_model(tmp_path):
     res = runner.invoke(app, ["compensate", str(circuit), "-e", str(model), "--out-model", str(tmp_path / "no.toml")])
     assert res.exit_code == 2 and "cannot go into a gate's z_phase" in res.output
     assert not (tmp_path / "no.toml").exists()
+
+
+# ---- echo suggestions ----
+
+def _cirq_ideal(circuit) -> np.ndarray:
+    """cirq unitary of the ideal circuit, unrolled (the memory examples use only id and x)."""
+    qs = cirq.LineQubit.range(circuit.num_qubits)
+    gates = {"id": cirq.I, "x": cirq.X}
+    ops = [gates[op.gate].on(*(qs[q] for q in op.qubits)) for layer in circuit.iter_layers() for op in layer.operations]
+    return cirq.Circuit(ops).unitary(qubit_order=qs, qubits_that_should_be_present=qs)
+
+
+def test_echo_on_a_waiting_qubit_cancels_spectator_zz():
+    from budget.analysis.echo import echo_suggestions, with_echo
+    from budget.circuit.load import load_circuit
+    from budget.errors.model import load_model
+
+    circuit = load_circuit(ROOT / "circuits" / "pair_memory_zz.qasm").with_cycles(5)
+    model = load_model(ROOT / "circuits" / "fen_pair_zz.toml")
+    before = analyze(circuit, model).actual_infidelity
+    (echo,) = echo_suggestions(circuit, model)
+    assert echo.qubit == "q[1]" and echo.infidelity < 0.8 * before  # q[0] is never idle (its id spans)
+    echoed = with_echo(circuit, echo.block, 1, (echo.layers[0] - 1, echo.layers[1] - 1))
+    assert analyze(echoed, model).actual_infidelity == pytest.approx(echo.infidelity, rel=1e-12)
+    # the ideal circuit is unchanged (cirq unitaries, up to global phase)
+    u, v = _cirq_ideal(circuit.unrolled()), _cirq_ideal(echoed.unrolled())
+    assert abs(abs(np.trace(u.conj().T @ v)) / u.shape[0] - 1) < 1e-12
+
+
+def test_no_echo_when_nothing_builds_up(tmp_path):
+    from budget.analysis.echo import echo_suggestions
+    from budget.circuit.load import load_circuit
+    from budget.errors.model import ErrorModel
+
+    circuit = load_circuit(ROOT / "circuits" / "pair_memory_zz.qasm").with_cycles(5)
+    model = ErrorModel.from_dict({"gates": {"id": {"duration_ns": 200.0}, "x": {"duration_ns": 40.0, "overrotation": 0.01}}})
+    assert echo_suggestions(circuit, model) == ()
+
+
+def test_cli_echoes_in_json(tmp_path):
+    j = tmp_path / "e.json"
+    res = runner.invoke(app, ["compensate", str(ROOT / "circuits" / "pair_memory_zz.qasm"), "-e",
+                              str(ROOT / "circuits" / "fen_pair_zz.toml"), "--cycles", "5", "--echoes", "--json", str(j)])
+    assert res.exit_code == 0, res.output
+    (echo,) = json.loads(j.read_text())["echoes"]
+    assert echo["qubit"] == "q[1]" and echo["infidelity"] < json.loads(j.read_text())["before"]["infidelity"]

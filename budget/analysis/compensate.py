@@ -73,21 +73,27 @@ class Compensation:
     before_first_order: float
     after_first_order: float
     corrections: tuple[Correction, ...]
+    echoes: tuple | None = None  # budget.analysis.echo.Echo suggestions, when asked for
 
     def to_dict(self) -> dict:
         """The documented JSON (docs/json-schema.md, ``budget compensate``)."""
-        return {
+        out = {
             "before": {"infidelity": self.before, "first_order": self.before_first_order},
             "after": {"infidelity": self.after, "first_order": self.after_first_order},
             "corrections": [{"qubit": c.qubit, "where": c.where, "angle_rad": c.angle_rad} for c in self.corrections],
         }
+        if self.echoes is not None:
+            out["echoes"] = [{"qubit": e.qubit, "where": e.where, "layers": list(e.layers), "lines": list(e.lines),
+                              "infidelity": e.infidelity} for e in self.echoes]
+        return out
 
 
 POINTS = ("all", "blocks", "end")
 
 
 def correction_points(circuit: StructuredCircuit, which: str = "all") -> tuple[Point, ...]:
-    """The end of each repeated block (pre-order; its qubits) and the end of the circuit (all qubits).
+    """The end of each repeated block (pre-order) and the end of the circuit, every qubit at each (a
+    qubit idle in a block still collects errors there: relaxation, and spectator couplings).
 
     ``which``: ``"all"``, ``"blocks"`` (block ends only) or ``"end"`` (end of circuit only); a
     block left out keeps its index, with no qubits."""
@@ -99,7 +105,7 @@ def correction_points(circuit: StructuredCircuit, which: str = "all") -> tuple[P
                 ops = _ops(it.body)
                 line = next((o.line for o in ops if o.line is not None), None)
                 index = len(points)
-                qubits = tuple(sorted({q for o in ops for q in o.qubits})) if which != "end" else ()
+                qubits = tuple(range(circuit.num_qubits)) if which != "end" else ()
                 points.append(Point(index, qubits,
                                     f"end of block {index + 1}" + (f" (line {line})" if line else "")
                                     + f", after each of its {it.count} repetitions"))
@@ -125,9 +131,10 @@ def _rz_op(qubit: int, name: str, where: str, angle: float) -> NoisyOperation:
                           knob_values=dict(coh.values))
 
 
-def _extend_blocks(items: tuple, extra: Callable[[int], tuple]) -> tuple:
-    """The same items with ``extra(k)`` appended to the body of the k-th repeated block (pre-order,
-    as :func:`correction_points` numbers them); works on circuits and noisy circuits alike."""
+def map_blocks(items: tuple, fn: Callable[[int, tuple], tuple]) -> tuple:
+    """The same items with the body of the k-th repeated block (pre-order, as
+    :func:`correction_points` numbers them) replaced by ``fn(k, body)``, inner blocks first;
+    works on circuits and noisy circuits alike."""
     counter = [0]
 
     def walk(items: tuple) -> tuple:
@@ -138,10 +145,15 @@ def _extend_blocks(items: tuple, extra: Callable[[int], tuple]) -> tuple:
             else:
                 index = counter[0]
                 counter[0] += 1
-                out.append(type(it)(walk(it.body) + extra(index), it.count))
+                out.append(type(it)(fn(index, walk(it.body)), it.count))
         return tuple(out)
 
     return walk(items)
+
+
+def _extend_blocks(items: tuple, extra: Callable[[int], tuple]) -> tuple:
+    """The same items with ``extra(k)`` appended to the body of the k-th repeated block."""
+    return map_blocks(items, lambda k, body: body + extra(k))
 
 
 def with_corrections(noisy: NoisyCircuit, points: tuple[Point, ...], angles: dict[tuple, float]) -> NoisyCircuit:

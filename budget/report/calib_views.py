@@ -81,6 +81,18 @@ def render_compensation(result) -> Group:
         parts.append(c)
     else:
         parts.append(Text("no virtual-Z correction lowers the leading-order infidelity"))
+    if result.echoes:
+        e = Table(title="echo suggestions (x on the qubit in both layers of the block; the ideal circuit is unchanged)",
+                  title_justify="left")
+        for col in ("qubit", "block", "layers (lines)", "infidelity with it"):
+            e.add_column(col, justify="right" if col.startswith("infidelity") else "left")
+        for k in result.echoes:
+            lines = ", ".join("?" if x is None else str(x) for x in k.lines)
+            block = k.where.split(",")[0].removeprefix("end of ")
+            e.add_row(k.qubit, block, f"{k.layers[0]} and {k.layers[1]} ({lines})", _e(k.infidelity))
+        parts.append(e)
+    elif result.echoes is not None:
+        parts.append(Text("no x-pair echo on a waiting qubit lowers the infidelity"))
     parts.append(Text(CAUTION, style="dim"))
     return Group(*parts)
 
