@@ -75,7 +75,8 @@ def test_sobol_indices_are_variance_shares(tmp_path):
     for c in r.contributions:
         assert c.index == pytest.approx(shares[c.knob], abs=0.04)
         assert c.first_order == pytest.approx(shares[c.knob], abs=0.04)
-        assert c.index_low <= c.index <= c.index_high and c.index_high - c.index_low < 0.2
+        assert c.index_low <= shares[c.knob] <= c.index_high  # the 90 % bootstrap interval holds the true share
+        assert c.index_high - c.index_low < 0.3
 
 
 def test_drift_moves_the_distribution_as_the_calibration_table_says(tmp_path):

@@ -197,9 +197,16 @@ def _sobol(res: dict, varied: tuple[Varied, ...], random: list[int], n: int, see
     f_ab = np.array([[[res[("sobol", f"AB{i}", j)] for j in range(n)]] for i in range(len(random))])
     if np.var(np.concatenate([f_a, f_b], axis=1)) == 0:
         return tuple(Contribution(varied[i].knob, varied[i].site, 0.0, 0.0) for i in random)
-    idx = stats.sobol_indices(func={"f_A": f_a, "f_B": f_b, "f_AB": f_ab}, n=n, rng=np.random.default_rng(seed))
+    idx = stats.sobol_indices(func={"f_A": f_a, "f_B": f_b, "f_AB": f_ab}, n=n)
     first, total = np.atleast_2d(idx.first_order), np.atleast_2d(idx.total_order)
-    ci = idx.bootstrap(confidence_level=0.9, n_resamples=BOOTSTRAP).total_order.confidence_interval
+
+    def total_of(rows: np.ndarray) -> np.ndarray:  # the same estimator on resampled rows of the design
+        r = stats.sobol_indices(func={"f_A": f_a[:, rows], "f_B": f_b[:, rows], "f_AB": f_ab[..., rows]}, n=n)
+        return np.atleast_2d(r.total_order)[0]
+
+    # seeded percentile bootstrap (SobolResult.bootstrap draws unseeded numbers)
+    ci = stats.bootstrap((np.arange(n),), total_of, vectorized=False, n_resamples=BOOTSTRAP, confidence_level=0.9,
+                         method="percentile", rng=np.random.default_rng(seed)).confidence_interval
     low, high = np.atleast_2d(ci.low), np.atleast_2d(ci.high)
     out = [Contribution(varied[i].knob, varied[i].site, float(total[0, j]), float(first[0, j]),
                         float(low[0, j]), float(high[0, j]))
