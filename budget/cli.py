@@ -20,8 +20,8 @@ app = typer.Typer(
     add_completion=False,
     no_args_is_help=True,
     pretty_exceptions_enable=False,
-    help="Error budgets for structured quantum circuits: naive fidelity product versus actual "
-    "accumulation of coherent and incoherent gate errors.",
+    help="Error budgets for structured quantum circuits: naive fidelity product versus accumulated "
+    "infidelity of coherent and incoherent gate errors.",
 )
 
 EXAMPLES = Path(__file__).resolve().parent.parent / "circuits"
@@ -56,9 +56,43 @@ def user_errors(fn: Callable) -> Callable:
 
 
 def check_output_path(path: Optional[Path], option: str) -> None:
-    """Refuse early an output path whose folder does not exist (so nothing half-written appears)."""
-    if path is not None and not path.resolve().parent.is_dir():
-        raise InputError(f"{option} {path}: the folder {path.resolve().parent} does not exist")
+    """Refuse early an output path that cannot be written (no folder, a folder, a block device),
+    so nothing half-written appears; ``-`` is standard output."""
+    if path is not None:
+        from budget.report.files import resolve_output
+
+        try:
+            resolve_output(path)
+        except InputError as exc:
+            raise InputError(f"{option} {exc}") from None
+
+
+def to_stdout(*paths: Optional[Path]) -> bool:
+    """True when an output goes to standard output (``-``): the terminal view then goes to stderr."""
+    return any(p is not None and str(p) == "-" for p in paths)
+
+
+def grouping(by_pair: bool, by_operation: bool) -> str:
+    """The family grouping of --by-pair / --by-operation (one at most)."""
+    if by_pair and by_operation:
+        raise InputError("--by-pair and --by-operation: choose one grouping")
+    return "operation" if by_operation else "pair" if by_pair else "gate"
+
+
+def _version(value: bool) -> None:
+    if value:
+        from importlib.metadata import version
+
+        typer.echo(f"budget {version('budget')}")
+        raise typer.Exit()
+
+
+@app.callback()
+def main_options(
+    version: bool = typer.Option(False, "--version", callback=_version, is_eager=True, help="Print the version and exit."),
+) -> None:
+    """Error budgets for structured quantum circuits: naive fidelity product versus accumulated
+    infidelity of coherent and incoherent gate errors."""
 
 
 CircuitArg = typer.Argument(..., help="OpenQASM 2/3 file or cirq JSON file.", show_default=False)
@@ -68,6 +102,7 @@ MetricOpt = typer.Option(MetricChoice.process, "--metric", "-m", help="process: 
 EngineOpt = typer.Option(EngineChoice.auto, "--engine", help="auto picks the most accurate engine that fits.")
 QuietOpt = typer.Option(False, "--quiet", "-q", help="No progress bar on stderr.")
 ByPairOpt = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate.")
+ByOperationOpt = typer.Option(False, "--by-operation", help="One family per operation as written (line numbers).")
 WidthOpt = typer.Option(None, "--width", help="Report width in characters (default: terminal).")
 
 
@@ -81,79 +116,39 @@ def analyze(
     engine: EngineChoice = EngineOpt,
     observable: List[str] = typer.Option([], "--observable", "-o", help="Pauli observable such as Z0Z1 (repeatable)."),
     by_pair: bool = ByPairOpt,
+    by_operation: bool = ByOperationOpt,
     compare_twirled: bool = typer.Option(False, "--compare-twirled", help="Also analyse the Pauli-twirled variant."),
-    json_path: Optional[Path] = typer.Option(None, "--json", help="Write the result as JSON (schema in docs/json-schema.md)."),
+    json_path: Optional[Path] = typer.Option(None, "--json", help="Write the result as JSON (schema in "
+                                             "docs/json-schema.md); - for standard output."),
     width: Optional[int] = WidthOpt,
     against: Optional[str] = typer.Option(
-        None, "--against", help="Second circuit file, or 'random' for a random circuit with the same gate counts, "
-        "analysed under the same error model and shown side by side."),
+        None, "--against", help="Second circuit file, or 'random' for random circuits with the same layers and "
+        "gates in random order, analysed under the same error model and shown side by side."),
+    draws: int = typer.Option(10, "--draws", min=2, max=1000, help="Random counterparts for --against random "
+                              "(mean and spread)."),
     ensemble: int = typer.Option(0, "--ensemble", min=0, help="Also run N randomly compiled copies (random Pauli "
                                  "frames around each two-qubit layer): mean and spread of the infidelity."),
-    seed: int = typer.Option(1, "--seed", min=0, help="Seed for --ensemble and --against random."),
+    seed: int = typer.Option(1, "--seed", min=0, help="First seed for --ensemble and --against random."),
     quiet: bool = QuietOpt,
 ) -> None:
-    """Naive fidelity product versus actual accumulation, with each gate family's share."""
-    from budget.analysis.run import analyze as run_analysis
+    """Naive fidelity product versus accumulated infidelity, with each gate family's share."""
+    from budget.analysis.compose import analyze_all
     from budget.report.json_out import write_json
-    from budget.report.terminal import render_budget
+    from budget.report.progress import progress_bar
+    from budget.report.terminal_views import render_analysis
 
     check_output_path(json_path, "--json")
-    result = run_analysis(
-        str(circuit),
-        str(errors),
-        cycles=cycles,
-        metric=metric.value,
-        engine=engine.value,
-        observables=tuple(observable),
-        family_by="pair" if by_pair else "gate",
-        compare_twirled=compare_twirled,
-    )
-    extra, views = _analyze_extras(circuit, errors, result, against=against, ensemble=ensemble, seed=seed,
-                                   cycles=cycles, metric=metric.value, engine=engine.value, by_pair=by_pair, quiet=quiet)
-    console = make_console(width=width)
-    console.print(render_budget(result))
-    for view in views:
+    family_by = grouping(by_pair, by_operation)
+    extra = against == "random" or ensemble
+    with progress_bar("random counterparts and compiled copies", quiet=quiet or not extra) as tick:
+        done = analyze_all(str(circuit), str(errors), cycles=cycles, metric=metric.value, engine=engine.value,
+                           observables=tuple(observable), family_by=family_by, compare_twirled=compare_twirled,
+                           against=against, draws=draws, ensemble=ensemble, seed=seed, progress=tick)
+    console = make_console(width=width, stderr=to_stdout(json_path))
+    for view in render_analysis(done):
         console.print(view)
     if json_path is not None:
-        write_json(json_path, {**result.to_dict(), **extra})
-
-
-def _analyze_extras(circuit: Path, errors: Path, result, *, against: Optional[str], ensemble: int, seed: int,
-                    cycles: int, metric: str, engine: str, by_pair: bool, quiet: bool) -> tuple[dict, list]:
-    """The --against comparison and the --ensemble of randomly compiled copies (JSON parts, views)."""
-    extra: dict = {}
-    views: list = []
-    if against is None and not ensemble:
-        return extra, views
-    from budget.circuit.load import load_circuit
-    from budget.errors.model import load_model
-
-    family_by = "pair" if by_pair else "gate"
-    model = load_model(str(errors))
-    if against is not None:
-        from budget.analysis.compare import Comparison, random_counterpart
-        from budget.analysis.run import analyze as run_analysis
-        from budget.report.terminal_views import render_comparison
-
-        other = (random_counterpart(load_circuit(str(circuit)).with_cycles(cycles), seed=seed)
-                 if against == "random" else load_circuit(against).with_cycles(cycles))
-        second = run_analysis(other, model, metric=metric, engine=engine, family_by=family_by,
-                              compare_twirled=result.twirled_infidelity is not None)
-        comparison = Comparison(result, second)
-        extra["against"] = comparison.to_dict()
-        views.append(render_comparison(comparison))
-    if ensemble:
-        from budget.analysis.randomized import ensemble as run_ensemble
-        from budget.errors.attach import attach
-        from budget.report.progress import progress_bar
-        from budget.report.terminal_views import render_ensemble
-
-        noisy = attach(load_circuit(str(circuit)).with_cycles(cycles), model, family_by=family_by)
-        with progress_bar("randomly compiled copies", quiet=quiet) as tick:
-            ens = run_ensemble(noisy, count=ensemble, seed=seed, metric=metric, engine=engine, progress=tick)
-        extra["ensemble"] = ens.to_dict()
-        views.append(render_ensemble(ens))
-    return extra, views
+        write_json(json_path, done.to_dict())
 
 
 @app.command()
@@ -167,8 +162,11 @@ def depth(
     metric: MetricChoice = MetricOpt,
     engine: EngineChoice = EngineOpt,
     by_pair: bool = ByPairOpt,
-    json_path: Optional[Path] = typer.Option(None, "--json", help="Write the curves as JSON (docs/report.md)."),
-    plot: Optional[Path] = typer.Option(None, "--plot", help="Write the curves as an SVG picture."),
+    by_operation: bool = ByOperationOpt,
+    json_path: Optional[Path] = typer.Option(None, "--json", help="Write the curves as JSON (docs/report.md); "
+                                             "- for standard output."),
+    plot: Optional[Path] = typer.Option(None, "--plot", help="Write the curves as a picture; the format comes from "
+                                        "the extension (.svg, .png, .pdf); - for SVG on standard output."),
     quiet: bool = QuietOpt,
     width: Optional[int] = WidthOpt,
 ) -> None:
@@ -182,22 +180,29 @@ def depth(
 
     check_output_path(json_path, "--json")
     check_output_path(plot, "--plot")
-    block = attach(read_circuit(str(circuit)), read_model(str(errors)), family_by="pair" if by_pair else "gate")
+    if to_stdout(json_path) and to_stdout(plot):
+        raise InputError("--json - and --plot -: only one output can go to standard output")
+    fmt = None
+    if plot is not None:
+        from budget.report.plots import plot_format
+
+        fmt = plot_format(str(plot))
+    block = attach(read_circuit(str(circuit)), read_model(str(errors)), family_by=grouping(by_pair, by_operation))
     with progress_bar("depth curve", quiet=quiet) as tick:
         curve = depth_curve(block, max_cycles=max_cycles, points=points, metric=metric.value,
                             engine=engine.value, target=target, progress=tick)
-    svg = None
+    picture = None
     if plot is not None:
-        from budget.report.plots import depth_svg
+        from budget.report.plots import depth_picture
 
-        svg = depth_svg(curve)
-    make_console(width=width).print(render_depth(curve))
+        picture = depth_picture(curve, fmt)
+    make_console(width=width, stderr=to_stdout(json_path, plot)).print(render_depth(curve))
     if json_path is not None:
         write_json(json_path, curve.to_dict())
-    if svg is not None:
-        from budget.report.files import write_text
+    if picture is not None:
+        from budget.report.files import write_bytes
 
-        write_text(plot, svg)
+        write_bytes(plot, picture)
 
 
 @app.command()
@@ -214,6 +219,7 @@ def report(
                                              "(default: max(1000, 100 × cycles))."),
     points: int = typer.Option(25, "--points", min=2, max=200, help="Points of the depth curves."),
     by_pair: bool = ByPairOpt,
+    by_operation: bool = ByOperationOpt,
     hours: float = typer.Option(24.0, "--hours", min=0.001, help="Horizon of the calibration schedule section."),
     quiet: bool = QuietOpt,
 ) -> None:
@@ -228,7 +234,7 @@ def report(
     with progress_bar("report", quiet=quiet) as tick:
         data = gather(str(circuit), str(errors), target=target, cycles=cycles, metric=metric.value,
                       engine=engine.value, max_cycles=max_cycles, points=points,
-                      family_by="pair" if by_pair else "gate", hours=hours, progress=tick)
+                      family_by=grouping(by_pair, by_operation), hours=hours, progress=tick)
     files = report_files(data)
     from budget.report.files import write_folder
 
@@ -252,7 +258,6 @@ AssumeOpt = typer.Option(AssumeChoice.worst, "--assume", help="worst: every knob
                          "the worst signs; random: random signs, tolerances as r.m.s. values.")
 AllocationOpt = typer.Option(AllocationChoice.equal, "--allocation", help="equal: each knob an equal share of the "
                              "coherent budget; common-factor: today's values scaled down together.")
-ByOperationOpt = typer.Option(False, "--by-operation", help="One family per operation as written (line numbers).")
 
 
 def _decision_command(name: str, summary: str, views: Callable) -> None:
@@ -277,7 +282,7 @@ def _decision_command(name: str, summary: str, views: Callable) -> None:
     ) -> None:
         d = _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair,
                        by_operation)
-        console = make_console(width=width)
+        console = make_console(width=width, stderr=to_stdout(json_path))
         for view in views(d):
             console.print(view)
         _write_decisions(json_path, d)
@@ -306,11 +311,8 @@ def _decisions(json_path, circuit, errors, target, cycles, metric, assume, alloc
     from budget.analysis.decide import decide
 
     check_output_path(json_path, "--json")
-    if by_pair and by_operation:
-        raise InputError("--by-pair and --by-operation: choose one grouping")
     return decide(str(circuit), str(errors), target=target, cycles=cycles, metric=metric.value, assume=assume.value,
-                  allocation=allocation.value, engine=engine.value,
-                  family_by="operation" if by_operation else "pair" if by_pair else "gate")
+                  allocation=allocation.value, engine=engine.value, family_by=grouping(by_pair, by_operation))
 
 
 def _write_decisions(json_path: Optional[Path], d) -> None:

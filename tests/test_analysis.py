@@ -51,10 +51,11 @@ def test_hundred_x_overrotations_build_up_coherently(engine):
 
 def test_json_has_the_documented_fields():
     d = analyze(_x_repeated(7), MODEL).to_dict()
-    assert d["schema_version"] == 1
+    assert d["schema_version"] == 2
     assert d["circuit"] == {"qubits": 1, "operations": 7, "layers": 7, "cycles": 1}
     assert d["metric"] == "process"
-    for key in ("engine", "naive", "actual", "coherent_amplification", "families", "warnings"):
+    assert d["accumulated"]["in_range"] is True and d["verdict"]["kind"] in ("build-up", "fair", "cancellation")
+    for key in ("engine", "naive", "accumulated", "coherent_amplification", "verdict", "families", "warnings"):
         assert key in d
     assert {"name", "operations", "share"} <= set(d["families"][0])
 

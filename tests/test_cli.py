@@ -26,10 +26,10 @@ def test_analyze_writes_json_and_report(tmp_path):
     assert res.exit_code == 0, res.output
     assert "fidelity product" in res.output and "model predictions" in res.output
     data = json.loads(out.read_text())
-    assert data["schema_version"] == 1
+    assert data["schema_version"] == 2
     assert data["circuit"]["qubits"] == 5
     assert data["circuit"]["operations"] == 10 * 8
-    assert abs(sum(f["share"] for f in data["families"]) - data["actual"]["infidelity"]) < 1e-9
+    assert abs(sum(f["share"] for f in data["families"]) - data["accumulated"]["infidelity"]) < 1e-9
 
 
 def test_demo_runs():

@@ -1,12 +1,16 @@
 """Two circuits under one error model, side by side (``budget analyze A --against B``).
 
 The usual question: is my structured circuit worse (or better) than an unstructured circuit of the
-same size would be? :func:`random_counterpart` builds such a circuit: the same qubits and the same
-number of each gate (with the same angles), in a random order, each single-qubit gate on a random
-qubit and each two-qubit gate on one of the qubit pairs that gate already uses (so device
-connectivity and per-pair error tables still apply), placed into layers as early as possible.
-Coherent errors of a random circuit point in unrelated directions and mostly add in probability,
-so its actual infidelity sits near the naive product; a structured circuit departs from it.
+same size would be? :func:`random_counterpart` builds such a circuit with the *same layer
+structure*: the executed layers of the circuit (repeats unrolled) in a random order, and inside each
+layer the gates shuffled among the layer's sites of their size (one-qubit gates among the layer's
+one-qubit sites, two-qubit gates among its two-qubit sites). Every layer keeps its busy qubits and
+its duration, so idle relaxation is the same as in the circuit and the naive product is unchanged
+under a uniform error model: only the order, where coherent errors can build up or echo away, is
+random. Coherent errors of a random circuit point in unrelated directions and mostly add in
+probability, so its accumulated infidelity sits near the naive product; a structured circuit departs
+from it. One draw is one sample: :func:`budget.analysis.compose.against_random` compares with an
+ensemble of draws and its spread.
 """
 
 from __future__ import annotations
@@ -15,16 +19,31 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from budget.analysis.ratios import Ratio, safe_ratio
 from budget.analysis.result import BudgetResult
-from budget.circuit.ir import Operation, StructuredCircuit
-from budget.problems import InputError
+from budget.circuit.ir import Layer, Operation, StructuredCircuit
+from budget.problems import InputError, TooLargeError
 
 MAX_RANDOM_OPERATIONS = 200_000
 """A random counterpart is unrolled: at most this many executed operations."""
 
 
+def _shuffled_layer(layer: Layer, rng: np.random.Generator) -> Layer:
+    """The layer's gates permuted among its sites of the same size (sites and durations kept)."""
+    by_size: dict[int, list[Operation]] = {}
+    for op in layer.operations:
+        by_size.setdefault(len(op.qubits), []).append(op)
+    placed: list[Operation] = []
+    for ops in by_size.values():
+        order = rng.permutation(len(ops))
+        for site, i in zip(ops, order):
+            gate = ops[int(i)]
+            placed.append(Operation(gate.gate, site.qubits, gate.params, label=gate.label, matrix=gate.matrix))
+    return Layer(tuple(placed))
+
+
 def random_counterpart(circuit: StructuredCircuit, *, seed: int) -> StructuredCircuit:
-    """A random circuit with the same qubits and the same gate counts (see module docstring).
+    """A random circuit with the same layers, gates and busy qubits (see module docstring).
 
     Drawn with ``numpy.random.default_rng(seed)``; repeats of ``circuit`` are unrolled first.
 
@@ -32,27 +51,19 @@ def random_counterpart(circuit: StructuredCircuit, *, seed: int) -> StructuredCi
         TooLargeError: more than :data:`MAX_RANDOM_OPERATIONS` executed operations.
         InputError: seed < 0.
     """
-    from budget.graph import asap_layers, flat_operations
-
     if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
         raise InputError(f"seed = {seed!r}: expected a whole number >= 0")
-    ops = flat_operations(circuit, max_operations=MAX_RANDOM_OPERATIONS)
+    total, _ = circuit.executed_counts()
+    if total > MAX_RANDOM_OPERATIONS:
+        raise TooLargeError(
+            f"{circuit.source}: a random counterpart is unrolled; {total:,} executed operations exceed the "
+            f"limit of {MAX_RANDOM_OPERATIONS:,} (use fewer cycles)"
+        )
     rng = np.random.default_rng(seed)
-    pairs: dict[str, list[tuple[int, ...]]] = {}
-    for op in ops:
-        if len(op.qubits) == 2 and op.qubits not in pairs.setdefault(op.gate, []):
-            pairs[op.gate].append(op.qubits)
-    placed: list[Operation] = []
-    for i in rng.permutation(len(ops)):
-        op = ops[int(i)]
-        if len(op.qubits) == 1:
-            qubits: tuple[int, ...] = (int(rng.integers(circuit.num_qubits)),)
-        else:
-            options = pairs[op.gate]
-            qubits = options[int(rng.integers(len(options)))]
-        placed.append(Operation(op.gate, qubits, op.params, label=op.label, matrix=op.matrix))
+    layers = [_shuffled_layer(layer, rng) for layer in circuit.iter_layers()]
+    order = rng.permutation(len(layers))
     source = f"random counterpart of {circuit.source} (seed {seed})"
-    return StructuredCircuit(circuit.qubits, asap_layers(placed), circuit.measured, source)
+    return StructuredCircuit(circuit.qubits, tuple(layers[int(i)] for i in order), circuit.measured, source)
 
 
 @dataclass(frozen=True)
@@ -73,7 +84,7 @@ class Comparison:
                 f"comparison: metrics differ ({self.first.metric} vs {self.second.metric}); use one metric"
             )
 
-    def rows(self) -> list[tuple[str, float | int | None, float | int | None]]:
+    def rows(self) -> list[tuple[str, float | int | str | None, float | int | str | None]]:
         """(quantity in words, first value, second value), in reading order."""
         a, b = self.first, self.second
         return [
@@ -81,21 +92,28 @@ class Comparison:
             ("operations executed", a.operations, b.operations),
             ("layers executed", a.layers, b.layers),
             ("fidelity product (naive)", a.naive_infidelity, b.naive_infidelity),
-            (f"accumulated ({a.engine} / {b.engine})", a.actual_infidelity, b.actual_infidelity),
-            ("accumulated ÷ naive", a.coherent_amplification, b.coherent_amplification),
+            (f"accumulated ({a.engine} / {b.engine})", _or_beyond(a), _or_beyond(b)),
+            ("accumulated ÷ naive", a.verdict.amplification.shown(), b.verdict.amplification.shown()),
         ] + (
-            [("Pauli-twirled variant", a.twirled_infidelity, b.twirled_infidelity)]
+            [("Pauli-twirled", a.twirled_infidelity, b.twirled_infidelity)]
             if a.twirled_infidelity is not None or b.twirled_infidelity is not None
             else []
         )
 
     @property
+    def accumulated_ratio(self) -> Ratio:
+        """first accumulated ÷ second accumulated (no ratio from values at rounding level or beyond range)."""
+        return safe_ratio(self.first.accumulated, self.second.accumulated)
+
+    @property
     def ratio(self) -> float | None:
-        """first actual ÷ second actual (None when the second is 0)."""
-        if self.second.actual_infidelity <= 0:
-            return None
-        return self.first.actual_infidelity / self.second.actual_infidelity
+        return self.accumulated_ratio.value
 
     def to_dict(self) -> dict:
         """The second analysis in full plus the ratio, for ``"against"`` in the JSON output."""
-        return {"result": self.second.to_dict(), "actual_ratio": self.ratio}
+        r = self.accumulated_ratio
+        return {"result": self.second.to_dict(), "accumulated_ratio": r.value, "ratio_note": r.why}
+
+
+def _or_beyond(r: BudgetResult) -> float | str:
+    return "beyond range" if r.accumulated is None else r.accumulated

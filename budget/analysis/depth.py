@@ -32,6 +32,9 @@ from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.problems import InputError
 
 CURVES = ("naive", "structured", "twirled")
+CURVE_WORDS = {"naive": "fidelity product (naive)", "structured": "accumulated", "twirled": "Pauli-twirled"}
+"""The one name of each curve in every view (terminal, JSON, report, plot)."""
+JSON_KEYS = {"naive": "naive", "structured": "accumulated", "twirled": "twirled"}
 MAX_POINTS = 200
 CROSSOVER_FACTOR = 2.0
 """Structured > CROSSOVER_FACTOR × naive marks the crossover."""
@@ -66,12 +69,15 @@ class DepthCurve:
         metric: ``"process"`` or ``"state"``.
         engine: engine of the structured curve; twirled_engine: of the twirled curve.
         repetitions: N values (ascending, from 1 to max_cycles).
-        naive, structured, twirled: infidelity at each N.
+        naive, structured, twirled: infidelity at each N; None where the curve's engine is beyond
+            its range (``structured`` is the *accumulated* curve in every view and in the JSON).
         crossover_repetitions: first N with structured > 2 × naive (None: not within max_cycles).
         target: E, when given; deepest: curve name -> largest N <= max_cycles before the curve
             first exceeds E (None: even N = 1 exceeds it; max_cycles: never within the range).
         components: which error components build up or are echoed away (may be empty).
         warnings: validity notes from the engines, and limits of this analysis.
+        range_ends: curve name -> first N beyond its engine's range (curves in range throughout
+            are absent); the deepest count within a target stops there.
     """
 
     source: str
@@ -87,10 +93,22 @@ class DepthCurve:
     deepest: dict[str, int | None] = field(default_factory=dict)
     components: tuple = ()
     warnings: tuple[str, ...] = ()
+    range_ends: dict[str, int] = field(default_factory=dict)
 
     @property
     def max_cycles(self) -> int:
         return self.repetitions[-1]
+
+    def range_words(self, key: str) -> str | None:
+        """Where curve ``key`` leaves its engine's range, in words (None: it never does)."""
+        n = self.range_ends.get(key)
+        if n is None:
+            return None
+        engine = self.engine if key == "structured" else self.twirled_engine
+        if n == self.repetitions[0]:
+            return f"{CURVE_WORDS[key]} curve ({engine}): beyond the first-order range at every N; no value is shown"
+        return (f"{CURVE_WORDS[key]} curve ({engine}): first-order range ends at N = {n:,}; "
+                "no value is shown from there on")
 
     def to_dict(self) -> dict:
         """The documented JSON object (docs/report.md)."""
@@ -101,8 +119,9 @@ class DepthCurve:
             "twirled_engine": self.twirled_engine,
             "repetitions": list(self.repetitions),
             "naive": list(self.naive),
-            "structured": list(self.structured),
+            "accumulated": list(self.structured),
             "twirled": list(self.twirled),
+            "range_ends": {JSON_KEYS[k]: n for k, n in self.range_ends.items()},
             "crossover_repetitions": self.crossover_repetitions,
             "crossover_factor": CROSSOVER_FACTOR,
             "components": [c.to_dict() for c in self.components],
@@ -110,21 +129,30 @@ class DepthCurve:
         }
         if self.target is not None:
             out["target"] = self.target
-            out["deepest_within_target"] = dict(self.deepest)
+            out["deepest_within_target"] = {JSON_KEYS[k]: n for k, n in self.deepest.items()}
         return out
 
 
 class _Series:
-    """One curve as a function of N, with a cache (each value is one engine run)."""
+    """One curve as a function of N, with a cache (each value is one engine run).
 
-    def __init__(self, fn: Callable[[int], float]):
+    ``fn(n)`` gives (value, in range); a value beyond its engine's range is None, so no curve
+    jumps to a clipped 1: it stops where its engine stops holding, and :meth:`range_end` says where.
+    """
+
+    def __init__(self, fn: Callable[[int], tuple[float, bool]]):
         self._fn = fn
-        self._cache: dict[int, float] = {}
+        self._cache: dict[int, float | None] = {}
 
-    def __call__(self, n: int) -> float:
+    def __call__(self, n: int) -> float | None:
         if n not in self._cache:
-            self._cache[n] = float(min(max(self._fn(n), 0.0), 1.0))
+            value, ok = self._fn(n)
+            self._cache[n] = float(min(max(value, 0.0), 1.0)) if ok else None
         return self._cache[n]
+
+    def range_end(self, grid: tuple[int, ...]) -> int | None:
+        """The first N beyond the engine's range (None: in range over the whole grid)."""
+        return _first_true(lambda n: self(n) is None, grid)
 
 
 def _first_true(pred: Callable[[int], bool], grid: tuple[int, ...]) -> int | None:
@@ -144,7 +172,7 @@ def _first_true(pred: Callable[[int], bool], grid: tuple[int, ...]) -> int | Non
     return None
 
 
-def _engine_series(block: NoisyCircuit, metric: str, engine: str, deepest: int, label: str) -> tuple[_Series, str, list[str]]:
+def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str) -> tuple[_Series, str, list[str]]:
     """One curve from an engine.
 
     ``auto`` on up to EXACT_CURVE_QUBITS qubits: the exact engine at every point (matrix powers, cheap
@@ -161,31 +189,36 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, deepest: int, 
     if metric == "process" and engine in ("auto", "generators") and not small and block.num_qubits <= MAX_CLOSED_FORM_QUBITS:
         gen = get_engine("generators")
         if gen.fits(_repeated(block, 2), metric) is None:
-            deep = gen.run(_repeated(block, deepest), metric)
-            notes.extend(f"{label} curve (generators engine) at N = {deepest:,}: {w}" for w in deep.warnings[:1])
             return _closed_form(block, gen), "generators (periodic closed form)", notes
     chosen = choose_engine(_repeated(block, 2), metric, engine, brief=True)
 
-    def run(n: int) -> float:
+    def run(n: int) -> tuple[float, bool]:
         result = chosen.run(_repeated(block, n), metric)
-        if result.warnings and not notes:
+        if result.warnings and result.beyond_range is None and not notes:
             notes.append(f"{label} curve ({chosen.name} engine), from N = {n:,} on: {result.warnings[0]}")
-        return result.infidelity
+        return result.infidelity, result.beyond_range is None
 
     return _Series(run), chosen.name, notes
 
 
 def _closed_form(block: NoisyCircuit, engine) -> _Series:
+    """The generators engine's value for N cycles by the periodic closed form, and whether it is
+    within the engine's range (:func:`budget.engines.generators.range_note` on the coherent part of
+    the summed Hamiltonian S_N and the stochastic sum N s)."""
     from budget.analysis.accumulation import cycle_hamiltonian
-    from budget.engines.periodic import coherent_curve, cycle_basis
+    from budget.engines.generators import range_note
+    from budget.engines.periodic import cycle_basis, periodic_sum
 
     one = engine.run(block, "process")
     stochastic = float(one.details.get("stochastic_first_order", 0.0))
     unitary, h = cycle_hamiltonian(block)
     basis = cycle_basis(unitary)
 
-    def value(n: int) -> float:
-        return float(coherent_curve(basis, h, [n]).infidelity[0]) + n * stochastic
+    def value(n: int) -> tuple[float, bool]:
+        s = periodic_sum(basis, h, n)
+        w = np.linalg.eigvalsh((s + s.conj().T) / 2)
+        coherent = 1 - abs(np.mean(np.exp(-1j * w))) ** 2  # process 1 - |Tr e^{-iS_N}/d|², as coherent_curve
+        return float(coherent) + n * stochastic, range_note(n * stochastic, float(coherent)) is None
 
     return _Series(value)
 
@@ -227,9 +260,9 @@ def depth_curve(
         raise InputError(f"target = {target!r}: expected an infidelity E with 0 < E < 1")
     grid = repetition_grid(max_cycles, points)
     log_keep = math.log1p(-min(naive_infidelity(block), 1.0)) if naive_infidelity(block) < 1 else -math.inf
-    naive = _Series(lambda n: -math.expm1(n * log_keep) if log_keep > -math.inf else 1.0)
-    structured, name, notes = _engine_series(block, metric, engine, max_cycles, "accumulated")
-    twirled, tw_name, tw_notes = _engine_series(twirled_circuit(block), metric, engine, max_cycles, "twirled")
+    naive = _Series(lambda n: (-math.expm1(n * log_keep) if log_keep > -math.inf else 1.0, True))
+    structured, name, notes = _engine_series(block, metric, engine, "accumulated")
+    twirled, tw_name, tw_notes = _engine_series(twirled_circuit(block), metric, engine, "twirled")
     values: dict[str, list[float]] = {c: [] for c in CURVES}
     series = {"naive": naive, "structured": structured, "twirled": twirled}
     for i, n in enumerate(grid):
@@ -237,11 +270,12 @@ def depth_curve(
             values[c].append(series[c](n))
         if progress is not None:
             progress(i + 1, len(grid))
-    crossover = _first_true(lambda n: structured(n) > CROSSOVER_FACTOR * naive(n), grid)
+    crossover = _first_true(lambda n: _above(structured(n), CROSSOVER_FACTOR * naive(n)), grid)
+    ends = {c: series[c].range_end(grid) for c in ("structured", "twirled")}
     deepest: dict[str, int | None] = {}
     if target is not None:
-        for c in CURVES:
-            first_bad = _first_true(lambda n, s=series[c]: s(n) > target, grid)
+        for c in CURVES:  # beyond its range a curve cannot vouch for the target
+            first_bad = _first_true(lambda n, s=series[c]: s(n) is None or s(n) > target, grid)
             deepest[c] = max_cycles if first_bad is None else (first_bad - 1 or None)
     from budget.analysis.accumulation import components_or_note
 
@@ -263,4 +297,12 @@ def depth_curve(
         deepest=deepest,
         components=components,
         warnings=tuple(warnings),
+        range_ends={c: n for c, n in ends.items() if n is not None},
     )
+
+
+def _above(value: float | None, bound: float) -> bool:
+    """value > bound, with values beyond range (None) and at rounding level never above."""
+    from budget.analysis.ratios import at_rounding_level
+
+    return value is not None and not at_rounding_level(value) and value > bound

@@ -1,4 +1,8 @@
-"""The result of an error-budget analysis and its JSON form (schema version 1, docs/json-schema.md)."""
+"""The result of an error-budget analysis and its JSON form (schema version 2, docs/json-schema.md).
+
+One name per quantity in every view: the *fidelity product (naive)*, the *accumulated* infidelity
+(what the engine computes for the circuit as compiled), the *Pauli-twirled* variant.
+"""
 
 from __future__ import annotations
 
@@ -6,17 +10,20 @@ import math
 from dataclasses import dataclass, field
 from typing import Any
 
-SCHEMA_VERSION = 1
+from budget.analysis.ratios import safe_ratio
+from budget.analysis.verdict import Verdict, classify
+
+SCHEMA_VERSION = 2
 
 
 @dataclass(frozen=True)
 class FamilyShare:
-    """One gate family's part of the actual infidelity.
+    """One gate family's part of the accumulated infidelity.
 
     Attributes:
         name: family name (a gate name, ``"idle"`` for idle relaxation, or gate + qubits).
         operations: executed operations (or idle slots) in the family, repeats included.
-        share: the family's share of the actual infidelity; shares add up to it and can be negative
+        share: the family's share of the accumulated infidelity; shares add up to it and can be negative
             when a family's coherent error cancels another's.
     """
 
@@ -48,7 +55,12 @@ class ReadoutSummary:
 
 @dataclass(frozen=True)
 class BudgetResult:
-    """Naive product versus actual accumulation for one circuit, one model, one metric."""
+    """Naive product versus accumulated infidelity for one circuit, one model, one metric.
+
+    ``actual_infidelity`` is the engine's value, in [0, 1]; when ``beyond_range`` is set the engine
+    left the range of its approximation and the value is an order-of-magnitude estimate only:
+    the JSON then gives null, and no verdict is drawn.
+    """
 
     source: str
     qubits: int
@@ -66,16 +78,31 @@ class BudgetResult:
     observables: dict[str, float] = field(default_factory=dict)
     twirled_infidelity: float | None = None
     details: dict[str, Any] = field(default_factory=dict)
+    beyond_range: str | None = None
+
+    @property
+    def in_range(self) -> bool:
+        return self.beyond_range is None
+
+    @property
+    def accumulated(self) -> float | None:
+        """The accumulated infidelity, or None when it is beyond its engine's range."""
+        return self.actual_infidelity if self.in_range else None
 
     @property
     def coherent_amplification(self) -> float | None:
-        """actual / naive: above 1 coherent build-up, below 1 cancellation (None if naive is 0)."""
-        if self.naive_infidelity <= 0.0:
-            return None
-        return self.actual_infidelity / self.naive_infidelity
+        """accumulated / naive: above 1 coherent build-up, below 1 cancellation (None when either
+        is at rounding level or the accumulated value is beyond its engine's range)."""
+        return safe_ratio(self.accumulated, self.naive_infidelity).value
+
+    @property
+    def verdict(self) -> Verdict:
+        """The one classification every view shows (:mod:`budget.analysis.verdict`)."""
+        return classify(self.naive_infidelity, self.actual_infidelity, twirled=self.twirled_infidelity,
+                        beyond_range=self.beyond_range)
 
     def to_dict(self) -> dict[str, Any]:
-        """The documented JSON object (docs/json-schema.md), schema version 1."""
+        """The documented JSON object (docs/json-schema.md), schema version 2."""
         out: dict[str, Any] = {
             "schema_version": SCHEMA_VERSION,
             "source": self.source,
@@ -88,10 +115,18 @@ class BudgetResult:
             "metric": self.metric,
             "engine": self.engine,
             "naive": {"infidelity": self.naive_infidelity},
-            "actual": {"infidelity": self.actual_infidelity, "first_order": self.first_order},
+            "accumulated": {
+                "infidelity": self.accumulated,
+                "first_order": self.first_order,
+                "in_range": self.in_range,
+                "beyond_range": self.beyond_range,
+                "estimate": self.actual_infidelity,
+            },
             "coherent_amplification": self.coherent_amplification,
+            "verdict": self.verdict.to_dict(),
             "families": [
-                {"name": f.name, "operations": f.operations, "share": f.share} for f in self.families
+                {"name": f.name, "operations": f.operations, "share": f.share if self.in_range else None}
+                for f in self.families
             ],
             "readout": {"per_qubit": self.readout.per_qubit, "any_error": self.readout.any_error},
             "observables": [{"observable": k, "error": v} for k, v in self.observables.items()],

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 
 from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary
 from budget.analysis.select import choose_engine, first_order_shares
+from budget.analysis.validity import run_in_range
 from budget.circuit.ir import StructuredCircuit
 from budget.engines.base import METRICS
 from budget.errors.noisy import IDLE, NoisyCircuit
@@ -72,6 +73,7 @@ def analyze(
         observables=observables,
         compare_twirled=compare_twirled,
         cycles=cycles,
+        notes=model.warnings(),
     )
 
 
@@ -84,16 +86,18 @@ def analyze_noisy(
     observables: tuple[str, ...] = (),
     compare_twirled: bool = False,
     cycles: int = 1,
+    notes: tuple[str, ...] = (),
 ) -> BudgetResult:
-    """The analysis once the model is attached (shared by :func:`analyze` and other commands)."""
+    """The analysis once the model is attached (shared by :func:`analyze` and other commands);
+    ``notes``: warnings to show with the result (the error model's, for instance)."""
     from budget.errors.fidelity import naive_infidelity
 
     chosen = choose_engine(noisy, metric, engine)
-    outcome = chosen.run(noisy, metric, observables=tuple(observables))
-    warnings = list(outcome.warnings)
+    outcome, switched = run_in_range(noisy, metric, chosen, engine, observables=tuple(observables))
+    warnings = list(notes) + list(switched) + list(outcome.warnings)
     shares = dict(outcome.shares)
     if not shares:
-        shares, note = first_order_shares(noisy, metric, outcome.infidelity, exclude=chosen.name)
+        shares, note = first_order_shares(noisy, metric, outcome.infidelity, exclude=outcome.engine)
         if note:
             warnings.append(note)
     naive = naive_infidelity(noisy)
@@ -102,7 +106,12 @@ def analyze_noisy(
         from budget.analysis.twirl import twirled_circuit
 
         tw = twirled_circuit(noisy)
-        twirled = choose_engine(tw, metric, engine, brief=True).run(tw, metric).infidelity
+        tw_result, _ = run_in_range(tw, metric, choose_engine(tw, metric, engine, brief=True), engine)
+        if tw_result.beyond_range is None:
+            twirled = tw_result.infidelity
+        else:
+            warnings.append(f"Pauli-twirled variant left out: the {tw_result.engine} engine is beyond its range "
+                            f"there ({tw_result.beyond_range})")
     counts = _family_counts(noisy)
     families = tuple(
         FamilyShare(name, counts.get(name, 0), float(shares.get(name, 0.0)))
@@ -126,6 +135,7 @@ def analyze_noisy(
         observables=dict(outcome.observable_errors),
         twirled_infidelity=twirled,
         details=dict(outcome.details),
+        beyond_range=outcome.beyond_range,
     )
 
 

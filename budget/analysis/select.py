@@ -72,7 +72,10 @@ def first_order_shares(
             continue
         fo = engine.brief().run(circuit, metric)
         s = sum(fo.shares.values())
+        note = None if fo.beyond_range is None else (
+            f"family shares split as the {candidate} engine does, which is beyond its range here "
+            f"({fo.beyond_range}): read the split as rough")
         if s > 0:
-            return {k: v * total / s for k, v in fo.shares.items()}, None
-        return dict(fo.shares), None
+            return {k: v * total / s for k, v in fo.shares.items()}, note
+        return dict(fo.shares), note
     return {}, "family shares unavailable: no first-order engine fits this circuit"

@@ -36,6 +36,9 @@ class EngineResult:
         first_order: the leading-order (quadratic) estimate, when the engine has it.
         warnings: validity warnings in plain words.
         details: engine-specific extra numbers (JSON-serialisable), e.g. ``{"hamiltonian_norm": x}``.
+        beyond_range: None while the engine's approximation holds; otherwise the reason in plain
+            words, with the size reached and the limit (an approximate engine's ``infidelity`` is
+            then only an estimate of the order of magnitude, and no verdict is drawn from it).
     """
 
     engine: str
@@ -47,6 +50,7 @@ class EngineResult:
     details: dict[str, float] = field(default_factory=dict)
     observable_errors: dict[str, float] = field(default_factory=dict)
     """Observable label (e.g. ``"Z0Z1"``) -> signed error <O>_actual - <O>_ideal."""
+    beyond_range: str | None = None
 
 
 @dataclass(frozen=True)

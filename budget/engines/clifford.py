@@ -137,6 +137,9 @@ class CliffordEngine:
         warnings = list(walker.warnings)
         fo, total = budget.first_order, budget.total
         shares = _by_family(sources, budget.shares)
+        beyond = None
+        if total > 1.0:  # the resummed coherent part plus the incoherent sum is no probability any more
+            beyond = f"the resummed value reaches {total:.3g}, {total:.3g}x the largest possible infidelity"
         if fo > SMALL or budget.max_amplitude > np.sqrt(SMALL):
             warnings.append(
                 f"first-order infidelity {fo:.3g} is no longer small (largest summed coherent amplitude "
@@ -164,6 +167,7 @@ class CliffordEngine:
             warnings=tuple(dict.fromkeys(warnings)),
             details=details,
             observable_errors=obs,
+            beyond_range=beyond,
         )
 
     def _qubit_map(self, circuit: NoisyCircuit, cost: float, builder: TermBuilder, plans: dict) -> dict:

@@ -80,6 +80,23 @@ def _alternative(circuit: NoisyCircuit) -> str:
     return "no engine of this tool holds it unless every gate is Clifford (then the clifford engine)"
 
 
+def range_note(stochastic: float, coherent: float) -> str | None:
+    """None while the engine's value is a probability, else what left the range and by how much.
+
+    The value is the exponentiated coherent part (exact for commuting errors, accurate well beyond
+    the quadratic formula otherwise, design.md §4) plus the first-order sum of incoherent error
+    probabilities. When that sum reaches 1 the sum of probabilities no longer approximates a
+    probability of error and the engine gives no value. (The warnings of
+    :meth:`GeneratorsEngine._warnings` start much earlier, where the value becomes approximate.)
+    Below the limit the value was checked against the exact engine (tests/test_validity.py).
+    """
+    total = coherent + stochastic
+    if total <= 1.0:
+        return None
+    return (f"coherent part {coherent:.3g} plus the first-order sum of incoherent errors {stochastic:.3g} make "
+            f"{total:.3g}, {total:.3g}x the largest possible infidelity")
+
+
 class GeneratorsEngine:
     """First-order error generators; see the module docstring for the exact definitions."""
 
@@ -153,6 +170,7 @@ class GeneratorsEngine:
                 "hamiltonian_norm_rad": coh.norm_rad,
             },
             observable_errors=obs,
+            beyond_range=range_note(stoch_total, coh.exact),
         )
 
     # -- parts -------------------------------------------------------------------------------

@@ -75,6 +75,19 @@ class ErrorModel:
         """
         return _Parser(source).model(data)
 
+    def warnings(self) -> tuple[str, ...]:
+        """Plain-word warnings about allowed but unusual values, each with its key path."""
+        from budget.errors.params import LARGE_ANGLE_RAD
+
+        tables = [(f"gates.{name}", gp) for name, gp in sorted(self.gates.items())]
+        tables += [(f'gates.{name}."{",".join(qs)}"', gp) for (name, qs), gp in sorted(self.gate_overrides.items())]
+        out = []
+        for path, gp in tables:
+            for knob, value in gp.large_angles().items():
+                out.append(f"{self.source}: {path}.{knob} = {value:g} rad is larger than {LARGE_ANGLE_RAD} rad, unusual "
+                           "for a calibration error (check that it is in radians and is the error, not the angle)")
+        return tuple(out)
+
     def qubit(self, name: str) -> QubitParams:
         """Parameters of the qubit with this display name."""
         return self.qubit_overrides.get(name, self.qubit_defaults)

@@ -51,6 +51,22 @@ def number(field: str, value: Any, unit: str, *, low: float | None = None, high:
     return v
 
 
+MAX_ANGLE_RAD = math.pi
+"""A coherent error angle beyond ±π is a different gate, not a miscalibration: refused."""
+LARGE_ANGLE_RAD = 0.5
+"""Calibration errors are usually a few tens of milliradians; above this a warning asks to check the
+units (radians, not degrees) and the value (common practice, no source)."""
+
+
+def angle(field: str, value: Any) -> float:
+    """A coherent error angle in radians: a finite number with |value| <= π."""
+    v = number(field, value, "radians")
+    if abs(v) > MAX_ANGLE_RAD:
+        raise FieldError((field,), value, f"is not a small calibration error: a coherent error angle must lie in "
+                         f"[-π, π] rad (|{v:g}| > {MAX_ANGLE_RAD:.4g}); give the error in radians, not the gate's angle")
+    return v
+
+
 @dataclass(frozen=True)
 class QubitParams:
     """Error parameters of one qubit.
@@ -145,13 +161,14 @@ class GateParams:
         put("avg_infidelity", number("avg_infidelity", self.avg_infidelity, "a probability", low=0.0, high=1.0))
         for name in ("overrotation", "axis_error", "cphase", "swap_angle"):
             if getattr(self, name) is not None:
-                put(name, number(name, getattr(self, name), "radians"))
+                put(name, angle(name, getattr(self, name)))
         if self.z_phase is not None:
             z = self.z_phase
             if isinstance(z, (list, tuple)):
-                put("z_phase", tuple(number("z_phase", v, "radians") for v in z))
+                put("z_phase", tuple(angle("z_phase", v) for v in z))
             else:
-                put("z_phase", (number("z_phase", z, "radians (a number, or a list with one per qubit)"),))
+                number("z_phase", z, "radians (a number, or a list with one per qubit)")
+                put("z_phase", (angle("z_phase", z),))
         pairs = tuple(self.pauli.items()) if isinstance(self.pauli, dict) else self.pauli
         if not isinstance(pairs, (tuple, list)) or not all(isinstance(p, tuple) and len(p) == 2 for p in pairs):
             raise FieldError(("pauli",), self.pauli, "expected a table of Pauli label = coefficient in radians")
@@ -162,7 +179,7 @@ class GateParams:
             if set(label) == {"I"}:
                 raise FieldError(("pauli", label), h, "the identity label only changes the global phase; remove it")
             try:
-                clean.append((label, number("pauli", h, "radians")))
+                clean.append((label, angle("pauli", h)))
             except FieldError as e:
                 raise FieldError(("pauli", label), h, e.rule) from None
         put("pauli", tuple(clean))
@@ -206,6 +223,10 @@ class GateParams:
                 out[name] = getattr(self, name)
         out.update({f"pauli:{label}": h for label, h in self.pauli})
         return out
+
+    def large_angles(self) -> dict[str, float]:
+        """Present knobs with |angle| above :data:`LARGE_ANGLE_RAD` (allowed, but worth a warning)."""
+        return {k: v for k, v in self.knob_values().items() if abs(v) > LARGE_ANGLE_RAD}
 
     @property
     def is_ideal(self) -> bool:

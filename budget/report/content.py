@@ -13,6 +13,7 @@ from typing import Any, Callable
 
 from budget.analysis.depth import DepthCurve
 from budget.analysis.heatmap import ErrorMap
+from budget.analysis.ratios import safe_ratio
 from budget.analysis.result import BudgetResult
 
 ENGINE_WORDS = {
@@ -107,18 +108,21 @@ def _count(n: int, word: str) -> str:
     return f"{n:,} {word}" + ("" if n == 1 else "s")
 
 
-def verdict(result: BudgetResult, target: float) -> tuple[bool, str]:
-    """(meets target, plain sentence)."""
-    a = result.actual_infidelity
+def verdict(result: BudgetResult, target: float) -> tuple[bool | None, str]:
+    """(meets target — None when the value is beyond its engine's range —, plain words)."""
+    a = result.accumulated
+    if a is None:
+        return None, f"cannot be judged against the target of {num(target)}: its error is beyond the first-order range"
     if a <= target:
-        return True, f"meets the target of {num(target)} (predicted {num(a)}, margin {target / a:.2g}×)" if a > 0 else (
-            f"meets the target of {num(target)} (no error predicted)"
-        )
+        margin = safe_ratio(target, a)
+        if margin.value is None:
+            return True, f"meets the target of {num(target)} (no error above rounding level predicted)"
+        return True, f"meets the target of {num(target)} (predicted {num(a)}, margin {margin.value:.2g}×)"
     return False, f"misses the target of {num(target)}: the prediction {num(a)} is {a / target:.2g}× too large"
 
 
 def summary_words(data: ReportData) -> str:
-    """The opening paragraph: what was analysed, naive versus actual, the verdict, what to calibrate."""
+    """The opening paragraph: what was analysed, naive versus accumulated, the verdict, what to calibrate."""
     r = data.result
     shape = f"{_count(r.qubits, 'qubit')}, {_count(r.operations, 'operation')} in {_count(r.layers, 'layer')}"
     cyc = f", the whole circuit run {r.cycles:,} times" if r.cycles != 1 else ""
@@ -126,34 +130,14 @@ def summary_words(data: ReportData) -> str:
         f"We analysed {short_name(r.source)} ({shape}{cyc}) under the error model "
         f"{short_name(data.model_source) or 'given'}, with the {r.engine} engine."
     ]
-    amp = r.coherent_amplification
-    how = ""
-    if amp is not None:
-        if amp > 1.5:
-            how = f", {amp:.1f} times more, because coherent errors add up in amplitude from gate to gate"
-        elif amp < 0.67:
-            how = f", only {amp:.2f} of it, because the circuit's structure echoes part of the errors away"
-        else:
-            how = f" ({amp:.2f}× the naive value): here the naive product is a fair guide"
+    accumulated = "is beyond the range of the first-order model" if r.accumulated is None else f"gives {num(r.accumulated)}"
     parts.append(
         f"Multiplying the gate fidelities predicts an infidelity of {num(r.naive_infidelity)}; following how "
-        f"the errors actually accumulate gives {num(r.actual_infidelity)}{how}."
+        f"the errors accumulate {accumulated}. Verdict: {r.verdict.words}."
     )
-    parts.append(f"The circuit {verdict(r, data.target)[1]}.")
-    tol = data.tolerances
-    if tol is not None:
-        if not tol.feasible:
-            parts.append(
-                f"The incoherent floor ({num(tol.incoherent_floor)}, from T1, T2 and gate error rates) alone "
-                "exceeds the target, so no amount of calibration can meet it."
-            )
-        else:
-            worst = [row for row in tol.rows if row.status == "tighten"][:3]
-            if worst:
-                names = ", ".join(f"{row.family} {row.knob.replace('_', ' ')} (by {row.tighten_by:.2g}×)" for row in worst)
-                parts.append(f"To meet it, tighten the calibration of {names}.")
-            else:
-                parts.append("No coherent knob needs tighter calibration for this target.")
+    meets, words = verdict(r, data.target)
+    parts.append(f"The circuit {words}.")
+    parts += _calibration_words(data, meets)
     plan = data.plan
     if plan is not None and plan.knobs:
         every = f", about every {plan.interval_hours:.2g} h given the drift rates" if plan.interval_hours else ""
@@ -164,6 +148,28 @@ def summary_words(data: ReportData) -> str:
             f"{data.curve.crossover_repetitions:,} repetitions on."
         )
     return " ".join(parts)
+
+
+def _calibration_words(data: ReportData, meets: bool | None) -> list[str]:
+    """What the tolerances say, worded so it agrees with whether the target is met today."""
+    tol = data.tolerances
+    if tol is None:
+        return []
+    if not tol.feasible:
+        return [f"The incoherent floor ({num(tol.incoherent_floor)}, from T1, T2 and gate error rates) alone "
+                "exceeds the target, so no amount of calibration of coherent knobs can meet it."]
+    worst = [row for row in tol.rows if row.status == "tighten"][:3]
+    names = ", ".join(f"{row.family} {row.knob.replace('_', ' ')} (by {row.tighten_by:.2g}×)" for row in worst)
+    rule = "worst-case signs" if tol.assume == "worst" else "random signs"
+    if meets and worst:
+        return [f"It meets the target with today's values; to keep meeting it whatever the signs of the errors "
+                f"({rule}, each knob held to its own tolerance), tighten the calibration of {names}."]
+    if meets:
+        return ["Every coherent knob is already within its tolerance for this target."]
+    if worst:
+        return [f"To meet it, tighten the calibration of {names}."]
+    return [f"No coherent knob is outside its tolerance ({rule}), yet the prediction misses the target: the knobs "
+            "interfere, so tighten them together (the tolerances section gives the common factor)."]
 
 
 def model_rows(model: Any) -> tuple[ModelRow, ...]:
@@ -233,7 +239,7 @@ def gather(
     block = attach(structured, model, family_by=family_by)
     whole = attach(structured.with_cycles(cycles), model, family_by=family_by)
     result = analyze_noisy(whole, structured.with_cycles(cycles), metric=metric, engine=engine,
-                           compare_twirled=True, cycles=cycles)
+                           compare_twirled=True, cycles=cycles, notes=model.warnings())
     notes: list[str] = []
     deepest = max_cycles if max_cycles is not None else min(max(1000, 100 * cycles), 10**18)
     try:

@@ -10,6 +10,7 @@ from __future__ import annotations
 import io
 import math
 import re
+import textwrap
 
 import matplotlib
 
@@ -19,18 +20,14 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 from matplotlib.colors import LinearSegmentedColormap  # noqa: E402
 
-from budget.analysis.depth import DepthCurve  # noqa: E402
+from budget.analysis.depth import CURVE_WORDS, DepthCurve  # noqa: E402
 from budget.analysis.heatmap import ErrorMap  # noqa: E402
 from budget.analysis.result import FamilyShare  # noqa: E402
 
 INK = "#22303c"
 GRID = "#d9dee3"
 COLOURS = {"structured": "#b5472f", "naive": "#3d6f8e", "twirled": "#6b8f3a", "target": "#8a6d9e"}
-WORDS = {
-    "naive": "fidelity product (naive)",
-    "structured": "accumulated (as compiled)",
-    "twirled": "Pauli-twirled",
-}
+WORDS = CURVE_WORDS
 _HEAT = LinearSegmentedColormap.from_list("fen_heat", ["#f7f4ee", "#f0c987", "#d9753b", "#8e2a1f"])
 
 _STYLE = {
@@ -60,35 +57,82 @@ def _svg(fig, name: str) -> str:
     return re.sub(r"<svg ", f'<svg role="img" aria-label="{name}" ', text, count=1)
 
 
+PLOT_FORMATS = {".svg": "svg", ".png": "png", ".pdf": "pdf"}
+"""File extension -> picture format of ``--plot``."""
+
+
+def plot_format(path: str) -> str:
+    """The picture format for an output path, from its extension (``-``: SVG on standard output).
+
+    Raises:
+        InputError: an extension other than .svg, .png or .pdf.
+    """
+    from pathlib import Path
+
+    from budget.problems import InputError
+
+    if str(path) == "-":
+        return "svg"
+    suffix = Path(path).suffix.lower()
+    if suffix not in PLOT_FORMATS:
+        raise InputError(f"--plot {path}: the picture format comes from the extension; use "
+                         f"{', '.join(PLOT_FORMATS)} (got {suffix or 'none'})")
+    return PLOT_FORMATS[suffix]
+
+
+def depth_picture(curve: DepthCurve, fmt: str) -> bytes:
+    """The depth curves as an SVG, PNG (150 dpi) or PDF file's bytes."""
+    if fmt == "svg":
+        return depth_svg(curve).encode("utf-8")
+    with plt.rc_context(_STYLE):
+        fig = _depth_figure(curve)
+        buf = io.BytesIO()
+        fig.savefig(buf, format=fmt, bbox_inches="tight", dpi=150,
+                    metadata={"Creator": None} if fmt == "pdf" else None)
+        plt.close(fig)
+        return buf.getvalue()
+
+
 def depth_svg(curve: DepthCurve) -> str:
     """Infidelity against repetitions, log-log, three curves, crossover and target marked."""
     with plt.rc_context(_STYLE):
-        fig, ax = plt.subplots(figsize=(7.2, 4.2))
-        n = np.array(curve.repetitions, dtype=float)
-        floor = _positive_floor(curve)
-        for key in ("naive", "twirled", "structured"):
-            y = np.maximum(np.array(getattr(curve, key)), floor)
-            style = "-" if key == "structured" else "--" if key == "naive" else ":"
-            ax.plot(n, y, style, color=COLOURS[key], lw=2.2 if key == "structured" else 1.8, label=WORDS[key])
-        ax.set_xscale("log" if n[-1] > 1 else "linear")
-        ax.set_yscale("log")
-        if curve.crossover_repetitions is not None:
-            x = curve.crossover_repetitions
-            ax.axvline(x, color=INK, lw=0.8, alpha=0.5)
-            ax.text(x, 0.03, f" crossover N = {x:,}", transform=ax.get_xaxis_transform(), color=INK, fontsize=9)
-        if curve.target is not None:
-            ax.axhline(curve.target, color=COLOURS["target"], lw=1.0)
-            ax.text(0.99, curve.target, f"target {curve.target:g}", transform=ax.get_yaxis_transform(),
-                    color=COLOURS["target"], fontsize=9, ha="right", va="bottom")
-        ax.set_xlabel("repetitions of the cycle, N")
-        ax.set_ylabel(_metric_label(curve.metric))
-        ax.grid(True, which="major", color=GRID, lw=0.6)
-        ax.legend(frameon=False, loc="upper left")
-        return _svg(fig, "depth-curves")
+        return _svg(_depth_figure(curve), "depth-curves")
 
 
-def shares_svg(families: tuple[FamilyShare, ...], total: float) -> str:
-    """Horizontal bars: each family's share of the accumulated infidelity (signed)."""
+def _depth_figure(curve: DepthCurve):
+    """The depth-curve figure (called inside the style context)."""
+    fig, ax = plt.subplots(figsize=(7.2, 4.2))
+    n = np.array(curve.repetitions, dtype=float)
+    floor = _positive_floor(curve)
+    for key in ("naive", "twirled", "structured"):
+        y = np.array([np.nan if v is None else max(v, floor) for v in getattr(curve, key)])
+        style = "-" if key == "structured" else "--" if key == "naive" else ":"
+        ax.plot(n, y, style, color=COLOURS[key], lw=2.2 if key == "structured" else 1.8, label=WORDS[key])
+        end = curve.range_ends.get(key)
+        if end is not None:  # the curve stops where its engine stops holding; say so on the plot
+            ax.axvline(end, color=COLOURS[key], lw=1.0, ls=(0, (2, 2)))
+            ax.text(end, 0.97, f" {WORDS[key]}: range ends, N = {end:,}", transform=ax.get_xaxis_transform(),
+                    color=COLOURS[key], fontsize=8, va="top", rotation=90)
+    ax.set_xscale("log" if n[-1] > 1 else "linear")
+    ax.set_yscale("log")
+    if curve.crossover_repetitions is not None:
+        x = curve.crossover_repetitions
+        ax.axvline(x, color=INK, lw=0.8, alpha=0.5)
+        ax.text(x, 0.03, f" crossover N = {x:,}", transform=ax.get_xaxis_transform(), color=INK, fontsize=9)
+    if curve.target is not None:
+        ax.axhline(curve.target, color=COLOURS["target"], lw=1.0)
+        ax.text(0.99, curve.target, f"target {curve.target:g}", transform=ax.get_yaxis_transform(),
+                color=COLOURS["target"], fontsize=9, ha="right", va="bottom")
+    ax.set_xlabel("repetitions of the cycle, N")
+    ax.set_ylabel(_metric_label(curve.metric))
+    ax.grid(True, which="major", color=GRID, lw=0.6)
+    ax.legend(frameon=False, loc="upper left")
+    return fig
+
+
+def shares_svg(families: tuple[FamilyShare, ...], total: float, *, title: str = "") -> str:
+    """Horizontal bars: each family's share of the accumulated infidelity (signed); ``title``: the
+    verdict of :mod:`budget.analysis.verdict`, wrapped above the bars."""
     with plt.rc_context(_STYLE):
         rows = list(families)[:12]
         fig, ax = plt.subplots(figsize=(7.2, 0.45 * max(len(rows), 2) + 0.9))
@@ -105,6 +149,8 @@ def shares_svg(families: tuple[FamilyShare, ...], total: float) -> str:
         ax.set_xlabel("share of the accumulated infidelity (negative: cancels other errors)")
         ax.margins(x=0.25)
         ax.grid(True, axis="x", color=GRID, lw=0.6)
+        if title:
+            ax.set_title(textwrap.fill(title, 90), loc="left", fontsize=9, color=INK)
         return _svg(fig, "family-shares")
 
 
@@ -129,7 +175,7 @@ def heatmap_svg(emap: ErrorMap) -> str:
 
 
 def _positive_floor(curve: DepthCurve) -> float:
-    vals = [v for key in ("naive", "structured", "twirled") for v in getattr(curve, key) if v > 0]
+    vals = [v for key in ("naive", "structured", "twirled") for v in getattr(curve, key) if v is not None and v > 0]
     return min(vals) / 10 if vals else 1e-12
 
 

@@ -14,8 +14,9 @@ def figures(data: ReportData) -> dict[str, str]:
     out = {}
     if data.curve is not None:
         out["depth-curves"] = depth_svg(data.curve)
-    if data.result.families:
-        out["family-shares"] = shares_svg(data.result.families, data.result.actual_infidelity)
+    if data.result.families and data.result.in_range:
+        out["family-shares"] = shares_svg(data.result.families, data.result.actual_infidelity,
+                                          title=data.result.verdict.words)
     out["error-map"] = heatmap_svg(data.emap)
     if data.extras is not None and data.extras.band is not None:
         from budget.report.calib_sections import band_svg

@@ -10,6 +10,7 @@ import math
 from dataclasses import dataclass
 from typing import Union
 
+from budget.analysis.depth import CURVE_WORDS
 from budget.report.content import CAUTION_WORDS, ENGINE_WORDS, ReportData, minutes, num, short_name, summary_words, verdict
 
 
@@ -54,12 +55,14 @@ def build(data: ReportData, figures: dict[str, str]) -> list[Block]:
     r = data.result
     ok, words = verdict(r, data.target)
     out: list[Block] = [Para(summary_words(data), "summary")]
-    amp = r.coherent_amplification
+    v = r.verdict
+    tone = "" if ok is None else "good" if ok else "bad"
     tiles = [
         ("fidelity product (naive)", num(r.naive_infidelity), "1 − Π F_pro over every operation and idle slot", ""),
-        ("accumulated", num(r.actual_infidelity), f"{r.metric} infidelity, {r.engine} engine", "good" if ok else "bad"),
-        ("accumulated ÷ naive", "—" if amp is None else f"{amp:.3g}×", "above 1: coherent build-up", ""),
-        ("target", num(data.target), "meets it" if ok else "misses it", "good" if ok else "bad"),
+        ("accumulated", "beyond range" if r.accumulated is None else num(r.accumulated),
+         f"{r.metric} infidelity, {r.engine} engine", tone or "bad"),
+        ("accumulated ÷ naive", v.amplification.shown(suffix="×"), v.words, v.tone),
+        ("target", num(data.target), {True: "meets it", False: "misses it", None: "cannot be judged"}[ok], tone),
     ]
     if r.twirled_infidelity is not None:
         tiles.insert(2, ("Pauli-twirled", num(r.twirled_infidelity), "same errors, randomly compiled", ""))
@@ -99,14 +102,20 @@ def _depth(data: ReportData, figures: dict[str, str]) -> list[Block]:
         text += f" From N = {c.crossover_repetitions:,} on the accumulated error is more than twice the naive estimate."
     else:
         text += f" Up to N = {c.max_cycles:,} the accumulated error stays below twice the naive estimate."
+    same = _headline_point(data)
+    if same:
+        text += " " + same
     out.append(Para(text))
+    out += [Para(w, "warning") for w in map(c.range_words, ("structured", "twirled")) if w]
     if "depth-curves" in figures:
         out.append(Figure("depth-curves", figures["depth-curves"], "Infidelity against repetitions (log–log)."))
     if c.deepest:
         rows = []
-        for key, words in (("naive", "fidelity product"), ("structured", "accumulated"), ("twirled", "Pauli-twirled")):
+        for key, words in CURVE_WORDS.items():
             n = c.deepest.get(key)
             shown = "none (N = 1 already misses)" if n is None else (f"≥ {n:,}" if n == c.max_cycles else f"{n:,}")
+            if n is not None and c.range_ends.get(key) == n + 1:
+                shown += " (its range ends there)"
             rows.append((words, shown))
         out.append(Para(f"Deepest repetition count that still meets the target {num(c.target)}:"))
         out.append(Table(("curve", "repetitions"), tuple(rows), (False, True)))
@@ -119,11 +128,28 @@ def _depth(data: ReportData, figures: dict[str, str]) -> list[Block]:
         ))
     pick = _thin(list(range(len(c.repetitions))), 10)
     out.append(Table(
-        ("repetitions N", "naive", "accumulated", "Pauli-twirled"),
-        tuple((f"{c.repetitions[i]:,}", num(c.naive[i]), num(c.structured[i]), num(c.twirled[i])) for i in pick),
+        ("repetitions N", CURVE_WORDS["naive"], f"{CURVE_WORDS['structured']} ({c.engine})",
+         f"{CURVE_WORDS['twirled']} ({c.twirled_engine})"),
+        tuple((f"{c.repetitions[i]:,}", num(c.naive[i]), _point(c.structured[i]), _point(c.twirled[i])) for i in pick),
         (True, True, True, True),
     ))
     return out
+
+
+def _point(x: float | None) -> str:
+    return "beyond range" if x is None else num(x)
+
+
+def _headline_point(data: ReportData) -> str:
+    """When the curve and the headline come from different engines, say so and give both values."""
+    c, r = data.curve, data.result
+    if c is None or r.cycles not in c.repetitions or c.engine == r.engine:
+        return ""
+    at = c.structured[c.repetitions.index(r.cycles)]
+    return (f"At N = {r.cycles:,} (the circuit as analysed above) this curve gives {_point(at)} from the {c.engine} "
+            f"engine, while the headline value {_point(r.accumulated)} comes from the {r.engine} engine"
+            + (": the difference is the curve engine's approximation, and the headline value is the one to use."
+               if r.engine == "exact" else "."))
 
 
 def _shares(data: ReportData, figures: dict[str, str]) -> list[Block]:
@@ -135,6 +161,8 @@ def _shares(data: ReportData, figures: dict[str, str]) -> list[Block]:
     ))
     if "family-shares" in figures:
         out.append(Figure("family-shares", figures["family-shares"], "Share of the accumulated infidelity per gate family."))
+    if r.accumulated is None:
+        return out + [Para("Family shares are left out: the error is beyond the first-order range.", "note")]
     total = r.actual_infidelity
     out.append(Table(
         ("family", "operations executed", "share", "of total"),

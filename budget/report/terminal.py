@@ -26,21 +26,13 @@ def fmt(x: float | None, digits: int = 3) -> str:
     return f"{x:.{digits - 1}e}"
 
 
-def _verdict(result: BudgetResult) -> Text:
-    amp = result.coherent_amplification
-    if amp is None:
-        return Text("no error in the model: nothing accumulates", style="dim")
-    if amp > 1.2:
-        return Text(
-            f"coherent build-up: the circuit loses {amp:.1f}x what the fidelity product predicts",
-            style="bold red",
-        )
-    if amp < 0.83:
-        return Text(
-            f"cancellation: the structure echoes errors away ({amp:.2f}x the fidelity product)",
-            style="bold green",
-        )
-    return Text(f"the fidelity product is a fair guide here ({amp:.2f}x)", style="bold")
+_TONES = {"bad": "bold red", "good": "bold green", "": "bold"}
+
+
+def verdict_text(result: BudgetResult) -> Text:
+    """The verdict of :mod:`budget.analysis.verdict`, coloured by its tone."""
+    v = result.verdict
+    return Text(v.words, style="dim" if v.kind == "no-error" else _TONES[v.tone])
 
 
 def summary_table(result: BudgetResult) -> Table:
@@ -49,13 +41,15 @@ def summary_table(result: BudgetResult) -> Table:
     t.add_column(justify="right")
     t.add_column(style="dim")
     t.add_row("fidelity product (naive)", fmt(result.naive_infidelity), "1 - Π F_pro over operations and idle slots")
-    t.add_row(f"accumulated ({result.engine})", fmt(result.actual_infidelity), _METRIC_WORDS[result.metric])
-    if result.first_order is not None:
-        t.add_row("  leading order", fmt(result.first_order), "quadratic (first-order generator) estimate")
+    if result.in_range:
+        t.add_row(f"accumulated ({result.engine})", fmt(result.actual_infidelity), _METRIC_WORDS[result.metric])
+        if result.first_order is not None:
+            t.add_row("  leading order", fmt(result.first_order), "quadratic (first-order generator) estimate")
+    else:
+        t.add_row(f"accumulated ({result.engine})", "beyond range", "no value: the first-order model does not hold")
     if result.twirled_infidelity is not None:
         t.add_row("Pauli-twirled variant", fmt(result.twirled_infidelity), "same errors, coherent parts randomised")
-    amp = result.coherent_amplification
-    t.add_row("amplification", "—" if amp is None else f"{amp:.3g}x", "accumulated ÷ naive")
+    t.add_row("accumulated ÷ naive", result.verdict.amplification.shown(), "above 1: coherent build-up")
     return t
 
 
@@ -69,6 +63,9 @@ def families_table(result: BudgetResult, *, width: int = 24) -> Table:
     total = result.actual_infidelity
     peak = max((abs(f.share) for f in result.families), default=0.0) or 1.0
     for f in result.families:
+        if not result.in_range:
+            t.add_row(f.name, f"{f.operations:,}", "—", "—", "")
+            continue
         frac = f.share / total if total > 0 else 0.0
         n = int(round(width * abs(f.share) / peak))
         bar = Text("█" * n, style="cyan" if f.share >= 0 else "magenta")
@@ -123,7 +120,7 @@ def render_budget(result: BudgetResult) -> Group:
         f"  ·  {result.qubits} qubit{'' if result.qubits == 1 else 's'}, {result.operations:,} operations in {result.layers:,} layers",
         f"  ·  {result.cycles:,} cycle(s)" if result.cycles != 1 else "",
     )
-    parts: list = [head, Text(""), summary_table(result), _verdict(result)]
+    parts: list = [head, Text(""), summary_table(result), verdict_text(result)]
     if result.metric == "state":
         parts.append(Text(
             "note: the fidelity product uses process fidelities, as a spreadsheet would; for the "

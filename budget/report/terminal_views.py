@@ -8,9 +8,10 @@ from rich.table import Table
 from rich.text import Text
 
 from budget.analysis.compare import Comparison
-from budget.analysis.depth import DepthCurve
+from budget.analysis.compose import Analysis, RandomEnsemble
+from budget.analysis.depth import CURVE_WORDS, DepthCurve
 from budget.analysis.randomized import EnsembleResult
-from budget.report.terminal import fmt
+from budget.report.terminal import fmt, render_budget
 
 
 def _value(x) -> str:
@@ -21,6 +22,18 @@ def _value(x) -> str:
     return "—" if x is None else str(x)
 
 
+def render_analysis(a: Analysis) -> list:
+    """Every view of an analysis, in reading order (budget, comparison, random counterparts, copies)."""
+    views: list = [render_budget(a.result)]
+    if a.comparison is not None:
+        views.append(render_comparison(a.comparison))
+    if a.random is not None:
+        views.append(render_random(a.random))
+    if a.ensemble is not None:
+        views.append(render_ensemble(a.ensemble))
+    return views
+
+
 def render_comparison(c: Comparison) -> Panel:
     """Both circuits side by side, same model and metric."""
     t = Table(expand=False)
@@ -29,11 +42,24 @@ def render_comparison(c: Comparison) -> Panel:
     t.add_column(c.second.source, justify="right", overflow="fold")
     for label, a, b in c.rows():
         t.add_row(label, _value(a), _value(b))
-    ratio = c.ratio
-    line = Text(
-        "accumulated infidelity ratio (first ÷ second): " + ("—" if ratio is None else f"{ratio:.3g}"), style="bold"
-    )
+    line = Text("accumulated infidelity ratio (first ÷ second): " + c.accumulated_ratio.shown(), style="bold")
     return Panel(Group(t, line), title="side by side, same error model", title_align="left", border_style="blue")
+
+
+def render_random(r: RandomEnsemble) -> Panel:
+    """The circuit against random counterparts with its layer structure: mean, spread, ratio."""
+    t = Table.grid(padding=(0, 2))
+    t.add_column(style="bold")
+    t.add_column(justify="right")
+    t.add_column(style="dim")
+    t.add_row("this circuit, accumulated", _value(r.first.accumulated), f"engine {r.first.engine}")
+    t.add_row("random counterparts, mean", _value(r.mean),
+              f"{len(r.seeds)} draws (seeds {r.seeds[0]}–{r.seeds[-1]}), same layers and gates, engine {r.engine}")
+    t.add_row("spread across draws", _value(r.spread), "sample standard deviation")
+    low, high = r.ratio_range
+    span = f"from {low.shown()} to {high.shown()} against single draws" if low.value is not None else ""
+    t.add_row("this circuit ÷ random mean", r.ratio.shown(), span)
+    return Panel(t, title="against random circuits with the same layers", title_align="left", border_style="blue")
 
 
 def render_ensemble(e: EnsembleResult) -> Panel:
@@ -52,22 +78,30 @@ def render_ensemble(e: EnsembleResult) -> Panel:
 
 
 def render_depth(c: DepthCurve) -> Panel:
-    """The curves at the grid points, the crossover, the deepest counts and the components."""
+    """The curves at the grid points, where each leaves its engine's range, the crossover, the
+    deepest counts and the components."""
     t = Table(expand=False)
-    for name in ("repetitions N", "naive", "accumulated", "Pauli-twirled"):
+    for name in ("repetitions N", CURVE_WORDS["naive"], f"{CURVE_WORDS['structured']} ({c.engine})",
+                 f"{CURVE_WORDS['twirled']} ({c.twirled_engine})"):
         t.add_column(name, justify="right")
     for n, a, b, w in zip(c.repetitions, c.naive, c.structured, c.twirled):
-        t.add_row(f"{n:,}", fmt(a), fmt(b), fmt(w))
+        t.add_row(f"{n:,}", fmt(a), _point(b), _point(w))
     parts: list = [t]
+    for key in ("structured", "twirled"):
+        words = c.range_words(key)
+        if words:
+            parts.append(Text(f"▸ {words}", style="yellow"))
     cross = c.crossover_repetitions
     parts.append(Text(
         f"crossover: accumulated > 2 × naive from N = {cross:,}" if cross is not None
         else f"no crossover up to N = {c.max_cycles:,}", style="bold"))
-    for key, words in (("naive", "naive"), ("structured", "accumulated"), ("twirled", "Pauli-twirled")):
+    for key in CURVE_WORDS:
         if key in c.deepest:
             n = c.deepest[key]
             shown = "none" if n is None else (f"≥ {n:,}" if n == c.max_cycles else f"{n:,}")
-            parts.append(Text(f"deepest N within target {c.target:g} ({words}): {shown}"))
+            if n is not None and c.range_ends.get(key) == n + 1:
+                shown += " (its range ends there)"
+            parts.append(Text(f"deepest N within target {c.target:g} ({CURVE_WORDS[key]}): {shown}"))
     if c.components:
         ct = Table(title="coherent errors under repetition", title_justify="left")
         ct.add_column("knob")
@@ -80,3 +114,7 @@ def render_depth(c: DepthCurve) -> Panel:
     parts += [Text(f"! {w}", style="yellow") for w in c.warnings]
     title = f"depth curves · {c.source} · {c.metric} · engine {c.engine}"
     return Panel(Group(*parts), title=title, title_align="left", border_style="blue")
+
+
+def _point(x: float | None) -> str:
+    return "beyond range" if x is None else fmt(x)

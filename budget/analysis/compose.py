@@ -1,0 +1,152 @@
+"""The main job with its optional companions, composed in the analysis layer (not in the CLI).
+
+:func:`analyze_all` runs :func:`budget.analysis.run.analyze` and, when asked, the comparison with a
+second circuit (``against`` a path), the comparison with an ensemble of random counterparts
+(``against="random"``, :class:`RandomEnsemble`) and the randomly compiled copies (``ensemble``).
+
+A single random counterpart is one sample (seed 1 and seed 7 can differ by 7 %); the circuit is
+therefore set against ``draws`` counterparts drawn with seeds ``seed``, ``seed + 1``, … and compared
+with their mean, with the spread (sample standard deviation) beside it. Counterparts keep the layer
+structure (:func:`budget.analysis.compare.random_counterpart`), so idle error is not confounded.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any, Callable
+
+import numpy as np
+
+from budget.analysis.compare import Comparison, random_counterpart
+from budget.analysis.randomized import EnsembleResult
+from budget.analysis.ratios import Ratio, safe_ratio
+from budget.analysis.result import BudgetResult
+from budget.problems import InputError
+
+Progress = Callable[[int, int], None]
+MAX_DRAWS = 1000
+
+
+@dataclass(frozen=True)
+class RandomEnsemble:
+    """The circuit against random counterparts with the same layer structure.
+
+    Attributes:
+        first: the circuit asked about.
+        seeds: one seed per counterpart.
+        naive, accumulated: each counterpart's values (None: beyond its engine's range).
+        engine: the engine that ran the counterparts.
+    """
+
+    first: BudgetResult
+    seeds: tuple[int, ...]
+    naive: tuple[float, ...]
+    accumulated: tuple[float | None, ...]
+    engine: str
+
+    @property
+    def valid(self) -> np.ndarray:
+        return np.array([a for a in self.accumulated if a is not None], dtype=float)
+
+    @property
+    def mean(self) -> float | None:
+        return float(np.mean(self.valid)) if len(self.valid) else None
+
+    @property
+    def spread(self) -> float | None:
+        """Sample standard deviation across counterparts (None with fewer than two)."""
+        return float(np.std(self.valid, ddof=1)) if len(self.valid) > 1 else None
+
+    @property
+    def ratio(self) -> Ratio:
+        """The circuit's accumulated infidelity ÷ the counterparts' mean."""
+        return safe_ratio(self.first.accumulated, self.mean)
+
+    @property
+    def ratio_range(self) -> tuple[Ratio, Ratio]:
+        """The circuit ÷ the largest and ÷ the smallest counterpart."""
+        if not len(self.valid):
+            return Ratio(None), Ratio(None)
+        return (safe_ratio(self.first.accumulated, float(self.valid.max())),
+                safe_ratio(self.first.accumulated, float(self.valid.min())))
+
+    def to_dict(self) -> dict[str, Any]:
+        low, high = self.ratio_range
+        return {
+            "draws": len(self.seeds),
+            "seeds": list(self.seeds),
+            "engine": self.engine,
+            "naive": list(self.naive),
+            "accumulated": list(self.accumulated),
+            "mean": self.mean,
+            "spread": self.spread,
+            "accumulated_ratio": self.ratio.value,
+            "ratio_note": self.ratio.why,
+            "accumulated_ratio_range": [low.value, high.value],
+        }
+
+
+@dataclass(frozen=True)
+class Analysis:
+    """A budget and its optional companions (each None when not asked for)."""
+
+    result: BudgetResult
+    comparison: Comparison | None = None
+    random: RandomEnsemble | None = None
+    ensemble: EnsembleResult | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The budget's JSON (docs/json-schema.md) with ``against`` and ``ensemble`` when present."""
+        out = self.result.to_dict()
+        if self.comparison is not None:
+            out["against"] = self.comparison.to_dict()
+        if self.random is not None:
+            out["against_random"] = self.random.to_dict()
+        if self.ensemble is not None:
+            out["ensemble"] = self.ensemble.to_dict()
+        return out
+
+
+def analyze_all(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "process", engine: str = "auto",
+                observables: tuple[str, ...] = (), family_by: str = "gate", compare_twirled: bool = False,
+                against: str | None = None, draws: int = 10, ensemble: int = 0, seed: int = 1,
+                progress: Progress | None = None) -> Analysis:
+    """The budget of ``circuit`` and the companions asked for (arguments as for
+    :func:`budget.analysis.run.analyze`; ``against``: a circuit path or ``"random"``; ``draws``:
+    random counterparts; ``ensemble``: randomly compiled copies; ``seed``: first seed of both)."""
+    from budget.analysis.run import analyze, analyze_noisy, read_circuit, read_model
+    from budget.errors.attach import attach
+
+    if isinstance(draws, bool) or not isinstance(draws, int) or not 2 <= draws <= MAX_DRAWS:
+        raise InputError(f"draws = {draws!r}: expected a whole number from 2 to {MAX_DRAWS}")
+    model = read_model(errors)
+    structured = read_circuit(circuit)
+    result = analyze(structured, model, cycles=cycles, metric=metric, engine=engine, observables=observables,
+                     family_by=family_by, compare_twirled=compare_twirled)
+    comparison = random = copies = None
+    whole = structured.with_cycles(cycles)
+    if against == "random":
+        naive, acc, name = [], [], ""
+        seeds = tuple(range(seed, seed + draws))
+        for i, s in enumerate(seeds):
+            other = random_counterpart(whole, seed=s)
+            r = analyze_noisy(attach(other, model, family_by=family_by), other, metric=metric, engine=engine)
+            naive.append(r.naive_infidelity)
+            acc.append(r.accumulated)
+            name = r.engine
+            if progress is not None:
+                progress(i + 1, draws + ensemble)
+        random = RandomEnsemble(result, seeds, tuple(naive), tuple(acc), name)
+    elif against is not None:
+        other = read_circuit(against).with_cycles(cycles)
+        second = analyze(other, model, metric=metric, engine=engine, family_by=family_by,
+                         compare_twirled=result.twirled_infidelity is not None)
+        comparison = Comparison(result, second)
+    if ensemble:
+        from budget.analysis.randomized import ensemble as run_ensemble
+
+        done = draws if against == "random" else 0
+        tick = None if progress is None else (lambda k, n: progress(done + k, done + n))
+        copies = run_ensemble(attach(whole, model, family_by=family_by), count=ensemble, seed=seed, metric=metric,
+                              engine=engine, progress=tick)
+    return Analysis(result, comparison, random, copies)
