@@ -138,8 +138,10 @@ class CliffordEngine:
         fo, total = budget.first_order, budget.total
         shares = _by_family(sources, budget.shares)
         beyond = None
-        if total > 1.0:  # the resummed coherent part plus the incoherent sum is no probability any more
-            beyond = f"the resummed value reaches {total:.3g}, {total:.3g}x the largest possible infidelity"
+        raw = budget.coherent_resummed + budget.stochastic
+        if raw > 1.0:  # the resummed coherent part plus the incoherent sum is no probability any more
+            beyond = (f"resummed coherent part {budget.coherent_resummed:.3g} plus the first-order sum of incoherent "
+                      f"errors {budget.stochastic:.3g} make {raw:.3g}, {raw:.3g}x the largest possible infidelity")
         if fo > SMALL or budget.max_amplitude > np.sqrt(SMALL):
             warnings.append(
                 f"first-order infidelity {fo:.3g} is no longer small (largest summed coherent amplitude "

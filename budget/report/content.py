@@ -141,7 +141,9 @@ def summary_words(data: ReportData) -> str:
     plan = data.plan
     if plan is not None and plan.knobs:
         every = f", about every {plan.interval_hours:.2g} h given the drift rates" if plan.interval_hours else ""
-        parts.append(f"Measuring those knobs to the needed precision takes about {minutes(plan.round_s)} of device time per round{every}.")
+        n = len(plan.knobs)
+        parts.append(f"Measuring the {n} knob{'' if n == 1 else 's'} that must tighten or drift to the needed precision "
+                     f"takes about {minutes(plan.round_s)} of device time per round{every}.")
     if data.curve is not None and data.curve.crossover_repetitions is not None:
         parts.append(
             f"Repeating the circuit, the accumulated error exceeds twice the naive estimate from "

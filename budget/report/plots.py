@@ -21,6 +21,7 @@ import numpy as np  # noqa: E402
 from matplotlib.colors import LinearSegmentedColormap  # noqa: E402
 
 from budget.analysis.depth import CURVE_WORDS, DepthCurve  # noqa: E402
+from budget.analysis.ratios import at_rounding_level  # noqa: E402
 from budget.analysis.heatmap import ErrorMap  # noqa: E402
 from budget.analysis.result import FamilyShare  # noqa: E402
 
@@ -142,7 +143,7 @@ def shares_svg(families: tuple[FamilyShare, ...], total: float, *, title: str = 
         ax.set_axisbelow(True)
         ax.barh(names, vals, color=colours, height=0.6)
         for y, v in enumerate(vals):
-            pct = f"{100 * v / total:.0f} %" if total > 0 else ""
+            pct = f"{100 * v / total:.0f} %" if not at_rounding_level(total) and total > 0 else ""
             ax.annotate(f"{v:.2e}  {pct}", (v, y), xytext=(4 if v >= 0 else -4, 0), textcoords="offset points",
                         va="center", ha="left" if v >= 0 else "right", fontsize=9, color=INK)
         ax.axvline(0, color=INK, lw=0.8)
@@ -150,7 +151,7 @@ def shares_svg(families: tuple[FamilyShare, ...], total: float, *, title: str = 
         ax.margins(x=0.25)
         ax.grid(True, axis="x", color=GRID, lw=0.6)
         if title:
-            ax.set_title(textwrap.fill(title, 90), loc="left", fontsize=9, color=INK)
+            ax.set_title(textwrap.fill(title, 90, break_on_hyphens=False), loc="left", fontsize=9, color=INK)
         return _svg(fig, "family-shares")
 
 
@@ -160,7 +161,7 @@ def heatmap_svg(emap: ErrorMap) -> str:
         n_q, n_l = emap.values.shape
         fig, ax = plt.subplots(figsize=(min(max(4.0, 0.32 * n_l + 2.0), 11.0), 0.38 * n_q + 1.4))
         total = emap.total
-        data = 100 * emap.values / total if total > 0 else emap.values
+        data = 100 * emap.values / total if total > 0 and not at_rounding_level(total) else emap.values
         im = ax.imshow(data, aspect="auto", cmap=_HEAT, interpolation="nearest", vmin=0)
         ax.set_yticks(range(n_q), emap.qubits)
         step = max(1, math.ceil(n_l / 30))

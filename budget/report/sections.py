@@ -11,6 +11,7 @@ from dataclasses import dataclass
 from typing import Union
 
 from budget.analysis.depth import CURVE_WORDS
+from budget.analysis.ratios import at_rounding_level
 from budget.report.content import CAUTION_WORDS, ENGINE_WORDS, ReportData, minutes, num, short_name, summary_words, verdict
 
 
@@ -136,6 +137,11 @@ def _depth(data: ReportData, figures: dict[str, str]) -> list[Block]:
     return out
 
 
+def _meaningful(total: float) -> bool:
+    """A total that percentages can be taken of: positive and above rounding level."""
+    return total > 0 and not at_rounding_level(total)
+
+
 def _point(x: float | None) -> str:
     return "beyond range" if x is None else num(x)
 
@@ -146,8 +152,9 @@ def _headline_point(data: ReportData) -> str:
     if c is None or r.cycles not in c.repetitions or c.engine == r.engine:
         return ""
     at = c.structured[c.repetitions.index(r.cycles)]
-    return (f"At N = {r.cycles:,} (the circuit as analysed above) this curve gives {_point(at)} from the {c.engine} "
-            f"engine, while the headline value {_point(r.accumulated)} comes from the {r.engine} engine"
+    gives = "has no value (beyond its engine's range)" if at is None else f"gives {num(at)} from the {c.engine} engine"
+    return (f"At N = {r.cycles:,} (the circuit as analysed above) this curve {gives}, "
+            f"while the headline value {_point(r.accumulated)} comes from the {r.engine} engine"
             + (": the difference is the curve engine's approximation, and the headline value is the one to use."
                if r.engine == "exact" else "."))
 
@@ -166,7 +173,7 @@ def _shares(data: ReportData, figures: dict[str, str]) -> list[Block]:
     total = r.actual_infidelity
     out.append(Table(
         ("family", "operations executed", "share", "of total"),
-        tuple((f.name, f"{f.operations:,}", num(f.share), f"{100 * f.share / total:.1f} %" if total > 0 else "—")
+        tuple((f.name, f"{f.operations:,}", num(f.share), f"{100 * f.share / total:.1f} %" if _meaningful(total) else "—")
               for f in r.families),
         (False, True, True, True),
     ))
@@ -190,7 +197,7 @@ def _error_map(data: ReportData, figures: dict[str, str]) -> list[Block]:
     if hot:
         out.append(Table(
             ("qubit", "layer", "local infidelity", "of map total"),
-            tuple((q, col, num(v), f"{100 * v / m.total:.1f} %") for q, col, v in hot),
+            tuple((q, col, num(v), f"{100 * v / m.total:.1f} %" if _meaningful(m.total) else "—") for q, col, v in hot),
             (False, False, True, True),
         ))
     if m.note:

@@ -7,6 +7,7 @@ from rich.panel import Panel
 from rich.table import Table
 from rich.text import Text
 
+from budget.analysis.ratios import at_rounding_level
 from budget.analysis.result import CAUTION, BudgetResult
 
 _METRIC_WORDS = {
@@ -49,7 +50,7 @@ def summary_table(result: BudgetResult) -> Table:
         t.add_row(f"accumulated ({result.engine})", "beyond range", "no value: the first-order model does not hold")
     if result.twirled_infidelity is not None:
         t.add_row("Pauli-twirled variant", fmt(result.twirled_infidelity), "same errors, coherent parts randomised")
-    t.add_row("accumulated ÷ naive", result.verdict.amplification.shown(), "above 1: coherent build-up")
+    t.add_row("accumulated ÷ naive", result.verdict.amplification.shown(), "the verdict below reads this ratio")
     return t
 
 
@@ -66,10 +67,10 @@ def families_table(result: BudgetResult, *, width: int = 24) -> Table:
         if not result.in_range:
             t.add_row(f.name, f"{f.operations:,}", "—", "—", "")
             continue
-        frac = f.share / total if total > 0 else 0.0
+        pct = f"{100 * f.share / total:.1f} %" if total > 0 and not at_rounding_level(total) else "—"
         n = int(round(width * abs(f.share) / peak))
         bar = Text("█" * n, style="cyan" if f.share >= 0 else "magenta")
-        t.add_row(f.name, f"{f.operations:,}", fmt(f.share), f"{100 * frac:.1f} %", bar)
+        t.add_row(f.name, f"{f.operations:,}", fmt(f.share), pct, bar)
     return t
 
 
