@@ -134,6 +134,10 @@ BAD = [
     ("[gates.sx]\nz_phase = [0.1, 0.2]\n", "gates.sx.z_phase", "[0.1, 0.2]", "one value per qubit"),
     ("[gates.cz.\"q[0]\"]\ncphase = 0.01\n", 'gates.cz."q[0]"', "{'cphase': 0.01}", "2 distinct"),
     ("[gates.cz.\"q[0],q[0]\"]\ncphase = 0.01\n", 'gates.cz."q[0],q[0]"', "{'cphase': 0.01}", "2 distinct"),
+    ("[gates.cz]\ncphase = 100.0\n", "gates.cz.cphase", "100.0", "not a small calibration error"),
+    ("[gates.x]\noverrotation = -3.2\n", "gates.x.overrotation", "-3.2", "[-π, π] rad"),
+    ("[gates.cz]\nz_phase = [0.001, 7.0]\n", "gates.cz.z_phase", "[0.001, 7.0]", "not a small calibration error"),
+    ("[gates.rx]\npauli = { X = 4.0 }\n", "gates.rx.pauli.X", "4.0", "not a small calibration error"),
     ("[gates.cz.\"q[0],q[1]\"]\ncphas = 0.01\n", 'gates.cz."q[0],q[1]".cphas', "0.01", "did you mean 'cphase'"),
     ("[gates.cz.\"q[0],q[1]\"]\ncphase = 0.1\nz_phase = [0.1]\n", 'gates.cz."q[0],q[1]".z_phase', "[0.1]", "one value per qubit"),
     ("[gates.fsim]\nduration_ns = 30.0\n", "gates.fsim", "{'duration_ns': 30.0}", "not a gate in the gate table"),
@@ -218,3 +222,16 @@ def test_pair_table_of_a_symmetric_gate_applies_with_its_qubits_exchanged():
     assert inherited.gate("cz", ("q[2]", "q[1]")).z_phase == (0.001, 0.002)
     both = ErrorModel.from_dict({"gates": {"cz": {"q[1],q[2]": {"cphase": 0.05}, "q[2],q[1]": {"cphase": 0.07}}}})
     assert both.gate("cz", ("q[2]", "q[1]")).cphase == 0.07  # a table for each order: each wins
+
+
+def test_large_but_allowed_angles_are_warned_with_their_key_path():
+    # |angle| in (0.5, π] rad is accepted, but every view shows a warning naming the key (issue 9 item 6)
+    from budget.analysis.run import analyze
+    from budget.circuit.ir import Layer, Operation, StructuredCircuit
+
+    m = ErrorModel.from_dict({"gates": {"cz": {"cphase": 0.8}, "x": {"overrotation": 0.01}}})
+    assert m.warnings() == ("<dict>: gates.cz.cphase = 0.8 rad is larger than 0.5 rad, unusual for a calibration "
+                            "error (check that it is in radians and is the error, not the angle)",)
+    c = StructuredCircuit(("q[0]", "q[1]"), (Layer((Operation("cz", (0, 1)),)),))
+    assert any("gates.cz.cphase = 0.8" in w for w in analyze(c, m).warnings)
+    assert ErrorModel.from_dict({"gates": {"cz": {"cphase": 0.3}}}).warnings() == ()

@@ -259,3 +259,48 @@ def test_random_counterpart_keeps_gate_counts_and_pairs():
     assert {op.qubits for op in flat(r) if op.gate == "cz"} <= {op.qubits for op in flat(c) if op.gate == "cz"}
     assert r.qubits == c.qubits and not any(isinstance(it, Repeat) for it in r.body)
     assert [op.qubits for op in flat(r)] != [op.qubits for op in flat(c)]
+
+
+def test_random_counterparts_keep_the_layer_structure_and_the_idle_error():
+    # issue 9 item 13: the same layers (busy qubits and durations per layer), only the order random,
+    # so the naive product (an independent product over operations and idle slots) is unchanged
+    from collections import Counter
+
+    from budget.analysis.compare import random_counterpart
+    from budget.circuit.load import load_circuit
+    from budget.errors.attach import attach
+    from budget.errors.fidelity import naive_infidelity
+    from budget.errors.model import ErrorModel
+
+    root = Path(__file__).resolve().parent.parent / "circuits"
+    c = load_circuit(str(root / "hopping_trotter.qasm"))
+    model = ErrorModel.from_dict({"qubits": {"t1_us": 90.0, "t2_us": 70.0},
+                                  "gates": {"h": {"duration_ns": 24, "overrotation": 0.01},
+                                            "cz": {"duration_ns": 60, "cphase": 0.03},
+                                            "sx": {"duration_ns": 24}, "sxdg": {"duration_ns": 24}}})
+    busy = lambda s: Counter(frozenset(q for op in layer.operations for q in op.qubits)  # noqa: E731
+                             for layer in s.iter_layers())
+    for seed in (1, 7):
+        r = random_counterpart(c, seed=seed)
+        assert r.executed_counts() == c.executed_counts()
+        assert busy(r) == busy(c)
+        assert naive_infidelity(attach(r, model)) == pytest.approx(naive_infidelity(attach(c, model)), rel=1e-12)
+
+
+def test_against_random_is_an_ensemble_with_its_spread():
+    from budget.analysis.compose import analyze_all
+
+    root = Path(__file__).resolve().parent.parent / "circuits"
+    a = analyze_all(str(root / "echo_xy4.qasm"), str(root / "fen_q8.toml"), cycles=5, against="random", draws=6,
+                    seed=1)
+    r = a.random
+    assert len(r.seeds) == 6 and r.seeds == (1, 2, 3, 4, 5, 6)
+    vals = np.array(r.accumulated)
+    assert r.mean == pytest.approx(vals.mean()) and r.spread == pytest.approx(vals.std(ddof=1))
+    assert r.ratio.value == pytest.approx(a.result.accumulated / vals.mean())
+    low, high = r.ratio_range
+    assert low.value <= r.ratio.value <= high.value
+    d = a.to_dict()
+    assert d["against_random"]["draws"] == 6 and d["accumulated"]["infidelity"] == a.result.accumulated
+    with pytest.raises(InputError, match="draws"):
+        analyze_all(str(root / "echo_xy4.qasm"), str(root / "fen_q8.toml"), against="random", draws=1)
