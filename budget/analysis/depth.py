@@ -99,6 +99,32 @@ class DepthCurve:
     def max_cycles(self) -> int:
         return self.repetitions[-1]
 
+    @property
+    def checked_through(self) -> int:
+        """The deepest N where the accumulated curve has a value (its range may end earlier)."""
+        end = self.range_ends.get("structured")
+        return self.max_cycles if end is None else end - 1
+
+    def crossover_words(self) -> str:
+        """The crossover in words, the same in every view (it cannot be claimed beyond the range)."""
+        n = self.crossover_repetitions
+        if n is not None:
+            return f"from N = {n:,} on the accumulated error is more than twice the naive estimate"
+        upto = self.checked_through
+        if upto < 1:
+            return "no crossover can be stated: the accumulated curve is beyond its engine's range from N = 1"
+        limit = "" if upto == self.max_cycles else " (its engine's range ends there)"
+        return f"up to N = {upto:,}{limit} the accumulated error stays below twice the naive estimate"
+
+    def deepest_words(self, key: str) -> str:
+        """The deepest count within the target of curve ``key`` in words (every view shows these)."""
+        n = self.deepest.get(key)
+        end = self.range_ends.get(key)
+        if n is None:
+            return "unknown: beyond its engine's range from N = 1" if end == 1 else "none (N = 1 already misses)"
+        shown = f"≥ {n:,}" if n == self.max_cycles else f"{n:,}"
+        return shown + (" (its engine's range ends there)" if end == n + 1 else "")
+
     def range_words(self, key: str) -> str | None:
         """Where curve ``key`` leaves its engine's range, in words (None: it never does)."""
         n = self.range_ends.get(key)

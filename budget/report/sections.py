@@ -99,10 +99,8 @@ def _depth(data: ReportData, figures: dict[str, str]) -> list[Block]:
         f"probability instead of amplitude. Curves computed by: {c.engine}"
         + (f" (twirled: {c.twirled_engine})." if c.twirled_engine != c.engine else ".")
     )
-    if c.crossover_repetitions is not None:
-        text += f" From N = {c.crossover_repetitions:,} on the accumulated error is more than twice the naive estimate."
-    else:
-        text += f" Up to N = {c.max_cycles:,} the accumulated error stays below twice the naive estimate."
+    words = c.crossover_words()
+    text += f" {words[0].upper()}{words[1:]}."
     same = _headline_point(data)
     if same:
         text += " " + same
@@ -113,11 +111,7 @@ def _depth(data: ReportData, figures: dict[str, str]) -> list[Block]:
     if c.deepest:
         rows = []
         for key, words in CURVE_WORDS.items():
-            n = c.deepest.get(key)
-            shown = "none (N = 1 already misses)" if n is None else (f"≥ {n:,}" if n == c.max_cycles else f"{n:,}")
-            if n is not None and c.range_ends.get(key) == n + 1:
-                shown += " (its range ends there)"
-            rows.append((words, shown))
+            rows.append((words, c.deepest_words(key)))
         out.append(Para(f"Deepest repetition count that still meets the target {num(c.target)}:"))
         out.append(Table(("curve", "repetitions"), tuple(rows), (False, True)))
     if c.components:

@@ -49,7 +49,7 @@ def summary_table(result: BudgetResult) -> Table:
     else:
         t.add_row(f"accumulated ({result.engine})", "beyond range", "no value: the first-order model does not hold")
     if result.twirled_infidelity is not None:
-        t.add_row("Pauli-twirled variant", fmt(result.twirled_infidelity), "same errors, coherent parts randomised")
+        t.add_row("Pauli-twirled", fmt(result.twirled_infidelity), "same errors, coherent parts randomised")
     t.add_row("accumulated ÷ naive", result.verdict.amplification.shown(), "the verdict below reads this ratio")
     return t
 

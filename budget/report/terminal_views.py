@@ -91,17 +91,10 @@ def render_depth(c: DepthCurve) -> Panel:
         words = c.range_words(key)
         if words:
             parts.append(Text(f"▸ {words}", style="yellow"))
-    cross = c.crossover_repetitions
-    parts.append(Text(
-        f"crossover: accumulated > 2 × naive from N = {cross:,}" if cross is not None
-        else f"no crossover up to N = {c.max_cycles:,}", style="bold"))
+    parts.append(Text(f"crossover: {c.crossover_words()}", style="bold"))
     for key in CURVE_WORDS:
         if key in c.deepest:
-            n = c.deepest[key]
-            shown = "none" if n is None else (f"≥ {n:,}" if n == c.max_cycles else f"{n:,}")
-            if n is not None and c.range_ends.get(key) == n + 1:
-                shown += " (its range ends there)"
-            parts.append(Text(f"deepest N within target {c.target:g} ({CURVE_WORDS[key]}): {shown}"))
+            parts.append(Text(f"deepest N within target {c.target:g} ({CURVE_WORDS[key]}): {c.deepest_words(key)}"))
     if c.components:
         ct = Table(title="coherent errors under repetition", title_justify="left")
         ct.add_column("knob")
