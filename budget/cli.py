@@ -230,7 +230,8 @@ def report(
 
     if out.exists() and not out.is_dir():
         raise InputError(f"--out {out}: exists and is not a folder")
-    check_output_path(out, "--out")
+    if not out.resolve().parent.is_dir():
+        raise InputError(f"--out {out}: the folder {out.resolve().parent} does not exist")
     with progress_bar("report", quiet=quiet) as tick:
         data = gather(str(circuit), str(errors), target=target, cycles=cycles, metric=metric.value,
                       engine=engine.value, max_cycles=max_cycles, points=points,

@@ -110,3 +110,12 @@ def test_version_and_shared_flags():
         assert "--by-pair" in text and "--by-operation" in text, command
     res = _cli("analyze", CIRCUIT, "-e", MODEL, "--by-pair", "--by-operation")
     assert res.exit_code == 2 and "choose one grouping" in res.output
+
+
+def test_report_writes_again_into_an_existing_folder(tmp_path):
+    out = tmp_path / "rep"
+    for _ in range(2):  # the second run finds the folder and replaces its files
+        res = _cli("report", CIRCUIT, "-e", MODEL, "--target", "0.3", "--out", str(out), "--max-cycles", "20",
+                   "--points", "3", "-q")
+        assert res.exit_code == 0, res.output
+    assert (out / "report.html").is_file() and (out / "report.md").is_file()

@@ -136,3 +136,24 @@ def test_headline_and_json_of_an_out_of_range_cli_run(tmp_path):
     assert data["engine"] == "exact" and data["accumulated"]["in_range"]
     assert data["accumulated"]["infidelity"] == pytest.approx(_depolarized(N, R), rel=1e-9)
     assert np.isfinite(data["naive"]["infidelity"])
+
+
+def test_auto_depth_curve_switches_to_exact_where_the_closed_form_leaves_its_range():
+    # two qubits: auto uses the exact engine at every point anyway for <= 3 qubits, so take a
+    # 4-qubit cycle (closed form under auto) whose first-order sum passes 1 within the grid
+    model = {"gates": {"x": {"overrotation": 0.01, "avg_infidelity": 2e-3}}}
+    c = StructuredCircuit(tuple(f"q[{i}]" for i in range(4)), (Layer(tuple(Operation("x", (i,)) for i in range(4))),))
+    block = attach(c, ErrorModel.from_dict(model))
+    curve = depth_curve(block, max_cycles=300, points=8, target=0.9)
+    assert curve.engine.startswith("generators") and "structured" in curve.switches
+    end = curve.switches["structured"]
+    assert "structured" not in curve.range_ends and all(v is not None for v in curve.structured)
+    for n, v in zip(curve.repetitions, curve.structured):
+        if n >= end:  # from the switch on, exact values: per qubit a depolarized rotation by Nδ,
+            # F_pro = λ^N cos²(Nδ/2) + (1 - λ^N)/4 with λ = 1 - 2r, and the four qubits multiply
+            lam = (1 - 2 * 2e-3) ** n
+            f_q = lam * math.cos(n * 0.01 / 2) ** 2 + (1 - lam) / 4
+            assert v == pytest.approx(1 - f_q**4, rel=1e-9)
+    assert curve.to_dict()["engine_switches"]["accumulated"] == end
+    assert f"exact engine from N = {end:,}" in depth_svg(curve)
+    assert any("the exact engine from" in w or "exact engine at every N" in w for w in curve.notes())

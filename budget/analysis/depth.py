@@ -23,7 +23,6 @@ Which error components build up and which are echoed away: :mod:`budget.analysis
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
 from typing import Callable
 
 import numpy as np
@@ -31,18 +30,19 @@ import numpy as np
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.problems import InputError
 
-CURVES = ("naive", "structured", "twirled")
-CURVE_WORDS = {"naive": "fidelity product (naive)", "structured": "accumulated", "twirled": "Pauli-twirled"}
-"""The one name of each curve in every view (terminal, JSON, report, plot)."""
-JSON_KEYS = {"naive": "naive", "structured": "accumulated", "twirled": "twirled"}
+from budget.analysis.curves import CROSSOVER_FACTOR, CURVE_WORDS, CURVES, JSON_KEYS, DepthCurve
+
+__all__ = ["CROSSOVER_FACTOR", "CURVE_WORDS", "CURVES", "JSON_KEYS", "DepthCurve", "depth_curve", "repetition_grid"]
 MAX_POINTS = 200
-CROSSOVER_FACTOR = 2.0
-"""Structured > CROSSOVER_FACTOR × naive marks the crossover."""
 
 Progress = Callable[[int, int], None]
 MAX_CLOSED_FORM_QUBITS = 10
 EXACT_CURVE_QUBITS = 3
 """With engine ``auto``, cycles on up to this many qubits use the exact engine at every point."""
+EXACT_FALLBACK_QUBITS = 4
+"""With engine ``auto``, curves of a cycle on up to this many qubits switch to the exact engine from
+the N where the first-order closed form leaves its range (about 0.1 s per point at 4 qubits with one
+BLAS thread on the test machine; 5 qubits took up to 5 s per point, too slow for 25 points)."""
 
 
 def repetition_grid(max_cycles: int, points: int) -> tuple[int, ...]:
@@ -58,105 +58,6 @@ def repetition_grid(max_cycles: int, points: int) -> tuple[int, ...]:
     raw = np.unique(np.rint(np.logspace(0, math.log10(max_cycles), points)).astype(np.int64))
     grid = sorted({int(x) for x in raw} | {1, int(max_cycles)})
     return tuple(grid)
-
-
-@dataclass(frozen=True)
-class DepthCurve:
-    """The three curves and what they say.
-
-    Attributes:
-        source: the circuit.
-        metric: ``"process"`` or ``"state"``.
-        engine: engine of the structured curve; twirled_engine: of the twirled curve.
-        repetitions: N values (ascending, from 1 to max_cycles).
-        naive, structured, twirled: infidelity at each N; None where the curve's engine is beyond
-            its range (``structured`` is the *accumulated* curve in every view and in the JSON).
-        crossover_repetitions: first N with structured > 2 × naive (None: not within max_cycles).
-        target: E, when given; deepest: curve name -> largest N <= max_cycles before the curve
-            first exceeds E (None: even N = 1 exceeds it; max_cycles: never within the range).
-        components: which error components build up or are echoed away (may be empty).
-        warnings: validity notes from the engines, and limits of this analysis.
-        range_ends: curve name -> first N beyond its engine's range (curves in range throughout
-            are absent); the deepest count within a target stops there.
-    """
-
-    source: str
-    metric: str
-    engine: str
-    twirled_engine: str
-    repetitions: tuple[int, ...]
-    naive: tuple[float, ...]
-    structured: tuple[float, ...]
-    twirled: tuple[float, ...]
-    crossover_repetitions: int | None
-    target: float | None = None
-    deepest: dict[str, int | None] = field(default_factory=dict)
-    components: tuple = ()
-    warnings: tuple[str, ...] = ()
-    range_ends: dict[str, int] = field(default_factory=dict)
-
-    @property
-    def max_cycles(self) -> int:
-        return self.repetitions[-1]
-
-    @property
-    def checked_through(self) -> int:
-        """The deepest N where the accumulated curve has a value (its range may end earlier)."""
-        end = self.range_ends.get("structured")
-        return self.max_cycles if end is None else end - 1
-
-    def crossover_words(self) -> str:
-        """The crossover in words, the same in every view (it cannot be claimed beyond the range)."""
-        n = self.crossover_repetitions
-        if n is not None:
-            return f"from N = {n:,} on the accumulated error is more than twice the naive estimate"
-        upto = self.checked_through
-        if upto < 1:
-            return "no crossover can be stated: the accumulated curve is beyond its engine's range from N = 1"
-        limit = "" if upto == self.max_cycles else " (its engine's range ends there)"
-        return f"up to N = {upto:,}{limit} the accumulated error stays below twice the naive estimate"
-
-    def deepest_words(self, key: str) -> str:
-        """The deepest count within the target of curve ``key`` in words (every view shows these)."""
-        n = self.deepest.get(key)
-        end = self.range_ends.get(key)
-        if n is None:
-            return "unknown: beyond its engine's range from N = 1" if end == 1 else "none (N = 1 already misses)"
-        shown = f"≥ {n:,}" if n == self.max_cycles else f"{n:,}"
-        return shown + (" (its engine's range ends there)" if end == n + 1 else "")
-
-    def range_words(self, key: str) -> str | None:
-        """Where curve ``key`` leaves its engine's range, in words (None: it never does)."""
-        n = self.range_ends.get(key)
-        if n is None:
-            return None
-        engine = self.engine if key == "structured" else self.twirled_engine
-        if n == self.repetitions[0]:
-            return f"{CURVE_WORDS[key]} curve ({engine}): beyond the first-order range at every N; no value is shown"
-        return (f"{CURVE_WORDS[key]} curve ({engine}): first-order range ends at N = {n:,}; "
-                "no value is shown from there on")
-
-    def to_dict(self) -> dict:
-        """The documented JSON object (docs/report.md)."""
-        out = {
-            "source": self.source,
-            "metric": self.metric,
-            "engine": self.engine,
-            "twirled_engine": self.twirled_engine,
-            "repetitions": list(self.repetitions),
-            "naive": list(self.naive),
-            "accumulated": list(self.structured),
-            "twirled": list(self.twirled),
-            "range_ends": {JSON_KEYS[k]: n for k, n in self.range_ends.items()},
-            "crossover_repetitions": self.crossover_repetitions,
-            "crossover_factor": CROSSOVER_FACTOR,
-            "components": [c.to_dict() for c in self.components],
-            "warnings": list(self.warnings),
-        }
-        if self.target is not None:
-            out["target"] = self.target
-            out["deepest_within_target"] = {JSON_KEYS[k]: n for k, n in self.deepest.items()}
-        return out
 
 
 class _Series:
@@ -288,9 +189,18 @@ def depth_curve(
     log_keep = math.log1p(-min(naive_infidelity(block), 1.0)) if naive_infidelity(block) < 1 else -math.inf
     naive = _Series(lambda n: (-math.expm1(n * log_keep) if log_keep > -math.inf else 1.0, True))
     structured, name, notes = _engine_series(block, metric, engine, "accumulated")
-    twirled, tw_name, tw_notes = _engine_series(twirled_circuit(block), metric, engine, "twirled")
-    values: dict[str, list[float]] = {c: [] for c in CURVES}
+    tw_block = twirled_circuit(block)
+    twirled, tw_name, tw_notes = _engine_series(tw_block, metric, engine, "twirled")
     series = {"naive": naive, "structured": structured, "twirled": twirled}
+    switches: dict[str, int] = {}
+    if engine == "auto" and block.num_qubits <= EXACT_FALLBACK_QUBITS:
+        for key, cycle in (("structured", block), ("twirled", tw_block)):
+            end = series[key].range_end(grid)
+            if end is not None and _exact_fits(cycle, metric):
+                series[key] = _switched(series[key], end, cycle, metric)
+                switches[key] = end
+    structured, twirled = series["structured"], series["twirled"]
+    values: dict[str, list[float]] = {c: [] for c in CURVES}
     for i, n in enumerate(grid):
         for c in CURVES:
             values[c].append(series[c](n))
@@ -324,7 +234,30 @@ def depth_curve(
         components=components,
         warnings=tuple(warnings),
         range_ends={c: n for c, n in ends.items() if n is not None},
+        switches=switches,
     )
+
+
+def _exact_fits(cycle: NoisyCircuit, metric: str) -> bool:
+    from budget.engines import get_engine
+
+    return get_engine("exact").fits(_repeated(cycle, 2), metric) is None
+
+
+def _switched(first: _Series, end: int, cycle: NoisyCircuit, metric: str) -> _Series:
+    """``first`` below N = ``end`` (where it is in range), the exact engine from there on
+    (engine ``auto`` switches to an engine valid there, issue of values beyond range)."""
+    from budget.engines import get_engine
+
+    exact = get_engine("exact").brief()
+
+    def value(n: int) -> tuple[float, bool]:
+        if n < end:
+            v = first(n)
+            return (0.0, False) if v is None else (v, True)
+        return exact.run(_repeated(cycle, n), metric).infidelity, True
+
+    return _Series(value)
 
 
 def _above(value: float | None, bound: float) -> bool:

@@ -109,11 +109,12 @@ def _depth_figure(curve: DepthCurve):
         y = np.array([np.nan if v is None else max(v, floor) for v in getattr(curve, key)])
         style = "-" if key == "structured" else "--" if key == "naive" else ":"
         ax.plot(n, y, style, color=COLOURS[key], lw=2.2 if key == "structured" else 1.8, label=WORDS[key])
-        end = curve.range_ends.get(key)
-        if end is not None:  # the curve stops where its engine stops holding; say so on the plot
-            ax.axvline(end, color=COLOURS[key], lw=1.0, ls=(0, (2, 2)))
-            ax.text(end, 0.97, f" {WORDS[key]}: range ends, N = {end:,}", transform=ax.get_xaxis_transform(),
-                    color=COLOURS[key], fontsize=8, va="top", rotation=90)
+        marks = ((curve.range_ends.get(key), "range ends,"), (curve.switches.get(key), "exact engine from"))
+        for at, words in marks:  # where a curve stops or changes engine; say so on the plot
+            if at is not None:
+                ax.axvline(at, color=COLOURS[key], lw=1.0, ls=(0, (2, 2)))
+                ax.text(at, 0.97, f" {WORDS[key]}: {words} N = {at:,}", transform=ax.get_xaxis_transform(),
+                        color=COLOURS[key], fontsize=8, va="top", rotation=90)
     ax.set_xscale("log" if n[-1] > 1 else "linear")
     ax.set_yscale("log")
     if curve.crossover_repetitions is not None:

@@ -105,7 +105,7 @@ def _depth(data: ReportData, figures: dict[str, str]) -> list[Block]:
     if same:
         text += " " + same
     out.append(Para(text))
-    out += [Para(w, "warning") for w in map(c.range_words, ("structured", "twirled")) if w]
+    out += [Para(w, "note") for w in c.notes()]
     if "depth-curves" in figures:
         out.append(Figure("depth-curves", figures["depth-curves"], "Infidelity against repetitions (log–log)."))
     if c.deepest:
@@ -145,6 +145,9 @@ def _headline_point(data: ReportData) -> str:
     c, r = data.curve, data.result
     if c is None or r.cycles not in c.repetitions or c.engine == r.engine:
         return ""
+    switch = c.switches.get("structured")
+    if switch is not None and switch <= r.cycles and r.engine == "exact":
+        return ""  # the curve's point there is the exact engine's, as the headline
     at = c.structured[c.repetitions.index(r.cycles)]
     gives = "has no value (beyond its engine's range)" if at is None else f"gives {num(at)} from the {c.engine} engine"
     return (f"At N = {r.cycles:,} (the circuit as analysed above) this curve {gives}, "

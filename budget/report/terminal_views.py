@@ -87,10 +87,7 @@ def render_depth(c: DepthCurve) -> Panel:
     for n, a, b, w in zip(c.repetitions, c.naive, c.structured, c.twirled):
         t.add_row(f"{n:,}", fmt(a), _point(b), _point(w))
     parts: list = [t]
-    for key in ("structured", "twirled"):
-        words = c.range_words(key)
-        if words:
-            parts.append(Text(f"▸ {words}", style="yellow"))
+    parts += [Text(f"▸ {w}", style="yellow") for w in c.notes()]
     parts.append(Text(f"crossover: {c.crossover_words()}", style="bold"))
     for key in CURVE_WORDS:
         if key in c.deepest:
