@@ -172,8 +172,7 @@ def depth(
 ) -> None:
     """Infidelity against repetitions: naive, accumulated and Pauli-twirled, with the crossover."""
     from budget.analysis.depth import depth_curve
-    from budget.analysis.run import read_circuit, read_model
-    from budget.errors.attach import attach
+    from budget.analysis.run import attach_grouped, read_circuit, read_model
     from budget.report.json_out import write_json
     from budget.report.progress import progress_bar
     from budget.report.terminal_views import render_depth
@@ -187,7 +186,7 @@ def depth(
         from budget.report.plots import plot_format
 
         fmt = plot_format(str(plot))
-    block = attach(read_circuit(str(circuit)), read_model(str(errors)), family_by=grouping(by_pair, by_operation))
+    block = attach_grouped(read_circuit(str(circuit)), read_model(str(errors)), grouping(by_pair, by_operation))
     with progress_bar("depth curve", quiet=quiet) as tick:
         curve = depth_curve(block, max_cycles=max_cycles, points=points, metric=metric.value,
                             engine=engine.value, target=target, progress=tick)

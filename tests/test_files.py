@@ -110,6 +110,11 @@ def test_version_and_shared_flags():
         assert "--by-pair" in text and "--by-operation" in text, command
     res = _cli("analyze", CIRCUIT, "-e", MODEL, "--by-pair", "--by-operation")
     assert res.exit_code == 2 and "choose one grouping" in res.output
+    parity = str(ROOT / "circuits" / "parity_cycle.qasm")
+    res = _cli("analyze", parity, "-e", MODEL, "--by-operation", "--width", "150")
+    assert res.exit_code == 0 and "cz q[2],q[3] @10" in res.output  # one family per operation, with its line
+    res = _cli("depth", parity, "-e", MODEL, "--by-operation", "--max-cycles", "5", "--points", "2", "-q")
+    assert res.exit_code == 0, res.output
 
 
 def test_report_writes_again_into_an_existing_folder(tmp_path):

@@ -114,8 +114,7 @@ def analyze_all(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "pr
     """The budget of ``circuit`` and the companions asked for (arguments as for
     :func:`budget.analysis.run.analyze`; ``against``: a circuit path or ``"random"``; ``draws``:
     random counterparts; ``ensemble``: randomly compiled copies; ``seed``: first seed of both)."""
-    from budget.analysis.run import analyze, analyze_noisy, read_circuit, read_model
-    from budget.errors.attach import attach
+    from budget.analysis.run import analyze, analyze_noisy, attach_grouped, read_circuit, read_model
 
     if isinstance(draws, bool) or not isinstance(draws, int) or not 2 <= draws <= MAX_DRAWS:
         raise InputError(f"draws = {draws!r}: expected a whole number from 2 to {MAX_DRAWS}")
@@ -130,7 +129,7 @@ def analyze_all(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "pr
         seeds = tuple(range(seed, seed + draws))
         for i, s in enumerate(seeds):
             other = random_counterpart(whole, seed=s)
-            r = analyze_noisy(attach(other, model, family_by=family_by), other, metric=metric, engine=engine)
+            r = analyze_noisy(attach_grouped(other, model, family_by), other, metric=metric, engine=engine)
             naive.append(r.naive_infidelity)
             acc.append(r.accumulated)
             name = r.engine
@@ -147,6 +146,6 @@ def analyze_all(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "pr
 
         done = draws if against == "random" else 0
         tick = None if progress is None else (lambda k, n: progress(done + k, done + n))
-        copies = run_ensemble(attach(whole, model, family_by=family_by), count=ensemble, seed=seed, metric=metric,
+        copies = run_ensemble(attach_grouped(whole, model, family_by), count=ensemble, seed=seed, metric=metric,
                               engine=engine, progress=tick)
     return Analysis(result, comparison, random, copies)

@@ -49,7 +49,8 @@ def analyze(
             for input |0…0>).
         engine: ``"auto"``, ``"exact"``, ``"generators"`` or ``"clifford"``.
         observables: Pauli observables such as ``"Z0Z1"``, whose expectation-value errors to report.
-        family_by: ``"gate"`` (one family per gate name) or ``"pair"`` (gate name per qubit tuple).
+        family_by: ``"gate"`` (one family per gate name), ``"pair"`` (gate name per qubit tuple) or
+            ``"operation"`` (each operation as written).
         compare_twirled: also compute the Pauli-twirled variant of the circuit.
 
     Returns:
@@ -64,7 +65,7 @@ def analyze(
         raise InputError(f"cycles = {cycles!r}: expected a whole number from 1 to 10**18")
     structured = read_circuit(circuit).with_cycles(cycles)
     model = read_model(errors)
-    noisy = attach(structured, model, family_by=family_by)
+    noisy = attach_grouped(structured, model, family_by)
     return analyze_noisy(
         noisy,
         structured,
@@ -137,6 +138,24 @@ def analyze_noisy(
         details=dict(outcome.details),
         beyond_range=outcome.beyond_range,
     )
+
+
+GROUPINGS = ("gate", "pair", "operation")
+
+
+def attach_grouped(structured: StructuredCircuit, model: Any, family_by: str = "gate") -> NoisyCircuit:
+    """The model attached with families per ``family_by``: ``"gate"`` (gate name), ``"pair"`` (gate
+    per qubit tuple) or ``"operation"`` (each operation as written, with its line; the same
+    grouping as ``budget tolerances --by-operation``)."""
+    from budget.errors.attach import attach
+
+    if family_by not in GROUPINGS:
+        raise InputError(f"family_by = {family_by!r}: expected one of {', '.join(GROUPINGS)}")
+    if family_by == "operation":
+        from budget.analysis.sensitivity import per_operation
+
+        return per_operation(attach(structured, model, family_by="gate"))
+    return attach(structured, model, family_by=family_by)
 
 
 def _family_counts(noisy: NoisyCircuit) -> dict[str, int]:

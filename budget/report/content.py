@@ -230,16 +230,15 @@ def gather(
     """
     from budget.analysis.depth import depth_curve
     from budget.analysis.heatmap import error_map
-    from budget.analysis.run import read_circuit, read_model, analyze_noisy
-    from budget.errors.attach import attach
+    from budget.analysis.run import analyze_noisy, attach_grouped, read_circuit, read_model
     from budget.problems import InputError, TooLargeError
 
     if isinstance(target, bool) or not isinstance(target, (int, float)) or not 0 < target < 1:
         raise InputError(f"target = {target!r}: expected an infidelity E with 0 < E < 1")
     structured = read_circuit(circuit)
     model = read_model(errors)
-    block = attach(structured, model, family_by=family_by)
-    whole = attach(structured.with_cycles(cycles), model, family_by=family_by)
+    block = attach_grouped(structured, model, family_by)
+    whole = attach_grouped(structured.with_cycles(cycles), model, family_by)
     result = analyze_noisy(whole, structured.with_cycles(cycles), metric=metric, engine=engine,
                            compare_twirled=True, cycles=cycles, notes=model.warnings())
     notes: list[str] = []
