@@ -157,3 +157,16 @@ def test_auto_depth_curve_switches_to_exact_where_the_closed_form_leaves_its_ran
     assert curve.to_dict()["engine_switches"]["accumulated"] == end
     assert f"exact engine from N = {end:,}" in depth_svg(curve)
     assert any("the exact engine from" in w or "exact engine at every N" in w for w in curve.notes())
+
+
+def test_observable_changes_beyond_two_are_not_shown():
+    # <Z> after 300 depolarized X gates (even count: ideal |0>): λ^N with λ = 1 - 2r, so the change
+    # is λ^N - 1 (depolarizing shrinks the Bloch vector by λ per gate, Nielsen & Chuang (2000) §8.3)
+    c = StructuredCircuit(("q[0]",), (Repeat((Layer((Operation("x", (0,)),)),), N),))
+    model = {"gates": {"x": {"avg_infidelity": R}}}
+    exact = analyze(c, model, engine="exact", metric="state", observables=("Z0",))
+    assert exact.observables["Z0"] == pytest.approx((1 - 2 * R) ** N - 1, rel=1e-9)
+    first = analyze(c, model, engine="generators", metric="state", observables=("Z0",))
+    assert first.observables["Z0"] is None  # first order gives -6: no Pauli expectation value moves by more than 2
+    assert any("observable Z0" in w and "beyond" in w for w in first.warnings)
+    assert first.to_dict()["observables"] == [{"observable": "Z0", "error": None}]

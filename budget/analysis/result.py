@@ -75,7 +75,7 @@ class BudgetResult:
     families: tuple[FamilyShare, ...]
     readout: ReadoutSummary
     warnings: tuple[str, ...] = ()
-    observables: dict[str, float] = field(default_factory=dict)
+    observables: dict[str, float | None] = field(default_factory=dict)
     twirled_infidelity: float | None = None
     details: dict[str, Any] = field(default_factory=dict)
     beyond_range: str | None = None

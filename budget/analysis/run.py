@@ -26,6 +26,8 @@ if TYPE_CHECKING:
     import cirq
 
 MAX_CYCLES = 10**18
+OBSERVABLE_RANGE = 2.0
+"""A Pauli expectation value lies in [-1, 1], so its error cannot exceed 2 in size."""
 
 
 def analyze(
@@ -113,6 +115,14 @@ def analyze_noisy(
         else:
             warnings.append(f"Pauli-twirled variant left out: the {tw_result.engine} engine is beyond its range "
                             f"there ({tw_result.beyond_range})")
+    observed = {}
+    for label, err in outcome.observable_errors.items():  # <O> of a Pauli lies in [-1, 1]
+        if abs(err) > OBSERVABLE_RANGE:
+            warnings.append(f"observable {label}: the {outcome.engine} engine gives a change of {err:+.3g}, beyond "
+                            f"the largest possible {OBSERVABLE_RANGE:g} of a Pauli expectation value; no value shown")
+            observed[label] = None
+        else:
+            observed[label] = float(err)
     counts = _family_counts(noisy)
     families = tuple(
         FamilyShare(name, counts.get(name, 0), float(shares.get(name, 0.0)))
@@ -133,7 +143,7 @@ def analyze_noisy(
         families=families,
         readout=ReadoutSummary.from_errors(noisy.readout_error, noisy.qubits),
         warnings=tuple(dict.fromkeys(warnings)),
-        observables=dict(outcome.observable_errors),
+        observables=observed,
         twirled_infidelity=twirled,
         details=dict(outcome.details),
         beyond_range=outcome.beyond_range,

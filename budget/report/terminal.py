@@ -140,7 +140,7 @@ def render_budget(result: BudgetResult) -> Group:
         ot.add_column("observable")
         ot.add_column("<O> actual - ideal", justify="right")
         for k, v in result.observables.items():
-            ot.add_row(k, f"{v:+.3e}")
+            ot.add_row(k, "beyond range" if v is None else f"{v:+.3e}")
         parts.append(ot)
     if result.readout.per_qubit:
         worst = max(result.readout.per_qubit.items(), key=lambda kv: kv[1])
