@@ -133,7 +133,9 @@ def summary_words(data: ReportData) -> str:
     accumulated = "is beyond the range of the first-order model" if r.accumulated is None else f"gives {num(r.accumulated)}"
     parts.append(
         f"Multiplying the gate fidelities predicts an infidelity of {num(r.naive_infidelity)}; following how "
-        f"the errors accumulate {accumulated}. Verdict: {r.verdict.words}."
+        f"the errors accumulate {accumulated}. "
+        + (f"{r.verdict.words[0].upper()}{r.verdict.words[1:]}." if r.verdict.kind == "beyond-range"
+           else f"Verdict: {r.verdict.words}.")
     )
     meets, words = verdict(r, data.target)
     parts.append(f"The circuit {words}.")

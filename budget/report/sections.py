@@ -143,8 +143,8 @@ def _point(x: float | None) -> str:
 def _headline_point(data: ReportData) -> str:
     """When the curve and the headline come from different engines, say so and give both values."""
     c, r = data.curve, data.result
-    if c is None or r.cycles not in c.repetitions or c.engine == r.engine:
-        return ""
+    if c is None or r.cycles not in c.repetitions or c.engine.split(" ")[0] == r.engine:
+        return ""  # the periodic closed form gives what the generators engine gives for that repeat
     switch = c.switches.get("structured")
     if switch is not None and switch <= r.cycles and r.engine == "exact":
         return ""  # the curve's point there is the exact engine's, as the headline
