@@ -11,12 +11,14 @@ The public API, stated once. Everything else is internal and may change.
     >>> r.coherent_amplification                                # doctest: +SKIP
 """
 
+from budget.analysis.compose import Analysis, analyze_all
 from budget.analysis.decide import Decisions, decide
 from budget.analysis.depth import DepthCurve, depth_curve
 from budget.analysis.randomized import EnsembleResult, ensemble
 from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary
 from budget.analysis.run import analyze, analyze_noisy
 from budget.analysis.twirl import twirled_circuit
+from budget.analysis.verdict import Verdict, classify
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
 from budget.circuit.load import load_circuit
 from budget.engines import ENGINE_NAMES, EngineResult, get_engine
@@ -37,6 +39,10 @@ def from_cirq(circuit, source: str = "<cirq.Circuit>") -> StructuredCircuit:
     return _from_cirq(circuit, source)
 
 __all__ = [
+    "Analysis",
+    "Verdict",
+    "analyze_all",
+    "classify",
     "BudgetResult",
     "CircuitSyntaxError",
     "Decisions",
