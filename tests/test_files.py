@@ -124,3 +124,14 @@ def test_report_writes_again_into_an_existing_folder(tmp_path):
                    "--points", "3", "-q")
         assert res.exit_code == 0, res.output
     assert (out / "report.html").is_file() and (out / "report.md").is_file()
+
+
+def test_every_command_writes_its_json_or_picture_to_standard_output():
+    res = _cli("tolerances", CIRCUIT, "-e", MODEL, "--target", "0.05", "--json", "-")
+    assert res.exit_code == 0, res.stderr
+    assert json.loads(res.stdout)["kind"] == "tolerances"
+    res = _cli("depth", CIRCUIT, "-e", MODEL, "--max-cycles", "10", "--points", "2", "--plot", "-", "-q")
+    assert res.exit_code == 0, res.stderr
+    assert res.stdout.lstrip().startswith("<svg") and "depth curves" in res.stderr
+    res = _cli("depth", CIRCUIT, "-e", MODEL, "--max-cycles", "10", "--json", "-", "--plot", "-")
+    assert res.exit_code == 2 and "only one output" in res.output
