@@ -135,6 +135,9 @@ def test_headline_and_json_of_an_out_of_range_cli_run(tmp_path):
     data = json.loads(out.read_text())
     assert data["engine"] == "exact" and data["accumulated"]["in_range"]
     assert data["accumulated"]["infidelity"] == pytest.approx(_depolarized(N, R), rel=1e-9)
+    # the split into families would come from a first-order engine beyond its range: left out, said why
+    assert data["families"][0]["share"] is None
+    assert any(w.startswith("family shares left out") for w in data["warnings"])
     assert np.isfinite(data["naive"]["infidelity"])
 
 

@@ -79,10 +79,16 @@ class BudgetResult:
     twirled_infidelity: float | None = None
     details: dict[str, Any] = field(default_factory=dict)
     beyond_range: str | None = None
+    shares_known: bool = True
 
     @property
     def in_range(self) -> bool:
         return self.beyond_range is None
+
+    @property
+    def shows_shares(self) -> bool:
+        """Family shares mean something: the value is in range and an engine in range split it."""
+        return self.in_range and self.shares_known
 
     @property
     def accumulated(self) -> float | None:
@@ -125,7 +131,7 @@ class BudgetResult:
             "coherent_amplification": self.coherent_amplification,
             "verdict": self.verdict.to_dict(),
             "families": [
-                {"name": f.name, "operations": f.operations, "share": f.share if self.in_range else None}
+                {"name": f.name, "operations": f.operations, "share": f.share if self.shows_shares else None}
                 for f in self.families
             ],
             "readout": {"per_qubit": self.readout.per_qubit, "any_error": self.readout.any_error},

@@ -99,10 +99,12 @@ def analyze_noisy(
     outcome, switched = run_in_range(noisy, metric, chosen, engine, observables=tuple(observables))
     warnings = list(notes) + list(switched) + list(outcome.warnings)
     shares = dict(outcome.shares)
+    shares_known = True
     if not shares:
         shares, note = first_order_shares(noisy, metric, outcome.infidelity, exclude=outcome.engine)
         if note:
             warnings.append(note)
+            shares_known = False
     naive = naive_infidelity(noisy)
     twirled = None
     if compare_twirled:
@@ -147,6 +149,7 @@ def analyze_noisy(
         twirled_infidelity=twirled,
         details=dict(outcome.details),
         beyond_range=outcome.beyond_range,
+        shares_known=shares_known,
     )
 
 

@@ -62,7 +62,8 @@ def first_order_shares(
 
     The split between families comes from the leading-order decomposition (coherent amplitudes
     per family, cross terms included); its overall size is set to the engine's actual value.
-    Returns the shares and a note when no first-order engine fits.
+    Returns the shares and a note when no first-order engine fits or the one that fits is beyond
+    its range (then no shares: a split of that engine would be a number outside its meaning).
     """
     for candidate in ("generators", "clifford"):
         if candidate == exclude:
@@ -71,11 +72,11 @@ def first_order_shares(
         if engine is None or engine.fits(circuit, metric) is not None:
             continue
         fo = engine.brief().run(circuit, metric)
+        if fo.beyond_range is not None:
+            return {}, (f"family shares left out: the {candidate} engine that splits the total is beyond its "
+                        f"range here ({fo.beyond_range})")
         s = sum(fo.shares.values())
-        note = None if fo.beyond_range is None else (
-            f"family shares split as the {candidate} engine does, which is beyond its range here "
-            f"({fo.beyond_range}): read the split as rough")
         if s > 0:
-            return {k: v * total / s for k, v in fo.shares.items()}, note
-        return dict(fo.shares), note
+            return {k: v * total / s for k, v in fo.shares.items()}, None
+        return dict(fo.shares), None
     return {}, "family shares unavailable: no first-order engine fits this circuit"

@@ -14,7 +14,7 @@ def figures(data: ReportData) -> dict[str, str]:
     out = {}
     if data.curve is not None:
         out["depth-curves"] = depth_svg(data.curve)
-    if data.result.families and data.result.in_range:
+    if data.result.families and data.result.shows_shares:
         out["family-shares"] = shares_svg(data.result.families, data.result.actual_infidelity,
                                           title=data.result.verdict.words)
     out["error-map"] = heatmap_svg(data.emap)

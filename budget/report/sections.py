@@ -165,8 +165,10 @@ def _shares(data: ReportData, figures: dict[str, str]) -> list[Block]:
     ))
     if "family-shares" in figures:
         out.append(Figure("family-shares", figures["family-shares"], "Share of the accumulated infidelity per gate family."))
-    if r.accumulated is None:
-        return out + [Para("Family shares are left out: the error is beyond the first-order range.", "note")]
+    if not r.shows_shares:
+        why = "the error is beyond the first-order range" if r.accumulated is None else \
+            "no engine within its range could split the total (see the warnings at the end)"
+        return out + [Para(f"Family shares are left out: {why}.", "note")]
     total = r.actual_infidelity
     out.append(Table(
         ("family", "operations executed", "share", "of total"),

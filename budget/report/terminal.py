@@ -64,7 +64,7 @@ def families_table(result: BudgetResult, *, width: int = 24) -> Table:
     total = result.actual_infidelity
     peak = max((abs(f.share) for f in result.families), default=0.0) or 1.0
     for f in result.families:
-        if not result.in_range:
+        if not result.shows_shares:
             t.add_row(f.name, f"{f.operations:,}", "—", "—", "")
             continue
         pct = f"{100 * f.share / total:.1f} %" if total > 0 and not at_rounding_level(total) else "—"
