@@ -19,8 +19,10 @@ import numpy as np
 
 from budget.analysis.compare import Comparison, random_counterpart
 from budget.analysis.randomized import EnsembleResult
+from budget.analysis.randomized import ensemble as run_ensemble
 from budget.analysis.ratios import Ratio, safe_ratio
 from budget.analysis.result import BudgetResult
+from budget.analysis.run import analyze, analyze_noisy, attach_grouped, read_circuit, read_model
 from budget.problems import InputError
 
 Progress = Callable[[int, int], None]
@@ -114,8 +116,6 @@ def analyze_all(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "pr
     """The budget of ``circuit`` and the companions asked for (arguments as for
     :func:`budget.analysis.run.analyze`; ``against``: a circuit path or ``"random"``; ``draws``:
     random counterparts; ``ensemble``: randomly compiled copies; ``seed``: first seed of both)."""
-    from budget.analysis.run import analyze, analyze_noisy, attach_grouped, read_circuit, read_model
-
     if isinstance(draws, bool) or not isinstance(draws, int) or not 2 <= draws <= MAX_DRAWS:
         raise InputError(f"draws = {draws!r}: expected a whole number from 2 to {MAX_DRAWS}")
     model = read_model(errors)
@@ -142,8 +142,6 @@ def analyze_all(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "pr
                          compare_twirled=result.twirled_infidelity is not None)
         comparison = Comparison(result, second)
     if ensemble:
-        from budget.analysis.randomized import ensemble as run_ensemble
-
         done = draws if against == "random" else 0
         tick = None if progress is None else (lambda k, n: progress(done + k, done + n))
         copies = run_ensemble(attach_grouped(whole, model, family_by), count=ensemble, seed=seed, metric=metric,

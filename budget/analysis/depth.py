@@ -27,6 +27,8 @@ from typing import Callable
 
 import numpy as np
 
+from budget.analysis.ratios import at_rounding_level
+from budget.engines import get_engine
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.problems import InputError
 
@@ -109,7 +111,6 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str) ->
     re-running it per point. Otherwise every point is one run of the chosen engine on the folded
     repeat (the exact engine takes matrix powers, the clifford engine folds whole periods)."""
     from budget.analysis.select import choose_engine
-    from budget.engines import get_engine
 
     notes: list[str] = []
     small = engine == "auto" and block.num_qubits <= EXACT_CURVE_QUBITS
@@ -239,16 +240,12 @@ def depth_curve(
 
 
 def _exact_fits(cycle: NoisyCircuit, metric: str) -> bool:
-    from budget.engines import get_engine
-
     return get_engine("exact").fits(_repeated(cycle, 2), metric) is None
 
 
 def _switched(first: _Series, end: int, cycle: NoisyCircuit, metric: str) -> _Series:
     """``first`` below N = ``end`` (where it is in range), the exact engine from there on
     (engine ``auto`` switches to an engine valid there, issue of values beyond range)."""
-    from budget.engines import get_engine
-
     exact = get_engine("exact").brief()
 
     def value(n: int) -> tuple[float, bool]:
@@ -262,6 +259,4 @@ def _switched(first: _Series, end: int, cycle: NoisyCircuit, metric: str) -> _Se
 
 def _above(value: float | None, bound: float) -> bool:
     """value > bound, with values beyond range (None) and at rounding level never above."""
-    from budget.analysis.ratios import at_rounding_level
-
     return value is not None and not at_rounding_level(value) and value > bound

@@ -11,6 +11,7 @@ and by how much, instead of printing a number as if it were an infidelity.
 
 from __future__ import annotations
 
+from budget.analysis.select import AUTO_ORDER
 from budget.engines import Engine, get_engine
 from budget.engines.base import EngineResult
 from budget.errors.noisy import NoisyCircuit
@@ -22,8 +23,6 @@ def run_in_range(circuit: NoisyCircuit, metric: str, chosen: Engine, requested: 
 
     Returns the result used and notes saying which engine was left and why.
     """
-    from budget.analysis.select import AUTO_ORDER
-
     outcome = chosen.run(circuit, metric, observables=observables)
     if outcome.beyond_range is None or requested != "auto" or chosen.name not in AUTO_ORDER:
         return outcome, ()

@@ -25,7 +25,7 @@ from typing import Any, Mapping
 
 from budget.circuit.gates import ALIASES, GATES, exchange_symmetric
 from budget.errors.context import SECTIONS, ContextModel, parse_context
-from budget.errors.params import FieldError, GateParams, QubitParams, key_path, mirrored, show
+from budget.errors.params import LARGE_ANGLE_RAD, FieldError, GateParams, QubitParams, key_path, mirrored, show
 from budget.errors.uncertain import central_values
 from budget.problems import ModelError, place
 
@@ -77,8 +77,6 @@ class ErrorModel:
 
     def warnings(self) -> tuple[str, ...]:
         """Plain-word warnings about allowed but unusual values, each with its key path."""
-        from budget.errors.params import LARGE_ANGLE_RAD
-
         tables = [(f"gates.{name}", gp) for name, gp in sorted(self.gates.items())]
         tables += [(f'gates.{name}."{",".join(qs)}"', gp) for (name, qs), gp in sorted(self.gate_overrides.items())]
         out = []

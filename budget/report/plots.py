@@ -11,6 +11,7 @@ import io
 import math
 import re
 import textwrap
+from pathlib import Path
 
 import matplotlib
 
@@ -22,6 +23,7 @@ from matplotlib.colors import LinearSegmentedColormap  # noqa: E402
 
 from budget.analysis.depth import CURVE_WORDS, DepthCurve  # noqa: E402
 from budget.analysis.ratios import at_rounding_level  # noqa: E402
+from budget.problems import InputError  # noqa: E402
 from budget.analysis.heatmap import ErrorMap  # noqa: E402
 from budget.analysis.result import FamilyShare  # noqa: E402
 
@@ -68,10 +70,6 @@ def plot_format(path: str) -> str:
     Raises:
         InputError: an extension other than .svg, .png or .pdf.
     """
-    from pathlib import Path
-
-    from budget.problems import InputError
-
     if str(path) == "-":
         return "svg"
     suffix = Path(path).suffix.lower()
