@@ -173,3 +173,16 @@ def test_observable_changes_beyond_two_are_not_shown():
     assert first.observables["Z0"] is None  # first order gives -6: no Pauli expectation value moves by more than 2
     assert any("observable Z0" in w and "beyond" in w for w in first.warnings)
     assert first.to_dict()["observables"] == [{"observable": "Z0", "error": None}]
+
+
+def test_a_leading_order_above_one_is_not_printed_as_a_number():
+    # 100 X gates over-rotated by 0.03 rad: exponentiated value sin²(1.5) (design.md §6), exact for
+    # commuting errors and in range, while the quadratic formula gives (Nδ/2)² = 2.25
+    c, noisy = _x_repeated(100, {"gates": {"x": {"overrotation": 0.03}}})
+    r = analyze_noisy(noisy, c, metric="process", engine="generators")
+    assert r.in_range and r.accumulated == pytest.approx(math.sin(1.5) ** 2, rel=1e-9)
+    assert r.first_order == pytest.approx(2.25, rel=1e-9)
+    console = make_console(width=200, color=False)
+    with console.capture() as cap:
+        console.print(render_budget(r))
+    assert "above 1" in cap.get() and "2.25" not in cap.get()
