@@ -151,12 +151,13 @@ class EnsembleResult:
     """The actual infidelity over an ensemble of randomly compiled copies.
 
     Attributes:
-        count: number of compiled copies.
         seed: the seed of numpy's default generator that drew the frames.
         metric: ``"process"`` or ``"state"``.
         engine: the engine that ran the copies.
         values: infidelity of each copy, in drawing order.
-        twirled_infidelity: the Pauli-twirled prediction for the same circuit (same engine choice).
+        count: number of compiled copies whose value is in range (the others are left out, with a note).
+        twirled_infidelity: the Pauli-twirled prediction for the same circuit (same engine choice);
+            None when it is beyond its engine's range.
         notes: modelling notes (undressed operations).
     """
 
@@ -165,7 +166,7 @@ class EnsembleResult:
     metric: str
     engine: str
     values: tuple[float, ...]
-    twirled_infidelity: float
+    twirled_infidelity: float | None
     notes: tuple[str, ...] = ()
 
     @property
@@ -215,6 +216,7 @@ def ensemble(
     """
     from budget.analysis.select import choose_engine
     from budget.analysis.twirl import twirled_circuit
+    from budget.analysis.validity import run_in_range
 
     if isinstance(count, bool) or not isinstance(count, int) or count < 1:
         raise InputError(f"ensemble count = {count!r}: expected a whole number >= 1")
@@ -234,11 +236,19 @@ def ensemble(
     for i in range(count):
         copy, why = compiled_copy(circuit, rng)
         notes.extend(why)
-        eng = choose_engine(copy, metric, engine, brief=True)
-        name = eng.name
-        values.append(float(eng.run(copy, metric).infidelity))
+        result, _ = run_in_range(copy, metric, choose_engine(copy, metric, engine, brief=True), engine)
+        name = result.engine
+        if result.beyond_range is None:
+            values.append(float(result.infidelity))
+        else:
+            notes.append(f"copies beyond the range of the {result.engine} engine are left out of the mean "
+                         f"({result.beyond_range})")
         if progress is not None:
             progress(i + 1, count)
+    if not values:
+        raise TooLargeError(f"{circuit.source}: every randomly compiled copy is beyond the range of the {name} engine "
+                            "and no engine valid there fits; use fewer cycles")
     tw = twirled_circuit(circuit)
-    twirled = float(choose_engine(tw, metric, engine, brief=True).run(tw, metric).infidelity)
-    return EnsembleResult(count, seed, metric, name, tuple(values), twirled, tuple(dict.fromkeys(notes)))
+    tw_result, _ = run_in_range(tw, metric, choose_engine(tw, metric, engine, brief=True), engine)
+    twirled = None if tw_result.beyond_range is not None else float(tw_result.infidelity)
+    return EnsembleResult(len(values), seed, metric, name, tuple(values), twirled, tuple(dict.fromkeys(notes)))
