@@ -148,14 +148,14 @@ def compiled_copy(circuit: NoisyCircuit, rng: np.random.Generator) -> tuple[Nois
 
 @dataclass(frozen=True)
 class EnsembleResult:
-    """The actual infidelity over an ensemble of randomly compiled copies.
+    """The accumulated infidelity over an ensemble of randomly compiled copies.
 
     Attributes:
+        count: number of compiled copies whose value is in range (the others are left out, with a note).
         seed: the seed of numpy's default generator that drew the frames.
         metric: ``"process"`` or ``"state"``.
         engine: the engine that ran the copies.
-        values: infidelity of each copy, in drawing order.
-        count: number of compiled copies whose value is in range (the others are left out, with a note).
+        values: infidelity of each copy in range, in drawing order.
         twirled_infidelity: the Pauli-twirled prediction for the same circuit (same engine choice);
             None when it is beyond its engine's range.
         notes: modelling notes (undressed operations).
