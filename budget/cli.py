@@ -400,7 +400,7 @@ def model_import(
                              gates_per_clifford=gates_per_clifford)
     text = to_toml(imported)
     write_text(out, text)
-    make_console(width=width).print(render_import(imported, out))
+    make_console(width=width, stderr=to_stdout(out)).print(render_import(imported, out))
 
 
 @app.command()
@@ -440,7 +440,7 @@ def sweep(
         result = run_sweep(str(circuit), str(errors), samples=samples, hours=hours, hour_points=hour_points,
                            target=target, seed=seed, cycles=cycles, metric=metric.value, engine=engine.value,
                            sobol_base=sobol_base, out=out, workers=workers, scheduler=scheduler, progress=tick)
-    make_console(width=width).print(render_sweep(result))
+    make_console(width=width, stderr=to_stdout(json_path)).print(render_sweep(result))
     if json_path is not None:
         write_json(json_path, result.to_dict())
 
@@ -501,7 +501,7 @@ def compensate(
 
         texts[out_model] = updated_model_text(errors, z_phase_updates(structured, read_model(str(errors)),
                                                                       result.corrections))
-    make_console(width=width).print(render_compensation(result))
+    make_console(width=width, stderr=to_stdout(json_path, out_circuit, out_model)).print(render_compensation(result))
     for path, text in texts.items():
         write_text(path, text)
     if json_path is not None:
@@ -528,6 +528,6 @@ def plan(
 
     check_output_path(json_path, "--json")
     schedule = run_plan(str(circuit), str(errors), target=target, hours=hours, cycles=cycles, metric=metric.value)
-    make_console(width=width).print(render_schedule(schedule))
+    make_console(width=width, stderr=to_stdout(json_path)).print(render_schedule(schedule))
     if json_path is not None:
         write_json(json_path, schedule_json(schedule))
