@@ -81,9 +81,9 @@ def grouping(by_pair: bool, by_operation: bool) -> str:
 
 def _version(value: bool) -> None:
     if value:
-        from importlib.metadata import version
+        from budget import __version__
 
-        typer.echo(f"budget {version('budget')}")
+        typer.echo(f"budget {__version__}")
         raise typer.Exit()
 
 
