@@ -5,7 +5,8 @@ Outside references:
 - depolarizing channels composed N times on one qubit: with average gate infidelity r the channel is
   ρ -> (1-p)ρ + p I/2 with p = 2r, and F_pro = 1 - (3/4)(1 - (1-p)^N) (Nielsen & Chuang, Quantum
   Computation and Quantum Information (2000), §8.3 and §9.3; F_avg = (d F_pro + 1)/(d + 1),
-  Horodecki, Horodecki, Horodecki, Phys. Rev. A 60, 1888 (1999));
+  Horodecki, Horodecki, Horodecki, Phys. Rev. A 60, 1888 (1999); both references recalled from
+  memory, the formula re-derived in the comment of _depolarized);
 - cirq's DensityMatrixSimulator through tests/reference.py;
 - N over-rotated X gates: coherent infidelity sin²(Nδ/2) (design.md §6), so the generators value
   of the depth curve is sin²(Nδ/2) + N (3/2) r and leaves its range at the first N where that
@@ -44,6 +45,9 @@ def _x_repeated(n: int, model: dict):
 
 
 def _depolarized(n: int, r: float) -> float:
+    # one qubit: F_avg = 1 - r = (1 + λ)/2 for ρ -> λρ + (1-λ) I/2, so λ = 1 - 2r; N gates give λ^N
+    # (the rotations commute with depolarizing and X^N is the ideal), and F_pro = (3 F_avg - 1)/2 =
+    # (1 + 3λ^N)/4, so 1 - F_pro = (3/4)(1 - λ^N)
     return 0.75 * (1 - (1 - 2 * r) ** n)
 
 
