@@ -20,7 +20,7 @@ app = typer.Typer(
     add_completion=False,
     no_args_is_help=True,
     pretty_exceptions_enable=False,
-    help="Error budgets for structured quantum circuits: naive fidelity product versus accumulated "
+    help="Error budgets for structured quantum circuits: naive fidelity product versus actual "
     "infidelity of coherent and incoherent gate errors.",
 )
 
@@ -91,7 +91,7 @@ def _version(value: bool) -> None:
 def main_options(
     version: bool = typer.Option(False, "--version", callback=_version, is_eager=True, help="Print the version and exit."),
 ) -> None:
-    """Error budgets for structured quantum circuits: naive fidelity product versus accumulated
+    """Error budgets for structured quantum circuits: naive fidelity product versus actual
     infidelity of coherent and incoherent gate errors."""
 
 
@@ -131,7 +131,7 @@ def analyze(
     seed: int = typer.Option(1, "--seed", min=0, help="First seed for --ensemble and --against random."),
     quiet: bool = QuietOpt,
 ) -> None:
-    """Naive fidelity product versus accumulated infidelity, with each gate family's share."""
+    """Naive fidelity product versus actual infidelity, with each gate family's share."""
     from budget.analysis.compose import analyze_all
     from budget.report.json_out import write_json
     from budget.report.progress import progress_bar
@@ -170,7 +170,7 @@ def depth(
     quiet: bool = QuietOpt,
     width: Optional[int] = WidthOpt,
 ) -> None:
-    """Infidelity against repetitions: naive, accumulated and Pauli-twirled, with the crossover."""
+    """Infidelity against repetitions: naive, actual and Pauli-twirled, with the crossover."""
     from budget.analysis.depth import depth_curve
     from budget.analysis.run import attach_grouped, read_circuit, read_model
     from budget.report.json_out import write_json
@@ -470,7 +470,7 @@ def compensate(
                                              "into gates' z_phase (when each folds into one gate)."),
     width: Optional[int] = WidthOpt,
 ) -> None:
-    """Virtual-Z corrections (free frame changes) that minimise the accumulated infidelity, verified."""
+    """Virtual-Z corrections (free frame changes) that minimise the actual infidelity, verified."""
     from budget.analysis.compensate import compensate as run_compensate, corrected_circuit
     from budget.analysis.run import read_circuit, read_model
     from budget.report.calib_views import render_compensation

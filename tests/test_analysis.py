@@ -54,8 +54,8 @@ def test_json_has_the_documented_fields():
     assert d["schema_version"] == 2
     assert d["circuit"] == {"qubits": 1, "operations": 7, "layers": 7, "cycles": 1}
     assert d["metric"] == "process"
-    assert d["accumulated"]["in_range"] is True and d["verdict"]["kind"] in ("build-up", "fair", "cancellation")
-    for key in ("engine", "naive", "accumulated", "coherent_amplification", "verdict", "families", "warnings"):
+    assert d["actual"]["in_range"] is True and d["verdict"]["kind"] in ("build-up", "fair", "cancellation")
+    for key in ("engine", "naive", "actual", "coherent_amplification", "verdict", "families", "warnings"):
         assert key in d
     assert {"name", "operations", "share"} <= set(d["families"][0])
 

@@ -29,7 +29,7 @@ def test_analyze_writes_json_and_report(tmp_path):
     assert data["schema_version"] == 2
     assert data["circuit"]["qubits"] == 5
     assert data["circuit"]["operations"] == 10 * 8
-    assert abs(sum(f["share"] for f in data["families"]) - data["accumulated"]["infidelity"]) < 1e-9
+    assert abs(sum(f["share"] for f in data["families"]) - data["actual"]["infidelity"]) < 1e-9
 
 
 def test_demo_runs():

@@ -163,8 +163,8 @@ def test_depth_command_writes_json_and_svg(tmp_path):
     assert res.exit_code == 0, res.output
     data = json.loads(out.read_text())
     assert data["repetitions"] == [1, 10, 100]
-    assert data["accumulated"][-1] == pytest.approx(0.2298488471, abs=1e-9)
-    assert set(data) >= {"naive", "accumulated", "twirled", "range_ends", "crossover_repetitions"}
+    assert data["actual"][-1] == pytest.approx(0.2298488471, abs=1e-9)
+    assert set(data) >= {"naive", "actual", "twirled", "range_ends", "crossover_repetitions"}
     assert data["crossover_repetitions"] == _first(lambda n: _closed(n)[1] > 2 * _closed(n)[0], 100)
     assert svg.read_text().startswith("<svg") and "crossover" in svg.read_text()
     assert "crossover" in res.output

@@ -215,7 +215,7 @@ def test_compare_twirled_from_the_command_line(tmp_path):
                "--width", "120")
     assert res.exit_code == 0, res.output
     data = json.loads(out.read_text())
-    assert data["accumulated"]["infidelity"] == pytest.approx(0.2298488471, abs=1e-9)
+    assert data["actual"]["infidelity"] == pytest.approx(0.2298488471, abs=1e-9)
     assert data["twirled"]["infidelity"] == pytest.approx(0.0024938019, abs=1e-9)
     assert data["naive"]["infidelity"] == pytest.approx(0.0024969, abs=5e-8)
     assert "Pauli-twirled" in res.output
@@ -230,8 +230,8 @@ def test_against_and_ensemble_from_the_command_line(tmp_path):
     data = json.loads(out.read_text())
     rand = data["against_random"]
     assert rand["draws"] == 10 and rand["seeds"][0] == 3
-    assert rand["mean"] == pytest.approx(sum(rand["accumulated"]) / 10)
-    assert rand["accumulated_ratio"] == pytest.approx(data["accumulated"]["infidelity"] / rand["mean"])
+    assert rand["mean"] == pytest.approx(sum(rand["actual"]) / 10)
+    assert rand["actual_ratio"] == pytest.approx(data["actual"]["infidelity"] / rand["mean"])
     assert data["ensemble"]["count"] == 4 and data["ensemble"]["seed"] == 3
     assert "same layers" in res.output and "randomly compiled copies" in res.output
     # a second circuit file
@@ -295,12 +295,12 @@ def test_against_random_is_an_ensemble_with_its_spread():
                     seed=1)
     r = a.random
     assert len(r.seeds) == 6 and r.seeds == (1, 2, 3, 4, 5, 6)
-    vals = np.array(r.accumulated)
+    vals = np.array(r.actual)
     assert r.mean == pytest.approx(vals.mean()) and r.spread == pytest.approx(vals.std(ddof=1))
-    assert r.ratio.value == pytest.approx(a.result.accumulated / vals.mean())
+    assert r.ratio.value == pytest.approx(a.result.actual / vals.mean())
     low, high = r.ratio_range
     assert low.value <= r.ratio.value <= high.value
     d = a.to_dict()
-    assert d["against_random"]["draws"] == 6 and d["accumulated"]["infidelity"] == a.result.accumulated
+    assert d["against_random"]["draws"] == 6 and d["actual"]["infidelity"] == a.result.actual
     with pytest.raises(InputError, match="draws"):
         analyze_all(str(root / "echo_xy4.qasm"), str(root / "fen_q8.toml"), against="random", draws=1)

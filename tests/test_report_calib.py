@@ -38,7 +38,7 @@ def test_sections_appear_and_agree_with_the_commands(tmp_path):
     assert ("gates.x.overrotation", "{ value = 0.004, sigma = 0.002 }", "amplitude scan of the invented lab") in ex.provenance
     band = ex.band
     assert band is not None and band.samples >= 10
-    # the central curve is the accumulated infidelity of the central model at each N
+    # the central curve is the actual infidelity of the central model at each N
     for n, value in list(zip(band.repetitions, band.central))[:3]:
         assert value == pytest.approx(analyze(ECHO, m, cycles=n).actual_infidelity, rel=1e-9)
     assert all(lo <= hi for lo, hi in zip(band.q05, band.q95))

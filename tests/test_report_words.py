@@ -28,7 +28,7 @@ def parity():
 def test_meeting_the_target_is_never_followed_by_to_meet_it(parity):
     for target, data in parity.items():
         words = summary_words(data)
-        meets = data.result.accumulated <= target
+        meets = data.result.actual <= target
         assert ("meets the target" in words) == meets
         if meets:
             assert "To meet it" not in words
@@ -44,5 +44,5 @@ def test_report_names_the_engine_of_the_curve_and_of_the_headline(parity):
     md = render_markdown(data, figures(data))
     r, c = data.result, data.curve
     assert r.engine == "exact" and c.engine.startswith("generators")
-    assert f"accumulated ({c.engine})" in md  # the depth table's column says which engine
+    assert f"actual ({c.engine})" in md  # the depth table's column says which engine
     assert "comes from the exact engine" in md and "the headline value is the one to use" in md

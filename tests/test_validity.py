@@ -57,7 +57,7 @@ def test_generators_beyond_range_gives_no_value_and_no_verdict():
     r = analyze_noisy(noisy, c, metric="process", engine="generators")
     assert r.beyond_range is not None and "4.5" in r.beyond_range  # first-order sum N (3/2) r = 4.5
     d = r.to_dict()
-    assert d["accumulated"]["infidelity"] is None and d["accumulated"]["in_range"] is False
+    assert d["actual"]["infidelity"] is None and d["actual"]["in_range"] is False
     assert d["verdict"]["kind"] == "beyond-range" and d["coherent_amplification"] is None
     console = make_console(width=300, color=False)
     with console.capture() as cap:
@@ -114,7 +114,7 @@ def test_depth_curve_stops_where_the_range_ends_and_says_so(tmp_path):
         else:
             assert v is None  # no clipped 1, no kink: no value
     data = curve.to_dict()
-    assert data["range_ends"]["accumulated"] == end and data["accumulated"][-1] is None
+    assert data["range_ends"]["actual"] == end and data["actual"][-1] is None
     json.dumps(data, allow_nan=False)
     assert f"range ends, N = {end:,}" in depth_svg(curve)
     console = make_console(width=200, color=False)
@@ -133,12 +133,12 @@ def test_headline_and_json_of_an_out_of_range_cli_run(tmp_path):
                                    str(out), "--width", "200"])
     assert res.exit_code == 0, res.output
     data = json.loads(out.read_text())
-    assert data["accumulated"]["infidelity"] is None and data["accumulated"]["estimate"] <= 1
+    assert data["actual"]["infidelity"] is None and data["actual"]["estimate"] <= 1
     assert "no verdict" in res.output
     res = CliRunner().invoke(app, ["analyze", str(qasm), "-e", str(model), "--json", str(out), "--width", "200"])
     data = json.loads(out.read_text())
-    assert data["engine"] == "exact" and data["accumulated"]["in_range"]
-    assert data["accumulated"]["infidelity"] == pytest.approx(_depolarized(N, R), rel=1e-9)
+    assert data["engine"] == "exact" and data["actual"]["in_range"]
+    assert data["actual"]["infidelity"] == pytest.approx(_depolarized(N, R), rel=1e-9)
     # the split into families would come from a first-order engine beyond its range: left out, said why
     assert data["families"][0]["share"] is None
     assert any(w.startswith("family shares left out") for w in data["warnings"])
@@ -161,7 +161,7 @@ def test_auto_depth_curve_switches_to_exact_where_the_closed_form_leaves_its_ran
             lam = (1 - 2 * 2e-3) ** n
             f_q = lam * math.cos(n * 0.01 / 2) ** 2 + (1 - lam) / 4
             assert v == pytest.approx(1 - f_q**4, rel=1e-9)
-    assert curve.to_dict()["engine_switches"]["accumulated"] == end
+    assert curve.to_dict()["engine_switches"]["actual"] == end
     assert f"exact engine from N = {end:,}" in depth_svg(curve)
     assert any("the exact engine from" in w or "exact engine at every N" in w for w in curve.notes())
 
@@ -184,7 +184,7 @@ def test_a_leading_order_above_one_is_not_printed_as_a_number():
     # commuting errors and in range, while the quadratic formula gives (Nδ/2)² = 2.25
     c, noisy = _x_repeated(100, {"gates": {"x": {"overrotation": 0.03}}})
     r = analyze_noisy(noisy, c, metric="process", engine="generators")
-    assert r.in_range and r.accumulated == pytest.approx(math.sin(1.5) ** 2, rel=1e-9)
+    assert r.in_range and r.actual == pytest.approx(math.sin(1.5) ** 2, rel=1e-9)
     assert r.first_order == pytest.approx(2.25, rel=1e-9)
     console = make_console(width=200, color=False)
     with console.capture() as cap:

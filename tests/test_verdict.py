@@ -94,12 +94,12 @@ def test_every_view_tells_the_same_verdict(row, expected):
 def test_beyond_range_gives_no_number_and_no_target_judgement():
     r = _result(0.3, 1.0, None, "sum reaches 9.96")
     d = r.to_dict()
-    assert d["accumulated"]["infidelity"] is None and d["accumulated"]["in_range"] is False
+    assert d["actual"]["infidelity"] is None and d["actual"]["in_range"] is False
     assert d["coherent_amplification"] is None and d["families"][0]["share"] is None
     data = ReportData(result=r, target=0.5, curve=None, emap=ErrorMap(("q[0]",), ("L1",), np.array([[0.1]])))
     md = render_markdown(data, figures(data))
     assert "cannot be judged against the target" in md and "meets the target" not in md
-    assert "| accumulated | beyond range |" in md
+    assert "| actual | beyond range |" in md
 
 
 def test_ratios_of_rounding_noise_are_not_ratios():

@@ -8,7 +8,7 @@ one-qubit sites, two-qubit gates among its two-qubit sites). Every layer keeps i
 its duration, so idle relaxation is the same as in the circuit and the naive product is unchanged
 under a uniform error model: only the order, where coherent errors can build up or echo away, is
 random. Coherent errors of a random circuit point in unrelated directions and mostly add in
-probability, so its accumulated infidelity sits near the naive product; a structured circuit departs
+probability, so its actual infidelity sits near the naive product; a structured circuit departs
 from it. One draw is one sample: :func:`budget.analysis.compose.against_random` compares with an
 ensemble of draws and its spread.
 """
@@ -92,8 +92,8 @@ class Comparison:
             ("operations executed", a.operations, b.operations),
             ("layers executed", a.layers, b.layers),
             ("fidelity product (naive)", a.naive_infidelity, b.naive_infidelity),
-            (f"accumulated ({a.engine} / {b.engine})", _or_beyond(a), _or_beyond(b)),
-            ("accumulated ÷ naive", a.verdict.amplification.shown(), b.verdict.amplification.shown()),
+            (f"actual ({a.engine} / {b.engine})", _or_beyond(a), _or_beyond(b)),
+            ("actual ÷ naive", a.verdict.amplification.shown(), b.verdict.amplification.shown()),
         ] + (
             [("Pauli-twirled", a.twirled_infidelity, b.twirled_infidelity)]
             if a.twirled_infidelity is not None or b.twirled_infidelity is not None
@@ -101,19 +101,19 @@ class Comparison:
         )
 
     @property
-    def accumulated_ratio(self) -> Ratio:
-        """first accumulated ÷ second accumulated (no ratio from values at rounding level or beyond range)."""
-        return safe_ratio(self.first.accumulated, self.second.accumulated)
+    def actual_ratio(self) -> Ratio:
+        """first actual ÷ second actual (no ratio from values at rounding level or beyond range)."""
+        return safe_ratio(self.first.actual, self.second.actual)
 
     @property
     def ratio(self) -> float | None:
-        return self.accumulated_ratio.value
+        return self.actual_ratio.value
 
     def to_dict(self) -> dict:
         """The second analysis in full plus the ratio, for ``"against"`` in the JSON output."""
-        r = self.accumulated_ratio
-        return {"result": self.second.to_dict(), "accumulated_ratio": r.value, "ratio_note": r.why}
+        r = self.actual_ratio
+        return {"result": self.second.to_dict(), "actual_ratio": r.value, "ratio_note": r.why}
 
 
 def _or_beyond(r: BudgetResult) -> float | str:
-    return "beyond range" if r.accumulated is None else r.accumulated
+    return "beyond range" if r.actual is None else r.actual

@@ -36,19 +36,19 @@ class RandomEnsemble:
     Attributes:
         first: the circuit asked about.
         seeds: one seed per counterpart.
-        naive, accumulated: each counterpart's values (None: beyond its engine's range).
+        naive, actual: each counterpart's values (None: beyond its engine's range).
         engine: the engine that ran the counterparts.
     """
 
     first: BudgetResult
     seeds: tuple[int, ...]
     naive: tuple[float, ...]
-    accumulated: tuple[float | None, ...]
+    actual: tuple[float | None, ...]
     engine: str
 
     @property
     def valid(self) -> np.ndarray:
-        return np.array([a for a in self.accumulated if a is not None], dtype=float)
+        return np.array([a for a in self.actual if a is not None], dtype=float)
 
     @property
     def mean(self) -> float | None:
@@ -61,16 +61,16 @@ class RandomEnsemble:
 
     @property
     def ratio(self) -> Ratio:
-        """The circuit's accumulated infidelity ÷ the counterparts' mean."""
-        return safe_ratio(self.first.accumulated, self.mean)
+        """The circuit's actual infidelity ÷ the counterparts' mean."""
+        return safe_ratio(self.first.actual, self.mean)
 
     @property
     def ratio_range(self) -> tuple[Ratio, Ratio]:
         """The circuit ÷ the largest and ÷ the smallest counterpart."""
         if not len(self.valid):
             return Ratio(None), Ratio(None)
-        return (safe_ratio(self.first.accumulated, float(self.valid.max())),
-                safe_ratio(self.first.accumulated, float(self.valid.min())))
+        return (safe_ratio(self.first.actual, float(self.valid.max())),
+                safe_ratio(self.first.actual, float(self.valid.min())))
 
     def to_dict(self) -> dict[str, Any]:
         low, high = self.ratio_range
@@ -79,12 +79,12 @@ class RandomEnsemble:
             "seeds": list(self.seeds),
             "engine": self.engine,
             "naive": list(self.naive),
-            "accumulated": list(self.accumulated),
+            "actual": list(self.actual),
             "mean": self.mean,
             "spread": self.spread,
-            "accumulated_ratio": self.ratio.value,
+            "actual_ratio": self.ratio.value,
             "ratio_note": self.ratio.why,
-            "accumulated_ratio_range": [low.value, high.value],
+            "actual_ratio_range": [low.value, high.value],
         }
 
 
@@ -131,7 +131,7 @@ def analyze_all(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "pr
             other = random_counterpart(whole, seed=s)
             r = analyze_noisy(attach_grouped(other, model, family_by), other, metric=metric, engine=engine)
             naive.append(r.naive_infidelity)
-            acc.append(r.accumulated)
+            acc.append(r.actual)
             name = r.engine
             if progress is not None:
                 progress(i + 1, draws + ensemble)

@@ -2,7 +2,7 @@
 
 Computed by :func:`budget.analysis.depth.depth_curve`; shown by the terminal, the report, the
 picture and the JSON, which all take their words from here (one name per curve: the fidelity
-product (naive), the accumulated curve, the Pauli-twirled curve).
+product (naive), the actual curve, the Pauli-twirled curve).
 """
 
 from __future__ import annotations
@@ -10,9 +10,9 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 CURVES = ("naive", "structured", "twirled")
-CURVE_WORDS = {"naive": "fidelity product (naive)", "structured": "accumulated", "twirled": "Pauli-twirled"}
+CURVE_WORDS = {"naive": "fidelity product (naive)", "structured": "actual", "twirled": "Pauli-twirled"}
 """The one name of each curve in every view (terminal, JSON, report, plot)."""
-JSON_KEYS = {"naive": "naive", "structured": "accumulated", "twirled": "twirled"}
+JSON_KEYS = {"naive": "naive", "structured": "actual", "twirled": "twirled"}
 CROSSOVER_FACTOR = 2.0
 """Accumulated > CROSSOVER_FACTOR × naive marks the crossover."""
 
@@ -27,7 +27,7 @@ class DepthCurve:
         engine: engine of the structured curve; twirled_engine: of the twirled curve.
         repetitions: N values (ascending, from 1 to max_cycles).
         naive, structured, twirled: infidelity at each N; None where the curve's engine is beyond
-            its range (``structured`` is the *accumulated* curve in every view and in the JSON).
+            its range (``structured`` is the *actual* curve in every view and in the JSON).
         crossover_repetitions: first N with structured > 2 × naive (None: not within max_cycles).
         target: E, when given; deepest: curve name -> largest N <= max_cycles before the curve
             first exceeds E (None: even N = 1 exceeds it; max_cycles: never within the range).
@@ -61,7 +61,7 @@ class DepthCurve:
 
     @property
     def checked_through(self) -> int:
-        """The deepest N where the accumulated curve has a value (its range may end earlier)."""
+        """The deepest N where the actual curve has a value (its range may end earlier)."""
         end = self.range_ends.get("structured")
         return self.max_cycles if end is None else end - 1
 
@@ -69,12 +69,12 @@ class DepthCurve:
         """The crossover in words, the same in every view (it cannot be claimed beyond the range)."""
         n = self.crossover_repetitions
         if n is not None:
-            return f"from N = {n:,} on the accumulated error is more than twice the naive estimate"
+            return f"from N = {n:,} on the actual error is more than twice the naive estimate"
         upto = self.checked_through
         if upto < 1:
-            return "no crossover can be stated: the accumulated curve is beyond its engine's range from N = 1"
+            return "no crossover can be stated: the actual curve is beyond its engine's range from N = 1"
         limit = "" if upto == self.max_cycles else " (its engine's range ends there)"
-        return f"up to N = {upto:,}{limit} the accumulated error stays below twice the naive estimate"
+        return f"up to N = {upto:,}{limit} the actual error stays below twice the naive estimate"
 
     def deepest_words(self, key: str) -> str:
         """The deepest count within the target of curve ``key`` in words (every view shows these)."""
@@ -121,7 +121,7 @@ class DepthCurve:
             "twirled_engine": self.twirled_engine,
             "repetitions": list(self.repetitions),
             "naive": list(self.naive),
-            "accumulated": list(self.structured),
+            "actual": list(self.structured),
             "twirled": list(self.twirled),
             "range_ends": {JSON_KEYS[k]: n for k, n in self.range_ends.items()},
             "engine_switches": {JSON_KEYS[k]: n for k, n in self.switches.items()},

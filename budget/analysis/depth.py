@@ -189,7 +189,7 @@ def depth_curve(
     grid = repetition_grid(max_cycles, points)
     log_keep = math.log1p(-min(naive_infidelity(block), 1.0)) if naive_infidelity(block) < 1 else -math.inf
     naive = _Series(lambda n: (-math.expm1(n * log_keep) if log_keep > -math.inf else 1.0, True))
-    structured, name, notes = _engine_series(block, metric, engine, "accumulated")
+    structured, name, notes = _engine_series(block, metric, engine, "actual")
     tw_block = twirled_circuit(block)
     twirled, tw_name, tw_notes = _engine_series(tw_block, metric, engine, "twirled")
     series = {"naive": naive, "structured": structured, "twirled": twirled}

@@ -148,7 +148,7 @@ def compiled_copy(circuit: NoisyCircuit, rng: np.random.Generator) -> tuple[Nois
 
 @dataclass(frozen=True)
 class EnsembleResult:
-    """The accumulated infidelity over an ensemble of randomly compiled copies.
+    """The actual infidelity over an ensemble of randomly compiled copies.
 
     Attributes:
         count: number of compiled copies whose value is in range (the others are left out, with a note).

@@ -1,6 +1,6 @@
 """The result of an error-budget analysis and its JSON form (schema version 2, docs/json-schema.md).
 
-One name per quantity in every view: the *fidelity product (naive)*, the *accumulated* infidelity
+One name per quantity in every view: the *fidelity product (naive)*, the *actual* infidelity
 (what the engine computes for the circuit as compiled), the *Pauli-twirled* variant.
 """
 
@@ -18,12 +18,12 @@ SCHEMA_VERSION = 2
 
 @dataclass(frozen=True)
 class FamilyShare:
-    """One gate family's part of the accumulated infidelity.
+    """One gate family's part of the actual infidelity.
 
     Attributes:
         name: family name (a gate name, ``"idle"`` for idle relaxation, or gate + qubits).
         operations: executed operations (or idle slots) in the family, repeats included.
-        share: the family's share of the accumulated infidelity; shares add up to it and can be negative
+        share: the family's share of the actual infidelity; shares add up to it and can be negative
             when a family's coherent error cancels another's.
     """
 
@@ -55,7 +55,7 @@ class ReadoutSummary:
 
 @dataclass(frozen=True)
 class BudgetResult:
-    """Naive product versus accumulated infidelity for one circuit, one model, one metric.
+    """Naive product versus actual infidelity for one circuit, one model, one metric.
 
     ``actual_infidelity`` is the engine's value, in [0, 1]; when ``beyond_range`` is set the engine
     left the range of its approximation and the value is an order-of-magnitude estimate only:
@@ -91,15 +91,15 @@ class BudgetResult:
         return self.in_range and self.shares_known
 
     @property
-    def accumulated(self) -> float | None:
-        """The accumulated infidelity, or None when it is beyond its engine's range."""
+    def actual(self) -> float | None:
+        """The actual infidelity, or None when it is beyond its engine's range."""
         return self.actual_infidelity if self.in_range else None
 
     @property
     def coherent_amplification(self) -> float | None:
-        """accumulated / naive: above 1 coherent build-up, below 1 cancellation (None when either
-        is at rounding level or the accumulated value is beyond its engine's range)."""
-        return safe_ratio(self.accumulated, self.naive_infidelity).value
+        """actual / naive: above 1 coherent build-up, below 1 cancellation (None when either
+        is at rounding level or the actual value is beyond its engine's range)."""
+        return safe_ratio(self.actual, self.naive_infidelity).value
 
     @property
     def verdict(self) -> Verdict:
@@ -121,8 +121,8 @@ class BudgetResult:
             "metric": self.metric,
             "engine": self.engine,
             "naive": {"infidelity": self.naive_infidelity},
-            "accumulated": {
-                "infidelity": self.accumulated,
+            "actual": {
+                "infidelity": self.actual,
                 "first_order": self.first_order,
                 "in_range": self.in_range,
                 "beyond_range": self.beyond_range,

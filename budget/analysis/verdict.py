@@ -3,10 +3,10 @@
 Two comparisons, each a ratio with a symmetric band of :data:`BAND` around 1 (a ratio within
 1/1.2 … 1.2 counts as "about the same", common practice, no source):
 
-- accumulated ÷ naive (the *amplification*): above the band, coherent errors build up in amplitude
+- actual ÷ naive (the *amplification*): above the band, coherent errors build up in amplitude
   and the fidelity product underestimates the loss; below it, errors partly cancel; inside it, the
   product is a fair guide.
-- accumulated ÷ Pauli-twirled, when the twirled variant is known: randomised compiling turns
+- actual ÷ Pauli-twirled, when the twirled variant is known: randomised compiling turns
   coherent errors into stochastic ones that add in probability (Wallman & Emerson, Phys. Rev. A 94,
   052325 (2016)). Above the band the circuit's structure *hurts* (compiling randomly would lose
   less), below it the structure *helps* (it echoes coherent errors away better than twirling),
@@ -44,9 +44,9 @@ class Verdict:
         kind: one of :data:`KINDS`.
         words: the sentence every view shows.
         tone: ``"bad"``, ``"good"`` or ``""`` (for colours and tiles).
-        amplification: accumulated ÷ naive (or why it is no ratio).
+        amplification: actual ÷ naive (or why it is no ratio).
         structure: ``"hurts"``, ``"helps"``, ``"neutral"`` against the twirled variant, or None.
-        versus_twirled: accumulated ÷ twirled (or why it is no ratio).
+        versus_twirled: actual ÷ twirled (or why it is no ratio).
     """
 
     kind: str
@@ -61,8 +61,8 @@ class Verdict:
             "kind": self.kind,
             "words": self.words,
             "structure": self.structure,
-            "accumulated_over_naive": self.amplification.value,
-            "accumulated_over_twirled": self.versus_twirled.value,
+            "actual_over_naive": self.amplification.value,
+            "actual_over_twirled": self.versus_twirled.value,
         }
 
 

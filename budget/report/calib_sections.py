@@ -127,7 +127,7 @@ def _band(structured, errors, model, max_cycles, metric, engine, target, samples
 
 
 def band_svg(band: Band) -> str:
-    """The accumulated curve of the central model with the 5-95 % band of the drawn models."""
+    """The actual curve of the central model with the 5-95 % band of the drawn models."""
     import matplotlib.pyplot as plt  # slow import: only reports with an uncertainty band draw it
 
     from budget.report.plots import _STYLE, _svg, COLOURS, GRID, INK  # loads matplotlib too
@@ -144,7 +144,7 @@ def band_svg(band: Band) -> str:
         ax.set_xscale("log" if n[-1] > 1 else "linear")
         ax.set_yscale("log")
         ax.set_xlabel("repetitions of the cycle, N")
-        ax.set_ylabel("accumulated infidelity")
+        ax.set_ylabel("actual infidelity")
         ax.grid(True, which="major", color=GRID, lw=0.6)
         ax.legend(frameon=False, loc="upper left", labelcolor=INK)
         return _svg(fig, "uncertainty-band")

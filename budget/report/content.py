@@ -1,7 +1,7 @@
 """What a report holds, gathered once and rendered as HTML or Markdown (pure: no rich, no files).
 
 :func:`gather` runs the analyses a group lead needs for one circuit, one error model and one target:
-the budget (naive versus accumulated, family shares), the depth curves, the layer-by-qubit error
+the budget (naive versus actual, family shares), the depth curves, the layer-by-qubit error
 map, the tolerances and the calibration time (when the modules that compute them are installed),
 and the error model itself. :func:`summary_words` writes the opening paragraph in plain words.
 """
@@ -110,7 +110,7 @@ def _count(n: int, word: str) -> str:
 
 def verdict(result: BudgetResult, target: float) -> tuple[bool | None, str]:
     """(meets target — None when the value is beyond its engine's range —, plain words)."""
-    a = result.accumulated
+    a = result.actual
     if a is None:
         return None, f"cannot be judged against the target of {num(target)}: its error is beyond the first-order range"
     if a <= target:
@@ -122,7 +122,7 @@ def verdict(result: BudgetResult, target: float) -> tuple[bool | None, str]:
 
 
 def summary_words(data: ReportData) -> str:
-    """The opening paragraph: what was analysed, naive versus accumulated, the verdict, what to calibrate."""
+    """The opening paragraph: what was analysed, naive versus actual, the verdict, what to calibrate."""
     r = data.result
     shape = f"{_count(r.qubits, 'qubit')}, {_count(r.operations, 'operation')} in {_count(r.layers, 'layer')}"
     cyc = f", the whole circuit run {r.cycles:,} times" if r.cycles != 1 else ""
@@ -130,7 +130,7 @@ def summary_words(data: ReportData) -> str:
         f"We analysed {short_name(r.source)} ({shape}{cyc}) under the error model "
         f"{short_name(data.model_source) or 'given'}, with the {r.engine} engine."
     ]
-    accumulated = "is beyond the range of the first-order model" if r.accumulated is None else f"gives {num(r.accumulated)}"
+    accumulated = "is beyond the range of the first-order model" if r.actual is None else f"gives {num(r.actual)}"
     parts.append(
         f"Multiplying the gate fidelities predicts an infidelity of {num(r.naive_infidelity)}; following how "
         f"the errors accumulate {accumulated}. "
@@ -148,7 +148,7 @@ def summary_words(data: ReportData) -> str:
                      f"takes about {minutes(plan.round_s)} of device time per round{every}.")
     if data.curve is not None and data.curve.crossover_repetitions is not None:
         parts.append(
-            f"Repeating the circuit, the accumulated error exceeds twice the naive estimate from "
+            f"Repeating the circuit, the actual error exceeds twice the naive estimate from "
             f"{data.curve.crossover_repetitions:,} repetitions on."
         )
     return " ".join(parts)

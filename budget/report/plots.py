@@ -131,7 +131,7 @@ def _depth_figure(curve: DepthCurve):
 
 
 def shares_svg(families: tuple[FamilyShare, ...], total: float, *, title: str = "") -> str:
-    """Horizontal bars: each family's share of the accumulated infidelity (signed); ``title``: the
+    """Horizontal bars: each family's share of the actual infidelity (signed); ``title``: the
     verdict of :mod:`budget.analysis.verdict`, wrapped above the bars."""
     with plt.rc_context(_STYLE):
         rows = list(families)[:12]
@@ -146,7 +146,7 @@ def shares_svg(families: tuple[FamilyShare, ...], total: float, *, title: str = 
             ax.annotate(f"{v:.2e}  {pct}", (v, y), xytext=(4 if v >= 0 else -4, 0), textcoords="offset points",
                         va="center", ha="left" if v >= 0 else "right", fontsize=9, color=INK)
         ax.axvline(0, color=INK, lw=0.8)
-        ax.set_xlabel("share of the accumulated infidelity (negative: cancels other errors)")
+        ax.set_xlabel("share of the actual infidelity (negative: cancels other errors)")
         ax.margins(x=0.25)
         ax.grid(True, axis="x", color=GRID, lw=0.6)
         if title:

@@ -60,9 +60,9 @@ def build(data: ReportData, figures: dict[str, str]) -> list[Block]:
     tone = "" if ok is None else "good" if ok else "bad"
     tiles = [
         ("fidelity product (naive)", num(r.naive_infidelity), "1 − Π F_pro over every operation and idle slot", ""),
-        ("accumulated", "beyond range" if r.accumulated is None else num(r.accumulated),
+        ("actual", "beyond range" if r.actual is None else num(r.actual),
          f"{r.metric} infidelity, {r.engine} engine", tone or "bad"),
-        ("accumulated ÷ naive", v.amplification.shown(suffix="×"), v.words, v.tone),
+        ("actual ÷ naive", v.amplification.shown(suffix="×"), v.words, v.tone),
         ("target", num(data.target), {True: "meets it", False: "misses it", None: "cannot be judged"}[ok], tone),
     ]
     if r.twirled_infidelity is not None:
@@ -94,7 +94,7 @@ def _depth(data: ReportData, figures: dict[str, str]) -> list[Block]:
         return out + [Para("The depth curves could not be computed for this circuit; see the notes at the end.", "note")]
     text = (
         f"The whole circuit is treated as one cycle and repeated N = 1 … {c.max_cycles:,} times. The naive curve "
-        "multiplies fidelities; the accumulated curve follows the errors as the circuit is compiled; the "
+        "multiplies fidelities; the actual curve follows the errors as the circuit is compiled; the "
         "Pauli-twirled curve shows the same errors after random compiling, where coherent errors add in "
         f"probability instead of amplitude. Curves computed by: {c.engine}"
         + (f" (twirled: {c.twirled_engine})." if c.twirled_engine != c.engine else ".")
@@ -151,7 +151,7 @@ def _headline_point(data: ReportData) -> str:
     at = c.structured[c.repetitions.index(r.cycles)]
     gives = "has no value (beyond its engine's range)" if at is None else f"gives {num(at)} from the {c.engine} engine"
     return (f"At N = {r.cycles:,} (the circuit as analysed above) this curve {gives}, "
-            f"while the headline value {_point(r.accumulated)} comes from the {r.engine} engine"
+            f"while the headline value {_point(r.actual)} comes from the {r.engine} engine"
             + (": the difference is the curve engine's approximation, and the headline value is the one to use."
                if r.engine == "exact" else "."))
 
@@ -160,13 +160,13 @@ def _shares(data: ReportData, figures: dict[str, str]) -> list[Block]:
     r = data.result
     out: list[Block] = [Heading("Which gate families cost the most", "families")]
     out.append(Para(
-        "Each family's share of the accumulated infidelity. Shares add up to the total; a negative share "
+        "Each family's share of the actual infidelity. Shares add up to the total; a negative share "
         "means that family's coherent error partly cancels another's."
     ))
     if "family-shares" in figures:
-        out.append(Figure("family-shares", figures["family-shares"], "Share of the accumulated infidelity per gate family."))
+        out.append(Figure("family-shares", figures["family-shares"], "Share of the actual infidelity per gate family."))
     if not r.shows_shares:
-        why = "the error is beyond the first-order range" if r.accumulated is None else \
+        why = "the error is beyond the first-order range" if r.actual is None else \
             "no engine within its range could split the total (see the warnings at the end)"
         return out + [Para(f"Family shares are left out: {why}.", "note")]
     total = r.actual_infidelity

@@ -43,16 +43,16 @@ def summary_table(result: BudgetResult) -> Table:
     t.add_column(style="dim")
     t.add_row("fidelity product (naive)", fmt(result.naive_infidelity), "1 - Π F_pro over operations and idle slots")
     if result.in_range:
-        t.add_row(f"accumulated ({result.engine})", fmt(result.actual_infidelity), _METRIC_WORDS[result.metric])
+        t.add_row(f"actual ({result.engine})", fmt(result.actual_infidelity), _METRIC_WORDS[result.metric])
         if result.first_order is not None and result.first_order <= 1:
             t.add_row("  leading order", fmt(result.first_order), "quadratic (first-order generator) estimate")
         elif result.first_order is not None:
             t.add_row("  leading order", "above 1", "the quadratic formula no longer holds; the value above resums it")
     else:
-        t.add_row(f"accumulated ({result.engine})", "beyond range", "no value: the first-order model does not hold")
+        t.add_row(f"actual ({result.engine})", "beyond range", "no value: the first-order model does not hold")
     if result.twirled_infidelity is not None:
         t.add_row("Pauli-twirled", fmt(result.twirled_infidelity), "same errors, coherent parts randomised")
-    t.add_row("accumulated ÷ naive", result.verdict.amplification.shown(), "the verdict below reads this ratio")
+    t.add_row("actual ÷ naive", result.verdict.amplification.shown(), "the verdict below reads this ratio")
     return t
 
 

@@ -42,7 +42,7 @@ def render_comparison(c: Comparison) -> Panel:
     t.add_column(c.second.source, justify="right", overflow="fold")
     for label, a, b in c.rows():
         t.add_row(label, _value(a), _value(b))
-    line = Text("accumulated infidelity ratio (first ÷ second): " + c.accumulated_ratio.shown(), style="bold")
+    line = Text("actual infidelity ratio (first ÷ second): " + c.actual_ratio.shown(), style="bold")
     return Panel(Group(t, line), title="side by side, same error model", title_align="left", border_style="blue")
 
 
@@ -52,7 +52,7 @@ def render_random(r: RandomEnsemble) -> Panel:
     t.add_column(style="bold")
     t.add_column(justify="right")
     t.add_column(style="dim")
-    t.add_row("this circuit, accumulated", _value(r.first.accumulated), f"engine {r.first.engine}")
+    t.add_row("this circuit, actual", _value(r.first.actual), f"engine {r.first.engine}")
     t.add_row("random counterparts, mean", _value(r.mean),
               f"{len(r.seeds)} draws (seeds {r.seeds[0]}–{r.seeds[-1]}), same layers and gates, engine {r.engine}")
     t.add_row("spread across draws", _value(r.spread), "sample standard deviation")
