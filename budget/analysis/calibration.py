@@ -1,7 +1,8 @@
 """Calibration device time: what measuring each knob to its tolerance costs, and how often.
 
 For every knob that must tighten (or that drifts), the plan runs amplified phase estimation
-(:mod:`budget.analysis.phase_estimation`) on each place the family's gate acts (its *sites*):
+(:mod:`budget.analysis.phase_estimation`) on each place the family's gate acts (its *sites*)
+that lies outside its tolerance (every site for a drifting knob):
 a depth ladder 1, 2, 4, … to fix the phase's 2π branch, then the final depth (n* = 1/Γ, or less
 for a loose tolerance) with enough shots that std(δ̂) = tolerance / k (Kimmel, Low, Yoder, PRA 92,
 062315 (2015)). Two circuits (cos and
@@ -234,10 +235,13 @@ def calibration_plan(
         if row.status != "tighten" and drift is None:
             continue
         if not 0 < row.tolerance_rad < math.inf:
-            unplanned[key] = "no leading-order effect" if row.status == NO_EFFECT else "its tolerance is zero"
+            unplanned[key] = "no effect found" if row.status == NO_EFFECT else "its tolerance is zero"
             continue
         sigma = row.tolerance_rad / k
-        sites = [_site(p, sigma, settings) for p in probes.get((row.family, row.knob), ())]
+        chosen = probes.get((row.family, row.knob), ())
+        if row.status == "tighten" and drift is None:  # only the sites outside their tolerance
+            chosen = tuple(p for p in chosen if _site_over(row, p.qubits))
+        sites = [_site(p, sigma, settings) for p in chosen]
         why = next((s for s in sites if isinstance(s, str)), None if sites else "no operation of the circuit carries it")
         if why is not None:
             unplanned[key] = why
@@ -259,6 +263,13 @@ def calibration_plan(
         math.fsum(p.device_s / (p.hold_hours * 3600) for p in plans if p.hold_hours) if holds else None,
         unplanned, settings,
     )
+
+
+def _site_over(row: Any, qubits: tuple[str, ...]) -> bool:
+    """Whether the row's site on ``qubits`` lies outside its tolerance (True when sites are not told apart)."""
+    name = f"{row.family} {','.join(qubits)}"
+    match = [s for s in row.sites if s.site == name]
+    return match[0].over if match else True
 
 
 def _site(probe: Probe, sigma: float, settings: CalibrationSettings) -> SiteRun | str:

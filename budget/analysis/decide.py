@@ -7,17 +7,20 @@
 Steps: read the circuit (repeats kept) and repeat it ``cycles`` times, attach the error model,
 build the quadratic form e ≈ δᵀAδ + s with a first-order engine
 (:func:`budget.analysis.sensitivity.quadratic_form`), then :func:`~budget.analysis.tolerances.tolerances`
-and :func:`~budget.analysis.calibration.calibration_plan` with the model's ``[calibration]`` table.
+per site, checked in closed loop (:func:`~budget.analysis.closed_loop.close_loop`), and :func:`~budget.analysis.calibration.calibration_plan` with the model's ``[calibration]`` table.
 """
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 from typing import Any
 
 from budget.analysis.calibration import (
     CalibrationPlan, calibration_json, calibration_plan, model_knob_keys, read_calibration,
 )
+from budget.analysis.closed_loop import close_loop
+from budget.analysis.floor import floor_remedy
 from budget.analysis.phase_estimation import find_probes
 from budget.analysis.sensitivity import Sensitivity, per_operation, quadratic_form, sensitivity, sensitivity_json
 from budget.analysis.tolerances import ToleranceReport, check_target, tolerances, tolerances_json
@@ -47,6 +50,7 @@ def decide(
     allocation: str = "equal",
     family_by: str = "gate",
     engine: str = "auto",
+    closed_loop: bool = True,
 ) -> Decisions:
     """Sensitivity, tolerances and calibration device time for a target infidelity.
 
@@ -60,6 +64,7 @@ def decide(
         family_by: ``"gate"``, ``"pair"`` (gate per qubit tuple) or ``"operation"`` (each operation
             as written).
         engine: ``"auto"``, ``"clifford"`` or ``"generators"`` for the quadratic form.
+        closed_loop: check and correct the tolerances with an engine run at the tolerances.
     """
     from budget.analysis.run import read_circuit, read_model
     from budget.errors.attach import attach
@@ -76,9 +81,45 @@ def decide(
     if family_by == "operation":
         noisy = per_operation(noisy)
     qf = quadratic_form(noisy, metric, engine=engine)
-    report = tolerances(qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles)
+    report = checked_tolerances(structured, model, noisy, qf, target, metric=metric, cycles=cycles, assume=assume,
+                                allocation=allocation, family_by=family_by, engine=engine, closed_loop=closed_loop)
     plan = calibration_plan(report, find_probes(noisy), settings, model_knobs=model_knob_keys(model))
     return Decisions(structured.source, sensitivity(qf), report, plan)
+
+
+def checked_tolerances(
+    structured: Any, model: Any, noisy: Any, qf: Any, target: float, *, metric: str, cycles: int,
+    assume: str = "worst", allocation: str = "equal", family_by: str = "gate", engine: str = "auto",
+    closed_loop: bool = True,
+) -> ToleranceReport:
+    """Tolerances per family row over its sites, checked in closed loop, with the floor's remedy.
+
+    With ``family_by="gate"`` the tolerances are solved on the per-site form (one row per gate,
+    qubit tuple and knob; sites keep their own values and signs) with one tolerance per family
+    and knob; otherwise on ``qf`` itself. Then :func:`~budget.analysis.closed_loop.close_loop`
+    checks them with the most accurate engine that fits (``closed_loop=False`` skips it), and when
+    the incoherent floor exceeds the target :func:`~budget.analysis.floor.floor_remedy` says what
+    incoherent numbers would meet it.
+    """
+    from budget.errors.attach import attach
+
+    if family_by == "gate":
+        site_noisy = attach(structured, model, family_by="pair")
+        site_qf = dataclasses.replace(quadratic_form(site_noisy, metric, engine=engine), floor_sources=dict(qf.floor_sources))
+        groups = [(site_family(f), k) for f, k in site_qf.labels]
+    else:
+        site_noisy, site_qf, groups = noisy, qf, None
+    report = tolerances(site_qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles, groups=groups)
+    if closed_loop:
+        report = close_loop(report, site_noisy, site_qf)
+    if not report.feasible:
+        report = dataclasses.replace(report, floor_remedy=floor_remedy(report, model, noisy, metric))
+    return report
+
+
+def site_family(name: str) -> str:
+    """The gate family of a per-site family name: ``"cz q[0],q[1]"`` -> ``"cz"``."""
+    return name.rsplit(" ", 1)[0]
 
 
 def decisions_json(d: Decisions) -> dict:

@@ -24,7 +24,7 @@ from __future__ import annotations
 import math
 import numbers
 from dataclasses import dataclass, field
-from typing import Literal
+from typing import Any, Literal, Sequence
 
 import numpy as np
 
@@ -39,18 +39,45 @@ Allocation = Literal["equal", "common-factor"]
 ASSUMPTIONS: tuple[str, ...] = ("worst", "random")
 ALLOCATIONS: tuple[str, ...] = ("equal", "common-factor")
 SCHEMA_VERSION = 1
-NO_EFFECT = "no 1st-order effect"
-"""Status of a knob with A_ff = 0: its error cancels (or does not reach the metric) at leading order."""
+NO_EFFECT = "no effect found"
+"""Status of a knob whose error cancels (or does not reach the metric) at leading order and whose
+higher-order effect no engine run could find (or that was not checked)."""
+ZERO_RELATIVE = 1e-9
+"""A sensitivity below this fraction of the largest (at least 1 per rad²) counts as zero."""
+
+
+@dataclass(frozen=True)
+class SiteTolerance:
+    """One place a knob acts (a gate on given qubits, or one operation): its value and tolerance.
+
+    ``site`` is the row label of the site-level quadratic form (``"cz q[0],q[1]"``).
+    """
+
+    site: str
+    knob: str
+    current_rad: float
+    tolerance_rad: float
+
+    @property
+    def over(self) -> bool:
+        """Today's value lies outside the tolerance."""
+        return abs(self.current_rad) > self.tolerance_rad * (1 + 1e-12)
 
 
 @dataclass(frozen=True)
 class KnobTolerance:
     """One ranked row: a knob's current value (signed), its tolerance and how much it must tighten.
 
-    ``tolerance_rad`` is ``inf`` for a knob with no leading-order effect (A_ff = 0; its error
-    still matters at higher order); ``tighten_by`` = |current| / tolerance (0 when the knob is at
-    zero, ``inf`` when the tolerance is 0).
+    A family row covers every site of the family: ``tolerance_rad`` applies to each site
+    (``allocation="equal"``) and ``current_rad`` is the worst site's value; ``sites`` lists them
+    all, :attr:`worst_site` and :attr:`sites_over` say where calibration is needed.
+    ``tolerance_rad`` is ``inf`` for a knob with no effect found (see ``order``); ``tighten_by`` =
+    max over sites of |current| / tolerance (0 when at zero, ``inf`` when the tolerance is 0).
     ``status``: ``"tighten"``, ``"ok"``, :data:`NO_EFFECT` or ``"floor too high"``.
+    ``order``: ``"first"`` (from the quadratic form), ``"second"`` (the knob's first-order effect
+    vanishes; its tolerance comes from evaluating the circuit as a function of the knob) or
+    ``"none"`` (no effect found). ``first_order_rad``: the tolerance before the closed-loop check.
+    ``capped``: the tolerance was limited to π (a larger angle is no calibration tolerance).
     """
 
     family: str
@@ -59,6 +86,22 @@ class KnobTolerance:
     tolerance_rad: float
     tighten_by: float
     status: str
+    sites: tuple[SiteTolerance, ...] = ()
+    first_order_rad: float = math.nan
+    order: str = "first"
+    capped: bool = False
+
+    @property
+    def worst_site(self) -> str | None:
+        """The site furthest outside (or least inside) its tolerance; None without sites."""
+        if not self.sites:
+            return None
+        return max(self.sites, key=lambda s: (_ratio(s.current_rad, s.tolerance_rad), abs(s.current_rad))).site
+
+    @property
+    def sites_over(self) -> int:
+        """How many sites lie outside their tolerance today."""
+        return sum(s.over for s in self.sites)
 
 
 @dataclass(frozen=True)
@@ -80,6 +123,10 @@ class ToleranceReport:
             floor grows linearly with depth); None when there is no floor.
         exact: the worst case was enumerated exactly (False: an upper bound was used).
         warnings: plain-word caveats.
+        closed_loop: the check of the tolerances by an engine run with every knob at its
+            tolerance (:mod:`budget.analysis.closed_loop`); None when it did not run.
+        floor_remedy: what incoherent numbers would meet the target when the floor exceeds it
+            (:mod:`budget.analysis.floor`); None otherwise.
     """
 
     target: float
@@ -98,6 +145,8 @@ class ToleranceReport:
     max_cycles: int | None
     exact: bool
     warnings: tuple[str, ...] = field(default=())
+    closed_loop: Any = None
+    floor_remedy: Any = None
 
     def main_floor_sources(self, count: int = 3) -> list[tuple[str, float]]:
         """The largest parts of the floor, largest first."""
@@ -120,15 +169,24 @@ def tolerances(
     metric: str = "process",
     cycles: int = 1,
     exact_up_to: int = EXACT_UP_TO,
+    groups: Sequence[tuple[str, str]] | None = None,
 ) -> ToleranceReport:
     """The largest tolerance per knob such that the leading-order prediction stays within ``target``.
 
     Args:
-        qf: the quadratic form of the circuit (already repeated ``cycles`` times).
+        qf: the quadratic form of the circuit (already repeated ``cycles`` times), one row per
+            site and knob (or per family and knob when sites are not told apart).
         target: E in (0, 1) on ``metric``.
         assume: ``"worst"`` (worst signs at the edges) or ``"random"`` (r.m.s. tolerances).
         allocation: ``"equal"`` shares or ``"common-factor"`` scaling of today's values.
         cycles: repetitions of the circuit behind ``qf`` (for ``max_cycles``), >= 1.
+        groups: the report row (family, knob) of each row of ``qf``; rows of one group share one
+            tolerance (every site of a family within ±t, each with its own sign). None: one
+            report row per row of ``qf``.
+
+    A sensitivity A_ff counts as zero when it is below :data:`ZERO_RELATIVE` times the largest
+    one (or times 1 per rad², the size of one gate's over-rotation, when all are smaller): such
+    values are rounding noise of a cancellation, not a first-order effect.
 
     Check (design.md §3): N repetitions of an X over-rotation, process metric, A = N²/4, so
     the worst-case tolerance is 2·sqrt(E)/N, within 5 % of the exact 2·arcsin(sqrt(E))/N for E <= 0.1:
@@ -146,61 +204,98 @@ def tolerances(
         raise InputError(f"allocation = {allocation!r}: expected one of {', '.join(ALLOCATIONS)}")
     if isinstance(cycles, bool) or not isinstance(cycles, numbers.Integral) or cycles < 1:
         raise InputError(f"cycles = {cycles!r}: expected a whole number >= 1")
-    a = np.asarray(qf.matrix, dtype=float)
+    labels = list(qf.labels)
+    groups = list(groups) if groups is not None else labels
+    if len(groups) != len(labels):
+        raise ValueError(f"tolerances: {len(groups)} groups for {len(labels)} rows of the quadratic form")
+    keys = list(dict.fromkeys(groups))
+    member = np.array([keys.index(g) for g in groups], dtype=int)
     values = np.asarray(qf.values_rad, dtype=float)
     now = np.abs(values)
+    live = live_rows(qf.matrix)
+    a = np.where(np.outer(live, live), np.asarray(qf.matrix, dtype=float), 0.0)
     diag = np.diag(a).copy()
-    active = diag > 0
     floor, budget = float(qf.floor), target - float(qf.floor)
     exact, warnings = True, []
 
-    def coherent(t: np.ndarray) -> float:  # the assumed coherent infidelity of tolerances t
+    def coherent(t: np.ndarray) -> float:  # the assumed coherent infidelity of site tolerances t
         nonlocal exact
+        t = np.where(live, t, 0.0)
         if assume == "random":
-            return float(np.sum(diag * np.where(active, t, 0.0) ** 2))
-        m = box_maximum(a, np.where(active, t, 0.0), exact_up_to=exact_up_to)
+            return float(np.sum(diag * t**2))
+        m = box_maximum(a, t, exact_up_to=exact_up_to)
         exact = exact and m.exact
         return m.value
 
+    # a group's own weight: its sites at ±1 rad, the rest at zero (worst or mean over signs)
+    weight = np.array([coherent((member == g).astype(float)) for g in range(len(keys))])
+    group_live = weight > ZERO_RELATIVE * max(1.0, float(np.max(weight, initial=0.0)))
+    live &= group_live[member]
     assumed_now = coherent(now)
     factor = math.sqrt(assumed_now / budget) if budget > 0 else math.inf
+    counted = group_live[member]  # sites of groups with a first-order effect
     if budget <= 0:
-        tol = np.where(active, 0.0, math.inf)
+        tol = np.where(counted, 0.0, math.inf)
     elif allocation == "common-factor":
-        tol = np.where(active, now / factor if factor > 0 else math.inf, math.inf)
+        tol = np.where(counted, now / factor if factor > 0 else math.inf, math.inf)
     else:
-        unit = np.where(active, 1 / np.sqrt(np.where(active, diag, 1.0)), 0.0)
+        unit = np.where(counted, 1 / np.sqrt(np.where(group_live, weight, 1.0))[member], 0.0)
         spread = coherent(unit)
-        tol = np.where(active, unit * math.sqrt(budget / spread), math.inf) if spread > 0 else np.full(len(now), math.inf)
-
-    rows = [_row(label, values[i], tol[i], feasible=budget > 0) for i, label in enumerate(qf.labels)]
+        tol = np.where(counted, unit * math.sqrt(budget / spread), math.inf) if spread > 0 else np.full(len(now), math.inf)
+    if budget > 0 and np.any(counted & (tol > math.pi)):
+        names = sorted({knob_key(groups[i]) for i in np.flatnonzero(counted & (tol > math.pi))})
+        warnings.append(f"{', '.join(names)}: the leading-order tolerance exceeds π rad, which is no calibration "
+                        "tolerance; it is capped at π (the knob barely matters at leading order)")
+    rows = [
+        make_row(key, [SiteTolerance(labels[i][0], labels[i][1], float(values[i]), _capped(float(tol[i])))
+                       for i in np.flatnonzero(member == g)], feasible=budget > 0,
+                 order="first" if group_live[g] else "none")
+        for g, key in enumerate(keys)
+    ]
     rows.sort(key=lambda r: (-r.tighten_by, -abs(r.current_rad), r.family, r.knob))
     if not exact:
         warnings.append(
-            f"more than {exact_up_to} interfering knobs: the worst case uses the bound Σ|A_fg| t_f t_g, "
+            f"more than {exact_up_to} interfering knobs: the worst case uses an upper bound (docs/tolerances.md), "
             "so the tolerances are safe but may be tighter than necessary"
-        )
-    if max(floor, budget) > 0.1:
-        warnings.append(
-            "above an infidelity of about 0.1 the quadratic form and the linear floor lose accuracy; "
-            "check the result with `budget analyze`"
         )
     return ToleranceReport(
         target=target, metric=metric, assume=assume, allocation=allocation, incoherent_floor=floor,
         floor_sources=dict(qf.floor_sources), coherent_budget=budget, feasible=budget > 0, rows=tuple(rows),
-        common_factor=factor, current_signed=float(values @ a @ values) + floor,
+        common_factor=factor, current_signed=float(values @ np.asarray(qf.matrix) @ values) + floor,
         current_assumed=assumed_now + floor, cycles=int(cycles),
         max_cycles=int(math.floor(cycles * target / floor * (1 + 1e-12))) if floor > 0 else None,
         exact=exact, warnings=tuple(warnings),
     )
 
 
-def _row(label: tuple[str, str], value: float, tol: float, *, feasible: bool) -> KnobTolerance:
+def live_rows(matrix: np.ndarray) -> np.ndarray:
+    """Rows of A whose sensitivity A_ff is more than rounding noise (see :func:`tolerances`)."""
+    diag = np.diag(np.asarray(matrix, dtype=float))
+    return diag > ZERO_RELATIVE * max(1.0, float(np.max(diag, initial=0.0)))
+
+
+def make_row(key: tuple[str, str], sites: list[SiteTolerance], *, feasible: bool, order: str = "first",
+             first_order_rad: float | None = None) -> KnobTolerance:
+    """One report row from its sites: the worst site's value and tolerance, the largest tighten factor."""
+    worst = max(sites, key=lambda s: (_ratio(s.current_rad, s.tolerance_rad), abs(s.current_rad)))
+    tol = worst.tolerance_rad
+    first = tol if first_order_rad is None else first_order_rad
+    capped = any(math.pi <= s.tolerance_rad < math.inf for s in sites)
     if math.isinf(tol):
-        return KnobTolerance(label[0], label[1], float(value), math.inf, 0.0, NO_EFFECT)
-    tighten = abs(value) / tol if tol > 0 else (0.0 if value == 0 else math.inf)
+        return KnobTolerance(key[0], key[1], worst.current_rad, math.inf, 0.0, NO_EFFECT, tuple(sites), first, "none")
+    tighten = _ratio(worst.current_rad, tol)
     status = "floor too high" if not feasible else "tighten" if tighten > 1 + 1e-12 else "ok"
-    return KnobTolerance(label[0], label[1], float(value), float(tol), float(tighten), status)
+    return KnobTolerance(key[0], key[1], worst.current_rad, tol, tighten, status, tuple(sites), first, order, capped)
+
+
+def _capped(tol: float) -> float:
+    return min(tol, math.pi) if math.isfinite(tol) else tol
+
+
+def _ratio(value: float, tol: float) -> float:
+    if math.isinf(tol):
+        return 0.0
+    return abs(value) / tol if tol > 0 else (0.0 if value == 0 else math.inf)
 
 
 def floor_message(report: ToleranceReport) -> str | None:
@@ -249,9 +344,20 @@ def tolerances_json(report: ToleranceReport) -> dict:
                 "tolerance_lab": _finite(knob_in_lab_units(r.knob, r.tolerance_rad)[0]),
                 "tighten_by": _finite(r.tighten_by),
                 "status": r.status,
+                "order": r.order,
+                "first_order_rad": _finite(r.first_order_rad),
+                "capped": r.capped,
+                "worst_site": r.worst_site,
+                "sites_over": r.sites_over,
+                "sites": [
+                    {"site": x.site, "current_rad": x.current_rad, "tolerance_rad": _finite(x.tolerance_rad), "over": x.over}
+                    for x in r.sites
+                ],
             }
             for r in report.rows
         ],
+        "closed_loop": None if report.closed_loop is None else report.closed_loop.as_json(),
+        "floor_remedy": None if report.floor_remedy is None else report.floor_remedy.as_json(),
         "warnings": list(report.warnings),
     }
 

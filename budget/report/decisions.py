@@ -86,9 +86,17 @@ def tolerance_view(report: ToleranceReport) -> Group:
     head.add_row("incoherent floor", fmt(report.incoherent_floor), "not reachable by calibration")
     head.add_row("coherent budget", fmt(report.coherent_budget), f"{how}; {split}")
     head.add_row("prediction today", fmt(report.current_signed), f"leading order; {fmt(report.current_assumed)} under this assumption")
+    loop = report.closed_loop
+    if loop is not None:
+        spread = f" ± {fmt(loop.std_error)}" if loop.std_error else ""
+        head.add_row("at the tolerances", fmt(loop.achieved) + spread,
+                     f"{loop.engine} engine with every knob at its tolerance ({100 * loop.achieved / loop.target:.1f} % of the "
+                     f"target; {loop.method})")
     parts: list = [head, Text("")]
     message = floor_message(report)
     if message:
+        if report.floor_remedy is not None:
+            message += ". " + report.floor_remedy.message()
         parts.append(Panel(Text(message, style="bold"), border_style="red", title="floor above target", title_align="left"))
     elif report.common_factor > 1:
         parts.append(Text(f"scaling every knob together: calibration must get {report.common_factor:.3g}x better", style="bold"))
@@ -100,15 +108,32 @@ def tolerance_view(report: ToleranceReport) -> Group:
             line.append("; the equal shares below ask more of the knobs that take more than their share", style="green")
         parts.append(line)
     t = Table(title="tolerances, most urgent first", title_justify="left")
-    for name, right in (("family", False), ("knob", False), ("today (rad)", True), ("tolerance (rad)", True),
-                        ("tighten by", True), ("status", False)):
+    many = any(len(r.sites) > 1 for r in report.rows)
+    columns = [("family", False), ("knob", False), ("today (rad)", True), ("tolerance (rad)", True), ("tighten by", True)]
+    columns += [("sites over", True), ("worst site", False)] if many else []
+    for name, right in columns + [("status", False)]:
         t.add_column(name, justify="right" if right else "left")
     for r in report.rows:
-        t.add_row(r.family, r.knob, _rad(r.current_rad, r.knob), _rad(r.tolerance_rad, r.knob), _times(r.tighten_by),
-                  Text(r.status, style=_STATUS.get(r.status, "")))
+        cells = [r.family, r.knob, _rad(r.current_rad, r.knob), _rad(r.tolerance_rad, r.knob) + ("*" if r.capped else ""),
+                 _times(r.tighten_by)]
+        if many:
+            cells += [f"{r.sites_over} of {len(r.sites)}", _site_name(r) if r.sites_over else "—"]
+        status = r.status + (" (2nd order)" if r.order == "second" else "")
+        t.add_row(*cells, Text(status, style=_STATUS.get(r.status, "")))
     parts.append(t)
+    if any(r.capped for r in report.rows):
+        parts.append(Text("* capped at π: no tolerance below π reaches the target's share; this knob barely matters",
+                          style="dim"))
+    if loop is not None:
+        parts += [Text(f"! {n}", style="yellow") for n in loop.notes]
     parts += [Text(f"! {w}", style="yellow") for w in report.warnings]
     return Group(*parts)
+
+
+def _site_name(r) -> str:
+    """The worst site without the family prefix (``q[0],q[1]``)."""
+    site = r.worst_site or ""
+    return site[len(r.family) + 1:] if site.startswith(r.family + " ") else site
 
 
 def calibration_view(plan: CalibrationPlan) -> Group:

@@ -1,0 +1,90 @@
+"""The same noisy circuit with its coherent knobs set to other values (for closed-loop checks).
+
+Tolerances are found to leading order from the quadratic form e ≈ δᵀAδ + s; checking them means
+running an engine on the circuit with every knob *at* its tolerance. :func:`with_knob_values`
+rebuilds each operation's coherent unitary, Hamiltonian and knob values from new knob values with
+the same code that built them from the error model (:func:`budget.errors.knobs.coherent_error`),
+and leaves everything else (ideal gates, incoherent parts, layers, repeats) untouched.
+
+Values are given per row of the quadratic form, (family, knob) -> δ in rad. The rows follow
+``budget/engines/_knobs.py``: a family's row value is its operations' value, or the largest in
+magnitude when they differ; each operation then gets δ · value_op / value_row (the same
+proportions as today), or δ itself when the row's value is zero today. Operations whose
+Hamiltonian has no knob generators form the knob ``"pauli"``: their Hamiltonian is scaled by δ.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Mapping
+
+import numpy as np
+
+from budget.engines._knobs import PLAIN_KNOB, knob_grouping
+from budget.errors.knobs import coherent_error, pauli_unitary
+from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat
+from budget.errors.params import GateParams
+
+
+def params_from_values(values: Mapping[str, float]) -> GateParams:
+    """GateParams holding only the coherent knobs named as in ``GateParams.knob_values``.
+
+    >>> params_from_values({"z_phase[0]": 0.1, "z_phase[1]": -0.2, "cphase": 0.3}).z_phase
+    (0.1, -0.2)
+    """
+    z = sorted((int(k[8:-1]), v) for k, v in values.items() if k.startswith("z_phase["))
+    return GateParams(
+        overrotation=values.get("overrotation"),
+        axis_error=values.get("axis_error"),
+        z_phase=tuple(v for _, v in z) if z else ((values["z_phase"],) if "z_phase" in values else None),
+        cphase=values.get("cphase"),
+        swap_angle=values.get("swap_angle"),
+        pauli=tuple((k[6:], v) for k, v in values.items() if k.startswith("pauli:")),
+    )
+
+
+def with_knob_values(circuit: NoisyCircuit, values: Mapping[tuple[str, str], float]) -> NoisyCircuit:
+    """``circuit`` with the knob rows in ``values`` set to new values (rad); other rows unchanged.
+
+    The structure is kept: an operation object shared by several layers or repeats stays shared.
+    """
+    _, today = knob_grouping(circuit)
+    ops: dict[int, NoisyOperation] = {}
+    items: dict[int, NoisyItem] = {}
+
+    def new_value(family: str, knob: str, old: float) -> float:
+        key = (family, knob)
+        if key not in values:
+            return old
+        row = today.get(key, 0.0)
+        return float(values[key]) * (old / row if row else 1.0)
+
+    def operation(nop: NoisyOperation) -> NoisyOperation:
+        if id(nop) in ops:
+            return ops[id(nop)]
+        out = nop
+        if nop.knob_generators and any((nop.family, k) in values for k in nop.knob_generators):
+            knobs = {k: new_value(nop.family, k, float(nop.knob_values.get(k, 0.0))) for k in nop.knob_generators}
+            coh = coherent_error(nop.op.gate, nop.op.params, params_from_values(knobs), len(nop.qubits))
+            out = dataclasses.replace(nop, coherent=coh.unitary, hamiltonian=dict(coh.hamiltonian), knob_values=knobs)
+        elif not nop.knob_generators and nop.hamiltonian and (nop.family, PLAIN_KNOB) in values:
+            scale = new_value(nop.family, PLAIN_KNOB, 1.0)
+            h = {p: c * scale for p, c in nop.hamiltonian.items() if c * scale != 0}
+            out = dataclasses.replace(nop, coherent=pauli_unitary(h) if h else np.eye(2 ** len(nop.qubits), dtype=complex),
+                                      hamiltonian=h)
+        ops[id(nop)] = out
+        return out
+
+    def walk(body: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
+        out = []
+        for it in body:
+            if id(it) not in items:
+                if isinstance(it, NoisyLayer):
+                    items[id(it)] = dataclasses.replace(it, operations=tuple(operation(n) for n in it.operations))
+                else:
+                    items[id(it)] = NoisyRepeat(walk(it.body), it.count)
+            out.append(items[id(it)])
+        return tuple(out)
+
+    return dataclasses.replace(circuit, body=walk(circuit.body))
+
