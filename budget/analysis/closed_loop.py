@@ -158,18 +158,21 @@ def close_loop(
                            "the incoherent floor alone", {}, runner.runs, time.monotonic() - runner.start, False, tuple(notes)))
         share = (report.target - floor) / max(1, len(rows))
         per_run = max(time.monotonic() - runner.start, 1e-4)
-        patterns = _patterns_for(report.assume, qf, keys, seed, max(4, int(max_seconds / (RUNS_PER_PATTERN * per_run))))
         for r_i, row in enumerate(rows):
             idx = [i for i, (_, ri) in enumerate(sites) if ri == r_i]
             if row.order == "none":
                 t0[idx] = _second_order(runner, zero, [keys[i] for i in idx], floor, share, report.assume)
         live = np.isfinite(t0) & (t0 > 0)
+        live_keys = [k for k, on in zip(keys, live) if on]
+        # knobs with no effect found stay at today's value (they combine with the others at higher order)
+        today = {k: s.current_rad for k, s, t in zip(keys, (s for r in rows for s in r.sites), t0) if not math.isfinite(t)}
+        patterns = _patterns_for(report.assume, qf, live_keys, seed, max(4, int(max_seconds / (RUNS_PER_PATTERN * per_run))))
 
         def achieved(c: float) -> tuple[float, float, np.ndarray]:
-            t = np.where(live, np.minimum(c * np.where(live, t0, 0.0), math.pi), 0.0)
+            t = np.minimum(c * t0[live], math.pi)
             vals, used = [], patterns(t)
             for s in used:
-                vals.append(runner({k: float(x) for k, x in zip(keys, s * t)}))
+                vals.append(runner({**zero, **today, **{k: float(x) for k, x in zip(live_keys, s * t)}}))
             vals = np.array(vals)
             if report.assume == "worst":
                 return float(vals.max()), 0.0, used[int(np.argmax(vals))]
@@ -191,8 +194,8 @@ def close_loop(
     if not converged:
         notes.append(f"the achieved {value:.3g} is not within 5 % below the target {report.target:g}: "
                      + ("every tolerance is at its π cap" if np.all(t[live] >= math.pi) else "the refinement did not settle"))
-    method = _method(report.assume, len(keys), patterns)
-    worst = {f"{k[0]}.{k[1]}": int(s) for k, s in zip(keys, signs)} if report.assume == "worst" else {}
+    method = _method(report.assume, len(live_keys), patterns)
+    worst = {f"{k[0]}.{k[1]}": int(s) for k, s in zip(live_keys, signs)} if report.assume == "worst" else {}
     loop = ClosedLoop(runner.engine.name, report.target, value, err, first, scale, floor, method, worst,
                       runner.runs, time.monotonic() - runner.start, converged, tuple(notes))
     return _finish(report, rows, keys, t, t0, loop)
