@@ -98,7 +98,7 @@ def test_beyond_the_exact_limit_a_safe_bound_is_used():
     exact = _brute(a, t)
     assert not m.exact
     assert m.attained <= exact + 1e-15 <= m.value + 2e-15
-    assert m.value == pytest.approx(np.sum(np.abs(a * np.outer(t, t))))
+    assert m.value <= np.sum(np.abs(a * np.outer(t, t))) * (1 + 1e-12)  # never above the triangle bound
 
 
 def test_unbounded_knob_needs_a_zero_row():
