@@ -1,18 +1,19 @@
 """When the incoherent floor alone exceeds the target: which incoherent numbers would meet it.
 
-To first order the floor is linear in every incoherent rate (design.md §5): the depolarizing
-part of each gate family grows with its error per gate r (Magesan, Gambetta, Emerson, PRL 106,
-180504 (2011)), the relaxation part with t/T1 and t/T2 (the Pauli twirl of amplitude damping and
-dephasing has rates (1 - e^{-t/T1})/4 and (1 - e^{-t/T2})/2 - (1 - e^{-t/T1})/4, Tomita & Svore,
-PRA 90, 062320 (2014), linear in 1/T1 and 1/T2 for t ≪ T1, T2). So s = D + R splits into the
-depolarizing part D and the relaxation part R (during gates and idle), and the target E is met by
+The floor is the infidelity with every coherent knob at zero. It comes from the gates'
+depolarizing parts (error per gate r, Magesan, Gambetta, Emerson, PRL 106, 180504 (2011)) and
+from T1/T2 relaxation during gates and idle slots. Three remedies are computed, each as one
+factor g found by Brent's method (scipy.optimize.brentq) on the most accurate engine that fits
+(exact where it fits), with the coherent knobs at zero:
 
-- every source scaled by g = E/s: each r_f → g·r_f and every T1, T2 → T1/g, T2/g;
-- gate errors alone, when R < E: r_f → g_D·r_f with g_D = (E - R)/D;
-- coherence times alone, when D < E: T1, T2 → T1/g_R, T2/g_R with g_R = (E - D)/R.
+- every source scaled: each r_f → g·r_f and every T1, T2 → T1/g, T2/g (the relaxation of a
+  stretch t with γ = 1 - e^{-t/T1} becomes 1 - (1 - γ)^g, the dephasing factor c becomes c^g);
+- gate errors alone (T1, T2 as today), when relaxation alone stays below the target;
+- coherence times alone (gate errors as today), when the gate errors alone stay below it.
 
 These are the least improvements that meet E with perfect calibration (no room is left for
-coherent errors); to leave a coherent budget B, aim the floor at E - B instead.
+coherent errors); to leave a coherent budget B, aim the floor at E - B instead. Without an
+engine that fits, the first-order floor's linearity in the rates gives g = E/s.
 """
 
 from __future__ import annotations
@@ -21,7 +22,12 @@ import dataclasses
 from dataclasses import dataclass
 from typing import Any
 
+from scipy.optimize import brentq
+
+from budget.analysis.select import choose_engine
 from budget.analysis.sensitivity import quadratic_form
+from budget.engines._knobs import knob_grouping
+from budget.errors.retune import with_knob_values
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
 from budget.problems import TooLargeError
 
@@ -32,7 +38,6 @@ class FamilyNeed:
 
     family: str
     floor_part: float
-    depolarizing_part: float
     avg_infidelity: float | None
     needed_all: float | None
     needed_alone: float | None
@@ -44,14 +49,16 @@ class FloorRemedy:
 
     Attributes:
         target, floor: E and s.
-        depolarizing, relaxation: D and R, s = D + R.
-        scale_all: g = E/s, the factor on every incoherent rate.
+        depolarizing, relaxation: the floor with only the gates' depolarizing part, and with only
+            relaxation (to first order they add up to s).
+        scale_all: g, the factor on every incoherent rate that brings the floor to E.
         gates_alone: g_D, the factor on every error per gate with T1, T2 as today (None: the
             relaxation alone already exceeds E).
         coherence_alone: g_R, the factor on 1/T1 and 1/T2 with the gate errors as today (None: the
             gate errors alone already exceed E).
         families: per gate family, largest part of the floor first.
         t1_us, t2_us: today's default T1, T2 (None when the model has none).
+        engine: the engine whose floor the factors were solved on (``"first order"``: E/s).
     """
 
     target: float
@@ -64,6 +71,7 @@ class FloorRemedy:
     families: tuple[FamilyNeed, ...]
     t1_us: float | None
     t2_us: float | None
+    engine: str = "first order"
 
     def message(self) -> str:
         """One plain paragraph: what would meet the target."""
@@ -112,30 +120,72 @@ def without_relaxation(circuit: NoisyCircuit) -> NoisyCircuit:
     return dataclasses.replace(circuit, body=walk(circuit.body))
 
 
-def floor_remedy(report: Any, model: Any, noisy: NoisyCircuit, metric: str) -> FloorRemedy | None:
+def scaled_incoherent(circuit: NoisyCircuit, gates: float, relaxation: float) -> NoisyCircuit:
+    """``circuit`` with the gates' depolarizing and Pauli rates times ``gates`` and every T1, T2
+    (gates and idle) divided by ``relaxation`` (γ → 1 - (1-γ)^g, dephasing factor c → c^g)."""
+    memo: dict[int, Any] = {}
+
+    def relax(rs):
+        return tuple(dataclasses.replace(r, gamma=1 - (1 - r.gamma) ** relaxation,
+                                         dephasing_factor=r.dephasing_factor**relaxation) for r in rs)
+
+    def op(n):
+        return dataclasses.replace(n, depolarizing=n.depolarizing * gates, relaxation=relax(n.relaxation),
+                                   pauli_rates={k: v * gates for k, v in n.pauli_rates.items()})
+
+    def walk(items: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
+        out = []
+        for it in items:
+            if id(it) not in memo:
+                if isinstance(it, NoisyLayer):
+                    ops = tuple(memo.setdefault(id(n), op(n)) for n in it.operations)
+                    memo[id(it)] = dataclasses.replace(it, operations=ops, idle=relax(it.idle))
+                else:
+                    memo[id(it)] = NoisyRepeat(walk(it.body), it.count)
+            out.append(memo[id(it)])
+        return tuple(out)
+
+    return dataclasses.replace(circuit, body=walk(circuit.body))
+
+
+def floor_remedy(report: Any, model: Any, noisy: NoisyCircuit, metric: str, *, engine: str = "auto") -> FloorRemedy | None:
     """The remedy for ``report`` (a ToleranceReport whose floor is at or above its target)."""
     s, target = report.incoherent_floor, report.target
     if s <= 0:
         return None
+    _, knobs = knob_grouping(noisy)
+    bare = with_knob_values(noisy, {key: 0.0 for key in knobs})
     try:
-        depol = quadratic_form(without_relaxation(noisy), metric)
+        runner = choose_engine(bare, metric, engine, brief=True)
     except TooLargeError:
-        return None
-    d = min(depol.floor, s)
-    r = s - d
-    g = target / s
+        runner = None
+
+    def floor(gates: float, relaxation: float) -> float:
+        return float(runner.run(scaled_incoherent(bare, gates, relaxation), metric).infidelity)
+
+    def solve(fn) -> float | None:
+        return brentq(lambda g: fn(g) - target, 0.0, 1.0, xtol=1e-9, rtol=1e-6) if fn(0.0) < target < fn(1.0) else None
+
+    if runner is not None:
+        s, d, r = floor(1.0, 1.0), floor(1.0, 0.0), floor(0.0, 1.0)
+        g = solve(lambda x: floor(x, x))
+        g_d, g_r = solve(lambda x: floor(x, 1.0)), solve(lambda x: floor(1.0, x))
+        how = runner.name
+    else:
+        d = min(quadratic_form(without_relaxation(noisy), metric).floor, s)
+        r = s - d
+        g = target / s
+        g_d = (target - r) / d if d > 0 and r < target else None
+        g_r = (target - d) / r if r > 0 and d < target else None
+        how = "first order"
     families = []
     for family, part in sorted(report.floor_sources.items(), key=lambda kv: -kv[1]):
         gp = model.gates.get(family)
         rate = gp.avg_infidelity if gp is not None and gp.avg_infidelity > 0 else None
-        dep = depol.floor_sources.get(family, 0.0)
-        g_d = (target - r) / d if d > 0 and r < target else None
-        families.append(FamilyNeed(family, part, dep, rate, rate * g if rate else None,
+        families.append(FamilyNeed(family, part, rate, rate * g if rate and g else None,
                                    rate * g_d if rate and g_d is not None else None))
     q = model.qubit_defaults
     return FloorRemedy(
-        target=target, floor=s, depolarizing=d, relaxation=r, scale_all=g,
-        gates_alone=(target - r) / d if d > 0 and r < target else None,
-        coherence_alone=(target - d) / r if r > 0 and d < target else None,
-        families=tuple(families), t1_us=q.t1_us, t2_us=q.t2_us,
+        target=target, floor=s, depolarizing=d, relaxation=r, scale_all=g if g is not None else target / s,
+        gates_alone=g_d, coherence_alone=g_r, families=tuple(families), t1_us=q.t1_us, t2_us=q.t2_us, engine=how,
     )
