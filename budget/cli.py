@@ -258,6 +258,8 @@ AssumeOpt = typer.Option(AssumeChoice.worst, "--assume", help="worst: every knob
                          "the worst signs; random: random signs, tolerances as r.m.s. values.")
 AllocationOpt = typer.Option(AllocationChoice.equal, "--allocation", help="equal: each knob an equal share of the "
                              "coherent budget; common-factor: today's values scaled down together.")
+OpenLoopOpt = typer.Option(False, "--open-loop", help="Leading-order tolerances only: skip the check that runs the "
+                           "most accurate engine with every knob at its tolerance and corrects them.")
 
 
 def _decision_command(name: str, summary: str, views: Callable) -> None:
@@ -276,12 +278,13 @@ def _decision_command(name: str, summary: str, views: Callable) -> None:
         engine: EngineChoice = EngineOpt,
         by_pair: bool = ByPairOpt,
         by_operation: bool = ByOperationOpt,
+        open_loop: bool = OpenLoopOpt,
         json_path: Optional[Path] = typer.Option(None, "--json", help="Write tolerances, sensitivity and calibration "
                                                  "plan as JSON (docs/tolerances.md)."),
         width: Optional[int] = WidthOpt,
     ) -> None:
         d = _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair,
-                       by_operation)
+                       by_operation, open_loop)
         console = make_console(width=width, stderr=to_stdout(json_path))
         for view in views(d):
             console.print(view)
@@ -306,13 +309,15 @@ _decision_command("cost", "Device time to measure the knobs that must tighten (a
                   "with drift, how often.", _cost_views)
 
 
-def _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair, by_operation):
+def _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair, by_operation,
+               open_loop):
     """Shared body of `tolerances` and `cost`: check the options, then compute."""
     from budget.analysis.decide import decide
 
     check_output_path(json_path, "--json")
     return decide(str(circuit), str(errors), target=target, cycles=cycles, metric=metric.value, assume=assume.value,
-                  allocation=allocation.value, engine=engine.value, family_by=grouping(by_pair, by_operation))
+                  allocation=allocation.value, engine=engine.value, family_by=grouping(by_pair, by_operation),
+                  closed_loop=not open_loop)
 
 
 def _write_decisions(json_path: Optional[Path], d) -> None:

@@ -152,7 +152,7 @@ def test_sixty_random_cases_meet_the_target_in_cirq():
     allocations), cirq's infidelity with every knob at its reported tolerance lies within
     [0.9, 1.05] × target (random: mean over every sign pattern; worst: the reported worst pattern)."""
     rng = np.random.default_rng(2026)
-    checked = 0
+    checked = capped = 0
     ratios = []
     while checked < 60:
         circuit, base = _random_case(rng)
@@ -172,6 +172,26 @@ def test_sixty_random_cases_meet_the_target_in_cirq():
             continue
         ratio = _cirq_at_tolerances(circuit, base, report, metric) / target
         ratios.append(ratio)
-        assert 0.9 <= ratio <= 1.05, (checked, metric, assume, allocation, report.closed_loop)
+        if all(r.capped for r in report.rows if math.isfinite(r.tolerance_rad)) and not report.closed_loop.converged:
+            capped += 1  # even π cannot use the budget: the knob barely matters; it must still meet the target
+            assert ratio <= 1.05, (checked, report.closed_loop)
+        else:
+            assert 0.9 <= ratio <= 1.05, (checked, metric, assume, allocation, report.closed_loop)
         checked += 1
-    assert len(ratios) == 60
+    assert len(ratios) == 60 and capped <= 6
+
+
+def test_echoed_knobs_get_a_joint_second_order_tolerance():
+    """Issue 10, item 1 (its tolerance part): x, y, x, y repeated 300 times with over-rotation 0.02
+    on x and y. Each knob alone cancels exactly (Y Rx(δ) Y = Rx(-δ)); together their commutator
+    builds up as (N δ²)². The first-order form says "no effect"; the report must say both must
+    tighten, and cirq with both at their tolerance (reported worst signs) gives the target."""
+    layers = tuple(Layer((Operation(g, (0,)),)) for g in ("x", "y", "x", "y"))
+    circuit = StructuredCircuit(("q[0]",), (Repeat(layers, 300),))
+    base = {"gates": {"x": {"overrotation": 0.02}, "y": {"overrotation": 0.02}}}
+    assert cirq_infidelity(attach(circuit, ErrorModel.from_dict(base)), "process") == pytest.approx(3.595e-3, rel=1e-3)
+    report = _report(circuit, base, 0.002, metric="process", assume="worst")  # (issue: 3.595e-3 exact at N = 300)
+    assert {r.status for r in report.rows} == {"tighten"} and {r.order for r in report.rows} == {"second"}
+    assert all(math.isinf(r.first_order_rad) for r in report.rows)
+    assert 0.9 * 0.002 <= _cirq_at_tolerances(circuit, base, report, "process") <= 1.05 * 0.002
+    assert report.closed_loop.today == pytest.approx(3.595e-3, rel=1e-3) and report.common_factor > 1

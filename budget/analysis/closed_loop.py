@@ -35,7 +35,7 @@ import numpy as np
 from scipy.optimize import brentq
 
 from budget.analysis.select import choose_engine
-from budget.analysis.tolerances import ToleranceReport, make_row
+from budget.analysis.tolerances import LEADING_ORDER_ONLY, ToleranceReport, make_row
 from budget.analysis.worstcase import box_maximum
 from budget.engines.base import QuadraticForm
 from budget.errors.noisy import NoisyCircuit
@@ -49,6 +49,9 @@ SAMPLES = 64
 AIM = 0.975
 """The refinement aims at this fraction of the target (accepted: [0.95, 1])."""
 ACCEPT = (0.95, 1.0)
+NO_EFFECT_BELOW = 1e-6
+"""An effect below this fraction of a knob's share of the budget counts as none (the exact engine's
+paths differ by rounding at the 1e-10 level)."""
 RUNS_PER_PATTERN = 8
 """Evaluations a refinement typically needs; the pattern count is chosen so that
 patterns × this × (time of one run) stays within ``max_seconds``."""
@@ -72,6 +75,8 @@ class ClosedLoop:
         evaluations: engine runs used; seconds: their wall time.
         converged: ``achieved`` lies within [0.95, 1] × E.
         notes: plain-word caveats (engine warnings at the final point, caps, time limit).
+        today: the same aggregate at today's sizes (|δ| of every site, signs as assumed).
+        common_factor: F from the engine: today's sizes divided by F give E (None: not found).
     """
 
     engine: str
@@ -87,6 +92,8 @@ class ClosedLoop:
     seconds: float
     converged: bool
     notes: tuple[str, ...] = field(default=())
+    today: float | None = None
+    common_factor: float | None = None
 
     def as_json(self) -> dict:
         """JSON-ready form (docs/tolerances.md)."""
@@ -155,21 +162,27 @@ def close_loop(
                          f"at or above the target {report.target:g}: no tolerance meets it")
             t = np.zeros(len(keys))
             return _finish(report, rows, keys, t, t0, ClosedLoop(runner.engine.name, report.target, floor, 0.0, floor, 0.0, floor,
-                           "the incoherent floor alone", {}, runner.runs, time.monotonic() - runner.start, False, tuple(notes)))
+                           "the incoherent floor alone", {}, runner.runs, time.monotonic() - runner.start, False, tuple(notes),
+                           floor, None))
         share = (report.target - floor) / max(1, len(rows))
         per_run = max(time.monotonic() - runner.start, 1e-4)
-        for r_i, row in enumerate(rows):
+        for r_i, row in enumerate(rows):  # each knob without a first-order effect on its own
             idx = [i for i, (_, ri) in enumerate(sites) if ri == r_i]
             if row.order == "none":
-                t0[idx] = _second_order(runner, zero, [keys[i] for i in idx], floor, share, report.assume)
+                same = np.array([[1.0] * len(idx), [-1.0] * len(idx)])
+                t0[idx] = _second_order(runner, zero, [keys[i] for i in idx], floor, share, report.assume, same)
+        idle = [i for i, (_, ri) in enumerate(sites) if rows[ri].order == "none" and math.isinf(t0[i])]
+        if len(idle) > 1:  # together (an echo: x and y errors cancel alone, not in pairs)
+            n_rows = len({sites[i][1] for i in idle})
+            t0[idle] = _second_order(runner, zero, [keys[i] for i in idle], floor, share * n_rows, report.assume,
+                                     _joint_signs(len(idle), seed))
         live = np.isfinite(t0) & (t0 > 0)
         live_keys = [k for k, on in zip(keys, live) if on]
         # knobs with no effect found stay at today's value (they combine with the others at higher order)
         today = {k: s.current_rad for k, s, t in zip(keys, (s for r in rows for s in r.sites), t0) if not math.isfinite(t)}
         patterns = _patterns_for(report.assume, qf, live_keys, seed, max(4, int(max_seconds / (RUNS_PER_PATTERN * per_run))))
 
-        def achieved(c: float) -> tuple[float, float, np.ndarray]:
-            t = np.minimum(c * t0[live], math.pi)
+        def at(t: np.ndarray) -> tuple[float, float, np.ndarray]:
             vals, used = [], patterns(t)
             for s in used:
                 vals.append(runner({**zero, **today, **{k: float(x) for k, x in zip(live_keys, s * t)}}))
@@ -179,12 +192,17 @@ def close_loop(
             err = float(vals.std(ddof=1) / math.sqrt(len(vals))) if patterns.kind == "sampled" else 0.0
             return float(vals.mean()), err, used[0]
 
+        def achieved(c: float) -> tuple[float, float, np.ndarray]:
+            return at(np.minimum(c * t0[live], math.pi))
+
         at_one = achieved(1.0)
         first = at_one[0]
         scale, (value, err, signs) = 1.0, at_one
         if not ACCEPT[0] * report.target <= first <= ACCEPT[1] * report.target and np.any(live):
             scale, value, err, signs = _refine(achieved, at_one, AIM * report.target, report.target, t0[live])
         converged = ACCEPT[0] * report.target <= value <= ACCEPT[1] * report.target * (1 + 1e-9)
+        now = np.abs([s.current_rad for r in rows for s in r.sites])[live]
+        today_value, factor = (first, None) if not np.any(now) else _common_factor(at, now, report.target)
     except TimeoutError:
         notes.append(f"closed loop stopped after {3 * max_seconds:g} s of engine runs; the tolerances are leading order")
         return replace(report, warnings=report.warnings + tuple(notes))
@@ -192,13 +210,17 @@ def close_loop(
     if runner.last_warnings and runner.engine.name != "exact":
         notes += [f"{runner.engine.name} at the tolerances: {w}" for w in runner.last_warnings]
     if not converged:
-        notes.append(f"the achieved {value:.3g} is not within 5 % below the target {report.target:g}: "
-                     + ("every tolerance is at its π cap" if np.all(t[live] >= math.pi) else "the refinement did not settle"))
+        why = ("no knob with an effect was found" if not np.any(live) else
+               "every tolerance is at its π cap" if np.all(t[live] >= math.pi) else "the refinement did not settle")
+        notes.append(f"the achieved {value:.3g} is not within 5 % below the target {report.target:g}: {why}")
     method = _method(report.assume, len(live_keys), patterns)
     worst = {f"{k[0]}.{k[1]}": int(s) for k, s in zip(live_keys, signs)} if report.assume == "worst" else {}
     loop = ClosedLoop(runner.engine.name, report.target, value, err, first, scale, floor, method, worst,
-                      runner.runs, time.monotonic() - runner.start, converged, tuple(notes))
-    return _finish(report, rows, keys, t, t0, loop)
+                      runner.runs, time.monotonic() - runner.start, converged, tuple(notes), today_value, factor)
+    out = _finish(report, rows, keys, t, t0, loop)
+    if converged and loop.engine == "exact":  # exact at the tolerances: the leading-order caveats are settled
+        out = replace(out, warnings=tuple(w for w in out.warnings if not w.startswith(LEADING_ORDER_ONLY)))
+    return out
 
 
 def _patterns_for(assume: str, qf: QuadraticForm, keys: list, seed: int, most: int):
@@ -233,6 +255,8 @@ def _patterns_for(assume: str, qf: QuadraticForm, keys: list, seed: int, most: i
 
 
 def _method(assume: str, n: int, patterns) -> str:
+    if n == 0:
+        return "no knob with an effect: today's values as they are"
     if patterns.kind == "all":
         return f"all {patterns.count} sign patterns of {n} sites" + (" (the largest)" if assume == "worst" else " (their mean)")
     if patterns.kind == "sampled":
@@ -241,18 +265,39 @@ def _method(assume: str, n: int, patterns) -> str:
     return f"the leading-order worst pattern of {n} sites{extra} ({patterns.count} patterns)"
 
 
-def _second_order(runner: Callable, zero: dict, keys: list, floor: float, share: float, assume: str) -> float:
-    """The tolerance of a knob without a first-order effect: e(x) - e(0) = share, x in [0, π]."""
+def _second_order(runner: Callable, zero: dict, keys: list, floor: float, share: float, assume: str,
+                  signs: np.ndarray) -> float:
+    """The common tolerance x of knobs without a first-order effect: the aggregate over the sign
+    patterns ``signs`` (rows over ``keys``) of e(x) - e(0) equals ``share``; brentq on the first
+    bracket of the grid π/16, π/8, π/4, π/2, π. π (capped) when the effect stays below the share,
+    ``inf`` when it stays below :data:`NO_EFFECT_BELOW` of it (engine rounding, not an effect)."""
     def excess(x: float) -> float:
-        vals = []
-        for sign in (1.0, -1.0):  # every site of the row with the same sign
-            vals.append(runner({**zero, **{k: sign * x for k in keys}}))
+        vals = [runner({**zero, **{k: float(v) for k, v in zip(keys, x * s)}}) for s in signs]
         return (max(vals) if assume == "worst" else float(np.mean(vals))) - floor - share
 
-    at_pi = excess(math.pi)
-    if at_pi <= 0:
-        return math.pi if at_pi + share > 1e-9 * share else math.inf
-    return brentq(excess, 0.0, math.pi, xtol=1e-6, rtol=1e-4)
+    low, largest = 0.0, -share
+    for x in (math.pi / 16, math.pi / 8, math.pi / 4, math.pi / 2, math.pi):
+        value = excess(x)
+        if value > 0:
+            return brentq(excess, low, x, xtol=1e-7, rtol=1e-4)
+        low, largest = x, max(largest, value)
+    return math.pi if largest + share > NO_EFFECT_BELOW * share else math.inf
+
+
+def _joint_signs(n: int, seed: int) -> np.ndarray:
+    """Sign patterns for a joint search over n sites: all of them up to :data:`ENUMERATE_UP_TO`,
+    else 16 seeded patterns in antithetic pairs."""
+    if n <= ENUMERATE_UP_TO:
+        return np.array(list(itertools.product((1.0, -1.0), repeat=n)))
+    half = np.random.default_rng(seed).choice((1.0, -1.0), size=(8, n))
+    return np.vstack([half, -half])
+
+
+def _common_factor(at: Callable, now: np.ndarray, target: float) -> tuple[float, float | None]:
+    """(aggregate at today's sizes, F) with the aggregate at today's sizes / F equal to the target."""
+    today = at(np.minimum(now, math.pi))
+    c, value, *_ = _refine(lambda c: at(np.minimum(c * now, math.pi)), today, target, target, now)
+    return today[0], (1 / c if c > 0 and abs(value / target - 1) <= 0.05 else None)
 
 
 def _refine(achieved: Callable, at_one: tuple, goal: float, target: float, t_live: np.ndarray):
@@ -274,9 +319,9 @@ def _refine(achieved: Callable, at_one: tuple, goal: float, target: float, t_liv
             lo, hi = hi, min(hi * 2, cap)
         if f(hi) < 0:
             return (hi, *cache[hi])
-    c = brentq(f, lo, hi, xtol=1e-9, rtol=2e-3)
-    if not ACCEPT[0] * target <= f(c) + goal <= ACCEPT[1] * target:  # a kink: fall back to the safe end
-        c = lo if f(lo) + goal <= target else c
+    c = brentq(f, lo, hi, xtol=1e-12, rtol=1e-5)
+    if abs(f(c)) > (1 - ACCEPT[0]) / 2 * target and f(lo) + goal <= target:  # a jump, no root: take the safe end
+        c = lo
     return (c, *cache[c])
 
 
@@ -292,5 +337,5 @@ def _finish(report: ToleranceReport, rows: list, keys: list, t: np.ndarray, t0: 
         new_rows.append(new)
         i += n
     new_rows.sort(key=lambda r: (-r.tighten_by, -abs(r.current_rad), r.family, r.knob))
-    factor = report.common_factor / loop.scale if report.allocation == "common-factor" and loop.scale > 0 else report.common_factor
+    factor = report.common_factor if loop.common_factor is None else loop.common_factor
     return replace(report, rows=tuple(new_rows), closed_loop=loop, common_factor=factor)

@@ -42,6 +42,10 @@ SCHEMA_VERSION = 1
 NO_EFFECT = "no effect found"
 """Status of a knob whose error cancels (or does not reach the metric) at leading order and whose
 higher-order effect no engine run could find (or that was not checked)."""
+VALID_UP_TO = 0.1
+"""Leading-order infidelity of one knob beyond which the quadratic form is not trusted."""
+LEADING_ORDER_ONLY = "leading order only: "
+"""Prefix of warnings that a converged closed-loop check with the exact engine settles."""
 ZERO_RELATIVE = 1e-9
 """A sensitivity below this fraction of the largest (at least 1 per rad²) counts as zero."""
 
@@ -246,8 +250,14 @@ def tolerances(
         tol = np.where(counted, unit * math.sqrt(budget / spread), math.inf) if spread > 0 else np.full(len(now), math.inf)
     if budget > 0 and np.any(counted & (tol > math.pi)):
         names = sorted({knob_key(groups[i]) for i in np.flatnonzero(counted & (tol > math.pi))})
-        warnings.append(f"{', '.join(names)}: the leading-order tolerance exceeds π rad, which is no calibration "
+        warnings.append(f"{LEADING_ORDER_ONLY}{', '.join(names)}: the leading-order tolerance exceeds π rad, which is no calibration "
                         "tolerance; it is capped at π (the knob barely matters at leading order)")
+    single = np.where(live & np.isfinite(tol), diag * np.where(np.isfinite(tol), np.minimum(tol, math.pi), 0.0) ** 2, 0.0)
+    if budget > 0 and np.any(single > VALID_UP_TO):
+        i = int(np.argmax(single))
+        warnings.append(f"{LEADING_ORDER_ONLY}{knob_key(groups[i])} at its tolerance alone gives a leading-order "
+                        f"infidelity of {single[i]:.3g}, beyond about {VALID_UP_TO:g} where the quadratic form holds; "
+                        "only an engine run at the tolerances (the closed-loop check) can confirm them")
     rows = [
         make_row(key, [SiteTolerance(labels[i][0], labels[i][1], float(values[i]), _capped(float(tol[i])))
                        for i in np.flatnonzero(member == g)], feasible=budget > 0,

@@ -251,7 +251,7 @@ def gather(
     except TooLargeError as exc:
         curve = None
         notes.append(f"depth curves left out: {exc}")
-    tol, plan, why = _tolerances_and_plan(whole, model, metric, target, cycles)
+    tol, plan, why = _tolerances_and_plan(structured.with_cycles(cycles), whole, model, metric, target, cycles, family_by)
     if why:
         notes.append(why)
     from budget.report.calib_sections import gather_extras  # import cycle: it builds on this module and sections
@@ -272,23 +272,25 @@ def gather(
     )
 
 
-def _tolerances_and_plan(noisy: Any, model: Any, metric: str, target: float, cycles: int) -> tuple[Any, Any, str | None]:
+def _tolerances_and_plan(structured: Any, noisy: Any, model: Any, metric: str, target: float, cycles: int,
+                         family_by: str) -> tuple[Any, Any, str | None]:
     """The tolerance report and calibration plan (as ``budget tolerances`` and ``budget cost``
-    compute them), or (None, None, why) when unavailable."""
+    compute them, closed loop included), or (None, None, why) when unavailable."""
     try:
         from budget.analysis.calibration import calibration_plan, model_knob_keys, read_calibration
+        from budget.analysis.decide import checked_tolerances
         from budget.analysis.phase_estimation import find_probes
         from budget.analysis.sensitivity import quadratic_form
-        from budget.analysis.tolerances import tolerances
     except ImportError as exc:  # pragma: no cover - optional modules
         return None, None, f"tolerances and calibration cost left out: {exc}"
     from budget.problems import TooLargeError
 
     try:
         qf = quadratic_form(noisy, metric)
+        report = checked_tolerances(structured, model, noisy, qf, target, metric=metric, cycles=cycles,
+                                    family_by="pair" if family_by == "pair" else "gate")
     except TooLargeError as exc:
         return None, None, f"tolerances left out: {exc}"
-    report = tolerances(qf, target, metric=metric, cycles=cycles)
     settings = read_calibration(getattr(model, "calibration", None), source=model.source)
     plan = calibration_plan(report, find_probes(noisy), settings, model_knobs=model_knob_keys(model))
     return report, plan, None

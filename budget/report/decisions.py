@@ -88,6 +88,8 @@ def tolerance_view(report: ToleranceReport) -> Group:
     head.add_row("prediction today", fmt(report.current_signed), f"leading order; {fmt(report.current_assumed)} under this assumption")
     loop = report.closed_loop
     if loop is not None:
+        if loop.today is not None:
+            head.add_row("today, checked", fmt(loop.today), f"{loop.engine} engine at today's sizes, signs as assumed")
         spread = f" ± {fmt(loop.std_error)}" if loop.std_error else ""
         head.add_row("at the tolerances", fmt(loop.achieved) + spread,
                      f"{loop.engine} engine with every knob at its tolerance ({100 * loop.achieved / loop.target:.1f} % of the "
@@ -98,6 +100,10 @@ def tolerance_view(report: ToleranceReport) -> Group:
         if report.floor_remedy is not None:
             message += ". " + report.floor_remedy.message()
         parts.append(Panel(Text(message, style="bold"), border_style="red", title="floor above target", title_align="left"))
+    elif loop is not None and loop.common_factor is None:
+        verdict = "meet" if (loop.today or 0.0) <= report.target else "miss"
+        parts.append(Text(f"scaling every knob together: today's values {verdict} the target ({loop.engine} engine: "
+                          f"{fmt(loop.today or 0.0)}); no common factor reaches it exactly", style="bold"))
     elif report.common_factor > 1:
         parts.append(Text(f"scaling every knob together: calibration must get {report.common_factor:.3g}x better", style="bold"))
     else:

@@ -210,21 +210,31 @@ def _tolerances(data: ReportData) -> list[Block]:
     if t is None:
         return out + [Para("Tolerances are not available in this installation; section left out.", "note")]
     if not t.feasible:
+        remedy = t.floor_remedy.message() if t.floor_remedy is not None else "improve T1, T2 or gate error rates"
         return out + [Para(
             f"The incoherent floor {num(t.incoherent_floor)} alone exceeds the target: no calibration of coherent "
-            "knobs can meet it. Improve T1, T2 or gate error rates, or run fewer repetitions.", "warning")]
+            f"knobs can meet it; {remedy}; or run fewer repetitions.", "warning")]
     out.append(Para(
         f"Largest allowed size of each coherent error knob ({'worst case over signs' if t.assume == 'worst' else 'random signs, r.m.s.'}), "
         f"with today's value and the factor by which calibration must tighten. Incoherent floor: {num(t.incoherent_floor)}; "
         f"budget left for coherent errors: {num(t.coherent_budget)}."
     ))
+    loop = t.closed_loop
+    if loop is not None:
+        out.append(Para(
+            f"Checked in closed loop: with every knob at its tolerance the {loop.engine} engine gives "
+            f"{num(loop.achieved)} against the target {num(t.target)} ({100 * loop.achieved / t.target:.1f} %; "
+            f"{loop.method})."
+        ))
     rows = tuple(
         (f"{row.family} · {row.knob.replace('_', ' ')}", num(row.current_rad), num(row.tolerance_rad),
-         f"{row.tighten_by:.3g}×" if row.status == "tighten" else "—", row.status)
+         f"{row.tighten_by:.3g}×" if row.status == "tighten" else "—",
+         f"{row.sites_over} of {len(row.sites)}" + (f" (worst {row.worst_site})" if row.sites_over else ""), row.status)
         for row in t.rows
     )
-    out.append(Table(("knob", "today (rad)", "tolerance (rad)", "tighten by", "status"), rows, (False, True, True, True, False)))
-    for w in t.warnings:
+    out.append(Table(("knob", "today (rad)", "tolerance (rad)", "tighten by", "sites outside", "status"), rows,
+                     (False, True, True, True, False, False)))
+    for w in t.warnings + (loop.notes if loop is not None else ()):
         out.append(Para(w, "warning"))
     return out
 
