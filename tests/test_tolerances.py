@@ -339,7 +339,9 @@ def test_cli_tolerances_worked_example(tmp_path):
     assert "calibration round" in res.output
     docs = (EXAMPLES.parent / "docs" / "tolerances.md").read_text()
     assert f"│ cz     │ cphase       │        0.03 │ {top['tolerance_rad']:15.4g} │ {top['tighten_by']:9.3g}x │" in docs
-    assert f"calibration must get {doc['common_factor']:.3g}x better" in docs
+    f = doc["common_factor"]
+    assert (f"calibration must get {f:.3g}x better" if f > 1 else f"they could all grow by {1 / f:.3g}x") in docs
+    assert f"at the tolerances   {doc['closed_loop']['achieved']:.4g}" in docs and doc["closed_loop"]["converged"]
 
 
 @pytest.mark.parametrize("extra, message", [
