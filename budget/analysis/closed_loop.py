@@ -143,7 +143,7 @@ def close_loop(
         max_seconds: the planned wall time: fewer sign patterns are used when one engine run is
             slow (the method says so); at three times this the loop stops and says so.
     """
-    if not report.feasible:
+    if not report.feasible or not report.rows:
         return report
     try:
         runner = _Budget(circuit, report.metric, choose_engine(circuit, report.metric, engine, brief=True), max_seconds)

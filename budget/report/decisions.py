@@ -98,7 +98,7 @@ def tolerance_view(report: ToleranceReport) -> Group:
     message = floor_message(report)
     if message:
         if report.floor_remedy is not None:
-            message += ". " + report.floor_remedy.message()
+            message += "; " + report.floor_remedy.message()
         parts.append(Panel(Text(message, style="bold"), border_style="red", title="floor above target", title_align="left"))
     elif loop is not None and loop.common_factor is None:
         verdict = "meet" if (loop.today or 0.0) <= report.target else "miss"
@@ -126,7 +126,7 @@ def tolerance_view(report: ToleranceReport) -> Group:
             cells += [f"{r.sites_over} of {len(r.sites)}", _site_name(r) if r.sites_over else "—"]
         status = r.status + (" (2nd order)" if r.order == "second" else "")
         t.add_row(*cells, Text(status, style=_STATUS.get(r.status, "")))
-    parts.append(t)
+    parts.append(t if report.rows else Text("no coherent knob in this model: nothing to calibrate", style="dim"))
     if any(r.capped for r in report.rows):
         parts.append(Text("* capped at π: no tolerance below π reaches the target's share; this knob barely matters",
                           style="dim"))
