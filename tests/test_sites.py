@@ -8,7 +8,6 @@ from __future__ import annotations
 import json
 import math
 
-import pytest
 
 from budget.analysis.decide import decide
 from budget.analysis.run import read_circuit
