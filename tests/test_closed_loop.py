@@ -195,3 +195,33 @@ def test_echoed_knobs_get_a_joint_second_order_tolerance():
     assert all(math.isinf(r.first_order_rad) for r in report.rows)
     assert 0.9 * 0.002 <= _cirq_at_tolerances(circuit, base, report, "process") <= 1.05 * 0.002
     assert report.closed_loop.today == pytest.approx(3.595e-3, rel=1e-3) and report.common_factor > 1
+
+
+def test_out_of_time_keeps_the_leading_order_and_says_so():
+    """A time limit that no engine run can meet: the tolerances stay leading order, with a warning."""
+    from budget.analysis.closed_loop import close_loop
+    from budget.analysis.tolerances import tolerances
+
+    base = {"gates": {"h": {"overrotation": 0.01, "avg_infidelity": 0.001}}}
+    noisy = attach(_hxh(), ErrorModel.from_dict(base), family_by="pair")
+    qf = quadratic_form(noisy, "state")
+    report = close_loop(tolerances(qf, 0.011, metric="state"), noisy, qf, max_seconds=1e-9)
+    assert report.closed_loop is None and any("closed loop stopped" in w for w in report.warnings)
+
+
+def test_a_slow_engine_gives_way_to_the_next_that_fits():
+    """auto's first choice is replaced when its own estimate says one run is too slow for the loop
+    (engines that estimate their run time); the note names both engines."""
+    from budget.analysis.closed_loop import _quick_enough
+
+    class SlowExact:
+        name = "exact"
+
+        def estimate_seconds(self, circuit, metric):
+            return 100.0
+
+    circuit = StructuredCircuit(("q[0]",), (Repeat((Layer((Operation("x", (0,)),)),), 5),))
+    noisy = attach(circuit, ErrorModel.from_dict({"gates": {"x": {"overrotation": 0.01}}}))
+    notes: list[str] = []
+    chosen = _quick_enough(SlowExact(), noisy, "process", 1.0, notes)
+    assert chosen.name in ("clifford", "generators") and "exact run would take about 1e+02 s" in notes[0]

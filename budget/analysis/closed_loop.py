@@ -34,7 +34,7 @@ from typing import Callable
 import numpy as np
 from scipy.optimize import brentq
 
-from budget.analysis.select import choose_engine
+from budget.analysis.select import AUTO_ORDER, choose_engine
 from budget.analysis.tolerances import LEADING_ORDER_ONLY, ToleranceReport, make_row
 from budget.analysis.worstcase import box_maximum
 from budget.engines.base import QuadraticForm
@@ -108,7 +108,8 @@ class _Budget:
 
     def __init__(self, circuit: NoisyCircuit, metric: str, engine, max_seconds: float) -> None:
         self.circuit, self.metric, self.engine = circuit, metric, engine
-        self.deadline = time.monotonic() + 3 * max_seconds
+        self.limit = 2 * max_seconds
+        self.deadline = time.monotonic() + self.limit
         self.start = time.monotonic()
         self.runs = 0
         self.last_warnings: tuple[str, ...] = ()
@@ -141,22 +142,28 @@ def close_loop(
         engine: ``"auto"`` (the most accurate that fits) or an engine name.
         seed: seed of the sampled sign patterns.
         max_seconds: the planned wall time: fewer sign patterns are used when one engine run is
-            slow (the method says so); at three times this the loop stops and says so.
+            slow (the method says so); at twice this the loop stops and says so, keeping the
+            largest tolerances found to meet the target if there are any.
     """
     if not report.feasible or not report.rows:
         return report
+    notes: list[str] = []
     try:
-        runner = _Budget(circuit, report.metric, choose_engine(circuit, report.metric, engine, brief=True), max_seconds)
+        chosen = choose_engine(circuit, report.metric, engine, brief=True)
+        if engine == "auto":
+            chosen = _quick_enough(chosen, circuit, report.metric, max_seconds / RUNS_PER_PATTERN, notes)
+        runner = _Budget(circuit, report.metric, chosen, max_seconds)
     except TooLargeError as exc:
         return replace(report, warnings=report.warnings + (f"tolerances not checked in closed loop: {exc}",))
     rows = list(report.rows)
     sites = [((s.site, s.knob), r_i) for r_i, r in enumerate(rows) for s in r.sites]
     keys = [k for k, _ in sites]
     t0 = np.array([s.tolerance_rad for r in rows for s in r.sites], dtype=float)
-    notes: list[str] = []
     zero = {k: 0.0 for k in keys}
     try:
         floor = runner(zero)
+        if engine == "auto" and time.monotonic() - runner.start > max_seconds / RUNS_PER_PATTERN:
+            runner, floor = _faster(runner, floor, circuit, report.metric, zero, max_seconds, notes)
         if floor >= report.target:
             notes.append(f"{runner.engine.name}: with every coherent knob at zero the infidelity is {floor:.3g}, "
                          f"at or above the target {report.target:g}: no tolerance meets it")
@@ -192,19 +199,35 @@ def close_loop(
             err = float(vals.std(ddof=1) / math.sqrt(len(vals))) if patterns.kind == "sampled" else 0.0
             return float(vals.mean()), err, used[0]
 
+        seen: dict[float, tuple] = {}  # every common factor tried, for a safe answer when time runs out
+
         def achieved(c: float) -> tuple[float, float, np.ndarray]:
-            return at(np.minimum(c * t0[live], math.pi))
+            seen[c] = at(np.minimum(c * t0[live], math.pi))
+            return seen[c]
 
         at_one = achieved(1.0)
         first = at_one[0]
         scale, (value, err, signs) = 1.0, at_one
-        if not ACCEPT[0] * report.target <= first <= ACCEPT[1] * report.target and np.any(live):
-            scale, value, err, signs = _refine(achieved, at_one, AIM * report.target, report.target, t0[live])
+        try:
+            if not ACCEPT[0] * report.target <= first <= ACCEPT[1] * report.target and np.any(live):
+                scale, value, err, signs = _refine(achieved, at_one, AIM * report.target, report.target, t0[live])
+        except TimeoutError:
+            safe = [c for c, r in seen.items() if r[0] <= report.target]
+            if not safe:
+                raise
+            scale = max(safe)
+            value, err, signs = seen[scale]
+            notes.append(f"the refinement stopped after {runner.limit:g} s of engine runs at the largest tolerances "
+                         "found to meet the target")
         converged = ACCEPT[0] * report.target <= value <= ACCEPT[1] * report.target * (1 + 1e-9)
         now = np.abs([s.current_rad for r in rows for s in r.sites])[live]
-        today_value, factor = (first, None) if not np.any(now) else _common_factor(at, now, report.target)
+        try:
+            today_value, factor = (first, None) if not np.any(now) else _common_factor(at, now, report.target)
+        except TimeoutError:
+            today_value, factor = None, None
+            notes.append("no time left to check today's values with the engine; the common factor is leading order")
     except TimeoutError:
-        notes.append(f"closed loop stopped after {3 * max_seconds:g} s of engine runs; the tolerances are leading order")
+        notes.append(f"closed loop stopped after {runner.limit:g} s of engine runs; the tolerances are leading order")
         return replace(report, warnings=report.warnings + tuple(notes))
     t = np.where(live, np.minimum(scale * np.where(live, t0, 0.0), math.pi), t0)
     if runner.last_warnings and runner.engine.name != "exact":
@@ -221,6 +244,47 @@ def close_loop(
     if converged and loop.engine == "exact":  # exact at the tolerances: the leading-order caveats are settled
         out = replace(out, warnings=tuple(w for w in out.warnings if not w.startswith(LEADING_ORDER_ONLY)))
     return out
+
+
+def _quick_enough(first, circuit: NoisyCircuit, metric: str, seconds: float, notes: list[str]):
+    """``first``, or the next engine of ``auto``'s order whose estimated run time (engines that
+    estimate it) is within ``seconds``; the quickest estimate when none is."""
+    estimate = getattr(first, "estimate_seconds", None)
+    if estimate is None or estimate(circuit, metric) <= seconds or first.name not in AUTO_ORDER:
+        return first
+    best, best_time = first, estimate(circuit, metric)
+    for name in AUTO_ORDER[AUTO_ORDER.index(first.name) + 1:]:
+        try:
+            other = choose_engine(circuit, metric, name, brief=True)
+        except TooLargeError:
+            continue
+        guess = getattr(other, "estimate_seconds", lambda c, m: 0.0)(circuit, metric)
+        if guess < best_time:
+            best, best_time = other, guess
+        if guess <= seconds:
+            break
+    if best is not first:
+        notes.append(f"one {first.name} run would take about {estimate(circuit, metric):.2g} s, too slow for the "
+                     f"loop; it used the {best.name} engine")
+    return best
+
+
+def _faster(runner: _Budget, floor: float, circuit: NoisyCircuit, metric: str, zero: dict, max_seconds: float,
+            notes: list[str]) -> tuple[_Budget, float]:
+    """The next engine of ``auto``'s order that fits, when one run of the first takes too long for
+    the loop (about :data:`RUNS_PER_PATTERN` runs must fit into ``max_seconds``)."""
+    slow = time.monotonic() - runner.start
+    later = AUTO_ORDER[AUTO_ORDER.index(runner.engine.name) + 1:] if runner.engine.name in AUTO_ORDER else ()
+    for name in later:
+        try:
+            other = _Budget(circuit, metric, choose_engine(circuit, metric, name, brief=True), max_seconds)
+        except TooLargeError:
+            continue
+        faster_floor = other(zero)
+        notes.append(f"one {runner.engine.name} run takes {slow:.2g} s, too slow for the loop; it used the "
+                     f"{name} engine")
+        return other, faster_floor
+    return runner, floor
 
 
 def _patterns_for(assume: str, qf: QuadraticForm, keys: list, seed: int, most: int):
