@@ -212,7 +212,7 @@ def test_out_of_time_keeps_the_leading_order_and_says_so():
 def test_a_slow_engine_gives_way_to_the_next_that_fits():
     """auto's first choice is replaced when its own estimate says one run is too slow for the loop
     (engines that estimate their run time); the note names both engines."""
-    from budget.analysis.closed_loop import _quick_enough
+    from budget.analysis.loop_runner import quick_enough
 
     class SlowExact:
         name = "exact"
@@ -223,5 +223,5 @@ def test_a_slow_engine_gives_way_to_the_next_that_fits():
     circuit = StructuredCircuit(("q[0]",), (Repeat((Layer((Operation("x", (0,)),)),), 5),))
     noisy = attach(circuit, ErrorModel.from_dict({"gates": {"x": {"overrotation": 0.01}}}))
     notes: list[str] = []
-    chosen = _quick_enough(SlowExact(), noisy, "process", 1.0, notes)
+    chosen = quick_enough(SlowExact(), noisy, "process", 1.0, notes)
     assert chosen.name in ("clifford", "generators") and "exact run would take about 1e+02 s" in notes[0]

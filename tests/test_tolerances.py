@@ -21,7 +21,8 @@ import scipy.optimize
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from budget.analysis.tolerances import NO_EFFECT, floor_message, tolerances, tolerances_json
+from budget.analysis.tolerance_output import floor_message, tolerances_json
+from budget.analysis.tolerances import NO_EFFECT, tolerances
 from budget.analysis.worstcase import box_maximum, worst_case_max
 from budget.engines.base import QuadraticForm
 from budget.problems import InputError

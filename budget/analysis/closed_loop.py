@@ -9,23 +9,25 @@ This module checks and corrects them with the most accurate engine that fits
 1. **Knobs without a first-order effect** (A_ff at rounding level, e.g. an over-rotation echoed by
    the gates around it) get their tolerance from the engine as a function of the knob alone: the
    root x of e(x) - e(0) = B/n (B the coherent budget, n the number of tolerance rows) by
-   Brent's method (scipy.optimize.brentq) on [0, π]. A knob whose effect stays below that share
-   up to π is capped at π; one with no effect at all is reported as such.
+   Brent's method (scipy.optimize.brentq) on [0, π]; knobs that cancel only each other (x and y
+   in an XY4 echo) are searched jointly. A knob whose effect stays below that share up to π is
+   capped at π; one with no effect at all is reported as such.
 2. **The achieved infidelity** at tolerances t: for ``random``, the mean over the sign patterns
-   of the sites (every pattern when there are at most :data:`ENUMERATE_UP_TO` sites, else
-   :data:`SAMPLES` seeded patterns in antithetic pairs, with the standard error of the mean);
-   for ``worst``, the largest value over every pattern (up to :data:`ENUMERATE_UP_TO` sites) or
-   over the leading-order worst pattern, its negative and their single flips.
+   of the sites; for ``worst``, the largest (:mod:`budget.analysis.sign_patterns` says which
+   patterns). Knobs with no effect found stay at today's value.
 3. **Refinement**: all tolerances are scaled by one factor c, found by brentq on
    achieved(c) = 0.975 E, so the result lies within [0.95, 1] × E (first accepted when already
    there). Each tolerance stays at most π.
+4. **Today**: the same at today's sizes, and the common factor F with which today's sizes / F
+   reach E.
+
+Engine runs follow a time plan (:mod:`budget.analysis.loop_runner`).
 
 Brent's method: R. P. Brent, "Algorithms for Minimization without Derivatives" (Prentice-Hall, 1973).
 """
 
 from __future__ import annotations
 
-import itertools
 import math
 import time
 from dataclasses import dataclass, field, replace
@@ -34,29 +36,20 @@ from typing import Callable
 import numpy as np
 from scipy.optimize import brentq
 
-from budget.analysis.select import AUTO_ORDER, choose_engine
+from budget.analysis.loop_runner import RUNS_PER_PATTERN, TimedRunner, faster, quick_enough
+from budget.analysis.select import choose_engine
+from budget.analysis.sign_patterns import describe, joint_signs, patterns_for
 from budget.analysis.tolerances import LEADING_ORDER_ONLY, ToleranceReport, make_row
-from budget.analysis.worstcase import box_maximum
 from budget.engines.base import QuadraticForm
 from budget.errors.noisy import NoisyCircuit
-from budget.errors.retune import with_knob_values
 from budget.problems import TooLargeError
 
-ENUMERATE_UP_TO = 6
-"""Sites whose sign patterns are enumerated (2^6 = 64 engine runs per evaluation)."""
-SAMPLES = 64
-"""Seeded sign patterns (32 antithetic pairs) beyond that."""
 AIM = 0.975
 """The refinement aims at this fraction of the target (accepted: [0.95, 1])."""
 ACCEPT = (0.95, 1.0)
 NO_EFFECT_BELOW = 1e-6
 """An effect below this fraction of a knob's share of the budget counts as none (the exact engine's
 paths differ by rounding at the 1e-10 level)."""
-RUNS_PER_PATTERN = 8
-"""Evaluations a refinement typically needs; the pattern count is chosen so that
-patterns × this × (time of one run) stays within ``max_seconds``."""
-
-
 @dataclass(frozen=True)
 class ClosedLoop:
     """How the tolerances were checked and corrected.
@@ -103,26 +96,6 @@ class ClosedLoop:
         return out
 
 
-class _Budget:
-    """Engine runs with a wall-time limit."""
-
-    def __init__(self, circuit: NoisyCircuit, metric: str, engine, max_seconds: float) -> None:
-        self.circuit, self.metric, self.engine = circuit, metric, engine
-        self.limit = 2 * max_seconds
-        self.deadline = time.monotonic() + self.limit
-        self.start = time.monotonic()
-        self.runs = 0
-        self.last_warnings: tuple[str, ...] = ()
-
-    def __call__(self, values: dict[tuple[str, str], float]) -> float:
-        if time.monotonic() > self.deadline:
-            raise TimeoutError
-        self.runs += 1
-        res = self.engine.run(with_knob_values(self.circuit, values), self.metric)
-        self.last_warnings = tuple(res.warnings)
-        return float(res.infidelity)
-
-
 def close_loop(
     report: ToleranceReport,
     circuit: NoisyCircuit,
@@ -151,8 +124,8 @@ def close_loop(
     try:
         chosen = choose_engine(circuit, report.metric, engine, brief=True)
         if engine == "auto":
-            chosen = _quick_enough(chosen, circuit, report.metric, max_seconds / RUNS_PER_PATTERN, notes)
-        runner = _Budget(circuit, report.metric, chosen, max_seconds)
+            chosen = quick_enough(chosen, circuit, report.metric, max_seconds / RUNS_PER_PATTERN, notes)
+        runner = TimedRunner(circuit, report.metric, chosen, max_seconds)
     except TooLargeError as exc:
         return replace(report, warnings=report.warnings + (f"tolerances not checked in closed loop: {exc}",))
     rows = list(report.rows)
@@ -163,7 +136,7 @@ def close_loop(
     try:
         floor = runner(zero)
         if engine == "auto" and time.monotonic() - runner.start > max_seconds / RUNS_PER_PATTERN:
-            runner, floor = _faster(runner, floor, circuit, report.metric, zero, max_seconds, notes)
+            runner, floor = faster(runner, floor, circuit, report.metric, zero, max_seconds, notes)
         if floor >= report.target:
             notes.append(f"{runner.engine.name}: with every coherent knob at zero the infidelity is {floor:.3g}, "
                          f"at or above the target {report.target:g}: no tolerance meets it")
@@ -182,12 +155,12 @@ def close_loop(
         if len(idle) > 1:  # together (an echo: x and y errors cancel alone, not in pairs)
             n_rows = len({sites[i][1] for i in idle})
             t0[idle] = _second_order(runner, zero, [keys[i] for i in idle], floor, share * n_rows, report.assume,
-                                     _joint_signs(len(idle), seed))
+                                     joint_signs(len(idle), seed))
         live = np.isfinite(t0) & (t0 > 0)
         live_keys = [k for k, on in zip(keys, live) if on]
         # knobs with no effect found stay at today's value (they combine with the others at higher order)
         today = {k: s.current_rad for k, s, t in zip(keys, (s for r in rows for s in r.sites), t0) if not math.isfinite(t)}
-        patterns = _patterns_for(report.assume, qf, live_keys, seed, max(4, int(max_seconds / (RUNS_PER_PATTERN * per_run))))
+        patterns = patterns_for(report.assume, qf, live_keys, seed, max(4, int(max_seconds / (RUNS_PER_PATTERN * per_run))))
 
         def at(t: np.ndarray) -> tuple[float, float, np.ndarray]:
             vals, used = [], patterns(t)
@@ -236,7 +209,7 @@ def close_loop(
         why = ("no knob with an effect was found" if not np.any(live) else
                "every tolerance is at its π cap" if np.all(t[live] >= math.pi) else "the refinement did not settle")
         notes.append(f"the achieved {value:.3g} is not within 5 % below the target {report.target:g}: {why}")
-    method = _method(report.assume, len(live_keys), patterns)
+    method = describe(report.assume, len(live_keys), patterns)
     worst = {f"{k[0]}.{k[1]}": int(s) for k, s in zip(live_keys, signs)} if report.assume == "worst" else {}
     loop = ClosedLoop(runner.engine.name, report.target, value, err, first, scale, floor, method, worst,
                       runner.runs, time.monotonic() - runner.start, converged, tuple(notes), today_value, factor)
@@ -244,89 +217,6 @@ def close_loop(
     if converged and loop.engine == "exact":  # exact at the tolerances: the leading-order caveats are settled
         out = replace(out, warnings=tuple(w for w in out.warnings if not w.startswith(LEADING_ORDER_ONLY)))
     return out
-
-
-def _quick_enough(first, circuit: NoisyCircuit, metric: str, seconds: float, notes: list[str]):
-    """``first``, or the next engine of ``auto``'s order whose estimated run time (engines that
-    estimate it) is within ``seconds``; the quickest estimate when none is."""
-    estimate = getattr(first, "estimate_seconds", None)
-    if estimate is None or estimate(circuit, metric) <= seconds or first.name not in AUTO_ORDER:
-        return first
-    best, best_time = first, estimate(circuit, metric)
-    for name in AUTO_ORDER[AUTO_ORDER.index(first.name) + 1:]:
-        try:
-            other = choose_engine(circuit, metric, name, brief=True)
-        except TooLargeError:
-            continue
-        guess = getattr(other, "estimate_seconds", lambda c, m: 0.0)(circuit, metric)
-        if guess < best_time:
-            best, best_time = other, guess
-        if guess <= seconds:
-            break
-    if best is not first:
-        notes.append(f"one {first.name} run would take about {estimate(circuit, metric):.2g} s, too slow for the "
-                     f"loop; it used the {best.name} engine")
-    return best
-
-
-def _faster(runner: _Budget, floor: float, circuit: NoisyCircuit, metric: str, zero: dict, max_seconds: float,
-            notes: list[str]) -> tuple[_Budget, float]:
-    """The next engine of ``auto``'s order that fits, when one run of the first takes too long for
-    the loop (about :data:`RUNS_PER_PATTERN` runs must fit into ``max_seconds``)."""
-    slow = time.monotonic() - runner.start
-    later = AUTO_ORDER[AUTO_ORDER.index(runner.engine.name) + 1:] if runner.engine.name in AUTO_ORDER else ()
-    for name in later:
-        try:
-            other = _Budget(circuit, metric, choose_engine(circuit, metric, name, brief=True), max_seconds)
-        except TooLargeError:
-            continue
-        faster_floor = other(zero)
-        notes.append(f"one {runner.engine.name} run takes {slow:.2g} s, too slow for the loop; it used the "
-                     f"{name} engine")
-        return other, faster_floor
-    return runner, floor
-
-
-def _patterns_for(assume: str, qf: QuadraticForm, keys: list, seed: int, most: int):
-    """A function t -> sign patterns (rows of ±1) to evaluate at tolerances t, at most about ``most``
-    of them; ``.count`` patterns, ``.kind`` in ``"all"``, ``"sampled"``, ``"search"``."""
-    n = len(keys)
-
-    def fixed(signs: np.ndarray, kind: str):
-        def patterns(t):
-            return signs
-        patterns.count, patterns.kind = len(signs), kind
-        return patterns
-
-    if n <= ENUMERATE_UP_TO and 2**n <= most:
-        return fixed(np.array(list(itertools.product((1.0, -1.0), repeat=n))) if n else np.ones((1, 0)), "all")
-    if assume == "random":
-        half = np.random.default_rng(seed).choice((1.0, -1.0), size=(max(2, min(SAMPLES, most)) // 2, n))
-        return fixed(np.vstack([half, -half]), "sampled")
-    order = {label: i for i, label in enumerate(qf.labels)}
-    idx = np.array([order[k] for k in keys])
-    a = np.asarray(qf.matrix, dtype=float)[np.ix_(idx, idx)]
-    flips = 2 * n + 2 <= most
-
-    def search(t):
-        s = box_maximum(a, np.where(np.isfinite(t), t, 0.0)).signs
-        if not flips:
-            return np.vstack([s, -s])
-        one = s * (1 - 2 * np.eye(n))
-        return np.vstack([s, -s, one, -one])
-    search.count, search.kind = (2 * n + 2 if flips else 2), "search"
-    return search
-
-
-def _method(assume: str, n: int, patterns) -> str:
-    if n == 0:
-        return "no knob with an effect: today's values as they are"
-    if patterns.kind == "all":
-        return f"all {patterns.count} sign patterns of {n} sites" + (" (the largest)" if assume == "worst" else " (their mean)")
-    if patterns.kind == "sampled":
-        return f"mean over {patterns.count} seeded sign patterns of {n} sites (antithetic pairs); error = standard error"
-    extra = ", its negative and their single flips" if patterns.count > 2 else " and its negative"
-    return f"the leading-order worst pattern of {n} sites{extra} ({patterns.count} patterns)"
 
 
 def _second_order(runner: Callable, zero: dict, keys: list, floor: float, share: float, assume: str,
@@ -346,15 +236,6 @@ def _second_order(runner: Callable, zero: dict, keys: list, floor: float, share:
             return brentq(excess, low, x, xtol=1e-7, rtol=1e-4)
         low, largest = x, max(largest, value)
     return math.pi if largest + share > NO_EFFECT_BELOW * share else math.inf
-
-
-def _joint_signs(n: int, seed: int) -> np.ndarray:
-    """Sign patterns for a joint search over n sites: all of them up to :data:`ENUMERATE_UP_TO`,
-    else 16 seeded patterns in antithetic pairs."""
-    if n <= ENUMERATE_UP_TO:
-        return np.array(list(itertools.product((1.0, -1.0), repeat=n)))
-    half = np.random.default_rng(seed).choice((1.0, -1.0), size=(8, n))
-    return np.vstack([half, -half])
 
 
 def _common_factor(at: Callable, now: np.ndarray, target: float) -> tuple[float, float | None]:

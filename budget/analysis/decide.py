@@ -23,7 +23,8 @@ from budget.analysis.closed_loop import close_loop
 from budget.analysis.floor import floor_remedy
 from budget.analysis.phase_estimation import find_probes
 from budget.analysis.sensitivity import Sensitivity, per_operation, quadratic_form, sensitivity, sensitivity_json
-from budget.analysis.tolerances import ToleranceReport, check_target, tolerances, tolerances_json
+from budget.analysis.tolerance_output import tolerances_json
+from budget.analysis.tolerances import ToleranceReport, check_target, tolerances
 from budget.problems import InputError
 
 GROUPINGS: tuple[str, ...] = ("gate", "pair", "operation")

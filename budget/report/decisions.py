@@ -17,7 +17,8 @@ from rich.text import Text
 
 from budget.analysis.calibration import CalibrationPlan
 from budget.analysis.sensitivity import Sensitivity
-from budget.analysis.tolerances import NO_EFFECT, ToleranceReport, floor_message
+from budget.analysis.tolerance_output import floor_message
+from budget.analysis.tolerances import NO_EFFECT, ToleranceReport
 from budget.errors.context_layers import knob_in_lab_units
 from budget.report.terminal import fmt
 
@@ -46,7 +47,8 @@ def _duration(seconds: float) -> str:
 
 def sensitivity_view(s: Sensitivity, *, top: int = 15) -> Group:
     """Per-knob sensitivity (infidelity per rad²) and share, interfering pairs, the floor."""
-    t = Table(title="sensitivity: e ≈ δᵀAδ + s", title_justify="left")
+    t = Table(title="sensitivity: e ≈ δᵀAδ + s", title_justify="left", caption_justify="left",
+              caption="today: a family's largest value over its sites; each site in the tolerance table and the JSON")
     for name, right in (("family", False), ("knob", False), ("today (rad)", True), ("A_ff (per rad²)", True),
                         ("share", True), ("of coherent", True)):
         t.add_column(name, justify="right" if right else "left")
