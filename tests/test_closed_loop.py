@@ -225,3 +225,22 @@ def test_a_slow_engine_gives_way_to_the_next_that_fits():
     notes: list[str] = []
     chosen = quick_enough(SlowExact(), noisy, "process", 1.0, notes)
     assert chosen.name in ("clifford", "generators") and "exact run would take about 1e+02 s" in notes[0]
+
+
+def test_context_knobs_are_checked_in_closed_loop_too():
+    """A spectator-ZZ knob (rad per µs, budget/errors/context_layers.py): cirq with the coupling
+    written in the model at ± the reported tolerance (in kHz) gives the target."""
+    import tomllib
+    from pathlib import Path
+
+    from budget.analysis.run import read_circuit
+
+    root = Path(__file__).resolve().parent.parent / "circuits"
+    d = decide(str(root / "pair_memory_zz.qasm"), str(root / "fen_pair_zz.toml"), target=0.05)
+    row = next(r for r in d.tolerances.rows if r.knob == "zz_rad_per_us")
+    assert row.family == "zz q[0],q[1]" and row.status == "ok" and d.tolerances.closed_loop.converged
+    sign = d.tolerances.closed_loop.worst_signs["zz q[0],q[1].zz_rad_per_us"]
+    model = tomllib.loads((root / "fen_pair_zz.toml").read_text())
+    model["couplings"]["q[0],q[1]"]["zz_khz"] = sign * row.tolerance_rad * 1000 / (2 * math.pi)
+    value = cirq_infidelity(attach(read_circuit(str(root / "pair_memory_zz.qasm")), ErrorModel.from_dict(model)), "process")
+    assert 0.9 * 0.05 <= value <= 1.05 * 0.05

@@ -107,7 +107,8 @@ def checked_tolerances(
     if family_by == "gate":
         site_noisy = attach(structured, model, family_by="pair")
         site_qf = dataclasses.replace(quadratic_form(site_noisy, metric, engine=engine), floor_sources=dict(qf.floor_sources))
-        groups = [(site_family(f), k) for f, k in site_qf.labels]
+        family_of = site_families(noisy, site_noisy)
+        groups = [(family_of.get(f, site_family(f)), k) for f, k in site_qf.labels]
     else:
         site_noisy, site_qf, groups = noisy, qf, None
     report = tolerances(site_qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles, groups=groups)
@@ -116,6 +117,24 @@ def checked_tolerances(
     if not report.feasible:
         report = dataclasses.replace(report, floor_remedy=floor_remedy(report, model, noisy, metric))
     return report
+
+
+def site_families(by_gate: Any, by_site: Any) -> dict[str, str]:
+    """Per-site family name -> gate family name, read off the same circuit attached both ways
+    (their items correspond one to one; context errors keep their own names)."""
+    from budget.errors.noisy import NoisyLayer
+
+    out: dict[str, str] = {}
+
+    def walk(a: tuple, b: tuple) -> None:
+        for x, y in zip(a, b):
+            if isinstance(x, NoisyLayer) and isinstance(y, NoisyLayer):
+                out.update((q.family, p.family) for p, q in zip(x.operations, y.operations))
+            elif not isinstance(x, NoisyLayer) and not isinstance(y, NoisyLayer):
+                walk(x.body, y.body)
+
+    walk(by_gate.body, by_site.body)
+    return out
 
 
 def site_family(name: str) -> str:

@@ -11,6 +11,8 @@ Values are given per row of the quadratic form, (family, knob) -> δ in rad. The
 magnitude when they differ; each operation then gets δ · value_op / value_row (the same
 proportions as today), or δ itself when the row's value is zero today. Operations whose
 Hamiltonian has no knob generators form the knob ``"pauli"``: their Hamiltonian is scaled by δ.
+Context errors (spectator ZZ, crosstalk, bleed; budget/errors/context_layers.py) are one-knob
+pseudo-operations whose unitary is exp(-i value·K) exactly; they are rebuilt that way.
 """
 
 from __future__ import annotations
@@ -43,6 +45,14 @@ def params_from_values(values: Mapping[str, float]) -> GateParams:
     )
 
 
+_GATE_KNOBS = ("overrotation", "axis_error", "z_phase", "cphase", "swap_angle")
+
+
+def _gate_knob(name: str) -> bool:
+    """A knob of the gate tables (rebuilt through :func:`coherent_error`), not a context knob."""
+    return name in _GATE_KNOBS or name.startswith(("z_phase[", "pauli:"))
+
+
 def with_knob_values(circuit: NoisyCircuit, values: Mapping[tuple[str, str], float]) -> NoisyCircuit:
     """``circuit`` with the knob rows in ``values`` set to new values (rad); other rows unchanged.
 
@@ -65,8 +75,17 @@ def with_knob_values(circuit: NoisyCircuit, values: Mapping[tuple[str, str], flo
         out = nop
         if nop.knob_generators and any((nop.family, k) in values for k in nop.knob_generators):
             knobs = {k: new_value(nop.family, k, float(nop.knob_values.get(k, 0.0))) for k in nop.knob_generators}
-            coh = coherent_error(nop.op.gate, nop.op.params, params_from_values(knobs), len(nop.qubits))
-            out = dataclasses.replace(nop, coherent=coh.unitary, hamiltonian=dict(coh.hamiltonian), knob_values=knobs)
+            if nop.op.gate != "unitary" and all(_gate_knob(k) for k in knobs):
+                coh = coherent_error(nop.op.gate, nop.op.params, params_from_values(knobs), len(nop.qubits))
+                out = dataclasses.replace(nop, coherent=coh.unitary, hamiltonian=dict(coh.hamiltonian), knob_values=knobs)
+            else:  # context errors: exp(-i Σ_k value_k K_k), exact for their one-knob pseudo-operations
+                h: dict[str, float] = {}
+                for k, gen in nop.knob_generators.items():
+                    for p, c in gen.items():
+                        h[p] = h.get(p, 0.0) + knobs[k] * c
+                h = {p: c for p, c in h.items() if c != 0}
+                u = pauli_unitary(h) if h else np.eye(2 ** len(nop.qubits), dtype=complex)
+                out = dataclasses.replace(nop, coherent=u, hamiltonian=h, knob_values=knobs)
         elif not nop.knob_generators and nop.hamiltonian and (nop.family, PLAIN_KNOB) in values:
             scale = new_value(nop.family, PLAIN_KNOB, 1.0)
             h = {p: c * scale for p, c in nop.hamiltonian.items() if c * scale != 0}
