@@ -85,3 +85,15 @@ def test_by_pair_rows_are_the_sites_themselves(tmp_path):
     assert rows[0].family == f"cz {BAD}" and rows[0].status == "tighten"
     assert not math.isnan(rows[0].first_order_rad)
     assert d.tolerances.closed_loop.converged
+
+
+def test_the_report_shows_the_closed_loop_beside_the_target(tmp_path):
+    from budget.report.content import gather
+    from budget.report.markdown import render_markdown
+
+    qasm, toml = _files(tmp_path)
+    data = gather(str(qasm), str(toml), target=0.02, metric="state", max_cycles=20, points=4)
+    text = render_markdown(data, {})
+    loop = data.tolerances.closed_loop
+    assert "Checked in closed loop" in text and f"{100 * loop.achieved / 0.02:.1f} %" in text
+    assert "1 of 10 (worst cz q[2],q[3])" in text
