@@ -97,3 +97,26 @@ def test_the_report_shows_the_closed_loop_beside_the_target(tmp_path):
     loop = data.tolerances.closed_loop
     assert "Checked in closed loop" in text and f"{100 * loop.achieved / 0.02:.1f} %" in text
     assert "1 of 10 (worst cz q[2],q[3])" in text
+
+
+def test_random_signs_on_ten_sites_are_sampled_with_their_error(tmp_path):
+    """Beyond six sites `random` samples seeded sign patterns and states the standard error; cirq's
+    mean over 24 other seeded patterns agrees within four combined standard errors and lies in
+    [0.9, 1.05] × target."""
+    import numpy as np
+
+    qasm, toml = _files(tmp_path)
+    d = decide(str(qasm), str(toml), target=0.02, metric="state", assume="random")
+    loop = d.tolerances.closed_loop
+    assert "seeded sign patterns of 10 sites" in loop.method and loop.std_error > 0 and loop.converged
+    tol = next(r for r in d.tolerances.rows if r.knob == "cphase").tolerance_rad
+    rng = np.random.default_rng(99)
+    values = []
+    for _ in range(24):
+        gates = {"h": {"avg_infidelity": 1e-4}, "cz": {"avg_infidelity": 1e-3, "cphase": 0.0}}
+        for a, b in PAIRS:
+            gates["cz"][f"q[{a}],q[{b}]"] = {"cphase": float(rng.choice((-1.0, 1.0))) * tol}
+        values.append(cirq_infidelity(attach(read_circuit(str(qasm)), ErrorModel.from_dict({"gates": gates})), "state"))
+    mean, err = float(np.mean(values)), float(np.std(values, ddof=1) / np.sqrt(len(values)))
+    assert abs(mean - loop.achieved) <= 4 * math.hypot(err, loop.std_error)
+    assert 0.9 * 0.02 - 4 * err <= mean <= 1.05 * 0.02 + 4 * err
