@@ -15,9 +15,9 @@ This module checks and corrects them with the most accurate engine that fits
 2. **The achieved infidelity** at tolerances t: for ``random``, the mean over the sign patterns
    of the sites; for ``worst``, the largest (:mod:`budget.analysis.sign_patterns` says which
    patterns). Knobs with no effect found stay at today's value.
-3. **Refinement**: all tolerances are scaled by one factor c, found by brentq on
-   achieved(c) = 0.975 E, so the result lies within [0.95, 1] × E (first accepted when already
-   there). Each tolerance stays at most π.
+3. **Refinement**: all tolerances are scaled by one factor c aiming at achieved(c) = 0.975 E,
+   accepted within [0.95, 1] × E: power-law steps first (the coherent part grows as c^p), then
+   brentq on a bracket (:func:`_refine`). Each tolerance stays at most π.
 4. **Today**: the same at today's sizes, and the common factor F with which today's sizes / F
    reach E.
 
@@ -36,7 +36,7 @@ from typing import Callable
 import numpy as np
 from scipy.optimize import brentq
 
-from budget.analysis.loop_runner import RUNS_PER_PATTERN, TimedRunner, faster, quick_enough
+from budget.analysis.loop_runner import RUNS_PER_PATTERN, TimedRunner, faster, quick_enough, run_seconds
 from budget.analysis.select import choose_engine
 from budget.analysis.sign_patterns import describe, joint_signs, patterns_for
 from budget.analysis.tolerances import LEADING_ORDER_ONLY, ToleranceReport, make_row
@@ -44,9 +44,8 @@ from budget.engines.base import QuadraticForm
 from budget.errors.noisy import NoisyCircuit
 from budget.problems import TooLargeError
 
-AIM = 0.975
-"""The refinement aims at this fraction of the target (accepted: [0.95, 1])."""
 ACCEPT = (0.95, 1.0)
+"""The refinement accepts the achieved infidelity within this fraction of the target (aiming at 0.975)."""
 NO_EFFECT_BELOW = 1e-6
 """An effect below this fraction of a knob's share of the budget counts as none (the exact engine's
 paths differ by rounding at the 1e-10 level)."""
@@ -135,8 +134,10 @@ def close_loop(
     zero = {k: 0.0 for k in keys}
     try:
         floor = runner(zero)
-        if engine == "auto" and time.monotonic() - runner.start > max_seconds / RUNS_PER_PATTERN:
+        measured = max(time.monotonic() - runner.start, 1e-4)
+        if engine == "auto" and run_seconds(runner.engine, circuit, report.metric) is None and measured > max_seconds / 2:
             runner, floor = faster(runner, floor, circuit, report.metric, zero, max_seconds, notes)
+            measured = max(time.monotonic() - runner.start, 1e-4)
         if floor >= report.target:
             notes.append(f"{runner.engine.name}: with every coherent knob at zero the infidelity is {floor:.3g}, "
                          f"at or above the target {report.target:g}: no tolerance meets it")
@@ -145,7 +146,7 @@ def close_loop(
                            "the incoherent floor alone", {}, runner.runs, time.monotonic() - runner.start, False, tuple(notes),
                            floor, None))
         share = (report.target - floor) / max(1, len(rows))
-        per_run = max(time.monotonic() - runner.start, 1e-4)
+        per_run = run_seconds(runner.engine, circuit, report.metric) or measured or 1e-4
         for r_i, row in enumerate(rows):  # each knob without a first-order effect on its own
             idx = [i for i, (_, ri) in enumerate(sites) if ri == r_i]
             if row.order == "none":
@@ -183,7 +184,8 @@ def close_loop(
         scale, (value, err, signs) = 1.0, at_one
         try:
             if not ACCEPT[0] * report.target <= first <= ACCEPT[1] * report.target and np.any(live):
-                scale, value, err, signs = _refine(achieved, at_one, AIM * report.target, report.target, t0[live])
+                scale, value, err, signs = _refine(achieved, at_one, (ACCEPT[0] * report.target, ACCEPT[1] * report.target),
+                                                   t0[live], floor)
         except TimeoutError:
             safe = [c for c, r in seen.items() if r[0] <= report.target]
             if not safe:
@@ -195,7 +197,7 @@ def close_loop(
         converged = ACCEPT[0] * report.target <= value <= ACCEPT[1] * report.target * (1 + 1e-9)
         now = np.abs([s.current_rad for r in rows for s in r.sites])[live]
         try:
-            today_value, factor = (first, None) if not np.any(now) else _common_factor(at, now, report.target)
+            today_value, factor = (first, None) if not np.any(now) else _common_factor(at, now, report.target, floor)
         except TimeoutError:
             today_value, factor = None, None
             notes.append("no time left to check today's values with the engine; the common factor is leading order")
@@ -238,34 +240,62 @@ def _second_order(runner: Callable, zero: dict, keys: list, floor: float, share:
     return math.pi if largest + share > NO_EFFECT_BELOW * share else math.inf
 
 
-def _common_factor(at: Callable, now: np.ndarray, target: float) -> tuple[float, float | None]:
-    """(aggregate at today's sizes, F) with the aggregate at today's sizes / F equal to the target."""
+def _common_factor(at: Callable, now: np.ndarray, target: float, floor: float) -> tuple[float, float | None]:
+    """(aggregate at today's sizes, F) with the aggregate at today's sizes / F within 1 % below
+    the target."""
     today = at(np.minimum(now, math.pi))
-    c, value, *_ = _refine(lambda c: at(np.minimum(c * now, math.pi)), today, target, target, now)
-    return today[0], (1 / c if c > 0 and abs(value / target - 1) <= 0.05 else None)
+    c, value, *_ = _refine(lambda c: at(np.minimum(c * now, math.pi)), today, (0.99 * target, target), now, floor)
+    return today[0], (1 / c if c > 0 and 0.99 * target <= value <= target * (1 + 1e-9) else None)
 
 
-def _refine(achieved: Callable, at_one: tuple, goal: float, target: float, t_live: np.ndarray):
-    """The common factor c with achieved(c) = goal: bracket by halving or doubling, then brentq."""
+def _refine(achieved: Callable, at_one: tuple, window: tuple[float, float], t_live: np.ndarray, floor: float):
+    """The common factor c with achieved(c) inside ``window``.
+
+    First up to three power-law steps: the coherent part achieved(c) - floor grows as c^p (p = 2
+    at leading order, 4 for a second-order knob; p is re-estimated from the last two points), so
+    c ← c · ((goal - floor)/(achieved(c) - floor))^(1/p) with goal the middle of the window; this
+    usually lands in one or two runs. Otherwise the root is bracketed by halving or doubling and
+    found by brentq. Returns (c, value, error, signs).
+    """
+    goal = (window[0] + window[1]) / 2
     cache: dict[float, tuple] = {1.0: at_one}
+    cap = math.pi / float(np.min(t_live))  # beyond it every tolerance sits at π
 
     def f(c: float) -> float:
         if c not in cache:
             cache[c] = achieved(c)
         return cache[c][0] - goal
 
-    lo, hi = 1.0, 1.0
-    if at_one[0] > goal:
-        while f(lo) > 0 and lo > 1e-12:
-            hi, lo = lo, lo / 2
-    else:
-        cap = math.pi / float(np.max(t_live))
-        while f(hi) < 0 and hi < cap:
-            lo, hi = hi, min(hi * 2, cap)
-        if f(hi) < 0:
-            return (hi, *cache[hi])
+    def inside(c: float) -> bool:
+        return window[0] <= cache[c][0] <= window[1] * (1 + 1e-9)
+
+    c, p = 1.0, 2.0
+    for _ in range(3):
+        excess, wanted = cache[c][0] - floor, goal - floor
+        if excess <= 0 or wanted <= 0:
+            break
+        step = min(c * (wanted / excess) ** (1 / p), cap)
+        if step == c:
+            break
+        f(step)
+        new_excess = cache[step][0] - floor
+        if new_excess > 0 and abs(math.log(step / c)) > 1e-6:
+            p = min(max(math.log(new_excess / excess) / math.log(step / c), 0.5), 8.0)
+        c = step
+        if inside(c):
+            return (c, *cache[c])
+    below = [x for x in cache if cache[x][0] < goal]
+    above = [x for x in cache if cache[x][0] > goal]
+    lo = max(below) if below else min(cache)
+    hi = min((x for x in above if x > lo), default=max(cache))
+    while f(lo) > 0 and lo > 1e-12:
+        hi, lo = lo, lo / 2
+    while f(hi) < 0 and hi < cap:
+        lo, hi = hi, min(hi * 2, cap)
+    if f(hi) < 0:
+        return (hi, *cache[hi])
     c = brentq(f, lo, hi, xtol=1e-12, rtol=1e-5)
-    if abs(f(c)) > (1 - ACCEPT[0]) / 2 * target and f(lo) + goal <= target:  # a jump, no root: take the safe end
+    if not inside(c) and f(lo) + goal <= window[1]:  # a jump, no root: take the safe end
         c = lo
     return (c, *cache[c])
 

@@ -14,10 +14,14 @@ from __future__ import annotations
 import time
 
 from budget.analysis.select import AUTO_ORDER, choose_engine
+from budget.engines._exact_plan import make_plan
 from budget.errors.noisy import NoisyCircuit
 from budget.errors.retune import with_knob_values
 from budget.problems import TooLargeError
 
+MULTIPLY_ADDS_PER_S = 3e8
+"""Complex multiply-adds per second assumed for the exact engine's estimate (one core of this
+machine class; measured within a factor of 3 on the examples)."""
 RUNS_PER_PATTERN = 8
 """Evaluations a refinement typically needs; the pattern count is chosen so that
 patterns × this × (time of one run) stays within ``max_seconds``."""
@@ -43,33 +47,46 @@ class TimedRunner:
         return float(res.infidelity)
 
 
+def run_seconds(engine, circuit: NoisyCircuit, metric: str) -> float | None:
+    """The engine's own estimate of one run, when it gives one (``estimate_seconds``); for the
+    exact engine its plan's multiply-adds (:func:`budget.engines._exact_plan.make_plan`) at
+    :data:`MULTIPLY_ADDS_PER_S`; else None. Estimates, unlike measured times, do not change with
+    the machine's load, so the loop's choices (engine, sign patterns) are reproducible."""
+    estimate = getattr(engine, "estimate_seconds", None)
+    if estimate is not None:
+        return float(estimate(circuit, metric))
+    if engine.name == "exact":
+        return make_plan(circuit, metric).work / MULTIPLY_ADDS_PER_S
+    return None
+
+
 def quick_enough(first, circuit: NoisyCircuit, metric: str, seconds: float, notes: list[str]):
-    """``first``, or the next engine of ``auto``'s order whose estimated run time (engines that
-    estimate it) is within ``seconds``; the quickest estimate when none is."""
-    estimate = getattr(first, "estimate_seconds", None)
-    if estimate is None or estimate(circuit, metric) <= seconds or first.name not in AUTO_ORDER:
+    """``first``, or the next engine of ``auto``'s order whose estimated run time is within
+    ``seconds`` (engines without an estimate count as quick); the quickest when none is."""
+    first_time = run_seconds(first, circuit, metric)
+    if first_time is None or first_time <= seconds or first.name not in AUTO_ORDER:
         return first
-    best, best_time = first, estimate(circuit, metric)
+    best, best_time = first, first_time
     for name in AUTO_ORDER[AUTO_ORDER.index(first.name) + 1:]:
         try:
             other = choose_engine(circuit, metric, name, brief=True)
         except TooLargeError:
             continue
-        guess = getattr(other, "estimate_seconds", lambda c, m: 0.0)(circuit, metric)
+        guess = run_seconds(other, circuit, metric) or 0.0
         if guess < best_time:
             best, best_time = other, guess
         if guess <= seconds:
             break
     if best is not first:
-        notes.append(f"one {first.name} run would take about {estimate(circuit, metric):.2g} s, too slow for the "
-                     f"loop; it used the {best.name} engine")
+        notes.append(f"one {first.name} run would take about {first_time:.2g} s, too slow for the loop; it used "
+                     f"the {best.name} engine")
     return best
 
 
 def faster(runner: TimedRunner, floor: float, circuit: NoisyCircuit, metric: str, zero: dict, max_seconds: float,
             notes: list[str]) -> tuple[TimedRunner, float]:
-    """The next engine of ``auto``'s order that fits, when one run of the first takes too long for
-    the loop (about :data:`RUNS_PER_PATTERN` runs must fit into ``max_seconds``)."""
+    """The next engine of ``auto``'s order that fits, when the first run of an engine without an
+    estimate took more than half of ``max_seconds``."""
     slow = time.monotonic() - runner.start
     later = AUTO_ORDER[AUTO_ORDER.index(runner.engine.name) + 1:] if runner.engine.name in AUTO_ORDER else ()
     for name in later:
