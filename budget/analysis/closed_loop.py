@@ -59,7 +59,8 @@ class ClosedLoop:
         achieved: the infidelity with every knob at its reported tolerance (random: mean over
             sign patterns; worst: the worst pattern found).
         std_error: standard error of ``achieved`` when sign patterns were sampled (else 0).
-        first_order_achieved: the same quantity at the leading-order tolerances.
+        before_refinement: the same quantity before the common scaling (at the leading-order
+            tolerances, knobs without a first-order effect at their own second-order ones).
         scale: the common factor applied to the leading-order tolerances.
         floor: the engine's infidelity with every coherent knob at zero.
         method: how the sign patterns were covered, in plain words.
@@ -75,7 +76,7 @@ class ClosedLoop:
     target: float
     achieved: float
     std_error: float
-    first_order_achieved: float
+    before_refinement: float
     scale: float
     floor: float
     method: str
@@ -147,16 +148,7 @@ def close_loop(
                            floor, None))
         share = (report.target - floor) / max(1, len(rows))
         per_run = run_seconds(runner.engine, circuit, report.metric) or measured or 1e-4
-        for r_i, row in enumerate(rows):  # each knob without a first-order effect on its own
-            idx = [i for i, (_, ri) in enumerate(sites) if ri == r_i]
-            if row.order == "none":
-                same = np.array([[1.0] * len(idx), [-1.0] * len(idx)])
-                t0[idx] = _second_order(runner, zero, [keys[i] for i in idx], floor, share, report.assume, same)
-        idle = [i for i, (_, ri) in enumerate(sites) if rows[ri].order == "none" and math.isinf(t0[i])]
-        if len(idle) > 1:  # together (an echo: x and y errors cancel alone, not in pairs)
-            n_rows = len({sites[i][1] for i in idle})
-            t0[idle] = _second_order(runner, zero, [keys[i] for i in idle], floor, share * n_rows, report.assume,
-                                     joint_signs(len(idle), seed))
+        _second_order_tolerances(runner, rows, [ri for _, ri in sites], keys, t0, floor, share, report.assume, seed)
         live = np.isfinite(t0) & (t0 > 0)
         live_keys = [k for k, on in zip(keys, live) if on]
         # knobs with no effect found stay at today's value (they combine with the others at higher order)
@@ -219,6 +211,24 @@ def close_loop(
     if converged and loop.engine == "exact":  # exact at the tolerances: the leading-order caveats are settled
         out = replace(out, warnings=tuple(w for w in out.warnings if not w.startswith(LEADING_ORDER_ONLY)))
     return out
+
+
+def _second_order_tolerances(runner: Callable, rows: list, row_of: list[int], keys: list, t0: np.ndarray, floor: float,
+                             share: float, assume: str, seed: int) -> None:
+    """Fill ``t0`` (in place) for the sites of rows without a first-order effect: each row on its
+    own (all its sites with one sign), then the rows still without an effect together (knobs that
+    cancel only each other, as x and y in an XY4 echo) over :func:`joint_signs`."""
+    zero = {k: 0.0 for k in keys}
+    for r_i, row in enumerate(rows):
+        idx = [i for i, ri in enumerate(row_of) if ri == r_i]
+        if row.order == "none":
+            same = np.array([[1.0] * len(idx), [-1.0] * len(idx)])
+            t0[idx] = _second_order(runner, zero, [keys[i] for i in idx], floor, share, assume, same)
+    idle = [i for i, ri in enumerate(row_of) if rows[ri].order == "none" and math.isinf(t0[i])]
+    if len(idle) > 1:
+        n_rows = len({row_of[i] for i in idle})
+        t0[idle] = _second_order(runner, zero, [keys[i] for i in idle], floor, share * n_rows, assume,
+                                 joint_signs(len(idle), seed))
 
 
 def _second_order(runner: Callable, zero: dict, keys: list, floor: float, share: float, assume: str,
