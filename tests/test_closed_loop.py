@@ -244,3 +244,21 @@ def test_context_knobs_are_checked_in_closed_loop_too():
     model["couplings"]["q[0],q[1]"]["zz_khz"] = sign * row.tolerance_rad * 1000 / (2 * math.pi)
     value = cirq_infidelity(attach(read_circuit(str(root / "pair_memory_zz.qasm")), ErrorModel.from_dict(model)), "process")
     assert 0.9 * 0.05 <= value <= 1.05 * 0.05
+
+
+def test_a_first_order_engine_that_sees_no_effect_says_what_it_cannot_see():
+    """When the loop runs on an engine other than exact (here forced: clifford), knobs whose first
+    order cancels and that it finds no effect of are flagged, not passed as free."""
+    from budget.analysis.closed_loop import close_loop
+    from budget.analysis.tolerances import tolerances
+
+    layers = tuple(Layer((Operation(g, (0,)),)) for g in ("x", "y", "x", "y"))
+    circuit = StructuredCircuit(("q[0]",), (Repeat(layers, 300),))
+    noisy = attach(circuit, ErrorModel.from_dict({"gates": {"x": {"overrotation": 0.02}, "y": {"overrotation": 0.02}}}),
+                   family_by="pair")
+    qf = quadratic_form(noisy, "process", engine="clifford")
+    report = close_loop(tolerances(qf, 0.002), noisy, qf, engine="clifford")
+    if report.closed_loop.engine == "clifford" and all(r.order == "none" for r in report.rows):
+        assert any("would be missed" in n for n in report.closed_loop.notes)
+    else:  # a clifford engine that carries the second order finds the echo's build-up instead
+        assert all(r.order == "second" for r in report.rows)

@@ -199,6 +199,12 @@ def close_loop(
     t = np.where(live, np.minimum(scale * np.where(live, t0, 0.0), math.pi), t0)
     if runner.last_warnings and runner.engine.name != "exact":
         notes += [f"{runner.engine.name} at the tolerances: {w}" for w in runner.last_warnings]
+    unseen = sorted({f"{rows[ri].family}.{rows[ri].knob}" for (_, ri), t_i in zip(sites, t0)
+                     if rows[ri].order == "none" and math.isinf(t_i)})
+    if unseen and runner.engine.name != "exact":
+        notes.append(f"{', '.join(unseen)}: no first-order effect, and the {runner.engine.name} engine (the exact one "
+                     "does not fit) found none either; an effect of higher order than it computes, such as an echo's "
+                     "second-order build-up, would be missed: check a smaller instance with the exact engine")
     if not converged:
         why = ("no knob with an effect was found" if not np.any(live) else
                "every tolerance is at its π cap" if np.all(t[live] >= math.pi) else "the refinement did not settle")
