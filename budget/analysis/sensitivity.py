@@ -26,7 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from budget.engines.base import QuadraticForm
-from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
+from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyItem, NoisyLayer, NoisyRepeat
 
 FORM_ENGINES = ("clifford", "generators")
 """Engines that build the quadratic form, in the order ``"auto"`` tries them (clifford first: any
@@ -212,8 +212,12 @@ def per_operation(circuit: NoisyCircuit) -> NoisyCircuit:
             if isinstance(it, NoisyLayer):
                 ops = tuple(dataclasses.replace(n, family=name(n)) for n in it.operations)
                 out.append(dataclasses.replace(it, operations=ops))
-            else:
+            elif isinstance(it, NoisyRepeat):
                 out.append(NoisyRepeat(walk(it.body), it.count))
+            elif isinstance(it, NoisyIf):
+                out.append(NoisyIf(it.item, walk(it.then), walk(it.orelse)))
+            else:
+                out.append(it)  # measurement and reset: no gate operation to name
         return tuple(out)
 
     return dataclasses.replace(circuit, body=walk(circuit.body))
