@@ -46,15 +46,18 @@ def gate_circuit(op: Operation) -> stim.Circuit:
     return tab.to_circuit("elimination")
 
 
-def to_stim(circuit: NoisyCircuit, noise: Noise | None = None) -> stim.Circuit:
+def to_stim(circuit: NoisyCircuit, noise: Noise | None = None,
+            readout: Callable[[NoisyMeasure], bool] | None = None) -> stim.Circuit:
     """The stim circuit of ``circuit`` (Clifford gates, measurements, resets, Pauli feed-forward on
-    one bit), repeats kept as REPEAT blocks; ``noise`` appends each item's noise (None: ideal).
+    one bit), repeats kept as REPEAT blocks; ``noise`` appends each item's noise (None: ideal);
+    measurements for which ``readout`` says True flip their recorded bit with the readout error
+    (stim's ``M(p)``: the bit, not the qubit).
 
     Raises:
         InputError: a non-Clifford gate or feed-forward stim cannot express (``file:line``).
     """
     out = stim.Circuit()
-    _Writer(circuit.source, noise).items(out, circuit.body, {}, [0], 0)
+    _Writer(circuit.source, noise, readout).items(out, circuit.body, {}, [0], 0)
     return out
 
 
@@ -92,9 +95,10 @@ def _measures(it) -> bool:
 
 
 class _Writer:
-    def __init__(self, source: str, noise: Noise | None):
+    def __init__(self, source: str, noise: Noise | None, readout):
         self.source = source
         self.noise = noise
+        self.readout = readout
         self.cache: dict[tuple, stim.Circuit] = {}
 
     def fail(self, line: int | None, what: str) -> InputError:
@@ -124,7 +128,11 @@ class _Writer:
             elif isinstance(it, NoisyMeasure):
                 if self.noise is not None:
                     self.noise(out, it)
-                out.append("M", list(it.item.qubits))
+                if self.readout is not None and self.readout(it):
+                    for q, e in zip(it.item.qubits, it.readout_error):
+                        out.append("M", [q], [e] if e else [])
+                else:
+                    out.append("M", list(it.item.qubits))
                 for b in it.item.bits:
                     written[b] = count[0]
                     count[0] += 1
