@@ -135,10 +135,9 @@ class _Sim:
 
     def merge(self) -> None:
         uniq, inv = np.unique(self.keys, return_inverse=True)
-        if len(uniq) < len(self.keys):
-            merged = np.zeros((len(uniq),) + self.rho.shape[1:], dtype=complex)
-            np.add.at(merged, inv, self.rho)
-            self.rho = merged
+        merged = np.zeros((len(uniq),) + self.rho.shape[1:], dtype=complex)
+        np.add.at(merged, inv, self.rho)
+        self.rho = merged
         self.keys = uniq
         if self.rho.nbytes > MAX_BYTES:
             raise MemoryError(f"{len(self.keys)} branches of a {self.n}-qubit density matrix exceed {MAX_BYTES} bytes")
