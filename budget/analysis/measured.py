@@ -29,7 +29,7 @@ import numpy as np
 from budget.analysis.detectors import Checks, infer_checks
 from budget.analysis.result import BudgetResult, DetectorBudget, FamilyShare, ReadoutSummary, RecordBit
 from budget.circuit.ir import StructuredCircuit
-from budget.engines._branches import MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
+from budget.engines._branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
 from budget.engines._stim import record_qubits
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.fidelity import naive_infidelity
@@ -85,6 +85,40 @@ def analyze_measured(
                                                         "random_bits": checks.random_rank})
 
 
+def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> tuple[float, float, str]:
+    """(actual, twirled, engine name) of the detector or record metric, without shares (depth
+    curves). Twirled: the frame value for detectors, the exact value of the twirled circuit for the
+    record."""
+    if metric == "record":
+        qubits = record_qubits(noisy)
+        plan = Plan((), (), True, tuple(condition_bits(noisy.body)), len(qubits))
+        reason = exact_refusal(noisy, plan)
+        if reason is not None or engine == "clifford":
+            raise TooLargeError(f"{noisy.source}: record metric: {reason or 'the exact engine computes it'}")
+        from budget.analysis.twirl import twirled_circuit
+
+        ideal = simulate(strip_errors(noisy), plan).record
+        return (record_infidelity(ideal, simulate(noisy, plan).record),
+                record_infidelity(ideal, simulate(twirled_circuit(noisy), plan).record), "exact")
+    from budget.engines._frames import frames
+
+    checks = _checks(noisy, None)
+    plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
+                False, tuple(condition_bits(noisy.body)), checks.num_measurements)
+    fo = frames(noisy, plan.detectors)
+    use_exact = engine == "exact" or (engine == "auto" and exact_refusal(noisy, plan) is None)
+    if use_exact:
+        return simulate(noisy, plan).any_fires, fo.any_fires, "exact"
+    return fo.any_fires, fo.any_fires, "clifford"
+
+
+def strip_errors(noisy: NoisyCircuit) -> NoisyCircuit:
+    """The ideal circuit: every family's errors removed."""
+    for fam in _families(noisy):
+        noisy = without_family(noisy, fam)
+    return noisy
+
+
 def _checks(noisy: NoisyCircuit, logical) -> Checks:
     try:
         return infer_checks(noisy, observables=logical)
@@ -101,13 +135,14 @@ def exact_refusal(noisy: NoisyCircuit, plan: Plan) -> str | None:
     bits = key_bits_needed(plan)
     if bits > MAX_KEY_BITS:
         return f"{bits} classical bits tracked at once exceed the exact engine's {MAX_KEY_BITS}"
+    size = 2**bits * 4**noisy.num_qubits * 16
+    if size > MAX_BYTES:
+        return (f"2^{bits} branches of a {noisy.num_qubits}-qubit density matrix need {size / 2**30:.1f} GiB, "
+                f"above the exact engine's {MAX_BYTES / 2**30:.0f} GiB")
     return None
 
 
 def _record(noisy: NoisyCircuit, structured: StructuredCircuit, engine: str, cycles: int) -> BudgetResult:
-    from budget.errors.attach import attach
-    from budget.errors.model import ErrorModel
-
     if engine == "clifford":
         raise InputError("engine = 'clifford': the record metric runs on the exact engine")
     qubits = record_qubits(noisy)
@@ -115,7 +150,7 @@ def _record(noisy: NoisyCircuit, structured: StructuredCircuit, engine: str, cyc
     reason = exact_refusal(noisy, plan)
     if reason is not None:
         raise TooLargeError(f"{noisy.source}: record metric: {reason} (no other engine computes the record)")
-    ideal = simulate(attach(structured, ErrorModel.from_dict({}), check_qubits=False), plan).record
+    ideal = simulate(strip_errors(noisy), plan).record
     actual = simulate(noisy, plan).record
     total = record_infidelity(ideal, actual)
     bits = []

@@ -117,21 +117,21 @@ class _Sim:
             self.last_of.setdefault(max(ms), []).append(k)
         self.det_prob = [0.0] * len(plan.detectors)
         self.kraus_cache: dict[int, list[np.ndarray]] = {}
+        self.superops: dict[object, np.ndarray] = {}
 
     # -- linear algebra on the stack -------------------------------------------------------------
-    def apply(self, kraus: list[np.ndarray], qubits: tuple[int, ...], rho: np.ndarray | None = None) -> np.ndarray:
-        """Σ_K K ρ K† on ``qubits`` for every branch."""
-        rho = self.rho if rho is None else rho
-        n, k = self.n, len(qubits)
-        rows = [1 + q for q in qubits]
-        cols = [1 + n + q for q in qubits]
-        out = np.zeros_like(rho)
-        for K in kraus:
-            t = K.reshape((2,) * (2 * k))
-            a = np.moveaxis(np.tensordot(t, rho, axes=(list(range(k, 2 * k)), rows)), list(range(k)), rows)
-            a = np.moveaxis(np.tensordot(t.conj(), a, axes=(list(range(k, 2 * k)), cols)), list(range(k)), cols)
-            out += a
-        return out
+    def apply(self, kraus: list[np.ndarray], qubits: tuple[int, ...], key: object = None) -> np.ndarray:
+        """Σ_K K ρ K† on ``qubits`` for every branch, as one contraction with the superoperator
+        S = Σ_K K ⊗ K̄ (cached under ``key``)."""
+        k = len(qubits)
+        sup = self.superops.get(key) if key is not None else None
+        if sup is None:
+            sup = sum(np.kron(K, K.conj()) for K in kraus).reshape((2,) * (4 * k))
+            if key is not None:
+                self.superops[key] = sup
+        axes = [1 + q for q in qubits] + [1 + self.n + q for q in qubits]
+        out = np.tensordot(sup, self.rho, axes=(list(range(2 * k, 4 * k)), axes))
+        return np.moveaxis(out, list(range(2 * k)), axes)
 
     def merge(self) -> None:
         uniq, inv = np.unique(self.keys, return_inverse=True)
@@ -161,9 +161,9 @@ class _Sim:
             elif isinstance(it, NoisyReset):
                 self.idle(it.idle)
                 for q, e in zip(it.item.qubits, it.reset_error):
-                    self.rho = self.apply(list(_RESET), (q,))
+                    self.rho = self.apply(list(_RESET), (q,), "reset")
                     if e:
-                        self.rho = self.apply([np.sqrt(1 - e) * np.eye(2), np.sqrt(e) * _X], (q,))
+                        self.rho = self.apply([np.sqrt(1 - e) * np.eye(2), np.sqrt(e) * _X], (q,), ("flip", e))
             elif isinstance(it, NoisyRepeat):
                 for _ in range(it.count):
                     self.items(it.body)
@@ -178,13 +178,13 @@ class _Sim:
             if key not in self.kraus_cache:
                 u = nop.op.unitary()
                 self.kraus_cache[key] = [k @ u for k in error_channel_kraus(nop)]
-            self.rho = self.apply(self.kraus_cache[key], nop.qubits)
+            self.rho = self.apply(self.kraus_cache[key], nop.qubits, key)
         self.idle(layer.idle)
 
     def idle(self, relax) -> None:
         for r in relax:
             if not r.is_trivial:
-                self.rho = self.apply(r.kraus(), (r.qubit,))
+                self.rho = self.apply(r.kraus(), (r.qubit,), id(r))
 
     def measure(self, q: int, bit: str, e: float) -> None:
         parts, keys = [], []
@@ -199,7 +199,7 @@ class _Sim:
             flip |= 1 << (len(self.plan.condition_bits) + 1 + j)
         clear = (1 << self.cond_slot[bit]) if bit in self.cond_slot else 0
         for b in (0, 1):
-            projected = self.apply([_P[b]], (q,))
+            projected = self.apply([_P[b]], (q,), ("project", b))
             for r, w in ((b, 1 - e), (1 - b, e)):
                 if w == 0:
                     continue
