@@ -43,6 +43,12 @@ def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto") 
     from budget.engines import get_engine
     from budget.problems import InputError, TooLargeError
 
+    if metric == "detectors":
+        from budget.analysis.measured_form import detector_quadratic_form
+
+        if engine not in ("auto", "exact", "clifford"):
+            raise InputError(f"engine = {engine!r}: the detectors metric's form comes from exact or clifford (or auto)")
+        return detector_quadratic_form(circuit, engine=engine)
     if engine != "auto" and engine not in FORM_ENGINES:
         raise InputError(f"engine = {engine!r}: quadratic forms come from {', '.join(FORM_ENGINES)} (or auto)")
     reasons = []

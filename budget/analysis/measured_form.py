@@ -1,0 +1,106 @@
+"""The quadratic form of the detector metric in the coherent knobs, for tolerances and cost.
+
+P(some detector fires) ≈ δᵀ A δ + s over the (family, knob) labels of
+:func:`budget.engines._knobs.knob_grouping` (each operation's Hamiltonian is Σ_knob δ_knob K_knob to
+first order; Blume-Kohout et al., PRX Quantum 3, 020335 (2022)). Here A is read by central second
+differences of the metric itself, with every coherent error rebuilt as exp(-i Σ δ K) at the probe
+values: s = f(0), A_ii = (f(h e_i) - s)/h², A_ij = (f(h e_i + h e_j) - f(h e_i) - f(h e_j) + s)/(2h²)
+(exact for a quadratic f; the step h = 1e-3 rad keeps the quartic terms far below the quadratic
+ones; the matrix is then projected on the positive semidefinite cone to remove rounding noise).
+f is the exact engine when it fits (coherent terms add within a round), else the Pauli-frame
+engine (twirled). Cost: 1 + L + L(L-1)/2 runs for L knobs.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+from scipy.linalg import expm
+
+from budget.engines._knobs import _knob_terms, knob_grouping
+from budget.engines.base import QuadraticForm
+from budget.errors.fidelity import pauli_matrix
+from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyRepeat
+from budget.problems import TooLargeError
+
+STEP_RAD = 1e-3
+MAX_KNOBS = 24
+"""Largest number of (family, knob) labels (the runs grow as L²/2)."""
+
+
+def with_knobs(noisy: NoisyCircuit, values: dict[tuple[str, str], float], scale: dict[tuple[str, str], float]) -> NoisyCircuit:
+    """The circuit with every coherent error rebuilt from the knob values (per label)."""
+    memo: dict[int, object] = {}
+
+    def op(nop):
+        terms = _knob_terms(nop)
+        if not terms:
+            return nop
+        ham: dict[str, float] = {}
+        for knob, gen, v in terms:
+            key = (nop.family, knob)
+            ratio = v / scale[key] if scale[key] else 1.0
+            for p, c in gen.items():
+                ham[p] = ham.get(p, 0.0) + values.get(key, 0.0) * ratio * c
+        k = len(nop.qubits)
+        h = sum((c * pauli_matrix(p) for p, c in ham.items()), np.zeros((2**k, 2**k), complex))
+        return dataclasses.replace(nop, coherent=expm(-1j * h), hamiltonian={p: c for p, c in ham.items() if c})
+
+    def items(its):
+        out = []
+        for it in its:
+            if id(it) not in memo:
+                if isinstance(it, NoisyLayer):
+                    memo[id(it)] = dataclasses.replace(it, operations=tuple(op(n) for n in it.operations))
+                elif isinstance(it, NoisyRepeat):
+                    memo[id(it)] = NoisyRepeat(items(it.body), it.count)
+                elif isinstance(it, NoisyIf):
+                    memo[id(it)] = NoisyIf(it.item, items(it.then), items(it.orelse))
+                else:
+                    memo[id(it)] = it
+            out.append(memo[id(it)])
+        return tuple(out)
+
+    return dataclasses.replace(noisy, body=items(noisy.body))
+
+
+def detector_quadratic_form(noisy: NoisyCircuit, *, engine: str = "auto") -> QuadraticForm:
+    """e ≈ δᵀ A δ + s for e = P(some detector fires) (see the module docstring)."""
+    from budget.analysis.measured import measured_values
+
+    _, scale = knob_grouping(noisy)
+    labels = tuple(scale)
+    if len(labels) > MAX_KNOBS:
+        raise TooLargeError(f"{noisy.source}: {len(labels)} coherent knobs: the detector metric's quadratic form "
+                            f"takes up to {MAX_KNOBS} (use family_by gate)")
+
+    def f(vec: dict) -> float:
+        return measured_values(with_knobs(noisy, vec, scale), "detectors", engine)[0]
+
+    h = STEP_RAD
+    floor = f({})
+    single = [f({lab: h}) for lab in labels]
+    a = np.zeros((len(labels), len(labels)))
+    for i in range(len(labels)):
+        a[i, i] = (single[i] - floor) / h**2
+        for j in range(i):
+            a[i, j] = a[j, i] = (f({labels[i]: h, labels[j]: h}) - single[i] - single[j] + floor) / (2 * h**2)
+    # rounding noise of the differences (about 1e-16 / h² per rad²) can leave tiny negative
+    # eigenvalues where a knob does not act: keep the nearest positive semidefinite matrix
+    w, v = np.linalg.eigh(a)
+    a = (v * np.clip(w, 0.0, None)) @ v.T
+    a = np.where(np.abs(a) < 1e-9 * max(1.0, float(np.abs(a).max(initial=0.0))), 0.0, a)
+    return QuadraticForm(labels, a, np.array([scale[lab] for lab in labels], dtype=float), float(floor),
+                         _floor_sources(noisy, floor))
+
+
+def _floor_sources(noisy: NoisyCircuit, floor: float) -> dict[str, float]:
+    from budget.analysis.detectors import infer_checks
+    from budget.analysis.measured import _scaled
+    from budget.engines._frames import frames
+
+    zero = with_knobs(noisy, {}, knob_grouping(noisy)[1])
+    checks = infer_checks(zero)
+    parts = frames(zero, tuple(d.measurements for d in checks.detectors)).any_families
+    return _scaled(parts, floor)
