@@ -1,0 +1,78 @@
+"""depth, tolerances, cost and report on circuits with mid-circuit measurement (issue 13).
+
+Reference for the quadratic form: first principles (derived in the test). The other checks tie
+the commands to the detector metric already checked against cirq and stim
+(tests/test_measured_exact.py, tests/test_measured_frames.py).
+"""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from budget.analysis.depth import depth_curve
+from budget.analysis.measured import analyze_measured
+from budget.analysis.sensitivity import quadratic_form
+from budget.circuit.qasm import parse_qasm
+from budget.errors.attach import attach
+from budget.errors.model import ErrorModel
+from budget.report.content import gather
+from budget.report.render import report_files
+
+REPETITION = """OPENQASM 3;
+include "stdgates.inc";
+qubit[5] q;
+bit[2] a;
+bit[3] d;
+for int r in [0:{last}] {{
+  x q[0]; x q[2]; x q[4];
+  x q[0]; x q[2]; x q[4];
+  cx q[0], q[1]; cx q[2], q[3];
+  cx q[2], q[1]; cx q[4], q[3];
+  a[0] = measure q[1]; a[1] = measure q[3];
+  reset q[1]; reset q[3];
+}}
+d[0] = measure q[0]; d[1] = measure q[2]; d[2] = measure q[4];
+"""
+
+
+def test_detector_quadratic_form_from_first_principles():
+    """Only an over-rotation ε per x: per round each of the 3 data qubits flips with sin²ε ≈ ε²
+    (the x pair rotates by 2ε), and any flip fires a detector of that round; to leading order
+    P(some detector fires) = 3 R ε², so A_xx = 3 R per rad² and there is no floor."""
+    rounds = 3
+    circuit = parse_qasm(REPETITION.format(last=rounds - 1))
+    noisy = attach(circuit, ErrorModel.from_dict({"gates": {"x": {"overrotation": 0.01}}}))
+    qf = quadratic_form(noisy, "detectors")
+    assert qf.labels == (("x", "overrotation"),)
+    assert qf.matrix[0, 0] == pytest.approx(3 * rounds, rel=2e-3)
+    assert abs(qf.floor) < 1e-12 and qf.values_rad[0] == pytest.approx(0.01)
+    exact = analyze_measured(noisy, circuit, metric="detectors").actual_infidelity
+    assert exact == pytest.approx(qf.matrix[0, 0] * 0.01**2, rel=2e-2)  # leading order at ε = 0.01
+
+
+def test_depth_curve_of_detectors():
+    circuit = parse_qasm(REPETITION.format(last=1))
+    model = ErrorModel.from_dict({"qubits": {"readout_error": 0.01}, "gates": {"x": {"overrotation": 0.02}}})
+    block = attach(circuit, model)
+    curve = depth_curve(block, max_cycles=3, points=3, metric="detectors")
+    assert curve.repetitions == (1, 2, 3)
+    one = analyze_measured(block, circuit, metric="detectors").actual_infidelity
+    assert curve.structured[0] == pytest.approx(one, rel=1e-12)
+    assert list(curve.structured) == sorted(curve.structured)  # more rounds, more chances to fire
+    # naive: 1 - (1 - e1)^N with e1 the one-round fidelity product
+    e1 = curve.naive[0]
+    assert curve.naive[2] == pytest.approx(1 - (1 - e1) ** 3)
+
+
+def test_report_has_the_detector_map(tmp_path):
+    path = tmp_path / "rep.qasm"
+    path.write_text(REPETITION.format(last=1))
+    model = {"qubits": {"readout_error": 0.01, "reset_error": 0.002},
+             "gates": {"x": {"overrotation": 0.02, "duration_ns": 20.0}, "cx": {"avg_infidelity": 0.003}}}
+    data = gather(str(path), model, target=0.2, metric="detectors", max_cycles=2, points=2)
+    files = report_files(data)
+    assert "detector-map.svg" in files and "Which checks fire" in files["report.md"]
+    assert data.tolerances is not None
+    assert math.isclose(sum(f.share for f in data.result.families), data.result.actual_infidelity, rel_tol=1e-9)
