@@ -42,24 +42,29 @@ class FrameResult:
     any_families: dict[str, float]
 
 
+_PAULI_STACK = {k: np.array([pauli_matrix(lab) for lab in labels]) for k, labels in _LABELS.items()}
+
+
 def twirl_channel(kraus: list[np.ndarray]) -> dict[str, float]:
     """Pauli probabilities p_P = Σ_K |Tr(P K)/d|² of a channel (identity excluded)."""
     d = kraus[0].shape[0]
     k = int(np.log2(d))
-    return {lab: float(sum(abs(np.trace(pauli_matrix(lab) @ K) / d) ** 2 for K in kraus)) for lab in _LABELS[k]}
+    traces = np.einsum("pij,kji->pk", _PAULI_STACK[k], np.asarray(kraus)) / d
+    probs = np.sum(np.abs(traces) ** 2, axis=1)
+    return {lab: float(p) for lab, p in zip(_LABELS[k], probs)}
 
 
 class _Noise:
     """Writes the twirled noise of the chosen families into the stim circuit."""
 
-    def __init__(self, families: set[str] | None):
+    def __init__(self, families: set[str] | None, cache: dict[int, dict[str, float]]):
         self.families = families
-        self.cache: dict[int, dict[str, float]] = {}
+        self.cache = cache
 
     def wants(self, family: str) -> bool:
         return self.families is None or family in self.families
 
-    def __call__(self, out: stim.Circuit, item) -> None:
+    def __call__(self, out, item) -> None:
         if isinstance(item, NoisyLayer):
             for nop in item.operations:
                 if not self.wants(nop.family) or not (nop.has_coherent or nop.has_incoherent):
@@ -101,12 +106,12 @@ def families_of(circuit: NoisyCircuit) -> list[str]:
     return list(dict.fromkeys(out))
 
 
-def _mechanisms(circuit: NoisyCircuit, detectors, families: set[str] | None) -> list[tuple[float, tuple[int, ...]]]:
-    noise = _Noise(families)
+def _mechanisms(circuit: NoisyCircuit, detectors, families: set[str] | None,
+                cache: dict) -> list[tuple[float, tuple[int, ...]]]:
+    noise = _Noise(families, cache)
     sc = to_stim(circuit, noise, readout=lambda item: noise.wants(item.family))
     m = sc.num_measurements
-    for ms in detectors:
-        sc.append("DETECTOR", [stim.target_rec(i - m) for i in ms])
+    sc += stim.Circuit("\n".join(f"DETECTOR {' '.join(f'rec[{i - m}]' for i in ms)}" for ms in detectors))
     dem = sc.detector_error_model(approximate_disjoint_errors=True, flatten_loops=True, allow_gauge_detectors=False)
     out = []
     for inst in dem.flattened():
@@ -121,7 +126,8 @@ def frames(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...]) -> Fra
     n = len(detectors)
     log_keep = np.zeros(n)
     any_keep = 0.0
-    for p, dets in _mechanisms(circuit, detectors, None):
+    cache: dict[int, dict[str, float]] = {}
+    for p, dets in _mechanisms(circuit, detectors, None, cache):
         for d in dets:
             log_keep[d] += np.log1p(-2 * p) if p < 0.5 else -np.inf
         if dets:
@@ -134,7 +140,7 @@ def frames(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...]) -> Fra
     for fam in names:
         row = np.zeros(n)
         total = 0.0
-        for p, dets in _mechanisms(circuit, detectors, {fam}):
+        for p, dets in _mechanisms(circuit, detectors, {fam}, cache):
             for d in dets:
                 row[d] += p
             total += p if dets else 0.0

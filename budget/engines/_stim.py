@@ -27,7 +27,7 @@ from budget.problems import InputError, place
 _PAULIS = {"x": "X", "y": "Y", "z": "Z", "id": "I"}
 
 
-Noise = Callable[[stim.Circuit, object], None]
+Noise = Callable[["Text", object], None]
 """Called with the stim circuit being written and a noisy item (after a gate layer, before a
 measurement, after a reset); appends the item's noise instructions."""
 
@@ -56,9 +56,20 @@ def to_stim(circuit: NoisyCircuit, noise: Noise | None = None,
     Raises:
         InputError: a non-Clifford gate or feed-forward stim cannot express (``file:line``).
     """
-    out = stim.Circuit()
+    out = Text()
     _Writer(circuit.source, noise, readout).items(out, circuit.body, {}, [0], 0)
-    return out
+    return stim.Circuit("\n".join(out.lines))
+
+
+class Text:
+    """stim circuit text being written (one parse at the end is far faster than many appends)."""
+
+    def __init__(self) -> None:
+        self.lines: list[str] = []
+
+    def append(self, name: str, targets, args=()) -> None:
+        head = f"{name}({','.join(repr(float(a)) for a in args)})" if len(args) else name
+        self.lines.append(f"{head} {' '.join(str(t) for t in targets)}")
 
 
 def record_qubits(circuit: NoisyCircuit | StructuredCircuit) -> list[int]:
@@ -99,24 +110,24 @@ class _Writer:
         self.source = source
         self.noise = noise
         self.readout = readout
-        self.cache: dict[tuple, stim.Circuit] = {}
+        self.cache: dict[tuple, list[tuple[str, list[int], list[float]]]] = {}
 
     def fail(self, line: int | None, what: str) -> InputError:
         return InputError(f"{place(self.source, line)}: {what}")
 
-    def op(self, out: stim.Circuit, op: Operation) -> None:
+    def op(self, out: Text, op: Operation) -> None:
         key = (op.gate, op.params, None if op.matrix is None else id(op.matrix))
         if key not in self.cache:
             try:
-                self.cache[key] = gate_circuit(op)
+                self.cache[key] = [(inst.name, [t.value for t in inst.targets_copy()], inst.gate_args_copy())
+                                   for inst in gate_circuit(op)]
             except ValueError:
                 raise self.fail(op.line, f"gate {op.gate}{list(op.params) or ''} is not Clifford: the "
                                 "stabilizer path needs Clifford gates (use the exact engine)") from None
-        for inst in self.cache[key]:
-            targets = [op.qubits[t.value] for t in inst.targets_copy()]
-            out.append(inst.name, targets, inst.gate_args_copy())
+        for name, targets, args in self.cache[key]:
+            out.append(name, [op.qubits[t] for t in targets], args)
 
-    def items(self, out: stim.Circuit, items, written: dict[str, int], count: list[int], start: int) -> None:
+    def items(self, out: Text, items, written: dict[str, int], count: list[int], start: int) -> None:
         """Write items; ``written``: bit -> record index of its latest write; ``count``: [records so
         far]; ``start``: record index where the current iteration of the innermost repeat began."""
         for it in items:
@@ -143,10 +154,15 @@ class _Writer:
             elif isinstance(it, NoisyRepeat):
                 first = count[0]
                 inner = dict(written)
-                body = stim.Circuit()
+                body = Text()
                 self.items(body, it.body, inner, count, first)
                 per = count[0] - first
-                out.append(stim.CircuitRepeatBlock(it.count, body) if it.count > 1 else body)
+                if it.count > 1:
+                    out.lines.append(f"REPEAT {it.count} {{")
+                    out.lines.extend(body.lines)
+                    out.lines.append("}")
+                else:
+                    out.lines.extend(body.lines)
                 count[0] = first + it.count * per
                 for b, i in inner.items():
                     if i >= first:
@@ -157,7 +173,7 @@ class _Writer:
                 inner = getattr(it, "item", it)
                 raise self.fail(getattr(inner, "line", None), f"{item_kind(inner)} is not supported by the stabilizer path")
 
-    def feed_forward(self, out: stim.Circuit, noisy: NoisyIf, written: dict[str, int], now: int, start: int) -> None:
+    def feed_forward(self, out: Text, noisy: NoisyIf, written: dict[str, int], now: int, start: int) -> None:
         """Pauli feed-forward on one bit (errors of the gates under the if are not modelled here)."""
         it = noisy.item
         if len(it.bits) != 1:
@@ -180,7 +196,7 @@ class _Writer:
         for q in sorted(set(base) | set(other)):
             p = _product(base.get(q, "I"), other.get(q, "I"))
             if p != "I":
-                out.append(f"C{p}", [stim.target_rec(-lookback), q])
+                out.append(f"C{p}", [f"rec[{-lookback}]", q])
 
     def paulis(self, items, line) -> dict[int, str]:
         out: dict[int, str] = {}
@@ -196,7 +212,7 @@ class _Writer:
         return {q: p for q, p in out.items() if p != "I"}
 
     @staticmethod
-    def apply_paulis(out: stim.Circuit, paulis: dict[int, str]) -> None:
+    def apply_paulis(out: Text, paulis: dict[int, str]) -> None:
         for q, p in sorted(paulis.items()):
             out.append(p, [q])
 
