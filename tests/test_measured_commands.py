@@ -20,21 +20,8 @@ from budget.errors.model import ErrorModel
 from budget.report.content import gather
 from budget.report.render import report_files
 
-REPETITION = """OPENQASM 3;
-include "stdgates.inc";
-qubit[5] q;
-bit[2] a;
-bit[3] d;
-for int r in [0:{last}] {{
-  x q[0]; x q[2]; x q[4];
-  x q[0]; x q[2]; x q[4];
-  cx q[0], q[1]; cx q[2], q[3];
-  cx q[2], q[1]; cx q[4], q[3];
-  a[0] = measure q[1]; a[1] = measure q[3];
-  reset q[1]; reset q[3];
-}}
-d[0] = measure q[0]; d[1] = measure q[2]; d[2] = measure q[4];
-"""
+from test_measured_frames import REPETITION
+
 
 
 def test_detector_quadratic_form_from_first_principles():

@@ -27,7 +27,8 @@ import math
 import numpy as np
 
 from budget.analysis.detectors import Checks, infer_checks
-from budget.analysis.result import BudgetResult, DetectorBudget, FamilyShare, ReadoutSummary, RecordBit
+from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit
+from budget.analysis.run import family_counts, family_table
 from budget.circuit.ir import StructuredCircuit
 from budget.engines._branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
 from budget.engines._stim import record_qubits
@@ -180,11 +181,7 @@ def _scaled(parts: dict[str, float], total: float) -> dict[str, float]:
 
 def _result(noisy, structured, metric, engine, actual, first_order, shares, cycles, warnings, twirled, *,
             detectors=(), logical=(), record_bits=(), details=None) -> BudgetResult:
-    counts = _family_counts(noisy)
-    families = tuple(
-        FamilyShare(name, counts.get(name, 0), float(shares.get(name, 0.0)))
-        for name in sorted(set(counts) | set(shares), key=lambda f: -abs(shares.get(f, 0.0)))
-    )
+    families = family_table(_family_counts(noisy), shares)
     ops, layers = structured.executed_counts()
     return BudgetResult(
         source=structured.source,
@@ -238,13 +235,8 @@ def naive_measured(noisy: NoisyCircuit) -> float:
 
 
 def _family_counts(noisy: NoisyCircuit) -> dict[str, int]:
-    counts: dict[str, int] = {}
-    for layer, mult in noisy.multiplicities():
-        for nop in layer.operations:
-            counts[nop.family] = counts.get(nop.family, 0) + mult
-        idle = sum(1 for r in layer.idle if not r.is_trivial)
-        if idle:
-            counts[IDLE] = counts.get(IDLE, 0) + idle * mult
+    """Gate and idle counts (:func:`family_counts`) plus recorded bits and resets per family."""
+    counts = family_counts(noisy)
     probes: list = []
     _walk_probes(noisy.body, 1, probes)
     for it, mult in probes:

@@ -137,11 +137,7 @@ def analyze_noisy(
             observed[label] = None
         else:
             observed[label] = float(err)
-    counts = _family_counts(noisy)
-    families = tuple(
-        FamilyShare(name, counts.get(name, 0), float(shares.get(name, 0.0)))
-        for name in sorted(set(counts) | set(shares), key=lambda f: -abs(shares.get(f, 0.0)))
-    )
+    families = family_table(family_counts(noisy), shares)
     ops, layers = structured.executed_counts()
     return BudgetResult(
         source=structured.source,
@@ -183,7 +179,16 @@ def attach_grouped(structured: StructuredCircuit, model: Any, family_by: str = "
     return attach(structured, model, family_by=family_by)
 
 
-def _family_counts(noisy: NoisyCircuit) -> dict[str, int]:
+def family_table(counts: dict[str, int], shares: dict[str, float]) -> tuple[FamilyShare, ...]:
+    """One FamilyShare per family that runs or has a share, largest share first."""
+    return tuple(
+        FamilyShare(name, counts.get(name, 0), float(shares.get(name, 0.0)))
+        for name in sorted(set(counts) | set(shares), key=lambda f: -abs(shares.get(f, 0.0)))
+    )
+
+
+def family_counts(noisy: NoisyCircuit) -> dict[str, int]:
+    """Executed operations per family (idle slots for ``idle``), repeats counted exactly."""
     counts: dict[str, int] = {}
     for layer, mult in noisy.multiplicities():
         for nop in layer.operations:
