@@ -63,3 +63,34 @@ def test_report_has_the_detector_map(tmp_path):
     assert "detector-map.svg" in files and "Which checks fire" in files["report.md"]
     assert data.tolerances is not None
     assert math.isclose(sum(f.share for f in data.result.families), data.result.actual_infidelity, rel_tol=1e-9)
+
+
+def test_folded_repeat_equals_unrolled_frames():
+    """A repetition-code memory of 70 rounds (above the folding threshold) folded from 5 and 6
+    iterations gives the same detectors and probabilities as the frame path on the whole circuit
+    (stim's detector error model of the unrolled record)."""
+    from budget.analysis.detectors import infer_checks
+    from budget.analysis.folding import FOLD_AT, fold_target, folded_frames
+    from budget.engines._frames import frames
+
+    rounds = FOLD_AT + 6
+    circuit = parse_qasm(REPETITION.format(last=rounds - 1))
+    model = ErrorModel.from_dict({"qubits": {"readout_error": 0.01, "reset_error": 0.003, "t1_us": 50.0},
+                                  "gates": {"x": {"overrotation": 0.02, "duration_ns": 20.0},
+                                            "cx": {"avg_infidelity": 0.004, "duration_ns": 40.0},
+                                            "measure": {"duration_ns": 300.0}}})
+    noisy = attach(circuit, model)
+    index = fold_target(noisy)
+    assert index is not None
+    folded = folded_frames(noisy, index)
+    checks = infer_checks(noisy)
+    whole = frames(noisy, tuple(d.measurements for d in checks.detectors))
+    ref = {d.measurements: (d.round, p) for d, p in zip(checks.detectors, whole.detector_probability)}
+    assert len(folded.detectors) == len(ref) == 2 * rounds + 2
+    for d in folded.detectors:
+        assert ref[d.measurements][0] == d.round
+        assert d.probability == pytest.approx(ref[d.measurements][1], rel=1e-12)
+    assert folded.any_fires == pytest.approx(whole.any_fires, rel=1e-9)
+    for fam, part in whole.any_families.items():
+        assert folded.any_families[fam] == pytest.approx(part, rel=1e-6)
+    assert folded.logical == checks.observables

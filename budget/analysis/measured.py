@@ -27,6 +27,7 @@ import math
 import numpy as np
 
 from budget.analysis.detectors import Checks, infer_checks
+from budget.analysis.folding import fold_target, folded_frames, scaled
 from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit
 from budget.analysis.run import family_counts, family_table
 from budget.circuit.ir import StructuredCircuit
@@ -36,6 +37,9 @@ from budget.engines.base import MEASURED_METRICS
 from budget.errors.fidelity import naive_infidelity
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
 from budget.problems import InputError, TooLargeError
+
+TWIRL_WARNING = ("coherent errors enter as their Pauli twirl on the clifford engine: their build-up within a "
+                 "round needs the exact engine (small circuits)")
 
 __all__ = ["MEASURED_METRICS", "analyze_measured", "naive_measured", "record_infidelity", "without_family"]
 
@@ -55,6 +59,22 @@ def analyze_measured(
         raise InputError(f"engine = {engine!r}: the {metric} metric runs on the exact or clifford engine")
     if metric == "record":
         return _record(noisy, structured, engine, cycles)
+    index = fold_target(noisy) if logical is None and engine != "exact" else None
+    if index is not None:
+        folded = folded_frames(noisy, index)
+        sc = folded.small_checks
+        small_plan = Plan(tuple(d.measurements for d in sc.detectors), tuple(d.ideal for d in sc.detectors),
+                          False, tuple(condition_bits(noisy.body)), sc.num_measurements)
+        if engine == "clifford" or exact_refusal(folded.small, small_plan) is not None:
+            warnings = [f"the repeated block of {noisy.body[index].count:,} iterations is folded: its first and last "
+                        "iterations are computed, the middle ones repeat the steady state (docs/methods.md)"]
+            if _has_coherent(noisy):
+                warnings.append(TWIRL_WARNING)
+            return _result(noisy, structured, metric, "clifford", folded.any_fires, None,
+                           scaled(folded.any_families, folded.any_fires), cycles, warnings, folded.any_fires,
+                           detectors=folded.detectors, logical=folded.logical,
+                           details={"detectors": len(folded.detectors), "record_length": folded.num_measurements,
+                                    "random_bits": folded.random_rank})
     checks = _checks(noisy, logical)
     plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
                 False, tuple(condition_bits(noisy.body)), checks.num_measurements)
@@ -72,13 +92,12 @@ def analyze_measured(
     else:
         probs, any_fires, name = fo.detector_probability, fo.any_fires, "clifford"
         if _has_coherent(noisy):
-            warnings.append("coherent errors enter as their Pauli twirl on the clifford engine: their build-up "
-                            "within a round needs the exact engine (small circuits)")
+            warnings.append(TWIRL_WARNING)
     detectors = tuple(
-        DetectorBudget(d.measurements, d.round, float(p), _scaled(fams, p))
+        DetectorBudget(d.measurements, d.round, float(p), scaled(fams, p))
         for d, p, fams in zip(checks.detectors, probs, fo.detector_families)
     )
-    shares = _scaled(fo.any_families, any_fires)
+    shares = scaled(fo.any_families, any_fires)
     return _result(noisy, structured, metric, name, any_fires, None, shares, cycles, warnings,
                    fo.any_fires, detectors=detectors,
                    logical=checks.observables, details={"detectors": len(detectors),
@@ -164,7 +183,7 @@ def _record(noisy: NoisyCircuit, structured: StructuredCircuit, engine: str, cyc
     parts = {}
     for fam in _families(noisy):
         parts[fam] = total - record_infidelity(ideal, simulate(without_family(noisy, fam), plan).record)
-    return _result(noisy, structured, "record", "exact", total, None, _scaled(parts, total), cycles, [], None,
+    return _result(noisy, structured, "record", "exact", total, None, scaled(parts, total), cycles, [], None,
                    record_bits=tuple(bits), details={"record_length": len(qubits)})
 
 
@@ -172,11 +191,6 @@ def record_infidelity(ideal: dict[int, float], actual: dict[int, float]) -> floa
     """1 - (Σ_r √(p(r) q(r)))², the classical infidelity of two record distributions."""
     overlap = math.fsum(math.sqrt(max(p, 0.0) * max(actual.get(r, 0.0), 0.0)) for r, p in ideal.items())
     return float(min(max(1.0 - overlap**2, 0.0), 1.0))
-
-
-def _scaled(parts: dict[str, float], total: float) -> dict[str, float]:
-    s = sum(parts.values())
-    return {k: v / s * total for k, v in parts.items()} if s else {}
 
 
 def _result(noisy, structured, metric, engine, actual, first_order, shares, cycles, warnings, twirled, *,

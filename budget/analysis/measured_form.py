@@ -18,6 +18,9 @@ import dataclasses
 import numpy as np
 from scipy.linalg import expm
 
+from budget.analysis.detectors import infer_checks
+from budget.analysis.folding import scaled
+from budget.engines._frames import frames
 from budget.engines._knobs import _knob_terms, knob_grouping
 from budget.engines.base import QuadraticForm
 from budget.errors.fidelity import pauli_matrix
@@ -96,11 +99,7 @@ def detector_quadratic_form(noisy: NoisyCircuit, *, engine: str = "auto") -> Qua
 
 
 def _floor_sources(noisy: NoisyCircuit, floor: float) -> dict[str, float]:
-    from budget.analysis.detectors import infer_checks
-    from budget.analysis.measured import _scaled
-    from budget.engines._frames import frames
-
     zero = with_knobs(noisy, {}, knob_grouping(noisy)[1])
     checks = infer_checks(zero)
     parts = frames(zero, tuple(d.measurements for d in checks.detectors)).any_families
-    return _scaled(parts, floor)
+    return scaled(parts, floor)

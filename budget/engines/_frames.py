@@ -40,6 +40,8 @@ class FrameResult:
     detector_families: tuple[dict[str, float], ...]
     any_fires: float
     any_families: dict[str, float]
+    any_family_rates: dict[str, float]
+    """Σ p_m over each family's mechanisms that flip some detector (first order, unscaled)."""
 
 
 _PAULI_STACK = {k: np.array([pauli_matrix(lab) for lab in labels]) for k, labels in _LABELS.items()}
@@ -154,4 +156,4 @@ def frames(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...]) -> Fra
     )
     s = sum(any_parts.values())
     any_families = {f: v / s * any_fires for f, v in any_parts.items() if v > 0} if s > 0 else {}
-    return FrameResult(tuple(float(x) for x in prob), det_fam, any_fires, any_families)
+    return FrameResult(tuple(float(x) for x in prob), det_fam, any_fires, any_families, dict(any_parts))
