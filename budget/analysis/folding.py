@@ -87,7 +87,7 @@ def folded_frames(noisy: NoisyCircuit, index: int) -> Folded:
             out.append(DetectorBudget(ms, d.round + extra * per_round, p, shares))
     out.sort(key=lambda d: (max(d.measurements), d.measurements))
     logical = tuple(tuple(i + extra * per if i >= hi else i for i in o) for o in cs.observables)
-    ls, lb = math.log1p(-min(fs.any_fires, 1.0 - 1e-300)), math.log1p(-min(fb.any_fires, 1.0 - 1e-300))
+    ls, lb = fs.log_none_fires, fb.log_none_fires
     any_fires = -math.expm1(ls + extra * (lb - ls))
     rs, rb = fs.any_family_rates, fb.any_family_rates
     fams = {f: rs.get(f, 0.0) + extra * (rb.get(f, 0.0) - rs.get(f, 0.0)) for f in set(rs) | set(rb)}

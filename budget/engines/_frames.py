@@ -42,6 +42,9 @@ class FrameResult:
     any_families: dict[str, float]
     any_family_rates: dict[str, float]
     """Σ p_m over each family's mechanisms that flip some detector (first order, unscaled)."""
+    log_none_fires: float
+    """Σ log(1 - p_m) over mechanisms that flip some detector: log P(no detector fires), kept
+    apart so that it stays finite when P(some detector fires) rounds to 1."""
 
 
 _PAULI_STACK = {k: np.array([pauli_matrix(lab) for lab in labels]) for k, labels in _LABELS.items()}
@@ -156,4 +159,5 @@ def frames(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...]) -> Fra
     )
     s = sum(any_parts.values())
     any_families = {f: v / s * any_fires for f, v in any_parts.items() if v > 0} if s > 0 else {}
-    return FrameResult(tuple(float(x) for x in prob), det_fam, any_fires, any_families, dict(any_parts))
+    return FrameResult(tuple(float(x) for x in prob), det_fam, any_fires, any_families, dict(any_parts),
+                       float(any_keep))
