@@ -28,7 +28,7 @@ import numpy as np
 
 from budget.analysis.detectors import Checks, infer_checks
 from budget.analysis.folding import fold_target, folded_frames, scaled
-from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit
+from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit, circuit_fields
 from budget.analysis.run import family_counts, family_table
 from budget.circuit.ir import StructuredCircuit
 from budget.engines._branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
@@ -196,13 +196,8 @@ def record_infidelity(ideal: dict[int, float], actual: dict[int, float]) -> floa
 def _result(noisy, structured, metric, engine, actual, first_order, shares, cycles, warnings, twirled, *,
             detectors=(), logical=(), record_bits=(), details=None) -> BudgetResult:
     families = family_table(_family_counts(noisy), shares)
-    ops, layers = structured.executed_counts()
     return BudgetResult(
-        source=structured.source,
-        qubits=structured.num_qubits,
-        operations=ops,
-        layers=layers,
-        cycles=cycles,
+        **circuit_fields(structured, cycles),
         metric=metric,
         engine=engine,
         naive_infidelity=naive_measured(noisy),

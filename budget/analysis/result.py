@@ -186,6 +186,14 @@ class BudgetResult:
         return out
 
 
+def circuit_fields(structured: Any, cycles: int) -> dict[str, Any]:
+    """The BudgetResult fields that describe the circuit: source, qubits, executed operations and
+    layers (repeats and cycles included), cycles."""
+    ops, layers = structured.executed_counts()
+    return {"source": structured.source, "qubits": structured.num_qubits, "operations": ops, "layers": layers,
+            "cycles": cycles}
+
+
 CAUTION = (
     "These numbers are model predictions from the stated error model; confirm them on the device. "
     "Local lab practice decides calibration policy."

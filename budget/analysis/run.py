@@ -14,7 +14,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary
+from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary, circuit_fields
 from budget.analysis.select import choose_engine, first_order_shares
 from budget.analysis.validity import run_in_range
 from budget.circuit.ir import StructuredCircuit
@@ -138,13 +138,8 @@ def analyze_noisy(
         else:
             observed[label] = float(err)
     families = family_table(family_counts(noisy), shares)
-    ops, layers = structured.executed_counts()
     return BudgetResult(
-        source=structured.source,
-        qubits=structured.num_qubits,
-        operations=ops,
-        layers=layers,
-        cycles=cycles,
+        **circuit_fields(structured, cycles),
         metric=metric,
         engine=outcome.engine,
         naive_infidelity=float(naive),
