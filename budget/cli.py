@@ -298,10 +298,13 @@ def _decision_command(name: str, summary: str, views: Callable) -> None:
         by_operation: bool = ByOperationOpt,
         json_path: Optional[Path] = typer.Option(None, "--json", help="Write tolerances, sensitivity and calibration "
                                                  "plan as JSON (docs/tolerances.md)."),
+        detector: Optional[int] = typer.Option(None, "--detector", min=0, help="With --metric detectors: the target "
+                                               "is on this detector's firing probability (its number in the list of "
+                                               "analyze --json) instead of P(some detector fires)."),
         width: Optional[int] = WidthOpt,
     ) -> None:
         d = _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair,
-                       by_operation)
+                       by_operation, detector)
         console = make_console(width=width, stderr=to_stdout(json_path))
         for view in views(d):
             console.print(view)
@@ -326,13 +329,15 @@ _decision_command("cost", "Device time to measure the knobs that must tighten (a
                   "with drift, how often.", _cost_views)
 
 
-def _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair, by_operation):
+def _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair, by_operation,
+               detector=None):
     """Shared body of `tolerances` and `cost`: check the options, then compute."""
     from budget.analysis.decide import decide
 
     check_output_path(json_path, "--json")
     return decide(str(circuit), str(errors), target=target, cycles=cycles, metric=metric.value, assume=assume.value,
-                  allocation=allocation.value, engine=engine.value, family_by=grouping(by_pair, by_operation))
+                  allocation=allocation.value, engine=engine.value, family_by=grouping(by_pair, by_operation),
+                  detector=detector)
 
 
 def _write_decisions(json_path: Optional[Path], d) -> None:

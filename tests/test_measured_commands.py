@@ -17,6 +17,7 @@ from budget.analysis.sensitivity import quadratic_form
 from budget.circuit.qasm import parse_qasm
 from budget.errors.attach import attach
 from budget.errors.model import ErrorModel
+from budget.problems import InputError
 from budget.report.content import gather
 from budget.report.render import report_files
 
@@ -94,3 +95,18 @@ def test_folded_repeat_equals_unrolled_frames():
     for fam, part in whole.any_families.items():
         assert folded.any_families[fam] == pytest.approx(part, rel=1e-6)
     assert folded.logical == checks.observables
+
+
+def test_quadratic_form_on_one_detector():
+    """The check Z0Z2 compares two data qubits, each flipped with sin²ε ≈ ε² per round by the
+    over-rotated x pair: its detector of round 1 fires with 2ε² to leading order, so A_xx = 2."""
+    circuit = parse_qasm(REPETITION.format(last=2))
+    noisy = attach(circuit, ErrorModel.from_dict({"gates": {"x": {"overrotation": 0.01}}}))
+    listed = analyze_measured(noisy, circuit, metric="detectors").detectors
+    k = next(i for i, d in enumerate(listed) if d.round == 1)
+    qf = quadratic_form(noisy, "detectors", detector=k)
+    assert qf.matrix[0, 0] == pytest.approx(2.0, rel=2e-3)
+    with pytest.raises(InputError, match="detectors 0 to"):
+        quadratic_form(noisy, "detectors", detector=len(listed))
+    with pytest.raises(InputError, match="needs the detectors metric"):
+        quadratic_form(noisy, "process", detector=0)

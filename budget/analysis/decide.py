@@ -47,6 +47,7 @@ def decide(
     allocation: str = "equal",
     family_by: str = "gate",
     engine: str = "auto",
+    detector: int | None = None,
 ) -> Decisions:
     """Sensitivity, tolerances and calibration device time for a target infidelity.
 
@@ -60,6 +61,8 @@ def decide(
         family_by: ``"gate"``, ``"pair"`` (gate per qubit tuple) or ``"operation"`` (each operation
             as written).
         engine: ``"auto"``, ``"clifford"`` or ``"generators"`` for the quadratic form.
+        detector: with ``metric="detectors"``, the target is on this detector's firing probability
+            (its number in the detector list) instead of P(some detector fires).
     """
     from budget.analysis.run import read_circuit, read_model
     from budget.errors.attach import attach
@@ -75,7 +78,7 @@ def decide(
     noisy = attach(structured, model, family_by="pair" if family_by == "pair" else "gate")
     if family_by == "operation":
         noisy = per_operation(noisy)
-    qf = quadratic_form(noisy, metric, engine=engine)
+    qf = quadratic_form(noisy, metric, engine=engine, detector=detector)
     report = tolerances(qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles)
     plan = calibration_plan(report, find_probes(noisy), settings, model_knobs=model_knob_keys(model))
     return Decisions(structured.source, sensitivity(qf), report, plan)

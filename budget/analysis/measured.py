@@ -120,6 +120,12 @@ def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> t
         ideal = simulate(strip_errors(noisy), plan).record
         return (record_infidelity(ideal, simulate(noisy, plan).record),
                 record_infidelity(ideal, simulate(twirled_circuit(noisy), plan).record), "exact")
+    actual, twirled, _, name = detector_values(noisy, engine)
+    return actual, twirled, name
+
+
+def detector_values(noisy: NoisyCircuit, engine: str = "auto") -> tuple[float, float, tuple[float, ...], str]:
+    """(P(some detector fires), its frame value, each detector's probability, engine name)."""
     from budget.engines._frames import frames
 
     checks = _checks(noisy, None)
@@ -128,8 +134,9 @@ def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> t
     fo = frames(noisy, plan.detectors)
     use_exact = engine == "exact" or (engine == "auto" and exact_refusal(noisy, plan) is None)
     if use_exact:
-        return simulate(noisy, plan).any_fires, fo.any_fires, "exact"
-    return fo.any_fires, fo.any_fires, "clifford"
+        exact = simulate(noisy, plan)
+        return exact.any_fires, fo.any_fires, exact.detector_probability, "exact"
+    return fo.any_fires, fo.any_fires, fo.detector_probability, "clifford"
 
 
 def strip_errors(noisy: NoisyCircuit) -> NoisyCircuit:

@@ -25,7 +25,7 @@ from budget.engines._knobs import _knob_terms, knob_grouping
 from budget.engines.base import QuadraticForm
 from budget.errors.fidelity import pauli_matrix
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyRepeat
-from budget.problems import TooLargeError
+from budget.problems import InputError, TooLargeError
 
 STEP_RAD = 1e-3
 MAX_KNOBS = 24
@@ -68,9 +68,14 @@ def with_knobs(noisy: NoisyCircuit, values: dict[tuple[str, str], float], scale:
     return dataclasses.replace(noisy, body=items(noisy.body))
 
 
-def detector_quadratic_form(noisy: NoisyCircuit, *, engine: str = "auto") -> QuadraticForm:
-    """e ≈ δᵀ A δ + s for e = P(some detector fires) (see the module docstring)."""
-    from budget.analysis.measured import measured_values
+def detector_quadratic_form(noisy: NoisyCircuit, *, engine: str = "auto", detector: int | None = None) -> QuadraticForm:
+    """e ≈ δᵀ A δ + s for e = P(some detector fires), or for the firing probability of detector
+    number ``detector`` (its place in the list the detector metric reports) (see the module docstring).
+
+    Raises:
+        InputError: ``detector`` is not the number of a detector of the circuit.
+    """
+    from budget.analysis.measured import detector_values
 
     _, scale = knob_grouping(noisy)
     labels = tuple(scale)
@@ -79,8 +84,13 @@ def detector_quadratic_form(noisy: NoisyCircuit, *, engine: str = "auto") -> Qua
                             f"takes up to {MAX_KNOBS} (use family_by gate)")
 
     def f(vec: dict) -> float:
-        return measured_values(with_knobs(noisy, vec, scale), "detectors", engine)[0]
+        anyone, _, each, _ = detector_values(with_knobs(noisy, vec, scale), engine)
+        return anyone if detector is None else each[detector]
 
+    if detector is not None:
+        count = len(infer_checks(noisy).detectors)
+        if isinstance(detector, bool) or not isinstance(detector, int) or not 0 <= detector < count:
+            raise InputError(f"detector = {detector!r}: the circuit has detectors 0 to {count - 1}")
     h = STEP_RAD
     floor = f({})
     single = [f({lab: h}) for lab in labels]
@@ -95,11 +105,11 @@ def detector_quadratic_form(noisy: NoisyCircuit, *, engine: str = "auto") -> Qua
     a = (v * np.clip(w, 0.0, None)) @ v.T
     a = np.where(np.abs(a) < 1e-9 * max(1.0, float(np.abs(a).max(initial=0.0))), 0.0, a)
     return QuadraticForm(labels, a, np.array([scale[lab] for lab in labels], dtype=float), float(floor),
-                         _floor_sources(noisy, floor))
+                         _floor_sources(noisy, floor, detector))
 
 
-def _floor_sources(noisy: NoisyCircuit, floor: float) -> dict[str, float]:
+def _floor_sources(noisy: NoisyCircuit, floor: float, detector: int | None) -> dict[str, float]:
     zero = with_knobs(noisy, {}, knob_grouping(noisy)[1])
     checks = infer_checks(zero)
-    parts = frames(zero, tuple(d.measurements for d in checks.detectors)).any_families
-    return scaled(parts, floor)
+    fr = frames(zero, tuple(d.measurements for d in checks.detectors))
+    return scaled(fr.any_families if detector is None else fr.detector_families[detector], floor)

@@ -33,7 +33,7 @@ FORM_ENGINES = ("clifford", "generators")
 size when every gate is Clifford)."""
 
 
-def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto") -> QuadraticForm:
+def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto", detector: int | None = None) -> QuadraticForm:
     """The quadratic form e ≈ δᵀAδ + s of a noisy circuit, from the first engine that fits.
 
     Raises:
@@ -48,7 +48,9 @@ def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto") 
 
         if engine not in ("auto", "exact", "clifford"):
             raise InputError(f"engine = {engine!r}: the detectors metric's form comes from exact or clifford (or auto)")
-        return detector_quadratic_form(circuit, engine=engine)
+        return detector_quadratic_form(circuit, engine=engine, detector=detector)
+    if detector is not None:
+        raise InputError(f"detector = {detector!r}: a target on one detector needs the detectors metric")
     if engine != "auto" and engine not in FORM_ENGINES:
         raise InputError(f"engine = {engine!r}: quadratic forms come from {', '.join(FORM_ENGINES)} (or auto)")
     reasons = []
