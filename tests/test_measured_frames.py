@@ -165,10 +165,10 @@ def test_cli_detectors_and_record_json(tmp_path):
     assert all(set(d) == {"measurements", "round", "probability", "families"} for d in dets)
     for d in dets:
         assert sum(f["share"] for f in d["families"]) == pytest.approx(d["probability"], rel=1e-9)
-    assert sum(f["share"] for f in data["families"]) == pytest.approx(data["accumulated"]["infidelity"], rel=1e-9)
+    assert sum(f["share"] for f in data["families"]) == pytest.approx(data["actual"]["infidelity"], rel=1e-9)
     # P(some detector fires) is at least the largest single detector and at most their sum
     probs = [d["probability"] for d in dets]
-    assert max(probs) <= data["accumulated"]["infidelity"] <= sum(probs)
+    assert max(probs) <= data["actual"]["infidelity"] <= sum(probs)
     assert data["logical_observables"] and "firing probability by round" in res.output
     bad = CliRunner().invoke(app, ["analyze", str(path), "-e", str(model), "--metric", "process", "--json", str(tmp_path / "x.json")])
     assert bad.exit_code == 2 and "rep.qasm:11: measurement" in bad.output and not (tmp_path / "x.json").exists()
@@ -205,7 +205,7 @@ def test_record_metric_on_iterative_phase_estimation(tmp_path):
     bits = {b["index"]: b["flip_probability"] for b in data["record_bits"]}
     assert set(bits) == {0, 1, 2}  # every ideal bit is deterministic
     assert all(0.01 <= v < 0.05 for v in bits.values())
-    assert 0 < data["accumulated"]["infidelity"] < 1
+    assert 0 < data["actual"]["infidelity"] < 1
     ideal = attach(parse_qasm(IPE.format(scale=5)), ErrorModel.from_dict({}))
     rec = simulate(ideal, Plan((), (), True, tuple(condition_bits(ideal.body)), 3)).record
     best = max(rec, key=rec.get)
