@@ -123,7 +123,7 @@ class _Writer:
                                    for inst in gate_circuit(op)]
             except ValueError:
                 raise self.fail(op.line, f"gate {op.gate}{list(op.params) or ''} is not Clifford: the "
-                                "stabilizer path needs Clifford gates (use the exact engine)") from None
+                                "stabilizer path needs Clifford gates") from None
         for name, targets, args in self.cache[key]:
             out.append(name, [op.qubits[t] for t in targets], args)
 
