@@ -110,3 +110,17 @@ def test_quadratic_form_on_one_detector():
         quadratic_form(noisy, "detectors", detector=len(listed))
     with pytest.raises(InputError, match="needs the detectors metric"):
         quadratic_form(noisy, "process", detector=0)
+
+
+def test_randomised_companions_refuse_measurement_items(tmp_path):
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    path = tmp_path / "rep.qasm"
+    path.write_text(REPETITION.format(last=1))
+    model = tmp_path / "m.toml"
+    model.write_text("[gates.x]\noverrotation = 0.01\n")
+    for extra in (["--ensemble", "2"], ["--against", "random"]):
+        res = CliRunner().invoke(app, ["analyze", str(path), "-e", str(model), "--metric", "detectors", *extra])
+        assert res.exit_code == 2 and "gate-only circuits" in res.output and "Traceback" not in res.output

@@ -121,6 +121,9 @@ def analyze_all(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "pr
         raise InputError(f"draws = {draws!r}: expected a whole number from 2 to {MAX_DRAWS}")
     model = read_model(errors)
     structured = read_circuit(circuit)
+    if structured.has_mid_circuit and (ensemble or against == "random"):
+        raise InputError(f"{structured.source}: --ensemble and --against random randomise gate layers and are "
+                         f"computed for gate-only circuits ({structured.mid_circuit_reason()})")
     result = analyze(structured, model, cycles=cycles, metric=metric, engine=engine, observables=observables,
                      family_by=family_by, compare_twirled=compare_twirled, logical=logical)
     comparison = random = copies = None
