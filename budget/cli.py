@@ -30,6 +30,8 @@ EXAMPLES = Path(__file__).resolve().parent.parent / "circuits"
 class MetricChoice(str, Enum):
     process = "process"
     state = "state"
+    detectors = "detectors"
+    record = "record"
 
 
 class EngineChoice(str, Enum):
@@ -53,6 +55,19 @@ def user_errors(fn: Callable) -> Callable:
             raise typer.Exit(code=2) from None
 
     return wrapper
+
+
+def parse_logical(values: List[str]) -> Optional[tuple]:
+    """``--logical 24,25,26`` -> ((24, 25, 26),); None when none is given."""
+    if not values:
+        return None
+    out = []
+    for v in values:
+        try:
+            out.append(tuple(int(x) for x in v.split(",") if x.strip()))
+        except ValueError:
+            raise InputError(f"--logical {v!r}: expected record indices joined by commas, e.g. 24,25,26") from None
+    return tuple(out)
 
 
 def check_output_path(path: Optional[Path], option: str) -> None:
@@ -98,7 +113,9 @@ def main_options(
 CircuitArg = typer.Argument(..., help="OpenQASM 2/3 file or cirq JSON file.", show_default=False)
 ErrorsOpt = typer.Option(..., "--errors", "-e", help="Error model (TOML, see docs/error-model.md).")
 CyclesOpt = typer.Option(1, "--cycles", "-n", min=1, help="Repeat the whole circuit N times (kept folded).")
-MetricOpt = typer.Option(MetricChoice.process, "--metric", "-m", help="process: 1 - F_pro; state: output state for |0…0>.")
+MetricOpt = typer.Option(MetricChoice.process, "--metric", "-m", help="process: 1 - F_pro; state: output state for |0…0>; "
+                         "detectors: P(some detector fires), for circuits with mid-circuit measurement; record: "
+                         "1 - classical fidelity of the measurement record.")
 EngineOpt = typer.Option(EngineChoice.auto, "--engine", help="auto picks the most accurate engine that fits.")
 QuietOpt = typer.Option(False, "--quiet", "-q", help="No progress bar on stderr.")
 ByPairOpt = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate.")
@@ -115,6 +132,8 @@ def analyze(
     metric: MetricChoice = MetricOpt,
     engine: EngineChoice = EngineOpt,
     observable: List[str] = typer.Option([], "--observable", "-o", help="Pauli observable such as Z0Z1 (repeatable)."),
+    logical: List[str] = typer.Option([], "--logical", help="Logical observable for --metric detectors: record "
+                                      "indices joined by commas, e.g. 24,25,26 (repeatable; default: inferred)."),
     by_pair: bool = ByPairOpt,
     by_operation: bool = ByOperationOpt,
     compare_twirled: bool = typer.Option(False, "--compare-twirled", help="Also analyse the Pauli-twirled variant."),
@@ -143,7 +162,8 @@ def analyze(
     with progress_bar("random counterparts and compiled copies", quiet=quiet or not extra) as tick:
         done = analyze_all(str(circuit), str(errors), cycles=cycles, metric=metric.value, engine=engine.value,
                            observables=tuple(observable), family_by=family_by, compare_twirled=compare_twirled,
-                           against=against, draws=draws, ensemble=ensemble, seed=seed, progress=tick)
+                           against=against, draws=draws, ensemble=ensemble, seed=seed, progress=tick,
+                           logical=parse_logical(logical))
     console = make_console(width=width, stderr=to_stdout(json_path))
     for view in render_analysis(done):
         console.print(view)
@@ -281,10 +301,13 @@ def _decision_command(name: str, summary: str, views: Callable) -> None:
         open_loop: bool = OpenLoopOpt,
         json_path: Optional[Path] = typer.Option(None, "--json", help="Write tolerances, sensitivity and calibration "
                                                  "plan as JSON (docs/tolerances.md)."),
+        detector: Optional[int] = typer.Option(None, "--detector", min=0, help="With --metric detectors: the target "
+                                               "is on this detector's firing probability (its number in the list of "
+                                               "analyze --json) instead of P(some detector fires)."),
         width: Optional[int] = WidthOpt,
     ) -> None:
         d = _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair,
-                       by_operation, open_loop)
+                       by_operation, open_loop, detector)
         console = make_console(width=width, stderr=to_stdout(json_path))
         for view in views(d):
             console.print(view)
@@ -310,14 +333,14 @@ _decision_command("cost", "Device time to measure the knobs that must tighten (a
 
 
 def _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair, by_operation,
-               open_loop):
+               open_loop, detector=None):
     """Shared body of `tolerances` and `cost`: check the options, then compute."""
     from budget.analysis.decide import decide
 
     check_output_path(json_path, "--json")
     return decide(str(circuit), str(errors), target=target, cycles=cycles, metric=metric.value, assume=assume.value,
                   allocation=allocation.value, engine=engine.value, family_by=grouping(by_pair, by_operation),
-                  closed_loop=not open_loop)
+                  closed_loop=not open_loop, detector=detector)
 
 
 def _write_decisions(json_path: Optional[Path], d) -> None:

@@ -10,6 +10,9 @@ layer its predecessors allow (as soon as possible, ASAP) puts operation j in lay
 :mod:`budget.circuit.program`) into a :class:`~budget.circuit.ir.StructuredCircuit`: barriers and
 loop boundaries split the program into segments, each segment is layered ASAP on its own, and
 each loop becomes a :class:`~budget.circuit.ir.Repeat` whose body is layered on its own.
+Measurements and resets also close the current layer; a run of them with no gate in between is
+grouped as early as possible by kind (``measure a; reset a; measure b; reset b`` becomes one
+measurement of a and b, then one reset of a and b), keeping each qubit's order.
 """
 
 from __future__ import annotations
@@ -18,8 +21,8 @@ from typing import Iterable, Sequence
 
 import networkx as nx
 
-from budget.circuit.ir import Item, Layer, Operation, Repeat, StructuredCircuit
-from budget.circuit.program import Barrier, Loop, Statement
+from budget.circuit.ir import IfBlock, Item, Layer, Measure, Operation, Repeat, Reset, StructuredCircuit
+from budget.circuit.program import Barrier, Conditional, Loop, Statement
 from budget.problems import TooLargeError
 
 
@@ -97,10 +100,18 @@ def layer_program(
 def _structure(program: Sequence[Statement], n: int) -> tuple[Item, ...]:
     items: list[Item] = []
     segment: list[Operation] = []
+    probes: list[Measure | Reset] = []
     for st in program:
+        if isinstance(st, (Operation, Measure, Reset)) and any(not 0 <= q < n for q in st.qubits):
+            raise ValueError(f"{type(st).__name__.lower()} on qubits {st.qubits}: index outside 0..{n - 1}")
+        if isinstance(st, (Measure, Reset)):
+            items.extend(asap_layers(segment))
+            segment = []
+            probes.append(st)
+            continue
+        items.extend(group_probes(probes))
+        probes = []
         if isinstance(st, Operation):
-            if any(not 0 <= q < n for q in st.qubits):
-                raise ValueError(f"operation {st.gate} on qubits {st.qubits}: index outside 0..{n - 1}")
             segment.append(st)
             continue
         items.extend(asap_layers(segment))
@@ -109,10 +120,46 @@ def _structure(program: Sequence[Statement], n: int) -> tuple[Item, ...]:
             inner = _structure(st.body, n)
             if inner and st.count > 0:
                 items.append(Repeat(inner, int(st.count)))
+        elif isinstance(st, Conditional):
+            then, orelse = _structure(st.then, n), _structure(st.orelse, n)
+            if then or orelse:
+                items.append(IfBlock(st.bits, st.value, then, orelse, st.line))
         elif not isinstance(st, Barrier):
-            raise TypeError(f"program statement must be Operation, Barrier or Loop, got {type(st).__name__}")
+            raise TypeError(f"program statement {type(st).__name__} is not one of Operation, Measure, Reset, "
+                            "Barrier, Loop, Conditional")
+    items.extend(group_probes(probes))
     items.extend(asap_layers(segment))
     return tuple(items)
+
+
+def group_probes(probes: Sequence[Measure | Reset]) -> list[Measure | Reset]:
+    """Group a run of measurements and resets (no gate between them) into as few items as possible.
+
+    Each one joins the earliest item of its kind that comes after the last item touching its
+    qubits; measurements keep their program order within the record (an item whose place would
+    put a measurement before an earlier one starts a new item instead).
+
+    >>> [type(g).__name__ for g in group_probes([Measure((0,), ("c[0]",)), Reset((0,)),
+    ...                                           Measure((1,), ("c[1]",)), Reset((1,))])]
+    ['Measure', 'Reset']
+    """
+    groups: list[list] = []  # [kind, qubits, bits, line]
+    last_measure = -1
+    for st in probes:
+        kind = type(st)
+        touch = max((i for i, g in enumerate(groups) if set(g[1]) & set(st.qubits)), default=-1)
+        start = touch + 1
+        if kind is Measure:
+            start = max(start, last_measure)
+        target = next((i for i in range(start, len(groups)) if groups[i][0] is kind), None)
+        if target is None:
+            groups.append([kind, [], [], st.line])
+            target = len(groups) - 1
+        groups[target][1].extend(st.qubits)
+        if kind is Measure:
+            groups[target][2].extend(st.bits)
+            last_measure = target
+    return [Measure(tuple(q), tuple(b), line) if k is Measure else Reset(tuple(q), line) for k, q, b, line in groups]
 
 
 def flat_operations(circuit: StructuredCircuit, *, max_operations: int = 1_000_000) -> list[Operation]:
@@ -163,10 +210,12 @@ def _cone_items(items: Sequence[Item], live: set[int]) -> set[int]:
             for op in it.operations:
                 if live.intersection(op.qubits):
                     live = live | set(op.qubits)
-        else:
+        elif isinstance(it, Repeat):
             for _ in range(it.count):
                 grown = _cone_items(it.body, set(live))
                 if grown == live:
                     break
                 live = grown
+        else:
+            raise TypeError(f"light cone: circuit item {type(it).__name__} is not supported (gate layers only)")
     return live

@@ -120,7 +120,7 @@ def test_empty_and_zero_loops_dropped():
 def test_bad_program_entries():
     with pytest.raises(ValueError, match="outside"):
         layer_program([Operation("x", (7,))], qubits=NAMES)
-    with pytest.raises(TypeError, match="Operation, Barrier or Loop"):
+    with pytest.raises(TypeError, match="Operation, Measure, Reset, Barrier, Loop"):
         layer_program(["x q[0]"], qubits=NAMES)
     with pytest.raises(ValueError, match="at least 0"):
         Loop((), -1)

@@ -33,7 +33,7 @@ from budget.analysis.sensitivity import quadratic_form
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
 from budget.errors.attach import attach
 from budget.errors.knobs import coherent_error
-from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation
+from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat
 from budget.errors.params import GateParams
 from budget.problems import InputError
 
@@ -119,7 +119,10 @@ def correction_points(circuit: StructuredCircuit, which: str = "all") -> tuple[P
 def _ops(items: tuple) -> list[Operation]:
     out: list[Operation] = []
     for it in items:
-        out.extend(it.operations if isinstance(it, Layer) else _ops(it.body))
+        if isinstance(it, Layer):
+            out.extend(it.operations)
+        elif isinstance(it, Repeat):
+            out.extend(_ops(it.body))
     return out
 
 
@@ -140,12 +143,12 @@ def map_blocks(items: tuple, fn: Callable[[int, tuple], tuple]) -> tuple:
     def walk(items: tuple) -> tuple:
         out: list = []
         for it in items:
-            if isinstance(it, (Layer, NoisyLayer)):
-                out.append(it)
-            else:
+            if isinstance(it, (Repeat, NoisyRepeat)):
                 index = counter[0]
                 counter[0] += 1
                 out.append(type(it)(fn(index, walk(it.body)), it.count))
+            else:
+                out.append(it)  # layers, and measurement items (circuits with them are refused upstream)
         return tuple(out)
 
     return walk(items)
@@ -189,6 +192,9 @@ def compensate(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "pro
     if points not in POINTS:
         raise InputError(f"points = {points!r}: expected one of {', '.join(POINTS)}")
     structured = read_circuit(circuit).with_cycles(cycles)
+    if structured.has_mid_circuit:
+        raise InputError(f"{structured.source}: free compensation is computed for gate-only circuits "
+                         f"({structured.mid_circuit_reason()})")
     noisy = attach(structured, read_model(errors))
     where = correction_points(structured, points)
     if not any(p.qubits for p in where):

@@ -45,7 +45,7 @@ def _last_on(items: tuple, qubit: int) -> Operation | None | str:
             for op in it.operations:
                 if qubit in op.qubits:
                     return op
-        elif any(qubit in op.qubits for layer in _layers(it.body) for op in layer.operations):
+        elif isinstance(it, Repeat) and any(qubit in op.qubits for layer in _layers(it.body) for op in layer.operations):
             return "nested"
     return None
 
@@ -53,7 +53,10 @@ def _last_on(items: tuple, qubit: int) -> Operation | None | str:
 def _layers(items: tuple) -> list[Layer]:
     out: list[Layer] = []
     for it in items:
-        out.extend([it] if isinstance(it, Layer) else _layers(it.body))
+        if isinstance(it, Layer):
+            out.append(it)
+        elif isinstance(it, Repeat):
+            out.extend(_layers(it.body))
     return out
 
 

@@ -25,6 +25,7 @@ from budget.analysis.phase_estimation import find_probes
 from budget.analysis.sensitivity import Sensitivity, per_operation, quadratic_form, sensitivity, sensitivity_json
 from budget.analysis.tolerance_output import tolerances_json
 from budget.analysis.tolerances import ToleranceReport, check_target, tolerances
+from budget.engines.base import MEASURED_METRICS
 from budget.problems import InputError
 
 GROUPINGS: tuple[str, ...] = ("gate", "pair", "operation")
@@ -52,6 +53,7 @@ def decide(
     family_by: str = "gate",
     engine: str = "auto",
     closed_loop: bool = True,
+    detector: int | None = None,
 ) -> Decisions:
     """Sensitivity, tolerances and calibration device time for a target infidelity.
 
@@ -65,7 +67,10 @@ def decide(
         family_by: ``"gate"``, ``"pair"`` (gate per qubit tuple) or ``"operation"`` (each operation
             as written).
         engine: ``"auto"``, ``"clifford"`` or ``"generators"`` for the quadratic form.
-        closed_loop: check and correct the tolerances with an engine run at the tolerances.
+        closed_loop: check and correct the tolerances with an engine run at the tolerances (the
+            gate metrics; the detector and record metrics are checked at leading order only).
+        detector: with ``metric="detectors"``, the target is on this detector's firing probability
+            (its number in the detector list) instead of P(some detector fires).
     """
     from budget.analysis.run import read_circuit, read_model
     from budget.errors.attach import attach
@@ -81,7 +86,7 @@ def decide(
     noisy = attach(structured, model, family_by="pair" if family_by == "pair" else "gate")
     if family_by == "operation":
         noisy = per_operation(noisy)
-    qf = quadratic_form(noisy, metric, engine=engine)
+    qf = quadratic_form(noisy, metric, engine=engine, detector=detector)
     report = checked_tolerances(structured, model, noisy, qf, target, metric=metric, cycles=cycles, assume=assume,
                                 allocation=allocation, family_by=family_by, engine=engine, closed_loop=closed_loop)
     plan = calibration_plan(report, find_probes(noisy), settings, model_knobs=model_knob_keys(model))
@@ -104,6 +109,8 @@ def checked_tolerances(
     """
     from budget.errors.attach import attach
 
+    if metric in MEASURED_METRICS:  # leading order only: the closed loop runs the gate metrics
+        return tolerances(qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles)
     if family_by == "gate":
         site_noisy = attach(structured, model, family_by="pair")
         site_qf = dataclasses.replace(quadratic_form(site_noisy, metric, engine=engine), floor_sources=dict(qf.floor_sources))
@@ -122,7 +129,7 @@ def checked_tolerances(
 def site_families(by_gate: Any, by_site: Any) -> dict[str, str]:
     """Per-site family name -> gate family name, read off the same circuit attached both ways
     (their items correspond one to one; context errors keep their own names)."""
-    from budget.errors.noisy import NoisyLayer
+    from budget.errors.noisy import NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
 
     out: dict[str, str] = {}
 
@@ -130,8 +137,15 @@ def site_families(by_gate: Any, by_site: Any) -> dict[str, str]:
         for x, y in zip(a, b):
             if isinstance(x, NoisyLayer) and isinstance(y, NoisyLayer):
                 out.update((q.family, p.family) for p, q in zip(x.operations, y.operations))
-            elif not isinstance(x, NoisyLayer) and not isinstance(y, NoisyLayer):
+            elif isinstance(x, NoisyRepeat) and isinstance(y, NoisyRepeat):
                 walk(x.body, y.body)
+            elif isinstance(x, NoisyIf) and isinstance(y, NoisyIf):
+                walk(x.then, y.then)
+                walk(x.orelse, y.orelse)
+            elif isinstance(x, (NoisyMeasure, NoisyReset)) and type(x) is type(y):
+                out[y.family] = x.family
+            else:
+                raise TypeError(f"site_families: items {type(x).__name__} and {type(y).__name__} do not match")
 
     walk(by_gate.body, by_site.body)
     return out

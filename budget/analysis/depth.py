@@ -30,6 +30,7 @@ import numpy as np
 from budget.analysis.ratios import at_rounding_level
 from budget.engines import get_engine
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
+from budget.engines.base import MEASURED_METRICS
 from budget.problems import InputError
 
 from budget.analysis.curves import CROSSOVER_FACTOR, CURVE_WORDS, CURVES, JSON_KEYS, DepthCurve
@@ -151,6 +152,39 @@ def _closed_form(block: NoisyCircuit, engine) -> _Series:
     return _Series(value)
 
 
+def _measured_curve(block: NoisyCircuit, grid: tuple[int, ...], metric: str, engine: str, target: float | None,
+                    progress: Progress | None) -> DepthCurve:
+    """Depth curves of the detector or record metric: the whole circuit (a round) repeated N times,
+    detectors inferred anew at every N. Naive: 1 - (1 - e₁)^N from the one-round product."""
+    from budget.analysis.measured import measured_values, naive_measured
+
+    one = naive_measured(block)
+    names: list[str] = []
+    values: dict[str, list[float]] = {c: [] for c in CURVES}
+    for i, n in enumerate(grid):
+        actual, twirled, name = measured_values(_repeated(block, n), metric, engine)
+        names.append(name)
+        values["naive"].append(1.0 - (1.0 - one) ** n)
+        values["structured"].append(actual)
+        values["twirled"].append(twirled)
+        if progress is not None:
+            progress(i + 1, len(grid))
+    deepest: dict[str, int | None] = {}
+    if target is not None:
+        for c in CURVES:
+            bad = [n for n, v in zip(grid, values[c]) if v > target]
+            deepest[c] = grid[-1] if not bad else (max((n for n in grid if n < bad[0]), default=None))
+    crossover = next((n for n, a, b in zip(grid, values["structured"], values["naive"]) if a > CROSSOVER_FACTOR * b), None)
+    return DepthCurve(
+        source=block.source, metric=metric, engine="/".join(dict.fromkeys(names)),
+        twirled_engine="clifford (Pauli frames)" if metric == "detectors" else "exact",
+        repetitions=grid, naive=tuple(values["naive"]), structured=tuple(values["structured"]),
+        twirled=tuple(values["twirled"]), crossover_repetitions=crossover, target=target, deepest=deepest,
+        components=(), warnings=(f"{metric} metric: each point is computed on the unrolled grid count "
+                                 "(detectors inferred anew), only the grid points are evaluated",),
+    )
+
+
 def _repeated(block: NoisyCircuit, n: int) -> NoisyCircuit:
     body = block.body if n == 1 else (NoisyRepeat(block.body, int(n)),)
     return NoisyCircuit(block.qubits, body, dict(block.readout_error), block.source)
@@ -187,6 +221,8 @@ def depth_curve(
     if target is not None and not 0 < target < 1:
         raise InputError(f"target = {target!r}: expected an infidelity E with 0 < E < 1")
     grid = repetition_grid(max_cycles, points)
+    if metric in MEASURED_METRICS:
+        return _measured_curve(block, grid, metric, engine, target, progress)
     log_keep = math.log1p(-min(naive_infidelity(block), 1.0)) if naive_infidelity(block) < 1 else -math.inf
     naive = _Series(lambda n: (-math.expm1(n * log_keep) if log_keep > -math.inf else 1.0, True))
     structured, name, notes = _engine_series(block, metric, engine, "actual")

@@ -54,6 +54,32 @@ class ReadoutSummary:
 
 
 @dataclass(frozen=True)
+class DetectorBudget:
+    """One detector of the detector metric.
+
+    Attributes:
+        measurements: record indices it combines (0-based, program order).
+        round: its check round.
+        probability: the probability that it fires.
+        families: family -> share of ``probability`` (the shares add up to it).
+    """
+
+    measurements: tuple[int, ...]
+    round: int
+    probability: float
+    families: dict[str, float]
+
+
+@dataclass(frozen=True)
+class RecordBit:
+    """A recorded bit that the ideal circuit fixes, and the probability it comes out different."""
+
+    index: int
+    qubit: str
+    flip_probability: float
+
+
+@dataclass(frozen=True)
 class BudgetResult:
     """Naive product versus actual infidelity for one circuit, one model, one metric.
 
@@ -80,6 +106,9 @@ class BudgetResult:
     details: dict[str, Any] = field(default_factory=dict)
     beyond_range: str | None = None
     shares_known: bool = True
+    detectors: tuple[DetectorBudget, ...] = ()
+    logical: tuple[tuple[int, ...], ...] = ()
+    record_bits: tuple[RecordBit, ...] = ()
 
     @property
     def in_range(self) -> bool:
@@ -143,7 +172,26 @@ class BudgetResult:
             out["twirled"] = {"infidelity": self.twirled_infidelity}
         if self.details:
             out["details"] = _jsonable(self.details)
+        if self.metric == "detectors":
+            out["detectors"] = [
+                {"measurements": list(d.measurements), "round": d.round, "probability": d.probability,
+                 "families": [{"name": k, "share": v} for k, v in sorted(d.families.items(), key=lambda kv: -kv[1])]}
+                for d in self.detectors
+            ]
+            out["logical_observables"] = [{"measurements": list(o)} for o in self.logical]
+        if self.metric == "record":
+            out["record_bits"] = [
+                {"index": b.index, "qubit": b.qubit, "flip_probability": b.flip_probability} for b in self.record_bits
+            ]
         return out
+
+
+def circuit_fields(structured: Any, cycles: int) -> dict[str, Any]:
+    """The BudgetResult fields that describe the circuit: source, qubits, executed operations and
+    layers (repeats and cycles included), cycles."""
+    ops, layers = structured.executed_counts()
+    return {"source": structured.source, "qubits": structured.num_qubits, "operations": ops, "layers": layers,
+            "cycles": cycles}
 
 
 CAUTION = (

@@ -14,11 +14,11 @@ from __future__ import annotations
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary
+from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary, circuit_fields
 from budget.analysis.select import choose_engine, first_order_shares
 from budget.analysis.validity import run_in_range
 from budget.circuit.ir import StructuredCircuit
-from budget.engines.base import METRICS
+from budget.engines.base import MEASURED_METRICS, METRICS
 from budget.errors.noisy import IDLE, NoisyCircuit
 from budget.problems import InputError
 
@@ -40,6 +40,7 @@ def analyze(
     observables: tuple[str, ...] = (),
     family_by: str = "gate",
     compare_twirled: bool = False,
+    logical: tuple[tuple[int, ...], ...] | None = None,
 ) -> BudgetResult:
     """Error budget of a structured circuit under an error model.
 
@@ -47,13 +48,16 @@ def analyze(
         circuit: a path (OpenQASM 2 or 3, cirq JSON), a ``cirq.Circuit`` or a StructuredCircuit.
         errors: a path to a TOML error model, an ``ErrorModel``, or a dict in the TOML layout.
         cycles: repeat the whole circuit this many times (kept as a repeat, 1 <= N <= 10**18).
-        metric: ``"process"`` (1 - process fidelity) or ``"state"`` (1 - fidelity of the output
-            for input |0…0>).
+        metric: ``"process"`` (1 - process fidelity), ``"state"`` (1 - fidelity of the output
+            for input |0…0>), ``"detectors"`` (probability that some detector fires) or ``"record"``
+            (1 - classical fidelity of the measurement record); the last two for circuits with
+            mid-circuit measurement (:mod:`budget.analysis.measured`).
         engine: ``"auto"``, ``"exact"``, ``"generators"`` or ``"clifford"``.
         observables: Pauli observables such as ``"Z0Z1"``, whose expectation-value errors to report.
         family_by: ``"gate"`` (one family per gate name), ``"pair"`` (gate name per qubit tuple) or
             ``"operation"`` (each operation as written).
         compare_twirled: also compute the Pauli-twirled variant of the circuit.
+        logical: record index lists naming the logical observables (detectors metric); None infers them.
 
     Returns:
         A frozen :class:`BudgetResult`; ``to_dict()`` gives the documented JSON (schema version 1).
@@ -61,8 +65,8 @@ def analyze(
     from budget.errors.attach import attach
     from budget.errors.fidelity import naive_infidelity
 
-    if metric not in METRICS:
-        raise InputError(f"metric = {metric!r}: expected one of {', '.join(METRICS)}")
+    if metric not in METRICS + MEASURED_METRICS:
+        raise InputError(f"metric = {metric!r}: expected one of {', '.join(METRICS + MEASURED_METRICS)}")
     if isinstance(cycles, bool) or not isinstance(cycles, int) or not 1 <= cycles <= MAX_CYCLES:
         raise InputError(f"cycles = {cycles!r}: expected a whole number from 1 to 10**18")
     structured = read_circuit(circuit).with_cycles(cycles)
@@ -77,6 +81,7 @@ def analyze(
         compare_twirled=compare_twirled,
         cycles=cycles,
         notes=model.warnings(),
+        logical=logical,
     )
 
 
@@ -90,10 +95,17 @@ def analyze_noisy(
     compare_twirled: bool = False,
     cycles: int = 1,
     notes: tuple[str, ...] = (),
+    logical: tuple[tuple[int, ...], ...] | None = None,
 ) -> BudgetResult:
     """The analysis once the model is attached (shared by :func:`analyze` and other commands);
     ``notes``: warnings to show with the result (the error model's, for instance)."""
     from budget.errors.fidelity import naive_infidelity
+
+    if metric in MEASURED_METRICS:
+        from budget.analysis.measured import analyze_measured
+
+        return analyze_measured(noisy, structured, metric=metric, engine=engine,
+                                compare_twirled=compare_twirled, cycles=cycles, logical=logical)
 
     chosen = choose_engine(noisy, metric, engine)
     outcome, switched = run_in_range(noisy, metric, chosen, engine, observables=tuple(observables))
@@ -125,18 +137,9 @@ def analyze_noisy(
             observed[label] = None
         else:
             observed[label] = float(err)
-    counts = _family_counts(noisy)
-    families = tuple(
-        FamilyShare(name, counts.get(name, 0), float(shares.get(name, 0.0)))
-        for name in sorted(set(counts) | set(shares), key=lambda f: -abs(shares.get(f, 0.0)))
-    )
-    ops, layers = structured.executed_counts()
+    families = family_table(family_counts(noisy), shares)
     return BudgetResult(
-        source=structured.source,
-        qubits=structured.num_qubits,
-        operations=ops,
-        layers=layers,
-        cycles=cycles,
+        **circuit_fields(structured, cycles),
         metric=metric,
         engine=outcome.engine,
         naive_infidelity=float(naive),
@@ -171,7 +174,16 @@ def attach_grouped(structured: StructuredCircuit, model: Any, family_by: str = "
     return attach(structured, model, family_by=family_by)
 
 
-def _family_counts(noisy: NoisyCircuit) -> dict[str, int]:
+def family_table(counts: dict[str, int], shares: dict[str, float]) -> tuple[FamilyShare, ...]:
+    """One FamilyShare per family that runs or has a share, largest share first."""
+    return tuple(
+        FamilyShare(name, counts.get(name, 0), float(shares.get(name, 0.0)))
+        for name in sorted(set(counts) | set(shares), key=lambda f: -abs(shares.get(f, 0.0)))
+    )
+
+
+def family_counts(noisy: NoisyCircuit) -> dict[str, int]:
+    """Executed operations per family (idle slots for ``idle``), repeats counted exactly."""
     counts: dict[str, int] = {}
     for layer, mult in noisy.multiplicities():
         for nop in layer.operations:

@@ -9,9 +9,13 @@ from __future__ import annotations
 
 from budget.engines import ENGINE_NAMES, Engine, get_engine
 from budget.errors.noisy import NoisyCircuit
-from budget.problems import InputError, TooLargeError
+from budget.circuit.ir import item_kind
+from budget.problems import InputError, TooLargeError, place
 
 AUTO_ORDER = ("exact", "clifford", "generators")
+GATE_METRICS = ("process", "state")
+"""Metrics defined for gate-only circuits: a measurement, reset or if item is refused for them
+(whatever engine an extension registers, not only through each engine's ``fits``)."""
 
 
 def _available(name: str) -> Engine | None:
@@ -30,6 +34,12 @@ def choose_engine(circuit: NoisyCircuit, metric: str, name: str = "auto", *, bri
         TooLargeError: the named engine (or every engine) cannot hold the circuit; the message
             says why and which engine would fit.
     """
+    if metric in GATE_METRICS and circuit.has_mid_circuit:
+        item = circuit.first_mid_circuit().item
+        raise InputError(
+            f"{place(circuit.source, item.line)}: {item_kind(item)} in the middle of the circuit: the {metric} "
+            "metric needs a gate-only circuit; use --metric detectors or --metric record"
+        )
     if name != "auto":
         if name not in ENGINE_NAMES:
             raise InputError(f"engine = {name!r}: expected auto or one of {', '.join(ENGINE_NAMES)}")

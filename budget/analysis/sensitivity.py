@@ -26,14 +26,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from budget.engines.base import QuadraticForm
-from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
+from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyItem, NoisyLayer, NoisyRepeat
 
 FORM_ENGINES = ("clifford", "generators")
 """Engines that build the quadratic form, in the order ``"auto"`` tries them (clifford first: any
 size when every gate is Clifford)."""
 
 
-def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto") -> QuadraticForm:
+def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto", detector: int | None = None) -> QuadraticForm:
     """The quadratic form e ≈ δᵀAδ + s of a noisy circuit, from the first engine that fits.
 
     Raises:
@@ -43,6 +43,14 @@ def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto") 
     from budget.engines import get_engine
     from budget.problems import InputError, TooLargeError
 
+    if metric == "detectors":
+        from budget.analysis.measured_form import detector_quadratic_form
+
+        if engine not in ("auto", "exact", "clifford"):
+            raise InputError(f"engine = {engine!r}: the detectors metric's form comes from exact or clifford (or auto)")
+        return detector_quadratic_form(circuit, engine=engine, detector=detector)
+    if detector is not None:
+        raise InputError(f"detector = {detector!r}: a target on one detector needs the detectors metric")
     if engine != "auto" and engine not in FORM_ENGINES:
         raise InputError(f"engine = {engine!r}: quadratic forms come from {', '.join(FORM_ENGINES)} (or auto)")
     reasons = []
@@ -212,8 +220,12 @@ def per_operation(circuit: NoisyCircuit) -> NoisyCircuit:
             if isinstance(it, NoisyLayer):
                 ops = tuple(dataclasses.replace(n, family=name(n)) for n in it.operations)
                 out.append(dataclasses.replace(it, operations=ops))
-            else:
+            elif isinstance(it, NoisyRepeat):
                 out.append(NoisyRepeat(walk(it.body), it.count))
+            elif isinstance(it, NoisyIf):
+                out.append(NoisyIf(it.item, walk(it.then), walk(it.orelse)))
+            else:
+                out.append(it)  # measurement and reset: no gate operation to name
         return tuple(out)
 
     return dataclasses.replace(circuit, body=walk(circuit.body))

@@ -15,7 +15,16 @@ from functools import lru_cache
 
 import numpy as np
 
-from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat
+from budget.errors.noisy import (
+    NoisyCircuit,
+    NoisyIf,
+    NoisyItem,
+    NoisyLayer,
+    NoisyMeasure,
+    NoisyOperation,
+    NoisyRepeat,
+    NoisyReset,
+)
 
 _P = {
     "I": np.eye(2, dtype=complex),
@@ -70,8 +79,14 @@ def _twirl_items(items: tuple[NoisyItem, ...], memo: dict[int, NoisyItem]) -> tu
         if key not in memo:
             if isinstance(it, NoisyLayer):
                 memo[key] = replace(it, operations=tuple(_twirl_op(n) for n in it.operations))
-            else:
+            elif isinstance(it, NoisyRepeat):
                 memo[key] = NoisyRepeat(_twirl_items(it.body, memo), it.count)
+            elif isinstance(it, NoisyIf):
+                memo[key] = NoisyIf(it.item, _twirl_items(it.then, memo), _twirl_items(it.orelse, memo))
+            elif isinstance(it, (NoisyMeasure, NoisyReset)):
+                memo[key] = it  # readout and reset errors are already stochastic
+            else:
+                raise TypeError(f"twirl: circuit item {type(it).__name__} is not supported")
         out.append(memo[key])
     return tuple(out)
 

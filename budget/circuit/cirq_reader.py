@@ -5,8 +5,11 @@ layers of its decomposition). Gates equal to a table gate up to global phase get
 (``cirq.CZ`` -> ``cz``, ``cirq.rx(θ)`` -> ``rx``, ``cirq.Z**e`` -> ``p``); any other unitary gate
 is kept as ``gate="unitary"`` with its matrix and ``label=str(gate)``. A ``cirq.CircuitOperation``
 with ``repetitions`` becomes a repeated block (nested ones too, never unrolled); with one
-repetition it is inlined. Measurements become the final readout. Qubits are sorted as cirq sorts
-them and named by ``str(qubit)`` (``q(3)``, ``q(1, 2)``, ``anc``).
+repetition it is inlined. ``cirq.measure`` (key ``m`` on one qubit gives bit ``m``, on k qubits
+bits ``m[0]`` .. ``m[k-1]``), ``cirq.ResetChannel`` and operations classically controlled by a
+one-bit key become measurement, reset and if items; when every measurement comes last and nothing
+else is mid-circuit they become the final readout instead. Qubits are sorted as cirq sorts them and
+named by ``str(qubit)`` (``q(3)``, ``q(1, 2)``, ``anc``).
 """
 
 from __future__ import annotations
@@ -19,8 +22,8 @@ import numpy as np
 
 from budget.circuit.decompose import expand
 from budget.circuit.gates import ideal_unitary
-from budget.circuit.ir import Operation, StructuredCircuit
-from budget.circuit.program import Barrier, Loop, Statement
+from budget.circuit.ir import Measure, Operation, Reset, StructuredCircuit
+from budget.circuit.program import Barrier, Conditional, Loop, Statement, final_readout
 from budget.circuit.source import read_text
 from budget.graph import layer_program
 from budget.problems import CircuitSyntaxError, InputError, place
@@ -89,8 +92,8 @@ def from_cirq(circuit: cirq.AbstractCircuit, source: str = "<cirq.Circuit>") -> 
 
     Raises:
         CircuitSyntaxError: ``source: moment k: ...`` for unsupported content (unresolved
-            parameters, reset or noise channels, classically controlled or mid-circuit
-            measurement, a gate after the measurement of its qubit).
+            parameters, noise channels, a condition on a key of several bits or on an expression,
+            a measurement with an inversion mask or confusion map).
     """
     if not isinstance(circuit, cirq.AbstractCircuit):
         raise TypeError(f"from_cirq expects a cirq.Circuit, got {type(circuit).__name__}")
@@ -100,8 +103,8 @@ def from_cirq(circuit: cirq.AbstractCircuit, source: str = "<cirq.Circuit>") -> 
         dup = sorted({n for n in names if names.count(n) > 1})
         raise InputError(f"{source}: two qubits share the display name {dup[0]!r}; rename one")
     conv = _Converter({q: i for i, q in enumerate(qubits)}, source)
-    program = conv.circuit(circuit, "", repeated=False)
-    return layer_program(program, qubits=names, measured=conv.measured, source=source)
+    program, measured = final_readout(conv.circuit(circuit, "", repeated=False))
+    return layer_program(program, qubits=names, measured=measured, source=source)
 
 
 def read_cirq_json(path: str | Path) -> StructuredCircuit:
@@ -128,7 +131,7 @@ class _Converter:
     def __init__(self, index: dict[cirq.Qid, int], source: str) -> None:
         self.index = index
         self.source = source
-        self.measured: dict[int, str] = {}  # qubit -> where it was measured
+        self.key_sizes: dict[str, int] = {}  # measurement key -> number of qubits it records
 
     def error(self, where: str, what: str) -> CircuitSyntaxError:
         return CircuitSyntaxError(f"{self.source}: {where}: {what}")
@@ -158,22 +161,20 @@ class _Converter:
             raise self.error(where, f"CircuitOperation repetitions = {reps!r}: expected an integer")
         body = op.circuit.unfreeze().transform_qubits(lambda q: op.qubit_map.get(q, q))
         body = cirq.resolve_parameters(body, op.param_resolver)
+        if op.measurement_key_map:
+            body = cirq.with_measurement_key_mapping(body, dict(op.measurement_key_map))
         if reps < 0:  # negative repetitions run the inverse circuit
             body = cirq.inverse(body)
         stmts = self.circuit(body, f"{where} > CircuitOperation ", repeated=repeated or abs(reps) > 1)
         return stmts if abs(reps) == 1 else [Loop(tuple(stmts), int(abs(reps)))]
 
-    def operation(self, op: cirq.Operation, where: str, *, repeated: bool) -> list[Operation]:
-        if cirq.is_measurement(op):
-            if repeated:
-                raise self.error(
-                    where, f"measurement {op} in a repeated CircuitOperation: mid-circuit measurement is not supported"
-                )
-            for q in op.qubits:
-                self.measured.setdefault(self.index[q], where)
-            return []
+    def operation(self, op: cirq.Operation, where: str, *, repeated: bool) -> list[Statement]:
+        if isinstance(op.gate, cirq.MeasurementGate):
+            return self.measure(op, where)
+        if isinstance(op.gate, cirq.ResetChannel):
+            return [Reset((self.index[op.qubits[0]],))]
         if isinstance(op, cirq.ClassicallyControlledOperation):
-            raise self.error(where, f"classically controlled operation {op} is not supported")
+            return [self.controlled(op, where, repeated=repeated)]
         if cirq.is_parameterized(op):
             raise self.error(where, f"operation {op} has unresolved parameters; call cirq.resolve_parameters first")
         if not op.qubits:
@@ -185,13 +186,6 @@ class _Converter:
                 "errors belong in the error model, not in the circuit",
             )
         qs = tuple(self.index[q] for q in op.qubits)
-        for q in qs:
-            if q in self.measured:
-                raise self.error(
-                    where,
-                    f"operation {op} on {op.qubits[qs.index(q)]} after its measurement in {self.measured[q]}: "
-                    "mid-circuit measurement is not supported",
-                )
         if len(qs) > 2:
             return self.large(op, qs, where, repeated=repeated)
         found = table_gate(op.gate)
@@ -199,6 +193,28 @@ class _Converter:
             return [Operation(found[0], qs, found[1])]
         label = str(op.gate) if op.gate is not None else str(op)
         return [Operation("unitary", qs, label=label, matrix=cirq.unitary(op).astype(complex))]
+
+    def measure(self, op: cirq.Operation, where: str) -> list[Statement]:
+        gate = op.gate
+        if any(gate.full_invert_mask()) or gate.confusion_map:
+            raise self.error(where, f"measurement {op} with an inversion mask or confusion map is not supported")
+        key = cirq.measurement_key_name(op)
+        self.key_sizes[key] = len(op.qubits)
+        bits = [key] if len(op.qubits) == 1 else [f"{key}[{k}]" for k in range(len(op.qubits))]
+        return [Measure((self.index[q],), (b,)) for q, b in zip(op.qubits, bits)]
+
+    def controlled(self, op: cirq.ClassicallyControlledOperation, where: str, *, repeated: bool) -> Conditional:
+        """An operation run when every condition holds; each must be a one-bit measurement key."""
+        bits = []
+        for cond in op.classical_controls:
+            if not isinstance(cond, cirq.KeyCondition) or self.key_sizes.get(str(cond.key), 1) != 1:
+                raise self.error(
+                    where, f"condition {cond} of {op}: only a measurement key of one qubit is supported"
+                )
+            bits.append(str(cond.key))
+        inner = op.without_classical_controls()
+        body = self.operation(inner, where, repeated=repeated)
+        return Conditional(tuple(bits), 2 ** len(bits) - 1, tuple(body))
 
     def large(self, op: cirq.Operation, qs: tuple[int, ...], where: str, *, repeated: bool) -> list[Operation]:
         """A gate on three or more qubits: the table decomposition for CCX/CSWAP, else cirq's."""

@@ -1,8 +1,17 @@
-"""The structured intermediate form: operations, layers and repeated blocks.
+"""The structured intermediate form: operations, layers, repeated blocks and measurement items.
 
-A circuit is a sequence of *items*; an item is either a :class:`Layer` (operations that run at the
-same time, no shared qubit) or a :class:`Repeat` (a body of items run ``count`` times in a row).
-Repetition is kept, never unrolled: ``count`` may be 10**9.
+A circuit is a sequence of *items*, each of one explicit kind:
+
+- :class:`Layer`: operations that run at the same time, no shared qubit;
+- :class:`Repeat`: a body of items run ``count`` times in a row;
+- :class:`Measure`: a projective Z measurement of some qubits, each outcome written to a named
+  classical bit (mid-circuit or final);
+- :class:`Reset`: some qubits put back to |0>;
+- :class:`IfBlock`: items run only when named classical bits hold a value (feed-forward).
+
+Repetition is kept, never unrolled: ``count`` may be 10**9. Code that walks items must name every
+kind it supports and refuse the others (:func:`item_kind` gives the kind's name for messages);
+:attr:`StructuredCircuit.has_mid_circuit` tells whether the last three kinds occur at all.
 
 Matrices follow cirq's convention: the first qubit of an operation is the most significant bit.
 """
@@ -86,7 +95,76 @@ class Repeat:
             raise ValueError(f"repeat count = {self.count}: must be at least 1")
 
 
-Item = Union[Layer, Repeat]
+@dataclass(frozen=True)
+class Measure:
+    """Projective measurement in Z of ``qubits``; the outcome of ``qubits[k]`` is written to the
+    classical bit named ``bits[k]`` (``"c[0]"``). The measured qubit keeps the projected state.
+
+    Bit names are plain strings; inside a loop whose variable indexes the bit (``c[i]``) the name
+    holds the variable (``"c[i]"``) and means this iteration's bit. Outcomes form the measurement
+    record in execution order (within an item, in the order of ``qubits``).
+    """
+
+    qubits: tuple[int, ...]
+    bits: tuple[str, ...]
+    line: int | None = field(default=None, compare=False)
+
+    def __post_init__(self) -> None:
+        if len(self.qubits) != len(self.bits):
+            raise ValueError(f"measure: {len(self.qubits)} qubits but {len(self.bits)} bits")
+        if len(set(self.qubits)) != len(self.qubits):
+            raise ValueError(f"measure on qubits {self.qubits}: a qubit appears twice in one item")
+
+
+@dataclass(frozen=True)
+class Reset:
+    """Reset of ``qubits`` to |0> (a measurement whose outcome is used to flip the qubit back)."""
+
+    qubits: tuple[int, ...]
+    line: int | None = field(default=None, compare=False)
+
+    def __post_init__(self) -> None:
+        if len(set(self.qubits)) != len(self.qubits):
+            raise ValueError(f"reset on qubits {self.qubits}: a qubit appears twice in one item")
+
+
+@dataclass(frozen=True)
+class IfBlock:
+    """Feed-forward: ``then`` runs when the bits hold ``value``, else ``orelse`` runs.
+
+    The integer read from the bits is Σ_k bit_k 2^k (``bits[0]`` least significant, as OpenQASM
+    reads ``c == 5`` for a register c); each bit holds the latest outcome written to it (0 if none).
+    """
+
+    bits: tuple[str, ...]
+    value: int
+    then: tuple["Item", ...]
+    orelse: tuple["Item", ...] = ()
+    line: int | None = field(default=None, compare=False)
+
+    def __post_init__(self) -> None:
+        if not self.bits:
+            raise ValueError("if: the condition names no classical bit")
+        if not 0 <= self.value < 2 ** len(self.bits):
+            raise ValueError(f"if: value {self.value} does not fit in {len(self.bits)} bit(s)")
+
+
+Item = Union[Layer, Repeat, Measure, Reset, IfBlock]
+
+MID_CIRCUIT_KINDS = (Measure, Reset, IfBlock)
+"""Item kinds that only the measurement-aware metrics (detectors, record) support."""
+
+
+def item_kind(item: object) -> str:
+    """A short name of an item's kind, for messages (``"measurement"``, ``"reset"``, ...)."""
+    return {Layer: "layer", Repeat: "repeat", Measure: "measurement", Reset: "reset", IfBlock: "if block"}.get(
+        type(item), type(item).__name__
+    )
+
+
+def unsupported_item(item: object, where: str) -> TypeError:
+    """The error a walker raises for an item kind it does not handle."""
+    return TypeError(f"{where}: circuit item of kind {item_kind(item)} is not supported here")
 
 
 @dataclass(frozen=True)
@@ -115,6 +193,21 @@ class StructuredCircuit:
             return self
         return StructuredCircuit(self.qubits, (Repeat(self.body, int(cycles)),), self.measured, self.source)
 
+    @property
+    def has_mid_circuit(self) -> bool:
+        """True when a measurement, reset or if block is an item of the circuit (at any depth)."""
+        return _first_mid(self.body) is not None
+
+    def mid_circuit_reason(self) -> str | None:
+        """None for a gate-only circuit, else a one-line reason naming the first such item."""
+        it = _first_mid(self.body)
+        if it is None:
+            return None
+        line = f" (line {it.line})" if it.line else ""
+        return (
+            f"the circuit has a mid-circuit {item_kind(it)}{line}: use --metric detectors or --metric record"
+        )
+
     def executed_counts(self) -> tuple[int, int]:
         """(operations, layers) actually executed, repetitions included (Python ints, no overflow)."""
         return _counts(self.body)
@@ -135,23 +228,46 @@ class StructuredCircuit:
             for it in items:
                 if isinstance(it, Layer):
                     out.extend(it.operations)
-                else:
+                elif isinstance(it, Repeat):
                     walk(it.body)
+                elif isinstance(it, IfBlock):
+                    walk(it.then)
+                    walk(it.orelse)
+                elif not isinstance(it, (Measure, Reset)):
+                    raise unsupported_item(it, "distinct_operations")
 
         walk(self.body)
         return out
 
 
+def _first_mid(items: tuple[Item, ...]) -> "Measure | Reset | IfBlock | None":
+    for it in items:
+        if isinstance(it, MID_CIRCUIT_KINDS):
+            return it
+        if isinstance(it, Repeat):
+            found = _first_mid(it.body)
+            if found is not None:
+                return found
+    return None
+
+
 def _counts(items: tuple[Item, ...]) -> tuple[int, int]:
+    """(operations, layers) executed; an if block counts its larger branch (an upper bound)."""
     ops = layers = 0
     for it in items:
         if isinstance(it, Layer):
             ops += len(it.operations)
             layers += 1
-        else:
+        elif isinstance(it, Repeat):
             o, l = _counts(it.body)
             ops += o * it.count
             layers += l * it.count
+        elif isinstance(it, IfBlock):
+            ops_layers = max(_counts(it.then), _counts(it.orelse))
+            ops += ops_layers[0]
+            layers += ops_layers[1]
+        elif not isinstance(it, (Measure, Reset)):
+            raise unsupported_item(it, "executed_counts")
     return ops, layers
 
 
@@ -159,6 +275,8 @@ def _iter(items: tuple[Item, ...]) -> Iterator[Layer]:
     for it in items:
         if isinstance(it, Layer):
             yield it
-        else:
+        elif isinstance(it, Repeat):
             for _ in range(it.count):
                 yield from _iter(it.body)
+        else:
+            raise unsupported_item(it, "iter_layers (gate layers only)")

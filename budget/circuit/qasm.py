@@ -3,8 +3,11 @@
 The reader walks the reference syntax tree (:mod:`budget.circuit.qasm_parse`), expands gate
 calls into table operations (user ``gate`` definitions are inlined with their parameters
 substituted; standard gates outside the table are replaced by the sequences of
-:mod:`budget.circuit.decompose`), keeps ``for`` loops as loops, and hands the flat program to
-:func:`budget.graph.layer_program`. What it accepts and rejects is written down in
+:mod:`budget.circuit.decompose`), keeps ``for`` loops as loops, reads ``measure``, ``reset`` and
+``if`` (classical bits: :mod:`budget.circuit.qasm_classical`) and hands the flat program to
+:func:`budget.graph.layer_program`. A circuit whose measurements all come last (no reset, no if)
+keeps them as the final readout; otherwise they stay items of the circuit
+(:func:`budget.circuit.program.final_readout`). What it accepts and rejects is written down in
 docs/circuit-formats.md.
 """
 
@@ -17,8 +20,9 @@ from openqasm3 import ast
 
 from budget.circuit.decompose import DECOMPOSITIONS, expand
 from budget.circuit.gates import ALIASES, GATES
-from budget.circuit.ir import Operation, StructuredCircuit
-from budget.circuit.program import Barrier, Loop, Statement
+from budget.circuit.ir import Measure, Operation, Reset, StructuredCircuit
+from budget.circuit.program import Barrier, Conditional, Loop, Statement, final_readout
+from budget.circuit.qasm_classical import Bits
 from budget.circuit.qasm_expr import Number, evaluate, line_of
 from budget.circuit.qasm_parse import parse_tree, qasm_version
 from budget.circuit.qasm_registers import Registers
@@ -29,17 +33,14 @@ from budget.problems import CircuitSyntaxError, place
 STANDARD_INCLUDES = ("qelib1.inc", "stdgates.inc")
 _BUILTIN_NAMES = {"U": "u", "CX": "cx"}
 _UNSUPPORTED = {
-    "QuantumReset": "reset (mid-circuit reset is not supported)",
-    "BranchingStatement": "classically controlled operation 'if' (the tool follows one fixed gate sequence)",
     "WhileLoop": "'while' loop (its iteration count is not known before running; use a for loop over an integer range)",
     "DelayInstruction": "delay (idle time is not modelled as an instruction; layers set the timing)",
     "Box": "box",
-    "SubroutineDefinition": "subroutine definition 'def'",
     "ExternDeclaration": "extern declaration",
     "CalibrationDefinition": "defcal",
     "CalibrationStatement": "cal block",
     "CalibrationGrammarDeclaration": "defcalgrammar",
-    "ClassicalAssignment": "classical assignment (only constant values are supported)",
+    "ClassicalAssignment": "classical assignment (only 'bit = measure qubit' and calls of measuring subroutines are supported)",
     "AliasStatement": "alias 'let'",
     "IODeclaration": "input/output declaration (give the value in the file instead)",
     "Pragma": "pragma",
@@ -83,7 +84,8 @@ def parse_qasm(text: str, *, source: str = "<string>") -> StructuredCircuit:
         raise CircuitSyntaxError(f"{source}: OPENQASM {version}: only versions 2 and 3 are supported")
     reader = _Reader(source, text.splitlines())
     program = reader.statements(parse_tree(text, source=source, version=version).statements, in_loop=False)
-    return layer_program(program, qubits=reader.regs.names, measured=reader.measured, source=source)
+    program, measured = final_readout(program)
+    return layer_program(program, qubits=reader.regs.names, measured=measured, source=source)
 
 
 class _Reader:
@@ -94,7 +96,8 @@ class _Reader:
         self.gates: dict[str, _GateDef] = {}
         self.consts: dict[str, Number] = {}
         self.regs = Registers(source, lines, self.consts)
-        self.measured: dict[int, int | None] = {}
+        self.bits = Bits(source, self.consts)
+        self.subroutines: dict[str, ast.SubroutineDefinition] = {}
 
     # -- helpers -------------------------------------------------------------------------------
     def error(self, node: ast.QASMNode | int | None, what: str) -> CircuitSyntaxError:
@@ -136,7 +139,21 @@ class _Reader:
             qs = [q for operand in st.qubits for q in self.regs.operand(operand)[0]] if st.qubits else []
             out.append(Barrier(tuple(qs), line_of(st)))
         elif isinstance(st, ast.QuantumMeasurementStatement):
-            self.measure(st.measure, st, in_loop)
+            self.measure(st.measure, st.target, st, out)
+        elif isinstance(st, ast.QuantumReset):
+            for q in self.regs.operand(st.qubits)[0]:
+                out.append(Reset((q,), line_of(st)))
+        elif isinstance(st, ast.BranchingStatement):
+            bits, value = self.bits.condition(st.condition)
+            then = self.statements(st.if_block, in_loop=in_loop)
+            orelse = self.statements(st.else_block, in_loop=in_loop)
+            out.append(Conditional(bits, value, tuple(then), tuple(orelse), line_of(st)))
+        elif isinstance(st, ast.SubroutineDefinition):
+            self.subroutine(st)
+        elif isinstance(st, ast.ClassicalAssignment) and st.op.name == "=" and self.measuring(st.rvalue):
+            self.assign(st.rvalue, st.lvalue, st, out)
+        elif isinstance(st, ast.ExpressionStatement) and isinstance(st.expression, ast.FunctionCall):
+            self.assign(st.expression, None, st, out)
         elif isinstance(st, ast.ForInLoop):
             self.loop(st, out)
         else:
@@ -145,8 +162,13 @@ class _Reader:
 
     def classical(self, st: ast.ClassicalDeclaration | ast.ConstantDeclaration, out, in_loop: bool) -> None:
         init = st.init_expression
+        if isinstance(st.type, ast.BitType):
+            if in_loop:
+                raise self.error(st, "bit declaration inside a loop is not supported (declare it before the loop)")
+            size = None if st.type.size is None else self.regs.integer(st.type.size, f"size of {st.identifier.name}")
+            self.bits.declare(st.identifier.name, size, st)
         if isinstance(init, ast.QuantumMeasurement):
-            self.measure(init, st, in_loop)
+            self.measure(init, st.identifier, st, out)
         elif init is not None and not isinstance(st.type, ast.BitType):
             self.consts[st.identifier.name] = self.value(init, self.consts)
 
@@ -158,11 +180,84 @@ class _Reader:
             tuple(a.name for a in st.arguments), tuple(q.name for q in st.qubits), tuple(st.body), line_of(st)
         )
 
-    def measure(self, meas: ast.QuantumMeasurement, st: ast.QASMNode, in_loop: bool) -> None:
-        if in_loop:
-            raise self.error(st, "measure inside a for loop is a mid-circuit measurement, which is not supported")
-        for q in self.regs.operand(meas.qubit)[0]:
-            self.measured.setdefault(q, line_of(st))
+    def measure(self, meas: ast.QuantumMeasurement, target, st: ast.QASMNode, out: list[Statement]) -> None:
+        """Projective Z measurement of each named qubit into the target's bits (in order)."""
+        qubits = self.regs.operand(meas.qubit)[0]
+        for q, bit in zip(qubits, self.bits.names(target, len(qubits), st)):
+            out.append(Measure((q,), (bit,), line_of(st)))
+
+    # -- measuring subroutines (stim writes `def mr(qubit q0) -> bit { ... }`) ------------------
+    def measuring(self, node: ast.Expression) -> bool:
+        return isinstance(node, ast.QuantumMeasurement) or (
+            isinstance(node, ast.FunctionCall) and node.name.name in self.subroutines
+        )
+
+    def subroutine(self, st: ast.SubroutineDefinition) -> None:
+        """Keep a subroutine whose arguments are single qubits; its body is read at each call."""
+        name = st.name.name
+        for arg in st.arguments:
+            if not isinstance(arg, ast.QuantumArgument) or arg.size is not None:
+                raise self.error(st, f"subroutine '{name}': only single-qubit arguments are supported")
+        if name in self.subroutines or name in self.gates:
+            raise self.error(st, f"subroutine '{name}' is defined twice")
+        self.subroutines[name] = st
+
+    def assign(self, rvalue: ast.Expression, lvalue, st: ast.QASMNode, out: list[Statement]) -> None:
+        """``bit = measure q`` or ``bit = sub(q...)`` with ``sub`` a measuring subroutine."""
+        if isinstance(rvalue, ast.QuantumMeasurement):
+            self.measure(rvalue, lvalue, st, out)
+            return
+        if not isinstance(rvalue, ast.FunctionCall) or rvalue.name.name not in self.subroutines:
+            raise self.error(st, "only calls of subroutines defined in the file are supported")
+        sub = self.subroutines[rvalue.name.name]
+        if len(rvalue.arguments) != len(sub.arguments):
+            raise self.error(st, f"subroutine '{sub.name.name}' takes {len(sub.arguments)} argument(s), got {len(rvalue.arguments)}")
+        local: dict[str, int] = {}
+        for arg, given in zip(sub.arguments, rvalue.arguments):
+            if isinstance(given, ast.IndexExpression) and isinstance(given.collection, ast.Identifier):
+                indexed = ast.IndexedIdentifier(name=given.collection, indices=[given.index])
+                indexed.span = given.span
+                given = indexed
+            qs, many = self.regs.operand(given)
+            if many:
+                raise self.error(st, f"subroutine '{sub.name.name}': pass single qubits, not a register")
+            local[arg.name.name] = qs[0]
+        result = None if lvalue is None else self.bits.names(lvalue, 1, st)[0]
+        bits: dict[str, str] = {}
+        for inner in sub.body:
+            self.sub_statement(sub.name.name, inner, local, bits, result, st, out)
+
+    def sub_statement(self, name: str, inner, local, bits: dict[str, str], result, call, out) -> None:
+        line = line_of(call)
+
+        def qubit(node) -> int:
+            if not isinstance(node, ast.Identifier) or node.name not in local:
+                raise self.error(inner, f"inside subroutine '{name}', operands must be its qubit arguments")
+            return local[node.name]
+
+        if isinstance(inner, ast.ClassicalDeclaration) and isinstance(inner.type, ast.BitType) and inner.type.size is None:
+            bits[inner.identifier.name] = self.bits.fresh()
+            if isinstance(inner.init_expression, ast.QuantumMeasurement):
+                out.append(Measure((qubit(inner.init_expression.qubit),), (bits[inner.identifier.name],), line))
+        elif isinstance(inner, ast.QuantumMeasurementStatement):
+            target = inner.target
+            if target is not None and not (isinstance(target, ast.Identifier) and target.name in bits):
+                raise self.error(inner, f"inside subroutine '{name}', measure into a local bit")
+            bit = bits[target.name] if target is not None else self.bits.fresh()
+            out.append(Measure((qubit(inner.measure.qubit),), (bit,), line))
+        elif isinstance(inner, ast.QuantumReset):
+            out.append(Reset((qubit(inner.qubits),), line))
+        elif isinstance(inner, ast.QuantumGate) and not inner.modifiers:
+            angles = tuple(float(self.value(a, self.consts)) for a in inner.arguments)
+            self.apply(inner.name.name, angles, tuple(qubit(q) for q in inner.qubits), line, out, ())
+        elif isinstance(inner, ast.ReturnStatement):
+            ret = inner.expression
+            if not isinstance(ret, ast.Identifier) or ret.name not in bits:
+                raise self.error(inner, f"subroutine '{name}' must return one of its local bits")
+            if result is not None:
+                _rename_last(out, bits[ret.name], result)
+        else:
+            raise self.error(inner, f"{type(inner).__name__} inside subroutine '{name}' is not supported")
 
     # -- gates ---------------------------------------------------------------------------------
     def call(self, st: ast.QuantumGate, out: list[Statement]) -> None:
@@ -207,14 +302,6 @@ class _Reader:
             )
 
     def emit(self, op: Operation, out: list[Statement]) -> None:
-        done = [q for q in op.qubits if q in self.measured]
-        if done:
-            q = done[0]
-            raise self.error(
-                op.line,
-                f"gate {op.gate} on {self.regs.names[q]} after its measurement at line {self.measured[q]}: "
-                "mid-circuit measurement is not supported (measure only at the end)",
-            )
         out.append(op)
 
     def inline(self, name: str, params, qubits, line, out, stack: tuple[str, ...]) -> None:
@@ -251,15 +338,20 @@ class _Reader:
     # -- loops ---------------------------------------------------------------------------------
     def loop(self, st: ast.ForInLoop, out: list[Statement]) -> None:
         var = st.identifier.name
-        use = _first_use(st.block, var)
+        use = _first_use(st.block, var, set(self.bits.table))
         if use is not None:
             raise self.error(
                 line_of(use) or line_of(st),
                 f"loop variable '{var}' of the for loop at line {line_of(st)} is used in its body: "
-                "loops are kept as repeated blocks, so every iteration must be identical",
+                "loops are kept as repeated blocks, so every iteration must be identical "
+                "(only a classical bit may be indexed by it, as in c[i] = measure q;)",
             )
         count = self.loop_count(st)
-        body = self.statements(st.block, in_loop=True)
+        self.bits.loop_vars.append(var)
+        try:
+            body = self.statements(st.block, in_loop=True)
+        finally:
+            self.bits.loop_vars.pop()
         out.append(Loop(tuple(body), count, line_of(st)))
 
     def loop_count(self, st: ast.ForInLoop) -> int:
@@ -279,10 +371,29 @@ class _Reader:
         raise self.error(st, "for loop over something other than an integer range or {set} is not supported")
 
 
-def _first_use(block: list[ast.Statement], name: str) -> ast.Identifier | None:
-    """The first identifier ``name`` in a loop body (gate names excluded), or None."""
+def _rename_last(out: list[Statement], old: str, new: str) -> None:
+    """Give the latest measurement into bit ``old`` the bit name ``new`` (a subroutine's result)."""
+    for k in range(len(out) - 1, -1, -1):
+        st = out[k]
+        if isinstance(st, Measure) and st.bits == (old,):
+            out[k] = Measure(st.qubits, (new,), st.line)
+            return
+
+
+def _first_use(block: list[ast.Statement], name: str, registers: set[str] = frozenset()) -> ast.Identifier | None:
+    """The first identifier ``name`` in a loop body (gate names excluded), or None; an index of a
+    classical bit register (``c[i]``) does not count."""
+
+    def bit_index(node) -> bool:
+        if isinstance(node, ast.IndexedIdentifier) and node.name.name in registers:
+            return _same_var(node.indices, name)
+        if isinstance(node, ast.IndexExpression) and isinstance(node.collection, ast.Identifier):
+            return node.collection.name in registers and len(node.index) == 1 and _is_var(node.index[0], name)
+        return False
 
     def walk(node) -> ast.Identifier | None:
+        if bit_index(node):
+            return None
         if isinstance(node, list):
             for item in node:
                 found = walk(item)
@@ -301,3 +412,11 @@ def _first_use(block: list[ast.Statement], name: str) -> ast.Identifier | None:
         return None
 
     return walk(block)
+
+
+def _is_var(node, name: str) -> bool:
+    return isinstance(node, ast.Identifier) and node.name == name
+
+
+def _same_var(indices, name: str) -> bool:
+    return len(indices) == 1 and len(indices[0]) == 1 and _is_var(indices[0][0], name)

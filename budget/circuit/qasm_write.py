@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import re
 
-from budget.circuit.ir import Layer, StructuredCircuit
+from budget.circuit.ir import Layer, Repeat, StructuredCircuit, item_kind
 from budget.problems import InputError
 
 _NAME = re.compile(r"([A-Za-z_][A-Za-z0-9_]*)\[(\d+)\]")
@@ -46,12 +46,14 @@ def to_qasm3(circuit: StructuredCircuit, *, header: str = "") -> str:
                                          f"{', '.join(circuit.qubits[q] for q in op.qubits)} has no OpenQASM name")
                     args = f"({', '.join(repr(float(p)) for p in op.params)})" if op.params else ""
                     lines.append(f"{indent}{op.gate}{args} {', '.join(circuit.qubits[q] for q in op.qubits)};")
-            else:
+            elif isinstance(it, Repeat):
                 var = f"i{depth[0]}"
                 depth[0] += 1
                 lines.append(f"{indent}for int {var} in [0:{it.count - 1}] {{")
                 walk(it.body, indent + "  ")
                 lines.append(f"{indent}}}")
+            else:
+                raise InputError(f"{circuit.source}: writing a {item_kind(it)} item as OpenQASM is not supported")
 
     walk(circuit.body, "")
     for j, q in enumerate(circuit.measured):

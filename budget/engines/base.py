@@ -21,6 +21,8 @@ from budget.errors.noisy import NoisyCircuit
 
 Metric = Literal["process", "state"]
 METRICS: tuple[str, ...] = ("process", "state")
+MEASURED_METRICS: tuple[str, ...] = ("detectors", "record")
+"""Metrics of circuits with mid-circuit measurement (:mod:`budget.analysis.measured`)."""
 
 
 @dataclass(frozen=True)

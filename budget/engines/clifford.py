@@ -91,6 +91,8 @@ class CliffordEngine:
         """None when every ideal gate is Clifford, else the first offending gate and its line."""
         if metric not in METRICS:
             return f"metric {metric!r} is not one of {', '.join(METRICS)}"
+        if circuit.has_mid_circuit:
+            return circuit.mid_circuit_reason()
         distinct = {id(nop): nop.op for layer in circuit.distinct_layers() for nop in layer.operations}
         op = first_non_clifford(distinct.values())
         if op is None:

@@ -151,6 +151,8 @@ class ExactEngine:
         """None when the circuit fits, else the reason (qubits, limit, memory, engines that fit)."""
         if metric not in METRICS:
             return f"metric {metric!r} is not one of {', '.join(METRICS)}"
+        if circuit.has_mid_circuit:
+            return circuit.mid_circuit_reason()
         return refusal(circuit, metric, make_plan(circuit, metric, self.repeats))
 
     def brief(self) -> "ExactEngine":

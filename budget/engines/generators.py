@@ -106,6 +106,8 @@ class GeneratorsEngine:
         """None when the circuit fits, else the reason (qubits, limit, memory, engine that fits)."""
         if metric not in METRICS:
             return f"metric {metric!r} is not one of {', '.join(METRICS)}"
+        if circuit.has_mid_circuit:
+            return circuit.mid_circuit_reason()
         n = circuit.num_qubits
         if _needs_dense(circuit, metric, observables):
             if n > MAX_DENSE_QUBITS:

@@ -22,12 +22,22 @@ import difflib
 import re
 from typing import Literal
 
-from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
+from budget.circuit.ir import IfBlock, Layer, Measure, Operation, Repeat, Reset, StructuredCircuit
 from budget.errors.context import ContextTable
 from budget.errors.context_attach import ContextPlacer
 from budget.errors.knobs import CoherentError, coherent_error
 from budget.errors.model import ErrorModel
-from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
+from budget.errors.noisy import (
+    NoisyCircuit,
+    NoisyIf,
+    NoisyItem,
+    NoisyLayer,
+    NoisyMeasure,
+    NoisyOperation,
+    NoisyRepeat,
+    NoisyReset,
+    Relaxation,
+)
 from budget.errors.params import GateParams
 from budget.problems import ModelError
 
@@ -127,8 +137,18 @@ class _Attacher:
             elif isinstance(it, Repeat):
                 block, prev = self.repeat(it, prev)
                 out.extend(block)
+            elif isinstance(it, (Measure, Reset)):
+                if id(it) not in self._items:
+                    self._items[id(it)] = self.probe(it)
+                out.append(self._items[id(it)])
+                prev = None  # no pulse bleeds across a measurement or reset
+            elif isinstance(it, IfBlock):
+                then, _ = self.items(it.then, prev)
+                orelse, _ = self.items(it.orelse, prev)
+                out.append(NoisyIf(it, then, orelse))
+                prev = None
             else:
-                raise TypeError(f"circuit item {it!r}: expected a Layer or a Repeat")
+                raise TypeError(f"circuit item {it!r}: expected a Layer, Repeat, Measure, Reset or IfBlock")
         return tuple(out), prev
 
     def repeat(self, rep: Repeat, prev: Layer | None) -> tuple[tuple[NoisyItem, ...], Layer | None]:
@@ -162,6 +182,22 @@ class _Attacher:
                 if r is not None:
                     idle.append(r)
         return NoisyLayer(ops, tuple(idle), length)
+
+    def probe(self, it: Measure | Reset) -> NoisyMeasure | NoisyReset:
+        """Measurement or reset: its error per qubit ([qubits] readout_error / reset_error), its
+        duration ([gates.measure] / [gates.reset] duration_ns, the longest of its qubits) and the
+        idle relaxation of every other qubit meanwhile."""
+        name = "measure" if isinstance(it, Measure) else "reset"
+        params = [self.model.gate(name, (self.names[q],)) for q in it.qubits]
+        length = max((gp.duration_ns for gp in params), default=0.0)
+        family = params[0].family or name if params else name
+        idle = tuple(r for q in range(len(self.names)) if q not in it.qubits
+                     for r in [self.relax(q, length)] if r is not None)
+        if isinstance(it, Measure):
+            errors = tuple(self.qubit_params[q].readout_error for q in it.qubits)
+            return NoisyMeasure(it, family, errors, idle, length)
+        errors = tuple(self.qubit_params[q].reset_error for q in it.qubits)
+        return NoisyReset(it, family, errors, idle, length)
 
     def operation(self, op: Operation, table: ContextTable | None = None) -> NoisyOperation:
         key = (op.gate, op.qubits, op.params, None if op.matrix is None else id(op.matrix), id(table))
@@ -200,7 +236,10 @@ class _Attacher:
 
 
 def _first_layer(rep: Repeat) -> Layer | None:
+    """The first gate layer of a repeat's body, None when a measurement, reset or if comes first."""
     for it in rep.body:
+        if not isinstance(it, (Layer, Repeat)):
+            return None
         found = it if isinstance(it, Layer) else _first_layer(it)
         if found is not None:
             return found

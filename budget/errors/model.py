@@ -2,11 +2,12 @@
 
 Layout::
 
-    [qubits]                 defaults for every qubit (t1_us, t2_us, readout_error)
+    [qubits]                 defaults for every qubit (t1_us, t2_us, readout_error, reset_error)
     [qubits."q[3]"]          one qubit, named as in the circuit; replaces what it names
     [gates.cz]               one gate (duration_ns, knobs, avg_infidelity, family)
     [gates.cz."q[0],q[1]"]   that gate on given qubits, in gate order; inherits gates.cz
     [couplings], [crosstalk], [bleed], [[context]]   context errors (budget/errors/context.py)
+    [gates.measure]          measurement and reset (gates.reset): duration_ns and family only
 
 Every rule violation raises one :class:`~budget.problems.ModelError` naming the full key path,
 the value, the file and the rule, e.g.
@@ -25,7 +26,7 @@ from typing import Any, Mapping
 
 from budget.circuit.gates import ALIASES, GATES, exchange_symmetric
 from budget.errors.context import SECTIONS, ContextModel, parse_context
-from budget.errors.params import LARGE_ANGLE_RAD, FieldError, GateParams, QubitParams, key_path, mirrored, show
+from budget.errors.params import LARGE_ANGLE_RAD, PROBES, FieldError, GateParams, QubitParams, key_path, mirrored, show
 from budget.errors.uncertain import central_values
 from budget.problems import ModelError, place
 
@@ -217,14 +218,14 @@ class _Parser:
         for raw_name, table in self.table(("gates",), raw).items():
             base = ("gates", raw_name)
             name = ALIASES.get(raw_name, raw_name)
-            if name not in GATES:
-                raise self.unknown(base, table, sorted(GATES), "not a gate in the gate table", "known gates")
+            if name not in GATES and name not in PROBES:
+                raise self.unknown(base, table, sorted(GATES) + sorted(PROBES), "not a gate in the gate table", "known gates")
             if name in seen:
                 raise self.fail(base, table, f"gate {name} is already described by gates.{seen[name]}")
             seen[name] = raw_name
             own, subs = self.split(base, self.table(base, table), _GATE_KEYS)
             gates[name] = self.build(GateParams, dict(own), base, None, {}, name)
-            n = GATES[name].num_qubits
+            n = GATES[name].num_qubits if name in GATES else 1
             for key, sub in subs.items():
                 path = base + (key,)
                 names = _split_names(key)
@@ -238,7 +239,7 @@ class _Parser:
                 overrides[(name, names)] = self.build(GateParams, {**own, **extra}, base, path, extra, name)
                 for q in names:
                     self.mentions.setdefault(q, key_path(path))
-                if exchange_symmetric(name):
+                if name in GATES and exchange_symmetric(name):
                     mirrors[(name, names[::-1])] = (own, mirrored(extra), base, path, name)
         for key, (own, extra, base, path, name) in mirrors.items():
             if key not in overrides:  # a table written for the other order wins

@@ -5,6 +5,11 @@ ideal gate → coherent unitary → stochastic Pauli rates (if any) → depolari
 operation's duration on each of its qubits. Each layer then lets every qubit relax for the part of
 the layer's duration it did not spend in a gate (idle relaxation, family ``"idle"``).
 
+Measurement items (design.md §8): a :class:`NoisyMeasure` projects its qubits in Z and flips each
+recorded bit with the qubit's ``readout_error``; a :class:`NoisyReset` puts its qubits in |0> and
+leaves each in |1> with the qubit's ``reset_error``; during either, every other qubit relaxes
+(family ``"idle"``). A :class:`NoisyIf` holds both branches of a classically controlled block.
+
 Conventions: matrices in gate order, first qubit most significant (cirq's convention).
 """
 
@@ -15,7 +20,7 @@ from typing import Iterator, Union
 
 import numpy as np
 
-from budget.circuit.ir import Operation
+from budget.circuit.ir import IfBlock, Measure, Operation, Reset, item_kind
 
 IDLE = "idle"
 """Family name of idle relaxation."""
@@ -140,7 +145,58 @@ class NoisyRepeat:
         return id(self)
 
 
-NoisyItem = Union[NoisyLayer, NoisyRepeat]
+@dataclass(frozen=True)
+class NoisyMeasure:
+    """A measurement item with its errors.
+
+    Attributes:
+        item: the ideal measurement (qubits and the bits they write).
+        family: family name of the readout error (``"measure"`` unless the model names one).
+        readout_error: per measured qubit (same order), the probability that the recorded bit is
+            flipped; the post-measurement state is the projected one either way.
+        idle: relaxation of every other qubit for the measurement's duration.
+        duration_ns: the longest measurement duration among the qubits.
+    """
+
+    item: Measure
+    family: str
+    readout_error: tuple[float, ...]
+    idle: tuple[Relaxation, ...] = ()
+    duration_ns: float = 0.0
+
+    def __hash__(self) -> int:
+        return id(self)
+
+
+@dataclass(frozen=True)
+class NoisyReset:
+    """A reset item with its errors: each qubit ends in |1> with ``reset_error`` (same order as
+    ``item.qubits``), else in |0>; every other qubit idles for ``duration_ns``."""
+
+    item: Reset
+    family: str
+    reset_error: tuple[float, ...]
+    idle: tuple[Relaxation, ...] = ()
+    duration_ns: float = 0.0
+
+    def __hash__(self) -> int:
+        return id(self)
+
+
+@dataclass(frozen=True)
+class NoisyIf:
+    """A classically controlled block: ``then`` runs when ``item.bits`` hold ``item.value``."""
+
+    item: IfBlock
+    then: tuple["NoisyItem", ...]
+    orelse: tuple["NoisyItem", ...] = ()
+
+    def __hash__(self) -> int:
+        return id(self)
+
+
+NoisyItem = Union[NoisyLayer, NoisyRepeat, NoisyMeasure, NoisyReset, NoisyIf]
+NOISY_MID_CIRCUIT = (NoisyMeasure, NoisyReset, NoisyIf)
 
 
 @dataclass(frozen=True)
@@ -175,6 +231,35 @@ class NoisyCircuit:
     def has_repeats(self) -> bool:
         return any(isinstance(it, NoisyRepeat) for it in self.body)
 
+    @property
+    def has_mid_circuit(self) -> bool:
+        """True when a measurement, reset or if block is an item (at any depth)."""
+        return self.mid_circuit_reason() is not None
+
+    def mid_circuit_reason(self) -> str | None:
+        """None for a gate-only circuit, else a one-line reason for engines and metrics that
+        handle only gate layers (naming the first such item and the metrics that take it)."""
+        it = self.first_mid_circuit()
+        if it is None:
+            return None
+        line = f" at line {it.item.line}" if it.item.line else ""
+        return f"the circuit has a mid-circuit {item_kind(it.item)}{line}; use --metric detectors or --metric record"
+
+    def first_mid_circuit(self) -> "NoisyMeasure | NoisyReset | NoisyIf | None":
+        """The first measurement, reset or if item in program order, or None."""
+
+        def first(items) -> NoisyMeasure | NoisyReset | NoisyIf | None:
+            for it in items:
+                if isinstance(it, NOISY_MID_CIRCUIT):
+                    return it
+                if isinstance(it, NoisyRepeat):
+                    found = first(it.body)
+                    if found is not None:
+                        return found
+            return None
+
+        return first(self.body)
+
     def distinct_layers(self) -> list[NoisyLayer]:
         """Every layer as written (once per place in the text, repeats not unrolled)."""
         out: list[NoisyLayer] = []
@@ -183,8 +268,11 @@ class NoisyCircuit:
             for it in items:
                 if isinstance(it, NoisyLayer):
                     out.append(it)
-                else:
+                elif isinstance(it, NoisyRepeat):
                     walk(it.body)
+                elif isinstance(it, NoisyIf):
+                    walk(it.then)
+                    walk(it.orelse)
 
         walk(self.body)
         return out
@@ -196,22 +284,28 @@ class NoisyCircuit:
             for it in items:
                 if isinstance(it, NoisyLayer):
                     yield it
-                else:
+                elif isinstance(it, NoisyRepeat):
                     for _ in range(it.count):
                         yield from walk(it.body)
+                else:
+                    raise TypeError(f"iter_layers: {self.mid_circuit_reason()}")
 
         yield from walk(self.body)
 
     def multiplicities(self) -> list[tuple[NoisyLayer, int]]:
-        """Each distinct layer with the number of times it executes (Python int, exact)."""
+        """Each distinct layer with the number of times it executes (Python int, exact); the
+        layers of an if block count as if both branches ran (an upper bound)."""
         out: list[tuple[NoisyLayer, int]] = []
 
         def walk(items: tuple[NoisyItem, ...], mult: int) -> None:
             for it in items:
                 if isinstance(it, NoisyLayer):
                     out.append((it, mult))
-                else:
+                elif isinstance(it, NoisyRepeat):
                     walk(it.body, mult * it.count)
+                elif isinstance(it, NoisyIf):
+                    walk(it.then, mult)
+                    walk(it.orelse, mult)
 
         walk(self.body, 1)
         return out

@@ -76,17 +76,20 @@ class QubitParams:
         t2_us: coherence time T2 (Ramsey/echo, as the lab reports it) in µs, > 0 and <= 2 T1;
             None = no pure dephasing beyond what T1 implies (T2 = 2 T1).
         readout_error: probability of reading the wrong outcome, in [0, 1].
+        reset_error: probability that the qubit is left in |1> after a reset, in [0, 1].
     """
 
     t1_us: float | None = None
     t2_us: float | None = None
     readout_error: float = 0.0
+    reset_error: float = 0.0
 
     def __post_init__(self) -> None:
         for name in ("t1_us", "t2_us"):
             if getattr(self, name) is not None:
                 object.__setattr__(self, name, number(name, getattr(self, name), "microseconds", positive=True))
-        object.__setattr__(self, "readout_error", number("readout_error", self.readout_error, "a probability", low=0.0, high=1.0))
+        for name in ("readout_error", "reset_error"):
+            object.__setattr__(self, name, number(name, getattr(self, name), "a probability", low=0.0, high=1.0))
         if self.t1_us is not None and self.t2_us is not None and self.t2_us > 2 * self.t1_us:
             raise FieldError(("t2_us",), self.t2_us, f"needs T2 <= 2·T1, but T2 = {self.t2_us:g} µs and "
                              f"2·T1 = {2 * self.t1_us:g} µs (T2 > 2 T1 is unphysical)", ("t2_us", "t1_us"))
@@ -122,6 +125,10 @@ def mirrored(extra: Mapping[str, Any]) -> dict[str, Any]:
         out["pauli"] = {str(label)[::-1]: h for label, h in out["pauli"].items()}
     return out
 
+
+PROBES = {"measure": "readout_error", "reset": "reset_error"}
+"""Non-unitary instructions with a [gates.NAME] table (duration and family only) and the qubit key
+that holds their error."""
 
 _XY = ", ".join(g for g, s in GATES.items() if s.xy_plane)
 
@@ -187,7 +194,16 @@ class GateParams:
             raise FieldError(("family",), self.family, "expected a non-empty string")
 
     def check_gate(self, name: str) -> None:
-        """Check the rules that depend on the gate (knobs that apply, lengths, r <= (d-1)/d)."""
+        """Check the rules that depend on the gate (knobs that apply, lengths, r <= (d-1)/d);
+        ``measure`` and ``reset`` take only ``duration_ns`` and ``family``."""
+        if name in PROBES:
+            extra = [k for k in ("overrotation", "axis_error", "z_phase", "cphase", "swap_angle")
+                     if getattr(self, k) is not None] + (["pauli"] if self.pauli else [])
+            extra += ["avg_infidelity"] if self.avg_infidelity else []
+            if extra:
+                raise FieldError((extra[0],), getattr(self, extra[0]), f"does not apply to {name}: only duration_ns "
+                                 f"and family do (its errors are [qubits] {PROBES[name]})")
+            return
         s = spec(name)
         n, d = s.num_qubits, 2**s.num_qubits
         if self.overrotation is not None and not s.num_params and s.rotation_generator is None:

@@ -15,6 +15,7 @@ from budget.analysis.depth import DepthCurve
 from budget.analysis.heatmap import ErrorMap
 from budget.analysis.ratios import safe_ratio
 from budget.analysis.result import BudgetResult
+from budget.engines.base import MEASURED_METRICS
 
 ENGINE_WORDS = {
     "exact": "exact simulation (dense state vector or density matrix; repeated blocks by matrix powers). "
@@ -205,6 +206,10 @@ def model_rows(model: Any) -> tuple[ModelRow, ...]:
     return tuple(rows)
 
 
+MEASURED_DEPTH = 16
+"""Deepest repetition count of the report's depth curves for the detector and record metrics."""
+
+
 def gather(
     circuit: Any,
     errors: Any,
@@ -245,6 +250,8 @@ def gather(
                            compare_twirled=True, cycles=cycles, notes=model.warnings())
     notes: list[str] = []
     deepest = max_cycles if max_cycles is not None else min(max(1000, 100 * cycles), 10**18)
+    if metric in MEASURED_METRICS and max_cycles is None:
+        deepest, points = MEASURED_DEPTH, min(points, 6)  # every point unrolls the rounds
     try:
         curve = depth_curve(block, max_cycles=deepest, points=points, metric=metric, engine=engine,
                             target=target, progress=progress)

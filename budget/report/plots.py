@@ -174,10 +174,29 @@ def heatmap_svg(emap: ErrorMap) -> str:
         return _svg(fig, "error-map")
 
 
+def detector_heat_svg(rounds: list[int], grid: list[list[float | None]]) -> str:
+    """Rounds (rows) by detector within the round (columns): firing probability per detector."""
+    with plt.rc_context(_STYLE):
+        data = np.array([[np.nan if p is None else p for p in row] for row in grid], dtype=float)
+        n_r, n_d = data.shape
+        fig, ax = plt.subplots(figsize=(min(max(4.0, 0.3 * n_d + 2.5), 11.0), min(0.3 * n_r + 1.6, 9.0)))
+        im = ax.imshow(data, aspect="auto", cmap=_HEAT, interpolation="nearest", vmin=0)
+        step = max(1, math.ceil(n_r / 25))
+        ax.set_yticks(range(0, n_r, step), [str(rounds[i]) for i in range(0, n_r, step)])
+        ax.set_ylabel("round")
+        ax.set_xlabel("detector within the round")
+        for s in ax.spines.values():
+            s.set_visible(False)
+        bar = fig.colorbar(im, ax=ax, pad=0.02)
+        bar.set_label("probability that the detector fires")
+        return _svg(fig, "detector-map")
+
+
 def _positive_floor(curve: DepthCurve) -> float:
     vals = [v for key in ("naive", "structured", "twirled") for v in getattr(curve, key) if v is not None and v > 0]
     return min(vals) / 10 if vals else 1e-12
 
 
 def _metric_label(metric: str) -> str:
-    return "process infidelity 1 − F_pro" if metric == "process" else "state infidelity, input |0…0⟩"
+    return {"process": "process infidelity 1 − F_pro", "state": "state infidelity, input |0…0⟩",
+            "detectors": "P(some detector fires)", "record": "record infidelity"}.get(metric, metric)

@@ -22,6 +22,11 @@ def figures(data: ReportData) -> dict[str, str]:
         from budget.report.calib_sections import band_svg
 
         out["uncertainty-band"] = band_svg(data.extras.band)
+    if data.result.detectors:
+        from budget.report.detector_views import heat_rows
+        from budget.report.plots import detector_heat_svg
+
+        out["detector-map"] = detector_heat_svg(*heat_rows(data.result))
     return out
 
 

@@ -70,6 +70,7 @@ def build(data: ReportData, figures: dict[str, str]) -> list[Block]:
     out.append(Tiles(tuple(tiles)))
     out += _depth(data, figures)
     out += _shares(data, figures)
+    out += _detectors(data, figures)
     out += _error_map(data, figures)
     out += _tolerances(data)
     out += _calibration(data)
@@ -175,6 +176,30 @@ def _shares(data: ReportData, figures: dict[str, str]) -> list[Block]:
         tuple((f.name, f"{f.operations:,}", num(f.share), f"{100 * f.share / total:.1f} %" if _meaningful(total) else "—")
               for f in r.families),
         (False, True, True, True),
+    ))
+    return out
+
+
+def _detectors(data: ReportData, figures: dict[str, str]) -> list[Block]:
+    """Detector metric: the rounds-by-detector map and the detectors that fire most."""
+    r = data.result
+    if not r.detectors:
+        return []
+    out: list[Block] = [Heading("Which checks fire: rounds by detector", "detectors")]
+    out.append(Para(
+        f"{len(r.detectors)} detectors (parities of measurement outcomes that the ideal circuit fixes) were found; "
+        "each cell is the probability that one fires. A check that detects an error projects it, so coherent "
+        "errors build up across rounds only where the checks cannot see them. The family table above gives "
+        "each family's share of the probability that some detector fires."
+    ))
+    if "detector-map" in figures:
+        out.append(Figure("detector-map", figures["detector-map"], "Firing probability per round and detector."))
+    top = sorted(r.detectors, key=lambda d: -d.probability)[:8]
+    out.append(Table(
+        ("round", "measurements", "P(fires)", "largest family"),
+        tuple((str(d.round), ",".join(map(str, d.measurements)), num(d.probability),
+               max(d.families, key=d.families.get) if d.families else "—") for d in top),
+        (True, False, True, False),
     ))
     return out
 

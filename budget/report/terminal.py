@@ -9,10 +9,13 @@ from rich.text import Text
 
 from budget.analysis.ratios import at_rounding_level
 from budget.analysis.result import CAUTION, BudgetResult
+from budget.report.detector_views import detector_views
 
 _METRIC_WORDS = {
     "process": "process infidelity (1 - F_pro)",
     "state": "state infidelity for input |0…0>",
+    "detectors": "probability that some detector fires",
+    "record": "1 - classical fidelity of the measurement record",
 }
 
 
@@ -33,6 +36,10 @@ _TONES = {"bad": "bold red", "good": "bold green", "": "bold"}
 def verdict_text(result: BudgetResult) -> Text:
     """The verdict of :mod:`budget.analysis.verdict`, coloured by its tone."""
     v = result.verdict
+    if result.metric == "detectors" and result.coherent_amplification is not None:
+        return Text(f"detectors fire with {result.coherent_amplification:.2f}x the loss the fidelity product counts "
+                    "(errors the checks cannot see do not fire them; coherent ones may add up within a round)",
+                    style="bold")
     return Text(v.words, style="dim" if v.kind == "no-error" else _TONES[v.tone])
 
 
@@ -41,7 +48,9 @@ def summary_table(result: BudgetResult) -> Table:
     t.add_column(style="bold")
     t.add_column(justify="right")
     t.add_column(style="dim")
-    t.add_row("fidelity product (naive)", fmt(result.naive_infidelity), "1 - Π F_pro over operations and idle slots")
+    product = ("1 - Π F_pro over operations and idle slots" if result.metric in ("process", "state")
+               else "1 - Π F over operations, idle slots, readouts and resets")
+    t.add_row("fidelity product (naive)", fmt(result.naive_infidelity), product)
     if result.in_range:
         t.add_row(f"actual ({result.engine})", fmt(result.actual_infidelity), _METRIC_WORDS[result.metric])
         if result.first_order is not None and result.first_order <= 1:
@@ -51,7 +60,9 @@ def summary_table(result: BudgetResult) -> Table:
     else:
         t.add_row(f"actual ({result.engine})", "beyond range", "no value: the first-order model does not hold")
     if result.twirled_infidelity is not None:
-        t.add_row("Pauli-twirled", fmt(result.twirled_infidelity), "same errors, coherent parts randomised")
+        what = ("same errors, coherent parts randomised" if result.metric in ("process", "state")
+                else "every channel Pauli-twirled, Pauli frames (first order)")
+        t.add_row("Pauli-twirled", fmt(result.twirled_infidelity), what)
     t.add_row("actual ÷ naive", result.verdict.amplification.shown(), "the verdict below reads this ratio")
     return t
 
@@ -137,6 +148,7 @@ def render_budget(result: BudgetResult) -> Group:
     for extra in (drilldown_table(result), qubit_map_table(result)):
         if extra is not None:
             parts.append(extra)
+    parts.extend(detector_views(result))
     if result.observables:
         ot = Table(title="observables (error of the expectation value)", title_justify="left")
         ot.add_column("observable")

@@ -1,0 +1,298 @@
+"""Detectors and logical observables of a Clifford circuit with mid-circuit measurements.
+
+In the ideal circuit every measurement outcome is r = r₀ ⊕ A s over GF(2): a fixed reference
+record r₀ plus a linear function of independent random bits s (each random outcome of a
+stabilizer measurement is a fresh bit; every later outcome is a GF(2) combination of earlier ones,
+Gottesman, arXiv:quant-ph/9807006 (1998); Aaronson & Gottesman, PRA 70, 052328 (2004)). A parity v
+of outcomes is deterministic exactly when vᵀA = 0. The columns of A are read from noiseless shots of
+stim's compiled sampler (Gidney, Quantum 5, 497 (2021)): each shot XOR the reference sample is A s
+for uniformly random s, so with ``rank + 64`` shots the span is complete except with probability
+below 2⁻⁶⁴.
+
+The basis follows the convention of the error-correction literature (e.g. Fowler, Mariantoni,
+Martinis & Cleland, PRA 86, 032324 (2012); the detectors stim's generator declares):
+
+1. a measurement whose outcome equals that of the previous measurement of the same qubit is
+   compared with it (a check repeated every round);
+2. otherwise a measurement that is deterministic by itself is a detector (first round of a check);
+3. the final data measurements (qubits measured once, with only one-qubit gates after) are combined with the last
+   measurement of each neighbouring check qubit (neighbours: a two-qubit gate joins them) when that
+   parity is deterministic;
+4. deterministic parities not spanned by 1-3 that include final data measurements are logical
+   observables (unless the user names them); any other missing parity is added as a detector.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from itertools import combinations
+from typing import Iterator, Sequence
+
+import numpy as np
+
+from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
+from budget.problems import InputError
+
+SHOT_MARGIN = 64
+"""Shots beyond the rank of the random part; the span is complete except with probability 2^-64."""
+
+
+@dataclass(frozen=True)
+class Detector:
+    """A parity of measurement outcomes that the ideal circuit fixes.
+
+    Attributes:
+        measurements: record indices (0-based, execution order), ascending.
+        round: the check round: the largest number of earlier measurements of the same qubit among
+            its measurements, plus one for a detector that closes with final data measurements.
+        ideal: the parity's value in the ideal circuit (0 or 1).
+        kind: ``"single"``, ``"repeat"``, ``"final"`` or ``"other"`` (rule 1-4 above).
+    """
+
+    measurements: tuple[int, ...]
+    round: int
+    ideal: int
+    kind: str
+
+
+@dataclass(frozen=True)
+class Checks:
+    """The detectors and observables of a circuit.
+
+    Attributes:
+        detectors: the chosen basis of checks.
+        observables: deterministic parities with final data measurements outside the checks' span.
+        observable_ideal: their values in the ideal circuit.
+        num_measurements: length of the record.
+        random_rank: number of independent random bits of the ideal record.
+        qubits: the qubit of each record entry.
+    """
+
+    detectors: tuple[Detector, ...]
+    observables: tuple[tuple[int, ...], ...]
+    observable_ideal: tuple[int, ...]
+    num_measurements: int
+    random_rank: int
+    qubits: tuple[int, ...]
+
+
+class _Span:
+    """A GF(2) basis of record parities (Python ints as bit sets), pivot = highest set bit."""
+
+    def __init__(self) -> None:
+        self.pivots: dict[int, int] = {}
+
+    def reduce(self, v: int) -> int:
+        while v:
+            p = v.bit_length() - 1
+            if p not in self.pivots:
+                return v
+            v ^= self.pivots[p]
+        return 0
+
+    def add(self, v: int) -> bool:
+        v = self.reduce(v)
+        if v:
+            self.pivots[v.bit_length() - 1] = v
+        return bool(v)
+
+
+def _mask(indices) -> int:
+    out = 0
+    for i in indices:
+        out |= 1 << i
+    return out
+
+
+def _indices(mask: int) -> tuple[int, ...]:
+    out, i = [], 0
+    while mask:
+        if mask & 1:
+            out.append(i)
+        mask >>= 1
+        i += 1
+    return tuple(out)
+
+
+def _random_columns(stim_circuit, seed: int) -> tuple[list[int], np.ndarray, int]:
+    """Column j of A as a Python int over shots, the reference record, and the rank of A."""
+    reference = np.asarray(stim_circuit.reference_sample(), dtype=bool)
+    shots = 256
+    while True:
+        sampler = stim_circuit.compile_sampler(seed=seed)
+        dev = sampler.sample(shots) ^ reference[None, :]
+        packed = np.packbits(dev.T, axis=1)
+        cols = [int.from_bytes(row.tobytes(), "big") for row in packed]
+        rank = _rank(cols)
+        if rank + SHOT_MARGIN <= shots:
+            return cols, reference, rank
+        shots *= 2
+
+
+def _rank(vectors: Sequence[int]) -> int:
+    span = _Span()
+    return sum(span.add(v) for v in vectors)
+
+
+def infer_checks(
+    circuit: NoisyCircuit, *, observables: Sequence[Sequence[int]] | None = None, seed: int = 0
+) -> Checks:
+    """Detectors (in the field's convention) and logical observables of a Clifford circuit.
+
+    Args:
+        circuit: the circuit (its errors are ignored: the ideal circuit decides).
+        observables: record index lists the user names as logical observables; each must be
+            deterministic. None: infer them (rule 4).
+        seed: seed of the sampler.
+
+    Raises:
+        InputError: a named observable is not deterministic or names a record index that does
+            not exist; the circuit is not Clifford (from the stim writer).
+    """
+    from budget.engines._stim import record_qubits, to_stim  # engines import analysis helpers
+
+    ideal = to_stim(circuit)
+    qubits = record_qubits(circuit)
+    m = len(qubits)
+    if m == 0:
+        raise InputError(f"{circuit.source}: the circuit measures nothing: it has no detectors")
+    cols, ref, rank = _random_columns(ideal, seed)
+    last: dict[int, int] = {}
+    prev: list[int | None] = []
+    counts: list[int] = []
+    seen: dict[int, int] = {}
+    for j, q in enumerate(qubits):
+        prev.append(last.get(q))
+        counts.append(seen.get(q, 0))
+        seen[q] = seen.get(q, 0) + 1
+        last[q] = j
+    ends = _measured_last(circuit)
+    data = {j for j, q in enumerate(qubits) if seen[q] == 1 and q in ends}
+    span = _Span()
+    detectors: list[Detector] = []
+
+    def value(ms) -> int:
+        return int(np.bitwise_xor.reduce(ref[list(ms)])) if ms else 0
+
+    def add(ms: tuple[int, ...], kind: str) -> None:
+        if span.add(_mask(ms)):
+            rnd = max(counts[i] for i in ms) + (1 if kind == "final" else 0)
+            detectors.append(Detector(ms, rnd, value(ms), kind))
+
+    for j in range(m):
+        if j in data:
+            continue
+        if prev[j] is not None and cols[j] == cols[prev[j]]:
+            add((prev[j], j), "repeat")
+        elif cols[j] == 0:
+            add((j,), "single")
+    neighbours = _neighbours(circuit)
+    for q, j in sorted(last.items(), key=lambda kv: kv[1]):
+        if j in data:
+            continue
+        near = sorted(i for i in data if qubits[i] in neighbours.get(q, ()))
+        found = _solve(cols, j, near)
+        if found:
+            add(tuple(sorted((j,) + found)), "final")
+    named = observables is not None
+    obs: list[tuple[int, ...]] = []
+    if named:
+        for k, o in enumerate(observables):
+            ms = tuple(sorted(set(int(i) for i in o)))
+            if not ms or any(not 0 <= i < m for i in ms):
+                raise InputError(f"observable {k}: record indices {list(o)} must lie in 0..{m - 1}")
+            if _xor(cols, ms) != 0:
+                raise InputError(f"observable {k} = {list(ms)}: this parity is random in the ideal circuit")
+            span.add(_mask(ms))
+            obs.append(ms)
+    else:
+        for combo in _dependencies(cols, sorted(data)):
+            if span.add(combo):
+                obs.append(_indices(combo))
+    if len(detectors) + len(obs) < m - rank:
+        for v in _dependencies(cols, range(m)):
+            if len(detectors) + len(obs) >= m - rank:
+                break
+            ms = _indices(v)
+            if span.reduce(v):
+                if not named and data.intersection(ms):
+                    span.add(v)
+                    obs.append(ms)
+                else:
+                    add(ms, "other")
+    return Checks(tuple(detectors), tuple(obs), tuple(value(o) for o in obs), m, rank, tuple(qubits))
+
+
+def _xor(cols: list[int], ms) -> int:
+    acc = 0
+    for i in ms:
+        acc ^= cols[i]
+    return acc
+
+
+def _solve(cols: list[int], j: int, near: list[int]) -> tuple[int, ...] | None:
+    """All of ``near`` when col_j ⊕ ⊕_{i∈near} col_i = 0 (the check's full support), else the
+    smallest non-empty subset that gives 0 (searched when ``near`` has at most 10 entries), or None."""
+    if not near:
+        return None
+    if _xor(cols, near) == cols[j]:
+        return tuple(near)
+    if len(near) > 10:
+        return None
+    for size in range(1, len(near) + 1):
+        for combo in combinations(near, size):
+            if _xor(cols, combo) == cols[j]:
+                return combo
+    return None
+
+
+def _dependencies(cols: list[int], among) -> Iterator[int]:
+    """Deterministic parities among the columns ``among``, as record-index masks: Gaussian
+    elimination with the combination tracked; each column that reduces to zero closes one."""
+    basis: dict[int, tuple[int, int]] = {}  # pivot -> (vector, combination mask)
+    for i in among:
+        v, combo = cols[i], 1 << i
+        while v:
+            p = v.bit_length() - 1
+            if p not in basis:
+                basis[p] = (v, combo)
+                break
+            bv, bc = basis[p]
+            v, combo = v ^ bv, combo ^ bc
+        if not v:
+            yield combo
+
+
+def _measured_last(circuit: NoisyCircuit) -> set[int]:
+    """Qubits whose last event (two-qubit gate, reset, measurement; repeat bodies walked once) is
+    a measurement: nothing but one-qubit gates acts on them after they are read."""
+    last: dict[int, str] = {}
+
+    def walk(items) -> None:
+        for it in items:
+            if isinstance(it, NoisyLayer):
+                for nop in it.operations:  # a one-qubit gate after the readout cannot change the record
+                    last.update({q: "gate" for q in nop.qubits if len(nop.qubits) == 2 or last.get(q) != "measure"})
+            elif isinstance(it, NoisyMeasure):
+                last.update({q: "measure" for q in it.item.qubits})
+            elif isinstance(it, NoisyReset):
+                last.update({q: "reset" for q in it.item.qubits})
+            elif isinstance(it, NoisyRepeat):
+                walk(it.body)
+            elif isinstance(it, NoisyIf):
+                walk(it.then)
+                walk(it.orelse)
+
+    walk(circuit.body)
+    return {q for q, kind in last.items() if kind == "measure"}
+
+
+def _neighbours(circuit: NoisyCircuit) -> dict[int, set[int]]:
+    out: dict[int, set[int]] = {}
+    for layer in circuit.distinct_layers():
+        for nop in layer.operations:
+            if len(nop.qubits) == 2:
+                a, b = nop.qubits
+                out.setdefault(a, set()).add(b)
+                out.setdefault(b, set()).add(a)
+    return out

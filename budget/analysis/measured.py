@@ -1,0 +1,309 @@
+"""Budgets of circuits with mid-circuit measurement: the detector and record metrics (design.md §8).
+
+``detectors``: the checks of :mod:`budget.analysis.detectors`; the actual infidelity is the
+probability that at least one detector fires (independent of the basis of detectors chosen), each
+detector gets its firing probability, its round and each family's share of it. The twirled value
+is always the Pauli-frame one (every channel, relaxation included, replaced by its Pauli twirl). Engines: ``exact``
+(density matrix with classical branches, :mod:`budget.engines._branches`: coherent errors kept
+coherent, exact) and ``clifford`` (Pauli frames through stim's detector error model,
+:mod:`budget.engines._frames`: every error twirled, first order, any size). ``auto`` takes exact
+when it fits.
+
+``record``: one minus the classical fidelity (Σ_r √(p_ideal(r) p_actual(r)))² of the whole
+measurement record (Bhattacharyya overlap squared; Nielsen & Chuang 2000, §9.2.2), and for every
+bit that is deterministic in the ideal circuit the probability that it differs. Exact engine only.
+
+The naive estimate is the fidelity product: every operation's F_pro, every idle slot's, and
+(1 - readout error) per recorded bit and (1 - reset error) per reset, repeats counted exactly.
+Family shares of the exact results are split in the proportions of the first-order frame
+decomposition (detectors) or by leaving one family out at a time (record), scaled to the total.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+
+import numpy as np
+
+from budget.analysis.detectors import Checks, infer_checks
+from budget.analysis.folding import fold_target, folded_frames, scaled
+from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit, circuit_fields
+from budget.analysis.run import family_counts, family_table
+from budget.circuit.ir import StructuredCircuit
+from budget.engines._branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
+from budget.engines._stim import record_qubits
+from budget.engines.base import MEASURED_METRICS
+from budget.errors.fidelity import naive_infidelity
+from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
+from budget.problems import InputError, TooLargeError
+
+TWIRL_WARNING = ("coherent errors enter as their Pauli twirl on the clifford engine: their build-up within a "
+                 "round needs the exact engine (small circuits)")
+
+__all__ = ["MEASURED_METRICS", "analyze_measured", "naive_measured", "record_infidelity", "without_family"]
+
+
+def analyze_measured(
+    noisy: NoisyCircuit,
+    structured: StructuredCircuit,
+    *,
+    metric: str,
+    engine: str = "auto",
+    compare_twirled: bool = False,
+    cycles: int = 1,
+    logical: tuple[tuple[int, ...], ...] | None = None,
+) -> BudgetResult:
+    """The detector or record budget of ``noisy`` (see the module docstring)."""
+    if engine not in ("auto", "exact", "clifford"):
+        raise InputError(f"engine = {engine!r}: the {metric} metric runs on the exact or clifford engine")
+    if metric == "record":
+        return _record(noisy, structured, engine, cycles)
+    index = fold_target(noisy) if logical is None and engine != "exact" else None
+    if index is not None:
+        folded = folded_frames(noisy, index)
+        sc = folded.small_checks
+        small_plan = Plan(tuple(d.measurements for d in sc.detectors), tuple(d.ideal for d in sc.detectors),
+                          False, tuple(condition_bits(noisy.body)), sc.num_measurements)
+        if engine == "clifford" or exact_refusal(folded.small, small_plan) is not None:
+            warnings = [f"the repeated block of {noisy.body[index].count:,} iterations is folded: its first and last "
+                        "iterations are computed, the middle ones repeat the steady state (docs/methods.md)"]
+            if _has_coherent(noisy):
+                warnings.append(TWIRL_WARNING)
+            return _result(noisy, structured, metric, "clifford", folded.any_fires, None,
+                           scaled(folded.any_families, folded.any_fires), cycles, warnings, folded.any_fires,
+                           detectors=folded.detectors, logical=folded.logical,
+                           details={"detectors": len(folded.detectors), "record_length": folded.num_measurements,
+                                    "random_bits": folded.random_rank})
+    checks = _checks(noisy, logical)
+    plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
+                False, tuple(condition_bits(noisy.body)), checks.num_measurements)
+    reason = exact_refusal(noisy, plan)
+    use_exact = engine == "exact" or (engine == "auto" and reason is None)
+    if engine == "exact" and reason is not None:
+        raise TooLargeError(f"engine exact: {reason}; the clifford engine fits (first order, errors twirled)")
+    from budget.engines._frames import frames
+
+    fo = frames(noisy, plan.detectors)
+    warnings = []
+    if use_exact:
+        exact = simulate(noisy, plan)
+        probs, any_fires, name = exact.detector_probability, exact.any_fires, "exact"
+    else:
+        probs, any_fires, name = fo.detector_probability, fo.any_fires, "clifford"
+        if _has_coherent(noisy):
+            warnings.append(TWIRL_WARNING)
+    detectors = tuple(
+        DetectorBudget(d.measurements, d.round, float(p), scaled(fams, p))
+        for d, p, fams in zip(checks.detectors, probs, fo.detector_families)
+    )
+    shares = scaled(fo.any_families, any_fires)
+    return _result(noisy, structured, metric, name, any_fires, None, shares, cycles, warnings,
+                   fo.any_fires, detectors=detectors,
+                   logical=checks.observables, details={"detectors": len(detectors),
+                                                        "record_length": checks.num_measurements,
+                                                        "random_bits": checks.random_rank})
+
+
+def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> tuple[float, float, str]:
+    """(actual, twirled, engine name) of the detector or record metric, without shares (depth
+    curves). Twirled: the frame value for detectors, the exact value of the twirled circuit for the
+    record."""
+    if metric == "record":
+        qubits = record_qubits(noisy)
+        plan = Plan((), (), True, tuple(condition_bits(noisy.body)), len(qubits))
+        reason = exact_refusal(noisy, plan)
+        if reason is not None or engine == "clifford":
+            raise TooLargeError(f"{noisy.source}: record metric: {reason or 'the exact engine computes it'}")
+        from budget.analysis.twirl import twirled_circuit
+
+        ideal = simulate(strip_errors(noisy), plan).record
+        return (record_infidelity(ideal, simulate(noisy, plan).record),
+                record_infidelity(ideal, simulate(twirled_circuit(noisy), plan).record), "exact")
+    actual, twirled, _, name = detector_values(noisy, engine)
+    return actual, twirled, name
+
+
+def detector_values(noisy: NoisyCircuit, engine: str = "auto") -> tuple[float, float, tuple[float, ...], str]:
+    """(P(some detector fires), its frame value, each detector's probability, engine name)."""
+    from budget.engines._frames import frames
+
+    checks = _checks(noisy, None)
+    plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
+                False, tuple(condition_bits(noisy.body)), checks.num_measurements)
+    fo = frames(noisy, plan.detectors)
+    use_exact = engine == "exact" or (engine == "auto" and exact_refusal(noisy, plan) is None)
+    if use_exact:
+        exact = simulate(noisy, plan)
+        return exact.any_fires, fo.any_fires, exact.detector_probability, "exact"
+    return fo.any_fires, fo.any_fires, fo.detector_probability, "clifford"
+
+
+def strip_errors(noisy: NoisyCircuit) -> NoisyCircuit:
+    """The ideal circuit: every family's errors removed."""
+    for fam in _families(noisy):
+        noisy = without_family(noisy, fam)
+    return noisy
+
+
+def _checks(noisy: NoisyCircuit, logical) -> Checks:
+    try:
+        return infer_checks(noisy, observables=logical)
+    except InputError as exc:
+        if "not Clifford" in str(exc):
+            raise InputError(f"{exc}; detectors are inferred for Clifford circuits: use --metric record") from None
+        raise
+
+
+def exact_refusal(noisy: NoisyCircuit, plan: Plan) -> str | None:
+    """None when the branching density matrix fits, else the limit it breaks."""
+    if noisy.num_qubits > MAX_QUBITS:
+        return f"{noisy.num_qubits} qubits exceed the exact engine's {MAX_QUBITS}"
+    bits = key_bits_needed(plan)
+    if bits > MAX_KEY_BITS:
+        return f"{bits} classical bits tracked at once exceed the exact engine's {MAX_KEY_BITS}"
+    size = 2**bits * 4**noisy.num_qubits * 16
+    if size > MAX_BYTES:
+        return (f"2^{bits} branches of a {noisy.num_qubits}-qubit density matrix need {size / 2**30:.1f} GiB, "
+                f"above the exact engine's {MAX_BYTES / 2**30:.0f} GiB")
+    return None
+
+
+def _record(noisy: NoisyCircuit, structured: StructuredCircuit, engine: str, cycles: int) -> BudgetResult:
+    if engine == "clifford":
+        raise InputError("engine = 'clifford': the record metric runs on the exact engine")
+    qubits = record_qubits(noisy)
+    plan = Plan((), (), True, tuple(condition_bits(noisy.body)), len(qubits))
+    reason = exact_refusal(noisy, plan)
+    if reason is not None:
+        raise TooLargeError(f"{noisy.source}: record metric: {reason} (no other engine computes the record)")
+    ideal = simulate(strip_errors(noisy), plan).record
+    actual = simulate(noisy, plan).record
+    total = record_infidelity(ideal, actual)
+    bits = []
+    for j, q in enumerate(qubits):
+        p1 = sum(p for r, p in ideal.items() if r >> j & 1)
+        if min(p1, 1 - p1) < 1e-12:
+            want = int(round(p1))
+            flip = sum(p for r, p in actual.items() if (r >> j & 1) != want)
+            bits.append(RecordBit(j, noisy.qubits[q], float(flip)))
+    parts = {}
+    for fam in _families(noisy):
+        parts[fam] = total - record_infidelity(ideal, simulate(without_family(noisy, fam), plan).record)
+    return _result(noisy, structured, "record", "exact", total, None, scaled(parts, total), cycles, [], None,
+                   record_bits=tuple(bits), details={"record_length": len(qubits)})
+
+
+def record_infidelity(ideal: dict[int, float], actual: dict[int, float]) -> float:
+    """1 - (Σ_r √(p(r) q(r)))², the classical infidelity of two record distributions."""
+    overlap = math.fsum(math.sqrt(max(p, 0.0) * max(actual.get(r, 0.0), 0.0)) for r, p in ideal.items())
+    return float(min(max(1.0 - overlap**2, 0.0), 1.0))
+
+
+def _result(noisy, structured, metric, engine, actual, first_order, shares, cycles, warnings, twirled, *,
+            detectors=(), logical=(), record_bits=(), details=None) -> BudgetResult:
+    families = family_table(_family_counts(noisy), shares)
+    return BudgetResult(
+        **circuit_fields(structured, cycles),
+        metric=metric,
+        engine=engine,
+        naive_infidelity=naive_measured(noisy),
+        actual_infidelity=float(actual),
+        first_order=None if first_order is None else float(first_order),
+        families=families,
+        readout=ReadoutSummary.from_errors({}, noisy.qubits),
+        warnings=tuple(warnings),
+        twirled_infidelity=None if twirled is None else float(twirled),
+        details=dict(details or {}),
+        detectors=detectors,
+        logical=tuple(logical),
+        record_bits=record_bits,
+    )
+
+
+def _walk_probes(items, mult: int, out: list) -> None:
+    for it in items:
+        if isinstance(it, (NoisyMeasure, NoisyReset)):
+            out.append((it, mult))
+        elif isinstance(it, NoisyRepeat):
+            _walk_probes(it.body, mult * it.count, out)
+        elif isinstance(it, NoisyIf):
+            _walk_probes(it.then, mult, out)
+            _walk_probes(it.orelse, mult, out)
+
+
+def naive_measured(noisy: NoisyCircuit) -> float:
+    """1 - Π F over gates and idle slots (:func:`naive_infidelity`) × Π (1 - e) over every executed
+    readout and reset (and the idle slots during them), in log space with exact multiplicities."""
+    log = math.log1p(-naive_infidelity(noisy)) if naive_infidelity(noisy) < 1 else -math.inf
+    probes: list = []
+    _walk_probes(noisy.body, 1, probes)
+    from budget.errors.fidelity import relaxation_process_fidelity
+
+    terms = [log]
+    for it, mult in probes:
+        errs = it.readout_error if isinstance(it, NoisyMeasure) else it.reset_error
+        part = sum(math.log1p(-e) if e < 1 else -math.inf for e in errs)
+        part += sum(math.log(max(relaxation_process_fidelity(r), 1e-300)) for r in it.idle if not r.is_trivial)
+        terms.append(mult * part)
+    total = math.fsum(terms)
+    return float(-math.expm1(total)) if total > -math.inf else 1.0
+
+
+def _family_counts(noisy: NoisyCircuit) -> dict[str, int]:
+    """Gate and idle counts (:func:`family_counts`) plus recorded bits and resets per family."""
+    counts = family_counts(noisy)
+    probes: list = []
+    _walk_probes(noisy.body, 1, probes)
+    for it, mult in probes:
+        counts[it.family] = counts.get(it.family, 0) + len(it.item.qubits) * mult
+    return counts
+
+
+def _families(noisy: NoisyCircuit) -> list[str]:
+    from budget.engines._frames import families_of
+
+    return families_of(noisy)
+
+
+def _has_coherent(noisy: NoisyCircuit) -> bool:
+    return any(nop.has_coherent for layer in noisy.distinct_layers() for nop in layer.operations)
+
+
+def without_family(noisy: NoisyCircuit, family: str) -> NoisyCircuit:
+    """The same circuit with one family's errors removed (gate family, idle, readout or reset)."""
+    memo: dict[int, object] = {}
+
+    def op(nop):
+        if nop.family != family:
+            return nop
+        d = nop.coherent.shape[0]
+        return dataclasses.replace(nop, coherent=np.eye(d, dtype=complex), hamiltonian={}, pauli_rates={},
+                                   depolarizing=0.0, relaxation=())
+
+    def items(its):
+        out = []
+        for it in its:
+            if id(it) not in memo:
+                if isinstance(it, NoisyLayer):
+                    new = NoisyLayer(tuple(op(n) for n in it.operations), () if family == IDLE else it.idle,
+                                     it.duration_ns)
+                elif isinstance(it, NoisyMeasure):
+                    new = dataclasses.replace(
+                        it, readout_error=tuple(0.0 for _ in it.readout_error) if it.family == family else it.readout_error,
+                        idle=() if family == IDLE else it.idle)
+                elif isinstance(it, NoisyReset):
+                    new = dataclasses.replace(
+                        it, reset_error=tuple(0.0 for _ in it.reset_error) if it.family == family else it.reset_error,
+                        idle=() if family == IDLE else it.idle)
+                elif isinstance(it, NoisyRepeat):
+                    new = NoisyRepeat(items(it.body), it.count)
+                elif isinstance(it, NoisyIf):
+                    new = NoisyIf(it.item, items(it.then), items(it.orelse))
+                else:
+                    raise TypeError(f"without_family: unknown item {type(it).__name__}")
+                memo[id(it)] = new
+            out.append(memo[id(it)])
+        return tuple(out)
+
+    return dataclasses.replace(noisy, body=items(noisy.body))

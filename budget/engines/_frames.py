@@ -1,0 +1,163 @@
+"""Detector firing probabilities of a Clifford circuit by Pauli frames, at scale (first order).
+
+Every error channel is replaced by its Pauli twirl, p_P = Σ_K |Tr(P K)/d|² over its Kraus
+operators K (exact per channel; Wallman & Emerson, PRA 94, 052325 (2016)); idle relaxation by
+(γ/4, γ/4, p_z) (Tomita & Svore, PRA 90, 062320 (2014)); readout error flips the recorded bit;
+reset error leaves |1>. A Pauli error is pushed through the rest of the circuit as a frame: it
+flips a measured bit when its frame anticommutes with the measured Z, a reset clears the frame
+on that qubit, and a detector fires when an odd number of its bits flip. stim's detector error
+model (Gidney, Quantum 5, 497 (2021)) does this propagation for every error location at once and
+lists the mechanisms: probability p_m and the set of detectors it flips.
+
+With independent mechanisms, detector D fires with probability (1 - Π_{m∋D} (1 - 2 p_m)) / 2,
+exact for independent mechanisms and equal to Σ_{m∋D} p_m to first order; some detector fires with
+probability 1 - Π_{m≠∅} (1 - p_m) (mechanisms that flip disjoint or overlapping sets; cancellation
+between two mechanisms is second order). A family's share is the sum of its mechanisms' p_m,
+scaled to the total. Coherent errors enter through their twirl here: their build-up within a round
+needs the exact engine.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+
+import numpy as np
+import stim
+
+from budget.engines._stim import to_stim
+from budget.errors.fidelity import error_channel_kraus, pauli_matrix
+from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyMeasure, NoisyReset
+
+_LABELS = {k: ["".join(p) for p in itertools.product("IXYZ", repeat=k)][1:] for k in (1, 2)}
+
+
+@dataclass(frozen=True)
+class FrameResult:
+    """Per-detector probabilities and family parts, and P(some detector fires)."""
+
+    detector_probability: tuple[float, ...]
+    detector_families: tuple[dict[str, float], ...]
+    any_fires: float
+    any_families: dict[str, float]
+    any_family_rates: dict[str, float]
+    """Σ p_m over each family's mechanisms that flip some detector (first order, unscaled)."""
+    log_none_fires: float
+    """Σ log(1 - p_m) over mechanisms that flip some detector: log P(no detector fires), kept
+    apart so that it stays finite when P(some detector fires) rounds to 1."""
+
+
+_PAULI_STACK = {k: np.array([pauli_matrix(lab) for lab in labels]) for k, labels in _LABELS.items()}
+
+
+def twirl_channel(kraus: list[np.ndarray]) -> dict[str, float]:
+    """Pauli probabilities p_P = Σ_K |Tr(P K)/d|² of a channel (identity excluded)."""
+    d = kraus[0].shape[0]
+    k = int(np.log2(d))
+    traces = np.einsum("pij,kji->pk", _PAULI_STACK[k], np.asarray(kraus)) / d
+    probs = np.sum(np.abs(traces) ** 2, axis=1)
+    return {lab: float(p) for lab, p in zip(_LABELS[k], probs)}
+
+
+class _Noise:
+    """Writes the twirled noise of the chosen families into the stim circuit."""
+
+    def __init__(self, families: set[str] | None, cache: dict[int, dict[str, float]]):
+        self.families = families
+        self.cache = cache
+
+    def wants(self, family: str) -> bool:
+        return self.families is None or family in self.families
+
+    def __call__(self, out, item) -> None:
+        if isinstance(item, NoisyLayer):
+            for nop in item.operations:
+                if not self.wants(nop.family) or not (nop.has_coherent or nop.has_incoherent):
+                    continue
+                if id(nop) not in self.cache:
+                    self.cache[id(nop)] = twirl_channel(error_channel_kraus(nop))
+                probs = self.cache[id(nop)]
+                name = "PAULI_CHANNEL_1" if len(nop.qubits) == 1 else "PAULI_CHANNEL_2"
+                out.append(name, list(nop.qubits), [probs[lab] for lab in _LABELS[len(nop.qubits)]])
+        if isinstance(item, (NoisyLayer, NoisyMeasure, NoisyReset)) and self.wants(IDLE):
+            for r in item.idle:
+                if not r.is_trivial:
+                    out.append("PAULI_CHANNEL_1", [r.qubit], list(r.pauli_twirl()))
+        if isinstance(item, NoisyReset) and self.wants(item.family):
+            for q, e in zip(item.item.qubits, item.reset_error):
+                if e:
+                    out.append("X_ERROR", [q], [e])
+
+
+def families_of(circuit: NoisyCircuit) -> list[str]:
+    out: list[str] = []
+
+    def walk(items) -> None:
+        for it in items:
+            if isinstance(it, NoisyLayer):
+                out.extend(n.family for n in it.operations if n.has_coherent or n.has_incoherent)
+                if any(not r.is_trivial for r in it.idle):
+                    out.append(IDLE)
+            elif isinstance(it, (NoisyMeasure, NoisyReset)):
+                errs = it.readout_error if isinstance(it, NoisyMeasure) else it.reset_error
+                if any(errs):
+                    out.append(it.family)
+                if any(not r.is_trivial for r in it.idle):
+                    out.append(IDLE)
+            for sub in (getattr(it, "body", ()), getattr(it, "then", ()), getattr(it, "orelse", ())):
+                walk(sub)
+
+    walk(circuit.body)
+    return list(dict.fromkeys(out))
+
+
+def _mechanisms(circuit: NoisyCircuit, detectors, families: set[str] | None,
+                cache: dict) -> list[tuple[float, tuple[int, ...]]]:
+    noise = _Noise(families, cache)
+    sc = to_stim(circuit, noise, readout=lambda item: noise.wants(item.family))
+    m = sc.num_measurements
+    sc += stim.Circuit("\n".join(f"DETECTOR {' '.join(f'rec[{i - m}]' for i in ms)}" for ms in detectors))
+    dem = sc.detector_error_model(approximate_disjoint_errors=True, flatten_loops=True, allow_gauge_detectors=False)
+    out = []
+    for inst in dem.flattened():
+        if inst.type == "error":
+            dets = tuple(t.val for t in inst.targets_copy() if t.is_relative_detector_id())
+            out.append((float(inst.args_copy()[0]), dets))
+    return out
+
+
+def frames(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...]) -> FrameResult:
+    """Firing probability of each detector (record index lists) and family parts (see module)."""
+    n = len(detectors)
+    log_keep = np.zeros(n)
+    any_keep = 0.0
+    cache: dict[int, dict[str, float]] = {}
+    for p, dets in _mechanisms(circuit, detectors, None, cache):
+        for d in dets:
+            log_keep[d] += np.log1p(-2 * p) if p < 0.5 else -np.inf
+        if dets:
+            any_keep += np.log1p(-p)
+    prob = (1 - np.exp(log_keep)) / 2
+    any_fires = float(-np.expm1(any_keep))
+    per_family = np.zeros((0, n))
+    any_parts: dict[str, float] = {}
+    names = families_of(circuit)
+    for fam in names:
+        row = np.zeros(n)
+        total = 0.0
+        for p, dets in _mechanisms(circuit, detectors, {fam}, cache):
+            for d in dets:
+                row[d] += p
+            total += p if dets else 0.0
+        per_family = np.vstack([per_family, row])
+        any_parts[fam] = total
+    col = per_family.sum(axis=0) if len(names) else np.zeros(n)
+    det_fam = tuple(
+        {f: float(per_family[i, k] / col[k] * prob[k]) for i, f in enumerate(names) if per_family[i, k] > 0}
+        if col[k] > 0 else {}
+        for k in range(n)
+    )
+    s = sum(any_parts.values())
+    any_families = {f: v / s * any_fires for f, v in any_parts.items() if v > 0} if s > 0 else {}
+    return FrameResult(tuple(float(x) for x in prob), det_fam, any_fires, any_families, dict(any_parts),
+                       float(any_keep))

@@ -1,0 +1,126 @@
+"""depth, tolerances, cost and report on circuits with mid-circuit measurement (issue 13).
+
+Reference for the quadratic form: first principles (derived in the test). The other checks tie
+the commands to the detector metric already checked against cirq and stim
+(tests/test_measured_exact.py, tests/test_measured_frames.py).
+"""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from budget.analysis.depth import depth_curve
+from budget.analysis.measured import analyze_measured
+from budget.analysis.sensitivity import quadratic_form
+from budget.circuit.qasm import parse_qasm
+from budget.errors.attach import attach
+from budget.errors.model import ErrorModel
+from budget.problems import InputError
+from budget.report.content import gather
+from budget.report.render import report_files
+
+from test_measured_frames import REPETITION
+
+
+
+def test_detector_quadratic_form_from_first_principles():
+    """Only an over-rotation ε per x: per round each of the 3 data qubits flips with sin²ε ≈ ε²
+    (the x pair rotates by 2ε), and any flip fires a detector of that round; to leading order
+    P(some detector fires) = 3 R ε², so A_xx = 3 R per rad² and there is no floor."""
+    rounds = 3
+    circuit = parse_qasm(REPETITION.format(last=rounds - 1))
+    noisy = attach(circuit, ErrorModel.from_dict({"gates": {"x": {"overrotation": 0.01}}}))
+    qf = quadratic_form(noisy, "detectors")
+    assert qf.labels == (("x", "overrotation"),)
+    assert qf.matrix[0, 0] == pytest.approx(3 * rounds, rel=2e-3)
+    assert abs(qf.floor) < 1e-12 and qf.values_rad[0] == pytest.approx(0.01)
+    exact = analyze_measured(noisy, circuit, metric="detectors").actual_infidelity
+    assert exact == pytest.approx(qf.matrix[0, 0] * 0.01**2, rel=2e-2)  # leading order at ε = 0.01
+
+
+def test_depth_curve_of_detectors():
+    circuit = parse_qasm(REPETITION.format(last=1))
+    model = ErrorModel.from_dict({"qubits": {"readout_error": 0.01}, "gates": {"x": {"overrotation": 0.02}}})
+    block = attach(circuit, model)
+    curve = depth_curve(block, max_cycles=3, points=3, metric="detectors")
+    assert curve.repetitions == (1, 2, 3)
+    one = analyze_measured(block, circuit, metric="detectors").actual_infidelity
+    assert curve.structured[0] == pytest.approx(one, rel=1e-12)
+    assert list(curve.structured) == sorted(curve.structured)  # more rounds, more chances to fire
+    # naive: 1 - (1 - e1)^N with e1 the one-round fidelity product
+    e1 = curve.naive[0]
+    assert curve.naive[2] == pytest.approx(1 - (1 - e1) ** 3)
+
+
+def test_report_has_the_detector_map(tmp_path):
+    path = tmp_path / "rep.qasm"
+    path.write_text(REPETITION.format(last=1))
+    model = {"qubits": {"readout_error": 0.01, "reset_error": 0.002},
+             "gates": {"x": {"overrotation": 0.02, "duration_ns": 20.0}, "cx": {"avg_infidelity": 0.003}}}
+    data = gather(str(path), model, target=0.2, metric="detectors", max_cycles=2, points=2)
+    files = report_files(data)
+    assert "detector-map.svg" in files and "Which checks fire" in files["report.md"]
+    assert data.tolerances is not None
+    assert math.isclose(sum(f.share for f in data.result.families), data.result.actual_infidelity, rel_tol=1e-9)
+
+
+def test_folded_repeat_equals_unrolled_frames():
+    """A repetition-code memory of 70 rounds (above the folding threshold) folded from 5 and 6
+    iterations gives the same detectors and probabilities as the frame path on the whole circuit
+    (stim's detector error model of the unrolled record)."""
+    from budget.analysis.detectors import infer_checks
+    from budget.analysis.folding import FOLD_AT, fold_target, folded_frames
+    from budget.engines._frames import frames
+
+    rounds = FOLD_AT + 6
+    circuit = parse_qasm(REPETITION.format(last=rounds - 1))
+    model = ErrorModel.from_dict({"qubits": {"readout_error": 0.01, "reset_error": 0.003, "t1_us": 50.0},
+                                  "gates": {"x": {"overrotation": 0.02, "duration_ns": 20.0},
+                                            "cx": {"avg_infidelity": 0.004, "duration_ns": 40.0},
+                                            "measure": {"duration_ns": 300.0}}})
+    noisy = attach(circuit, model)
+    index = fold_target(noisy)
+    assert index is not None
+    folded = folded_frames(noisy, index)
+    checks = infer_checks(noisy)
+    whole = frames(noisy, tuple(d.measurements for d in checks.detectors))
+    ref = {d.measurements: (d.round, p) for d, p in zip(checks.detectors, whole.detector_probability)}
+    assert len(folded.detectors) == len(ref) == 2 * rounds + 2
+    for d in folded.detectors:
+        assert ref[d.measurements][0] == d.round
+        assert d.probability == pytest.approx(ref[d.measurements][1], rel=1e-12)
+    assert folded.any_fires == pytest.approx(whole.any_fires, rel=1e-9)
+    for fam, part in whole.any_families.items():
+        assert folded.any_families[fam] == pytest.approx(part, rel=1e-6)
+    assert folded.logical == checks.observables
+
+
+def test_quadratic_form_on_one_detector():
+    """The check Z0Z2 compares two data qubits, each flipped with sin²ε ≈ ε² per round by the
+    over-rotated x pair: its detector of round 1 fires with 2ε² to leading order, so A_xx = 2."""
+    circuit = parse_qasm(REPETITION.format(last=2))
+    noisy = attach(circuit, ErrorModel.from_dict({"gates": {"x": {"overrotation": 0.01}}}))
+    listed = analyze_measured(noisy, circuit, metric="detectors").detectors
+    k = next(i for i, d in enumerate(listed) if d.round == 1)
+    qf = quadratic_form(noisy, "detectors", detector=k)
+    assert qf.matrix[0, 0] == pytest.approx(2.0, rel=2e-3)
+    with pytest.raises(InputError, match="detectors 0 to"):
+        quadratic_form(noisy, "detectors", detector=len(listed))
+    with pytest.raises(InputError, match="needs the detectors metric"):
+        quadratic_form(noisy, "process", detector=0)
+
+
+def test_randomised_companions_refuse_measurement_items(tmp_path):
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    path = tmp_path / "rep.qasm"
+    path.write_text(REPETITION.format(last=1))
+    model = tmp_path / "m.toml"
+    model.write_text("[gates.x]\noverrotation = 0.01\n")
+    for extra in (["--ensemble", "2"], ["--against", "random"]):
+        res = CliRunner().invoke(app, ["analyze", str(path), "-e", str(model), "--metric", "detectors", *extra])
+        assert res.exit_code == 2 and "gate-only circuits" in res.output and "Traceback" not in res.output
