@@ -28,14 +28,16 @@ and bleed carry ``rotation``, the spilled angle f·θ in radians.
 
 from __future__ import annotations
 
+import dataclasses
 import math
+from typing import Mapping
 
 import networkx as nx
 import numpy as np
 
 from budget.circuit.gates import GATES, spec
 from budget.circuit.ir import Operation
-from budget.errors.context import Crosstalk
+from budget.errors.context import ContextModel, Crosstalk
 from budget.errors.knobs import coherent_error
 from budget.errors.noisy import NoisyLayer, NoisyOperation
 from budget.errors.params import GateParams
@@ -60,6 +62,38 @@ def knob_in_lab_units(knob: str, value_rad: float) -> tuple[float, str]:
     if knob == ZZ_KNOB:
         return value_rad * 1000.0 / (2 * math.pi), "kHz"
     return value_rad, "rad"
+
+
+def context_knob_keys(ctx: ContextModel, gates: Mapping[str, GateParams]) -> frozenset[str]:
+    """Every ``"family.knob"`` the context sections define, before any circuit is seen: the base
+    families ``zz.zz_rad_per_us``, ``crosstalk.rotation``, ``bleed.rotation`` (a drift key for
+    them covers every pair or rule), the named ones the file spells out (``zz A,B`` in both
+    orders, ``crosstalk G S->N`` for listed gates, ``bleed A->B Q``) and each ``[[context]]``
+    table's knobs under its family (``cz [parallel cz].cphase``).
+
+    >>> from budget.errors.context import ContextModel
+    >>> sorted(context_knob_keys(ContextModel(zz_khz={frozenset(("q[0]", "q[1]")): 50.0}), {}))[-1]
+    'zz.zz_rad_per_us'
+    """
+    out: set[str] = set()
+    if ctx.zz_default_khz or any(ctx.zz_khz.values()):
+        out.add(f"zz.{ZZ_KNOB}")
+    for pair, rate in ctx.zz_khz.items():
+        if rate:
+            a, b = sorted(pair)
+            out.update({f"zz {a},{b}.{ZZ_KNOB}", f"zz {b},{a}.{ZZ_KNOB}"})
+    for rule in ctx.crosstalk:
+        out.add(f"crosstalk.{SPILL_KNOB}")
+        out.update(f"crosstalk {g} {rule.source}->{rule.target}.{SPILL_KNOB}" for g in rule.gates or ())
+    if ctx.bleed or ctx.bleed_qubit:
+        out.add(f"bleed.{SPILL_KNOB}")
+    out.update(f"bleed {a}->{b} {q}.{SPILL_KNOB}" for a, b, q in ctx.bleed_qubit)
+    for table in ctx.tables:
+        base = gates.get(table.gate, GateParams()).family or table.gate
+        family = table.fields.get("family") or f"{base} [{table.name}]"
+        own = dataclasses.replace(GateParams(), **{k: v for k, v in table.fields.items() if k != "family"})
+        out.update(f"{family}.{k}" for k in own.knob_values())
+    return frozenset(out)
 
 
 def zz_phase_rad(zz_khz: float, duration_ns: float) -> float:
