@@ -73,7 +73,8 @@ def z_phase_updates(circuit: StructuredCircuit, model: ErrorModel,
     for k in corrections:
         op = _last_on(blocks[k.block], k.qubit_index)
         if not isinstance(op, Operation):
-            why = "its last gate there is inside a nested repeated block" if op == "nested" else "no gate acts on it there"
+            why = ("its last gate there is inside a repeated block, where a z_phase would act on every repetition"
+                   if op == "nested" else "no gate acts on it there")
             raise InputError(f"correction on {k.qubit} at {k.where} cannot go into a gate's z_phase: {why}; "
                              "write the corrected circuit (--out-circuit) instead")
         if op.gate not in GATES or GATES[op.gate].virtual:

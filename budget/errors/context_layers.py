@@ -64,6 +64,24 @@ def knob_in_lab_units(knob: str, value_rad: float) -> tuple[float, str]:
     return value_rad, "rad"
 
 
+def knob_text(value_rad: float, knob: str, fmt=str) -> str:
+    """A knob value (today's, a tolerance, a precision) as people read it, the same in every view:
+    a knob in radians as ``fmt(value)``; the spectator-ZZ knob with its unit and its rate,
+    ``"1.26 rad/µs = 200 kHz"`` (ζ = value / (2π·1 µs), :func:`knob_in_lab_units`).
+
+    >>> knob_text(2 * math.pi * 0.2, ZZ_KNOB, lambda x: f"{x:.3g}"), knob_text(0.01, "cphase")
+    ('1.26 rad/µs = 200 kHz', '0.01')
+    """
+    value, unit = knob_in_lab_units(knob, value_rad)
+    return fmt(value_rad) if unit == "rad" else f"{fmt(value_rad)} rad/µs = {fmt(value)} {unit}"
+
+
+def knob_label(knob: str) -> str:
+    """A knob's name in prose and tables: ``"ZZ rate"`` for the spectator-ZZ knob, else the key
+    with spaces (``"z phase[0]"``)."""
+    return "ZZ rate" if knob == ZZ_KNOB else knob.replace("_", " ")
+
+
 def context_knob_keys(ctx: ContextModel, gates: Mapping[str, GateParams]) -> frozenset[str]:
     """Every ``"family.knob"`` the context sections define, before any circuit is seen: the base
     families ``zz.zz_rad_per_us``, ``crosstalk.rotation``, ``bleed.rotation`` (a drift key for

@@ -26,6 +26,7 @@ from budget.errors.uncertain import central_values
 from budget.problems import InputError
 from budget.report.content import minutes, num
 from budget.report.sections import Block, Figure, Heading, Para, Table
+from budget.errors.context_layers import knob_text
 
 BAND_SAMPLES = 12
 BAND_POINTS = 8
@@ -214,7 +215,7 @@ def _schedule_blocks(extras: Extras) -> list[Block]:
     rows = []
     for k in s.knobs:
         cal = k.action == "calibrate"
-        rows.append((f"{k.family}.{k.knob}", k.action, num(k.sigma_rad) if cal else "—",
+        rows.append((f"{k.family}.{k.knob}", k.action, knob_text(k.sigma_rad, k.knob, num) if cal else "—",
                      f"{k.every_hours:.3g} h" if cal else "—", str(max(r.depth for r in k.sites)) if cal else "—",
                      str(sum(r.shots_total for r in k.sites)) if cal else "—", minutes(k.device_s) if cal else "—"))
     out.append(Para(f"The cheapest schedule (a mixed-integer programme, docs/methods.md) that keeps the prediction at or "

@@ -5,9 +5,12 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
+from rich import box
 from rich.console import Group
 from rich.table import Table
 from rich.text import Text
+
+from budget.errors.context_layers import knob_text
 
 CAUTION = "Numbers are model predictions, to be confirmed on the device; local lab practice decides."
 
@@ -103,12 +106,14 @@ def render_schedule(s) -> Group:
         Text.assemble(("calibration schedule: ", "bold"), f"{s.source}, target {s.target:g} for {s.hours:g} h "
                       f"(incoherent floor {_e(s.floor)}, predicted at the worst time {_e(s.predicted)})"),
     ]
-    t = Table(title_justify="left")
-    for col in ("knob", "action", "σ (rad)", "every (h)", "depth", "shots/round", "sites", "device min"):
-        t.add_column(col, justify="left" if col in ("knob", "action") else "right")
+    t = Table(title_justify="left", box=box.SIMPLE_HEAD, pad_edge=False, padding=(0, 1), collapse_padding=True)
+    for col in ("knob", "action", "σ (rad)", "every h", "depth", "shots", "sites", "min"):
+        t.add_column(col, justify="left" if col in ("knob", "action") else "right",  # full knob names, never "cz.cph…"
+                     overflow="fold", no_wrap=col not in ("knob", "σ (rad)"), min_width=14 if col == "knob" else None,
+                     max_width=12 if col == "σ (rad)" else None)
     for k in s.knobs:
         cal = k.action == "calibrate"
-        t.add_row(f"{k.family}.{k.knob}", k.action, _e(k.sigma_rad) if cal else "—",
+        t.add_row(f"{k.family}.{k.knob}", k.action, knob_text(k.sigma_rad, k.knob, lambda x: f"{x:.3g}") if cal else "—",
                   f"{k.every_hours:.3g}" if cal else "—",
                   str(max(r.depth for r in k.sites)) if cal else "—",
                   str(sum(r.shots_total for r in k.sites)) if cal else "—", str(len(k.sites)) if cal else "—",

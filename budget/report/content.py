@@ -16,6 +16,7 @@ from budget.analysis.heatmap import ErrorMap
 from budget.analysis.ratios import safe_ratio
 from budget.analysis.result import BudgetResult
 from budget.engines.base import MEASURED_METRICS
+from budget.errors.context_layers import knob_label
 
 ENGINE_WORDS = {
     "exact": "exact simulation (dense state vector or density matrix; repeated blocks by matrix powers). "
@@ -164,7 +165,7 @@ def _calibration_words(data: ReportData, meets: bool | None) -> list[str]:
         return [f"The incoherent floor ({num(tol.incoherent_floor)}, from T1, T2 and gate error rates) alone "
                 "exceeds the target, so no amount of calibration of coherent knobs can meet it."]
     worst = [row for row in tol.rows if row.status == "tighten"][:3]
-    names = ", ".join(f"{row.family} {row.knob.replace('_', ' ')} (by {row.tighten_by:.2g}×)" for row in worst)
+    names = ", ".join(f"{row.family} {knob_label(row.knob)} (by {row.tighten_by:.2g}×)" for row in worst)
     rule = "worst-case signs" if tol.assume == "worst" else "random signs"
     if meets and worst:
         return [f"It meets the target with today's values; to keep meeting it whatever the signs of the errors "

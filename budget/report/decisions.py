@@ -19,7 +19,7 @@ from budget.analysis.calibration import CalibrationPlan
 from budget.analysis.sensitivity import Sensitivity
 from budget.analysis.tolerance_output import floor_message
 from budget.analysis.tolerances import NO_EFFECT, ToleranceReport
-from budget.errors.context_layers import knob_in_lab_units
+from budget.errors.context_layers import knob_text
 from budget.report.terminal import fmt
 
 _STATUS = {"tighten": "bold red", "ok": "green", NO_EFFECT: "dim", "floor too high": "bold red"}
@@ -29,8 +29,7 @@ def _rad(x: float, knob: str = "") -> str:
     """A knob angle; a spectator-ZZ knob (rad per µs) also in kHz, the unit a lab sets it in."""
     if math.isinf(x):
         return "unbounded"
-    value, unit = knob_in_lab_units(knob, x)
-    return fmt(x) if unit == "rad" else f"{fmt(x)} = {fmt(value)} {unit}"
+    return knob_text(x, knob, fmt)
 
 
 def _times(x: float) -> str:
@@ -54,7 +53,7 @@ def sensitivity_view(s: Sensitivity, *, top: int = 15) -> Group:
         t.add_column(name, justify="right" if right else "left")
     for k in s.knobs[:top]:
         frac = f"{100 * k.share / s.coherent:.1f} %" if s.coherent > 0 else "—"
-        t.add_row(k.family, k.knob, fmt(k.current_rad), fmt(k.per_rad2), fmt(k.share), frac)
+        t.add_row(k.family, k.knob, _rad(k.current_rad, k.knob), fmt(k.per_rad2), fmt(k.share), frac)
     parts: list = [t]
     if len(s.knobs) > top:
         parts.append(Text(f"… {len(s.knobs) - top} more knobs in the JSON output", style="dim"))
@@ -149,7 +148,7 @@ def calibration_view(plan: CalibrationPlan) -> Group:
     rows = []
     for p in plan.knobs:
         worst = max(p.sites, key=lambda s: s.gamma_per_rep)
-        rows.append((f"{p.family}.{p.knob}", p.reason, fmt(p.sigma_rad, 2), str(len(p.sites)), fmt(worst.gamma_per_rep, 2),
+        rows.append((f"{p.family}.{p.knob}", p.reason, knob_text(p.sigma_rad, p.knob, lambda x: fmt(x, 2)), str(len(p.sites)), fmt(worst.gamma_per_rep, 2),
                      f"{worst.depth:,}", f"{sum(s.shots_total for s in p.sites):,}", f"{sum(s.circuits for s in p.sites):,}",
                      _duration(p.device_s), "—" if p.hold_hours is None else f"{p.hold_hours:.3g} h"))
     t = Table(title="calibration experiments (amplified phase estimation)", title_justify="left", box=box.SIMPLE_HEAD)

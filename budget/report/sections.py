@@ -12,6 +12,7 @@ from typing import Union
 
 from budget.analysis.depth import CURVE_WORDS
 from budget.analysis.ratios import at_rounding_level
+from budget.errors.context_layers import knob_label, knob_text
 from budget.report.content import CAUTION_WORDS, ENGINE_WORDS, ReportData, minutes, num, short_name, summary_words, verdict
 
 
@@ -252,7 +253,8 @@ def _tolerances(data: ReportData) -> list[Block]:
             f"{loop.method})."
         ))
     rows = tuple(
-        (f"{row.family} · {row.knob.replace('_', ' ')}", num(row.current_rad), num(row.tolerance_rad),
+        (f"{row.family} · {knob_label(row.knob)}", knob_text(row.current_rad, row.knob, num),
+         knob_text(row.tolerance_rad, row.knob, num),
          f"{row.tighten_by:.3g}×" if row.status == "tighten" else "—",
          f"{row.sites_over} of {len(row.sites)}" + (f" (worst {row.worst_site})" if row.sites_over else ""), row.status)
         for row in t.rows
@@ -277,7 +279,7 @@ def _calibration(data: ReportData) -> list[Block]:
         "repetition, shots from the Cramér–Rao bound (Kimmel, Low, Yoder, PRA 92, 062315 (2015))."
     ))
     rows = tuple(
-        (f"{k.family} · {k.knob.replace('_', ' ')}", k.reason, num(k.sigma_rad), str(len(k.sites)),
+        (f"{k.family} · {knob_label(k.knob)}", k.reason, knob_text(k.sigma_rad, k.knob, num), str(len(k.sites)),
          ", ".join(str(s.depth) for s in k.sites[:3]) + ("…" if len(k.sites) > 3 else ""), minutes(k.device_s),
          "—" if k.hold_hours is None else f"{k.hold_hours:.3g} h")
         for k in p.knobs
