@@ -60,3 +60,24 @@ def test_zz_tolerance_in_khz_agrees_in_terminal_json_and_markdown(tmp_path):
     assert cells[1] == "0.126 rad/µs = 20 kHz"
     md_khz = float(re.fullmatch(r"[0-9.]+ rad/µs = ([0-9.]+) kHz", cells[2]).group(1))
     assert abs(md_khz - row["tolerance_lab"]) < 0.01 * row["tolerance_lab"]  # 3 significant digits
+
+
+def test_report_model_section_lists_the_context_sections(tmp_path):
+    # the report's "Error model used" must show what the file says about couplings, crosstalk,
+    # bleed and [[context]] tables: a reader cannot otherwise see the ZZ rates behind the shares
+    model = tmp_path / "m.toml"
+    model.write_text(MODEL.read_text() + (
+        '\n[crosstalk."q[0]->q[1]"]\nfraction = 0.02\naxis = "y"\n'
+        '\n[bleed."x->x"."q[0]"]\nfraction = -0.01\n'
+        '\n[[context]]\nname = "pair busy"\ngate = "x"\nqubits = "q[0]"\nall_driven = true\noverrotation = 0.004\n'
+    ))
+    rep = runner.invoke(app, ["report", str(CIRCUIT), "-e", str(model), "--target", "0.3", "--out", str(tmp_path / "r")])
+    assert rep.exit_code == 0, rep.output
+    md = (tmp_path / "r" / "report.md").read_text()
+    section = md[md.index("## Error model used"):]
+    assert "| spectator ZZ | q[0],q[1] | ζ = 20 kHz |" in section
+    assert "| drive crosstalk | q[0] -> q[1] | +0.02 × the rotation of every driven gate on q[0], about y |" in section
+    assert "| pulse bleed | x -> x on q[0] | -0.01 × the x rotation |" in section
+    assert "| calibration in context [pair busy] | x on q[0] | overrotation = 0.004 |" in section
+    html = (tmp_path / "r" / "report.html").read_text()
+    assert "ζ = 20 kHz" in html

@@ -204,6 +204,31 @@ def model_rows(model: Any) -> tuple[ModelRow, ...]:
     rows.append(ModelRow("qubit", "every qubit", "default", qubit_values(model.qubit_defaults)))
     for name, qp in sorted(model.qubit_overrides.items()):
         rows.append(ModelRow("qubit", name, "override", qubit_values(qp)))
+    return tuple(rows) + context_rows(model.context)
+
+
+def context_rows(ctx: Any) -> tuple[ModelRow, ...]:
+    """The model's context sections (docs/error-model.md, "Context errors") as rows of kind
+    ``"context"``: spectator ZZ, drive crosstalk, pulse bleed, calibration in context."""
+    rows: list[ModelRow] = []
+    if ctx.zz_default_khz:
+        rows.append(ModelRow("context", "spectator ZZ", "every pair a two-qubit gate acts on",
+                             {"value": f"ζ = {ctx.zz_default_khz:g} kHz"}))
+    for pair, khz in sorted(ctx.zz_khz.items(), key=lambda kv: sorted(kv[0])):
+        rows.append(ModelRow("context", "spectator ZZ", ",".join(sorted(pair)), {"value": f"ζ = {khz:g} kHz"}))
+    for rule in ctx.crosstalk:
+        axis = f"about {rule.axis}" if rule.axis else "about the driving gate's axis"
+        gates = ", ".join(rule.gates) if rule.gates else "every driven gate"
+        rows.append(ModelRow("context", "drive crosstalk", f"{rule.source} -> {rule.target}",
+                             {"value": f"{rule.fraction:+g} × the rotation of {gates} on {rule.source}, {axis}"}))
+    for (a, b), f in sorted(ctx.bleed.items()):
+        rows.append(ModelRow("context", "pulse bleed", f"{a} -> {b}, every qubit", {"value": f"{f:+g} × the {a} rotation"}))
+    for (a, b, q), f in sorted(ctx.bleed_qubit.items()):
+        rows.append(ModelRow("context", "pulse bleed", f"{a} -> {b} on {q}", {"value": f"{f:+g} × the {a} rotation"}))
+    for t in ctx.tables:
+        on = t.gate + (f" on {','.join(t.qubits)}" if t.qubits else "")
+        keys = ", ".join(f"{k} = {v}" for k, v in t.fields.items())
+        rows.append(ModelRow("context", f"calibration in context [{t.name}]", on, {"value": keys}))
     return tuple(rows)
 
 

@@ -306,6 +306,9 @@ def _model(data: ReportData) -> list[Block]:
     if qubits:
         keys = tuple(qubits[0].values)
         out.append(Table(("qubit", "") + keys, tuple((q.name, q.where) + tuple(q.values[k] for k in keys) for q in qubits)))
+    context = [m for m in data.model_rows if m.kind == "context"]
+    if context:
+        out.append(Table(("context error", "on", "value"), tuple((c.name, c.where, c.values["value"]) for c in context)))
     ro = data.result.readout
     if ro.per_qubit:
         out.append(Para(f"Readout is kept apart from gate errors: P(at least one misread) = {num(ro.any_error)}."))
