@@ -12,6 +12,8 @@ from pathlib import Path
 from typing import Callable, List, Optional
 
 import typer
+from rich.markup import escape
+from rich.text import Text
 
 from budget.problems import InputError
 from budget.report.terminal import make_console
@@ -51,7 +53,7 @@ def user_errors(fn: Callable) -> Callable:
         except (InputError, OSError) as exc:
             err = make_console(stderr=True)
             text = str(exc) if isinstance(exc, InputError) else f"{getattr(exc, 'filename', '') or ''}: {exc.strerror or exc}"
-            err.print(f"[bold red]error:[/] {text}", highlight=False, markup=True, soft_wrap=True)
+            err.print(f"[bold red]error:[/] {escape(text)}", highlight=False, markup=True, soft_wrap=True)
             raise typer.Exit(code=2) from None
 
     return wrapper
@@ -260,7 +262,7 @@ def report(
 
     written = write_folder(out, files)
     console = make_console()
-    console.print(f"[bold]report written:[/] {', '.join(str(p) for p in written)}", highlight=False)
+    console.print(f"[bold]report written:[/] {escape(', '.join(str(p) for p in written))}", highlight=False, markup=True)
 
 
 class AssumeChoice(str, Enum):
@@ -370,9 +372,9 @@ def demo(
         ("The same memory echoed: the ZZ cancels (process metric)", "pair_memory_echo.qasm", 20, "process"),
     ]
     own = {"pair_memory_zz.qasm": "fen_pair_zz.toml", "pair_memory_echo.qasm": "fen_pair_zz.toml"}
-    console.rule("[bold]budget demo · North Fen Cryogenics Lab, device fen-q8 (invented)")
+    console.rule(Text("budget demo · North Fen Cryogenics Lab, device fen-q8 (invented)", style="bold"))
     for title, name, cycles, metric in cases:
-        console.print(f"\n[bold]{title}[/]")
+        console.print(Text(f"\n{title}", style="bold"))
         errors = EXAMPLES / own[name] if name in own else model
         result = run_analysis(_shown(EXAMPLES / name), _shown(errors), cycles=cycles, metric=metric, compare_twirled=True)
         console.print(render_budget(result))

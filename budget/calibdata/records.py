@@ -13,7 +13,8 @@ from typing import Any, Iterable, Mapping
 
 from budget.circuit.gates import ALIASES, GATES, exchange_symmetric
 from budget.circuit.ir import StructuredCircuit
-from budget.errors.model import ErrorModel, _split_names, key_path
+from budget.errors.model import ErrorModel, key_path
+from budget.errors.params import split_names
 from budget.problems import ModelError
 
 
@@ -122,7 +123,7 @@ def off_circuit(entries: Iterable[Entry], circuit: StructuredCircuit) -> tuple[s
             continue
         gate = ALIASES.get(e.path[1], e.path[1])
         if len(e.path) == 3:
-            qs = _split_names(e.path[2])
+            qs = split_names(e.path[2])
             missing = [q for q in qs if q not in names]
             if missing:
                 out.append(f"{e.place}: qubit {missing[0]} is not on the circuit {circuit.source} (kept in the model)")

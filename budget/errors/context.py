@@ -25,7 +25,7 @@ from dataclasses import dataclass, field
 from typing import Any, Mapping
 
 from budget.circuit.gates import ALIASES, GATES, exchange_symmetric
-from budget.errors.params import FieldError, GateParams, key_path, mirrored, number
+from budget.errors.params import FieldError, GateParams, key_path, mirrored, number, split_names
 
 AXES = ("x", "y", "z")
 _GATE_KEYS = tuple(f.name for f in dataclasses.fields(GateParams))
@@ -128,7 +128,7 @@ def _fraction(p, path: tuple[str, ...], value: Any) -> float:
 
 
 def _names(p, path: tuple[str, ...], key: str, sep: str, count: int, value: Any) -> tuple[str, ...]:
-    names = tuple(n.strip() for n in key.split(sep))
+    names = split_names(key, sep)
     if len(names) != count or not all(names) or len(set(names)) != count:
         example = {",": '"q[0],q[1]"', "->": '"q[2]->q[3]"'}[sep]
         raise p.fail(path, value, f"expected {count} distinct qubit names separated by {sep!r} (e.g. {example})")

@@ -26,7 +26,9 @@ from typing import Any, Mapping
 
 from budget.circuit.gates import ALIASES, GATES, exchange_symmetric
 from budget.errors.context import SECTIONS, ContextModel, parse_context
-from budget.errors.params import LARGE_ANGLE_RAD, PROBES, FieldError, GateParams, QubitParams, key_path, mirrored, show
+from budget.errors.params import (
+    LARGE_ANGLE_RAD, PROBES, FieldError, GateParams, QubitParams, key_path, mirrored, show, split_names,
+)
 from budget.errors.uncertain import central_values
 from budget.problems import ModelError, place
 
@@ -119,12 +121,6 @@ def load_model(path: str | Path) -> ErrorModel:
         m = re.search(r"at line (\d+)", str(e))
         raise ModelError(f"{place(source, int(m.group(1)) if m else None)}: not valid TOML: {e}") from None
     return ErrorModel.from_dict(data, source)
-
-
-def _split_names(key: str) -> tuple[str, ...]:
-    """Qubit names separated by commas; a comma inside parentheses belongs to the name (cirq's
-    grid qubits are named ``q(1, 2)``)."""
-    return tuple(n.strip() for n in re.split(r",(?![^()]*\))", key))
 
 
 class _Parser:
@@ -228,7 +224,7 @@ class _Parser:
             n = GATES[name].num_qubits if name in GATES else 1
             for key, sub in subs.items():
                 path = base + (key,)
-                names = _split_names(key)
+                names = split_names(key)
                 if len(names) != n or not all(names) or len(set(names)) != n:
                     raise self.fail(path, dict(sub), f"a table for {name} on given qubits is named by {n} distinct "
                                     f"qubit name(s) in gate order, separated by commas (e.g. \"q[0],q[1]\")")

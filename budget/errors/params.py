@@ -67,6 +67,16 @@ def angle(field: str, value: Any) -> float:
     return v
 
 
+def split_names(key: str, sep: str = ",") -> tuple[str, ...]:
+    """Qubit names separated by ``sep``; a separator inside parentheses belongs to the name (cirq's
+    grid qubits are named ``q(1, 2)``).
+
+    >>> split_names("q(0, 1),q(0, 2)"), split_names("q[0] -> q[1]", "->")
+    (('q(0, 1)', 'q(0, 2)'), ('q[0]', 'q[1]'))
+    """
+    return tuple(n.strip() for n in re.split(re.escape(sep) + r"(?![^()]*\))", key))
+
+
 @dataclass(frozen=True)
 class QubitParams:
     """Error parameters of one qubit.

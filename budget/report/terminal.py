@@ -171,5 +171,7 @@ def render_budget(result: BudgetResult) -> Group:
 
 
 def make_console(*, stderr: bool = False, width: int | None = None, color: bool | None = None) -> Console:
-    """A console whose width and colours tests can fix."""
-    return Console(stderr=stderr, width=width, no_color=(color is False), force_terminal=color)
+    """A console whose width and colours tests can fix. Strings are shown as written (no rich
+    markup): family names such as ``cz [busy]`` and key paths such as ``"x [idle].overrotation"``
+    contain square brackets that markup would swallow."""
+    return Console(stderr=stderr, width=width, no_color=(color is False), force_terminal=color, markup=False)
