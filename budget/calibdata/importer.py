@@ -65,6 +65,9 @@ def import_tables(
         skipped += skip
     data, notes = merge(entries)
     names = tuple(Path(p).name for p in paths)
+    if not notes:  # an empty model would pass for a perfect device
+        why = f"; not imported: {'; '.join(skipped)}" if skipped else ""
+        raise ModelError(f"model import: no model value in {', '.join(names)} (no qubit or gate row with a value){why}")
     ErrorModel.from_dict(data, source=" + ".join(names))
     off: tuple[str, ...] = ()
     if circuit is not None:

@@ -165,10 +165,15 @@ def _metrics(metrics: Any, source: str, one_qubit_gates: tuple[str, ...],
     for q, items in qubit.items():
         values = {k: v for k, (v, _) in items.items() if not k.startswith("single_qubit_p")}
         notes = {k: n for k, (_, n) in items.items() if not k.startswith("single_qubit_p")}
-        ro = [items[k][0] for k in ("single_qubit_p00_error", "single_qubit_p11_error") if k in items]
-        if ro:
-            values["readout_error"] = sum(ro) / len(ro) if all(isinstance(x, float) for x in ro) else ro[0]
+        given = [k for k in ("single_qubit_p00_error", "single_qubit_p11_error") if k in items]
+        ro = [items[k][0] for k in given]
+        if len(ro) == 2 and all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in ro):
+            values["readout_error"] = (ro[0] + ro[1]) / 2
             notes["readout_error"] = f"{source}: mean of p00 and p11 errors of {q}"
+        elif ro:  # one of the two, or a value the model's rules will refuse with its own message
+            values["readout_error"] = ro[0]
+            which = given[0].split("_")[2]
+            notes["readout_error"] = f"{source}: {which} error of {q} only (the other one is not in the file)"
         place = next(n for _, n in items.values()).split(" ", 2)
         entries.append(Entry(("qubits", q), values, notes, " ".join(place[:2])))
     for (g, qs), items in gate.items():

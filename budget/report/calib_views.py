@@ -17,7 +17,7 @@ CAUTION = "Numbers are model predictions, to be confirmed on the device; local l
 
 def render_import(imported, out: Path) -> Group:
     """What was written, what was left out, and rows the circuit does not use."""
-    lines = [Text.assemble(("model written: ", "bold"), f"{out} ({len(imported.notes)} values from "
+    lines = [Text.assemble(("model written: ", "bold"), f"{out} ({len(imported.notes)} value{'' if len(imported.notes) == 1 else 's'} from "
                            f"{', '.join(imported.sources)})")]
     for s in imported.skipped:
         lines.append(Text(f"not imported: {s}", style="yellow"))
