@@ -85,7 +85,9 @@ def render_compensation(result) -> Group:
     else:
         parts.append(Text("no virtual-Z correction lowers the leading-order infidelity"))
     if result.echoes:
-        e = Table(title="echo suggestions (x on the qubit in both layers of the block; the ideal circuit is unchanged)",
+        e = Table(title="echo suggestions (x on the qubit in both layers of the block; the ideal circuit is unchanged); "
+                        f"each evaluated alone, on the circuit as given (before: {_e(result.before)}), without the "
+                        "virtual-Z corrections above",
                   title_justify="left")
         for col in ("qubit", "block", "layers (lines)", "infidelity with it"):
             e.add_column(col, justify="right" if col.startswith("infidelity") else "left")

@@ -149,9 +149,10 @@ def summary_words(data: ReportData) -> str:
         parts.append(f"Measuring the {n} knob{'' if n == 1 else 's'} that must tighten or drift to the needed precision "
                      f"takes about {minutes(plan.round_s)} of device time per round{every}.")
     if data.curve is not None and data.curve.crossover_repetitions is not None:
+        n = data.curve.crossover_repetitions
         parts.append(
-            f"Repeating the circuit, the actual error exceeds twice the naive estimate from "
-            f"{data.curve.crossover_repetitions:,} repetitions on."
+            "Even a single run's actual error exceeds twice the naive estimate." if n == 1 else
+            f"Repeating the circuit, the actual error exceeds twice the naive estimate from {n:,} repetitions on."
         )
     return " ".join(parts)
 
