@@ -9,6 +9,7 @@ model value at all must be refused (an empty model reads as a perfect device), w
 from __future__ import annotations
 
 import json
+import math
 
 import pytest
 from typer.testing import CliRunner
@@ -61,3 +62,27 @@ def test_one_value_is_one_value(tmp_path):
     table.write_text("qubit,t1_us\nq[0],50\n")
     res = runner.invoke(app, ["model", "import", str(table), "--out", str(tmp_path / "o.toml")])
     assert res.exit_code == 0 and "(1 value from q.csv)" in " ".join(res.output.split())
+
+
+def test_sweep_draws_only_values_the_circuit_uses(tmp_path):
+    # A device model covers more gates and qubits than one circuit uses; an uncertainty on a gate
+    # the circuit never applies cannot move its infidelity, so it is listed apart, not drawn, and
+    # the result equals the sweep of the model without it (same seed, same draws).
+    from budget.analysis.sweep import sweep
+
+    circuit = tmp_path / "c.qasm"
+    circuit.write_text('OPENQASM 3.0;\ninclude "stdgates.inc";\nqubit[1] q;\nx q[0];\nx q[0];\nx q[0];\n')
+    used = {"gates": {"x": {"duration_ns": 40.0, "overrotation": {"value": 0.01, "sigma": 0.004}}}}
+    extra = {"gates": {**used["gates"], "cz": {"duration_ns": 60.0, "cphase": {"value": 0.0, "sigma": 0.01}}},
+             "qubits": {"q[7]": {"t1_us": {"value": 50.0, "sigma": 5.0}}}}
+    a = sweep(circuit, used, samples=40, sobol_base=0, workers=1)
+    b = sweep(circuit, extra, samples=40, sobol_base=0, workers=1)
+    assert [f"{v.knob}@{v.site}" for v in b.varied] == ["x.overrotation@all"]
+    assert set(b.unused) == {"cz.cphase@all", "t1_us@q[7]"}
+    assert b.now.mean == pytest.approx(a.now.mean, rel=1e-12)
+    # three x pulses over-rotated by ε: Rx(3ε) up to the ideal, process infidelity sin²(3ε/2) =
+    # (1 - cos 3ε)/2; for ε ~ N(μ, σ²), E[cos 3ε] = cos(3μ)·exp(-9σ²/2) (characteristic function of
+    # the normal distribution), so the mean is (1 - cos(3μ)·exp(-9σ²/2))/2, within the sweep's own
+    # Monte Carlo error
+    expected = (1 - math.cos(0.03) * math.exp(-9 * 0.004**2 / 2)) / 2
+    assert abs(b.now.mean - expected) < 4 * b.now.mean_stderr

@@ -34,8 +34,11 @@ from scipy import stats
 
 from budget.analysis._sweep_exec import Context, Stream, run_tasks
 from budget.analysis.run import read_circuit
-from budget.analysis.uncertainty import Varied, at_hour, draw, varied_values
+from budget.analysis.uncertainty import Varied, at_hour, draw, name_of, varied_values
+from budget.circuit.gates import ALIASES
+from budget.circuit.ir import StructuredCircuit
 from budget.errors.model import ErrorModel, load_model
+from budget.errors.params import split_names
 from budget.errors.uncertain import central_values
 from budget.problems import InputError
 
@@ -88,6 +91,7 @@ class SweepResult:
     contributions: tuple[Contribution, ...]
     varied: tuple[Varied, ...]
     sobol_base: int
+    unused: tuple[str, ...] = ()  # uncertain values of gates or qubits the circuit does not have (not drawn)
 
     def to_dict(self) -> dict:
         """The documented JSON (docs/json-schema.md, ``budget sweep``)."""
@@ -130,8 +134,11 @@ def sweep(circuit: Any, errors: Any, *, samples: int = 2000, hours: float = 0.0,
         raise InputError(f"sobol_base = {sobol_base!r}: expected 0 or a power of 2 (Sobol' points come in 2^m)")
     raw, model = _raw_model(errors)
     plain, _ = central_values(raw, model.source)
-    varied = varied_values(model, plain)
     structured = read_circuit(circuit).with_cycles(cycles)
+    every = varied_values(model, plain)
+    use = [used_by(v.path, structured) for v in every]
+    varied = tuple(v for v, u in zip(every, use) if u)
+    unused = tuple(f"{v.knob}@{v.site}" for v, u in zip(every, use) if not u)
     context = Context(structured, plain, tuple(v.path for v in varied), metric, engine, model.source)
     times = tuple(float(h) for h in np.linspace(0.0, hours, hour_points)) if hours > 0 else (0.0,)
     draws = [draw(varied, seed, k) for k in range(samples)]
@@ -156,7 +163,21 @@ def sweep(circuit: Any, errors: Any, *, samples: int = 2000, hours: float = 0.0,
         v = varied[random[0]]
         contributions = (Contribution(v.knob, v.site, 1.0, 1.0),)
     return SweepResult(structured.source, samples, target, dists[0][1], dists if hours > 0 else (), contributions,
-                       varied, n_sobol)
+                       varied, n_sobol, unused)
+
+
+def used_by(path: tuple[str, ...], circuit: StructuredCircuit) -> bool:
+    """Whether the circuit uses a model value: a qubit value of a qubit it has (defaults always), a
+    gate value of a gate it applies (on the named qubits, either order, for a per-qubit table).
+    Drawing values nothing uses would only thin the Sobol design and list knobs that cannot matter."""
+    if path[0] == "qubits":
+        return len(path) < 3 or path[1] in circuit.qubits
+    gate = ALIASES.get(path[1], path[1])
+    knob, site = name_of(path)
+    for op in circuit.distinct_operations():
+        if op.gate == gate and (site == "all" or set(split_names(site)) == {circuit.qubits[q] for q in op.qubits}):
+            return True
+    return False
 
 
 def _raw_model(errors: Any) -> tuple[dict, Any]:

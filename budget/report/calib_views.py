@@ -39,6 +39,8 @@ def render_sweep(result) -> Group:
         Text(f"infidelity: mean {_e(d.mean)} ± {_e(d.mean_stderr)} (Monte Carlo error), std {_e(d.std)}, "
              f"median {_e(d.median)}, 5-95 % [{_e(d.q05)}, {_e(d.q95)}]"),
     ]
+    if result.unused:
+        head.append(Text(f"not drawn (the circuit does not use them): {', '.join(result.unused)}", style="dim"))
     if d.p_meet_target is not None:
         head.append(Text(f"P(infidelity <= {result.target:g}) = {d.p_meet_target:.3f}"))
     parts: list = list(head)
