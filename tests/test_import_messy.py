@@ -86,3 +86,21 @@ def test_sweep_draws_only_values_the_circuit_uses(tmp_path):
     # Monte Carlo error
     expected = (1 - math.cos(0.03) * math.exp(-9 * 0.004**2 / 2)) / 2
     assert abs(b.now.mean - expected) < 4 * b.now.mean_stderr
+
+
+def test_csv_with_cirq_grid_names_keeps_them_whole(tmp_path):
+    # cirq names a grid qubit "q(0, 1)" (docs/circuit-formats.md); the name's own comma and space
+    # must not split it, so the imported tables match the cirq circuit's qubits
+    import cirq
+
+    a, b = cirq.GridQubit(0, 0), cirq.GridQubit(0, 1)
+    circuit = tmp_path / "c.json"
+    circuit.write_text(cirq.to_json(cirq.Circuit([cirq.CZ(a, b)])))
+    gates = tmp_path / "g.csv"
+    gates.write_text('gate,qubits,cphase\ncz,"q(0, 0) q(0, 1)",0.01\n')
+    qubits = tmp_path / "q.csv"
+    qubits.write_text('qubit,t1_us\n"q(0, 1)",50\n')
+    imported = import_tables([str(gates), str(qubits)], circuit=str(circuit))
+    assert imported.data["gates"]["cz"] == {"q(0, 0),q(0, 1)": {"cphase": 0.01}}
+    assert "q(0, 1)" in imported.data["qubits"]
+    assert imported.off_circuit == ()

@@ -161,7 +161,8 @@ def _entry(kind: str, cells: dict[str, str], columns: list, row: list[str], plac
             raise ModelError(f"{place}: gate {cells['gate']!r} is not in the gate table; {hint}known gates: "
                              f"{', '.join(sorted(GATES))}")
         n = GATES[gate].num_qubits
-        qs = re.split(r"[\s,]+", cells.get("qubits", "").strip()) if cells.get("qubits", "").strip() else []
+        # spaces or commas separate names, except inside parentheses (cirq's grid qubits: "q(1, 2)")
+        qs = re.split(r"[\s,]+(?![^()]*\))", cells.get("qubits", "").strip()) if cells.get("qubits", "").strip() else []
         path = ("gates", gate) + ((",".join(qs),) if qs else ())
     values: dict[str, Any] = {}
     spreads: dict[str, dict[str, Any]] = {}
