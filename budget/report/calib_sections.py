@@ -21,12 +21,12 @@ from budget.analysis.depth import depth_curve
 from budget.analysis.plan import plan
 from budget.analysis.uncertainty import draw, varied_values, with_values
 from budget.errors.attach import attach
+from budget.errors.context_layers import knob_text
 from budget.errors.model import ErrorModel, key_path
 from budget.errors.uncertain import central_values
 from budget.problems import InputError
 from budget.report.content import minutes, num
 from budget.report.sections import Block, Figure, Heading, Para, Table
-from budget.errors.context_layers import knob_text
 
 BAND_SAMPLES = 12
 BAND_POINTS = 8
