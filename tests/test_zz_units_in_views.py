@@ -81,3 +81,16 @@ def test_report_model_section_lists_the_context_sections(tmp_path):
     assert "| calibration in context [pair busy] | x on q[0] | overrotation = 0.004 |" in section
     html = (tmp_path / "r" / "report.html").read_text()
     assert "ζ = 20 kHz" in html
+
+
+def test_by_operation_keeps_one_zz_knob_per_coupler(tmp_path):
+    # A coupler has one ZZ rate, however many layers it acts in: --by-operation splits gates per
+    # line but must not split the ZZ knob per layer. Its A entry is the closed form's (3/16)·T²
+    # (T = 1.6 µs of idling over two cycles, module docstring): 0.48 per (rad/µs)².
+    args = [str(CIRCUIT), "-e", str(MODEL), "--target", str(TARGET), "--cycles", str(CYCLES)]
+    res = runner.invoke(app, ["tolerances", *args, "--by-operation", "--json", str(tmp_path / "t.json")])
+    assert res.exit_code == 0, res.output
+    doc = json.loads((tmp_path / "t.json").read_text())
+    zz = [k for k in doc["sensitivity"]["knobs"] if k["knob"] == "zz_rad_per_us"]
+    assert [k["family"] for k in zz] == ["zz q[0],q[1]"]
+    assert abs(zz[0]["per_rad2"] - 3 / 16 * (CYCLES * 0.8) ** 2) < 0.01 * 0.48

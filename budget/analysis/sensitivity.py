@@ -202,8 +202,9 @@ def per_operation(circuit: NoisyCircuit) -> NoisyCircuit:
     """The same circuit with one family per operation as written, so the engines give A per
     operation: ``"cz q[0],q[1] @12"`` (the family, its qubits in gate order, the source line), with
     ``#k`` added when the line is unknown or holds several such operations. An operation inside a
-    repeated block stays one family however often it runs. (Per qubit pair: attach the model with
-    ``family_by="pair"``.)
+    repeated block stays one family however often it runs. Context errors (spectator ZZ, crosstalk,
+    bleed) keep their family: a coupler has one ZZ rate however many layers it acts in. (Per
+    qubit pair: attach the model with ``family_by="pair"``.)
     """
     counter: dict[str, int] = {}
 
@@ -217,7 +218,9 @@ def per_operation(circuit: NoisyCircuit) -> NoisyCircuit:
     def walk(items: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
         out: list[NoisyItem] = []
         for it in items:
-            if isinstance(it, NoisyLayer):
+            if isinstance(it, NoisyLayer) and it.context:
+                out.append(it)  # context errors already name their pair, rule or qubit: one knob each
+            elif isinstance(it, NoisyLayer):
                 ops = tuple(dataclasses.replace(n, family=name(n)) for n in it.operations)
                 out.append(dataclasses.replace(it, operations=ops))
             elif isinstance(it, NoisyRepeat):
