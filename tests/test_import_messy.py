@@ -104,3 +104,21 @@ def test_csv_with_cirq_grid_names_keeps_them_whole(tmp_path):
     assert imported.data["gates"]["cz"] == {"q(0, 0),q(0, 1)": {"cphase": 0.01}}
     assert "q(0, 1)" in imported.data["qubits"]
     assert imported.off_circuit == ()
+
+
+def test_sweep_refuses_values_beyond_the_engines_range(tmp_path):
+    # Twenty x pulses sharing one over-rotation ε ~ N(0, 0.1²): the error is Rx(20ε), process
+    # infidelity sin²(10ε), mean (1 - E[cos 20ε])/2 = (1 - exp(-200σ²))/2 = (1 - e^{-2})/2 (issue 15's
+    # closed form with N = 20). A first-order engine is far outside its range here; the analysis
+    # shows no value, so the sweep must not report a clipped 1 for every draw.
+    from budget.analysis.sweep import sweep
+    from budget.problems import InputError
+
+    circuit = tmp_path / "c.qasm"
+    circuit.write_text('OPENQASM 3.0;\ninclude "stdgates.inc";\nqubit[1] q;\n' + "x q[0];\n" * 20)
+    model = {"gates": {"x": {"duration_ns": 40.0, "overrotation": {"value": 0.0, "sigma": 0.1}}}}
+    lossy = {**model, "qubits": {"t1_us": 1.0, "t2_us": 1.0}}  # 20 × 40 ns at T1 = 1 µs: far past first order
+    with pytest.raises(InputError, match=r"of 30 drawn models are beyond the first-order range of the generators"):
+        sweep(circuit, lossy, samples=30, sobol_base=0, workers=1, engine="generators")
+    exact = sweep(circuit, model, samples=400, sobol_base=0, workers=1, engine="exact")
+    assert abs(exact.now.mean - (1 - math.exp(-2)) / 2) < 4 * exact.now.mean_stderr

@@ -10,6 +10,7 @@ Dask workers can import it.
 from __future__ import annotations
 
 import json
+import math
 import os
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass
@@ -44,7 +45,9 @@ def evaluate(context: Context, chunk: list[tuple[tuple, list[float]]]) -> list[t
         model = ErrorModel.from_dict(with_values(context.plain, context.paths, values), source=context.source)
         noisy = attach(context.circuit, model)
         engine = choose_engine(noisy, context.metric, context.engine, brief=True)
-        out.append((tuple(key), float(engine.run(noisy, context.metric).infidelity)))
+        result = engine.run(noisy, context.metric)
+        # beyond the engine's range there is no value (the analysis shows none either): NaN, refused by sweep()
+        out.append((tuple(key), math.nan if result.beyond_range else float(result.infidelity)))
     return out
 
 

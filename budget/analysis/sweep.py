@@ -156,6 +156,11 @@ def sweep(circuit: Any, errors: Any, *, samples: int = 2000, hours: float = 0.0,
     finally:
         stream.close()
     res = stream.done
+    beyond = sum(1 for v in res.values() if math.isnan(v))
+    if beyond:
+        raise InputError(f"{beyond} of {len(res)} drawn models are beyond the first-order range of the "
+                         f"{engine if engine != 'auto' else 'chosen'} engine, which gives no value for them (as "
+                         "`budget analyze` shows); use --engine exact where it fits, or fewer cycles")
     dists = tuple((h, Distribution.of(np.array([res[("mc", k, t)] for k in range(samples)]), target))
                   for t, h in enumerate(times))
     contributions = _sobol(res, varied, random, n_sobol, seed) if n_sobol else ()
