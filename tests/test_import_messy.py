@@ -122,3 +122,23 @@ def test_sweep_refuses_values_beyond_the_engines_range(tmp_path):
         sweep(circuit, lossy, samples=30, sobol_base=0, workers=1, engine="generators")
     exact = sweep(circuit, model, samples=400, sobol_base=0, workers=1, engine="exact")
     assert abs(exact.now.mean - (1 - math.exp(-2)) / 2) < 4 * exact.now.mean_stderr
+
+
+def test_compensate_beyond_range_shows_no_clipped_value(tmp_path):
+    # twenty 200 ns pulses at T1 = T2 = 1 µs: 4 µs of decay, e^{-4} of the excited population left,
+    # far beyond first order (its linear sum of incoherent errors exceeds 1), so the generators engine has no
+    # value; the views must say so instead of printing a clipped 1 or a first-order "infidelity" > 1
+    from budget.analysis.compensate import compensate
+
+    circuit = tmp_path / "c.qasm"
+    circuit.write_text('OPENQASM 3.0;\ninclude "stdgates.inc";\nqubit[1] q;\n' + "x q[0];\nz q[0];\n" * 10)
+    model = {"qubits": {"t1_us": 1.0, "t2_us": 1.0},
+             "gates": {"x": {"duration_ns": 200.0, "z_phase": 0.05}, "z": {"duration_ns": 200.0}}}
+    result = compensate(circuit, model, engine="generators")
+    assert result.before is None and result.after is None and result.to_dict()["before"]["infidelity"] is None
+    m = tmp_path / "m.toml"
+    m.write_text('[qubits]\nt1_us = 1.0\nt2_us = 1.0\n[gates.x]\nduration_ns = 200.0\nz_phase = 0.05\n'
+                 '[gates.z]\nduration_ns = 200.0\n')
+    res = runner.invoke(app, ["compensate", str(circuit), "-e", str(m), "--engine", "generators", "--width", "120"])
+    assert res.exit_code == 0, res.output
+    assert "beyond range" in res.output and "1.000e+00" not in res.output

@@ -63,13 +63,14 @@ class Correction:
 
 @dataclass(frozen=True)
 class Compensation:
-    """Before and after, first-order and engine values, and the corrections."""
+    """Before and after, first-order and engine values, and the corrections. ``before``/``after``
+    are None when the circuit is beyond the engine's first-order range (no value there)."""
 
     source: str
     metric: str
     engine: str
-    before: float
-    after: float
+    before: float | None
+    after: float | None
     before_first_order: float
     after_first_order: float
     corrections: tuple[Correction, ...]
@@ -224,8 +225,23 @@ def compensate(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "pro
     before = runner.run(noisy, metric)
     fixed = with_corrections(noisy, where, {(k.block, k.qubit_index): k.angle_rad for k in corrections})
     after = choose_engine(fixed, metric, engine).run(fixed, metric)
-    return Compensation(structured.source, metric, after.engine, float(before.infidelity), float(after.infidelity),
+    return Compensation(structured.source, metric, after.engine, _value(before), _value(after),
                         fo_before, fo_after, tuple(corrections))
+
+
+def engine_value(x: float | None, fmt) -> str:
+    """An engine's infidelity for people: ``fmt(x)``, or "beyond range" when it has no value."""
+    return "beyond range" if x is None else fmt(x)
+
+
+def first_order_value(x: float, fmt) -> str:
+    """A first-order (quadratic-form) prediction for people: above 1 it is no infidelity any more."""
+    return "above 1 (first order fails)" if x > 1 else fmt(x)
+
+
+def _value(result) -> float | None:
+    """The engine's infidelity, or None beyond its range (no value there, as in ``budget analyze``)."""
+    return None if result.beyond_range else float(result.infidelity)
 
 
 def corrected_circuit(circuit: StructuredCircuit, corrections: tuple[Correction, ...]) -> StructuredCircuit:

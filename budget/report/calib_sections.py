@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 import tomlkit
 
-from budget.analysis.compensate import compensate
+from budget.analysis.compensate import compensate, engine_value, first_order_value
 from budget.analysis.depth import depth_curve
 from budget.analysis.plan import plan
 from budget.analysis.uncertainty import draw, varied_values, with_values
@@ -197,7 +197,8 @@ def _compensation_blocks(extras: Extras) -> list[Block]:
     out.append(Para(f"Frame changes (rz, no device time) at the end of each repeated block and of the circuit, chosen "
                     f"on the leading-order quadratic form and verified with the {c.engine} engine."))
     out.append(Table(("", "infidelity", "first-order prediction"),
-                     (("before", num(c.before), num(c.before_first_order)), ("after", num(c.after), num(c.after_first_order))),
+                     (("before", engine_value(c.before, num), first_order_value(c.before_first_order, num)),
+                      ("after", engine_value(c.after, num), first_order_value(c.after_first_order, num))),
                      (False, True, True)))
     if c.corrections:
         out.append(Table(("qubit", "where", "angle (rad)"),

@@ -10,6 +10,7 @@ from rich.console import Group
 from rich.table import Table
 from rich.text import Text
 
+from budget.analysis.compensate import engine_value, first_order_value
 from budget.errors.context_layers import knob_text
 
 CAUTION = "Numbers are model predictions, to be confirmed on the device; local lab practice decides."
@@ -74,8 +75,8 @@ def render_compensation(result) -> Group:
     t = Table(title_justify="left")
     for col in ("", "infidelity", "first-order prediction"):
         t.add_column(col, justify="right" if col else "left")
-    t.add_row("before", _e(result.before), _e(result.before_first_order))
-    t.add_row("after", _e(result.after), _e(result.after_first_order))
+    t.add_row("before", engine_value(result.before, _e), first_order_value(result.before_first_order, _e))
+    t.add_row("after", engine_value(result.after, _e), first_order_value(result.after_first_order, _e))
     parts.append(t)
     if result.corrections:
         c = Table(title="corrections (add rz(angle) on the qubit at that point)", title_justify="left")
@@ -88,7 +89,7 @@ def render_compensation(result) -> Group:
         parts.append(Text("no virtual-Z correction lowers the leading-order infidelity"))
     if result.echoes:
         e = Table(title="echo suggestions (x on the qubit in both layers of the block; the ideal circuit is unchanged); "
-                        f"each evaluated alone, on the circuit as given (before: {_e(result.before)}), without the "
+                        f"each evaluated alone, on the circuit as given (before: {engine_value(result.before, _e)}), without the "
                         "virtual-Z corrections above",
                   title_justify="left")
         for col in ("qubit", "block", "layers (lines)", "infidelity with it"):
