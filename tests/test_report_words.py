@@ -46,3 +46,23 @@ def test_report_names_the_engine_of_the_curve_and_of_the_headline(parity):
     assert r.engine == "exact" and c.engine.startswith("generators")
     assert f"actual ({c.engine})" in md  # the depth table's column says which engine
     assert "comes from the exact engine" in md and "the headline value is the one to use" in md
+
+
+def test_no_readout_line_when_the_model_has_no_readout_error(tmp_path):
+    """A model without readout error says nothing about misreads (it used to print
+    'P(any misread) = 0' for every qubit); a model with one gives 1 - Π(1 - p_q)."""
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    qasm = tmp_path / "c.qasm"
+    qasm.write_text('OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\nh q[0];\ncx q[0],q[1];\n')
+    bare = tmp_path / "bare.toml"
+    bare.write_text("[gates.h]\noverrotation = 0.01\n")
+    read = tmp_path / "read.toml"
+    read.write_text("[qubits]\nreadout_error = 0.02\n[gates.h]\noverrotation = 0.01\n")
+    runner = CliRunner()
+    out = runner.invoke(app, ["analyze", str(qasm), "-e", str(bare), "--width", "200"]).output
+    assert "misread" not in out
+    out = runner.invoke(app, ["analyze", str(qasm), "-e", str(read), "--width", "200"]).output
+    assert "P(any misread) = 0.0396" in out  # 1 - 0.98² = 0.0396 (two qubits measured at the end)

@@ -156,7 +156,7 @@ def render_budget(result: BudgetResult) -> Group:
         for k, v in result.observables.items():
             ot.add_row(k, "beyond range" if v is None else f"{v:+.3e}")
         parts.append(ot)
-    if result.readout.per_qubit:
+    if result.readout.per_qubit and result.readout.any_error > 0:  # no line for a model without readout error
         worst = max(result.readout.per_qubit.items(), key=lambda kv: kv[1])
         parts.append(
             Text(
