@@ -115,7 +115,8 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str) ->
 
     notes: list[str] = []
     small = engine == "auto" and block.num_qubits <= EXACT_CURVE_QUBITS
-    if metric == "process" and engine in ("auto", "generators") and not small and block.num_qubits <= MAX_CLOSED_FORM_QUBITS:
+    if (metric == "process" and engine in ("auto", "generators") and not small and block.later_body is None
+            and block.num_qubits <= MAX_CLOSED_FORM_QUBITS):  # the closed form repeats one cycle as it is
         gen = get_engine("generators")
         if gen.fits(_repeated(block, 2), metric) is None:
             return _closed_form(block, gen), "generators (periodic closed form)", notes
@@ -186,7 +187,14 @@ def _measured_curve(block: NoisyCircuit, grid: tuple[int, ...], metric: str, eng
 
 
 def _repeated(block: NoisyCircuit, n: int) -> NoisyCircuit:
-    body = block.body if n == 1 else (NoisyRepeat(block.body, int(n)),)
+    """``block`` run ``n`` times; when pulse bleed crosses the seam between repetitions, the first
+    repetition is ``block.body`` and the others ``block.later_body`` (as attach peels a repeat)."""
+    if n == 1:
+        body = block.body
+    elif block.later_body is not None:
+        body = (*block.body, NoisyRepeat(block.later_body, int(n) - 1))
+    else:
+        body = (NoisyRepeat(block.body, int(n)),)
     return NoisyCircuit(block.qubits, body, dict(block.readout_error), block.source)
 
 

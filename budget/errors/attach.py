@@ -74,10 +74,16 @@ def attach(
         raise ValueError(f"family_by = {family_by!r}: expected 'gate' or 'pair'")
     if check_qubits:
         _check_qubits(circuit, model)
-    body, _ = _Attacher(circuit, model, family_by).items(circuit.body, None)
+    attacher = _Attacher(circuit, model, family_by)
+    body, last = attacher.items(circuit.body, None)
+    later = None
+    if attacher.context.has_bleed and last is not None:  # a repetition after the last layer of another
+        again, _ = attacher.items(circuit.body, last)
+        if len(again) != len(body) or any(a is not b for a, b in zip(again, body)):
+            later = again
     measured = circuit.measured or tuple(range(circuit.num_qubits))
     readout = {q: model.qubit(circuit.qubits[q]).readout_error for q in measured}
-    return NoisyCircuit(circuit.qubits, body, readout, circuit.source)
+    return NoisyCircuit(circuit.qubits, body, readout, circuit.source, later)
 
 
 _INDEXED = re.compile(r"^(.*?)([\[(])\s*\d+(\s*,\s*\d+)*\s*[\])]$")

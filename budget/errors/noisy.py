@@ -208,12 +208,17 @@ class NoisyCircuit:
         body: items in time order (repeats kept).
         readout_error: per-qubit readout error probability, for measured qubits.
         source: where the circuit came from.
+        later_body: the body of a repetition that follows another repetition of the whole circuit,
+            when pulse bleed across that seam makes it differ from ``body`` (None: the same).
+            Code that repeats the whole noisy circuit (depth curves) runs ``body`` once, then
+            ``later_body`` for every further repetition.
     """
 
     qubits: tuple[str, ...]
     body: tuple[NoisyItem, ...]
     readout_error: dict[int, float] = field(default_factory=dict)
     source: str = "<memory>"
+    later_body: tuple[NoisyItem, ...] | None = None
 
     @property
     def num_qubits(self) -> int:
