@@ -41,8 +41,12 @@ CHUNK = 2_000_000
 """Largest (new terms x earlier terms x words) array formed at once."""
 
 
+ROW_BUDGET = 2e7
+"""Largest number of (term x word) kept as full Pauli rows in one pass."""
+
+
 class TooCostly(Exception):
-    """The second-order pairs would exceed PAIR_BUDGET."""
+    """A second-order pass went beyond PAIR_BUDGET or ROW_BUDGET."""
 
 
 def _empty(w: int) -> tuple:
@@ -72,7 +76,9 @@ class SecondOrderSink:
         self.w = words
         self.items: list[tuple[int, str, tuple]] = []  # (batch, "term" | "second", rows)
         self.cost = 0.0
+        self.rows = 0.0
         self.unfolded = False
+        self.too_costly = False  # pairs or rows beyond the budgets: the pass is incomplete
 
     # -- the sink protocol (forwarded) ----------------------------------------------------------
     def mark(self) -> int:
@@ -84,12 +90,24 @@ class SecondOrderSink:
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:
         b = self.sink.mark()
         self.sink.emit(layer, frame)
+        if self.too_costly:
+            return
         got = self.sink.explicit_terms(layer, frame)
         if got is not None:
+            self.rows += len(got[3]) * self.w
+            if self.rows > ROW_BUDGET:
+                self.too_costly = True
+                self.items.clear()
+                return
             self.items.append((b, "term", got))
 
     # -- folding hooks (called by the walker) ---------------------------------------------------
     def fold(self, marks: list[int], count: int) -> None:
+        if self.too_costly:
+            return
+        self._fold(marks, count)
+
+    def _fold(self, marks: list[int], count: int) -> None:
         """A block walked over one period (batches marks[k]..marks[k+1] are repetition k) stands
         for ``count`` repetitions: form its second-order terms with the weights ω and replace its
         items by one item (terms times w_k) plus its second-order terms (also times w_k)."""
@@ -129,11 +147,13 @@ class SecondOrderSink:
         times ``weight``, each split in two halves tagged with the two terms' sources."""
         xv, zv, ev, cv, tv = new
         xe, ze, ee, ce, te = earlier
-        if not len(cv) or not len(ce) or weight == 0.0:
+        if not len(cv) or not len(ce) or weight == 0.0 or self.too_costly:
             return _empty(self.w)
         self.cost += len(cv) * len(ce) * self.w
         if self.cost > PAIR_BUDGET:
-            raise TooCostly
+            self.too_costly = True
+            self.items.clear()
+            return _empty(self.w)
         step = max(1, CHUNK // max(1, len(cv) * self.w))
         found = []
         for a in range(0, len(ce), step):  # chunks keep the (new x earlier x words) array small
@@ -150,9 +170,10 @@ class SecondOrderSink:
         c = self.sign * weight * cv[i] * ce[j] / 2
         return (np.concatenate([x, x]), np.concatenate([z, z]), np.concatenate([e, e]), np.concatenate([c, c]), np.concatenate([tv[i], te[j]]))
 
-    def finish(self) -> int:
-        """Pairs of the remaining top-level items (weight 1), then every second-order term into
-        the GroupSink as one more batch. Returns the number of second-order terms added."""
+    def finish(self, *, inject: bool = True) -> tuple[tuple, tuple]:
+        """Pairs of the remaining top-level items (weight 1); with ``inject``, every second-order
+        term goes into the GroupSink as one more batch. Returns the full rows (x, z, e, coef,
+        tag) of the first-order terms (fold weights applied) and of the second-order terms."""
         earlier: list[tuple] = []
         seconds = []
         for _, kind, rows in self.items:
@@ -163,12 +184,12 @@ class SecondOrderSink:
             earlier.append(rows)
         x, z, e, c, tags = _cat(seconds, self.w)
         keep = c != 0
-        x, z, e, c, tags = x[keep], z[keep], e[keep], c[keep], tags[keep]
-        if len(c):
+        second = x[keep], z[keep], e[keep], c[keep], tags[keep]
+        if inject and len(second[3]) and not self.too_costly:
             b = self.sink._new()
-            keys = fingerprints(x, z if self.sink.key == "xz" else None)
-            self.sink.chunks.append((b, keys, c, e, tags))
-        return len(c)
+            keys = fingerprints(second[0], second[1] if self.sink.key == "xz" else None)
+            self.sink.chunks.append((b, keys, second[3], second[2], second[4]))
+        return _cat(earlier, self.w), second
 
 
 def _scaled(rows: tuple, w: float) -> tuple:

@@ -29,6 +29,7 @@ from budget.engines._cone import light_cone
 from budget.engines._knobs import knob_grouping
 from budget.engines._groups import Budget, aggregate, quadratic_matrix
 from budget.engines._pauli_frame import num_words
+from budget.engines._pauli_observables import merge_terms, observable_change
 from budget.engines._second import PAIR_BUDGET, SecondOrderSink, TooCostly
 from budget.engines._sinks import GroupSink, LandingSink, ObservableSink
 from budget.engines._terms import Sources, TermBuilder
@@ -155,6 +156,8 @@ class CliffordEngine:
         walker.run(circuit.body)
         if second:
             outer.finish()
+            if outer.too_costly:
+                raise TooCostly
             if outer.unfolded:
                 walker.warnings.append(
                     "second order: a block without a period within the walked range was folded "
@@ -318,7 +321,33 @@ class CliffordEngine:
         xo, zo, eo = (np.concatenate([r[i] for r in rows]) for i in range(3))
         sink = ObservableSink(TermBuilder(m, circuit.qubits, Sources()), xo, zo, eo)
         Walker(m, "pull", sink, max_unrolled=self.max_unrolled, plans=plans).run(circuit.body)
-        return dict(zip(paulis, map(float, sink.totals())))
+        totals = sink.totals()
+        if self.second_order:
+            coherent = self._coherent_observables(circuit, (xo, zo, eo), plans)
+            if coherent is not None:
+                totals = totals - sink.coherent_totals() + coherent
+        return dict(zip(paulis, map(float, totals)))
+
+    def _coherent_observables(self, circuit: NoisyCircuit, obs: tuple, plans: dict) -> np.ndarray | None:
+        """Coherent change of each observable to second order (linear term of H_1 + H_2 and the
+        quadratic terms, budget/engines/_pauli_observables.py) from the full input-frame terms of
+        one more walk; None when that walk goes beyond its budgets or folds approximately (the
+        first-order linear term then stands alone)."""
+        m = circuit.num_qubits
+        sink = GroupSink(TermBuilder(m, circuit.qubits, Sources()), key="x")
+        outer = SecondOrderSink(sink, "pull", num_words(m))
+        Walker(m, "pull", outer, max_unrolled=self.max_unrolled, plans=plans, orbit_baby=0).run(circuit.body)
+        first, second = outer.finish(inject=False)
+        if outer.too_costly or outer.unfolded:
+            return None
+        terms = merge_terms(*(np.concatenate([a[i], b[i]]) for a, b in zip([first], [second]) for i in range(4)))
+        out = np.zeros(len(obs[2]))
+        for k in range(len(out)):
+            linear, quadratic = observable_change(terms, (obs[0][k], obs[1][k], int(obs[2][k])))
+            if quadratic is None:
+                return None
+            out[k] = linear + quadratic
+        return out
 
     def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:
         """e ≈ δᵀ A δ + floor over (family, knob) labels, from the knobs' first-order generators.
