@@ -41,7 +41,7 @@ from budget.engines._validity import (
     validity_details,
 )
 from budget.engines._walk import MAX_UNROLLED, ORBIT_BABY, Walker
-from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable
+from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.errors.noisy import NoisyCircuit
 from budget.problems import InputError, TooLargeError, place
 
@@ -183,6 +183,13 @@ class CliffordEngine:
     def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
         """First-order and resummed infidelity, family shares, drill-down, qubit map, observables."""
         self._check(circuit, metric)
+        if not circuit.has_errors:
+            try:
+                for label in observables:
+                    parse_observable(label, circuit.num_qubits)
+            except ValueError as err:
+                raise InputError(f"{circuit.source}: {err}") from None
+            return zero_result(self.name, metric, tuple(observables))
         plans: dict = {}
         sources, sink, walker = self._pass(circuit, metric, plans)
         budget = aggregate(sink, len(sources.families), state=metric == "state")

@@ -38,7 +38,7 @@ from budget.engines._krylov import expm_apply
 from budget.engines._observables import IncoherentObservables, observable_vector
 from budget.engines._states import StatePath
 from budget.engines._validity import cancellation_note, second_order_share, term_norm_sum, validity_details
-from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable
+from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.engines.depth import DepthCurve, depth_curve
 from budget.engines.periodic import coherent_infidelity
 from budget.errors.noisy import NoisyCircuit
@@ -155,6 +155,10 @@ class GeneratorsEngine:
         reason = self.fits(circuit, metric, observables)
         if reason is not None:
             raise TooLargeError(f"{circuit.source}: engine generators: {reason}")
+        if not circuit.has_errors:
+            for label in observables:
+                parse_observable(label, circuit.num_qubits)
+            return zero_result(self.name, metric, observables)
         n = circuit.num_qubits
         content_of = content_cache(n, by_family)
         dense = DensePropagator(n, content_of, second_order=self.second_order)
