@@ -26,12 +26,15 @@ then the commutator term leads and, repeated, builds up as N ε². A commutator 
 and g counts half in each (so groups still add up to H). Cost: O(d² · terms · groups) per layer
 and O(groups · d³) per repeat, still independent of the repeat count.
 
-Blocks made of plain layers (a repeat's body, or a circuit without repeats) go one step further:
-their noisy unitary Ũ is formed alongside the ideal one U, and the generator of E = Ũ U† (exact,
-i log E) replaces H_1 + H_2; the difference (third and higher orders within the block) joins the
-groups in proportion to their first-order sizes. So an echoed cycle whose second order also
-vanishes on the state (x/y/x/y on |0>, where H_2 ∝ Z) still gets its leading term. Across the
-repetitions of a block and between items, the expansion stays at second order.
+With the second order, every block goes one step further: its noisy unitary Ũ is formed alongside
+the ideal one U (repeats through the Schur basis of the noisy body, like the ideal one), and the
+generator of E = Ũ U† (exact, i log E, principal branch) replaces H_1 + H_2; the difference
+(third and higher orders) joins the groups in proportion to their first-order sizes, so the
+groups still add up to the whole. So an echoed cycle whose second order vanishes on the state
+(x/y/x/y on |0>, where H_2 ∝ Z) still gets its leading term, and so does a cycle that echoes its
+own first order away while the commutators between cycles build up. Where E is too far from the
+identity for the principal branch (an eigenphase beyond π/2 from the mean), H_1 + H_2 stands.
+Cost: one more d x d product per gate and one more Schur decomposition per repeated body.
 """
 
 from __future__ import annotations
@@ -64,7 +67,7 @@ def local_commutator(ops: tuple[LocalOp, ...], dense: np.ndarray, num_qubits: in
 
 
 def _exact_remainder(hs: np.ndarray, error: np.ndarray) -> np.ndarray:
-    """Replace the second-order generator of a block of plain layers by the exact one.
+    """Replace the second-order generator of a block by the exact one.
 
     ``error`` is E = Ũ U† (the coherent errors pushed to the block's end, exact); its generator
     H = i log E (principal branch, from the eigenphases of the unitary E) differs from
@@ -113,6 +116,8 @@ class DenseBlock:
     keys: list[Hashable]
     hamiltonians: np.ndarray
     second: np.ndarray | None = None
+    noisy: np.ndarray | None = None
+    """With the second order: the block's unitary including its coherent errors."""
 
     def total(self) -> np.ndarray:
         d = self.hamiltonians.shape[-1]
@@ -141,14 +146,15 @@ class DensePropagator:
         self.content_of = content_of
         self.second_order = second_order
         self._blocks: dict[int, tuple[DenseBlock, CycleBasis]] = {}  # id(body) -> block, basis
+        self._noisy_basis: dict[int, CycleBasis] = {}  # id(body) -> basis of the noisy body unitary
         self._bodies: list[tuple] = []  # keeps the cached bodies alive, so their ids stay unique
 
     def block(self, items: tuple[NoisyItem, ...], *, with_unitary: bool = True) -> DenseBlock:
         """The :class:`DenseBlock` of ``items`` (see module docstring)."""
         n, d = self.n, 2**self.n
-        plain = self.second_order and all(isinstance(item, NoisyLayer) for item in items)
-        ut = np.eye(d, dtype=complex) if with_unitary or plain else None  # holds U^T: rows are columns of U
-        noisy = np.eye(d, dtype=complex) if plain else None  # the same with the coherent errors
+        exact = self.second_order
+        ut = np.eye(d, dtype=complex) if with_unitary or exact else None  # holds U^T: rows are columns of U
+        noisy = np.eye(d, dtype=complex) if exact else None  # the same with the coherent errors
         keys: list[Hashable] = []
         hs = np.zeros((2, 0, d, d), dtype=complex)  # [0]: first-order part, [1]: the rest
         for item in items:
@@ -172,6 +178,8 @@ class DensePropagator:
                 hs = p @ hs @ p.conj().T if len(keys) else hs
                 if ut is not None:
                     ut = ut @ p.T
+                if noisy is not None:
+                    noisy = noisy @ self._noisy_basis[id(item.body)].power(item.count).T
                 if not inner.keys:
                     continue
                 first = periodic_sum(basis, inner.hamiltonians - inner.second, item.count)
@@ -181,7 +189,9 @@ class DensePropagator:
                 hs = self._join(hs, keys, list(zip(inner.keys, first, second)))
         if noisy is not None and keys:
             hs = _exact_remainder(hs, noisy.T @ ut.conj())
-        return DenseBlock(None if ut is None or not with_unitary else ut.T.copy(), keys, hs.sum(axis=0), hs[1])
+        block = DenseBlock(None if ut is None or not with_unitary else ut.T.copy(), keys, hs.sum(axis=0), hs[1])
+        block.noisy = None if noisy is None else noisy.T.copy()
+        return block
 
     def _join(self, hs: np.ndarray, keys: list, new: list, local: dict | None = None, local_all=()) -> np.ndarray:
         """Add the generators ``new`` ((key, first-order part, second-order part) triples) of an
@@ -221,5 +231,7 @@ class DensePropagator:
         if key not in self._blocks:
             inner = self.block(item.body)
             self._blocks[key] = (inner, cycle_basis(inner.unitary))
+            if inner.noisy is not None:
+                self._noisy_basis[key] = cycle_basis(inner.noisy)
             self._bodies.append(item.body)
         return self._blocks[key]

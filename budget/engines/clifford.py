@@ -155,7 +155,7 @@ class CliffordEngine:
         )
         walker.run(circuit.body)
         if second:
-            outer.finish()
+            sink.rows = outer.finish()  # full rows of the first- and second-order terms
             if outer.too_costly:
                 raise TooCostly
             if outer.unfolded:
@@ -179,6 +179,25 @@ class CliffordEngine:
         if sink.terms_emitted**2 * num_words(circuit.num_qubits) <= CHEAP_PAIRS or cancelled:
             return None
         return "not formed (costly, and the first order shows no cancellation)"
+
+    @staticmethod
+    def _hidden_note(sink: GroupSink, budget: Budget, cancellation: float) -> str | None:
+        """State metric: a warning when the first order cancels and the second-order generator
+        barely acts on |0…0> (its state infidelity is below 1 % of its process-type size
+        Σ_P c_P²): the state value then comes from the third order, which is left out."""
+        if cancellation >= 0.1:
+            return None
+        first, second = sink.rows
+        merged = merge_terms(*(np.concatenate([first[i], second[i]]) for i in range(4)))
+        size = float(np.sum(merged[3] ** 2))
+        if size == 0.0 or budget.coherent >= 0.01 * size:
+            return None
+        return (
+            f"state metric: the first-order error terms cancel and the second-order term leaves the input "
+            f"state almost unchanged (state infidelity {budget.coherent:.2g} against {size:.2g} for the process "
+            "metric), so the state value comes from the third order, which the clifford engine leaves out: "
+            "use the generators or exact engine where they fit"
+        )
 
     def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
         """First-order and resummed infidelity, family shares, drill-down, qubit map, observables."""
@@ -219,6 +238,9 @@ class CliffordEngine:
                 validity.pop("second_order_norm_rad")
                 if note := cancellation_note(share, cancellation, engine=self.name):
                     warnings.append(note)
+                if metric == "state" and (note := self._hidden_note(sink2, budget, cancellation)):
+                    warnings.append(note)
+                    validity["rests_on_cancellation"] = True
         elif self.second_order:
             validity["second_order"] = why_not.rstrip("!")
             if why_not.endswith("!"):
