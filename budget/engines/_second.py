@@ -29,7 +29,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.engines._pauli_frame import Frame, fingerprints, multiply, popcount
+from budget.engines._groups import group_rows
+from budget.engines._pauli_frame import Frame, fingerprints, hermitian_sign, multiply, popcount
 from budget.engines._sinks import GroupSink
 from budget.errors.noisy import NoisyLayer
 
@@ -135,7 +136,7 @@ class SecondOrderSink:
                 late.append(rows)
             terms.append(_scaled(rows, w))
         self.items.append((marks[0], "term", _cat(terms, self.w)))
-        self.items.append((marks[0], "second", _cat(seconds, self.w)))
+        self.items.append((marks[0], "second", _merge(_cat(seconds, self.w))))
 
     def approximate(self) -> None:
         """A block folded without a period: its second order is not formed exactly."""
@@ -182,14 +183,28 @@ class SecondOrderSink:
                 continue
             seconds.append(self._pairs(rows, _cat(earlier, self.w), 1.0))
             earlier.append(rows)
-        x, z, e, c, tags = _cat(seconds, self.w)
-        keep = c != 0
-        second = x[keep], z[keep], e[keep], c[keep], tags[keep]
+            if len(seconds) > 64:
+                seconds = [_merge(_cat(seconds, self.w))]
+        second = _merge(_cat(seconds, self.w))
         if inject and len(second[3]) and not self.too_costly:
             b = self.sink._new()
             keys = fingerprints(second[0], second[1] if self.sink.key == "xz" else None)
             self.sink.chunks.append((b, keys, second[3], second[2], second[4]))
         return _cat(earlier, self.w), second
+
+
+def _merge(rows: tuple) -> tuple:
+    """Terms on equal Paulis with equal tags summed (coefficients of the Hermitian
+    i^{|x∧z|} X^x Z^z), so that second-order terms stay as many as their distinct Paulis."""
+    x, z, e, c, t = rows
+    if len(c) < 2:
+        return rows
+    c = c * hermitian_sign(x, z, e)
+    inv, first = group_rows(np.concatenate([x, z, t[:, None].astype(np.uint64)], axis=1))
+    total = np.bincount(inv, weights=c, minlength=len(first))
+    keep = total != 0
+    x, z, t = x[first][keep], z[first][keep], t[first][keep]
+    return x, z, (popcount(x & z) & 3).astype(np.uint8), total[keep], t
 
 
 def _scaled(rows: tuple, w: float) -> tuple:
