@@ -208,6 +208,7 @@ class ObservableSink(_Batches):
         self.expect = np.where(np.any(xo != 0, axis=1), 0.0, PHASE[self.eo].real)  # <0|O_in|0>
         self.values: list[np.ndarray] = []
         self.coherent_values: list[np.ndarray] = []  # the coherent part of ``values``
+        self.terms_seen = 0  # coherent terms walked (cost of a second pass over them)
 
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:
         self._new()
@@ -218,6 +219,7 @@ class ObservableSink(_Batches):
         self.coherent_values.append(coherent)
         if not len(table.rows):
             return
+        self.terms_seen += len(table.coherent)
         f16, e16 = site_images(frame, table.rows, full=False)
         x, z = frame.x[table.rows], frame.z[table.rows]
         xo, zo = self.xo[:, None, None, :], self.zo[:, None, None, :]

@@ -351,7 +351,7 @@ class CliffordEngine:
         sink = ObservableSink(TermBuilder(m, circuit.qubits, Sources()), xo, zo, eo)
         Walker(m, "pull", sink, max_unrolled=self.max_unrolled, plans=plans).run(circuit.body)
         totals = sink.totals()
-        if self.second_order:
+        if self.second_order and sink.terms_seen**2 * num_words(m) <= PAIR_BUDGET:
             coherent = self._coherent_observables(circuit, (xo, zo, eo), plans)
             if coherent is not None:
                 totals = totals - sink.coherent_totals() + coherent
@@ -360,8 +360,9 @@ class CliffordEngine:
     def _coherent_observables(self, circuit: NoisyCircuit, obs: tuple, plans: dict) -> np.ndarray | None:
         """Coherent change of each observable to second order (linear term of H_1 + H_2 and the
         quadratic terms, budget/engines/_pauli_observables.py) from the full input-frame terms of
-        one more walk; None when that walk goes beyond its budgets or folds approximately (the
-        first-order linear term then stands alone)."""
+        one more walk (only when the first walk's terms, paired, stay within PAIR_BUDGET); None when that
+        walk goes beyond its budgets or folds approximately (the first-order linear term then
+        stands alone)."""
         m = circuit.num_qubits
         sink = GroupSink(TermBuilder(m, circuit.qubits, Sources()), key="x")
         outer = SecondOrderSink(sink, "pull", num_words(m))
