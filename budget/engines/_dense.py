@@ -43,11 +43,10 @@ from dataclasses import dataclass
 from typing import Callable, Hashable
 
 import numpy as np
-import scipy.linalg
 
 from budget.engines._apply import LocalOp, apply, conjugate, embed
 from budget.engines._channels import LayerContent
-from budget.engines.periodic import CycleBasis, cross_cycle_sum, cycle_basis, periodic_sum
+from budget.engines.periodic import CycleBasis, cross_cycle_sum, cycle_basis, periodic_sum, principal_generator
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 
 ContentOf = Callable[[NoisyLayer], LayerContent]
@@ -70,19 +69,14 @@ def _exact_remainder(hs: np.ndarray, error: np.ndarray) -> np.ndarray:
     """Replace the second-order generator of a block by the exact one.
 
     ``error`` is E = Ũ U† (the coherent errors pushed to the block's end, exact); its generator
-    H = i log E (principal branch, from the eigenphases of the unitary E) differs from
-    H_1 + H_2 by third and higher orders. That remainder R (traceless) joins the groups' second
-    parts in proportion to the sizes of their first-order parts. Skipped when E is too far from
-    the identity for the principal branch to be the right one (an eigenphase beyond π/2 from the
-    mean)."""
-    t, z = scipy.linalg.schur(error, output="complex")
-    phases = -np.angle(np.diagonal(t))
-    mean = np.angle(np.mean(np.exp(1j * phases)))
-    phases = (phases - mean + np.pi) % (2 * np.pi) - np.pi
-    if np.max(np.abs(phases)) > np.pi / 2:
+    H = i log E (:func:`budget.engines.periodic.principal_generator`) differs from H_1 + H_2 by
+    third and higher orders. That remainder R (traceless) joins the groups' second parts in
+    proportion to the sizes of their first-order parts. Skipped when E is too far from the
+    identity for the principal branch."""
+    exact = principal_generator(error)
+    if exact is None:
         return hs
     d = error.shape[0]
-    exact = (z * phases) @ z.conj().T
     total = hs.sum(axis=(0, 1))
     total = total - np.trace(total) / d * np.eye(d)
     rest = exact - total

@@ -155,21 +155,8 @@ class SecondOrderSink:
             self.too_costly = True
             self.items.clear()
             return _empty(self.w)
-        step = max(1, CHUNK // max(1, len(cv) * self.w))
-        found = []
-        for a in range(0, len(ce), step):  # chunks keep the (new x earlier x words) array small
-            anti = (popcount(xv[:, None] & ze[None, a : a + step]) + popcount(zv[:, None] & xe[None, a : a + step])) & 1
-            ii, jj = np.nonzero(anti)
-            found.append((ii, jj + a))
-        i = np.concatenate([f[0] for f in found])
-        j = np.concatenate([f[1] for f in found])
-        if not len(i):
-            return _empty(self.w)
-        x, z, e = multiply((xv[i], zv[i], ev[i]), (xe[j], ze[j], ee[j]))  # P_v P_u, anti-Hermitian
-        e = ((e.astype(np.int64) - 1) & 3).astype(np.uint8)  # -i P_v P_u, Hermitian
         # H_2 ∋ -(i/2)[G_later, G_earlier]; the walk visits v after u, in time order or against it
-        c = self.sign * weight * cv[i] * ce[j] / 2
-        return (np.concatenate([x, x]), np.concatenate([z, z]), np.concatenate([e, e]), np.concatenate([c, c]), np.concatenate([tv[i], te[j]]))
+        return commutator_terms(new, earlier, self.sign * weight)
 
     def finish(self, *, inject: bool = True) -> tuple[tuple, tuple]:
         """Pairs of the remaining top-level items (weight 1); with ``inject``, every second-order
@@ -205,6 +192,36 @@ def _merge(rows: tuple) -> tuple:
     keep = total != 0
     x, z, t = x[first][keep], z[first][keep], t[first][keep]
     return x, z, (popcount(x & z) & 3).astype(np.uint8), total[keep], t
+
+
+def commutator_terms(later: tuple, earlier: tuple, weight: float = 1.0) -> tuple:
+    """weight · (-(i/2)) Σ_{v∈later, u∈earlier} [G_v, G_u] as Pauli terms (x, z, e, c, tag), for
+    Pauli terms G = c i^e X^x Z^z given as rows (x (T, W), z (T, W), e (T,), c (T,), tag (T,)).
+
+    Each anticommuting pair gives c_u c_v (-i P_v P_u), a Hermitian Pauli term, split into two
+    halves tagged with the two terms' tags (so per-source shares add up). Public for any Pauli
+    engine (the clifford engine, a sparse Pauli propagation engine) that holds its terms as rows.
+    """
+    xv, zv, ev, cv, tv = later
+    xe, ze, ee, ce, te = earlier
+    w = xv.shape[1] if xv.ndim == 2 else 1
+    if not len(cv) or not len(ce) or weight == 0.0:
+        return _empty(w)
+    step = max(1, CHUNK // max(1, len(cv) * w))
+    found = []
+    for a in range(0, len(ce), step):  # chunks keep the (later x earlier x words) array small
+        anti = (popcount(xv[:, None] & ze[None, a : a + step]) + popcount(zv[:, None] & xe[None, a : a + step])) & 1
+        ii, jj = np.nonzero(anti)
+        found.append((ii, jj + a))
+    i = np.concatenate([f[0] for f in found])
+    j = np.concatenate([f[1] for f in found])
+    if not len(i):
+        return _empty(w)
+    x, z, e = multiply((xv[i], zv[i], ev[i]), (xe[j], ze[j], ee[j]))  # P_v P_u, anti-Hermitian
+    e = ((e.astype(np.int64) - 1) & 3).astype(np.uint8)  # -i P_v P_u, Hermitian
+    c = weight * cv[i] * ce[j] / 2
+    cat = np.concatenate
+    return cat([x, x]), cat([z, z]), cat([e, e]), cat([c, c]), cat([tv[i], te[j]])
 
 
 def _scaled(rows: tuple, w: float) -> tuple:

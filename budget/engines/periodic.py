@@ -180,6 +180,37 @@ def cross_cycle_sum(cycle: np.ndarray | CycleBasis, left: np.ndarray, right: np.
     return zv @ (-0.5j * (t1 - t2)) @ zv.conj().T
 
 
+def principal_generator(error: np.ndarray) -> np.ndarray | None:
+    """H = i log E for a unitary error E near the identity (principal branch, traceless: the
+    global phase removed), or None when an eigenphase lies beyond π/2 from their mean (then the
+    branch may be the wrong one and callers keep their expansion)."""
+    t, z = scipy.linalg.schur(np.asarray(error, dtype=complex), output="complex")
+    phases = -np.angle(np.diagonal(t))
+    mean = np.angle(np.mean(np.exp(1j * phases)))
+    phases = wrap(phases - mean)
+    if np.max(np.abs(phases)) > np.pi / 2:
+        return None
+    return (z * phases) @ z.conj().T
+
+
+def exact_coherent_curve(
+    ideal: CycleBasis, noisy: CycleBasis, counts: Sequence[int], *, state: np.ndarray | None = None
+) -> list[float | None]:
+    """Coherent infidelity of N repetitions from the ideal and noisy cycle unitaries (their Schur
+    bases; powers for any N), exponentiated from :func:`principal_generator` of E_N = Ũ^N U^{-N}
+    (None where that is not safe), for each N in ``counts``."""
+    out: list[float | None] = []
+    for n in counts:
+        u, v = ideal.power(int(n)), noisy.power(int(n))
+        h = principal_generator(v @ u.conj().T)
+        if h is None:
+            out.append(None)
+            continue
+        psi = None if state is None else u @ state
+        out.append(coherent_infidelity(h, psi)[0])
+    return out
+
+
 class AccumulationSplit(NamedTuple):
     """How much of a per-cycle generator builds up over repetitions and how much is echoed away.
 
