@@ -23,7 +23,8 @@ disjoint qubits and commute. A repeated block adds, besides S_N(H_c), the commut
 cycles, C_N(H_c, H_c) (:func:`budget.engines.periodic.cross_cycle_sum`), and joins what came before
 in the same way. This matters where the first-order terms cancel (echoes, a gate and its inverse):
 then the commutator term leads and, repeated, builds up as N ε². A commutator term between groups f
-and g counts half in each (so groups still add up to H). Cost: O(d² · terms · groups) per layer
+and g counts half in each; the commutators between cycles are split in proportion to the groups'
+sizes (so groups still add up to H). Cost: O(d² · terms · groups) per layer
 and O(groups · d³) per repeat, still independent of the repeat count.
 
 With the second order, every block goes one step further: its noisy unitary Ũ is formed alongside
@@ -65,6 +66,13 @@ def local_commutator(ops: tuple[LocalOp, ...], dense: np.ndarray, num_qubits: in
     return out.reshape(shape)
 
 
+def _coherent(items: tuple[NoisyItem, ...]) -> bool:
+    """Whether any operation of ``items`` (repeats included) has a coherent error."""
+    return any(
+        any(nop.hamiltonian for nop in it.operations) if isinstance(it, NoisyLayer) else _coherent(it.body) for it in items
+    )
+
+
 def _exact_remainder(hs: np.ndarray, error: np.ndarray) -> np.ndarray:
     """Replace the second-order generator of a block by the exact one.
 
@@ -88,10 +96,13 @@ def _exact_remainder(hs: np.ndarray, error: np.ndarray) -> np.ndarray:
 
 
 def cycle_second_order(basis: CycleBasis, hs: np.ndarray, count: int) -> np.ndarray:
-    """Per group f, half of C_N(H_f, H) + C_N(H, H_f) (H = Σ_f H_f): the commutators between the
-    cycles of N repetitions, split so that the groups add up to C_N(H, H)."""
-    total = hs.sum(axis=0)
-    return np.array([0.5 * (cross_cycle_sum(basis, h, total, count) + cross_cycle_sum(basis, total, h, count)) for h in hs])
+    """C_N(H, H) (H = Σ_f H_f), the commutators between the cycles of N repetitions, split
+    between the groups in proportion to the sizes ||H_f|| (one closed form for all groups: a split
+    by participants would cost two closed forms per group)."""
+    total = cross_cycle_sum(basis, hs.sum(axis=0), hs.sum(axis=0), count)
+    sizes = np.array([np.linalg.norm(h) for h in hs])
+    weights = sizes / sizes.sum() if sizes.sum() > 0 else np.full(len(sizes), 1.0 / len(sizes))
+    return weights[:, None, None] * total
 
 
 @dataclass
@@ -146,7 +157,7 @@ class DensePropagator:
     def block(self, items: tuple[NoisyItem, ...], *, with_unitary: bool = True) -> DenseBlock:
         """The :class:`DenseBlock` of ``items`` (see module docstring)."""
         n, d = self.n, 2**self.n
-        exact = self.second_order
+        exact = self.second_order and _coherent(items)
         ut = np.eye(d, dtype=complex) if with_unitary or exact else None  # holds U^T: rows are columns of U
         noisy = np.eye(d, dtype=complex) if exact else None  # the same with the coherent errors
         keys: list[Hashable] = []
@@ -173,7 +184,8 @@ class DensePropagator:
                 if ut is not None:
                     ut = ut @ p.T
                 if noisy is not None:
-                    noisy = noisy @ self._noisy_basis[id(item.body)].power(item.count).T
+                    body = self._noisy_basis.get(id(item.body))
+                    noisy = noisy @ (p if body is None else body.power(item.count)).T  # no basis: no error inside
                 if not inner.keys:
                     continue
                 first = periodic_sum(basis, inner.hamiltonians - inner.second, item.count)
