@@ -116,8 +116,9 @@ class GeneratorsEngine:
     name = "generators"
 
     def __init__(self, *, second_order: bool = True) -> None:
-        """``second_order``: form the effective generator to second order (and, within blocks of
-        plain layers, exactly; budget/engines/_dense.py); False keeps the first order alone."""
+        """``second_order``: form the effective generator beyond first order (second order, and
+        exactly where the block's principal logarithm is safe; budget/engines/_dense.py); False
+        keeps the first order alone."""
         self.second_order = second_order
 
     def fits(self, circuit: NoisyCircuit, metric: Metric, observables: tuple[str, ...] = ()) -> str | None:
