@@ -69,7 +69,8 @@ def local_commutator(ops: tuple[LocalOp, ...], dense: np.ndarray, num_qubits: in
 def _coherent(items: tuple[NoisyItem, ...]) -> bool:
     """Whether any operation of ``items`` (repeats included) has a coherent error."""
     return any(
-        any(nop.hamiltonian for nop in it.operations) if isinstance(it, NoisyLayer) else _coherent(it.body) for it in items
+        any(nop.hamiltonian for nop in it.operations) if isinstance(it, NoisyLayer) else _coherent(getattr(it, "body", ()))
+        for it in items
     )
 
 
