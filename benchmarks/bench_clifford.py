@@ -19,10 +19,11 @@ its own process so that its peak RSS is its own; times are wall clock and CPU (u
 - ``versus``: generators against clifford on small grids (side by side, same circuit), if the
   generators engine is present;
 - ``zz``: spectator ZZ on every coupler against none, the folded cycle with N = 100, side by side
-  (attach and process-metric run, best CPU times and their ratio; goal: within 2x).
+  (attach and process-metric run, best CPU times and their ratio; goal: within 2x);
+- ``second``: the engine with and without its second-order pass, alternated in one process.
 
 Run: ``.venv/bin/python benchmarks/bench_clifford.py`` (all, several minutes) or
-``--scenario unrolled|folded|ratio|orbits|versus|zz``.
+``--scenario unrolled|folded|ratio|orbits|versus|zz|second``.
 """
 
 from __future__ import annotations
@@ -238,6 +239,35 @@ def with_zz(pattern: str = "sx", count: int = 100, rounds: int = 2, rows: int = 
     }
 
 
+def second_order(rows: int = 32, cols: int = 32, cycles: int = 20, rounds: int = 2) -> dict:
+    """The engine with and without its second-order pass (budget/engines/_second.py), alternated
+    in one process on the unrolled grid circuit (process metric, state metric with three
+    observables); ratio of the best CPU times."""
+    from budget.engines.clifford import CliffordEngine
+
+    noisy = build(rows, cols, cycles, folded=False)
+    centre = (rows // 2) * cols + cols // 2
+    obs = ("Z0", f"Z{centre}Z{centre + 1}", f"X{centre}")
+    best = {True: float("inf"), False: float("inf")}
+    notes = {}
+    for _ in range(rounds):
+        for flag in (False, True):
+            engine = CliffordEngine(second_order=flag, qubit_map=False)
+            t = _clock()
+            p = engine.run(noisy, "process")
+            st = engine.run(noisy, "state", observables=obs)
+            best[flag] = min(best[flag], _since(t)[1])
+            notes[flag] = (p.details.get("second_order", "formed"), st.details.get("second_order", "formed"), p.infidelity)
+    return {
+        "scenario": f"second order on/off, unrolled {rows}x{cols}, {cycles} cycles",
+        "first_order_only_cpu_s": best[False],
+        "with_second_order_cpu_s": best[True],
+        "slowdown": best[True] / best[False],
+        "second_order_process_state": notes[True][:2],
+        "infidelity_on_off": (notes[True][2], notes[False][2]),
+    }
+
+
 SCENARIOS = {
     "unrolled": [("unrolled", ())],
     "folded": [("folded", (p, n)) for p in ("sx", "x") for n in (100, 10**6, 10**9)],
@@ -245,6 +275,7 @@ SCENARIOS = {
     "orbits": [("orbits_vs_period", ("sx",))],
     "versus": [("versus", (2, 5, 20, "process")), ("versus", (3, 4, 20, "state"))],
     "zz": [("with_zz", ("sx",)), ("with_zz", ("x",))],
+    "second": [("second_order", (32, 32, 20))],
 }
 
 

@@ -71,5 +71,7 @@ def test_spectator_zz_builds_up_and_the_echo_cancels_it():
                       "gates": {"id": {"duration_ns": 200.0}}}, cycles=n)
     assert zz_only.actual_infidelity == pytest.approx(3 / 8 * (1 - math.cos(n * phi)), abs=1e-12)
     echo = analyze(ROOT / "circuits" / "pair_memory_echo.qasm", model, cycles=n, compare_twirled=True)
-    assert abs({f.name: f.share for f in echo.families}["zz q[0],q[1]"]) < 1e-12
+    # cancelled to first order; what is left is the ZZ's second-order interference with the
+    # other errors (commutators count half in each family, docs/methods.md "Orders"): 2e-7 of the total
+    assert abs({f.name: f.share for f in echo.families}["zz q[0],q[1]"]) < 1e-6 * echo.actual_infidelity
     assert echo.actual_infidelity < echo.naive_infidelity

@@ -19,8 +19,9 @@ from budget.engines.clifford import CliffordEngine
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat
 from clifford_reference import random_layer, unrolled
 
-SMALL_BABY = CliffordEngine(orbit_baby=2, qubit_map=False)
-PERIOD_FOLD = CliffordEngine(orbit_baby=0, qubit_map=False)
+# the orbit fold is a first-order fold: its checks compare first-order engines
+SMALL_BABY = CliffordEngine(orbit_baby=2, qubit_map=False, second_order=False)
+PERIOD_FOLD = CliffordEngine(orbit_baby=0, qubit_map=False, second_order=False)
 
 
 def _block_circuit(rng, n: int, count: int, *, body_layers: int = 2, noisy_outside: bool = False) -> NoisyCircuit:
@@ -102,7 +103,7 @@ def test_grid_cycle_with_default_baby_steps_matches_the_period_fold():
     # 8 x 8 grid (sx layer, CZ in four directions; period 252): long orbits, found by giant steps with the
     # default 64 baby steps; the period fold walks the whole period instead.
     c = _grid(8, 10**6)
-    a, b = CliffordEngine(qubit_map=False).run(c, "process"), PERIOD_FOLD.run(c, "process")
+    a, b = CliffordEngine(qubit_map=False, second_order=False).run(c, "process"), PERIOD_FOLD.run(c, "process")
     rec = a.details["orbit_folds"][0]
     assert rec["longest_orbit"] > 64 and rec["giant_steps"] >= 2
     _same(a, b)
@@ -185,7 +186,7 @@ def test_state_metric_is_not_folded_by_orbits():
 def test_search_that_does_not_close_is_approximated_with_a_warning(monkeypatch):
     monkeypatch.setattr(orbits, "MAX_GIANT_STEPS", 1)
     c = _grid(6, 10**4)
-    r = CliffordEngine(qubit_map=False, orbit_baby=4).run(c, "process")
+    r = CliffordEngine(qubit_map=False, orbit_baby=4, second_order=False).run(c, "process")
     assert r.details["orbit_folds"] == []
     assert any("did not close" in w for w in r.warnings)
 
@@ -199,7 +200,7 @@ def test_approximate_fallback_counts_terms_outside_the_block_once(monkeypatch):
     extra = NoisyLayer(
         tuple(NoisyOperation(Operation("sx", (q,)), "sx", np.eye(2), {"X": h}) for q in range(36)), (), 0.0
     )
-    engine = CliffordEngine(qubit_map=False, orbit_baby=4)
+    engine = CliffordEngine(qubit_map=False, orbit_baby=4, second_order=False)
     base = engine.run(c, "process")
     more = engine.run(NoisyCircuit(c.qubits, (extra,) + c.body), "process")
     assert any("did not close" in w for w in more.warnings)

@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary, circuit_fields
-from budget.analysis.select import choose_engine, first_order_shares
+from budget.analysis.select import choose_engine, escalate, first_order_shares
 from budget.analysis.validity import run_in_range
 from budget.circuit.ir import StructuredCircuit
 from budget.engines.base import MEASURED_METRICS, METRICS
@@ -109,6 +109,9 @@ def analyze_noisy(
 
     chosen = choose_engine(noisy, metric, engine)
     outcome, switched = run_in_range(noisy, metric, chosen, engine, observables=tuple(observables))
+    if (better := escalate(noisy, metric, engine, outcome)) is not None:
+        switched = (*switched, f"auto: the {outcome.engine} engine's result rested on a cancellation; the exact engine ran instead")
+        outcome = better.run(noisy, metric, observables=tuple(observables))
     warnings = list(notes) + list(switched) + list(outcome.warnings)
     shares = dict(outcome.shares)
     shares_known = True

@@ -7,7 +7,7 @@ size), else ``generators``. The result names the engine that ran.
 
 from __future__ import annotations
 
-from budget.engines import ENGINE_NAMES, Engine, get_engine
+from budget.engines import ENGINE_NAMES, Engine, EngineResult, get_engine
 from budget.errors.noisy import NoisyCircuit
 from budget.circuit.ir import item_kind
 from budget.problems import InputError, TooLargeError, place
@@ -63,6 +63,16 @@ def choose_engine(circuit: NoisyCircuit, metric: str, name: str = "auto", *, bri
         f"{circuit.source}: no engine fits this {circuit.num_qubits}-qubit circuit for the "
         f"{metric} metric ({'; '.join(reasons)})"
     )
+
+
+def escalate(circuit: NoisyCircuit, metric: str, requested: str, outcome: EngineResult) -> Engine | None:
+    """For ``auto``: the exact engine, when a first-order engine's result rests on a cancellation
+    (``details["rests_on_cancellation"]``, budget/engines/_validity.py) and the exact engine
+    fits; else None. The caller runs it and says so."""
+    if requested != "auto" or outcome.engine == "exact" or not outcome.details.get("rests_on_cancellation"):
+        return None
+    exact = _available("exact")
+    return exact if exact is not None and exact.fits(circuit, metric) is None else None
 
 
 def first_order_shares(

@@ -207,14 +207,19 @@ class ObservableSink(_Batches):
         self.fo = fingerprints(xo, None)  # (K, 2)
         self.expect = np.where(np.any(xo != 0, axis=1), 0.0, PHASE[self.eo].real)  # <0|O_in|0>
         self.values: list[np.ndarray] = []
+        self.coherent_values: list[np.ndarray] = []  # the coherent part of ``values``
+        self.terms_seen = 0  # coherent terms walked (cost of a second pass over them)
 
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:
         self._new()
         table = self.builder.layer(layer)
         value = np.zeros(len(self.eo))
+        coherent = np.zeros(len(self.eo))
         self.values.append(value)
+        self.coherent_values.append(coherent)
         if not len(table.rows):
             return
+        self.terms_seen += len(table.coherent)
         f16, e16 = site_images(frame, table.rows, full=False)
         x, z = frame.x[table.rows], frame.z[table.rows]
         xo, zo = self.xo[:, None, None, :], self.zo[:, None, None, :]
@@ -230,7 +235,8 @@ class ObservableSink(_Batches):
                 if np.any(hit):
                     s, v = c.site[hit], c.v[hit]
                     ph = (e16[s, v] + c.e0[hit] + self.eo[k] + 2 * b16[k, s, v]) & 3
-                    value[k] += float(np.real(np.sum(2j * c.coef[hit] * PHASE[ph])))
+                    coherent[k] += float(np.real(np.sum(2j * c.coef[hit] * PHASE[ph])))
+                    value[k] += coherent[k]
             if self.expect[k]:
                 value[k] += -2.0 * self.expect[k] * float(np.sum(table.rates * anti16[k]))
 
@@ -239,6 +245,12 @@ class ObservableSink(_Batches):
         if not self.values:
             return np.zeros(len(self.eo))
         return np.asarray(self.prob) @ np.array(self.values)
+
+    def coherent_totals(self) -> np.ndarray:
+        """The coherent (linear) part of :meth:`totals`."""
+        if not self.coherent_values:
+            return np.zeros(len(self.eo))
+        return np.asarray(self.prob) @ np.array(self.coherent_values)
 
 
 class LandingSink(_Batches):

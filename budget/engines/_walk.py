@@ -319,6 +319,8 @@ class Walker:
                 w = float(q + (1 if k < s else 0))
                 if w != 1.0:
                     self.sink.scale(marks[k], marks[k + 1], w, w)
+            if hasattr(self.sink, "fold"):  # the second-order pass (budget/engines/_second.py)
+                self.sink.fold(marks[: period + 1], int(rep.count))
         base = s - s % SNAPSHOT_STRIDE  # frame is back at the start: advance it by s blocks
         self.frame = snapshots[base].copy()
         was, self._emit = self._emit, False
@@ -332,6 +334,8 @@ class Walker:
         self.periods.append((count, None))
         if self._emit:
             self.sink.scale(marks[0], marks[-1], float(np.sqrt(ratio)), ratio)
+            if hasattr(self.sink, "approximate"):
+                self.sink.approximate()
         block = Walker(self.n, self.direction, max_unrolled=self.max_unrolled, plans=self._plans)
         block.run(rep.body)
         power = block.frame.to_stim() ** count

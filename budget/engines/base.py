@@ -76,6 +76,20 @@ class QuadraticForm:
     floor_sources: dict[str, float]
 
 
+def zero_result(engine: str, metric: str, observables: tuple[str, ...] = (), *, first_order: float | None = 0.0) -> EngineResult:
+    """The result for a circuit without any error: exactly 0 everywhere (no rounding residue such
+    as 2.2e-16 or -0.0 from products of ideal matrices)."""
+    return EngineResult(
+        engine=engine,
+        metric=metric,
+        infidelity=0.0,
+        shares={},
+        first_order=first_order,
+        details={"error_free": True},
+        observable_errors={label: 0.0 for label in observables},
+    )
+
+
 class Engine(Protocol):
     """What every engine provides."""
 

@@ -28,10 +28,20 @@ from budget.circuit.clifford_check import first_non_clifford, label_bits
 from budget.engines._cone import light_cone
 from budget.engines._knobs import knob_grouping
 from budget.engines._groups import Budget, aggregate, quadratic_matrix
+from budget.engines._pauli_frame import num_words
+from budget.engines._pauli_observables import merge_terms, observable_change
+from budget.engines._second import PAIR_BUDGET, SecondOrderSink, TooCostly
 from budget.engines._sinks import GroupSink, LandingSink, ObservableSink
 from budget.engines._terms import Sources, TermBuilder
+from budget.engines._validity import (
+    cancellation_note,
+    second_order_share,
+    term_norm_sum,
+    term_square_sum,
+    validity_details,
+)
 from budget.engines._walk import MAX_UNROLLED, ORBIT_BABY, Walker
-from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable
+from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.errors.noisy import NoisyCircuit
 from budget.problems import InputError, TooLargeError, place
 
@@ -40,6 +50,9 @@ SMALL = 0.1
 LANDING_BUDGET = 1e10
 """Largest (error terms walked) x (qubits) for which the per-qubit map is computed by default
 (about 15 s of CPU at the 1,024-qubit, 100-cycle benchmark, which costs 4·10^9)."""
+
+CHEAP_PAIRS = 3e7
+"""(terms walked)² x words below which the second order is always formed."""
 
 TWIRL_NOTE = (
     "state metric: T1/T2 relaxation enters through its Pauli twirl (Tomita & Svore, PRA 90, 062320 "
@@ -68,6 +81,8 @@ class CliffordEngine:
         prune_observables: evaluate observables on their backward light cone only.
         orbit_baby: baby steps of the orbit fold of long-period blocks (process metric; see
             budget/engines/_orbits.py); 0 folds every block by its period instead.
+        second_order: add the second-order (commutator) terms of the effective generator
+            (budget/engines/_second.py) when affordable or when the first order looks cancelled.
     """
 
     name = "clifford"
@@ -80,7 +95,9 @@ class CliffordEngine:
         top: int = 10,
         prune_observables: bool = True,
         orbit_baby: int = ORBIT_BABY,
+        second_order: bool = True,
     ):
+        self.second_order = second_order
         self.max_unrolled = max_unrolled
         self.qubit_map = qubit_map
         self.top = top
@@ -112,6 +129,7 @@ class CliffordEngine:
             top=self.top,
             prune_observables=self.prune_observables,
             orbit_baby=self.orbit_baby,
+            second_order=self.second_order,
         )
 
     def _check(self, circuit: NoisyCircuit, metric: Metric) -> None:
@@ -119,25 +137,120 @@ class CliffordEngine:
         if reason is not None:
             raise TooLargeError(f"engine clifford: {reason}")
 
-    def _pass(self, circuit: NoisyCircuit, metric: str, plans: dict, *, grouping=None, labels=()):
+    def _pass(self, circuit: NoisyCircuit, metric: str, plans: dict, *, grouping=None, labels=(), second: bool = False):
+        """One walk; ``second``: also the second-order terms (period folds only, no orbit fold;
+        raises TooCostly beyond the pair budget)."""
         sources = Sources(labels={lab: i for i, lab in enumerate(labels)})
         builder = TermBuilder(circuit.num_qubits, circuit.qubits, sources, grouping)
         sink = GroupSink(builder, key="x" if metric == "state" else "xz", unit=grouping is not None)
         direction = "pull" if metric == "state" else "push"
+        outer = SecondOrderSink(sink, direction, num_words(circuit.num_qubits)) if second else sink
         walker = Walker(
-            circuit.num_qubits, direction, sink, max_unrolled=self.max_unrolled, plans=plans, orbit_baby=self.orbit_baby
+            circuit.num_qubits,
+            direction,
+            outer,
+            max_unrolled=self.max_unrolled,
+            plans=plans,
+            orbit_baby=0 if second else self.orbit_baby,
         )
         walker.run(circuit.body)
+        if second:
+            sink.rows = outer.finish()  # full rows of the first- and second-order terms
+            if outer.too_costly:
+                raise TooCostly
+            if outer.unfolded:
+                walker.warnings.append(
+                    "second order: a block without a period within the walked range was folded "
+                    "approximately, so its commutator terms are not complete"
+                )
         return sources, sink, walker
+
+    def _wants_second(self, circuit: NoisyCircuit, budget: Budget, sink: GroupSink, walker: Walker) -> str | None:
+        """None to form the second order (it is cheap, or the first order looks cancelled: its
+        coherent sum is below a tenth of what the terms would give landing apart), else why not.
+        Blocks folded by orbits or approximately are not folded at second order."""
+        if not self.second_order:
+            return "not asked for"
+        cancelled = budget.coherent < 0.1 * term_square_sum(circuit)
+        if walker.orbit_records or walker.warnings:
+            return "not formed (a block was folded by orbits or approximately; the second order needs a period fold)" + (
+                "!" if cancelled else ""
+            )
+        if sink.terms_emitted**2 * num_words(circuit.num_qubits) <= CHEAP_PAIRS or cancelled:
+            return None
+        return "not formed (costly, and the first order shows no cancellation)"
+
+    @staticmethod
+    def _hidden_note(sink: GroupSink, budget: Budget, cancellation: float) -> str | None:
+        """State metric: a warning when the first order cancels and the second-order generator
+        barely acts on |0…0> (its state infidelity is below 1 % of its process-type size
+        Σ_P c_P²): the state value then comes from the third order, which is left out."""
+        if cancellation >= 0.1:
+            return None
+        first, second = sink.rows
+        merged = merge_terms(*(np.concatenate([first[i], second[i]]) for i in range(4)))
+        size = float(np.sum(merged[3] ** 2))
+        if size == 0.0 or budget.coherent >= 0.01 * size:
+            return None
+        return (
+            f"state metric: the first-order error terms cancel and the second-order term leaves the input "
+            f"state almost unchanged (state infidelity {budget.coherent:.2g} against {size:.2g} for the process "
+            "metric), so the state value comes from the third order, which the clifford engine leaves out: "
+            "use the generators or exact engine where they fit"
+        )
 
     def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
         """First-order and resummed infidelity, family shares, drill-down, qubit map, observables."""
         self._check(circuit, metric)
+        if not circuit.has_errors:
+            try:
+                for label in observables:
+                    parse_observable(label, circuit.num_qubits)
+            except ValueError as err:
+                raise InputError(f"{circuit.source}: {err}") from None
+            return zero_result(self.name, metric, tuple(observables))
         plans: dict = {}
         sources, sink, walker = self._pass(circuit, metric, plans)
         budget = aggregate(sink, len(sources.families), state=metric == "state")
-        warnings = list(walker.warnings)
-        fo, total = budget.first_order, budget.total
+        first_walk, first_sources = (sink, walker), sources
+        validity, warnings = {}, []
+        first = budget
+        why_not = self._wants_second(circuit, budget, sink, walker)
+        if why_not is None:
+            try:
+                sources, sink2, walker = self._pass(circuit, metric, plans, second=True)
+            except TooCostly:
+                sink2 = None
+                validity["second_order"] = f"not formed (more than {PAIR_BUDGET:.0e} pair operations)"
+                if budget.coherent < 0.1 * term_square_sum(circuit):
+                    warnings.append(
+                        "the first-order error terms largely cancel and their second-order (commutator) "
+                        "terms were too many to form: the result may be far too small"
+                    )
+            if sink2 is not None:
+                first = budget
+                budget = aggregate(sink2, len(sources.families), state=metric == "state")
+                share = second_order_share(budget.coherent_resummed, first.coherent_resummed)
+                sizes = term_norm_sum(circuit)
+                cancellation = float(np.sqrt(first.coherent)) / sizes if sizes > 0 else 1.0
+                validity.update(validity_details(share, cancellation, float(np.sqrt(first.coherent)), float("nan")))
+                validity["coherent_without_second_order"] = first.coherent_resummed + 0.0
+                validity.pop("second_order_norm_rad")
+                if note := cancellation_note(share, cancellation, engine=self.name):
+                    warnings.append(note)
+                if metric == "state" and (note := self._hidden_note(sink2, budget, cancellation)):
+                    warnings.append(note)
+                    validity["rests_on_cancellation"] = True
+        elif self.second_order:
+            validity["second_order"] = why_not.rstrip("!")
+            if why_not.endswith("!"):
+                warnings.append(
+                    "the first-order error terms largely cancel, but the second-order (commutator) terms "
+                    "are not formed for blocks folded by orbits or approximately: the result may be far "
+                    "too small (CliffordEngine(orbit_baby=0) folds by the period instead)"
+                )
+        warnings += list(walker.warnings)
+        fo, total = first.first_order, budget.total
         shares = _by_family(sources, budget.shares)
         beyond = None
         raw = budget.coherent_resummed + budget.stochastic
@@ -152,7 +265,10 @@ class CliffordEngine:
             )
         if metric == "state" and _has_relaxation(circuit):
             warnings.append(TWIRL_NOTE)
-        details = _details(budget, sources, walker, self.top)
+        details = _details(first, first_sources, walker, self.top) | validity
+        details["coherent_exponentiated"] = budget.coherent_resummed + 0.0
+        details["coherent_leading_order"] = budget.coherent
+        sink, walker = first_walk
         emitted = sink.terms_emitted + sink.rates_emitted
         for rec in walker.orbit_records:  # the landing walk enumerates what the orbit search skipped
             walks = min(rec["count"], rec["longest_orbit"] or self.max_unrolled)
@@ -234,7 +350,34 @@ class CliffordEngine:
         xo, zo, eo = (np.concatenate([r[i] for r in rows]) for i in range(3))
         sink = ObservableSink(TermBuilder(m, circuit.qubits, Sources()), xo, zo, eo)
         Walker(m, "pull", sink, max_unrolled=self.max_unrolled, plans=plans).run(circuit.body)
-        return dict(zip(paulis, map(float, sink.totals())))
+        totals = sink.totals()
+        if self.second_order and sink.terms_seen**2 * num_words(m) <= PAIR_BUDGET:
+            coherent = self._coherent_observables(circuit, (xo, zo, eo), plans)
+            if coherent is not None:
+                totals = totals - sink.coherent_totals() + coherent
+        return dict(zip(paulis, map(float, totals)))
+
+    def _coherent_observables(self, circuit: NoisyCircuit, obs: tuple, plans: dict) -> np.ndarray | None:
+        """Coherent change of each observable to second order (linear term of H_1 + H_2 and the
+        quadratic terms, budget/engines/_pauli_observables.py) from the full input-frame terms of
+        one more walk (only when the first walk's terms, paired, stay within PAIR_BUDGET); None when that
+        walk goes beyond its budgets or folds approximately (the first-order linear term then
+        stands alone)."""
+        m = circuit.num_qubits
+        sink = GroupSink(TermBuilder(m, circuit.qubits, Sources()), key="x")
+        outer = SecondOrderSink(sink, "pull", num_words(m))
+        Walker(m, "pull", outer, max_unrolled=self.max_unrolled, plans=plans, orbit_baby=0).run(circuit.body)
+        first, second = outer.finish(inject=False)
+        if outer.too_costly or outer.unfolded:
+            return None
+        terms = merge_terms(*(np.concatenate([a[i], b[i]]) for a, b in zip([first], [second]) for i in range(4)))
+        out = np.zeros(len(obs[2]))
+        for k in range(len(out)):
+            linear, quadratic = observable_change(terms, (obs[0][k], obs[1][k], int(obs[2][k])))
+            if quadratic is None:
+                return None
+            out[k] = linear + quadratic
+        return out
 
     def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:
         """e ≈ δᵀ A δ + floor over (family, knob) labels, from the knobs' first-order generators.

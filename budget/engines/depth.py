@@ -4,7 +4,11 @@ The circuit's body is propagated once (dense generator H_c and ideal unitary U_c
 first-order content of every layer); each N then costs O(d³) through the periodic closed form
 (:mod:`budget.engines.periodic`), with no re-simulation:
 
-- coherent: exponentiated and first-order infidelity of S_N(H_c) = Σ_{k<N} U_c^k H_c U_c^{-k};
+- coherent: exponentiated infidelity of the exact generator of N cycles, from the Schur bases of
+  the ideal and the noisy cycle unitary (as the generators engine's dense blocks,
+  :mod:`budget.engines._dense`); where its principal branch is not safe, S_N(H_c) + C_N(H_c, H_c)
+  (the per-cycle generator summed over the cycles with the second-order commutators between
+  them, :func:`budget.engines.periodic.cross_cycle_sum`); first order from the first-order part;
 - stochastic, process metric: N times the per-cycle first-order sum;
 - stochastic, state metric: Σ_k over cycles of the jump costs p (<L†L> - |<L>|²), by the geometric
   sums over the cycle's quasi-energies (exact when the closed form applies, else evaluated per N
@@ -26,7 +30,7 @@ from budget.engines._channels import content_cache
 from budget.engines._dense import DensePropagator
 from budget.engines._jumps import StateJumps
 from budget.engines.base import Metric
-from budget.engines.periodic import AccumulationSplit, accumulation_split, coherent_curve
+from budget.engines.periodic import AccumulationSplit, accumulation_split, coherent_curve, cycle_basis, exact_coherent_curve
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.problems import TooLargeError
 
@@ -71,14 +75,18 @@ def depth_curve(circuit: NoisyCircuit, metric: Metric, counts: Sequence[int]) ->
         raise TooLargeError(f"{circuit.source}: depth curve with the generators engine: {reason}")
     n = circuit.num_qubits
     content_of = content_cache(n)
-    dense = DensePropagator(n, content_of)
+    dense = DensePropagator(n, content_of, second_order=True)
     cycle = NoisyRepeat(circuit.body, 1)
     inner, basis = dense.repeat(cycle)
     h = inner.total()
     psi0 = np.zeros(2**n, dtype=complex)
     psi0[0] = 1.0
     counts = tuple(int(c) for c in counts)
-    coh = coherent_curve(basis, h, counts, state=None if metric == "process" else psi0)
+    state = None if metric == "process" else psi0
+    coh = coherent_curve(basis, h, counts, state=state, second_order=True)
+    exact = exact_coherent_curve(basis, cycle_basis(inner.noisy), counts, state=state)
+    coherent = np.array([c if e is None else e for c, e in zip(coh.infidelity, exact)])
+    first = coherent_curve(basis, h - inner.second_total(), counts, state=state).first_order
     approximated = False
     if metric == "process":
         per_cycle = sum(mult * sum(content_of(layer).process_stochastic.values()) for layer, mult in circuit.multiplicities())
@@ -92,9 +100,9 @@ def depth_curve(circuit: NoisyCircuit, metric: Metric, counts: Sequence[int]) ->
         stoch = np.array([sum(c.values()) for c in closed], dtype=float)
     return DepthCurve(
         counts=counts,
-        infidelity=np.clip(coh.infidelity + stoch, 0.0, 1.0),
-        first_order=coh.first_order + stoch,
-        coherent=coh.infidelity,
+        infidelity=np.clip(coherent + stoch, 0.0, 1.0),
+        first_order=first + stoch,
+        coherent=coherent,
         stochastic=stoch,
         split=accumulation_split(basis, h),
         approximated=approximated,

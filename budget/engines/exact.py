@@ -42,7 +42,7 @@ from budget.engines._exact_plan import REPEAT_MODES, make_plan, refusal
 from budget.engines._exact_power import channel_power, unitary_power
 from budget.engines._exact_readout import expectation, from_pauli, infidelity
 from budget.engines._exact_register import Fuser, Register
-from budget.engines.base import METRICS, EngineResult, Metric, parse_observable
+from budget.engines.base import METRICS, EngineResult, Metric, parse_observable, zero_result
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
 from budget.problems import TooLargeError
 
@@ -170,6 +170,8 @@ class ExactEngine:
         reason = refusal(circuit, metric, plan)
         if reason is not None:
             raise TooLargeError(f"engine exact: {reason}")
+        if not circuit.has_errors:
+            return zero_result(self.name, metric, observables, first_order=None)
         ideal_runner = _Runner(n, 2, lambda nop: gate_unitary(nop, ideal=True), None, plan.ideal_powered)
         ideal = self._propagate(ideal_runner, circuit, 2, plan.columns > 1)
         if plan.site_dim == 2:

@@ -37,8 +37,10 @@ from budget.engines._knobs import knob_grouping
 from budget.engines._krylov import expm_apply
 from budget.engines._observables import IncoherentObservables, observable_vector
 from budget.engines._states import StatePath
-from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable
+from budget.engines._validity import cancellation_note, second_order_share, term_norm_sum, validity_details
+from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.engines.depth import DepthCurve, depth_curve
+from budget.engines.periodic import coherent_infidelity
 from budget.errors.noisy import NoisyCircuit
 from budget.problems import TooLargeError
 
@@ -61,6 +63,17 @@ class _Coherent:
     norm_rad: float
     psi: np.ndarray | None = None
     chi: np.ndarray | None = None
+    second_share: float | None = None
+    first_norm: float | None = None
+    second_norm: float | None = None
+    leading: float | None = None  # quadratic estimate of H_1 + H_2 (the shares' scale), when formed
+
+
+def _hs_norm(h: np.ndarray) -> float:
+    """Normalised Hilbert-Schmidt norm of the traceless part, sqrt(Tr(H²)/d - (Tr H/d)²), radians."""
+    d = h.shape[0]
+    tr = np.trace(h).real / d
+    return float(np.sqrt(max(np.vdot(h, h).real / d - tr**2, 0.0)))
 
 
 def _ground(n: int) -> np.ndarray:
@@ -102,6 +115,12 @@ class GeneratorsEngine:
 
     name = "generators"
 
+    def __init__(self, *, second_order: bool = True) -> None:
+        """``second_order``: form the effective generator beyond first order (second order, and
+        exactly where the block's principal logarithm is safe; budget/engines/_dense.py); False
+        keeps the first order alone."""
+        self.second_order = second_order
+
     def fits(self, circuit: NoisyCircuit, metric: Metric, observables: tuple[str, ...] = ()) -> str | None:
         """None when the circuit fits, else the reason (qubits, limit, memory, engine that fits)."""
         if metric not in METRICS:
@@ -137,16 +156,22 @@ class GeneratorsEngine:
         reason = self.fits(circuit, metric, observables)
         if reason is not None:
             raise TooLargeError(f"{circuit.source}: engine generators: {reason}")
+        if not circuit.has_errors:
+            for label in observables:
+                parse_observable(label, circuit.num_qubits)
+            return zero_result(self.name, metric, observables)
         n = circuit.num_qubits
         content_of = content_cache(n, by_family)
-        dense = DensePropagator(n, content_of)
+        dense = DensePropagator(n, content_of, second_order=self.second_order)
         jumps = StateJumps(n, content_of, dense)
         stoch = self._stochastic(circuit, metric, content_of, jumps)
-        path = StatePath(circuit, content_of, dense) if metric == "state" or observables else None
-        coh = self._coherent(circuit, metric, dense, path)
+        uses_path = n > MAX_DENSE_QUBITS and (metric == "state" or observables)
+        path = StatePath(circuit, content_of, dense) if uses_path else None
+        coh = self._coherent(circuit, metric, dense, path, want_state=bool(observables))
         stoch_total = sum(stoch.values())
-        total = float(np.clip(coh.exact + stoch_total, 0.0, 1.0))
-        scale = coh.exact / coh.first if coh.first > 0 else 0.0
+        total = float(np.clip(coh.exact + stoch_total, 0.0, 1.0)) + 0.0
+        lead = coh.first if coh.leading is None else coh.leading
+        scale = coh.exact / lead if lead > 0 else 0.0
         shares = {f: scale * v for f, v in coh.shares.items()}
         for f, v in stoch.items():
             shares[f] = shares.get(f, 0.0) + v
@@ -154,6 +179,24 @@ class GeneratorsEngine:
         if raw and abs(raw - total) > 1e-15:
             shares = {f: v * total / raw for f, v in shares.items()}  # only when clipped
         warnings = self._warnings(circuit, metric, coh.norm_rad, stoch_total, jumps.approximations)
+        details = {
+            "coherent_exponentiated": coh.exact,
+            "coherent_first_order": coh.first,
+            "stochastic_first_order": stoch_total,
+            "hamiltonian_norm_rad": coh.norm_rad,
+        }
+        if coh.second_share is not None:
+            sizes = term_norm_sum(circuit)
+            cancellation = coh.first_norm / sizes if sizes > 0 else 1.0
+            details.update(validity_details(coh.second_share, cancellation, coh.first_norm, coh.second_norm))
+            if note := cancellation_note(coh.second_share, cancellation, engine=self.name):
+                warnings.insert(0, note)
+        elif coh.exact > 0:
+            warnings.append(
+                f"state metric on {n} qubits: the coherent part is first order only (the second-order "
+                f"commutator term needs dense matrices, up to {MAX_DENSE_QUBITS} qubits); where the "
+                "first-order terms cancel (echoes) the result can be far too small"
+            )
         obs: dict[str, float] = {}
         if observables:
             obs, notes = self._observables(circuit, observables, content_of, dense, path, coh)
@@ -165,12 +208,7 @@ class GeneratorsEngine:
             shares=shares,
             first_order=coh.first + stoch_total,
             warnings=tuple(dict.fromkeys(warnings)),
-            details={
-                "coherent_exponentiated": coh.exact,
-                "coherent_first_order": coh.first,
-                "stochastic_first_order": stoch_total,
-                "hamiltonian_norm_rad": coh.norm_rad,
-            },
+            details=details,
             observable_errors=obs,
             beyond_range=range_note(stoch_total, coh.exact),
         )
@@ -186,17 +224,12 @@ class GeneratorsEngine:
                 out[f] = out.get(f, 0.0) + mult * v
         return out
 
-    def _coherent(self, circuit, metric, dense: DensePropagator, path: StatePath | None) -> _Coherent:
-        if metric == "process":
-            block = dense.block(circuit.body, with_unitary=False)
-            h = block.total()
-            d = h.shape[0]
-            tr = np.trace(h).real / d
-            shares = {k: float(np.vdot(hk, h).real / d - tr * np.trace(hk).real / d) for k, hk in zip(block.keys, block.hamiltonians)}
-            w = np.linalg.eigvalsh((h + h.conj().T) / 2) if block.keys else np.zeros(d)
-            exact = float(np.clip(1 - abs(np.mean(np.exp(-1j * w))) ** 2, 0.0, 1.0))
-            first = max(float(np.mean(w**2) - np.mean(w) ** 2), 0.0)
-            return _Coherent(exact, first, shares, float(np.max(np.abs(w - tr))))
+    def _coherent(self, circuit, metric, dense: DensePropagator, path: StatePath | None, want_state: bool = False) -> _Coherent:
+        """The coherent part. Where dense matrices fit, from the second-order effective generator
+        H = H_1 + H_2 of the whole circuit (:mod:`budget.engines._dense`); otherwise (state metric
+        on more than MAX_DENSE_QUBITS qubits, no repeats) from H_1 by state vectors."""
+        if metric == "process" or circuit.num_qubits <= MAX_DENSE_QUBITS:
+            return self._coherent_dense(circuit, metric, dense, want_state)
         psi = path.final_state()
         phis = path.group_vectors()
         if not phis:
@@ -209,6 +242,43 @@ class GeneratorsEngine:
         exact = float(np.clip(1 - abs(np.vdot(psi, kr.vector)) ** 2, 0.0, 1.0))
         norm = float(np.max(np.abs(kr.ritz_values - mean)))
         return _Coherent(exact, first, shares, norm, psi, kr.vector)
+
+    def _coherent_dense(self, circuit, metric, dense: DensePropagator, want_state: bool) -> _Coherent:
+        state = metric == "state" or want_state
+        block = dense.block(circuit.body, with_unitary=state)
+        d = 2**circuit.num_qubits
+        psi = block.unitary[:, 0].copy() if state else None
+        if not block.keys or not np.any(block.hamiltonians):
+            return _Coherent(0.0, 0.0, {}, 0.0, psi, psi, second_share=0.0, first_norm=0.0, second_norm=0.0)
+        h = block.total()
+        h = (h + h.conj().T) / 2
+        h2 = block.second_total()
+        h2 = (h2 + h2.conj().T) / 2
+        w, v = np.linalg.eigh(h)
+        if metric == "process":
+            tr = np.trace(h).real / d
+            shares = {k: float(np.vdot(hk, h).real / d - tr * np.trace(hk).real / d) for k, hk in zip(block.keys, block.hamiltonians)}
+            exact = float(np.clip(1 - abs(np.mean(np.exp(-1j * w))) ** 2, 0.0, 1.0))
+            first = max(float(np.mean(w**2) - np.mean(w) ** 2), 0.0)
+            exact1, first1 = coherent_infidelity(h - h2)
+            norm = float(np.max(np.abs(w - tr)))
+        else:
+            hpsi = h @ psi
+            mean = np.vdot(psi, hpsi).real
+            shares = {k: float(np.vdot(hk @ psi, hpsi).real - np.vdot(psi, hk @ psi).real * mean) for k, hk in zip(block.keys, block.hamiltonians)}
+            weights = np.abs(v.conj().T @ psi) ** 2
+            exact = float(np.clip(1 - abs(np.sum(weights * np.exp(-1j * w))) ** 2, 0.0, 1.0))
+            first = max(float(np.sum(weights * w**2) - np.sum(weights * w) ** 2), 0.0)
+            exact1, first1 = coherent_infidelity(h - h2, psi)
+            norm = float(np.max(np.abs(w - mean)))
+        chi = v @ (np.exp(-1j * w) * (v.conj().T @ psi)) if state else None
+        return _Coherent(
+            exact, first1, shares, norm, psi, chi,
+            leading=first,
+            second_share=second_order_share(exact, exact1),
+            first_norm=_hs_norm(h - h2),
+            second_norm=_hs_norm(h2),
+        )
 
     def _warnings(self, circuit, metric, norm: float, stoch: float, notes: list[str]) -> list[str]:
         what = []

@@ -191,6 +191,8 @@ def operation_infidelity(nop: NoisyOperation) -> float:
     F_pro = Σ_k |a_k|² = 1 - (1/d) Σ_k ||K'_k||²_F, so the infidelity is a sum of small positive
     terms: relative precision ~1e-10 even at 1e-13 per operation.
     """
+    if not nop.has_coherent and not nop.has_incoherent:
+        return 0.0  # no error: exactly 0, not the rounding of an identity channel
     kraus = np.array(error_channel_kraus(nop))
     d = kraus.shape[-1]
     traces = np.trace(kraus, axis1=1, axis2=2)
@@ -240,7 +242,7 @@ def naive_infidelity(circuit: NoisyCircuit) -> float:
         if any(v == -math.inf for v in logs):
             return 1.0
         terms.append(mult * math.fsum(logs))
-    return float(-math.expm1(math.fsum(terms)))
+    return float(-math.expm1(math.fsum(terms))) + 0.0  # + 0.0: no -0.0 for an error-free circuit
 
 
 def _channel_key(nop: NoisyOperation) -> tuple:

@@ -265,6 +265,16 @@ class NoisyCircuit:
 
         return first(self.body)
 
+    @property
+    def has_errors(self) -> bool:
+        """Whether any operation or idle slot carries an error (coherent or incoherent); engines
+        answer exactly 0 when none does. Circuits with mid-circuit items count as having errors
+        (their measurement errors are not looked at here)."""
+        if self.has_mid_circuit:
+            return True
+        coherent = any(nop.has_coherent for layer in self.distinct_layers() for nop in layer.operations)
+        return coherent or self.has_incoherent
+
     def distinct_layers(self) -> list[NoisyLayer]:
         """Every layer as written (once per place in the text, repeats not unrolled)."""
         out: list[NoisyLayer] = []

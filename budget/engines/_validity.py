@@ -1,0 +1,72 @@
+"""How far a first-order result can be believed: cancellation and the size of the second order.
+
+Two measures, shared by the first-order engines (design.md §8, "Orders"):
+
+- cancellation c = ||H_1|| / Σ_t ||G_t||: the size of the summed first-order generator against
+  the summed sizes of its terms (every operation's error, counted as often as it runs). Sizes are
+  normalised Hilbert-Schmidt norms, ||Σ h_P P|| = sqrt(Σ h_P²) in radians. c = 1 when every term
+  lands on the same operator with the same sign (coherent build-up), c near 0 when the terms cancel
+  (echoes, a gate followed by its inverse).
+- second-order share s = |e(H_1 + H_2) - e(H_1)| / e(H_1 + H_2): how much of the coherent
+  infidelity comes from the second-order (commutator) term H_2 of the Magnus expansion (Blanes,
+  Casas, Oteo & Ros, Phys. Rep. 470, 151 (2009)). A result with s above SECOND_ORDER_SHARE rests on
+  a cancellation of the first order: the second order is included, the third is not.
+
+>>> round(second_order_share(1e-6, 0.0), 3)
+1.0
+"""
+
+from __future__ import annotations
+
+import math
+
+from budget.errors.noisy import NoisyCircuit
+
+SECOND_ORDER_SHARE = 0.1
+"""Share of the coherent infidelity from the second-order term above which the result is said to
+rest on a cancellation (a judgement of this tool, no source)."""
+
+
+def term_norm_sum(circuit: NoisyCircuit) -> float:
+    """Σ_t ||G_t|| over every executed operation (repeat counts included), in radians."""
+    total = 0.0
+    for layer, mult in circuit.multiplicities():
+        s = sum(math.sqrt(sum(h * h for h in nop.hamiltonian.values())) for nop in layer.operations)
+        total += mult * s
+    return total
+
+
+def term_square_sum(circuit: NoisyCircuit) -> float:
+    """Σ_t ||G_t||² over every executed operation: the first-order coherent process infidelity the
+    terms would give if each landed on its own Pauli (no build-up, no cancellation)."""
+    return sum(mult * sum(h * h for nop in layer.operations for h in nop.hamiltonian.values()) for layer, mult in circuit.multiplicities())
+
+
+def second_order_share(with_second: float, first_only: float) -> float:
+    """s = |e(H_1 + H_2) - e(H_1)| / e(H_1 + H_2), 0 when both vanish."""
+    if with_second <= 0.0:
+        return 0.0 if first_only <= 0.0 else 1.0
+    return min(1.0, abs(with_second - first_only) / with_second)
+
+
+def cancellation_note(share: float, cancellation: float, *, engine: str) -> str | None:
+    """The plain-words warning for a result that rests on a cancellation, or None."""
+    if share <= SECOND_ORDER_SHARE:
+        return None
+    return (
+        f"the first-order error terms cancel (their sum is {100 * cancellation:.2g} % of the sum of their "
+        f"sizes), so {100 * share:.0f} % of the coherent infidelity comes from the second-order "
+        f"(commutator) term; the {engine} engine includes it but not the third order: trust the exact "
+        "engine where it fits"
+    )
+
+
+def validity_details(share: float, cancellation: float, norm_first_rad: float, norm_second_rad: float) -> dict:
+    """The validity numbers as reported in ``EngineResult.details``."""
+    return {
+        "cancellation": cancellation,
+        "second_order_share": share,
+        "first_order_norm_rad": norm_first_rad,
+        "second_order_norm_rad": norm_second_rad,
+        "rests_on_cancellation": share > SECOND_ORDER_SHARE,
+    }
