@@ -165,3 +165,21 @@ def test_uncertain_t1_against_the_coherence_limit_formula(tmp_path):
     expected = quad(infidelity, 80.0, 120.0)[0] / 40.0
     assert abs(r.now.mean - expected) < 3 * r.now.mean_stderr + 1e-12
     assert r.now.q05 < expected < r.now.q95
+
+
+def test_uncertain_zz_rate_against_its_closed_form(tmp_path):
+    # An idle pair (one 1 µs identity per cycle, no other error) with static ZZ ζ: N cycles give
+    # diag(1,1,1,e^{iφ}), φ = 2π ζ T N (issue 14's convention), process infidelity
+    # 1 - |3 + e^{iφ}|²/16 = (3/8)(1 - cos φ). For ζ ~ Normal(μ, σ), φ = aζ with a = 2π T N:
+    # E[cos aζ] = cos(aμ) exp(-a²σ²/2) (characteristic function), so
+    # E = (3/8)(1 - cos(aμ) exp(-a²σ²/2)).
+    n, mu_khz, sigma_khz = 10, 20.0, 4.0  # P(draw < 0) ≈ 3e-7: the rate's floor at 0 never matters
+    circuit = 'OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\nid q[0];\n'
+    model = ("[gates.id]\nduration_ns = 1000.0\n"
+             f'[couplings."q[0],q[1]"]\nzz_khz = {{ value = {mu_khz}, sigma = {sigma_khz} }}\n')
+    c, m = files(tmp_path, circuit, model)
+    r = sweep(c, m, samples=600, cycles=n, workers=1, sobol_base=0, seed=5)
+    a = 2 * math.pi * 1e-6 * n * 1e3  # rad per kHz: T = 1 µs per cycle, N cycles
+    expected = 3 / 8 * (1 - math.cos(a * mu_khz) * math.exp(-(a * sigma_khz) ** 2 / 2))
+    assert abs(r.now.mean - expected) < 3 * r.now.mean_stderr
+    assert r.now.std > 0  # the coupler's rate is drawn, not held at its central value

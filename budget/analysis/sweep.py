@@ -34,7 +34,7 @@ from scipy import stats
 
 from budget.analysis._sweep_exec import Context, Stream, run_tasks
 from budget.analysis.run import read_circuit
-from budget.analysis.uncertainty import Varied, at_hour, draw, name_of, varied_values
+from budget.analysis.uncertainty import CONTEXT_SECTIONS, Varied, at_hour, draw, name_of, varied_values
 from budget.circuit.gates import ALIASES
 from budget.circuit.ir import StructuredCircuit
 from budget.errors.model import ErrorModel, load_model
@@ -177,6 +177,10 @@ def used_by(path: tuple[str, ...], circuit: StructuredCircuit) -> bool:
     Drawing values nothing uses would only thin the Sobol design and list knobs that cannot matter."""
     if path[0] == "qubits":
         return len(path) < 3 or path[1] in circuit.qubits
+    if path[0] == "couplings":  # a pair table: both qubits on the circuit; the default: any pair
+        return len(path) < 3 or set(split_names(path[1])) <= set(circuit.qubits)
+    if path[0] in CONTEXT_SECTIONS:  # whether a crosstalk, bleed or context rule fires depends on the layers
+        return True
     gate = ALIASES.get(path[1], path[1])
     knob, site = name_of(path)
     for op in circuit.distinct_operations():

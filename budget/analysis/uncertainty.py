@@ -22,7 +22,9 @@ import numpy as np
 
 from budget.circuit.gates import ALIASES, GATES
 from budget.errors.model import ErrorModel
-from budget.errors.uncertain import Spread
+from budget.errors.uncertain import UNCERTAIN_SECTIONS, Spread
+
+CONTEXT_SECTIONS = tuple(k for k in UNCERTAIN_SECTIONS if k not in ("qubits", "gates"))
 
 
 @dataclass(frozen=True)
@@ -66,6 +68,8 @@ def name_of(path: tuple[str, ...]) -> tuple[str, str]:
     """(knob, site) of a model path: ``("cz.cphase", "q[1],q[2]")``, ``("t1_us", "all")``."""
     if path[0] == "qubits":
         return (path[-1], path[1] if len(path) == 3 else "all")
+    if path[0] in CONTEXT_SECTIONS:  # ("couplings", "q[0],q[1]", "zz_khz") -> ("couplings.zz_khz", "q[0],q[1]")
+        return (f"{path[0]}.{path[-1]}", " ".join(path[1:-1]) or "all")
     gate, rest = path[1], path[2:]
     site = "all"
     if len(rest) > 1 and rest[0] not in ("z_phase", "pauli"):
@@ -130,6 +134,10 @@ def _physical(path: tuple[str, ...], value: float) -> float:
         return max(value, 1e-6)
     if key == "duration_ns":
         return max(value, 0.0)
+    if key == "zz_khz":  # a rate magnitude (docs/error-model.md)
+        return max(value, 0.0)
+    if key == "fraction":  # crosstalk and bleed fractions live in [-1, 1]
+        return min(max(value, -1.0), 1.0)
     if key == "readout_error":
         return min(max(value, 0.0), 1.0)
     if key == "avg_infidelity":

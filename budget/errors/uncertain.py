@@ -1,6 +1,7 @@
 """Values with an uncertainty or a drift rate in the error-model file (docs/error-model.md).
 
-Any number under ``[qubits...]`` or ``[gates...]`` (a knob, T1/T2, readout, error rates, one
+Any number under ``[qubits...]``, ``[gates...]`` or the context sections (``[couplings...]``,
+``[crosstalk...]``, ``[bleed...]``, ``[[context]]``) (a knob, T1/T2, readout, error rates, a ZZ rate, one
 entry of a ``z_phase`` list or a ``pauli`` table) may be written as a small table::
 
     overrotation = { value = 0.002, sigma = 0.0005 }            # normal, mean 0.002, std 0.0005
@@ -26,6 +27,7 @@ from budget.errors.params import key_path
 from budget.problems import ModelError
 
 PARTS = ("value", "sigma", "low", "high", "drift_per_hour")
+UNCERTAIN_SECTIONS = ("qubits", "gates", "couplings", "crosstalk", "bleed", "context")  # sections whose numbers may carry a spread
 
 
 @dataclass(frozen=True)
@@ -90,7 +92,7 @@ def central_values(data: Mapping[str, Any], source: str) -> tuple[dict, tuple[Sp
             return [walk(v, path + (str(i),)) for i, v in enumerate(value)]
         return value
 
-    out = {k: (walk(v, (k,)) if k in ("qubits", "gates") else v) for k, v in data.items()}
+    out = {k: (walk(v, (k,)) if k in UNCERTAIN_SECTIONS else v) for k, v in data.items()}
     return out, tuple(spreads)
 
 
