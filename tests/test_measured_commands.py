@@ -124,3 +124,35 @@ def test_randomised_companions_refuse_measurement_items(tmp_path):
     for extra in (["--ensemble", "2"], ["--against", "random"]):
         res = CliRunner().invoke(app, ["analyze", str(path), "-e", str(model), "--metric", "detectors", *extra])
         assert res.exit_code == 2 and "gate-only circuits" in res.output and "Traceback" not in res.output
+
+
+def test_tolerances_and_cost_refuse_the_record_metric_in_one_line(tmp_path):
+    """The record metric has no quadratic form: tolerances and cost say so in the user's terms
+    (not an engine's internal list of metrics), exit code 2, one line."""
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    path = tmp_path / "rep.qasm"
+    path.write_text(REPETITION.format(last=1))
+    model = tmp_path / "m.toml"
+    model.write_text("[gates.x]\noverrotation = 0.01\n")
+    for command in ("tolerances", "cost"):
+        res = CliRunner().invoke(app, [command, str(path), "-e", str(model), "--metric", "record", "-t", "0.01"])
+        assert res.exit_code == 2 and "Traceback" not in res.output
+        assert "record" in res.output and "--metric detectors" in res.output
+        assert "is not one of process, state" not in res.output
+
+
+def test_depth_note_of_the_record_metric_names_no_detectors():
+    """The record metric compares whole records: its depth note must not claim detectors are inferred."""
+    circuit = parse_qasm(REPETITION.format(last=0))
+    block = attach(circuit, ErrorModel.from_dict({"qubits": {"readout_error": 0.01}}))
+    record = depth_curve(block, max_cycles=2, points=2, metric="record")
+    assert not any("detector" in w for w in record.warnings)
+    detectors = depth_curve(block, max_cycles=2, points=2, metric="detectors")
+    assert any("detectors inferred anew" in w for w in detectors.warnings)
+    # readout only, one record bit flipped independently per measurement (closed form, no source
+    # needed): the record of N rounds keeps all 5N bits with (1 - p)^(5N), so 1 - classical fidelity
+    # of the record is 1 - (1 - p)^(5N) at N = 2
+    assert record.structured[-1] == pytest.approx(1 - 0.99 ** 10, rel=1e-9)

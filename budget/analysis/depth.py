@@ -181,8 +181,9 @@ def _measured_curve(block: NoisyCircuit, grid: tuple[int, ...], metric: str, eng
         twirled_engine="clifford (Pauli frames)" if metric == "detectors" else "exact",
         repetitions=grid, naive=tuple(values["naive"]), structured=tuple(values["structured"]),
         twirled=tuple(values["twirled"]), crossover_repetitions=crossover, target=target, deepest=deepest,
-        components=(), warnings=(f"{metric} metric: each point is computed on the unrolled grid count "
-                                 "(detectors inferred anew), only the grid points are evaluated",),
+        components=(), warnings=(f"{metric} metric: each point is computed on the unrolled grid count"
+                                 + (" (detectors inferred anew)" if metric == "detectors" else "")
+                                 + ", only the grid points are evaluated",),
     )
 
 

@@ -49,6 +49,10 @@ def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto", 
         if engine not in ("auto", "exact", "clifford"):
             raise InputError(f"engine = {engine!r}: the detectors metric's form comes from exact or clifford (or auto)")
         return detector_quadratic_form(circuit, engine=engine, detector=detector)
+    if metric == "record":
+        raise InputError("metric = 'record': tolerances and cost need a quadratic form e ≈ δᵀAδ + s, which the "
+                         "record metric does not have; use --metric detectors (Clifford circuits with detectors), "
+                         "or analyze and depth for the record metric")
     if detector is not None:
         raise InputError(f"detector = {detector!r}: a target on one detector needs the detectors metric")
     if engine != "auto" and engine not in FORM_ENGINES:
