@@ -156,3 +156,38 @@ def test_depth_note_of_the_record_metric_names_no_detectors():
     # needed): the record of N rounds keeps all 5N bits with (1 - p)^(5N), so 1 - classical fidelity
     # of the record is 1 - (1 - p)^(5N) at N = 2
     assert record.structured[-1] == pytest.approx(1 - 0.99 ** 10, rel=1e-9)
+
+
+FINAL_ONLY = """OPENQASM 3;
+include "stdgates.inc";
+qubit[2] q;
+bit[2] c;
+h q[0];
+cx q[0], q[1];
+c[0] = measure q[0];
+c[1] = measure q[1];
+"""
+
+
+@pytest.mark.parametrize("metric", ["record", "detectors"])
+def test_measured_metrics_refuse_a_circuit_whose_only_measurements_end_it(tmp_path, metric):
+    """Final measurements are readout, kept apart: the record is empty. Before, the record metric
+    reported an actual infidelity of 0 beside a non-zero fidelity product ("cancellation ... 0x") and
+    the detector metric said "the circuit measures nothing"."""
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    path = tmp_path / "bell.qasm"
+    path.write_text(FINAL_ONLY)
+    model = tmp_path / "m.toml"
+    model.write_text("[qubits]\nreadout_error = 0.02\n[gates.h]\noverrotation = 0.05\n")
+    noisy = attach(parse_qasm(FINAL_ONLY), ErrorModel.from_dict({"gates": {"h": {"overrotation": 0.05}}}))
+    with pytest.raises(InputError, match=f"the {metric} metric needs measurements inside the circuit"):
+        analyze_measured(noisy, parse_qasm(FINAL_ONLY), metric=metric)
+    with pytest.raises(InputError, match="needs measurements inside the circuit"):
+        depth_curve(noisy, max_cycles=2, points=2, metric=metric)
+    for args in (["analyze"], ["depth", "--max-cycles", "2"], ["report", "-t", "0.1", "--out", str(tmp_path / "r")]):
+        res = CliRunner().invoke(app, [*args, str(path), "-e", str(model), "--metric", metric, "-q"])
+        assert res.exit_code == 2 and "Traceback" not in res.output and "measurements inside" in res.output
+    assert not (tmp_path / "r").exists()  # no partial report

@@ -134,6 +134,25 @@ def _rank(vectors: Sequence[int]) -> int:
     return sum(span.add(v) for v in vectors)
 
 
+def recorded_qubits(noisy: NoisyCircuit, metric: str) -> list[int]:
+    """The qubit of each recorded outcome (:func:`record_qubits`), or a refusal when there is none.
+
+    Measurements that only end the circuit are its readout, kept apart (``noisy.readout_error``):
+    the detector and record metrics have nothing to compare then.
+
+    Raises:
+        InputError: the circuit records no outcome.
+    """
+    from budget.engines._stim import record_qubits  # engines import analysis helpers
+
+    qubits = record_qubits(noisy)
+    if not qubits:
+        raise InputError(f"{noisy.source}: the {metric} metric needs measurements inside the circuit, and this one "
+                         "has none (measurements that only end a gate circuit are its readout, kept apart); "
+                         "use --metric process or state")
+    return qubits
+
+
 def infer_checks(
     circuit: NoisyCircuit, *, observables: Sequence[Sequence[int]] | None = None, seed: int = 0
 ) -> Checks:
@@ -149,13 +168,11 @@ def infer_checks(
         InputError: a named observable is not deterministic or names a record index that does
             not exist; the circuit is not Clifford (from the stim writer).
     """
-    from budget.engines._stim import record_qubits, to_stim  # engines import analysis helpers
+    from budget.engines._stim import to_stim  # engines import analysis helpers
 
+    qubits = recorded_qubits(circuit, "detectors")
     ideal = to_stim(circuit)
-    qubits = record_qubits(circuit)
     m = len(qubits)
-    if m == 0:
-        raise InputError(f"{circuit.source}: the circuit measures nothing: it has no detectors")
     cols, ref, rank = _random_columns(ideal, seed)
     last: dict[int, int] = {}
     prev: list[int | None] = []

@@ -26,13 +26,12 @@ import math
 
 import numpy as np
 
-from budget.analysis.detectors import Checks, infer_checks
+from budget.analysis.detectors import Checks, infer_checks, recorded_qubits
 from budget.analysis.folding import fold_target, folded_frames, scaled
 from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit, circuit_fields
 from budget.analysis.run import family_counts, family_table
 from budget.circuit.ir import StructuredCircuit
 from budget.engines._branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
-from budget.engines._stim import record_qubits
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.fidelity import naive_infidelity
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
@@ -59,6 +58,7 @@ def analyze_measured(
         raise InputError(f"engine = {engine!r}: the {metric} metric runs on the exact or clifford engine")
     if metric == "record":
         return _record(noisy, structured, engine, cycles)
+    recorded_qubits(noisy, metric)
     index = fold_target(noisy) if logical is None and engine != "exact" else None
     if index is not None:
         folded = folded_frames(noisy, index)
@@ -110,7 +110,7 @@ def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> t
     curves). Twirled: the frame value for detectors, the exact value of the twirled circuit for the
     record."""
     if metric == "record":
-        qubits = record_qubits(noisy)
+        qubits = recorded_qubits(noisy, metric)
         plan = Plan((), (), True, tuple(condition_bits(noisy.body)), len(qubits))
         reason = exact_refusal(noisy, plan)
         if reason is not None or engine == "clifford":
@@ -172,7 +172,7 @@ def exact_refusal(noisy: NoisyCircuit, plan: Plan) -> str | None:
 def _record(noisy: NoisyCircuit, structured: StructuredCircuit, engine: str, cycles: int) -> BudgetResult:
     if engine == "clifford":
         raise InputError("engine = 'clifford': the record metric runs on the exact engine")
-    qubits = record_qubits(noisy)
+    qubits = recorded_qubits(noisy, "record")
     plan = Plan((), (), True, tuple(condition_bits(noisy.body)), len(qubits))
     reason = exact_refusal(noisy, plan)
     if reason is not None:
