@@ -191,3 +191,29 @@ def test_measured_metrics_refuse_a_circuit_whose_only_measurements_end_it(tmp_pa
         res = CliRunner().invoke(app, [*args, str(path), "-e", str(model), "--metric", metric, "-q"])
         assert res.exit_code == 2 and "Traceback" not in res.output and "measurements inside" in res.output
     assert not (tmp_path / "r").exists()  # no partial report
+
+
+def test_report_and_terminal_say_the_same_about_a_readout_only_product(tmp_path):
+    """Readout errors only: the fidelity product of the detector metric is 1 - (1 - p)^M over the M
+    recorded bits (closed form, no source needed). The report's tile must say what the terminal
+    says (readouts are in it), and a floor made of readout errors must not be blamed on T1, T2 and
+    gate error rates alone."""
+    from rich.console import Console
+
+    from budget.report.terminal import summary_table
+
+    path = tmp_path / "rep.qasm"
+    path.write_text(REPETITION.format(last=1))
+    p = 0.05
+    data = gather(str(path), {"qubits": {"readout_error": p}}, target=0.01, metric="detectors", max_cycles=2,
+                  points=2)
+    recorded = 2 * 2 + 3  # two ancilla bits per round, two rounds, three data bits
+    assert data.result.naive_infidelity == pytest.approx(1 - (1 - p) ** recorded, rel=1e-12)
+    md = report_files(data)["report.md"]
+    console = Console(width=200, record=True)
+    console.print(summary_table(data.result))
+    terminal = console.export_text()
+    assert "readouts and resets" in terminal
+    row = next(line for line in md.splitlines() if line.startswith("| fidelity product (naive)"))
+    assert "readouts and resets" in row
+    assert "readout and reset errors" in md

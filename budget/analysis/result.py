@@ -16,6 +16,15 @@ from budget.analysis.verdict import Verdict, classify
 SCHEMA_VERSION = 2
 
 
+def naive_words(metric: str) -> str:
+    """What the fidelity product multiplies under ``metric`` (every view says the same): gate and
+    idle fidelities for the gate metrics; also (1 - readout error) per recorded bit and
+    (1 - reset error) per reset for the detector and record metrics (docs/methods.md)."""
+    if metric in ("process", "state"):
+        return "1 − Π F_pro over operations and idle slots"
+    return "1 − Π F over operations, idle slots, readouts and resets"
+
+
 @dataclass(frozen=True)
 class FamilyShare:
     """One gate family's part of the actual infidelity.

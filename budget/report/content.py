@@ -163,7 +163,9 @@ def _calibration_words(data: ReportData, meets: bool | None) -> list[str]:
     if tol is None:
         return []
     if not tol.feasible:
-        return [f"The incoherent floor ({num(tol.incoherent_floor)}, from T1, T2 and gate error rates) alone "
+        sources = ("T1, T2, gate error rates, readout and reset errors" if data.result.metric in MEASURED_METRICS
+                   else "T1, T2 and gate error rates")
+        return [f"The incoherent floor ({num(tol.incoherent_floor)}, from {sources}) alone "
                 "exceeds the target, so no amount of calibration of coherent knobs can meet it."]
     worst = [row for row in tol.rows if row.status == "tighten"][:3]
     names = ", ".join(f"{row.family} {knob_label(row.knob)} (by {row.tighten_by:.2g}×)" for row in worst)

@@ -12,6 +12,7 @@ from typing import Union
 
 from budget.analysis.depth import CURVE_WORDS
 from budget.analysis.ratios import at_rounding_level
+from budget.analysis.result import naive_words
 from budget.errors.context_layers import knob_label, knob_text
 from budget.report.content import CAUTION_WORDS, ENGINE_WORDS, ReportData, minutes, num, short_name, summary_words, verdict
 
@@ -60,7 +61,7 @@ def build(data: ReportData, figures: dict[str, str]) -> list[Block]:
     v = r.verdict
     tone = "" if ok is None else "good" if ok else "bad"
     tiles = [
-        ("fidelity product (naive)", num(r.naive_infidelity), "1 − Π F_pro over every operation and idle slot", ""),
+        ("fidelity product (naive)", num(r.naive_infidelity), naive_words(r.metric), ""),
         ("actual", "beyond range" if r.actual is None else num(r.actual),
          f"{r.metric} infidelity, {r.engine} engine", tone or "bad"),
         ("actual ÷ naive", v.amplification.shown(suffix="×"), v.words, v.tone),

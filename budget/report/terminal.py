@@ -8,7 +8,7 @@ from rich.table import Table
 from rich.text import Text
 
 from budget.analysis.ratios import at_rounding_level
-from budget.analysis.result import CAUTION, BudgetResult
+from budget.analysis.result import CAUTION, BudgetResult, naive_words
 from budget.report.detector_views import detector_views
 
 _METRIC_WORDS = {
@@ -48,9 +48,7 @@ def summary_table(result: BudgetResult) -> Table:
     t.add_column(style="bold")
     t.add_column(justify="right")
     t.add_column(style="dim")
-    product = ("1 - Π F_pro over operations and idle slots" if result.metric in ("process", "state")
-               else "1 - Π F over operations, idle slots, readouts and resets")
-    t.add_row("fidelity product (naive)", fmt(result.naive_infidelity), product)
+    t.add_row("fidelity product (naive)", fmt(result.naive_infidelity), naive_words(result.metric))
     if result.in_range:
         t.add_row(f"actual ({result.engine})", fmt(result.actual_infidelity), _METRIC_WORDS[result.metric])
         if result.first_order is not None and result.first_order <= 1:
