@@ -217,3 +217,41 @@ def test_report_and_terminal_say_the_same_about_a_readout_only_product(tmp_path)
     row = next(line for line in md.splitlines() if line.startswith("| fidelity product (naive)"))
     assert "readouts and resets" in row
     assert "readout and reset errors" in md
+
+
+X_PAIRS = """OPENQASM 3;
+include "stdgates.inc";
+qubit[1] q;
+bit[2] c;
+x q[0]; x q[0];
+c[0] = measure q[0];
+reset q[0];
+x q[0]; x q[0];
+c[1] = measure q[0];
+"""
+
+
+def test_record_metric_compares_the_twirled_circuit_when_asked():
+    """x with over-rotation ε is R_x(π + ε) (docs/error-model.md). Closed forms (derived here):
+    coherent, the pair is -R_x(2ε) and flips the qubit with sin²ε, so the ideal record 00 survives
+    with cos⁴ε; twirled, each x flips independently with p = sin²(ε/2), a round flips with
+    q = 2p(1 - p), and the record survives with (1 - q)²."""
+    from budget.analysis.run import analyze
+
+    eps = 0.1
+    model = {"gates": {"x": {"overrotation": eps}}}
+    result = analyze(parse_qasm(X_PAIRS), model, metric="record", compare_twirled=True)
+    assert result.actual_infidelity == pytest.approx(1 - math.cos(eps) ** 4, rel=1e-9)
+    p = math.sin(eps / 2) ** 2
+    assert result.twirled_infidelity == pytest.approx(1 - (1 - 2 * p * (1 - p)) ** 2, rel=1e-9)
+    assert analyze(parse_qasm(X_PAIRS), model, metric="record").twirled_infidelity is None
+
+
+def test_measured_metrics_refuse_pauli_observables_and_keep_model_warnings():
+    from budget.analysis.run import analyze
+
+    with pytest.raises(InputError, match="--observable Z0: .* the record metric has none"):
+        analyze(parse_qasm(X_PAIRS), {"gates": {"x": {"overrotation": 0.01}}}, metric="record", observables=("Z0",))
+    # 0.7 rad is above the model's unusual-angle threshold: its warning reaches the measured result too
+    result = analyze(parse_qasm(X_PAIRS), {"gates": {"x": {"overrotation": 0.7}}}, metric="record")
+    assert any("gates.x.overrotation = 0.7 rad" in w for w in result.warnings)

@@ -57,7 +57,7 @@ def analyze_measured(
     if engine not in ("auto", "exact", "clifford"):
         raise InputError(f"engine = {engine!r}: the {metric} metric runs on the exact or clifford engine")
     if metric == "record":
-        return _record(noisy, structured, engine, cycles)
+        return _record(noisy, structured, engine, cycles, compare_twirled)
     recorded_qubits(noisy, metric)
     index = fold_target(noisy) if logical is None and engine != "exact" else None
     if index is not None:
@@ -169,7 +169,8 @@ def exact_refusal(noisy: NoisyCircuit, plan: Plan) -> str | None:
     return None
 
 
-def _record(noisy: NoisyCircuit, structured: StructuredCircuit, engine: str, cycles: int) -> BudgetResult:
+def _record(noisy: NoisyCircuit, structured: StructuredCircuit, engine: str, cycles: int,
+            compare_twirled: bool = False) -> BudgetResult:
     if engine == "clifford":
         raise InputError("engine = 'clifford': the record metric runs on the exact engine")
     qubits = recorded_qubits(noisy, "record")
@@ -190,7 +191,12 @@ def _record(noisy: NoisyCircuit, structured: StructuredCircuit, engine: str, cyc
     parts = {}
     for fam in _families(noisy):
         parts[fam] = total - record_infidelity(ideal, simulate(without_family(noisy, fam), plan).record)
-    return _result(noisy, structured, "record", "exact", total, None, scaled(parts, total), cycles, [], None,
+    twirled = None
+    if compare_twirled:
+        from budget.analysis.twirl import twirled_circuit
+
+        twirled = record_infidelity(ideal, simulate(twirled_circuit(noisy), plan).record)
+    return _result(noisy, structured, "record", "exact", total, None, scaled(parts, total), cycles, [], twirled,
                    record_bits=tuple(bits), details={"record_length": len(qubits)})
 
 

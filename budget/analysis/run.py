@@ -11,6 +11,7 @@ the actual value into per-family shares.
 
 from __future__ import annotations
 
+import dataclasses
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -104,8 +105,13 @@ def analyze_noisy(
     if metric in MEASURED_METRICS:
         from budget.analysis.measured import analyze_measured
 
-        return analyze_measured(noisy, structured, metric=metric, engine=engine,
-                                compare_twirled=compare_twirled, cycles=cycles, logical=logical)
+        if observables:
+            raise InputError(f"--observable {observables[0]}: Pauli observables are read from the output state of a "
+                             f"gate circuit; the {metric} metric has none (name logical observables of the "
+                             "detectors metric with --logical)")
+        result = analyze_measured(noisy, structured, metric=metric, engine=engine,
+                                  compare_twirled=compare_twirled, cycles=cycles, logical=logical)
+        return dataclasses.replace(result, warnings=tuple(notes) + result.warnings)
 
     chosen = choose_engine(noisy, metric, engine)
     outcome, switched = run_in_range(noisy, metric, chosen, engine, observables=tuple(observables))

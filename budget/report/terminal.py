@@ -48,7 +48,7 @@ def summary_table(result: BudgetResult) -> Table:
     t.add_column(style="bold")
     t.add_column(justify="right")
     t.add_column(style="dim")
-    t.add_row("fidelity product (naive)", fmt(result.naive_infidelity), naive_words(result.metric))
+    t.add_row("fidelity product (naive)", fmt(result.naive_infidelity), naive_words(result.metric).replace("−", "-"))
     if result.in_range:
         t.add_row(f"actual ({result.engine})", fmt(result.actual_infidelity), _METRIC_WORDS[result.metric])
         if result.first_order is not None and result.first_order <= 1:
@@ -58,8 +58,8 @@ def summary_table(result: BudgetResult) -> Table:
     else:
         t.add_row(f"actual ({result.engine})", "beyond range", "no value: the first-order model does not hold")
     if result.twirled_infidelity is not None:
-        what = ("same errors, coherent parts randomised" if result.metric in ("process", "state")
-                else "every channel Pauli-twirled, Pauli frames (first order)")
+        what = ("every channel Pauli-twirled, Pauli frames (first order)" if result.metric == "detectors"
+                else "same errors, coherent parts randomised")
         t.add_row("Pauli-twirled", fmt(result.twirled_infidelity), what)
     t.add_row("actual ÷ naive", result.verdict.amplification.shown(), "the verdict below reads this ratio")
     return t
