@@ -255,3 +255,12 @@ def test_measured_metrics_refuse_pauli_observables_and_keep_model_warnings():
     # 0.7 rad is above the model's unusual-angle threshold: its warning reaches the measured result too
     result = analyze(parse_qasm(X_PAIRS), {"gates": {"x": {"overrotation": 0.7}}}, metric="record")
     assert any("gates.x.overrotation = 0.7 rad" in w for w in result.warnings)
+
+
+@pytest.mark.parametrize("metric", ["process", "record"])
+def test_logical_observables_are_refused_outside_the_detectors_metric(metric):
+    from budget.analysis.run import analyze
+
+    text = X_PAIRS if metric == "record" else 'OPENQASM 3;\ninclude "stdgates.inc";\nqubit[1] q;\nx q[0];\n'
+    with pytest.raises(InputError, match=f"--logical: .* the {metric} metric does not use them"):
+        analyze(parse_qasm(text), {"gates": {"x": {"overrotation": 0.01}}}, metric=metric, logical=((0,),))

@@ -102,6 +102,9 @@ def analyze_noisy(
     ``notes``: warnings to show with the result (the error model's, for instance)."""
     from budget.errors.fidelity import naive_infidelity
 
+    if logical is not None and metric != "detectors":
+        raise InputError(f"--logical: logical observables (parities of recorded bits) belong to the detectors metric; the {metric} "
+                         "metric does not use them")
     if metric in MEASURED_METRICS:
         from budget.analysis.measured import analyze_measured
 
