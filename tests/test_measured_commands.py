@@ -264,3 +264,25 @@ def test_logical_observables_are_refused_outside_the_detectors_metric(metric):
     text = X_PAIRS if metric == "record" else 'OPENQASM 3;\ninclude "stdgates.inc";\nqubit[1] q;\nx q[0];\n'
     with pytest.raises(InputError, match=f"--logical: .* the {metric} metric does not use them"):
         analyze(parse_qasm(text), {"gates": {"x": {"overrotation": 0.01}}}, metric=metric, logical=((0,),))
+
+
+FEED_FORWARD = """OPENQASM 3;
+include "stdgates.inc";
+qubit[2] q;
+bit[2] c;
+h q[0];
+c[0] = measure q[0];
+if (c[0] == 1) x q[1];
+c[1] = measure q[1];
+"""
+
+
+@pytest.mark.parametrize("misread, expected", [("q[1]", 0.1), ("q[0]", 0.0)])
+def test_record_metric_feeds_the_misread_bit_forward(misread, expected):
+    """Closed form (derived here): the ideal record is 00 or 11 with 1/2 each. A misread of the last
+    bit (probability p) breaks the pair: F = 1 - p. A misread of c[0] drives the x with the wrong
+    bit, so the pair stays equal and the record keeps fidelity 1."""
+    from budget.analysis.run import analyze
+
+    result = analyze(parse_qasm(FEED_FORWARD), {"qubits": {misread: {"readout_error": 0.1}}}, metric="record")
+    assert result.actual_infidelity == pytest.approx(expected, abs=1e-12)
