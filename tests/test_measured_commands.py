@@ -286,3 +286,22 @@ def test_record_metric_feeds_the_misread_bit_forward(misread, expected):
 
     result = analyze(parse_qasm(FEED_FORWARD), {"qubits": {misread: {"readout_error": 0.1}}}, metric="record")
     assert result.actual_infidelity == pytest.approx(expected, abs=1e-12)
+
+
+def test_too_many_detector_knobs_names_the_cli_option(tmp_path):
+    """stim's rotated surface code (d = 3) with a z_phase per cx pair has more knobs than the
+    detector form takes: the refusal names the option to drop, not an internal parameter."""
+    import stim
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    circuit = stim.Circuit.generated("surface_code:rotated_memory_z", distance=3, rounds=2)
+    path = tmp_path / "sc.qasm"
+    path.write_text(circuit.to_qasm(open_qasm_version=3, skip_dets_and_obs=True))
+    model = tmp_path / "m.toml"
+    model.write_text("[gates.cx]\nz_phase = [0.01, -0.02]\n")
+    res = CliRunner().invoke(app, ["tolerances", str(path), "-e", str(model), "--metric", "detectors", "-t", "0.1",
+                                   "--by-pair"])
+    assert res.exit_code == 2 and "Traceback" not in res.output
+    assert "--by-pair" in res.output and "family_by" not in res.output

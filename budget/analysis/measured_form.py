@@ -81,7 +81,7 @@ def detector_quadratic_form(noisy: NoisyCircuit, *, engine: str = "auto", detect
     labels = tuple(scale)
     if len(labels) > MAX_KNOBS:
         raise TooLargeError(f"{noisy.source}: {len(labels)} coherent knobs: the detector metric's quadratic form "
-                            f"takes up to {MAX_KNOBS} (use family_by gate)")
+                            f"takes up to {MAX_KNOBS} (one family per gate: drop --by-pair or --by-operation)")
 
     def f(vec: dict) -> float:
         anyone, _, each, _ = detector_values(with_knobs(noisy, vec, scale), engine)
