@@ -319,13 +319,13 @@ def _decision_command(name: str, summary: str, views: Callable) -> None:
 def _tolerance_views(d) -> list:
     from budget.report.decisions import sensitivity_view, tolerance_view, totals_line
 
-    return [sensitivity_view(d.sensitivity), tolerance_view(d.tolerances), totals_line(d.plan)]
+    return [sensitivity_view(d.sensitivity), tolerance_view(d.tolerances), totals_line(d.plan, feasible=d.tolerances.feasible)]
 
 
 def _cost_views(d) -> list:
     from budget.report.decisions import calibration_view, tolerance_view
 
-    return [tolerance_view(d.tolerances), calibration_view(d.plan)]
+    return [tolerance_view(d.tolerances), calibration_view(d.plan, feasible=d.tolerances.feasible)]
 
 
 _decision_command("tolerances", "Largest tolerance per calibration knob for a target infidelity, ranked by how much "

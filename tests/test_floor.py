@@ -77,3 +77,24 @@ def test_no_remedy_when_the_floor_meets_the_target(tmp_path):
     (tmp_path / "m.toml").write_text(_toml(_model(1e-4, 1e-3, 100.0, 80.0)))
     d = decide(str(tmp_path / "c.qasm"), str(tmp_path / "m.toml"), target=0.2)
     assert d.tolerances.feasible and d.tolerances.floor_remedy is None
+
+
+def test_floor_above_target_reads_as_one_story(tmp_path):
+    """With the floor above the target no coherent budget is left: the views say 'none' (never a
+    negative budget) and the closing line does not say 'nothing to do' after 'floor too high'.
+    Floor here: one cx with r = 0.05, process infidelity (d+1)/d · r = 5/4 · 0.05 = 0.0625
+    (Nielsen, Phys. Lett. A 303, 249 (2002))."""
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    c = tmp_path / "c.qasm"
+    c.write_text('OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\nh q[0];\ncx q[0],q[1];\n')
+    m = tmp_path / "m.toml"
+    m.write_text("[gates.cx]\navg_infidelity = 0.05\n[gates.h]\noverrotation = 0.01\n")
+    for command in ("tolerances", "cost"):
+        out = CliRunner().invoke(app, [command, str(c), "-e", str(m), "--target", "0.01", "--width", "160"]).output
+        assert "0.0625" in out
+        assert "coherent budget      none" in out
+        assert "-0.0525" not in out and "nothing to do" not in out
+        assert "until the incoherent floor is lowered" in out

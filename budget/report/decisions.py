@@ -85,7 +85,10 @@ def tolerance_view(report: ToleranceReport) -> Group:
     head.add_column(style="dim")
     head.add_row("target", fmt(report.target), f"{report.metric} infidelity")
     head.add_row("incoherent floor", fmt(report.incoherent_floor), "not reachable by calibration")
-    head.add_row("coherent budget", fmt(report.coherent_budget), f"{how}; {split}")
+    if report.feasible:
+        head.add_row("coherent budget", fmt(report.coherent_budget), f"{how}; {split}")
+    else:  # E - s < 0: no budget is left for coherent errors (never printed as a negative budget)
+        head.add_row("coherent budget", "none", "the incoherent floor alone exceeds the target")
     head.add_row("prediction today", fmt(report.current_signed), f"leading order; {fmt(report.current_assumed)} under this assumption")
     loop = report.closed_loop
     if loop is not None:
@@ -143,7 +146,7 @@ def _site_name(r) -> str:
     return site[len(r.family) + 1:] if site.startswith(r.family + " ") else site
 
 
-def calibration_view(plan: CalibrationPlan) -> Group:
+def calibration_view(plan: CalibrationPlan, *, feasible: bool = True) -> Group:
     """Per-knob phase-estimation experiments and the totals line."""
     rows = []
     for p in plan.knobs:
@@ -157,9 +160,10 @@ def calibration_view(plan: CalibrationPlan) -> Group:
         t.add_column(name, justify="left" if i < 2 else "right", no_wrap=i == 0)
     for r in rows:
         t.add_row(*r)
-    parts: list = [t] if plan.knobs else [Text("no knob needs a calibration experiment for this target", style="green")]
+    parts: list = [t] if plan.knobs else [] if not feasible else [
+        Text("no knob needs a calibration experiment for this target", style="green")]
     parts += [Text(f"not planned: {k}: {why}", style="yellow") for k, why in plan.unplanned.items()]
-    parts.append(totals_line(plan))
+    parts.append(totals_line(plan, feasible=feasible))
     s = plan.settings
     parts.append(Text(
         f"assumed: {s.shot_overhead_us:g} µs reset+readout per shot, σ = tolerance/{s.sigma_factor:g}, "
@@ -168,8 +172,12 @@ def calibration_view(plan: CalibrationPlan) -> Group:
     return Group(*parts)
 
 
-def totals_line(plan: CalibrationPlan) -> Text:
-    """One line a group lead can quote."""
+def totals_line(plan: CalibrationPlan, *, feasible: bool = True) -> Text:
+    """One line a group lead can quote; ``feasible=False`` when the incoherent floor alone exceeds
+    the target (then no calibration of coherent knobs is the answer)."""
+    if not feasible:
+        return Text("calibration: none of the coherent knobs can meet the target until the incoherent floor "
+                    "is lowered (see above)", style="bold")
     if not plan.knobs:
         return Text("calibration: nothing to do", style="bold")
     line = Text.assemble(("calibration round: ", "bold"), f"{plan.round_s / 60:.3g} device minutes")
