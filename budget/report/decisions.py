@@ -125,7 +125,7 @@ def tolerance_view(report: ToleranceReport) -> Group:
         t.add_column(name, justify="right" if right else "left")
     for r in report.rows:
         cells = [r.family, r.knob, _rad(r.current_rad, r.knob), _rad(r.tolerance_rad, r.knob) + ("*" if r.capped else ""),
-                 _times(r.tighten_by)]
+                 _times(r.tighten_by) if r.status == "tighten" else "—"]  # as the report: a factor only to tighten
         if many:
             cells += [f"{r.sites_over} of {len(r.sites)}", _site_name(r) if r.sites_over else "—"]
         status = r.status + (" (2nd order)" if r.order == "second" else "")
