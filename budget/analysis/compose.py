@@ -112,11 +112,13 @@ class Analysis:
 def analyze_all(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "process", engine: str = "auto",
                 observables: tuple[str, ...] = (), family_by: str = "gate", compare_twirled: bool = False,
                 against: str | None = None, draws: int = 10, ensemble: int = 0, seed: int = 1,
-                progress: Progress | None = None, logical: tuple[tuple[int, ...], ...] | None = None) -> Analysis:
+                progress: Progress | None = None, logical: tuple[tuple[int, ...], ...] | None = None,
+                truncate: float | None = None) -> Analysis:
     """The budget of ``circuit`` and the companions asked for (arguments as for
     :func:`budget.analysis.run.analyze`; ``against``: a circuit path or ``"random"``; ``draws``:
     random counterparts; ``ensemble``: randomly compiled copies; ``seed``: first seed of both;
-    ``logical``: named logical observables of the detector metric)."""
+    ``logical``: named logical observables of the detector metric; ``truncate``: the pauli
+    engine's threshold for the main budget)."""
     if isinstance(draws, bool) or not isinstance(draws, int) or not 2 <= draws <= MAX_DRAWS:
         raise InputError(f"draws = {draws!r}: expected a whole number from 2 to {MAX_DRAWS}")
     model = read_model(errors)
@@ -125,7 +127,8 @@ def analyze_all(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "pr
         raise InputError(f"{structured.source}: --ensemble and --against random randomise gate layers and are "
                          f"computed for gate-only circuits ({structured.mid_circuit_reason()})")
     result = analyze(structured, model, cycles=cycles, metric=metric, engine=engine, observables=observables,
-                     family_by=family_by, compare_twirled=compare_twirled, logical=logical)
+                     family_by=family_by, compare_twirled=compare_twirled, logical=logical,
+                     truncate=truncate)
     comparison = random = copies = None
     whole = structured.with_cycles(cycles)
     if against == "random":

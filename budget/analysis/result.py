@@ -132,6 +132,8 @@ class BudgetResult:
     def actual(self) -> float | None:
         """The actual infidelity, or None when it is beyond its engine's range."""
         return self.actual_infidelity if self.in_range else None
+    truncation_bound: float = 0.0
+    """Upper bound on |first_order - untruncated first order| (pauli engine; 0 otherwise)."""
 
     @property
     def coherent_amplification(self) -> float | None:
@@ -165,6 +167,7 @@ class BudgetResult:
                 "in_range": self.in_range,
                 "beyond_range": self.beyond_range,
                 "estimate": self.actual_infidelity,
+                "truncation_bound": self.truncation_bound,
             },
             "coherent_amplification": self.coherent_amplification,
             "verdict": self.verdict.to_dict(),

@@ -42,6 +42,7 @@ def analyze(
     family_by: str = "gate",
     compare_twirled: bool = False,
     logical: tuple[tuple[int, ...], ...] | None = None,
+    truncate: float | None = None,
 ) -> BudgetResult:
     """Error budget of a structured circuit under an error model.
 
@@ -53,12 +54,14 @@ def analyze(
             for input |0…0>), ``"detectors"`` (probability that some detector fires) or ``"record"``
             (1 - classical fidelity of the measurement record); the last two for circuits with
             mid-circuit measurement (:mod:`budget.analysis.measured`).
-        engine: ``"auto"``, ``"exact"``, ``"generators"`` or ``"clifford"``.
+        engine: ``"auto"``, ``"exact"``, ``"generators"``, ``"clifford"`` or ``"pauli"``.
         observables: Pauli observables such as ``"Z0Z1"``, whose expectation-value errors to report.
         family_by: ``"gate"`` (one family per gate name), ``"pair"`` (gate name per qubit tuple) or
             ``"operation"`` (each operation as written).
         compare_twirled: also compute the Pauli-twirled variant of the circuit.
         logical: record index lists naming the logical observables (detectors metric); None infers them.
+        truncate: coefficient threshold of the pauli engine (0 keeps every term; None: chosen
+            so that the truncation bound is small against the result).
 
     Returns:
         A frozen :class:`BudgetResult`; ``to_dict()`` gives the documented JSON (schema version 1).
@@ -70,6 +73,8 @@ def analyze(
         raise InputError(f"metric = {metric!r}: expected one of {', '.join(METRICS + MEASURED_METRICS)}")
     if isinstance(cycles, bool) or not isinstance(cycles, int) or not 1 <= cycles <= MAX_CYCLES:
         raise InputError(f"cycles = {cycles!r}: expected a whole number from 1 to 10**18")
+    if truncate is not None and not (isinstance(truncate, (int, float)) and 0 <= truncate < float("inf")):
+        raise InputError(f"truncate = {truncate!r}: expected a number of radians >= 0 (0 keeps every Pauli term)")
     structured = read_circuit(circuit).with_cycles(cycles)
     model = read_model(errors)
     noisy = attach_grouped(structured, model, family_by)
@@ -83,6 +88,7 @@ def analyze(
         cycles=cycles,
         notes=model.warnings(),
         logical=logical,
+        truncate=truncate,
     )
 
 
@@ -97,6 +103,7 @@ def analyze_noisy(
     cycles: int = 1,
     notes: tuple[str, ...] = (),
     logical: tuple[tuple[int, ...], ...] | None = None,
+    truncate: float | None = None,
 ) -> BudgetResult:
     """The analysis once the model is attached (shared by :func:`analyze` and other commands);
     ``notes``: warnings to show with the result (the error model's, for instance)."""
@@ -116,12 +123,16 @@ def analyze_noisy(
                                   compare_twirled=compare_twirled, cycles=cycles, logical=logical)
         return dataclasses.replace(result, warnings=tuple(notes) + result.warnings)
 
-    chosen = choose_engine(noisy, metric, engine)
+    options = {"truncate": truncate} if truncate is not None else None
+    chosen = choose_engine(noisy, metric, engine, options=options)
     outcome, switched = run_in_range(noisy, metric, chosen, engine, observables=tuple(observables))
     if (better := escalate(noisy, metric, engine, outcome)) is not None:
         switched = (*switched, f"auto: the {outcome.engine} engine's result rested on a cancellation; the exact engine ran instead")
         outcome = better.run(noisy, metric, observables=tuple(observables))
     warnings = list(notes) + list(switched) + list(outcome.warnings)
+    if engine == "auto" and outcome.engine == "pauli":
+        warnings.insert(0, f"auto: not every gate is Clifford and dense engines cannot hold this {noisy.num_qubits}-qubit "
+                        "circuit or would be slower, so the sparse Pauli engine ran (first order, truncation bound stated)")
     shares = dict(outcome.shares)
     shares_known = True
     if not shares:
@@ -135,7 +146,7 @@ def analyze_noisy(
         from budget.analysis.twirl import twirled_circuit
 
         tw = twirled_circuit(noisy)
-        tw_result, _ = run_in_range(tw, metric, choose_engine(tw, metric, engine, brief=True), engine)
+        tw_result, _ = run_in_range(tw, metric, choose_engine(tw, metric, engine, brief=True, options=options), engine)
         if tw_result.beyond_range is None:
             twirled = tw_result.infidelity
         else:
@@ -157,6 +168,7 @@ def analyze_noisy(
         naive_infidelity=float(naive),
         actual_infidelity=float(outcome.infidelity),
         first_order=outcome.first_order,
+        truncation_bound=float(outcome.details.get("truncation_bound", 0.0)),
         families=families,
         readout=ReadoutSummary.from_errors(noisy.readout_error, noisy.qubits),
         warnings=tuple(dict.fromkeys(warnings)),

@@ -2,7 +2,8 @@
 
 ``auto`` picks the most accurate engine that fits (design.md §4): ``exact`` when the dense
 simulation fits, else ``clifford`` when every ideal gate is Clifford (exact to first order, any
-size), else ``generators``. The result names the engine that ran.
+size), else ``generators`` (unless it would need dense 4^n matrices on DENSE_SLOW_QUBITS or more
+qubits), else ``pauli`` (sparse Pauli propagation, any size, with a stated truncation bound). The result names the engine that ran.
 """
 
 from __future__ import annotations
@@ -12,10 +13,24 @@ from budget.errors.noisy import NoisyCircuit
 from budget.circuit.ir import item_kind
 from budget.problems import InputError, TooLargeError, place
 
-AUTO_ORDER = ("exact", "clifford", "generators")
+AUTO_ORDER = ("exact", "clifford", "generators", "pauli")
 GATE_METRICS = ("process", "state")
 """Metrics defined for gate-only circuits: a measurement, reset or if item is refused for them
 (whatever engine an extension registers, not only through each engine's ``fits``)."""
+DENSE_SLOW_QUBITS = 8
+"""From this many qubits, ``auto`` prefers the pauli engine (default truncation) to the generators
+engine whenever the latter would hold dense 4^n matrices (process metric or repeated blocks): on the
+10-qubit public circuits 0.5 s and 3.6 s against 142 s and 381 s wall (docs/benchmarks.md,
+"Pauli"; untruncated, the pauli engine is the slower one at 10 qubits)."""
+
+
+def _dense_is_slower(name: str, circuit: NoisyCircuit, metric: str) -> str | None:
+    if name != "generators" or circuit.num_qubits < DENSE_SLOW_QUBITS:
+        return None
+    if metric == "process" or circuit.has_repeats:
+        return (f"{circuit.num_qubits} qubits: dense 2^n x 2^n matrices would be slower than the pauli engine "
+                f"(from {DENSE_SLOW_QUBITS} qubits on)")
+    return None
 
 
 def _available(name: str) -> Engine | None:
@@ -25,10 +40,13 @@ def _available(name: str) -> Engine | None:
         return None
 
 
-def choose_engine(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: bool = False) -> Engine:
+def choose_engine(
+    circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: bool = False, options: dict | None = None
+) -> Engine:
     """The engine to run: ``name`` itself (checked to fit), or the first of AUTO_ORDER that fits;
     ``brief``: its :meth:`~budget.engines.base.Engine.brief` variant, for callers that read only
-    the totals and shares.
+    the totals and shares; ``options``: settings passed to the engine's ``configure`` when it has
+    one (e.g. ``{"truncate": 1e-8}`` for the pauli engine), ignored by engines without it.
 
     Raises:
         TooLargeError: the named engine (or every engine) cannot hold the circuit; the message
@@ -49,15 +67,15 @@ def choose_engine(circuit: NoisyCircuit, metric: str, name: str = "auto", *, bri
         reason = engine.fits(circuit, metric)
         if reason is not None:
             raise TooLargeError(f"engine {name}: {reason}")
-        return engine.brief() if brief else engine
+        return _configured(engine.brief() if brief else engine, options)
     reasons = []
     for candidate in AUTO_ORDER:
         engine = _available(candidate)
         if engine is None:
             continue
-        reason = engine.fits(circuit, metric)
+        reason = engine.fits(circuit, metric) or _dense_is_slower(candidate, circuit, metric)
         if reason is None:
-            return engine.brief() if brief else engine
+            return _configured(engine.brief() if brief else engine, options)
         reasons.append(f"{candidate}: {reason}")
     raise TooLargeError(
         f"{circuit.source}: no engine fits this {circuit.num_qubits}-qubit circuit for the "
@@ -73,6 +91,12 @@ def escalate(circuit: NoisyCircuit, metric: str, requested: str, outcome: Engine
         return None
     exact = _available("exact")
     return exact if exact is not None and exact.fits(circuit, metric) is None else None
+
+
+def _configured(engine: Engine, options: dict | None) -> Engine:
+    if options and hasattr(engine, "configure"):
+        return engine.configure(**options)
+    return engine
 
 
 def first_order_shares(

@@ -28,9 +28,9 @@ import numpy as np
 from budget.engines.base import QuadraticForm
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyItem, NoisyLayer, NoisyRepeat
 
-FORM_ENGINES = ("clifford", "generators")
+FORM_ENGINES = ("clifford", "generators", "pauli")
 """Engines that build the quadratic form, in the order ``"auto"`` tries them (clifford first: any
-size when every gate is Clifford)."""
+size when every gate is Clifford; pauli last: any gate, any size, sparse)."""
 
 
 def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto", detector: int | None = None) -> QuadraticForm:

@@ -14,6 +14,7 @@ _REGISTRY = {
     "exact": ("budget.engines.exact", "ExactEngine"),
     "generators": ("budget.engines.generators", "GeneratorsEngine"),
     "clifford": ("budget.engines.clifford", "CliffordEngine"),
+    "pauli": ("budget.engines.pauli", "PauliEngine"),
 }
 
 ENGINE_NAMES: tuple[str, ...] = tuple(_REGISTRY)

@@ -22,6 +22,10 @@ import numpy as np
 import scipy.sparse
 
 from budget.engines._sinks import GroupSink
+from budget.engines.base import EngineResult
+
+SMALL = 0.1
+"""First-order infidelity above which the engines warn that the expansion is no longer small."""
 
 _MIX = np.random.default_rng(20240611).integers(1, 2**63, size=4096, dtype=np.uint64) | np.uint64(1)
 
@@ -105,6 +109,38 @@ class Budget:
         raw = scale * self.coherent_shares + self.stochastic_shares
         s = raw.sum()
         return raw * (self.total / s) if s and abs(s - self.total) > 1e-15 else raw
+
+
+def size_warning(b: "Budget") -> list[str]:
+    """The warning of a first-order budget that is no longer small (empty when it is)."""
+    if b.first_order <= SMALL and b.max_amplitude <= np.sqrt(SMALL):
+        return []
+    return [
+        f"first-order infidelity {b.first_order:.3g} is no longer small (largest summed coherent amplitude "
+        f"{b.max_amplitude:.3g} rad): the resummed value {b.total:.3g} treats error groups as "
+        "independent; check with the exact engine where it fits"
+    ]
+
+
+def budget_result(name: str, metric: str, b: "Budget", shares: dict, warnings: list[str], details: dict, observables: dict) -> EngineResult:
+    """The :class:`EngineResult` of a resummed first-order budget (clifford and pauli engines);
+    beyond range when the resummed coherent part plus the incoherent sum exceeds 1."""
+    beyond = None
+    raw = b.coherent_resummed + b.stochastic
+    if raw > 1.0:  # the resummed coherent part plus the incoherent sum is no probability any more
+        beyond = (f"resummed coherent part {b.coherent_resummed:.3g} plus the first-order sum of incoherent "
+                  f"errors {b.stochastic:.3g} make {raw:.3g}, {raw:.3g}x the largest possible infidelity")
+    return EngineResult(
+        engine=name,
+        metric=metric,
+        infidelity=float(min(max(b.total, 0.0), 1.0)),
+        shares=shares,
+        first_order=float(b.first_order),
+        warnings=tuple(dict.fromkeys(warnings)),
+        details=details,
+        observable_errors=observables,
+        beyond_range=beyond,
+    )
 
 
 def _zero_group(keys: np.ndarray, first: np.ndarray) -> np.ndarray:

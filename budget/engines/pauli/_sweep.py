@@ -1,0 +1,285 @@
+"""One pass over the circuit carrying sparse Pauli sums, with coefficient truncation and its bound.
+
+Direction ``"push"`` (process metric) walks forwards: S <- U_t S U_t† then S += H_t, so that at the
+end S = Σ_t R_t H_t R_t† is the summed coherent generator in the output frame (R_t the ideal
+circuit after layer t). Direction ``"pull"`` (state metric, observables) walks backwards: S += H_t
+then S <- U_t† S U_t, giving Σ_t V_t† H_t V_t in the input frame (V_t the circuit up to layer t),
+whose action on |0…0> is read off by X part. This is sparse Pauli propagation (Begušić & Chan,
+arXiv:2306.16372 (2023); Begušić, Gray & Chan, Sci. Adv. 10, eadk4321 (2024)) applied to error
+generators instead of observables.
+
+Stores carried (all :class:`~budget.engines.pauli._store.Store`):
+
+- ``coh``: the coherent generator, one column per group (family or knob);
+- ``tags`` (pull, state metric): each local Pauli P_v of each jump site and time, key = its tag,
+  pulled back to the input so that <P_v>_{ψ_t} = <0|V_t† P_v V_t|0> is read off at the end;
+- ``obs``, ``err`` (pull, observables): O pulled back exactly (O_t) and the first-order change
+  E = Σ_t V_t† G_t(O_t) V_t, G_t the layer's local Heisenberg generators, so δ<O> = <0|E|0>.
+
+Truncation. After each layer, rows whose coefficient is below the threshold are dropped and
+accounted: a dropped piece D keeps its Hilbert-Schmidt norm and its operator norm under every later
+conjugation, so the final sums differ from the untruncated ones by at most the sum of the dropped
+pieces' norms (triangle inequality): ‖D‖_HS = sqrt(Σ c²) for the process metric, ‖D‖_op ≤ Σ |c|
+for the read-off on |0…0> (state metric, tags, observables). A piece dropped from O_t also misses
+its later generator terms: at most Σ|c| times Σ of ‖G_t'‖ (≤ 2Σ|h| + 2Σp per site) over the layers
+still ahead. :mod:`budget.engines.pauli.engine` turns these into the bound on the result.
+
+Repeated blocks: a Clifford block is folded by its period (:mod:`budget.engines.pauli._fold`);
+any other block runs cycle by cycle (cost linear in N). A cycle that leaves every carried sum
+unchanged and adds no jump tags is a fixed point: the remaining cycles are skipped (their
+stochastic part and truncation bound are still counted).
+"""
+
+from __future__ import annotations
+
+import time
+from types import SimpleNamespace
+
+import numpy as np
+
+from budget.engines.pauli._fold import fold
+from budget.engines.pauli._plan import LayerPlan, PlanBook
+from budget.engines.pauli._store import Store, conjugate, from_local, generate
+from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
+
+
+TRUNCATE_EVERY = 4
+"""Truncate after every this many merges (fewer drop events give a smaller triangle-inequality
+sum, at the price of carrying small rows a little longer)."""
+
+
+MAX_TERMS = 4_000_000
+"""Rows held at most (all carried sums): about 1 GB with the temporaries of a layer."""
+
+
+class OutOfTime(RuntimeError):
+    """The sweep passed its deadline (the engine then stops tightening the threshold)."""
+
+
+class TooManyTerms(RuntimeError):
+    """The carried sums passed MAX_TERMS rows."""
+
+
+def _equal(a: Store, b: Store) -> bool:
+    return (
+        len(a) == len(b)
+        and np.array_equal(a.key, b.key)
+        and np.array_equal(a.x, b.x)
+        and np.array_equal(a.z, b.z)
+        and np.allclose(a.coef, b.coef, rtol=1e-13, atol=0.0)
+    )
+
+
+class Sweep:
+    """One pass (see module docstring).
+
+    Args:
+        n: qubits.
+        book: layer plans (direction, grouping, jumps, generators).
+        eps: coefficient threshold (0 keeps everything); rows with max(|Σ_k s_k c_k|, max_k |s_k c_k|)
+            < eps are dropped from ``coh`` (s the column scales), tag rows with weight·|c| <
+            eps·tag_scale, observable rows with |c| < eps.
+        scale: (K,) column scales (1 for families; knob values for the quadratic form).
+        observables: letters (qubit -> 'X'/'Y'/'Z') of each observable (pull only).
+        kappa_total: Σ over executed layers of the generator norms (observable bound).
+        tag_scale: infidelity per radian of a dropped coherent coefficient (≈ 2 sqrt(e)), so that a
+            dropped tag row and a dropped coherent row cost the bound about the same.
+        deadline: time.monotonic() value after which :class:`OutOfTime` is raised.
+    """
+
+    def __init__(
+        self,
+        n: int,
+        book: PlanBook,
+        eps: float,
+        *,
+        scale: np.ndarray,
+        observables: tuple[dict[int, str], ...] = (),
+        kappa_total: float = 0.0,
+        tag_scale: float = 1.0,
+        deadline: float | None = None,
+    ):
+        self.n, self.book, self.eps, self.scale = n, book, eps, scale
+        self.tag_eps = eps * tag_scale
+        self.pull = book.direction == "pull"
+        self.coh = Store.empty(n, len(scale))
+        self.tags = Store.empty(n, 1)
+        self.tag_weight: list[np.ndarray] = []
+        self.tag_count = 0
+        self.occurrences: list[tuple] = []  # (JumpSite, first tag, multiplicity)
+        self.obs = self._observable_rows(observables)
+        self.err = Store.empty(n, 1)
+        self.num_obs = len(observables)
+        self.kappa_left = kappa_total
+        self.deadline = deadline
+        self.bound_l2 = 0.0
+        self.bound_l1 = 0.0
+        self.tag_dropped = np.zeros(0)
+        self.obs_bound = np.zeros(len(observables))
+        self.terms_max = 0
+        self.stochastic: dict[str, float] = {}
+        self.blocks: list[dict] = []
+        self.layers_walked = 0
+        self.every = TRUNCATE_EVERY
+        self._since = 0
+
+    def _observable_rows(self, observables) -> Store:
+        if not observables:
+            return Store.empty(self.n, 1)
+        qa, v, key = [], [], []
+        for i, letters in enumerate(observables):
+            for q, letter in letters.items():
+                qa.append(q)
+                v.append("IXZY".index(letter))
+                key.append(i)
+        rows = from_local(self.n, np.array(qa), np.full(len(qa), -1), np.array(v), np.array(key), np.ones(len(qa)))
+        # one row per observable: multiply the single-qubit rows of each observable (disjoint qubits)
+        x = np.zeros((len(observables), rows.x.shape[1]), np.uint64)
+        z = np.zeros_like(x)
+        np.bitwise_or.at(x, rows.key, rows.x)
+        np.bitwise_or.at(z, rows.key, rows.z)
+        return Store(x, z, np.arange(len(observables), dtype=np.int64), np.ones((len(observables), 1)))
+
+    # -- walking ------------------------------------------------------------------------------
+
+    def run(self, items: tuple[NoisyItem, ...]) -> None:
+        self._items(items)
+
+    def run_items(self, items: tuple[NoisyItem, ...]) -> None:
+        """Walk items in this sweep's direction (for :mod:`budget.engines.pauli._fold`)."""
+        self._items(items)
+
+    def _items(self, items: tuple[NoisyItem, ...]) -> None:
+        for it in reversed(items) if self.pull else items:
+            if isinstance(it, NoisyLayer):
+                self._layer(it)
+            else:
+                self._repeat(it)
+
+    def _layer(self, layer: NoisyLayer, mult: int = 1) -> None:
+        if self.deadline is not None and time.monotonic() > self.deadline:
+            raise OutOfTime
+        self.layers_walked += 1
+        plan = self.book(layer)
+        for f, v in plan.stochastic.items():
+            self.stochastic[f] = self.stochastic.get(f, 0.0) + v
+        added = False
+        if self.pull:
+            added = self._add(plan)
+            self._conjugate(plan)
+        else:
+            self._conjugate(plan)
+            added = self._add(plan)
+        if added or not plan.clifford:
+            self._since += 1
+            self._tidy(cut=self._since >= self.every)
+        held = len(self.coh) + len(self.tags) + len(self.obs) + len(self.err)
+        self.terms_max = max(self.terms_max, held)
+        if held > MAX_TERMS:
+            raise TooManyTerms(held, MAX_TERMS)
+
+    def _add(self, plan: LayerPlan) -> bool:
+        added = False
+        if len(plan.coherent):
+            self.coh = Store.concat([self.coh, plan.coherent.copy()])
+            added = True
+        if self.pull and plan.jump_sites:
+            parts = [self.tags]
+            for site in plan.jump_sites:
+                m = len(site.needed)
+                keys = np.arange(self.tag_count, self.tag_count + m)
+                parts.append(from_local(self.n, np.full(m, site.qa), np.full(m, site.qb), site.needed, keys, np.ones(m)))
+                self.occurrences.append((site, self.tag_count, 1))
+                self.tag_weight.append(site.weight)
+                self.tag_count += m
+            self.tags = Store.concat(parts)
+            added = True
+        if self.pull and len(self.obs) and plan.gen_maps:
+            self.err = Store.concat([self.err, generate(self.obs, list(plan.gen_maps), plan.gen_qa, plan.gen_qb)])
+            added = True
+            self.kappa_left -= plan.kappa
+        return added
+
+    def _conjugate(self, plan: LayerPlan) -> None:
+        for cls in plan.classes:
+            self.coh = conjugate(self.coh, cls.lmap, cls.qa, cls.qb)
+            if self.pull:
+                self.tags = conjugate(self.tags, cls.lmap, cls.qa, cls.qb)
+                self.obs = conjugate(self.obs, cls.lmap, cls.qa, cls.qb)
+                self.err = conjugate(self.err, cls.lmap, cls.qa, cls.qb)
+
+    # -- merging and truncation ---------------------------------------------------------------
+
+    def _tidy(self, cut: bool = True) -> None:
+        if cut:
+            self._since = 0
+        self.coh = self.coh.merged()
+        if cut and self.eps > 0 and len(self.coh):
+            c = self.coh.coef * self.scale
+            total = c.sum(axis=1)
+            weight = np.maximum(np.abs(total), np.abs(c).max(axis=1))
+            drop = weight < self.eps
+            if drop.any():
+                self.bound_l2 += float(np.sqrt(np.sum(total[drop] ** 2)))
+                self.bound_l1 += float(np.sum(np.abs(total[drop])))
+                self.coh = self.coh.take(~drop)
+        if not self.pull:
+            return
+        self.tags = self.tags.merged()
+        if cut and self.eps > 0 and len(self.tags):
+            w = np.concatenate(self.tag_weight) if len(self.tag_weight) > 1 else self.tag_weight[0]
+            self.tag_weight = [w]
+            mag = np.abs(self.tags.coef[:, 0])
+            drop = w[self.tags.key] * mag < self.tag_eps
+            if drop.any():
+                if len(self.tag_dropped) < self.tag_count:
+                    self.tag_dropped = np.concatenate([self.tag_dropped, np.zeros(self.tag_count - len(self.tag_dropped))])
+                self.tag_dropped += np.bincount(self.tags.key[drop], weights=mag[drop], minlength=self.tag_count)
+                self.tags = self.tags.take(~drop)
+        for name in ("obs", "err"):
+            st = getattr(self, name).merged()
+            if cut and self.eps > 0 and len(st):
+                mag = np.abs(st.coef[:, 0])
+                drop = mag < self.eps
+                if drop.any():
+                    lost = np.bincount(st.key[drop], weights=mag[drop], minlength=self.num_obs)
+                    self.obs_bound += lost * (max(self.kappa_left, 0.0) if name == "obs" else 1.0)
+                    st = st.take(~drop)
+            setattr(self, name, st)
+
+    # -- repeated blocks ----------------------------------------------------------------------
+
+    def snapshot(self) -> SimpleNamespace:
+        """The carried sums and running totals (stores are never changed in place)."""
+        return SimpleNamespace(
+            coh=self.coh, obs=self.obs, err=self.err, tags=self.tags, tag_count=self.tag_count,
+            bound_l2=self.bound_l2, bound_l1=self.bound_l1, obs_bound=self.obs_bound.copy(),
+            stochastic=dict(self.stochastic), kappa_left=self.kappa_left,
+        )
+
+    def _repeat(self, rep: NoisyRepeat) -> None:
+        count = int(rep.count)
+        if fold(self, rep):
+            return
+        for k in range(count):
+            before = self.snapshot()
+            self._items(rep.body)
+            if k + 1 < count and self._fixed(before):
+                self._skip(before, count - k - 1)
+                self.blocks.append({"count": count, "mode": "fixed point", "cycles_walked": k + 1})
+                return
+        self.blocks.append({"count": count, "mode": "cycles", "cycles_walked": count})
+
+    def _fixed(self, b: SimpleNamespace) -> bool:
+        return (
+            b.tag_count == self.tag_count and _equal(b.coh, self.coh) and _equal(b.obs, self.obs) and _equal(b.err, self.err)
+        )
+
+    def _skip(self, b: SimpleNamespace, rest: int) -> None:
+        """Count ``rest`` more cycles that change nothing: their stochastic part, bound and kappa."""
+        self.bound_l2 += rest * (self.bound_l2 - b.bound_l2)
+        self.bound_l1 += rest * (self.bound_l1 - b.bound_l1)
+        self.obs_bound += rest * (self.obs_bound - b.obs_bound)
+        self.kappa_left -= rest * (b.kappa_left - self.kappa_left)
+        for f, v in self.stochastic.items():
+            self.stochastic[f] = v + rest * (v - b.stochastic.get(f, 0.0))

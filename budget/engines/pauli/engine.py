@@ -1,0 +1,272 @@
+"""The ``pauli`` engine: first-order error budgets of any circuit by sparse Pauli propagation.
+
+The generator picture of design.md §4 (Blume-Kohout et al., "A taxonomy of small Markovian errors",
+PRX Quantum 3, 020335 (2022)) with the error generators carried as sparse sums of Pauli strings
+through every gate: a Clifford gate maps a string to one string, any other gate splits it by its
+Pauli transfer matrix restricted to the string's support (rz(θ): X -> cos θ X + sin θ Y). This is
+sparse Pauli dynamics / Pauli propagation with coefficient truncation (Begušić & Chan,
+arXiv:2306.16372 (2023), published as Begušić, Gray & Chan, Sci. Adv. 10, eadk4321 (2024); noisy
+Pauli propagation: arXiv:2501.13101 (2025)), applied to the error generators. Definitions are those of
+the generators engine (process: Σ_Q A_Q² + Σ p; state: Var(H_in) + Σ p (<L†L> - |<L>|²) with jump
+operators; observables: i<[H, O]> + Σ p <L† O L - ½{L†L, O}>), so untruncated the two engines agree
+to rounding; the reported ``infidelity`` resums the coherent part as the clifford engine does.
+
+Truncation (``truncate`` = EPS): rows below EPS are dropped after each layer and their norms add up
+to ``truncation_bound``, a rigorous bound on |first order reported - first order untruncated|
+(:mod:`budget.engines.pauli._sweep`). With ``truncate=None`` the engine starts at EPS = 10⁻² of the
+largest coherent coefficient and divides EPS by 4 while the bound exceeds ``target`` x the result
+and the time budget allows.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from budget.engines._channels import by_family
+from budget.engines._knobs import knob_grouping
+from budget.engines._groups import budget_result, size_warning
+from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable
+from budget.engines.pauli._plan import PlanBook
+from budget.engines.pauli._readout import coherent_budget, first_order_bound, group_amplitudes, jump_costs, zero_readout
+from budget.engines.pauli._sweep import OutOfTime, Sweep, TooManyTerms
+from budget.errors.noisy import IDLE, NoisyCircuit
+from budget.problems import InputError, TooLargeError
+
+TARGET = 0.01
+"""Default goal for truncation_bound / first-order result."""
+TIME_BUDGET_S = 60.0
+"""Default wall time for tightening the threshold (the first pass always completes)."""
+START = 1e-2
+"""First threshold, relative to the largest coherent coefficient of the circuit."""
+TAG_BALANCE = 0.1
+"""Jump-tag threshold relative to the coherent one (measured on Ising loops: the two parts of the
+bound come out about equal, docs/benchmarks.md)."""
+BRIEF_BUDGET_S = 5.0
+"""Tightening budget of :meth:`PauliEngine.brief`."""
+TIGHTEN = 4.0
+"""Each tightening divides the threshold by this factor."""
+MAX_EXECUTED_LAYERS = 10**6
+"""Executed layers walked at most (repeats run cycle by cycle unless folded)."""
+
+
+@dataclass(frozen=True)
+class PassResult:
+    """One sweep's numbers (first order, shares per family, bound, observables)."""
+
+    budget: object
+    families: list[str]
+    bound: float
+    jump_bound: float
+    observables: dict[str, float]
+    observable_bounds: dict[str, float]
+    terms_max: int
+    blocks: list[dict]
+    eps: float
+    seconds: float
+
+
+def _families(circuit: NoisyCircuit) -> list[str]:
+    fams = dict.fromkeys(nop.family for layer in circuit.distinct_layers() for nop in layer.operations)
+    if any(not r.is_trivial for layer in circuit.distinct_layers() for r in layer.idle):
+        fams[IDLE] = None
+    return list(fams)
+
+
+def _largest_coefficient(circuit: NoisyCircuit) -> float:
+    hs = [abs(c) for layer in circuit.distinct_layers() for nop in layer.operations for c in nop.hamiltonian.values()]
+    return max(hs, default=0.0)
+
+
+def _tag_scale(circuit: NoisyCircuit) -> float:
+    """TAG_BALANCE x 2 sqrt(e) for e = Σ h² over executed operations (the coherent part without
+    interference): a dropped coherent coefficient c moves the result by about 2 sqrt(e) |c|, and
+    jump-tag rows, far more numerous, are held to TAG_BALANCE of that."""
+    e = sum(mult * sum(c * c for c in nop.hamiltonian.values()) for layer, mult in circuit.multiplicities() for nop in layer.operations)
+    return TAG_BALANCE * 2 * float(np.sqrt(e)) if e > 0 else TAG_BALANCE
+
+
+def _executed_layers(circuit: NoisyCircuit) -> int:
+    return sum(m for _, m in circuit.multiplicities())
+
+
+def _kappa_total(book: PlanBook, circuit: NoisyCircuit) -> float:
+    return float(sum(m * book(layer).kappa for layer, m in circuit.multiplicities()))
+
+
+class PauliEngine:
+    """Sparse Pauli propagation engine (see module docstring).
+
+    Args:
+        truncate: coefficient threshold in radians; 0 keeps every term (exact first order);
+            None chooses and tightens it automatically.
+        target: goal for truncation_bound / result when ``truncate`` is None.
+        time_budget_s: wall time for tightening (the first pass always completes).
+    """
+
+    name = "pauli"
+
+    def __init__(self, *, truncate: float | None = None, target: float = TARGET, time_budget_s: float = TIME_BUDGET_S):
+        if truncate is not None and not (truncate >= 0 and np.isfinite(truncate)):
+            raise InputError(f"truncate = {truncate!r}: expected a number >= 0 (0 keeps every term)")
+        self.truncate, self.target, self.time_budget_s = truncate, target, time_budget_s
+
+    def configure(self, *, truncate: float | None = None, **_ignored) -> "PauliEngine":
+        """The same engine with another threshold (the CLI's ``--truncate``)."""
+        return PauliEngine(truncate=truncate, target=self.target, time_budget_s=self.time_budget_s)
+
+    def brief(self) -> "PauliEngine":
+        """The same engine with at most BRIEF_BUDGET_S for tightening the threshold (depth curves,
+        twirled variants and ensembles run it many times)."""
+        return PauliEngine(truncate=self.truncate, target=self.target, time_budget_s=min(self.time_budget_s, BRIEF_BUDGET_S))
+
+    def fits(self, circuit: NoisyCircuit, metric: Metric, observables: tuple[str, ...] = ()) -> str | None:
+        """None unless the circuit executes more than MAX_EXECUTED_LAYERS layers (repeats run cycle
+        by cycle), in which case the clifford engine is named when every gate is Clifford."""
+        if metric not in METRICS:
+            return f"metric {metric!r} is not one of {', '.join(METRICS)}"
+        layers = _executed_layers(circuit)
+        if layers > MAX_EXECUTED_LAYERS:
+            return (
+                f"{layers} executed layers: the pauli engine walks repeated blocks cycle by cycle and stops at "
+                f"{MAX_EXECUTED_LAYERS} layers; the clifford engine folds Clifford blocks of any count"
+            )
+        return None
+
+    def _check(self, circuit: NoisyCircuit, metric: Metric) -> None:
+        if metric not in METRICS:
+            raise ValueError(f"metric {metric!r}: expected one of {', '.join(METRICS)}")
+        reason = self.fits(circuit, metric)
+        if reason is not None:
+            raise TooLargeError(f"{circuit.source}: engine pauli: {reason}")
+
+    # -- one pass -----------------------------------------------------------------------------
+
+    def evaluate(
+        self, circuit: NoisyCircuit, metric: str, *, eps: float, observables: tuple[str, ...] = (), deadline: float | None = None
+    ) -> PassResult:
+        """One sweep at threshold ``eps`` (raises OutOfTime past ``deadline``)."""
+        start = time.monotonic()
+        n = circuit.num_qubits
+        try:
+            letters = tuple(parse_observable(label, n) for label in observables)
+        except ValueError as err:
+            raise InputError(f"{circuit.source}: {err}") from None
+        families = _families(circuit)
+        columns = {f: i for i, f in enumerate(families)}
+        scale = np.ones(len(families))
+        state = metric == "state"
+        direction = "pull" if state else "push"
+        book = PlanBook(n, direction, by_family, columns, jumps=state, generators=state and bool(letters))
+        sweep = Sweep(n, book, eps, scale=scale, observables=letters if state else (), deadline=deadline,
+                      tag_scale=_tag_scale(circuit) if state else 1.0,
+                      kappa_total=_kappa_total(book, circuit) if state and letters else 0.0)
+        sweep.run(circuit.body)
+        if state:
+            values = zero_readout(sweep.tags, sweep.tag_count)
+            costs, tag_bound = jump_costs(sweep.occurrences, values, sweep.tag_dropped)
+            sto = np.array([costs.get(f, 0.0) for f in families])
+            drift = sweep.bound_l1
+        else:
+            sto = np.array([sweep.stochastic.get(f, 0.0) for f in families])
+            tag_bound, drift = 0.0, sweep.bound_l2
+        budget = coherent_budget(sweep.coh, sto, state=state)
+        bound = first_order_bound(budget.coherent, drift) + tag_bound
+        obs, obs_bounds, terms, blocks = {}, {}, sweep.terms_max, list(sweep.blocks)
+        if letters:
+            osweep = sweep
+            if not state:
+                obook = PlanBook(n, "pull", lambda nop: [], {}, jumps=False, generators=True)
+                osweep = Sweep(n, obook, eps, scale=np.zeros(0), observables=letters, deadline=deadline,
+                               kappa_total=_kappa_total(obook, circuit))
+                osweep.run(circuit.body)
+                terms = max(terms, osweep.terms_max)
+            vals = zero_readout(osweep.err, len(letters))
+            obs = {label: float(v) for label, v in zip(observables, vals)}
+            obs_bounds = {label: float(b) for label, b in zip(observables, osweep.obs_bound)}
+        return PassResult(budget, families, float(bound), float(tag_bound), obs, obs_bounds, terms, blocks, eps,
+                          time.monotonic() - start)
+
+    # -- public -------------------------------------------------------------------------------
+
+    def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
+        """First-order and resummed infidelity, family shares, observables, truncation bound."""
+        self._check(circuit, metric)
+        result, notes = self._tightened(circuit, metric, tuple(observables))
+        b = result.budget
+        shares = {f: float(v) for f, v in zip(result.families, b.shares)}
+        warnings = list(notes) + size_warning(b)
+        details = {
+            "coherent_first_order": b.coherent,
+            "coherent_exponentiated": b.coherent_resummed,
+            "stochastic_first_order": b.stochastic,
+            "coherent_groups": b.groups,
+            "max_group_amplitude_rad": b.max_amplitude,
+            "truncation_bound": result.bound,
+            "truncation_bound_jumps": result.jump_bound,
+            "truncate": result.eps,
+            "pauli_terms_max": result.terms_max,
+            "repeated_blocks": result.blocks,
+            "first_order_family_shares": {f: float(v) for f, v in zip(result.families, b.first_order_shares)},
+        }
+        if result.observable_bounds:
+            details["observable_truncation_bounds"] = result.observable_bounds
+        return budget_result(self.name, metric, b, shares, warnings, details, result.observables)
+
+    def _first(self, circuit: NoisyCircuit, metric: str, observables: tuple[str, ...], eps: float) -> PassResult:
+        try:
+            return self.evaluate(circuit, metric, eps=eps, observables=observables)
+        except TooManyTerms as err:
+            raise TooLargeError(
+                f"{circuit.source}: engine pauli: more than {err.args[1]:,} Pauli terms ({err.args[0]:,}) at threshold "
+                f"{eps:.3g} rad; a larger --truncate holds fewer (the bound then grows)"
+            ) from None
+
+    def _tightened(self, circuit: NoisyCircuit, metric: str, observables: tuple[str, ...]) -> tuple[PassResult, list[str]]:
+        if self.truncate is not None:
+            return self._first(circuit, metric, observables, self.truncate), []
+        h = _largest_coefficient(circuit)
+        if h == 0.0 and not circuit.has_incoherent:
+            return self._first(circuit, metric, observables, 0.0), []
+        eps = START * (h if h > 0 else 1e-3)
+        deadline = time.monotonic() + self.time_budget_s
+        best = self._first(circuit, metric, observables, eps)
+        while best.bound > self.target * best.budget.first_order and best.bound > 0:
+            eps /= TIGHTEN
+            try:
+                best = self.evaluate(circuit, metric, eps=eps, observables=observables, deadline=deadline)
+            except (OutOfTime, TooManyTerms) as stop:
+                why = f"the {self.time_budget_s:.0f} s budget" if isinstance(stop, OutOfTime) else f"{stop.args[1]:,} terms"
+                return best, [
+                    f"truncation: the bound {best.bound:.2g} is {best.bound / max(best.budget.first_order, 1e-300):.1%} "
+                    f"of the first-order result at threshold {best.eps:.2g}; tightening stopped at {why} "
+                    "(use --truncate for a smaller threshold)"
+                ]
+        return best, []
+
+    def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:
+        """e ≈ δᵀAδ + floor over (family, knob) labels (:func:`budget.engines._knobs.knob_grouping`,
+        as the generators and clifford engines): the knobs' unit generators are carried as the
+        columns of one sum, A_ab = Σ_g Re(conj(B_ga) B_gb) over its groups (process: Paulis; state:
+        X parts without x = 0). Threshold: ``truncate``, else the one the budget run settles on;
+        the floor (first-order incoherent part per family) comes from that run."""
+        self._check(circuit, metric)
+        budget_pass, _ = self._tightened(circuit, metric, ())
+        grouping, values = knob_grouping(circuit)
+        labels = tuple(values)
+        columns = {lab: i for i, lab in enumerate(labels)}
+        vals = np.array([values[lab] for lab in labels], dtype=float)
+        nonzero = np.abs(vals[vals != 0])
+        scale = np.where(vals != 0, np.abs(vals), nonzero.mean() if len(nonzero) else 1.0)
+        state = metric == "state"
+        n = circuit.num_qubits
+        book = PlanBook(n, "pull" if state else "push", grouping, columns, jumps=False, generators=False)
+        sweep = Sweep(n, book, budget_pass.eps, scale=scale)
+        sweep.run(circuit.body)
+        b = group_amplitudes(sweep.coh, state=state)
+        a = (b.conj().T @ b).real if len(b) else np.zeros((len(labels), len(labels)))
+        sto = budget_pass.budget.stochastic_shares
+        floor = {f: float(v) for f, v in zip(budget_pass.families, sto) if v}
+        return QuadraticForm(labels, (a + a.T) / 2, vals, float(sum(floor.values())), floor)
