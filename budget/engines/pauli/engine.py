@@ -123,10 +123,12 @@ class PauliEngine:
         return PauliEngine(truncate=self.truncate, target=self.target, time_budget_s=min(self.time_budget_s, BRIEF_BUDGET_S))
 
     def fits(self, circuit: NoisyCircuit, metric: Metric, observables: tuple[str, ...] = ()) -> str | None:
-        """None unless the circuit executes more than MAX_EXECUTED_LAYERS layers (repeats run cycle
-        by cycle), in which case the clifford engine is named when every gate is Clifford."""
+        """None unless the circuit has mid-circuit items (measurement, reset, if) or executes more
+        than MAX_EXECUTED_LAYERS layers (non-Clifford repeats run cycle by cycle)."""
         if metric not in METRICS:
             return f"metric {metric!r} is not one of {', '.join(METRICS)}"
+        if circuit.has_mid_circuit:
+            return circuit.mid_circuit_reason()
         layers = _executed_layers(circuit)
         if layers > MAX_EXECUTED_LAYERS:
             return (
