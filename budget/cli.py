@@ -53,7 +53,7 @@ def user_errors(fn: Callable) -> Callable:
         except (InputError, OSError) as exc:
             err = make_console(stderr=True)
             text = str(exc) if isinstance(exc, InputError) else f"{getattr(exc, 'filename', '') or ''}: {exc.strerror or exc}"
-            err.print(f"[bold red]error:[/] {escape(text)}", highlight=False, markup=True, soft_wrap=True)
+            err.print(f"[bold red]error:[/] {escape(text)}", highlight=False, markup=True, emoji=False, soft_wrap=True)
             raise typer.Exit(code=2) from None
 
     return wrapper

@@ -19,7 +19,7 @@ from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary, ci
 from budget.analysis.select import choose_engine, escalate, first_order_shares
 from budget.analysis.validity import run_in_range
 from budget.circuit.ir import StructuredCircuit
-from budget.engines.base import MEASURED_METRICS, METRICS
+from budget.engines.base import MEASURED_METRICS, METRICS, parse_observable
 from budget.errors.noisy import IDLE, NoisyCircuit
 from budget.problems import InputError
 
@@ -105,6 +105,8 @@ def analyze_noisy(
     if logical is not None and metric != "detectors":
         raise InputError(f"--logical: logical observables (parities of recorded bits) belong to the detectors metric; the {metric} "
                          "metric does not use them")
+    for label in observables:  # bad labels are refused before any engine runs
+        parse_observable(label, noisy.qubits)
     if metric in MEASURED_METRICS:
         from budget.analysis.measured import analyze_measured
 

@@ -83,8 +83,11 @@ def first_order_shares(
     The split between families comes from the leading-order decomposition (coherent amplitudes
     per family, cross terms included); its overall size is set to the engine's actual value.
     Returns the shares and a note when no first-order engine fits or the one that fits is beyond
-    its range (then no shares: a split of that engine would be a number outside its meaning).
+    its range (then no shares: a split of that engine would be a number outside its meaning);
+    nothing to split (and no note) when ``total`` is zero.
     """
+    if not total > 0:
+        return {}, None
     for candidate in ("generators", "clifford"):
         if candidate == exclude:
             continue

@@ -43,7 +43,7 @@ from budget.engines._validity import (
 from budget.engines._walk import MAX_UNROLLED, ORBIT_BABY, Walker
 from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.errors.noisy import NoisyCircuit
-from budget.problems import InputError, TooLargeError, place
+from budget.problems import TooLargeError, place
 
 SMALL = 0.1
 """First-order infidelity above which the engine warns that the expansion is no longer small."""
@@ -320,10 +320,7 @@ class CliffordEngine:
         ``prune`` is False; observables whose cone is the whole circuit share one walk.
         """
         prune = self.prune_observables if prune is None else prune
-        try:
-            parsed = {label: parse_observable(label, circuit.num_qubits) for label in labels}
-        except ValueError as err:
-            raise InputError(f"{circuit.source}: {err}") from None
+        parsed = {label: parse_observable(label, circuit.qubits) for label in labels}
         out: dict[str, float] = {}
         whole: list[str] = []
         for label, paulis in parsed.items():

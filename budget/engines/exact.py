@@ -165,7 +165,7 @@ class ExactEngine:
         if metric not in METRICS:
             raise ValueError(f"metric {metric!r}: expected one of {', '.join(METRICS)}")
         n = circuit.num_qubits
-        parsed = {label: parse_observable(label, n) for label in observables}
+        parsed = {label: parse_observable(label, circuit.qubits) for label in observables}
         plan = make_plan(circuit, metric, self.repeats)
         reason = refusal(circuit, metric, plan)
         if reason is not None:

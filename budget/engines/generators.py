@@ -30,6 +30,7 @@ from typing import Hashable, Sequence
 import numpy as np
 
 from budget.circuit.clifford_check import first_non_clifford
+from budget.engines._apply import as_rows
 from budget.engines._channels import by_family, content_cache
 from budget.engines._dense import DensePropagator
 from budget.engines._jumps import StateJumps
@@ -311,7 +312,7 @@ class GeneratorsEngine:
         inc = IncoherentObservables(n, content_of, dense)
         out = {}
         for label in labels:
-            letters = parse_observable(label, n)
+            letters = parse_observable(label, circuit.qubits)
             ideal = np.vdot(psi, observable_vector(letters, psi, n)).real
             err = np.vdot(chi, observable_vector(letters, chi, n)).real - ideal
             if circuit.has_incoherent:
@@ -344,16 +345,21 @@ class GeneratorsEngine:
         keys: list[Hashable] = list(values)
         if metric == "process":
             block = dense.block(circuit.body, with_unitary=False)
-            k = np.array([block.group(key) if key in block.keys else np.zeros((2**n, 2**n)) for key in keys])
             d = 2**n
-            flat = k.reshape(len(keys), -1)
-            tr = np.trace(k, axis1=1, axis2=2).real / d if len(keys) else np.zeros(0)
+            k = np.zeros((len(keys), d, d), dtype=complex)  # no knob at all: an empty form
+            for i, key in enumerate(keys):
+                if key in block.keys:
+                    k[i] = block.group(key)
+            flat = as_rows(k)
+            tr = np.trace(k, axis1=1, axis2=2).real / d
             a = (flat.conj() @ flat.T).real / d - np.outer(tr, tr)
         else:
             path = StatePath(circuit, content_of, dense)
             psi = path.final_state()
             phis = path.group_vectors()
-            v = np.array([phis.get(key, np.zeros(2**n, dtype=complex)) for key in keys]).reshape(len(keys), -1)
+            v = np.zeros((len(keys), 2**n), dtype=complex)
+            for i, key in enumerate(keys):
+                v[i] = phis.get(key, 0.0)
             means = (v @ psi.conj()).real
             a = (v.conj() @ v.T).real - np.outer(means, means)
         family_content = content_cache(n, by_family)
