@@ -122,7 +122,8 @@ EngineOpt = typer.Option(EngineChoice.auto, "--engine", help="auto picks the mos
 QuietOpt = typer.Option(False, "--quiet", "-q", help="No progress bar on stderr.")
 ByPairOpt = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate.")
 ByOperationOpt = typer.Option(False, "--by-operation", help="One family per operation as written (line numbers).")
-WidthOpt = typer.Option(None, "--width", help="Report width in characters (default: terminal).")
+WidthOpt = typer.Option(None, "--width", min=40, max=1000, help="Report width in characters, 40 to 1000 "
+                        "(default: terminal).")
 
 
 @app.command()
@@ -148,7 +149,8 @@ def analyze(
     draws: int = typer.Option(10, "--draws", min=2, max=1000, help="Random counterparts for --against random "
                               "(mean and spread)."),
     ensemble: int = typer.Option(0, "--ensemble", min=0, help="Also run N randomly compiled copies (random Pauli "
-                                 "frames around each two-qubit layer): mean and spread of the infidelity."),
+                                 "frames around each two-qubit layer): mean and spread of the infidelity; at "
+                                 "most 1000 copies."),
     seed: int = typer.Option(1, "--seed", min=0, help="First seed for --ensemble and --against random."),
     quiet: bool = QuietOpt,
 ) -> None:
@@ -356,7 +358,7 @@ def _write_decisions(json_path: Optional[Path], d) -> None:
 @app.command()
 @user_errors
 def demo(
-    width: Optional[int] = typer.Option(None, "--width", help="Report width in characters."),
+    width: Optional[int] = WidthOpt,
 ) -> None:
     """Run the main job on the built-in examples of the invented North Fen lab."""
     from budget.analysis.run import analyze as run_analysis

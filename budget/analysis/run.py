@@ -16,7 +16,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary, circuit_fields
-from budget.analysis.select import choose_engine, escalate, first_order_shares
+from budget.analysis.select import choose, choose_engine, escalate, first_order_shares
 from budget.analysis.validity import run_in_range
 from budget.circuit.ir import StructuredCircuit
 from budget.engines.base import MEASURED_METRICS, METRICS, parse_observable
@@ -118,7 +118,8 @@ def analyze_noisy(
                                   compare_twirled=compare_twirled, cycles=cycles, logical=logical)
         return dataclasses.replace(result, warnings=tuple(notes) + result.warnings)
 
-    chosen = choose_engine(noisy, metric, engine)
+    choice = choose(noisy, metric, engine)
+    chosen = choice.engine
     outcome, switched = run_in_range(noisy, metric, chosen, engine, observables=tuple(observables))
     if (better := escalate(noisy, metric, engine, outcome)) is not None:
         switched = (*switched, f"auto: the {outcome.engine} engine's result rested on a cancellation; the exact engine ran instead")
@@ -164,7 +165,8 @@ def analyze_noisy(
         warnings=tuple(dict.fromkeys(warnings)),
         observables=observed,
         twirled_infidelity=twirled,
-        details=dict(outcome.details),
+        details={**outcome.details, "engine_choice": choice.reason if outcome.engine == chosen.name else
+                 f"{choice.reason}; then {outcome.engine} (the warnings say why)"},
         beyond_range=outcome.beyond_range,
         shares_known=shares_known,
     )

@@ -92,6 +92,15 @@ def zero_result(engine: str, metric: str, observables: tuple[str, ...] = (), *, 
     )
 
 
+MULTIPLY_ADDS_PER_S = 3e8
+"""Complex multiply-adds per second of the dense engines on the 2-core development machine with one
+BLAS thread per process and other work running beside it (measured: a 6-qubit superoperator of
+8e9 estimated multiply-adds took 33 s; docs/benchmarks.md). Engines' :meth:`Engine.estimate_seconds`
+turn their work counts into seconds with it."""
+DEFAULT_ESTIMATE_S = 1.0
+"""Seconds assumed for an engine that gives no estimate of its own."""
+
+
 class Engine(Protocol):
     """What every engine provides."""
 
@@ -105,6 +114,10 @@ class Engine(Protocol):
     ) -> EngineResult:
         """Compute the metric (and the errors of the named Pauli observables, when the engine
         supports them); raises TooLargeError if :meth:`fits` would refuse."""
+
+    def estimate_seconds(self, circuit: NoisyCircuit, metric: Metric) -> float:
+        """Optional: the estimated run time in seconds on this machine (``auto`` compares them;
+        an engine without it counts as :data:`DEFAULT_ESTIMATE_S`). Must not allocate."""
 
     def brief(self) -> "Engine":
         """The same engine without optional extras that cost time but do not change the totals
