@@ -134,7 +134,7 @@ def analyze(
     cycles: int = CyclesOpt,
     metric: MetricChoice = MetricOpt,
     engine: EngineChoice = EngineOpt,
-    observable: List[str] = typer.Option([], "--observable", "-o", help="Pauli observable such as Z0Z1 (repeatable)."),
+    observable: List[str] = typer.Option([], "--observable", "-o", help="Pauli observable by qubit index (Z0Z1) or name (Z(q[0])Z(q[1])); repeatable."),
     logical: List[str] = typer.Option([], "--logical", help="Logical observable for --metric detectors: record "
                                       "indices joined by commas, e.g. 24,25,26 (repeatable; default: inferred)."),
     by_pair: bool = ByPairOpt,

@@ -120,7 +120,7 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str) ->
         gen = get_engine("generators")
         if gen.fits(_repeated(block, 2), metric) is None:
             return _closed_form(block, gen), "generators (periodic closed form)", notes
-    chosen = choose_engine(_repeated(block, 2), metric, engine, brief=True)
+    chosen = choose_engine(_repeated(block, deepest), metric, engine, brief=True)  # the costliest point decides
 
     def run(n: int) -> tuple[float, bool]:
         result = chosen.run(_repeated(block, n), metric)
