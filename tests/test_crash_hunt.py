@@ -57,7 +57,7 @@ COMMANDS = {
     "cost": ["cost", "--target", "0.1"],
     "report": ["report", "-q", "--target", "0.1", "--out", "{o}", "--max-cycles", "20", "--points", "3"],
 }
-PUBLIC_COMMANDS = ("analyze", "depth", "tolerances", "report")  # cost and --by-pair: the circuits
+PUBLIC_COMMANDS = ("analyze", "depth", "tolerances")  # cost, report and --by-pair: the circuits
 PROCESS_FILES = {"basis_trotter_n4.qasm", "qft_n4.qasm", "ghz_n127.qasm", "cat_n35.qasm"}
 
 
@@ -228,7 +228,7 @@ def test_idle_slot_limit_refuses_before_attaching(tmp_path):
         (["-o", "Z(q[7])"], "no qubit named 'q[7]'"),
         (["-o", "Z0Z0"], "qubit 0 appears twice"),
         (["--ensemble", "100000"], "at most 1000 copies"),
-        (["--cycles", "1000", "--ensemble", "1000"], "use at most"),
+        (["--cycles", "2000", "--ensemble", "1000"], "use at most"),  # 4,000 layers x 1,000 copies
     ],
 )
 def test_bad_options_give_one_clear_line(options, expected, tmp_path):
