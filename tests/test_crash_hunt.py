@@ -25,29 +25,7 @@ PUBLIC = ROOT.parent / "shared" / "qasm-public"
 EXAMPLES = ROOT / "circuits"
 runner = CliRunner()
 
-MODEL = """
-[qubits]
-t1_us = 100.0
-t2_us = 80.0
-[gates.sx]
-duration_ns = 25.0
-overrotation = 0.004
-avg_infidelity = 2e-4
-[gates.x]
-duration_ns = 25.0
-overrotation = 0.006
-[gates.h]
-duration_ns = 25.0
-overrotation = 0.004
-avg_infidelity = 2e-4
-[gates.cx]
-duration_ns = 200.0
-cphase = 0.01
-avg_infidelity = 2e-3
-[gates.cz]
-duration_ns = 60.0
-cphase = 0.01
-"""
+MODEL = ROOT / "benchmarks" / "public_model.toml"  # shared with benchmarks/bench_public.py
 
 COMMANDS = {
     "analyze": ["analyze", "-q", "--json", "{j}"],
@@ -95,22 +73,15 @@ def check_run(args: list[str], tmp_path: Path) -> None:
             assert math.isfinite(value) and 0.0 <= value <= 1.0, (args, key, value)
 
 
-@pytest.fixture(scope="module")
-def model(tmp_path_factory) -> Path:
-    path = tmp_path_factory.mktemp("model") / "m.toml"
-    path.write_text(MODEL)
-    return path
-
-
 @pytest.mark.skipif(not PUBLIC.is_dir(), reason="../shared/qasm-public is absent")
 @pytest.mark.parametrize("name", _public())
 @pytest.mark.parametrize("command", PUBLIC_COMMANDS)
-def test_every_command_on_every_public_circuit(name, command, model, tmp_path):
+def test_every_command_on_every_public_circuit(name, command, tmp_path):
     metrics = ("state", "process") if name in PROCESS_FILES else ("state",)
     for metric in metrics:
         sub = tmp_path / metric
         sub.mkdir()
-        args = COMMANDS[command][:1] + [str(PUBLIC / name), "-e", str(model), "--metric", metric] + COMMANDS[command][1:]
+        args = COMMANDS[command][:1] + [str(PUBLIC / name), "-e", str(MODEL), "--metric", metric] + COMMANDS[command][1:]
         check_run(args, sub)
 
 

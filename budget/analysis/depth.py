@@ -102,7 +102,7 @@ def _first_true(pred: Callable[[int], bool], grid: tuple[int, ...]) -> int | Non
     return None
 
 
-def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str) -> tuple[_Series, str, list[str]]:
+def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, deepest: int) -> tuple[_Series, str, list[str]]:
     """One curve from an engine.
 
     ``auto`` on up to EXACT_CURVE_QUBITS qubits: the exact engine at every point (matrix powers, cheap
@@ -110,7 +110,8 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str) ->
     the periodic closed form: coherent part from one Schur decomposition of the cycle, stochastic
     part N times the cycle's, exactly what the generators engine computes for a repeat, without
     re-running it per point. Otherwise every point is one run of the chosen engine on the folded
-    repeat (the exact engine takes matrix powers, the clifford engine folds whole periods)."""
+    repeat (the exact engine takes matrix powers, the clifford engine folds whole periods); the
+    engine is chosen for the deepest point ``deepest``, the costliest one."""
     from budget.analysis.select import choose_engine
 
     notes: list[str] = []
@@ -120,7 +121,7 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str) ->
         gen = get_engine("generators")
         if gen.fits(_repeated(block, 2), metric) is None:
             return _closed_form(block, gen), "generators (periodic closed form)", notes
-    chosen = choose_engine(_repeated(block, deepest), metric, engine, brief=True)  # the costliest point decides
+    chosen = choose_engine(_repeated(block, deepest), metric, engine, brief=True)
 
     def run(n: int) -> tuple[float, bool]:
         result = chosen.run(_repeated(block, n), metric)
@@ -234,9 +235,9 @@ def depth_curve(
         return _measured_curve(block, grid, metric, engine, target, progress)
     log_keep = math.log1p(-min(naive_infidelity(block), 1.0)) if naive_infidelity(block) < 1 else -math.inf
     naive = _Series(lambda n: (-math.expm1(n * log_keep) if log_keep > -math.inf else 1.0, True))
-    structured, name, notes = _engine_series(block, metric, engine, "actual")
+    structured, name, notes = _engine_series(block, metric, engine, "actual", max_cycles)
     tw_block = twirled_circuit(block)
-    twirled, tw_name, tw_notes = _engine_series(tw_block, metric, engine, "twirled")
+    twirled, tw_name, tw_notes = _engine_series(tw_block, metric, engine, "twirled", max_cycles)
     series = {"naive": naive, "structured": structured, "twirled": twirled}
     switches: dict[str, int] = {}
     if engine == "auto" and block.num_qubits <= EXACT_FALLBACK_QUBITS:
