@@ -34,8 +34,11 @@ COMMANDS = {
     "tolerances": ["tolerances", "--target", "0.1", "--json", "{j}"],
     "cost": ["cost", "--target", "0.1"],
     "report": ["report", "-q", "--target", "0.1", "--out", "{o}", "--max-cycles", "20", "--points", "3"],
+    "plan": ["plan", "--target", "0.1", "--hours", "8"],
+    "sweep": ["sweep", "--samples", "4"],
+    "compensate": ["compensate"],
 }
-PUBLIC_COMMANDS = ("analyze", "depth", "tolerances")  # cost, report and --by-pair: the issue's circuits
+PUBLIC_COMMANDS = ("analyze", "depth", "tolerances")  # the others: the issue's circuits
 PROCESS_FILES = {"basis_trotter_n4.qasm", "qft_n4.qasm", "ghz_n127.qasm", "cat_n35.qasm"}
 
 
@@ -51,7 +54,7 @@ def _infidelities(node, key: str = ""):
     elif isinstance(node, list):
         for v in node:
             yield from _infidelities(v, key)
-    elif isinstance(node, (int, float)) and not isinstance(node, bool):
+    elif isinstance(node, float):  # ints under curve names are repetition counts (deepest, range_ends)
         if key in ("infidelity", "naive", "structured", "twirled", "actual_infidelity", "naive_infidelity"):
             yield key, node
 
@@ -122,7 +125,8 @@ def test_issue_circuits_every_command(case, engine, metric, tmp_path):
             continue
         sub = tmp_path / command
         sub.mkdir()
-        check_run(rest[:1] + [str(c), "-e", str(m), "--metric", metric, "--engine", engine] + rest[1:], sub)
+        chosen = ["--engine", engine] if command != "plan" else []  # plan always picks its own engine
+        check_run(rest[:1] + [str(c), "-e", str(m), "--metric", metric, *chosen] + rest[1:], sub)
 
 
 def test_no_coherent_knob_gives_an_empty_quadratic_form():

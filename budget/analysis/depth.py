@@ -112,7 +112,7 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, de
     re-running it per point. Otherwise every point is one run of the chosen engine on the folded
     repeat (the exact engine takes matrix powers, the clifford engine folds whole periods); the
     engine is chosen for the deepest point ``deepest``, the costliest one."""
-    from budget.analysis.select import choose_engine
+    from budget.analysis.select import check_time, choose_engine
 
     notes: list[str] = []
     small = engine == "auto" and block.num_qubits <= EXACT_CURVE_QUBITS
@@ -120,6 +120,7 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, de
             and block.num_qubits <= MAX_CLOSED_FORM_QUBITS):  # the closed form repeats one cycle as it is
         gen = get_engine("generators")
         if gen.fits(_repeated(block, 2), metric) is None:
+            check_time(block, metric, gen, runs=2, what="the depth curve (closed form)")
             return _closed_form(block, gen), "generators (periodic closed form)", notes
     chosen = choose_engine(_repeated(block, deepest), metric, engine, brief=True)
 

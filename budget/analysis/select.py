@@ -151,6 +151,17 @@ def _other_metric(circuit: NoisyCircuit, metric: str, order: tuple[str, ...]) ->
     return f"; see {DOCS}"
 
 
+def check_time(circuit: NoisyCircuit, metric: str, engine: Engine, *, runs: int, what: str) -> None:
+    """Refuse (one line) work of ``runs`` runs of ``engine`` on ``circuit`` estimated above
+    MAX_SECONDS, for callers that run an engine several times (``what``: e.g. "the depth curves")."""
+    t = runs * estimate_seconds(engine, circuit, metric)
+    if t > MAX_SECONDS:
+        raise TooLargeError(
+            f"{_size(circuit, metric)}: {what} would take about {_seconds(t)} with the {engine.name} engine, over "
+            f"the {MAX_SECONDS:.0f} s limit{_other_metric(circuit, metric, AUTO_ORDER).replace(' fits (', ' may be faster (')}"
+        )
+
+
 def choose_engine(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: bool = False) -> Engine:
     """The engine :func:`choose` picks (callers that need no reason)."""
     return choose(circuit, metric, name, brief=brief).engine
