@@ -54,7 +54,7 @@ def user_errors(fn: Callable) -> Callable:
         except (InputError, OSError) as exc:
             err = make_console(stderr=True)
             text = str(exc) if isinstance(exc, InputError) else f"{getattr(exc, 'filename', '') or ''}: {exc.strerror or exc}"
-            err.print(f"[bold red]error:[/] {escape(text)}", highlight=False, markup=True, soft_wrap=True)
+            err.print(f"[bold red]error:[/] {escape(text)}", highlight=False, markup=True, emoji=False, soft_wrap=True)
             raise typer.Exit(code=2) from None
 
     return wrapper
@@ -123,7 +123,8 @@ EngineOpt = typer.Option(EngineChoice.auto, "--engine", help="auto picks the mos
 QuietOpt = typer.Option(False, "--quiet", "-q", help="No progress bar on stderr.")
 ByPairOpt = typer.Option(False, "--by-pair", help="One family per gate and qubit tuple instead of per gate.")
 ByOperationOpt = typer.Option(False, "--by-operation", help="One family per operation as written (line numbers).")
-WidthOpt = typer.Option(None, "--width", help="Report width in characters (default: terminal).")
+WidthOpt = typer.Option(None, "--width", min=40, max=1000, help="Report width in characters, 40 to 1000 "
+                        "(default: terminal).")
 
 
 @app.command()
@@ -134,7 +135,7 @@ def analyze(
     cycles: int = CyclesOpt,
     metric: MetricChoice = MetricOpt,
     engine: EngineChoice = EngineOpt,
-    observable: List[str] = typer.Option([], "--observable", "-o", help="Pauli observable such as Z0Z1 (repeatable)."),
+    observable: List[str] = typer.Option([], "--observable", "-o", help="Pauli observable by qubit index (Z0Z1) or name (Z(q[0])Z(q[1])); repeatable."),
     logical: List[str] = typer.Option([], "--logical", help="Logical observable for --metric detectors: record "
                                       "indices joined by commas, e.g. 24,25,26 (repeatable; default: inferred)."),
     by_pair: bool = ByPairOpt,
@@ -149,7 +150,8 @@ def analyze(
     draws: int = typer.Option(10, "--draws", min=2, max=1000, help="Random counterparts for --against random "
                               "(mean and spread)."),
     ensemble: int = typer.Option(0, "--ensemble", min=0, help="Also run N randomly compiled copies (random Pauli "
-                                 "frames around each two-qubit layer): mean and spread of the infidelity."),
+                                 "frames around each two-qubit layer): mean and spread of the infidelity; at "
+                                 "most 1000 copies."),
     seed: int = typer.Option(1, "--seed", min=0, help="First seed for --ensemble and --against random."),
     truncate: Optional[float] = typer.Option(
         None, "--truncate", help="pauli engine: drop Pauli terms below EPS radians (0 keeps all; default: chosen "
@@ -360,7 +362,7 @@ def _write_decisions(json_path: Optional[Path], d) -> None:
 @app.command()
 @user_errors
 def demo(
-    width: Optional[int] = typer.Option(None, "--width", help="Report width in characters."),
+    width: Optional[int] = WidthOpt,
 ) -> None:
     """Run the main job on the built-in examples of the invented North Fen lab."""
     from budget.analysis.run import analyze as run_analysis

@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 import scipy.linalg
 
+from budget.analysis.select import choose
 from budget.circuit.gates import overrotation_unitary
 from budget.circuit.ir import Operation
 from budget.engines import get_engine
@@ -281,9 +282,11 @@ def test_too_large_names_the_limit_and_the_alternative():
     n = MAX_DENSE_QUBITS + 1
     c = _circuit(n, _layer(*[_nop("h", (q,), {"X": 1e-3}) for q in range(n)]))
     reason = ENGINE.fits(c, "process")
-    assert reason is not None and f"{MAX_DENSE_QUBITS} qubits" in reason and "clifford" in reason
-    with pytest.raises(TooLargeError, match="clifford engine fits"):
+    assert reason == f"dense matrices, limit {MAX_DENSE_QUBITS} qubits"
+    with pytest.raises(TooLargeError, match="limit"):
         ENGINE.run(c, "process")
+    with pytest.raises(TooLargeError, match="clifford or pauli fits"):
+        choose(c, "process", "generators")
     assert ENGINE.fits(c, "state") is None  # state vectors reach further
     assert ENGINE.fits(_circuit(3, _layer(_nop("x", (0,)))), "process") is None
 

@@ -102,7 +102,7 @@ def _first_true(pred: Callable[[int], bool], grid: tuple[int, ...]) -> int | Non
     return None
 
 
-def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str) -> tuple[_Series, str, list[str]]:
+def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, deepest: int) -> tuple[_Series, str, list[str]]:
     """One curve from an engine.
 
     ``auto`` on up to EXACT_CURVE_QUBITS qubits: the exact engine at every point (matrix powers, cheap
@@ -110,8 +110,9 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str) ->
     the periodic closed form: coherent part from one Schur decomposition of the cycle, stochastic
     part N times the cycle's, exactly what the generators engine computes for a repeat, without
     re-running it per point. Otherwise every point is one run of the chosen engine on the folded
-    repeat (the exact engine takes matrix powers, the clifford engine folds whole periods)."""
-    from budget.analysis.select import choose_engine
+    repeat (the exact engine takes matrix powers, the clifford engine folds whole periods); the
+    engine is chosen for the deepest point ``deepest``, the costliest one."""
+    from budget.analysis.select import AUTO_ORDER, check_time, choose
 
     notes: list[str] = []
     small = engine == "auto" and block.num_qubits <= EXACT_CURVE_QUBITS
@@ -119,8 +120,12 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str) ->
             and block.num_qubits <= MAX_CLOSED_FORM_QUBITS):  # the closed form repeats one cycle as it is
         gen = get_engine("generators")
         if gen.fits(_repeated(block, 2), metric) is None:
+            check_time(block, metric, gen, runs=2, what="the depth curve (closed form)")
             return _closed_form(block, gen), "generators (periodic closed form)", notes
-    chosen = choose_engine(_repeated(block, 2), metric, engine, brief=True)
+    # auto leaves the pauli engine out of curves: it walks non-Clifford repeats cycle by cycle and its
+    # term count can grow with depth faster than any estimate it could give (--engine pauli still runs it)
+    order = tuple(e for e in AUTO_ORDER if e != "pauli")
+    chosen = choose(_repeated(block, deepest), metric, engine, brief=True, order=order).engine
 
     def run(n: int) -> tuple[float, bool]:
         result = chosen.run(_repeated(block, n), metric)
@@ -234,9 +239,9 @@ def depth_curve(
         return _measured_curve(block, grid, metric, engine, target, progress)
     log_keep = math.log1p(-min(naive_infidelity(block), 1.0)) if naive_infidelity(block) < 1 else -math.inf
     naive = _Series(lambda n: (-math.expm1(n * log_keep) if log_keep > -math.inf else 1.0, True))
-    structured, name, notes = _engine_series(block, metric, engine, "actual")
+    structured, name, notes = _engine_series(block, metric, engine, "actual", max_cycles)
     tw_block = twirled_circuit(block)
-    twirled, tw_name, tw_notes = _engine_series(tw_block, metric, engine, "twirled")
+    twirled, tw_name, tw_notes = _engine_series(tw_block, metric, engine, "twirled", max_cycles)
     series = {"naive": naive, "structured": structured, "twirled": twirled}
     switches: dict[str, int] = {}
     if engine == "auto" and block.num_qubits <= EXACT_FALLBACK_QUBITS:

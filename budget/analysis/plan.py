@@ -161,6 +161,8 @@ def _menu(label: tuple[str, str], a: float, value: float, sites: tuple[Probe, ..
 
 def _solve(menus: list[list[KnobSchedule]], diag: np.ndarray, budget: float, source: str) -> list[int]:
     """The MILP of the module docstring; returns the chosen option of each knob."""
+    if not menus:  # no coherent knob: nothing to schedule
+        return []
     sizes = [len(m) for m in menus]
     n = sum(sizes)
     cost = np.concatenate([[o.device_s for o in m] for m in menus])

@@ -44,6 +44,12 @@ FRAME = "frame"
 MAX_COMPILED_LAYERS = 20_000
 """Most executed layers one compiled copy may have (copies are unrolled)."""
 
+MAX_ENSEMBLE = 1000
+"""Most compiled copies: the mean's standard error is the spread over √N, so 1000 copies pin the
+mean to about 3 % of the spread (common practice, no source); each copy is a full engine run."""
+MAX_ENSEMBLE_LAYERS = 2_000_000
+"""Most executed layers summed over all copies (copies × layers per copy), the ensemble's work."""
+
 Progress = Callable[[int, int], None]
 """Called as progress(done, total) while an ensemble is computed."""
 
@@ -222,7 +228,17 @@ def ensemble(
         raise InputError(f"ensemble count = {count!r}: expected a whole number >= 1")
     if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
         raise InputError(f"seed = {seed!r}: expected a whole number >= 0")
+    if count > MAX_ENSEMBLE:
+        raise InputError(
+            f"ensemble count = {count}: at most {MAX_ENSEMBLE} copies (the mean's error, spread/√N, is then "
+            "about 3 % of the spread; each copy is a full engine run)"
+        )
     layers = sum(m for _, m in circuit.multiplicities())
+    if count * layers > MAX_ENSEMBLE_LAYERS:
+        raise TooLargeError(
+            f"ensemble of {count} copies x {layers:,} executed layers = {count * layers:,} layers to run; the "
+            f"limit is {MAX_ENSEMBLE_LAYERS:,}: use at most {max(1, MAX_ENSEMBLE_LAYERS // layers)} copies"
+        )
     if layers > MAX_COMPILED_LAYERS:
         raise TooLargeError(
             f"{circuit.source}: random compiling draws new frames in every repetition, so each copy "

@@ -16,10 +16,10 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary, circuit_fields
-from budget.analysis.select import choose_engine, escalate, first_order_shares
+from budget.analysis.select import choose, choose_engine, escalate, first_order_shares
 from budget.analysis.validity import run_in_range
 from budget.circuit.ir import StructuredCircuit
-from budget.engines.base import MEASURED_METRICS, METRICS
+from budget.engines.base import MEASURED_METRICS, METRICS, parse_observable
 from budget.errors.noisy import IDLE, NoisyCircuit
 from budget.problems import InputError
 
@@ -112,6 +112,8 @@ def analyze_noisy(
     if logical is not None and metric != "detectors":
         raise InputError(f"--logical: logical observables (parities of recorded bits) belong to the detectors metric; the {metric} "
                          "metric does not use them")
+    for label in observables:  # bad labels are refused before any engine runs
+        parse_observable(label, noisy.qubits)
     if metric in MEASURED_METRICS:
         from budget.analysis.measured import analyze_measured
 
@@ -124,7 +126,8 @@ def analyze_noisy(
         return dataclasses.replace(result, warnings=tuple(notes) + result.warnings)
 
     options = {"truncate": truncate} if truncate is not None else None
-    chosen = choose_engine(noisy, metric, engine, options=options)
+    choice = choose(noisy, metric, engine, options=options)
+    chosen = choice.engine
     outcome, switched = run_in_range(noisy, metric, chosen, engine, observables=tuple(observables))
     if (better := escalate(noisy, metric, engine, outcome)) is not None:
         switched = (*switched, f"auto: the {outcome.engine} engine's result rested on a cancellation; the exact engine ran instead")
@@ -174,7 +177,8 @@ def analyze_noisy(
         warnings=tuple(dict.fromkeys(warnings)),
         observables=observed,
         twirled_infidelity=twirled,
-        details=dict(outcome.details),
+        details={**outcome.details, "engine_choice": choice.reason if outcome.engine == chosen.name else
+                 f"{choice.reason}; then {outcome.engine} (the warnings say why)"},
         beyond_range=outcome.beyond_range,
         shares_known=shares_known,
     )

@@ -1,14 +1,26 @@
-"""Choosing an engine (``auto``) and splitting an engine's total into family shares.
+"""Choosing an engine (``auto``), the one place where refusals are worded, and family shares.
 
-``auto`` picks the most accurate engine that fits (design.md §4): ``exact`` when the dense
-simulation fits, else ``clifford`` when every ideal gate is Clifford (exact to first order, any
-size), else ``generators`` (unless it would need dense 4^n matrices on DENSE_SLOW_QUBITS or more
-qubits), else ``pauli`` (sparse Pauli propagation, any size, with a stated truncation bound). The result names the engine that ran.
-"""
+``auto`` weighs accuracy and estimated run time (design.md §4). AUTO_ORDER lists the engines from
+the most accurate: ``exact`` (to rounding), ``clifford`` (first order, resummed; Clifford gates
+only, any size), ``generators`` (first order, dense), ``pauli`` (first order, sparse Pauli
+propagation, any size, with a stated truncation bound). Among the engines that fit (their
+``fits``; the generators engine also steps aside from DENSE_SLOW_QUBITS qubits on when it would
+hold dense 4^n matrices, where the pauli engine is faster), auto takes the most accurate one whose
+estimated time (``estimate_seconds``, DEFAULT_ESTIMATE_S for an engine without one) is within
+TIME_BUDGET_S; when none is, the fastest one, provided it is within MAX_SECONDS; otherwise it
+refuses. :class:`Choice` keeps the engine and one line saying what was chosen and why. Every
+refusal is one line (size, limit, what would fit or what to change); the engines' own ``fits``
+reasons are short, and the limits are explained in docs/methods.md ("Engine reach").
+
+A new engine takes part by being listed in AUTO_ORDER at its accuracy rank and, ideally, by
+providing ``estimate_seconds(circuit, metric)``."""
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 from budget.engines import ENGINE_NAMES, Engine, EngineResult, get_engine
+from budget.engines.base import DEFAULT_ESTIMATE_S
 from budget.errors.noisy import NoisyCircuit
 from budget.circuit.ir import item_kind
 from budget.problems import InputError, TooLargeError, place
@@ -33,6 +45,23 @@ def _dense_is_slower(name: str, circuit: NoisyCircuit, metric: str) -> str | Non
     return None
 
 
+TIME_BUDGET_S = 10.0
+"""auto takes the most accurate engine estimated to finish within this time."""
+MAX_SECONDS = 60.0
+"""auto refuses when even the fastest engine that fits is estimated above this (the goal: every
+accepted circuit answered or refused within a minute on the development machine)."""
+DOCS = "docs/methods.md (engine reach)"
+
+
+@dataclass(frozen=True)
+class Choice:
+    """The engine to run and why, in one line (``reason``; shown in the terminal and the JSON)."""
+
+    engine: Engine
+    reason: str
+    estimate_s: float
+
+
 def _available(name: str) -> Engine | None:
     try:
         return get_engine(name)
@@ -40,17 +69,35 @@ def _available(name: str) -> Engine | None:
         return None
 
 
-def choose_engine(
-    circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: bool = False, options: dict | None = None
-) -> Engine:
-    """The engine to run: ``name`` itself (checked to fit), or the first of AUTO_ORDER that fits;
-    ``brief``: its :meth:`~budget.engines.base.Engine.brief` variant, for callers that read only
-    the totals and shares; ``options``: settings passed to the engine's ``configure`` when it has
-    one (e.g. ``{"truncate": 1e-8}`` for the pauli engine), ignored by engines without it.
+def estimate_seconds(engine: Engine, circuit: NoisyCircuit, metric: str) -> float:
+    """The engine's own estimate, or DEFAULT_ESTIMATE_S when it gives none."""
+    estimate = getattr(engine, "estimate_seconds", None)
+    return DEFAULT_ESTIMATE_S if estimate is None else float(estimate(circuit, metric))
+
+
+def _estimated(engine: Engine, t: float) -> str:
+    return f" (estimated {_seconds(t)})" if hasattr(engine, "estimate_seconds") else ""
+
+
+def _seconds(t: float) -> str:
+    return f"{t:.2g} s" if t < 90 else f"{t / 60:.2g} min" if t < 5400 else f"{t / 3600:.2g} h"
+
+
+def _size(circuit: NoisyCircuit, metric: str) -> str:
+    return f"{circuit.source}: {circuit.num_qubits} qubits, {metric} metric"
+
+
+def choose(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: bool = False,
+           order: tuple[str, ...] = AUTO_ORDER, options: dict | None = None) -> Choice:
+    """The engine to run: ``name`` itself (checked to fit), or auto's choice among ``order``
+    (see the module docstring); ``brief``: its :meth:`~budget.engines.base.Engine.brief` variant;
+    ``options``: settings passed to the engine's ``configure`` when it has one (e.g.
+    ``{"truncate": 1e-8}`` for the pauli engine), ignored by engines without it.
 
     Raises:
-        TooLargeError: the named engine (or every engine) cannot hold the circuit; the message
-            says why and which engine would fit.
+        InputError: unknown or unavailable engine name.
+        TooLargeError: the named engine, or every engine of ``order``, cannot take the circuit
+            (one line: size, limit, what would fit or what to change).
     """
     if metric in GATE_METRICS and circuit.has_mid_circuit:
         item = circuit.first_mid_circuit().item
@@ -66,31 +113,90 @@ def choose_engine(
             raise InputError(f"engine = {name!r}: not available in this installation")
         reason = engine.fits(circuit, metric)
         if reason is not None:
-            raise TooLargeError(f"engine {name}: {reason}")
-        return _configured(engine.brief() if brief else engine, options)
-    reasons = []
-    for candidate in AUTO_ORDER:
+            fitting = [c for c in order if c != name and (e := _available(c)) is not None and e.fits(circuit, metric) is None]
+            hint = (f"; {' or '.join(fitting)} fits (or --engine auto)" if fitting
+                    else _other_metric(circuit, metric, order))
+            raise TooLargeError(f"{_size(circuit, metric)}: engine {name}: {reason}{hint}")
+        t = estimate_seconds(engine, circuit, metric)
+        return Choice(_configured(engine.brief() if brief else engine, options), f"{name}, as asked{_estimated(engine, t)}", t)
+    fitting: list[tuple[str, Engine, float]] = []
+    refused: dict[str, str] = {}
+    for candidate in order:
         engine = _available(candidate)
         if engine is None:
             continue
         reason = engine.fits(circuit, metric) or _dense_is_slower(candidate, circuit, metric)
         if reason is None:
-            return _configured(engine.brief() if brief else engine, options)
-        reasons.append(f"{candidate}: {reason}")
-    raise TooLargeError(
-        f"{circuit.source}: no engine fits this {circuit.num_qubits}-qubit circuit for the "
-        f"{metric} metric ({'; '.join(reasons)})"
-    )
+            fitting.append((candidate, engine, estimate_seconds(engine, circuit, metric)))
+        else:
+            refused[candidate] = reason
+    if not fitting:
+        why = "; ".join(f"{k}: {v}" for k, v in refused.items()) or "none installed"
+        raise TooLargeError(f"{_size(circuit, metric)}: no engine fits ({why}){_other_metric(circuit, metric, order)}")
+    best = fitting[0]
+    skipped = []
+    for cand in fitting:
+        if cand[2] <= TIME_BUDGET_S:
+            best = cand
+            break
+        skipped.append(cand)
+    else:
+        best = min(fitting, key=lambda c: c[2])
+        skipped = [c for c in fitting if c is not best and order.index(c[0]) < order.index(best[0])]
+        if best[2] > MAX_SECONDS:
+            raise TooLargeError(
+                f"{_size(circuit, metric)}: the fastest engine that fits ({best[0]}) would take about "
+                f"{_seconds(best[2])}, over the {MAX_SECONDS:.0f} s limit of auto; name it with --engine to run "
+                "it anyway, or analyse fewer qubits"
+            )
+    name_, engine, t = best
+    more_accurate = [c for c in order[: order.index(name_)] if c in refused] + [c[0] for c in skipped]
+    why = f"auto chose {name_}{_estimated(engine, t)}"
+    if skipped:
+        why += "; " + ", ".join(f"{c[0]} would take about {_seconds(c[2])}" for c in skipped)
+        why += f" (budget {TIME_BUDGET_S:.0f} s)"
+    elif more_accurate:
+        why += f"; {', '.join(more_accurate)} does not fit"
+    else:
+        why += ", the most accurate engine that fits"
+    return Choice(_configured(engine.brief() if brief else engine, options), why, t)
+
+
+def _other_metric(circuit: NoisyCircuit, metric: str, order: tuple[str, ...]) -> str:
+    """What to change, for a refusal: the other metric when an engine fits it, else the docs."""
+    other = "state" if metric == "process" else "process"
+    if any((e := _available(c)) is not None and e.fits(circuit, other) is None for c in order):
+        return f"; the {other} metric fits (--metric {other})"
+    return f"; see {DOCS}"
+
+
+def check_time(circuit: NoisyCircuit, metric: str, engine: Engine, *, runs: int, what: str) -> None:
+    """Refuse (one line) work of ``runs`` runs of ``engine`` on ``circuit`` estimated above
+    MAX_SECONDS, for callers that run an engine several times (``what``: e.g. "the depth curves")."""
+    t = runs * estimate_seconds(engine, circuit, metric)
+    if t > MAX_SECONDS:
+        raise TooLargeError(
+            f"{_size(circuit, metric)}: {what} would take about {_seconds(t)} with the {engine.name} engine, over "
+            f"the {MAX_SECONDS:.0f} s limit{_other_metric(circuit, metric, AUTO_ORDER).replace(' fits (', ' may be faster (')}"
+        )
+
+
+def choose_engine(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: bool = False,
+                  options: dict | None = None) -> Engine:
+    """The engine :func:`choose` picks (callers that need no reason)."""
+    return choose(circuit, metric, name, brief=brief, options=options).engine
 
 
 def escalate(circuit: NoisyCircuit, metric: str, requested: str, outcome: EngineResult) -> Engine | None:
     """For ``auto``: the exact engine, when a first-order engine's result rests on a cancellation
     (``details["rests_on_cancellation"]``, budget/engines/_validity.py) and the exact engine
-    fits; else None. The caller runs it and says so."""
+    fits and is estimated within MAX_SECONDS; else None. The caller runs it and says so."""
     if requested != "auto" or outcome.engine == "exact" or not outcome.details.get("rests_on_cancellation"):
         return None
     exact = _available("exact")
-    return exact if exact is not None and exact.fits(circuit, metric) is None else None
+    if exact is None or exact.fits(circuit, metric) is not None or estimate_seconds(exact, circuit, metric) > MAX_SECONDS:
+        return None
+    return exact
 
 
 def _configured(engine: Engine, options: dict | None) -> Engine:
@@ -107,13 +213,18 @@ def first_order_shares(
     The split between families comes from the leading-order decomposition (coherent amplitudes
     per family, cross terms included); its overall size is set to the engine's actual value.
     Returns the shares and a note when no first-order engine fits or the one that fits is beyond
-    its range (then no shares: a split of that engine would be a number outside its meaning).
+    its range (then no shares: a split of that engine would be a number outside its meaning);
+    nothing to split (and no note) when ``total`` is zero.
     """
+    if not total > 0:
+        return {}, None
     for candidate in ("generators", "clifford"):
         if candidate == exclude:
             continue
         engine = _available(candidate)
         if engine is None or engine.fits(circuit, metric) is not None:
+            continue
+        if estimate_seconds(engine, circuit, metric) > MAX_SECONDS:
             continue
         fo = engine.brief().run(circuit, metric)
         if fo.beyond_range is not None:
@@ -123,4 +234,4 @@ def first_order_shares(
         if s > 0:
             return {k: v * total / s for k, v in fo.shares.items()}, None
         return dict(fo.shares), None
-    return {}, "family shares unavailable: no first-order engine fits this circuit"
+    return {}, "family shares unavailable: no first-order engine fits this circuit within the time limit"

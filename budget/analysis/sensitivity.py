@@ -25,8 +25,10 @@ import dataclasses
 from dataclasses import dataclass
 import numpy as np
 
+from budget.analysis.select import choose
 from budget.engines.base import QuadraticForm
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyItem, NoisyLayer, NoisyRepeat
+from budget.problems import InputError
 
 FORM_ENGINES = ("clifford", "generators", "pauli")
 """Engines that build the quadratic form, in the order ``"auto"`` tries them (clifford first: any
@@ -34,15 +36,13 @@ size when every gate is Clifford; pauli last: any gate, any size, sparse)."""
 
 
 def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto", detector: int | None = None) -> QuadraticForm:
-    """The quadratic form e ≈ δᵀAδ + s of a noisy circuit, from the first engine that fits.
+    """The quadratic form e ≈ δᵀAδ + s of a noisy circuit, from the engine auto's rule picks among
+    FORM_ENGINES (:func:`budget.analysis.select.choose`), or the one named.
 
     Raises:
-        TooLargeError: no engine that builds quadratic forms fits (the message gives each reason).
+        TooLargeError: no engine that builds quadratic forms fits, or fits in time (one line).
         InputError: ``engine`` is not one of ``"auto"`` and :data:`FORM_ENGINES`.
     """
-    from budget.engines import get_engine
-    from budget.problems import InputError, TooLargeError
-
     if metric == "detectors":
         from budget.analysis.measured_form import detector_quadratic_form
 
@@ -57,17 +57,7 @@ def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto", 
         raise InputError(f"detector = {detector!r}: a target on one detector needs the detectors metric")
     if engine != "auto" and engine not in FORM_ENGINES:
         raise InputError(f"engine = {engine!r}: quadratic forms come from {', '.join(FORM_ENGINES)} (or auto)")
-    reasons = []
-    for name in FORM_ENGINES if engine == "auto" else (engine,):
-        try:
-            candidate = get_engine(name)
-        except ImportError:  # an engine module missing from this installation
-            continue
-        reason = candidate.fits(circuit, metric)
-        if reason is None:
-            return candidate.quadratic_form(circuit, metric)
-        reasons.append(f"{name}: {reason}")
-    raise TooLargeError(f"{circuit.source}: no engine can build the quadratic form ({'; '.join(reasons) or 'none installed'})")
+    return choose(circuit, metric, engine, order=FORM_ENGINES).engine.quadratic_form(circuit, metric)
 
 
 def knob_key(label: tuple[str, str]) -> str:

@@ -24,7 +24,7 @@ from budget.circuit.decompose import expand
 from budget.circuit.gates import ideal_unitary
 from budget.circuit.ir import Measure, Operation, Reset, StructuredCircuit
 from budget.circuit.program import Barrier, Conditional, Loop, Statement, final_readout
-from budget.circuit.source import read_text
+from budget.circuit.source import check_qubit_count, read_text, require_content
 from budget.graph import layer_program
 from budget.problems import CircuitSyntaxError, InputError, place
 
@@ -97,6 +97,7 @@ def from_cirq(circuit: cirq.AbstractCircuit, source: str = "<cirq.Circuit>") -> 
     """
     if not isinstance(circuit, cirq.AbstractCircuit):
         raise TypeError(f"from_cirq expects a cirq.Circuit, got {type(circuit).__name__}")
+    check_qubit_count(len(circuit.all_qubits()), source)
     qubits = sorted(circuit.all_qubits())
     names = [str(q) for q in qubits]
     if len(set(names)) != len(names):
@@ -104,7 +105,7 @@ def from_cirq(circuit: cirq.AbstractCircuit, source: str = "<cirq.Circuit>") -> 
         raise InputError(f"{source}: two qubits share the display name {dup[0]!r}; rename one")
     conv = _Converter({q: i for i, q in enumerate(qubits)}, source)
     program, measured = final_readout(conv.circuit(circuit, "", repeated=False))
-    return layer_program(program, qubits=names, measured=measured, source=source)
+    return require_content(layer_program(program, qubits=names, measured=measured, source=source))
 
 
 def read_cirq_json(path: str | Path) -> StructuredCircuit:

@@ -26,7 +26,7 @@ from budget.circuit.qasm_classical import Bits
 from budget.circuit.qasm_expr import Number, evaluate, line_of
 from budget.circuit.qasm_parse import parse_tree, qasm_version
 from budget.circuit.qasm_registers import Registers
-from budget.circuit.source import read_text
+from budget.circuit.source import read_text, require_content
 from budget.graph import layer_program
 from budget.problems import CircuitSyntaxError, place
 
@@ -85,7 +85,7 @@ def parse_qasm(text: str, *, source: str = "<string>") -> StructuredCircuit:
     reader = _Reader(source, text.splitlines())
     program = reader.statements(parse_tree(text, source=source, version=version).statements, in_loop=False)
     program, measured = final_readout(program)
-    return layer_program(program, qubits=reader.regs.names, measured=measured, source=source)
+    return require_content(layer_program(program, qubits=reader.regs.names, measured=measured, source=source))
 
 
 class _Reader:
@@ -367,7 +367,14 @@ class _Reader:
             step = 1 if it.step is None else self.regs.integer(it.step, "for loop range step")
             if step == 0:
                 raise self.error(st, "for loop range step is 0")
-            return len(range(start, end + (1 if step > 0 else -1), step))
+            count = len(range(start, end + (1 if step > 0 else -1), step))
+            if count == 0:
+                raise self.error(
+                    st,
+                    f"for loop range [{start}:{'' if it.step is None else f'{step}:'}{end}] is empty (0 iterations): the end must be reached "
+                    "from the start by the step (a negative step counts down, e.g. [5:-1:1])",
+                )
+            return count
         raise self.error(st, "for loop over something other than an integer range or {set} is not supported")
 
 

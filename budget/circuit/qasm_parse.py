@@ -83,6 +83,8 @@ def parse_tree(text: str, *, source: str, version: int = 3) -> ast.Program:
     Raises:
         CircuitSyntaxError: ``source:line: syntax error ...`` at the first error.
     """
+    if not _strip_comments(text).strip():
+        raise CircuitSyntaxError(f"{source}: only comments and blank lines: expected an OpenQASM program")
     fixed = _UNTYPED_FOR.sub(lambda m: f"for{m.group(1)}int {m.group(2)}{m.group(3)}in", text)
     if version == 2:
         fixed = fixed.replace("^", "**")

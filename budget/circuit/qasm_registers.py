@@ -7,6 +7,7 @@ from typing import Iterator
 from openqasm3 import ast
 
 from budget.circuit.qasm_expr import Number, evaluate_int, line_of
+from budget.circuit.source import check_qubit_count
 from budget.problems import CircuitSyntaxError, place
 
 
@@ -47,6 +48,7 @@ class Registers:
         if size is not None and size < 1:
             raise self.error(node, f"qubit register '{name}' has size {size}: expected at least 1")
         start = len(self.names)
+        check_qubit_count(start + (1 if size is None else size), f"{place(self.source, line_of(node))}: register '{name}'")
         if size is None:
             self.names.append(name)
             self.table[name] = ([start], False)

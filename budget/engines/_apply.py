@@ -50,6 +50,12 @@ class LocalOp:
         return LocalOp(self.matrix.conj(), self.qubits, None if self.diagonal is None else self.diagonal.conj())
 
 
+def as_rows(a: np.ndarray) -> np.ndarray:
+    """``a`` of shape (J, ...) as a (J, prod(...)) matrix, also when J = 0 (where
+    ``reshape(J, -1)`` cannot infer the row length)."""
+    return a.reshape(a.shape[0], int(np.prod(a.shape[1:], dtype=np.int64)))
+
+
 def _rows_times(rows: np.ndarray, m: np.ndarray) -> np.ndarray:
     """rows @ m in slices small enough that BLAS stays single-threaded (a threaded product of a
     tall thin matrix is far slower on a busy machine)."""

@@ -22,7 +22,7 @@ from typing import Callable, Iterable
 
 import numpy as np
 
-from budget.engines._apply import LocalOp, embed, fuse
+from budget.engines._apply import LocalOp, as_rows, embed, fuse
 from budget.errors.fidelity import pauli_labels, pauli_matrix, pauli_sum
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
 
@@ -59,7 +59,7 @@ class JumpSet:
     @cached_property
     def stacked(self) -> np.ndarray:
         """(L_1..L_J, L†L_1..L†L_J) flattened, shape (2J, dq²)."""
-        return np.concatenate([self.operators, self.decay]).reshape(2 * len(self.rates), -1)
+        return as_rows(np.concatenate([self.operators, self.decay]))
 
 
 @dataclass(frozen=True)

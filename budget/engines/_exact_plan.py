@@ -158,54 +158,22 @@ def _size(num_bytes: float) -> str:
 
 
 _WHAT = {
-    "vector": "a state vector (coherent errors only)",
-    "unitary": "the d x d unitary (coherent errors only)",
-    "density": "a density matrix (incoherent errors present)",
-    "superop": "the 4^n x 4^n superoperator (incoherent errors present)",
-}
-_NOTE = {
-    "superop": " The superoperator is the Choi state of the doubled 2n-qubit system, so with incoherent "
-    "errors the process metric reaches half as many qubits as the state metric.",
+    "vector": "state vector",
+    "unitary": "unitary",
+    "density": "density matrix",
+    "superop": "superoperator",
 }
 
 
 def refusal(circuit: NoisyCircuit, metric: str, plan: Plan) -> str | None:
-    """None when the plan fits the limits, else one message: qubit count, limit, memory, and the
-    engines that would fit."""
+    """None when the plan fits the limits, else a short reason: what would be held, its size and
+    the limit (the limits are explained in docs/methods.md, "Engine reach"; which engine fits
+    instead is said by :mod:`budget.analysis.select`)."""
     n = circuit.num_qubits
-    head = f"{n}-qubit circuit, {metric} metric: the exact engine holds {_WHAT[plan.form]}"
-    if n > plan.max_qubits or plan.memory_bytes > MEMORY_LIMIT_BYTES:
-        return (
-            f"{head} up to {plan.max_qubits} qubits and {_size(MEMORY_LIMIT_BYTES)}; this one would "
-            f"need {'' if math.isinf(plan.memory_bytes) else 'about '}{_size(plan.memory_bytes)}."
-            f"{_NOTE.get(plan.form, '')} {other_engines(circuit, metric)}"
-        )
+    if n > plan.max_qubits:
+        return f"{_WHAT[plan.form]}, limit {plan.max_qubits} qubits"
+    if plan.memory_bytes > MEMORY_LIMIT_BYTES:
+        return f"{_WHAT[plan.form]} needs about {_size(plan.memory_bytes)} (limit {_size(MEMORY_LIMIT_BYTES)})"
     if plan.work > WORK_LIMIT:
-        return (
-            f"{head}, but this one needs about {plan.work:.2g} complex multiply-adds (limit "
-            f"{WORK_LIMIT:.0e}): repeated blocks on {n} qubits are unrolled because their block matrix "
-            f"({plan.site_dim}^{n} wide) is above {POWER_MAX_DIM}. {other_engines(circuit, metric)}"
-        )
+        return f"about {plan.work:.2g} multiply-adds (limit {WORK_LIMIT:.0e}; blocks over {POWER_MAX_DIM} wide are unrolled)"
     return None
-
-
-def other_engines(circuit: NoisyCircuit, metric: str) -> str:
-    """Which other engines would take the circuit, in words (asks each engine's ``fits``)."""
-    from budget.engines import ENGINE_NAMES, get_engine
-
-    said = []
-    for name in ENGINE_NAMES:
-        if name == "exact":
-            continue
-        try:
-            reason = get_engine(name).fits(circuit, metric)
-        except Exception:  # a missing or broken engine must not hide this message
-            continue
-        if reason is None:
-            said.append(f"the {name} engine fits it")
-        elif name == "clifford":
-            said.append("clifford fits when every gate is Clifford")
-        else:
-            said.append(f"the {name} engine does not fit either ({reason})")
-    text = "; ".join(said) or "no other engine of this tool is available"
-    return text[0].upper() + text[1:] + "."

@@ -20,7 +20,7 @@ from typing import Sequence
 
 import numpy as np
 
-from budget.engines._apply import apply
+from budget.engines._apply import apply, as_rows
 from budget.engines._dense import ContentOf, DensePropagator
 from budget.engines.periodic import frequency_count, repeated_means, repeated_squares, state_components
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
@@ -39,7 +39,7 @@ def local_gram(x: np.ndarray, qubits: tuple[int, ...], num_qubits: int) -> np.nd
     """
     m, k = x.shape[0], len(qubits)
     t = np.moveaxis(x.reshape((m,) + (2,) * num_qubits), [1 + q for q in qubits], list(range(1, 1 + k)))
-    t = t.reshape(m * 2**k, -1)
+    t = t.reshape(m * 2**k, 2 ** (num_qubits - k))
     return (t.conj() @ t.T).reshape(m, 2**k, m, 2**k)
 
 
@@ -47,7 +47,7 @@ def matrix_elements(gram: np.ndarray, ops: np.ndarray) -> np.ndarray:
     """a[j, c, c'] = <x_c|ops_j|x_c'> from a :func:`local_gram`."""
     m, dq = gram.shape[0], gram.shape[1]
     g2 = gram.transpose(0, 2, 1, 3).reshape(m * m, dq * dq)
-    return (ops.reshape(ops.shape[0], -1) @ g2.T).reshape(ops.shape[0], m, m)
+    return (as_rows(ops) @ g2.T).reshape(ops.shape[0], m, m)
 
 
 def _add(acc: dict[str, float], families: Sequence[str], values: np.ndarray, weight: float = 1.0) -> None:

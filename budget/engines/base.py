@@ -12,12 +12,14 @@ Metrics (design.md §3):
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
-from typing import Literal, Protocol
+from typing import Literal, Protocol, Sequence
 
 import numpy as np
 
 from budget.errors.noisy import NoisyCircuit
+from budget.problems import InputError
 
 Metric = Literal["process", "state"]
 METRICS: tuple[str, ...] = ("process", "state")
@@ -90,6 +92,15 @@ def zero_result(engine: str, metric: str, observables: tuple[str, ...] = (), *, 
     )
 
 
+MULTIPLY_ADDS_PER_S = 3e8
+"""Complex multiply-adds per second of the dense engines on the 2-core development machine with one
+BLAS thread per process and other work running beside it (measured: a 6-qubit superoperator of
+8e9 estimated multiply-adds took 33 s; docs/benchmarks.md). Engines' :meth:`Engine.estimate_seconds`
+turn their work counts into seconds with it."""
+DEFAULT_ESTIMATE_S = 1.0
+"""Seconds assumed for an engine that gives no estimate of its own."""
+
+
 class Engine(Protocol):
     """What every engine provides."""
 
@@ -104,33 +115,49 @@ class Engine(Protocol):
         """Compute the metric (and the errors of the named Pauli observables, when the engine
         supports them); raises TooLargeError if :meth:`fits` would refuse."""
 
+    def estimate_seconds(self, circuit: NoisyCircuit, metric: Metric) -> float:
+        """Optional: the estimated run time in seconds on this machine (``auto`` compares them;
+        an engine without it counts as :data:`DEFAULT_ESTIMATE_S`). Must not allocate."""
+
     def brief(self) -> "Engine":
         """The same engine without optional extras that cost time but do not change the totals
         and shares (the clifford engine's per-qubit map), for callers that read only those."""
 
 
-def parse_observable(label: str, num_qubits: int) -> dict[int, str]:
-    """A Pauli observable written as letters with qubit indices, ``"Z0Z1"`` or ``"X3 Y4"``.
+def parse_observable(label: str, qubits: int | Sequence[str]) -> dict[int, str]:
+    """A Pauli observable: letters with qubit indices (``"Z0Z1"``, ``"X3 Y4"``) or with the
+    circuit's qubit names in parentheses (``"Z(q[0])Z(q[1])"``, ``"X(anc[2])"``).
 
-    Returns qubit index -> Pauli letter. Raises ValueError naming the label and the rule.
+    ``qubits`` is the number of qubits or the circuit's qubit names (index = position); names
+    need the latter. Returns qubit index -> Pauli letter. Raises InputError naming the label and
+    the rule.
 
     >>> parse_observable("Z0Z1", 2)
     {0: 'Z', 1: 'Z'}
+    >>> parse_observable("Z(q[1]) X(q[0])", ("q[0]", "q[1]"))
+    {1: 'Z', 0: 'X'}
     """
-    import re
-
+    names = tuple(qubits) if not isinstance(qubits, int) else ()
+    count = qubits if isinstance(qubits, int) else len(names)
     text = label.replace(" ", "").replace("*", "")
-    parts = re.findall(r"([XYZ])(\d+)", text)
-    if not parts or "".join(a + b for a, b in parts) != text:
-        raise ValueError(
-            f"observable {label!r}: expected Pauli letters with qubit indices, such as 'Z0Z1' or 'X3'"
+    parts = re.findall(r"([XYZ])(?:(\d+)|\(([^()]+)\))", text)
+    if not parts or "".join(a + (f"({c})" if c else b) for a, b, c in parts) != text:
+        raise InputError(
+            f"observable {label!r}: expected Pauli letters X, Y, Z with qubit indices or qubit names, "
+            "such as 'Z0Z1' or 'Z(q[0])Z(q[1])'"
         )
     out: dict[int, str] = {}
-    for letter, idx in parts:
-        q = int(idx)
-        if q >= num_qubits:
-            raise ValueError(f"observable {label!r}: qubit {q} is not in the circuit ({num_qubits} qubits)")
+    for letter, idx, name in parts:
+        if name:
+            if name not in names:
+                shown = ", ".join(names[:4]) + (", ..." if len(names) > 4 else "")
+                raise InputError(f"observable {label!r}: no qubit named {name!r} in the circuit ({shown})")
+            q = names.index(name)
+        else:
+            q = int(idx)
+        if q >= count:
+            raise InputError(f"observable {label!r}: qubit {q} is not in the circuit (qubits 0 to {count - 1})")
         if q in out:
-            raise ValueError(f"observable {label!r}: qubit {q} appears twice")
+            raise InputError(f"observable {label!r}: qubit {q} appears twice")
         out[q] = letter
     return out

@@ -43,7 +43,7 @@ from budget.engines._validity import (
 from budget.engines._walk import MAX_UNROLLED, ORBIT_BABY, Walker
 from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.errors.noisy import NoisyCircuit
-from budget.problems import InputError, TooLargeError, place
+from budget.problems import TooLargeError
 
 SMALL = 0.1
 """First-order infidelity above which the engine warns that the expansion is no longer small."""
@@ -116,10 +116,8 @@ class CliffordEngine:
             return None
         angles = f"({', '.join(f'{a:.6g}' for a in op.params)})" if op.params else ""
         names = ", ".join(circuit.qubits[q] for q in op.qubits)
-        return (
-            f"{place(circuit.source, op.line)}: gate {op.label or op.gate}{angles} on {names} is not "
-            "Clifford (angles must be multiples of π/2); use the generators or exact engine"
-        )
+        where = f"line {op.line}: " if op.line is not None else ""
+        return f"{where}{op.label or op.gate}{angles} on {names} is not Clifford"
 
     def brief(self) -> "CliffordEngine":
         """The same engine without the per-qubit map (often the costliest part of a run)."""
@@ -135,7 +133,7 @@ class CliffordEngine:
     def _check(self, circuit: NoisyCircuit, metric: Metric) -> None:
         reason = self.fits(circuit, metric)
         if reason is not None:
-            raise TooLargeError(f"engine clifford: {reason}")
+            raise TooLargeError(f"{circuit.source}: engine clifford: {reason}")
 
     def _pass(self, circuit: NoisyCircuit, metric: str, plans: dict, *, grouping=None, labels=(), second: bool = False):
         """One walk; ``second``: also the second-order terms (period folds only, no orbit fold;
@@ -320,10 +318,7 @@ class CliffordEngine:
         ``prune`` is False; observables whose cone is the whole circuit share one walk.
         """
         prune = self.prune_observables if prune is None else prune
-        try:
-            parsed = {label: parse_observable(label, circuit.num_qubits) for label in labels}
-        except ValueError as err:
-            raise InputError(f"{circuit.source}: {err}") from None
+        parsed = {label: parse_observable(label, circuit.qubits) for label in labels}
         out: dict[str, float] = {}
         whole: list[str] = []
         for label, paulis in parsed.items():

@@ -42,7 +42,7 @@ from budget.engines._exact_plan import REPEAT_MODES, make_plan, refusal
 from budget.engines._exact_power import channel_power, unitary_power
 from budget.engines._exact_readout import expectation, from_pauli, infidelity
 from budget.engines._exact_register import Fuser, Register
-from budget.engines.base import METRICS, EngineResult, Metric, parse_observable, zero_result
+from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, EngineResult, Metric, parse_observable, zero_result
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
 from budget.problems import TooLargeError
 
@@ -155,6 +155,10 @@ class ExactEngine:
             return circuit.mid_circuit_reason()
         return refusal(circuit, metric, make_plan(circuit, metric, self.repeats))
 
+    def estimate_seconds(self, circuit: NoisyCircuit, metric: Metric) -> float:
+        """Estimated run time: the plan's multiply-adds (:func:`make_plan`) at MULTIPLY_ADDS_PER_S."""
+        return make_plan(circuit, metric, self.repeats).work / MULTIPLY_ADDS_PER_S
+
     def brief(self) -> "ExactEngine":
         """This engine (it has no optional extras to skip)."""
         return self
@@ -165,11 +169,11 @@ class ExactEngine:
         if metric not in METRICS:
             raise ValueError(f"metric {metric!r}: expected one of {', '.join(METRICS)}")
         n = circuit.num_qubits
-        parsed = {label: parse_observable(label, n) for label in observables}
+        parsed = {label: parse_observable(label, circuit.qubits) for label in observables}
         plan = make_plan(circuit, metric, self.repeats)
         reason = refusal(circuit, metric, plan)
         if reason is not None:
-            raise TooLargeError(f"engine exact: {reason}")
+            raise TooLargeError(f"{circuit.source}: engine exact: {reason}")
         if not circuit.has_errors:
             return zero_result(self.name, metric, observables, first_order=None)
         ideal_runner = _Runner(n, 2, lambda nop: gate_unitary(nop, ideal=True), None, plan.ideal_powered)

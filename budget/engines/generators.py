@@ -29,7 +29,7 @@ from typing import Hashable, Sequence
 
 import numpy as np
 
-from budget.circuit.clifford_check import first_non_clifford
+from budget.engines._apply import as_rows
 from budget.engines._channels import by_family, content_cache
 from budget.engines._dense import DensePropagator
 from budget.engines._jumps import StateJumps
@@ -38,10 +38,10 @@ from budget.engines._krylov import expm_apply
 from budget.engines._observables import IncoherentObservables, observable_vector
 from budget.engines._states import StatePath
 from budget.engines._validity import cancellation_note, second_order_share, term_norm_sum, validity_details
-from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
+from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.engines.depth import DepthCurve, depth_curve
 from budget.engines.periodic import coherent_infidelity
-from budget.errors.noisy import NoisyCircuit
+from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.problems import TooLargeError
 
 MAX_DENSE_QUBITS = 11
@@ -86,11 +86,9 @@ def _needs_dense(circuit: NoisyCircuit, metric: str, observables: tuple[str, ...
     return metric == "process" or circuit.has_repeats or (bool(observables) and circuit.has_incoherent)
 
 
-def _alternative(circuit: NoisyCircuit) -> str:
-    ops = [nop.op for layer in circuit.distinct_layers() for nop in layer.operations]
-    if first_non_clifford(ops) is None:
-        return "every gate is Clifford, so the clifford engine fits"
-    return "no engine of this tool holds it unless every gate is Clifford (then the clifford engine)"
+def _count_repeats(items) -> int:
+    """Repeated blocks as written (each body's Schur basis is computed once)."""
+    return sum(1 + _count_repeats(it.body) for it in items if isinstance(it, NoisyRepeat))
 
 
 def range_note(stochastic: float, coherent: float) -> str | None:
@@ -122,7 +120,7 @@ class GeneratorsEngine:
         self.second_order = second_order
 
     def fits(self, circuit: NoisyCircuit, metric: Metric, observables: tuple[str, ...] = ()) -> str | None:
-        """None when the circuit fits, else the reason (qubits, limit, memory, engine that fits)."""
+        """None when the circuit fits, else a short reason (what is held, qubits, limit)."""
         if metric not in METRICS:
             return f"metric {metric!r} is not one of {', '.join(METRICS)}"
         if circuit.has_mid_circuit:
@@ -130,19 +128,33 @@ class GeneratorsEngine:
         n = circuit.num_qubits
         if _needs_dense(circuit, metric, observables):
             if n > MAX_DENSE_QUBITS:
-                mb = 16 * 4**n / 2**20
-                why = "the process metric" if metric == "process" else "repeated blocks or observables"
-                return (
-                    f"{n} qubits: for {why} the generators engine holds dense 2^{n} x 2^{n} matrices "
-                    f"({mb:.0f} MB each, several per gate family) and stops at {MAX_DENSE_QUBITS} "
-                    f"qubits; {_alternative(circuit)}"
-                )
+                return f"dense matrices, limit {MAX_DENSE_QUBITS} qubits"
         elif n > MAX_STATE_QUBITS:
-            return (
-                f"{n} qubits: the generators engine holds state vectors up to {MAX_STATE_QUBITS} "
-                f"qubits ({16 * 2**MAX_STATE_QUBITS / 2**20:.0f} MB each); {_alternative(circuit)}"
-            )
+            return f"state vectors, limit {MAX_STATE_QUBITS} qubits"
         return None
+
+    def estimate_seconds(self, circuit: NoisyCircuit, metric: Metric) -> float:
+        """Estimated run time, from counted multiply-adds (nothing is allocated).
+
+        Dense path (process metric, repeats): each gate conjugates every group's d x d matrix,
+        G · 4^n · 2^(k+1) per gate of k qubits; each repeated body adds its Schur decomposition and
+        the periodic sums, about (40 + 6 G) d³; the final spectrum about 10 d³. State vectors:
+        G · 2^n · 2^k per gate, times the Lanczos passes (about 30). G counts the families with
+        a Hamiltonian error (at least 1).
+        """
+        n = circuit.num_qubits
+        layers = circuit.distinct_layers()
+        groups = max(1, len({nop.family for layer in layers for nop in layer.operations if nop.hamiltonian}))
+        gates = sum(2 ** len(nop.qubits) for layer in layers for nop in layer.operations)
+        ops = sum(len(layer.operations) for layer in layers)
+        repeats = _count_repeats(circuit.body)
+        overhead = 3e4 * ops  # Python work per operation, in multiply-adds (as the exact engine counts it)
+        if _needs_dense(circuit, metric):
+            d = float(2**n)
+            work = groups * d * d * 2 * gates + repeats * (40 + 6 * groups) * d**3 + 10 * d**3 + overhead
+        else:
+            work = 30 * groups * float(2**n) * gates + overhead
+        return work / MULTIPLY_ADDS_PER_S
 
     def brief(self) -> "GeneratorsEngine":
         """This engine (it has no optional extras to skip)."""
@@ -311,7 +323,7 @@ class GeneratorsEngine:
         inc = IncoherentObservables(n, content_of, dense)
         out = {}
         for label in labels:
-            letters = parse_observable(label, n)
+            letters = parse_observable(label, circuit.qubits)
             ideal = np.vdot(psi, observable_vector(letters, psi, n)).real
             err = np.vdot(chi, observable_vector(letters, chi, n)).real - ideal
             if circuit.has_incoherent:
@@ -344,16 +356,21 @@ class GeneratorsEngine:
         keys: list[Hashable] = list(values)
         if metric == "process":
             block = dense.block(circuit.body, with_unitary=False)
-            k = np.array([block.group(key) if key in block.keys else np.zeros((2**n, 2**n)) for key in keys])
             d = 2**n
-            flat = k.reshape(len(keys), -1)
-            tr = np.trace(k, axis1=1, axis2=2).real / d if len(keys) else np.zeros(0)
+            k = np.zeros((len(keys), d, d), dtype=complex)  # no knob at all: an empty form
+            for i, key in enumerate(keys):
+                if key in block.keys:
+                    k[i] = block.group(key)
+            flat = as_rows(k)
+            tr = np.trace(k, axis1=1, axis2=2).real / d
             a = (flat.conj() @ flat.T).real / d - np.outer(tr, tr)
         else:
             path = StatePath(circuit, content_of, dense)
             psi = path.final_state()
             phis = path.group_vectors()
-            v = np.array([phis.get(key, np.zeros(2**n, dtype=complex)) for key in keys]).reshape(len(keys), -1)
+            v = np.zeros((len(keys), 2**n), dtype=complex)
+            for i, key in enumerate(keys):
+                v[i] = phis.get(key, 0.0)
             means = (v @ psi.conj()).real
             a = (v.conj() @ v.T).real - np.outer(means, means)
         family_content = content_cache(n, by_family)

@@ -29,6 +29,8 @@ from typing import NamedTuple, Sequence
 import numpy as np
 import scipy.linalg
 
+from budget.engines._apply import as_rows
+
 DEGENERACY_TOL_RAD = 1e-9
 """Quasi-energies (and frequency differences) closer than this are treated as equal."""
 
@@ -364,7 +366,7 @@ def repeated_squares(a: np.ndarray, energies: np.ndarray, counts: Sequence[int])
     labels, freqs = _pair_frequencies(energies)
     f = len(freqs)
     c = np.zeros((a.shape[0], f), dtype=complex)
-    np.add.at(c.T, labels, a.reshape(a.shape[0], -1).T)
+    np.add.at(c.T, labels, as_rows(a).T)
     out = []
     for n in counts:
         kernel = geometric_sum(freqs[:, None] - freqs[None, :], int(n))

@@ -39,7 +39,7 @@ from budget.errors.noisy import (
     Relaxation,
 )
 from budget.errors.params import GateParams
-from budget.problems import ModelError
+from budget.problems import ModelError, TooLargeError
 
 FamilyBy = Literal["gate", "pair"]
 
@@ -74,6 +74,7 @@ def attach(
         raise ValueError(f"family_by = {family_by!r}: expected 'gate' or 'pair'")
     if check_qubits:
         _check_qubits(circuit, model)
+    _check_size(circuit)
     attacher = _Attacher(circuit, model, family_by)
     body, last = attacher.items(circuit.body, None)
     later = None
@@ -84,6 +85,28 @@ def attach(
     measured = circuit.measured or tuple(range(circuit.num_qubits))
     readout = {q: model.qubit(circuit.qubits[q]).readout_error for q in measured}
     return NoisyCircuit(circuit.qubits, body, readout, circuit.source, later)
+
+
+MAX_IDLE_SLOTS = 20_000_000
+"""Most (qubit, written layer) pairs attached: every qubit gets an idle slot in every layer as
+written (repeats folded), which costs memory and time in proportion (about 10 s per 10^7 on the
+development machine)."""
+
+
+def _written_layers(items: tuple) -> int:
+    """Layers as written (repeats folded); other items (measurements, resets) count as one."""
+    return sum(_written_layers(it.body) if isinstance(getattr(it, "body", None), tuple) else 1 for it in items)
+
+
+def _check_size(circuit: StructuredCircuit) -> None:
+    """Refuse, before attaching, a circuit whose idle slots alone would exceed MAX_IDLE_SLOTS."""
+    layers = _written_layers(circuit.body)
+    if circuit.num_qubits * layers > MAX_IDLE_SLOTS:
+        raise TooLargeError(
+            f"{circuit.source}: {circuit.num_qubits} qubits x {layers} layers as written = "
+            f"{circuit.num_qubits * layers:.3g} idle slots; the limit is {MAX_IDLE_SLOTS:.0e}: write repeated "
+            "parts as for loops, or analyse fewer qubits"
+        )
 
 
 _INDEXED = re.compile(r"^(.*?)([\[(])\s*\d+(\s*,\s*\d+)*\s*[\])]$")

@@ -133,6 +133,8 @@ def render_budget(result: BudgetResult) -> Group:
         f"  ·  {result.cycles:,} cycle(s)" if result.cycles != 1 else "",
     )
     parts: list = [head, Text(""), summary_table(result), verdict_text(result)]
+    if result.details.get("engine_choice"):
+        parts.append(Text(f"engine: {result.details['engine_choice']}", style="dim"))
     if result.metric == "state":
         parts.append(Text(
             "note: the fidelity product uses process fidelities, as a spreadsheet would; for the "
