@@ -32,7 +32,7 @@ sys.path.insert(0, str(ROOT / "tests"))
 
 from pauli_cases import ising, ising_model, ising_qasm  # noqa: E402
 
-from budget.engines.generators import GeneratorsEngine  # noqa: E402
+from budget.engines.generators.engine import GeneratorsEngine  # noqa: E402
 from budget.engines.pauli import PauliEngine  # noqa: E402
 
 

@@ -21,10 +21,10 @@ import stim
 
 from budget.circuit.clifford_check import is_clifford, local_clifford, operation_clifford
 from budget.circuit.ir import Operation
-from budget.engines._cone import light_cone
-from budget.engines._pauli_frame import Frame, hermitian_sign, layer_classes, pack_bits, unpack_bits
-from budget.engines._walk import Walker
-from budget.engines.clifford import CliffordEngine
+from budget.engines.clifford.cone import light_cone
+from budget.engines.frame.pauli_frame import Frame, hermitian_sign, layer_classes, pack_bits, unpack_bits
+from budget.engines.frame.walk import Walker
+from budget.engines.clifford.engine import CliffordEngine
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
 from budget.problems import TooLargeError
 from clifford_reference import ONE, TWO, dense_first_order, random_clifford_circuit, random_layer, unrolled
@@ -33,7 +33,7 @@ from reference import cirq_infidelity, pauli_matrix
 ENGINE = CliffordEngine(qubit_map="always")
 FIRST = CliffordEngine(qubit_map="always", second_order=False)  # first-order checks
 try:
-    from budget.engines.generators import GeneratorsEngine
+    from budget.engines.generators.engine import GeneratorsEngine
 except ImportError:  # pragma: no cover - depends on the other engine having landed
     GeneratorsEngine = None
 
@@ -220,7 +220,7 @@ def test_qubit_map_is_the_dense_output_marginal(seed):
     assert np.allclose(got, _dense_marginals(c), atol=1e-12)
 
 
-@pytest.mark.skipif(GeneratorsEngine is None, reason="budget/engines/generators.py has not landed yet")
+@pytest.mark.skipif(GeneratorsEngine is None, reason="budget/engines/generators/engine.py has not landed yet")
 @pytest.mark.parametrize("seed", range(6))
 def test_agrees_with_generators_engine_to_first_order(seed):
     rng = np.random.default_rng(200 + seed)
@@ -396,7 +396,7 @@ def test_parity_cycle_example_through_analyze_matches_generators():
 
 
 def test_grouping_in_parts_gives_the_same_sums(monkeypatch):
-    import budget.engines._groups as groups
+    import budget.engines.frame.groups as groups
 
     rng = np.random.default_rng(13)
     c = random_clifford_circuit(rng, 4, layers=4, repeat=3)

@@ -1,7 +1,7 @@
 """The dense paths over every qubit count they serve, every placement of 1- and 2-qubit operators
 and batch (group) counts 1-40, against independent references.
 
-The rows product of budget/engines/_apply.py slices a batch into chunks; a row count the chunk
+The rows product of budget/engines/matrices/apply.py slices a batch into chunks; a row count the chunk
 does not divide (odd group counts times a power of two, an operator on the highest qubit) once
 crashed with a reshape error. References: numpy's einsum on the (B, 2, ..., 2) tensor (a general
 contraction that shares nothing with the reshape/matmul/chunk logic under test), checked itself
@@ -18,7 +18,7 @@ import cirq
 import numpy as np
 import pytest
 
-from budget.engines._apply import LocalOp, apply, as_rows, conjugate, embed, fuse
+from budget.engines.matrices.apply import LocalOp, apply, as_rows, conjugate, embed, fuse
 from budget.errors.attach import attach
 from budget.errors.model import ErrorModel
 from budget.circuit.qasm import parse_qasm

@@ -14,10 +14,10 @@ import cirq
 import numpy as np
 import pytest
 
-from budget.analysis.select import choose
+from budget.engines.door import choose
 from budget.circuit.ir import Operation
-from budget.engines._exact_power import channel_power
-from budget.engines.exact import ExactEngine
+from budget.engines.exact.power import channel_power
+from budget.engines.exact.engine import ExactEngine
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
 from budget.problems import TooLargeError
 from reference import cirq_final_states, cirq_infidelity, random_noisy_circuit

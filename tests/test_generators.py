@@ -12,13 +12,16 @@ import numpy as np
 import pytest
 import scipy.linalg
 
-from budget.analysis.select import choose
+from budget.engines.door import choose
 from budget.circuit.gates import overrotation_unitary
 from budget.circuit.ir import Operation
 from budget.engines import get_engine
-from budget.engines import _apply, _dense, _jumps, _states
+from budget.engines.generators import dense as _dense
+from budget.engines.generators import jumps as _jumps
+from budget.engines.generators import states as _states
+from budget.engines.matrices import apply as _apply
 from budget.engines.base import parse_observable
-from budget.engines.generators import MAX_DENSE_QUBITS, GeneratorsEngine
+from budget.engines.generators.engine import MAX_DENSE_QUBITS, GeneratorsEngine
 from budget.errors.fidelity import pauli_hamiltonian, pauli_matrix
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
 from budget.problems import TooLargeError

@@ -10,7 +10,7 @@ import cirq
 import pytest
 import stim
 
-from budget.analysis.select import choose_engine
+from budget.engines.door import choose_engine
 from budget.circuit.ir import IfBlock, Layer, Measure, Repeat, Reset
 from budget.circuit.load import load_circuit
 from budget.circuit.qasm import parse_qasm

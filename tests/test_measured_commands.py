@@ -72,7 +72,7 @@ def test_folded_repeat_equals_unrolled_frames():
     (stim's detector error model of the unrolled record)."""
     from budget.analysis.detectors import infer_checks
     from budget.analysis.folding import FOLD_AT, fold_target, folded_frames
-    from budget.engines._frames import frames
+    from budget.engines.clifford.frames import frames
 
     rounds = FOLD_AT + 6
     circuit = parse_qasm(REPETITION.format(last=rounds - 1))

@@ -17,8 +17,8 @@ import pytest
 
 from budget.analysis.measured import record_infidelity
 from budget.circuit.qasm import parse_qasm
-from budget.engines._branches import Plan, condition_bits, simulate
-from budget.engines._stim import record_qubits
+from budget.engines.exact.branches import Plan, condition_bits, simulate
+from budget.engines.clifford.stim_circuit import record_qubits
 from budget.errors.attach import attach
 from budget.errors.model import ErrorModel
 from budget.errors.noisy import NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset, Relaxation

@@ -23,8 +23,8 @@ from budget.analysis.detectors import infer_checks
 from budget.analysis.measured import analyze_measured
 from budget.circuit.qasm import parse_qasm
 from budget.cli import app
-from budget.engines._branches import Plan, condition_bits, simulate
-from budget.engines._frames import frames
+from budget.engines.exact.branches import Plan, condition_bits, simulate
+from budget.engines.clifford.frames import frames
 from budget.errors.attach import attach
 from budget.errors.model import ErrorModel
 

@@ -21,8 +21,8 @@ from echo_reference import (
 )
 
 from budget import analyze
-from budget.engines.clifford import CliffordEngine
-from budget.engines.generators import GeneratorsEngine
+from budget.engines.clifford.engine import CliffordEngine
+from budget.engines.generators.engine import GeneratorsEngine
 from budget.errors.noisy import NoisyLayer
 
 CLIFF = CliffordEngine(qubit_map=False)

@@ -1,4 +1,4 @@
-"""Folding long-period blocks by the orbits of their error terms (budget/engines/_orbits.py).
+"""Folding long-period blocks by the orbits of their error terms (budget/engines/frame/orbits.py).
 
 References outside the code under test: explicit unrolling of the block (every repetition walked
 and grouped Pauli by Pauli, itself checked against dense cirq matrices in test_clifford.py), the
@@ -12,10 +12,10 @@ import itertools
 import numpy as np
 import pytest
 
-import budget.engines._orbits as orbits
+import budget.engines.frame.orbits as orbits
 from budget.circuit.ir import Operation
-from budget.engines._orbits import runs
-from budget.engines.clifford import CliffordEngine
+from budget.engines.frame.orbits import runs
+from budget.engines.clifford.engine import CliffordEngine
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat
 from clifford_reference import random_layer, unrolled
 
@@ -251,7 +251,7 @@ def _grid(side: int, count: int) -> NoisyCircuit:
 
 
 def test_identity_fingerprints_read_off_the_masks_equal_the_computed_ones():
-    from budget.engines._pauli_frame import Frame, fingerprints, identity_fingerprints
+    from budget.engines.frame.pauli_frame import Frame, fingerprints, identity_fingerprints
 
     for n in (1, 63, 64, 130):
         f = Frame.identity(n)
@@ -261,7 +261,7 @@ def test_identity_fingerprints_read_off_the_masks_equal_the_computed_ones():
 
 
 def test_byte_table_product_equals_bitwise_xor():
-    from budget.engines._orbits import _XorProduct
+    from budget.engines.frame.orbits import _XorProduct
 
     rng = np.random.default_rng(3)
     rows = rng.integers(0, 256, (37, 5), dtype=np.uint8)
@@ -274,7 +274,7 @@ def test_byte_table_product_equals_bitwise_xor():
 def test_grouping_hash_separates_rows_differing_in_the_top_bits_of_two_words():
     # With a multiply-and-sum hash these rows collide (2^63 + 2^63 = 0 mod 2^64) and the grouping
     # fell back to a slow exact sort; the grouping must be right either way and hash them apart.
-    from budget.engines._groups import group_rows, row_hash
+    from budget.engines.frame.groups import group_rows, row_hash
 
     top = np.uint64(1) << np.uint64(63)
     keys = np.zeros((4, 4), np.uint64)
@@ -288,7 +288,7 @@ def test_grouping_hash_separates_rows_differing_in_the_top_bits_of_two_words():
 
 def test_exact_engine_refuses_a_thousand_qubits_without_overflow():
     # 4^n x 4^n sizes overflow a float from about 256 qubits on; the plan must still refuse cleanly.
-    from budget.engines.exact import ExactEngine
+    from budget.engines.exact.engine import ExactEngine
 
     c = _grid(32, 3)
     reason = ExactEngine().fits(c, "process")
@@ -316,7 +316,7 @@ def test_auto_engine_on_three_hundred_qubits_picks_clifford_and_folds_by_orbits(
 def test_brief_engine_skips_only_the_per_qubit_map():
     # Depth curves, twirled variants and compiled ensembles read only totals: their engine runs
     # without the per-qubit map, which can cost more than the rest of a run.
-    from budget.analysis.select import choose_engine
+    from budget.engines.door import choose_engine
 
     c = _grid(4, 20)
     full = choose_engine(c, "process")

@@ -22,13 +22,13 @@ from typer.testing import CliRunner
 
 from budget.cli import app
 from budget.engines import get_engine
-from budget.engines._channels import by_family, content_cache
-from budget.engines._dense import DensePropagator
-from budget.engines._observables import IncoherentObservables, observable_vector
-from budget.engines._states import StatePath
+from budget.engines.matrices.channels import by_family, content_cache
+from budget.engines.generators.dense import DensePropagator
+from budget.engines.generators.observables import IncoherentObservables, observable_vector
+from budget.engines.generators.states import StatePath
 from budget.engines.base import parse_observable
-from budget.engines.clifford import CliffordEngine
-from budget.engines.generators import GeneratorsEngine
+from budget.engines.clifford.engine import CliffordEngine
+from budget.engines.generators.engine import GeneratorsEngine
 from budget.engines.pauli import PauliEngine
 from budget.errors.noisy import NoisyCircuit
 from clifford_reference import random_clifford_circuit

@@ -13,9 +13,9 @@ import cirq
 import numpy as np
 import pytest
 
-from budget.engines.depth import depth_curve
-from budget.engines.generators import GeneratorsEngine
-from budget.engines.periodic import (
+from budget.engines.generators.depth import depth_curve
+from budget.engines.generators.engine import GeneratorsEngine
+from budget.engines.matrices.periodic import (
     accumulation_split,
     coherent_curve,
     cycle_basis,
@@ -165,9 +165,9 @@ def test_depth_curve_equals_single_runs(metric):
 
 def test_long_repeats_agree_with_the_exact_engine():
     # blocks repeated up to 10**6 times (errors scaled down with N so the total stays small):
-    # the periodic closed form against the exact engine's matrix powers (budget/engines/exact.py,
+    # the periodic closed form against the exact engine's matrix powers (budget/engines/exact/engine.py,
     # dense simulation, itself checked against cirq in its own tests)
-    from budget.engines.exact import ExactEngine
+    from budget.engines.exact.engine import ExactEngine
 
     exact, engine = ExactEngine(), GeneratorsEngine()
     for seed, count in enumerate([999, 100001, 301, 10**6 + 1]):

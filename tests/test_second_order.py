@@ -22,12 +22,12 @@ from echo_reference import (
 from reference import pauli_matrix
 
 from budget import analyze
-from budget.analysis.select import escalate
+from budget.engines.door import escalate
 from budget.engines.base import EngineResult
-from budget.engines.clifford import CliffordEngine
-from budget.engines.exact import ExactEngine
-from budget.engines.generators import GeneratorsEngine
-from budget.engines.periodic import cross_cycle_sum
+from budget.engines.clifford.engine import CliffordEngine
+from budget.engines.exact.engine import ExactEngine
+from budget.engines.generators.engine import GeneratorsEngine
+from budget.engines.matrices.periodic import cross_cycle_sum
 from budget.errors.fidelity import naive_infidelity
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyRepeat
 
@@ -194,7 +194,7 @@ def test_random_echoed_blocks_against_cirq():
 
 
 def test_clifford_period_fold_equals_unrolling_at_second_order():
-    # the folded second order (pair weights q + [k < s], budget/engines/_second.py) against the
+    # the folded second order (pair weights q + [k < s], budget/engines/clifford/second.py) against the
     # same engine on the unrolled layers
     rng = np.random.default_rng(77)
     engine = CliffordEngine(qubit_map=False, orbit_baby=0)

@@ -17,7 +17,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable, Iterable, Mapping
 
-from budget.analysis.select import choose_engine
+from budget.engines.door import choose_engine
 from budget.analysis.uncertainty import with_values
 from budget.circuit.ir import StructuredCircuit
 from budget.errors.attach import attach

@@ -3,7 +3,7 @@
 Each coherent knob (family, knob) of one cycle gives a Hamiltonian error H_k pushed to the end of
 the cycle (first order, Blume-Kohout et al., "A taxonomy of small Markovian errors", PRX Quantum 3,
 020335 (2022)). Over N cycles it sums to S_N(H_k) = Σ_{j<N} U_c^j H_k U_c^{-j} (design.md §4,
-:mod:`budget.engines.periodic`): the part of H_k that commutes with the cycle grows as N ("builds
+:mod:`budget.engines.matrices.periodic`): the part of H_k that commutes with the cycle grows as N ("builds
 up", ``growing_rad`` per cycle), the rest stays bounded by ``bounded_rad`` ("echoed away"). Both
 are in radians, normalised like a Pauli amplitude, so that knob alone costs
 (N · growing)² + b(N)², 0 <= b(N) <= bounded, of process infidelity to first order.
@@ -17,8 +17,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 import numpy as np
 
-from budget.engines._channels import Grouping, by_family, content_cache
-from budget.engines._dense import DenseBlock, DensePropagator
+from budget.engines.matrices.channels import Grouping, by_family, content_cache
+from budget.engines.generators.dense import DenseBlock, DensePropagator
 from budget.errors.noisy import NoisyCircuit, NoisyOperation
 
 MAX_QUBITS = 10
@@ -84,7 +84,7 @@ class CycleErrors:
 
     def components(self) -> tuple[Component, ...]:
         """Every knob's split, the largest long-run contributors first."""
-        from budget.engines.periodic import accumulation_split, cycle_basis
+        from budget.engines.matrices.periodic import accumulation_split, cycle_basis
 
         basis = cycle_basis(self.unitary)
         out = [
@@ -106,14 +106,14 @@ def _op_terms(nop: NoisyOperation) -> list[tuple[str, dict[str, float], float]]:
 
 
 def _by_knob(nop: NoisyOperation) -> list[tuple[str, dict[str, float]]]:
-    """Grouping for :func:`budget.engines._channels.content_cache`: each knob's Hamiltonian, value
+    """Grouping for :func:`budget.engines.matrices.channels.content_cache`: each knob's Hamiltonian, value
     times generator, under ``"family.knob"``."""
     return [(name, {p: c * scale for p, c in gen.items()}) for name, gen, scale in _op_terms(nop)]
 
 
 def _propagate(block: NoisyCircuit, grouping: Grouping) -> DenseBlock:
     """The cycle's ideal unitary and each group's Hamiltonian pushed to its end, by the generators
-    engine's dense propagation (:class:`budget.engines._dense.DensePropagator`: per layer
+    engine's dense propagation (:class:`budget.engines.generators.dense.DensePropagator`: per layer
     H <- U_L H U_L† + Σ_op H_op; a repeat of N adds U_b^N H U_b^{-N} + S_N(H_b) in closed form)."""
     n = block.num_qubits
     return DensePropagator(n, content_cache(n, grouping)).block(block.body)

@@ -4,7 +4,7 @@ The tolerances of :func:`budget.analysis.tolerances.tolerances` invert the leadi
 e ≈ δᵀAδ + s. Where that form is poor (large angles, a first order that cancels, many
 interfering knobs), the knobs set to their tolerances can give far more, or less, than the target.
 This module checks and corrects them with the most accurate engine that fits
-(:func:`budget.analysis.select.choose_engine`: exact where it fits):
+(:func:`budget.engines.door.choose_engine`: exact where it fits):
 
 1. **Knobs without a first-order effect** (A_ff at rounding level, e.g. an over-rotation echoed by
    the gates around it) get their tolerance from the engine as a function of the knob alone: the
@@ -37,7 +37,7 @@ import numpy as np
 from scipy.optimize import brentq
 
 from budget.analysis.loop_runner import RUNS_PER_PATTERN, TimedRunner, faster, quick_enough, run_seconds
-from budget.analysis.select import choose_engine
+from budget.engines.door import choose_engine
 from budget.analysis.sign_patterns import describe, joint_signs, patterns_for
 from budget.analysis.tolerances import LEADING_ORDER_ONLY, ToleranceReport, make_row
 from budget.engines.base import QuadraticForm

@@ -28,7 +28,7 @@ import numpy as np
 import scipy.linalg
 
 from budget.analysis.run import read_circuit, read_model
-from budget.analysis.select import choose_engine
+from budget.engines.door import choose_engine
 from budget.analysis.sensitivity import quadratic_form
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
 from budget.errors.attach import attach

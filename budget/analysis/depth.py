@@ -6,7 +6,7 @@ For a block (one cycle of the circuit) repeated N times, three curves (design.md
   infidelity of one cycle (:func:`budget.errors.fidelity.naive_infidelity`);
 - **structured**: the actual infidelity of N cycles from an engine; engines keep the repeat folded
   (exact: matrix powers through a Schur decomposition; generators: the periodic closed form of
-  :mod:`budget.engines.periodic`), so a point costs the same for N = 10 and N = 10**9 and no
+  :mod:`budget.engines.matrices.periodic`), so a point costs the same for N = 10 and N = 10**9 and no
   point re-simulates the circuit;
 - **twirled**: the same for the Pauli-twirled cycle (Wallman & Emerson, Phys. Rev. A 94, 052325
   (2016)), where coherent errors add in probability, so the curve grows linearly in N at first.
@@ -112,7 +112,7 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, de
     re-running it per point. Otherwise every point is one run of the chosen engine on the folded
     repeat (the exact engine takes matrix powers, the clifford engine folds whole periods); the
     engine is chosen for the deepest point ``deepest``, the costliest one."""
-    from budget.analysis.select import AUTO_ORDER, check_time, choose
+    from budget.engines.door import AUTO_ORDER, check_time, choose
 
     notes: list[str] = []
     small = engine == "auto" and block.num_qubits <= EXACT_CURVE_QUBITS
@@ -138,11 +138,11 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, de
 
 def _closed_form(block: NoisyCircuit, engine) -> _Series:
     """The generators engine's value for N cycles by the periodic closed form, and whether it is
-    within the engine's range (:func:`budget.engines.generators.range_note` on the coherent part of
+    within the engine's range (:func:`budget.engines.generators.engine.range_note` on the coherent part of
     the summed Hamiltonian S_N and the stochastic sum N s)."""
     from budget.analysis.accumulation import cycle_hamiltonian
-    from budget.engines.generators import range_note
-    from budget.engines.periodic import cycle_basis, periodic_sum
+    from budget.engines.generators.engine import range_note
+    from budget.engines.matrices.periodic import cycle_basis, periodic_sum
 
     one = engine.run(block, "process")
     stochastic = float(one.details.get("stochastic_first_order", 0.0))

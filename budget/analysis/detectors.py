@@ -143,7 +143,7 @@ def recorded_qubits(noisy: NoisyCircuit, metric: str) -> list[int]:
     Raises:
         InputError: the circuit records no outcome.
     """
-    from budget.engines._stim import record_qubits  # engines import analysis helpers
+    from budget.engines.clifford.stim_circuit import record_qubits  # engines import analysis helpers
 
     qubits = record_qubits(noisy)
     if not qubits:
@@ -168,7 +168,7 @@ def infer_checks(
         InputError: a named observable is not deterministic or names a record index that does
             not exist; the circuit is not Clifford (from the stim writer).
     """
-    from budget.engines._stim import to_stim  # engines import analysis helpers
+    from budget.engines.clifford.stim_circuit import to_stim  # engines import analysis helpers
 
     qubits = recorded_qubits(circuit, "detectors")
     ideal = to_stim(circuit)

@@ -16,7 +16,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from budget.analysis.compensate import correction_points, map_blocks
-from budget.analysis.select import choose_engine
+from budget.engines.door import choose_engine
 from budget.circuit.ir import Layer, Operation, StructuredCircuit
 from budget.errors.attach import attach
 

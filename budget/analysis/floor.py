@@ -24,9 +24,9 @@ from typing import Any
 
 from scipy.optimize import brentq
 
-from budget.analysis.select import choose_engine
+from budget.engines.door import choose_engine
 from budget.analysis.sensitivity import quadratic_form
-from budget.engines._knobs import knob_grouping
+from budget.engines.knob_rows import knob_grouping
 from budget.errors.retune import with_knob_values
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
 from budget.problems import TooLargeError

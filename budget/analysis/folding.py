@@ -20,8 +20,8 @@ from dataclasses import dataclass
 
 from budget.analysis.detectors import Checks, infer_checks
 from budget.analysis.result import DetectorBudget
-from budget.engines._frames import FrameResult, frames
-from budget.engines._stim import record_qubits
+from budget.engines.clifford.frames import FrameResult, frames
+from budget.engines.clifford.stim_circuit import record_qubits
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 
 FOLD_AT = 64

@@ -13,8 +13,8 @@ from __future__ import annotations
 
 import time
 
-from budget.analysis.select import AUTO_ORDER, choose_engine
-from budget.engines._exact_plan import make_plan
+from budget.engines.door import AUTO_ORDER, choose_engine
+from budget.engines.exact.plan import make_plan
 from budget.errors.noisy import NoisyCircuit
 from budget.errors.retune import with_knob_values
 from budget.problems import TooLargeError
@@ -49,7 +49,7 @@ class TimedRunner:
 
 def run_seconds(engine, circuit: NoisyCircuit, metric: str) -> float | None:
     """The engine's own estimate of one run, when it gives one (``estimate_seconds``); for the
-    exact engine its plan's multiply-adds (:func:`budget.engines._exact_plan.make_plan`) at
+    exact engine its plan's multiply-adds (:func:`budget.engines.exact.plan.make_plan`) at
     :data:`MULTIPLY_ADDS_PER_S`; else None. Estimates, unlike measured times, do not change with
     the machine's load, so the loop's choices (engine, sign patterns) are reproducible."""
     estimate = getattr(engine, "estimate_seconds", None)

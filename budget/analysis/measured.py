@@ -4,9 +4,9 @@
 probability that at least one detector fires (independent of the basis of detectors chosen), each
 detector gets its firing probability, its round and each family's share of it. The twirled value
 is always the Pauli-frame one (every channel, relaxation included, replaced by its Pauli twirl). Engines: ``exact``
-(density matrix with classical branches, :mod:`budget.engines._branches`: coherent errors kept
+(density matrix with classical branches, :mod:`budget.engines.exact.branches`: coherent errors kept
 coherent, exact) and ``clifford`` (Pauli frames through stim's detector error model,
-:mod:`budget.engines._frames`: every error twirled, first order, any size). ``auto`` takes exact
+:mod:`budget.engines.clifford.frames`: every error twirled, first order, any size). ``auto`` takes exact
 when it fits.
 
 ``record``: one minus the classical fidelity (Σ_r √(p_ideal(r) p_actual(r)))² of the whole
@@ -31,7 +31,7 @@ from budget.analysis.folding import fold_target, folded_frames, scaled
 from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit, circuit_fields
 from budget.analysis.run import family_counts, family_table
 from budget.circuit.ir import StructuredCircuit
-from budget.engines._branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
+from budget.engines.exact.branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.fidelity import naive_infidelity
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
@@ -82,7 +82,7 @@ def analyze_measured(
     use_exact = engine == "exact" or (engine == "auto" and reason is None)
     if engine == "exact" and reason is not None:
         raise TooLargeError(f"engine exact: {reason}; the clifford engine fits (first order, errors twirled)")
-    from budget.engines._frames import frames
+    from budget.engines.clifford.frames import frames
 
     fo = frames(noisy, plan.detectors)
     warnings = []
@@ -126,7 +126,7 @@ def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> t
 
 def detector_values(noisy: NoisyCircuit, engine: str = "auto") -> tuple[float, float, tuple[float, ...], str]:
     """(P(some detector fires), its frame value, each detector's probability, engine name)."""
-    from budget.engines._frames import frames
+    from budget.engines.clifford.frames import frames
 
     checks = _checks(noisy, None)
     plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
@@ -267,7 +267,7 @@ def _family_counts(noisy: NoisyCircuit) -> dict[str, int]:
 
 
 def _families(noisy: NoisyCircuit) -> list[str]:
-    from budget.engines._frames import families_of
+    from budget.engines.clifford.frames import families_of
 
     return families_of(noisy)
 

@@ -220,9 +220,9 @@ def ensemble(
         InputError: count < 1 or seed < 0.
         TooLargeError: a compiled copy would exceed :data:`MAX_COMPILED_LAYERS` executed layers.
     """
-    from budget.analysis.select import choose_engine
+    from budget.engines.door import choose_engine
     from budget.analysis.twirl import twirled_circuit
-    from budget.analysis.validity import run_in_range
+    from budget.engines.door import run_in_range
 
     if isinstance(count, bool) or not isinstance(count, int) or count < 1:
         raise InputError(f"ensemble count = {count!r}: expected a whole number >= 1")

@@ -16,8 +16,8 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary, circuit_fields
-from budget.analysis.select import choose, choose_engine, escalate, first_order_shares
-from budget.analysis.validity import run_in_range
+from budget.engines.door import choose, choose_engine, escalate, first_order_shares
+from budget.engines.door import run_in_range
 from budget.circuit.ir import StructuredCircuit
 from budget.engines.base import MEASURED_METRICS, METRICS, parse_observable
 from budget.errors.noisy import IDLE, NoisyCircuit

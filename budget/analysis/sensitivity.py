@@ -25,7 +25,7 @@ import dataclasses
 from dataclasses import dataclass
 import numpy as np
 
-from budget.analysis.select import choose
+from budget.engines.door import choose
 from budget.engines.base import QuadraticForm
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyItem, NoisyLayer, NoisyRepeat
 from budget.problems import InputError
@@ -37,7 +37,7 @@ size when every gate is Clifford; pauli last: any gate, any size, sparse)."""
 
 def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto", detector: int | None = None) -> QuadraticForm:
     """The quadratic form e ≈ δᵀAδ + s of a noisy circuit, from the engine auto's rule picks among
-    FORM_ENGINES (:func:`budget.analysis.select.choose`), or the one named.
+    FORM_ENGINES (:func:`budget.engines.door.choose`), or the one named.
 
     Raises:
         TooLargeError: no engine that builds quadratic forms fits, or fits in time (one line).

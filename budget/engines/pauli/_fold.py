@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.engines._walk import Walker
+from budget.engines.frame.walk import Walker
 from budget.engines.pauli._store import Store
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 

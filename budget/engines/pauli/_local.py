@@ -1,7 +1,7 @@
 """Local linear maps on the Pauli basis of one or two qubits (Pauli transfer matrices).
 
 Local basis. A qubit's Pauli is coded c = x + 2 z (I = 0, X = 1, Z = 2, Y = 3: the packed-bit
-convention of :mod:`budget.engines._pauli_frame`, Y = X and Z bits both set, taken Hermitian). A
+convention of :mod:`budget.engines.frame.pauli_frame`, Y = X and Z bits both set, taken Hermitian). A
 site of k ≤ 2 qubits (gate order a, b) has local index v = c_a + 4 c_b, 4^k values.
 
 A linear map M on operators is kept as its real matrix in that basis,

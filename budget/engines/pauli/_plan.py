@@ -5,7 +5,7 @@
 - coherent rows: each operation's Hamiltonian Σ h_P P as store rows, one column per group (gate
   family for budgets and shares, (family, knob) for the quadratic form);
 - jump sites (state metric): each operation's and idle qubit's jump operators L at probability p,
-  exactly those of the generators engine (:func:`budget.engines._channels._operation_jumps`: Pauli
+  exactly those of the generators engine (:func:`budget.engines.matrices.channels._operation_jumps`: Pauli
   rates, depolarizing λ/d² per Pauli, σ- at γ and Z at (1-c)/2 for relaxation), written in the local
   Pauli basis: L = Σ_v l_v P_v, L†L = Σ_v m_v P_v;
 - generator sites (observables): the local Heisenberg generator i[H, ·] + Σ p (L† · L - ½{L†L, ·});
@@ -20,7 +20,7 @@ from typing import Callable
 
 import numpy as np
 
-from budget.engines._channels import _operation_jumps, _relaxation_jumps, _stochastic_process
+from budget.engines.matrices.channels import _operation_jumps, _relaxation_jumps, _stochastic_process
 from budget.engines.pauli._local import LocalMap, gate_map, generator_map, local_basis, local_label
 from budget.engines.pauli._store import Store, from_local
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation

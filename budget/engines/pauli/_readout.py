@@ -8,7 +8,7 @@ H_in|0…0> = Σ_x A_x |x>, A_x = Σ_{Q: x_Q = x} A_Q i^{|x_Q ∧ z_Q|}, and the
 infidelity is Var(H_in) = Σ_{x≠0} |A_x|².
 
 Column k's share is Σ_g Re(conj(A_{g,k}) A_g) (they add up to e_coh); the resummed coherent part
-1 - Π_g cos²|A_g| and the scaling of shares follow :class:`budget.engines._groups.Budget`, as in the
+1 - Π_g cos²|A_g| and the scaling of shares follow :class:`budget.engines.frame.groups.Budget`, as in the
 clifford engine, so both engines give the same numbers on Clifford circuits.
 
 Jump operator L = Σ_v l_v P_v at probability p with L†L = Σ_v m_v P_v costs, at the ideal state
@@ -20,8 +20,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.engines._groups import Budget
-from budget.engines._pauli_frame import popcount
+from budget.engines.frame.groups import Budget
+from budget.engines.frame.pauli_frame import popcount
 from budget.engines.pauli._store import Store, group_equal
 
 PHASE = np.array([1, 1j, -1, -1j])

@@ -2,10 +2,10 @@
 
 Row t is the operator Σ_k coef[t, k] · P_t for column k (a gate family, a knob label, or the one
 column of an observable), P_t = ⊗_q σ(x_q, z_q) with σ(1,0) = X, σ(0,1) = Z, σ(1,1) = Y (Hermitian,
-unlike the i^e X^x Z^z rows of :mod:`budget.engines._pauli_frame`, whose packed words it shares:
+unlike the i^e X^x Z^z rows of :mod:`budget.engines.frame.pauli_frame`, whose packed words it shares:
 W = ceil(n / 64) uint64 words for x and for z). ``key`` separates sums kept in one store (an
 observable index, a jump-operator tag); rows with equal (x, z, key) are merged by sorting a 64-bit
-row hash (:func:`budget.engines._groups.group_rows`), never by Python dictionaries.
+row hash (:func:`budget.engines.frame.groups.group_rows`), never by Python dictionaries.
 
 Conjugation by a unitary preserves real coefficients (the Pauli transfer matrix of a unitary
 channel is real) and the Hilbert-Schmidt norm ‖A‖² = Tr(A†A)/d = Σ_t coef_t² (Paulis are
@@ -18,8 +18,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from budget.engines._groups import row_hash
-from budget.engines._pauli_frame import WORD_BITS, num_words
+from budget.engines.frame.groups import row_hash
+from budget.engines.frame.pauli_frame import WORD_BITS, num_words
 from budget.engines.pauli._local import LocalMap
 
 _ONE = np.uint64(1)

@@ -4,7 +4,7 @@ Unitary form (state vectors, unitaries): U_coh · U_ideal, 2^k x 2^k in gate ord
 
 Channel form (density matrices, superoperators): the operation's whole channel as one
 4^k x 4^k superoperator in the *interleaved* site order (r_1 c_1 r_2 c_2 …, see
-:mod:`budget.engines._exact_register`). With row-major vec(ρ), vec(A ρ B) = (A ⊗ Bᵀ) vec(ρ), so
+:mod:`budget.engines.exact.register`). With row-major vec(ρ), vec(A ρ B) = (A ⊗ Bᵀ) vec(ρ), so
 
     unitary U:        U ⊗ conj(U)
     Pauli channel:    (1 - Σ p_P) 1 + Σ p_P P ⊗ conj(P)

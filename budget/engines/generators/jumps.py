@@ -20,9 +20,9 @@ from typing import Sequence
 
 import numpy as np
 
-from budget.engines._apply import apply, as_rows
-from budget.engines._dense import ContentOf, DensePropagator
-from budget.engines.periodic import frequency_count, repeated_means, repeated_squares, state_components
+from budget.engines.matrices.apply import apply, as_rows
+from budget.engines.generators.dense import ContentOf, DensePropagator
+from budget.engines.matrices.periodic import frequency_count, repeated_means, repeated_squares, state_components
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 
 EXPLICIT_REPEATS = 64

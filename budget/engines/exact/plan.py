@@ -168,7 +168,7 @@ _WHAT = {
 def refusal(circuit: NoisyCircuit, metric: str, plan: Plan) -> str | None:
     """None when the plan fits the limits, else a short reason: what would be held, its size and
     the limit (the limits are explained in docs/methods.md, "Engine reach"; which engine fits
-    instead is said by :mod:`budget.analysis.select`)."""
+    instead is said by :mod:`budget.engines.door`)."""
     n = circuit.num_qubits
     if n > plan.max_qubits:
         return f"{_WHAT[plan.form]}, limit {plan.max_qubits} qubits"

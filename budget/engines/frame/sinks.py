@@ -22,8 +22,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.engines._pauli_frame import Frame, fingerprints, popcount, unpack_bits
-from budget.engines._terms import LayerTable, TermBuilder, stochastic_terms, term_slots
+from budget.engines.frame.pauli_frame import Frame, fingerprints, popcount, unpack_bits
+from budget.engines.frame.terms import LayerTable, TermBuilder, stochastic_terms, term_slots
 from budget.errors.noisy import NoisyLayer
 
 BITS16 = (np.arange(16)[:, None] >> np.arange(4)) & 1
@@ -121,7 +121,7 @@ class GroupSink(_Batches):
         self._static: dict[int, tuple] = {}
         self.terms_emitted = 0
         self.rates_emitted = 0
-        self.folded: list = []  # FoldedTerms of blocks folded by orbits (budget/engines/_orbits.py)
+        self.folded: list = []  # FoldedTerms of blocks folded by orbits (budget/engines/frame/orbits.py)
 
     def _terms(self, table: LayerTable):
         return table.unit if self.unit else table.coherent
@@ -303,7 +303,7 @@ class LandingSink(_Batches):
 
     def landing(self, n: int) -> np.ndarray:
         """Σ_g |A_g|² [q ∈ supp Q_g] + Σ_t p_t [q ∈ supp Q_t], batch factors applied."""
-        from budget.engines._groups import group_rows
+        from budget.engines.frame.groups import group_rows
 
         out = np.zeros(n)
         for b, v in self.land.items():

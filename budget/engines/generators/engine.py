@@ -5,7 +5,7 @@ Method (Blume-Kohout et al., "A taxonomy of small Markovian errors", PRX Quantum
 H_op = Σ h_P P and jump operators (stochastic Pauli rates, depolarizing, T1/T2 relaxation). Every
 Hamiltonian part is pushed to the end of the circuit by the ideal remainder R: H_total = Σ R H_op R†.
 Hamiltonian parts add in amplitude, stochastic parts in probability. Repeated blocks use the
-periodic closed form (:mod:`budget.engines.periodic`), so N = 10**9 costs what N = 1 costs.
+periodic closed form (:mod:`budget.engines.matrices.periodic`), so N = 10**9 costs what N = 1 costs.
 
 Reported numbers, d = 2**n, ψ the ideal output of |0…0>:
 
@@ -29,18 +29,19 @@ from typing import Hashable, Sequence
 
 import numpy as np
 
-from budget.engines._apply import as_rows
-from budget.engines._channels import by_family, content_cache
-from budget.engines._dense import DensePropagator
-from budget.engines._jumps import StateJumps
-from budget.engines._knobs import knob_grouping
-from budget.engines._krylov import expm_apply
-from budget.engines._observables import IncoherentObservables, observable_vector
-from budget.engines._states import StatePath
-from budget.engines._validity import cancellation_note, second_order_share, term_norm_sum, validity_details
+from budget.engines.matrices.apply import as_rows
+from budget.engines.matrices.channels import by_family, content_cache
+from budget.engines.generators.dense import DensePropagator
+from budget.engines.generators.jumps import StateJumps
+from budget.engines.knob_rows import knob_grouping
+from budget.engines.generators.krylov import expm_apply
+from budget.engines.generators.observables import IncoherentObservables, observable_vector
+from budget.engines.generators.states import StatePath
+from budget.engines.orders import cancellation_note, second_order_share, term_norm_sum, validity_details
 from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
-from budget.engines.depth import DepthCurve, depth_curve
-from budget.engines.periodic import coherent_infidelity
+from budget.engines.exact.engine import ExactEngine
+from budget.engines.generators.depth import DepthCurve, depth_curve
+from budget.engines.matrices.periodic import coherent_infidelity
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.problems import TooLargeError
 
@@ -115,7 +116,7 @@ class GeneratorsEngine:
 
     def __init__(self, *, second_order: bool = True) -> None:
         """``second_order``: form the effective generator beyond first order (second order, and
-        exactly where the block's principal logarithm is safe; budget/engines/_dense.py); False
+        exactly where the block's principal logarithm is safe; budget/engines/generators/dense.py); False
         keeps the first order alone."""
         self.second_order = second_order
 
@@ -238,7 +239,7 @@ class GeneratorsEngine:
 
     def _coherent(self, circuit, metric, dense: DensePropagator, path: StatePath | None, want_state: bool = False) -> _Coherent:
         """The coherent part. Where dense matrices fit, from the second-order effective generator
-        H = H_1 + H_2 of the whole circuit (:mod:`budget.engines._dense`); otherwise (state metric
+        H = H_1 + H_2 of the whole circuit (:mod:`budget.engines.generators.dense`); otherwise (state metric
         on more than MAX_DENSE_QUBITS qubits, no repeats) from H_1 by state vectors."""
         if metric == "process" or circuit.num_qubits <= MAX_DENSE_QUBITS:
             return self._coherent_dense(circuit, metric, dense, want_state)
@@ -300,12 +301,7 @@ class GeneratorsEngine:
             what.append(f"the incoherent errors add up to {stoch:.3f} (first order holds below ~{STOCHASTIC_LIMIT})")
         if not what:
             return list(notes)
-        try:
-            from budget.engines.exact import ExactEngine
-
-            exact_fits = ExactEngine().fits(circuit, metric) is None
-        except ImportError:  # pragma: no cover - the exact engine is part of the package
-            exact_fits = False
+        exact_fits = ExactEngine().fits(circuit, metric) is None
         trust = (
             "trust the exact engine instead (it fits this circuit)"
             if exact_fits
@@ -333,7 +329,7 @@ class GeneratorsEngine:
 
     def depth_curve(self, circuit: NoisyCircuit, metric: Metric, counts: Sequence[int]) -> DepthCurve:
         """Infidelity of ``circuit`` repeated N times for every N in ``counts`` at once
-        (:func:`budget.engines.depth.depth_curve`)."""
+        (:func:`budget.engines.generators.depth.depth_curve`)."""
         return depth_curve(circuit, metric, counts)
 
     def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:

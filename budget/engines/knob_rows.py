@@ -29,7 +29,7 @@ def _knob_terms(nop: NoisyOperation) -> list[tuple[str, dict[str, float], float]
 def knob_grouping(
     circuit: NoisyCircuit,
 ) -> tuple[Callable[[NoisyOperation], list[tuple[object, dict[str, float]]]], dict[tuple[str, str], float]]:
-    """(grouping for :func:`budget.engines._channels.layer_content`, (family, knob) -> δ in rad)."""
+    """(grouping for :func:`budget.engines.matrices.channels.layer_content`, (family, knob) -> δ in rad)."""
     values: dict[tuple[str, str], float] = {}
     for layer in circuit.distinct_layers():
         for nop in layer.operations:

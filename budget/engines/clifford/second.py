@@ -29,9 +29,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.engines._groups import group_rows
-from budget.engines._pauli_frame import Frame, fingerprints, hermitian_sign, multiply, popcount
-from budget.engines._sinks import GroupSink
+from budget.engines.frame.groups import group_rows
+from budget.engines.frame.pauli_frame import Frame, fingerprints, hermitian_sign, multiply, popcount
+from budget.engines.frame.sinks import GroupSink
 from budget.errors.noisy import NoisyLayer
 
 PAIR_BUDGET = 3e8

@@ -22,7 +22,7 @@ from typing import Callable, Iterable
 
 import numpy as np
 
-from budget.engines._apply import LocalOp, as_rows, embed, fuse
+from budget.engines.matrices.apply import LocalOp, as_rows, embed, fuse
 from budget.errors.fidelity import pauli_labels, pauli_matrix, pauli_sum
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
 
@@ -67,7 +67,7 @@ class LayerContent:
     """What the first-order engines need from one layer.
 
     Attributes:
-        gates: the ideal gates, fused window by window (:func:`budget.engines._apply.fuse`), for
+        gates: the ideal gates, fused window by window (:func:`budget.engines.matrices.apply.fuse`), for
             state vectors.
         gate_list: the ideal gates one by one (fewer operations per element for dense matrices).
         hamiltonians: group key -> the group's Hamiltonian terms of this layer, fused into sums.

@@ -7,7 +7,7 @@ sequence by the ideal remainder: H_total = Σ R H_op R†. Layer by layer this i
 
 kept per group (family, or (family, knob)), so that groups add in amplitude afterwards. A repeated
 block contributes U_c^N H U_c^{-N} + S_N(H_c) through the periodic closed form
-(:mod:`budget.engines.periodic`); nested repeats recurse. Dense d x d matrices: the cost is
+(:mod:`budget.engines.matrices.periodic`); nested repeats recurse. Dense d x d matrices: the cost is
 O(d² · gates) per layer and O(d³) per repeat, independent of the repeat count.
 
 Second order (``second_order=True``). The errors of a sequence, pushed to its end, are
@@ -20,7 +20,7 @@ order in the error angles (Magnus expansion / BCH formula: Blanes, Casas, Oteo &
 Layer by layer: when a layer's generator B joins the generator A of everything before it (already
 pushed through the layer's gates), H <- A + B - (i/2)[B, A]; the operations of one layer act on
 disjoint qubits and commute. A repeated block adds, besides S_N(H_c), the commutators between its
-cycles, C_N(H_c, H_c) (:func:`budget.engines.periodic.cross_cycle_sum`), and joins what came before
+cycles, C_N(H_c, H_c) (:func:`budget.engines.matrices.periodic.cross_cycle_sum`), and joins what came before
 in the same way. This matters where the first-order terms cancel (echoes, a gate and its inverse):
 then the commutator term leads and, repeated, builds up as N ε². A commutator term between groups f
 and g counts half in each; the commutators between cycles are split in proportion to the groups'
@@ -45,9 +45,9 @@ from typing import Callable, Hashable
 
 import numpy as np
 
-from budget.engines._apply import LocalOp, apply, conjugate, embed
-from budget.engines._channels import LayerContent
-from budget.engines.periodic import CycleBasis, cross_cycle_sum, cycle_basis, periodic_sum, principal_generator
+from budget.engines.matrices.apply import LocalOp, apply, conjugate, embed
+from budget.engines.matrices.channels import LayerContent
+from budget.engines.matrices.periodic import CycleBasis, cross_cycle_sum, cycle_basis, periodic_sum, principal_generator
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 
 ContentOf = Callable[[NoisyLayer], LayerContent]
@@ -78,7 +78,7 @@ def _exact_remainder(hs: np.ndarray, error: np.ndarray) -> np.ndarray:
     """Replace the second-order generator of a block by the exact one.
 
     ``error`` is E = Ũ U† (the coherent errors pushed to the block's end, exact); its generator
-    H = i log E (:func:`budget.engines.periodic.principal_generator`) differs from H_1 + H_2 by
+    H = i log E (:func:`budget.engines.matrices.periodic.principal_generator`) differs from H_1 + H_2 by
     third and higher orders. That remainder R (traceless) joins the groups' second parts in
     proportion to the sizes of their first-order parts. Skipped when E is too far from the
     identity for the principal branch."""

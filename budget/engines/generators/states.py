@@ -19,9 +19,9 @@ from typing import Hashable
 
 import numpy as np
 
-from budget.engines._apply import apply
-from budget.engines._dense import ContentOf, DensePropagator
-from budget.engines.periodic import CycleBasis, periodic_sum
+from budget.engines.matrices.apply import apply
+from budget.engines.generators.dense import ContentOf, DensePropagator
+from budget.engines.matrices.periodic import CycleBasis, periodic_sum
 from budget.errors.noisy import NoisyCircuit, NoisyLayer
 
 

@@ -15,7 +15,7 @@ anticommute (commute) with O:
 
 On |0…0> a Pauli i^e X^x Z^z has expectation i^e when x = 0, else 0, so a pair counts only when
 x_O ⊕ x_s ⊕ x_t = 0: pairs are found by joining the X parts (128-bit GF(2)-linear fingerprints,
-:func:`budget.engines._pauli_frame.fingerprints`). The quadratic part is what leads when the
+:func:`budget.engines.frame.pauli_frame.fingerprints`). The quadratic part is what leads when the
 linear one vanishes: an over-rotation about the H axis repeated N times leaves <Z> changed by
 -(1 - cos 2a)/2 ≈ -a² (a = N δ/2), with i<[H, Z]> = 0 on |0>.
 """
@@ -24,8 +24,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.engines._groups import group_rows
-from budget.engines._pauli_frame import fingerprints, hermitian_sign, multiply, popcount
+from budget.engines.frame.groups import group_rows
+from budget.engines.frame.pauli_frame import fingerprints, hermitian_sign, multiply, popcount
 
 PHASE = np.array([1, 1j, -1, -1j])
 PAIR_LIMIT = 5_000_000

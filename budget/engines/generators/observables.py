@@ -15,9 +15,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.engines._apply import apply, apply_gate, conjugate
-from budget.engines._dense import ContentOf, DensePropagator
-from budget.engines._jumps import repetitions
+from budget.engines.matrices.apply import apply, apply_gate, conjugate
+from budget.engines.generators.dense import ContentOf, DensePropagator
+from budget.engines.generators.jumps import repetitions
 from budget.errors.fidelity import pauli_matrix
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 

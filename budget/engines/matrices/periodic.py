@@ -29,7 +29,7 @@ from typing import NamedTuple, Sequence
 import numpy as np
 import scipy.linalg
 
-from budget.engines._apply import as_rows
+from budget.engines.matrices.apply import as_rows
 
 DEGENERACY_TOL_RAD = 1e-9
 """Quasi-energies (and frequency differences) closer than this are treated as equal."""

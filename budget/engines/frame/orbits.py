@@ -36,8 +36,8 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse
 
-from budget.engines._groups import group_rows
-from budget.engines._pauli_frame import Frame, num_words, unpack_bits
+from budget.engines.frame.groups import group_rows
+from budget.engines.frame.pauli_frame import Frame, num_words, unpack_bits
 
 MAX_GIANT_STEPS = 1024
 """Giant steps taken at most (offsets up to this many times B repetitions) before giving up."""

@@ -2,7 +2,7 @@
 expectation values.
 
 Density matrices and superoperators come out of the register in the normalised Pauli basis
-(budget/engines/_exact_local.py) and go back to the interleaved (row, column) basis with
+(budget/engines/exact/local.py) and go back to the interleaved (row, column) basis with
 T† per qubit. Then, for input |0…0> and ideal output ψ:
 
     state vector:   F = |<ψ|ψ_actual>|²
@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.engines._exact_local import PAULI_BASIS
+from budget.engines.exact.local import PAULI_BASIS
 from budget.errors.fidelity import pauli_matrix
 
 

@@ -3,7 +3,7 @@
 Unitary block (coherent errors only): complex Schur form B = Z T Z† (scipy.linalg.schur). A
 unitary is normal, so T is diagonal up to rounding and Z is unitary even when eigenvalues are
 degenerate (Clifford blocks, identity blocks): B^N = Z diag(e^{-iNε}) Z†, through
-:func:`budget.engines.periodic.cycle_basis`.
+:func:`budget.engines.matrices.periodic.cycle_basis`.
 
 Channel block (superoperator, not normal in general): eigendecomposition B = V diag(w) V⁻¹ and
 B^N = V diag(w^N) V⁻¹ when V is well conditioned (κ₁(V) = ‖V‖₁‖V⁻¹‖₁ ≤ EIG_CONDITION_LIMIT);
@@ -24,7 +24,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.engines.periodic import cycle_basis
+from budget.engines.matrices.periodic import cycle_basis
 
 EIG_CONDITION_LIMIT = 1e4
 """Largest κ₁ of the eigenvector matrix for which a channel power goes through eig."""

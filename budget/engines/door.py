@@ -19,11 +19,33 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from budget.engines import ENGINE_NAMES, Engine, EngineResult, get_engine
+from importlib import import_module
+
+from budget.engines.base import Engine, EngineResult
 from budget.engines.base import DEFAULT_ESTIMATE_S
 from budget.errors.noisy import NoisyCircuit
 from budget.circuit.ir import item_kind
 from budget.problems import InputError, TooLargeError, place
+
+
+_REGISTRY = {
+    "exact": ("budget.engines.exact", "ExactEngine"),
+    "generators": ("budget.engines.generators", "GeneratorsEngine"),
+    "clifford": ("budget.engines.clifford", "CliffordEngine"),
+    "pauli": ("budget.engines.pauli", "PauliEngine"),
+}
+"""Every engine of the tool: name -> (module, class). Imported on first use."""
+
+ENGINE_NAMES: tuple[str, ...] = tuple(_REGISTRY)
+
+
+def get_engine(name: str) -> Engine:
+    """The engine called ``name`` (one of :data:`ENGINE_NAMES`)."""
+    if name not in _REGISTRY:
+        raise ValueError(f"engine {name!r}: expected one of {', '.join(ENGINE_NAMES)} or auto")
+    module, cls = _REGISTRY[name]
+    return getattr(import_module(module), cls)()
+
 
 AUTO_ORDER = ("exact", "clifford", "generators", "pauli")
 GATE_METRICS = ("process", "state")
@@ -60,13 +82,6 @@ class Choice:
     engine: Engine
     reason: str
     estimate_s: float
-
-
-def _available(name: str) -> Engine | None:
-    try:
-        return get_engine(name)
-    except ImportError:
-        return None
 
 
 def estimate_seconds(engine: Engine, circuit: NoisyCircuit, metric: str) -> float:
@@ -108,12 +123,10 @@ def choose(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: boo
     if name != "auto":
         if name not in ENGINE_NAMES:
             raise InputError(f"engine = {name!r}: expected auto or one of {', '.join(ENGINE_NAMES)}")
-        engine = _available(name)
-        if engine is None:
-            raise InputError(f"engine = {name!r}: not available in this installation")
+        engine = get_engine(name)
         reason = engine.fits(circuit, metric)
         if reason is not None:
-            fitting = [c for c in order if c != name and (e := _available(c)) is not None and e.fits(circuit, metric) is None]
+            fitting = [c for c in order if c != name and get_engine(c).fits(circuit, metric) is None]
             hint = (f"; {' or '.join(fitting)} fits (or --engine auto)" if fitting
                     else _other_metric(circuit, metric, order))
             raise TooLargeError(f"{_size(circuit, metric)}: engine {name}: {reason}{hint}")
@@ -122,9 +135,7 @@ def choose(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: boo
     fitting: list[tuple[str, Engine, float]] = []
     refused: dict[str, str] = {}
     for candidate in order:
-        engine = _available(candidate)
-        if engine is None:
-            continue
+        engine = get_engine(candidate)
         reason = engine.fits(circuit, metric) or _dense_is_slower(candidate, circuit, metric)
         if reason is None:
             fitting.append((candidate, engine, estimate_seconds(engine, circuit, metric)))
@@ -165,7 +176,7 @@ def choose(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: boo
 def _other_metric(circuit: NoisyCircuit, metric: str, order: tuple[str, ...]) -> str:
     """What to change, for a refusal: the other metric when an engine fits it, else the docs."""
     other = "state" if metric == "process" else "process"
-    if any((e := _available(c)) is not None and e.fits(circuit, other) is None for c in order):
+    if any(get_engine(c).fits(circuit, other) is None for c in order):
         return f"; the {other} metric fits (--metric {other})"
     return f"; see {DOCS}"
 
@@ -189,12 +200,12 @@ def choose_engine(circuit: NoisyCircuit, metric: str, name: str = "auto", *, bri
 
 def escalate(circuit: NoisyCircuit, metric: str, requested: str, outcome: EngineResult) -> Engine | None:
     """For ``auto``: the exact engine, when a first-order engine's result rests on a cancellation
-    (``details["rests_on_cancellation"]``, budget/engines/_validity.py) and the exact engine
+    (``details["rests_on_cancellation"]``, budget/engines/orders.py) and the exact engine
     fits and is estimated within MAX_SECONDS; else None. The caller runs it and says so."""
     if requested != "auto" or outcome.engine == "exact" or not outcome.details.get("rests_on_cancellation"):
         return None
-    exact = _available("exact")
-    if exact is None or exact.fits(circuit, metric) is not None or estimate_seconds(exact, circuit, metric) > MAX_SECONDS:
+    exact = get_engine("exact")
+    if exact.fits(circuit, metric) is not None or estimate_seconds(exact, circuit, metric) > MAX_SECONDS:
         return None
     return exact
 
@@ -221,8 +232,8 @@ def first_order_shares(
     for candidate in ("generators", "clifford"):
         if candidate == exclude:
             continue
-        engine = _available(candidate)
-        if engine is None or engine.fits(circuit, metric) is not None:
+        engine = get_engine(candidate)
+        if engine.fits(circuit, metric) is not None:
             continue
         if estimate_seconds(engine, circuit, metric) > MAX_SECONDS:
             continue
@@ -235,3 +246,32 @@ def first_order_shares(
             return {k: v * total / s for k, v in fo.shares.items()}, None
         return dict(fo.shares), None
     return {}, "family shares unavailable: no first-order engine fits this circuit within the time limit"
+
+# --- Keeping answers inside their engine's range (``auto`` only) ---------------------------------
+# The first-order engines say when their approximation no longer holds (EngineResult.beyond_range).
+# With ``auto`` such a result is not the answer: the other engines of AUTO_ORDER that fit (and are
+# estimated to finish within MAX_SECONDS) are tried in turn and the first whose value is in range is
+# used (after ``clifford``, the ``generators`` engine exponentiates the summed Hamiltonian, which
+# stays accurate further, design.md §4). When none is in range the out-of-range result is kept and
+# marked, so the views say plainly that the error is beyond the first-order range and by how much.
+
+
+def run_in_range(circuit: NoisyCircuit, metric: str, chosen: Engine, requested: str, *,
+                 observables: tuple[str, ...] = ()) -> tuple[EngineResult, tuple[str, ...]]:
+    """Run ``chosen``; with ``requested == "auto"`` and a result beyond range, try the other engines.
+
+    Returns the result used and notes saying which engine was left and why.
+    """
+    outcome = chosen.run(circuit, metric, observables=observables)
+    if outcome.beyond_range is None or requested != "auto" or chosen.name not in AUTO_ORDER:
+        return outcome, ()
+    for name in (n for n in AUTO_ORDER if n != chosen.name):
+        other = get_engine(name)
+        if other.fits(circuit, metric) is not None or estimate_seconds(other, circuit, metric) > MAX_SECONDS:
+            continue
+        candidate = other.run(circuit, metric, observables=observables)
+        if candidate.beyond_range is None:
+            note = (f"the {chosen.name} engine is beyond its range here ({outcome.beyond_range}); "
+                    f"auto used the {name} engine, which is within its range")
+            return candidate, (note,)
+    return outcome, ()

@@ -1,6 +1,6 @@
 """The exact engine: dense simulation of the noisy circuit, repeated blocks by matrix powers.
 
-Which dense form runs (budget/engines/_exact_plan.py):
+Which dense form runs (budget/engines/exact/plan.py):
 
     coherent errors only  state metric   -> state vector ψ;          F = |<ψ_ideal|ψ>|²
                           process metric -> unitary U;               F_pro = |Tr(U_ideal† U)|²/d²
@@ -13,14 +13,14 @@ superoperator is the Choi state of the doubled system reshuffled: the same 16^n 
 same work per gate, so the engine keeps the superoperator, which repeated blocks need anyway.
 
 Each operation's channel (ideal gate, coherent unitary, Pauli rates, depolarizing, relaxation;
-budget/errors/noisy.py) is one local matrix (:mod:`budget.engines._exact_local`; density
+budget/errors/noisy.py) is one local matrix (:mod:`budget.engines.exact.local`; density
 matrices and superoperators are held in the real Pauli basis, channels as Pauli transfer
 matrices); consecutive
 matrices on at most two qubits are multiplied together before they touch the register
-(:mod:`budget.engines._exact_register`). A repeated block (NoisyRepeat, nested allowed) is
-either unrolled or replaced by its block matrix to the power N (:mod:`budget.engines._exact_power`:
+(:mod:`budget.engines.exact.register`). A repeated block (NoisyRepeat, nested allowed) is
+either unrolled or replaced by its block matrix to the power N (:mod:`budget.engines.exact.power`:
 Schur form for unitaries, eigendecomposition or squaring for channels), whichever is cheaper, so
-N = 10^9 costs what N = 2 costs. The metrics are read out by :mod:`budget.engines._exact_readout`.
+N = 10^9 costs what N = 2 costs. The metrics are read out by :mod:`budget.engines.exact.readout`.
 Shares are left to the analysis layer.
 """
 
@@ -31,17 +31,17 @@ from typing import Callable
 
 import numpy as np
 
-from budget.engines._exact_local import (
+from budget.engines.exact.local import (
     PAULI_BASIS,
     channel_superop,
     gate_unitary,
     pauli_transfer,
     relaxation_superop,
 )
-from budget.engines._exact_plan import REPEAT_MODES, make_plan, refusal
-from budget.engines._exact_power import channel_power, unitary_power
-from budget.engines._exact_readout import expectation, from_pauli, infidelity
-from budget.engines._exact_register import Fuser, Register
+from budget.engines.exact.plan import REPEAT_MODES, make_plan, refusal
+from budget.engines.exact.power import channel_power, unitary_power
+from budget.engines.exact.readout import expectation, from_pauli, infidelity
+from budget.engines.exact.register import Fuser, Register
 from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, EngineResult, Metric, parse_observable, zero_result
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
 from budget.problems import TooLargeError
@@ -133,7 +133,7 @@ def _content_key(nop: NoisyOperation) -> tuple:
 
 
 class ExactEngine:
-    """Dense exact simulation; reach limits in budget/engines/_exact_plan.py.
+    """Dense exact simulation; reach limits in budget/engines/exact/plan.py.
 
     Args:
         repeats: ``"auto"`` (default) takes the cheaper of unrolling a repeated block and raising

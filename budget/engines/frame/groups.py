@@ -21,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse
 
-from budget.engines._sinks import GroupSink
+from budget.engines.frame.sinks import GroupSink
 from budget.engines.base import EngineResult
 
 SMALL = 0.1

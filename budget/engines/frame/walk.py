@@ -24,7 +24,7 @@ repeated squaring of tableaus (stim.Tableau ** N). A warning says so.
 
 Long periods, process metric: when a top-level block is the only repeated block carrying coherent
 terms, :meth:`Walker._orbit_repeat` walks only ``orbit_baby`` repetitions and hands the rest to
-the orbit search of :mod:`budget.engines._orbits` (cost independent of N and about B + r/B steps
+the orbit search of :mod:`budget.engines.frame.orbits` (cost independent of N and about B + r/B steps
 instead of r repetitions); coherent terms of plain layers around it are collected in its frame by
 :meth:`Walker._collect` and matched against its orbits.
 """
@@ -36,7 +36,7 @@ from typing import Protocol
 import numpy as np
 
 from budget.circuit.clifford_check import operation_clifford
-from budget.engines._pauli_frame import Frame, GateClass, layer_classes
+from budget.engines.frame.pauli_frame import Frame, GateClass, layer_classes
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 
 MAX_UNROLLED = 4096
@@ -223,7 +223,7 @@ class Walker:
         self._approximate(rep, start, limit, marks)
 
     def _orbit_repeat(self, rep: NoisyRepeat) -> None:
-        """Fold the block by the orbits of its terms (see :mod:`budget.engines._orbits`).
+        """Fold the block by the orbits of its terms (see :mod:`budget.engines.frame.orbits`).
 
         The block is walked from the identity frame (its own end frame); coherent terms of plain
         layers outside it were collected by :meth:`_collect` in the block's end frame (after it)
@@ -233,7 +233,7 @@ class Walker:
         search replaces the coherent terms by runs of equal amplitude, and the stochastic rates of
         the block are scaled by N / B.
         """
-        from budget.engines._orbits import OrbitSearch, _slots
+        from budget.engines.frame.orbits import OrbitSearch, _slots
 
         count, b, sink = int(rep.count), self.orbit_baby, self.sink
         outside = [(part, start) for part, start in zip(self._outside, (0, count)) if part is not None]
@@ -319,7 +319,7 @@ class Walker:
                 w = float(q + (1 if k < s else 0))
                 if w != 1.0:
                     self.sink.scale(marks[k], marks[k + 1], w, w)
-            if hasattr(self.sink, "fold"):  # the second-order pass (budget/engines/_second.py)
+            if hasattr(self.sink, "fold"):  # the second-order pass (budget/engines/clifford/second.py)
                 self.sink.fold(marks[: period + 1], int(rep.count))
         base = s - s % SNAPSHOT_STRIDE  # frame is back at the start: advance it by s blocks
         self.frame = snapshots[base].copy()

@@ -25,7 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 import stim
 
-from budget.engines._stim import to_stim
+from budget.engines.clifford.stim_circuit import to_stim
 from budget.errors.fidelity import error_channel_kraus, pauli_matrix
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyMeasure, NoisyReset
 

@@ -2,20 +2,20 @@
 
 The circuit's body is propagated once (dense generator H_c and ideal unitary U_c of one cycle,
 first-order content of every layer); each N then costs O(d³) through the periodic closed form
-(:mod:`budget.engines.periodic`), with no re-simulation:
+(:mod:`budget.engines.matrices.periodic`), with no re-simulation:
 
 - coherent: exponentiated infidelity of the exact generator of N cycles, from the Schur bases of
   the ideal and the noisy cycle unitary (as the generators engine's dense blocks,
-  :mod:`budget.engines._dense`); where its principal branch is not safe, S_N(H_c) + C_N(H_c, H_c)
+  :mod:`budget.engines.generators.dense`); where its principal branch is not safe, S_N(H_c) + C_N(H_c, H_c)
   (the per-cycle generator summed over the cycles with the second-order commutators between
-  them, :func:`budget.engines.periodic.cross_cycle_sum`); first order from the first-order part;
+  them, :func:`budget.engines.matrices.periodic.cross_cycle_sum`); first order from the first-order part;
 - stochastic, process metric: N times the per-cycle first-order sum;
 - stochastic, state metric: Σ_k over cycles of the jump costs p (<L†L> - |<L>|²), by the geometric
   sums over the cycle's quasi-energies (exact when the closed form applies, else evaluated per N
-  with sampled repetitions as in :mod:`budget.engines._jumps`).
+  with sampled repetitions as in :mod:`budget.engines.generators.jumps`).
 
 The same numbers as ``GeneratorsEngine().run(circuit.with_cycles(N))`` would give, for every N in
-one call; :func:`budget.engines.periodic.accumulation_split` says which part of the cycle's error
+one call; :func:`budget.engines.matrices.periodic.accumulation_split` says which part of the cycle's error
 builds up (∝ N) and which is echoed away.
 """
 
@@ -26,11 +26,11 @@ from typing import Sequence
 
 import numpy as np
 
-from budget.engines._channels import content_cache
-from budget.engines._dense import DensePropagator
-from budget.engines._jumps import StateJumps
+from budget.engines.matrices.channels import content_cache
+from budget.engines.generators.dense import DensePropagator
+from budget.engines.generators.jumps import StateJumps
 from budget.engines.base import Metric
-from budget.engines.periodic import AccumulationSplit, accumulation_split, coherent_curve, cycle_basis, exact_coherent_curve
+from budget.engines.matrices.periodic import AccumulationSplit, accumulation_split, coherent_curve, cycle_basis, exact_coherent_curve
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.problems import TooLargeError
 
@@ -68,7 +68,7 @@ def depth_curve(circuit: NoisyCircuit, metric: Metric, counts: Sequence[int]) ->
     >>> [round(float(v), 10) for v in depth_curve(c, "process", [1, 100]).infidelity]
     [2.49998e-05, 0.2298488471]
     """
-    from budget.engines.generators import GeneratorsEngine
+    from budget.engines.generators.engine import GeneratorsEngine
 
     reason = GeneratorsEngine().fits(NoisyCircuit(circuit.qubits, (NoisyRepeat(circuit.body, 2),)), metric)
     if reason is not None:

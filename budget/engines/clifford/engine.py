@@ -7,16 +7,16 @@ no matrices: each operation's coherent part is its exact Pauli Hamiltonian Σ h_
 part stochastic Pauli rates (depolarizing λ -> λ/d² per Pauli; T1/T2 through the Pauli twirl of
 Tomita & Svore, Phys. Rev. A 90, 062320 (2014)). Every term is mapped to the output frame
 (process metric) or back to the input frame (state metric, observables) by a running tableau kept
-as packed bits (:mod:`budget.engines._pauli_frame`), and amplitudes add within a group:
+as packed bits (:mod:`budget.engines.frame.pauli_frame`), and amplitudes add within a group:
 
     process:  e_F ≈ Σ_Q (Σ_{t→Q} h_t s_t)² + Σ_t p_t
     state:    1 - F ≈ Σ_{x≠0} |Σ_{t→x} h_t i^{e_t}|² + Σ_{t: x_t≠0} p_t
 
 (the state sum is Var_{0…0}(H_in) written per X part). Repeated blocks are folded by the period of
-their Clifford (:mod:`budget.engines._walk`); observables use only their backward light cone
-(:mod:`budget.engines._cone`). As in the generators engine, the reported infidelity is the
+their Clifford (:mod:`budget.engines.frame.walk`); observables use only their backward light cone
+(:mod:`budget.engines.clifford.cone`). As in the generators engine, the reported infidelity is the
 resummed coherent part 1 - Π cos²|A_g| plus the first-order stochastic part, and the family shares
-(coherent shares scaled by resummed / first order) add up to it (:mod:`budget.engines._groups`);
+(coherent shares scaled by resummed / first order) add up to it (:mod:`budget.engines.frame.groups`);
 ``first_order`` is the sum above, ``details["first_order_family_shares"]`` its split.
 """
 
@@ -25,22 +25,22 @@ from __future__ import annotations
 import numpy as np
 
 from budget.circuit.clifford_check import first_non_clifford, label_bits
-from budget.engines._cone import light_cone
-from budget.engines._knobs import knob_grouping
-from budget.engines._groups import Budget, aggregate, quadratic_matrix
-from budget.engines._pauli_frame import num_words
-from budget.engines._pauli_observables import merge_terms, observable_change
-from budget.engines._second import PAIR_BUDGET, SecondOrderSink, TooCostly
-from budget.engines._sinks import GroupSink, LandingSink, ObservableSink
-from budget.engines._terms import Sources, TermBuilder
-from budget.engines._validity import (
+from budget.engines.clifford.cone import light_cone
+from budget.engines.knob_rows import knob_grouping
+from budget.engines.frame.groups import Budget, aggregate, quadratic_matrix
+from budget.engines.frame.pauli_frame import num_words
+from budget.engines.clifford.observables import merge_terms, observable_change
+from budget.engines.clifford.second import PAIR_BUDGET, SecondOrderSink, TooCostly
+from budget.engines.frame.sinks import GroupSink, LandingSink, ObservableSink
+from budget.engines.frame.terms import Sources, TermBuilder
+from budget.engines.orders import (
     cancellation_note,
     second_order_share,
     term_norm_sum,
     term_square_sum,
     validity_details,
 )
-from budget.engines._walk import MAX_UNROLLED, ORBIT_BABY, Walker
+from budget.engines.frame.walk import MAX_UNROLLED, ORBIT_BABY, Walker
 from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.errors.noisy import NoisyCircuit
 from budget.problems import TooLargeError
@@ -80,9 +80,9 @@ class CliffordEngine:
         top: number of operations listed in the drill-down.
         prune_observables: evaluate observables on their backward light cone only.
         orbit_baby: baby steps of the orbit fold of long-period blocks (process metric; see
-            budget/engines/_orbits.py); 0 folds every block by its period instead.
+            budget/engines/frame/orbits.py); 0 folds every block by its period instead.
         second_order: add the second-order (commutator) terms of the effective generator
-            (budget/engines/_second.py) when affordable or when the first order looks cancelled.
+            (budget/engines/clifford/second.py) when affordable or when the first order looks cancelled.
     """
 
     name = "clifford"
@@ -354,7 +354,7 @@ class CliffordEngine:
 
     def _coherent_observables(self, circuit: NoisyCircuit, obs: tuple, plans: dict) -> np.ndarray | None:
         """Coherent change of each observable to second order (linear term of H_1 + H_2 and the
-        quadratic terms, budget/engines/_pauli_observables.py) from the full input-frame terms of
+        quadratic terms, budget/engines/clifford/observables.py) from the full input-frame terms of
         one more walk (only when the first walk's terms, paired, stay within PAIR_BUDGET); None when that
         walk goes beyond its budgets or folds approximately (the first-order linear term then
         stands alone)."""
@@ -377,7 +377,7 @@ class CliffordEngine:
     def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:
         """e ≈ δᵀ A δ + floor over (family, knob) labels, from the knobs' first-order generators.
 
-        Labels and values as in :func:`budget.engines._knobs.knob_grouping` (shared with the
+        Labels and values as in :func:`budget.engines.knob_rows.knob_grouping` (shared with the
         generators engine): δ is the knob value of largest magnitude in the family, each operation
         enters scaled by its value / δ, and operations with a Hamiltonian but no knobs form the
         knob ``"pauli"`` with δ = 1. A_ab = Σ_g Re(conj(B_ga) B_gb) over the groups of
