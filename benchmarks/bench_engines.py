@@ -33,7 +33,7 @@ import scipy.linalg
 from budget.circuit.ir import Operation
 from budget.engines import ENGINE_NAMES, get_engine
 from budget.engines.exact.engine import ExactEngine
-from budget.errors.fidelity import pauli_matrix
+from budget.pauli_algebra import pauli_matrix
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
 
 CYCLES = 50

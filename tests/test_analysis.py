@@ -11,8 +11,9 @@ import numpy as np
 import pytest
 
 from budget.analysis.run import analyze
-from budget.analysis.twirl import twirl_probabilities, twirled_circuit
+from budget.analysis.twirl import twirled_circuit
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
+from budget.pauli_algebra import twirl_probabilities
 
 DELTA = 0.01
 N = 100

@@ -36,9 +36,9 @@ from budget.analysis.tolerances import tolerances
 from budget.circuit.ir import Layer, Operation, StructuredCircuit
 from budget.engines.base import QuadraticForm
 from budget.errors.attach import attach
-from budget.errors.fidelity import pauli_matrix
 from budget.errors.model import ErrorModel
 from budget.errors.noisy import NoisyOperation, Relaxation
+from budget.pauli_algebra import pauli_matrix
 from budget.problems import ModelError
 
 TRIALS = 20_000

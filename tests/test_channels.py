@@ -20,15 +20,12 @@ from budget.errors.fidelity import (
     error_channel_kraus,
     naive_infidelity,
     operation_process_fidelity,
-    pauli_decompose,
-    pauli_hamiltonian,
-    pauli_labels,
-    pauli_matrix,
     relaxation_process_fidelity,
 )
 from budget.errors.knobs import coherent_error
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat
 from budget.errors.params import GateParams, QubitParams
+from budget.pauli_algebra import pauli_decompose, pauli_hamiltonian, pauli_labels, pauli_matrix
 from tests.reference import cirq_process_infidelity, random_noisy_circuit
 
 Q = cirq.LineQubit.range(2)

@@ -22,11 +22,12 @@ import stim
 from budget.circuit.clifford_check import is_clifford, local_clifford, operation_clifford
 from budget.circuit.ir import Operation
 from budget.engines.clifford.cone import light_cone
-from budget.engines.frame.pauli_frame import Frame, hermitian_sign, layer_classes, pack_bits, unpack_bits
+from budget.engines.frame.pauli_frame import Frame, layer_classes, pack_bits, unpack_bits
 from budget.engines.frame.walk import Walker
 from budget.engines.clifford.engine import CliffordEngine
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
 from budget.problems import TooLargeError
+from budget.pauli_algebra import hermitian_sign
 from clifford_reference import ONE, TWO, dense_first_order, random_clifford_circuit, random_layer, unrolled
 from reference import cirq_infidelity, pauli_matrix
 

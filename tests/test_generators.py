@@ -22,8 +22,8 @@ from budget.engines.generators import states as _states
 from budget.engines.matrices import apply as _apply
 from budget.engines.base import parse_observable
 from budget.engines.generators.engine import MAX_DENSE_QUBITS, GeneratorsEngine
-from budget.errors.fidelity import pauli_hamiltonian, pauli_matrix
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
+from budget.pauli_algebra import pauli_hamiltonian, pauli_matrix
 from budget.problems import TooLargeError
 from reference import cirq_final_states, cirq_infidelity, random_noisy_circuit, scaled_incoherent
 

@@ -23,8 +23,8 @@ from budget.analysis.folding import scaled
 from budget.engines.clifford.frames import frames
 from budget.engines.knob_rows import _knob_terms, knob_grouping
 from budget.engines.base import QuadraticForm
-from budget.errors.fidelity import pauli_matrix
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyRepeat
+from budget.pauli_algebra import pauli_sum
 from budget.problems import InputError, TooLargeError
 
 STEP_RAD = 1e-3
@@ -46,8 +46,7 @@ def with_knobs(noisy: NoisyCircuit, values: dict[tuple[str, str], float], scale:
             ratio = v / scale[key] if scale[key] else 1.0
             for p, c in gen.items():
                 ham[p] = ham.get(p, 0.0) + values.get(key, 0.0) * ratio * c
-        k = len(nop.qubits)
-        h = sum((c * pauli_matrix(p) for p, c in ham.items()), np.zeros((2**k, 2**k), complex))
+        h = pauli_sum(ham, len(nop.qubits))
         return dataclasses.replace(nop, coherent=expm(-1j * h), hamiltonian={p: c for p, c in ham.items() if c})
 
     def items(its):

@@ -29,6 +29,7 @@ import numpy as np
 import scipy.linalg
 
 from budget.errors.noisy import NoisyCircuit, NoisyOperation
+from budget.pauli_algebra import pauli_sum
 
 QUADRATURE_FACTOR = 2.0
 """Shots of the two-quadrature estimator relative to the Cramér-Rao bound (the worst over φ)."""
@@ -145,8 +146,6 @@ def phase_per_radian(nop: NoisyOperation, knob: str) -> float:
     phase grows by a·δ per repetition with a = λ_max(K_c) - λ_min(K_c). a = 0 means repetition
     alone does not amplify the knob (e.g. an axis error on a π pulse is echoed away).
     """
-    from budget.errors.fidelity import pauli_sum
-
     generator = nop.knob_generators.get(knob)
     if generator is None:
         raise KeyError(f"operation {nop.op.gate} on {nop.qubits} has no knob {knob!r}")

@@ -26,15 +26,15 @@ limited by :data:`MAX_COMPILED_LAYERS`.
 
 from __future__ import annotations
 
-import itertools
 from dataclasses import dataclass
 from functools import lru_cache
 from typing import Callable
 
 import numpy as np
+import stim
 
+from budget.circuit.clifford_check import clifford_tableau, conjugated_label
 from budget.circuit.ir import Operation
-from budget.errors.fidelity import pauli_decompose, pauli_matrix
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation
 from budget.problems import InputError, TooLargeError
 
@@ -55,19 +55,9 @@ Progress = Callable[[int, int], None]
 
 
 @lru_cache(maxsize=256)
-def _conjugation_table(key: bytes, k: int) -> dict[str, str] | None:
-    """Pauli label -> label of U P U† (sign dropped) for all Paulis on k qubits, or None if U is
-    not Clifford. ``key`` is the matrix bytes (complex128, gate order)."""
-    u = np.frombuffer(key, dtype=complex).reshape(2**k, 2**k)
-    out: dict[str, str] = {}
-    for letters in itertools.product("IXYZ", repeat=k):
-        label = "".join(letters)
-        image = u @ pauli_matrix(label) @ u.conj().T
-        terms = pauli_decompose(image, tol=1e-9)
-        if len(terms) != 1 or abs(abs(next(iter(terms.values()))) - 1.0) > 1e-9:
-            return None
-        out[label] = next(iter(terms))
-    return out
+def _tableau(key: bytes, k: int) -> stim.Tableau | None:
+    """The Clifford tableau of the matrix with these bytes (complex128, gate order), or None."""
+    return clifford_tableau(np.frombuffer(key, dtype=complex).reshape(2**k, 2**k))
 
 
 def conjugated_pauli(unitary: np.ndarray, label: str) -> str | None:
@@ -81,8 +71,8 @@ def conjugated_pauli(unitary: np.ndarray, label: str) -> str | None:
     True
     """
     u = np.ascontiguousarray(np.asarray(unitary, dtype=complex))
-    table = _conjugation_table(u.tobytes(), len(label))
-    return None if table is None else table[label]
+    tab = _tableau(u.tobytes(), len(label))
+    return None if tab is None else conjugated_label(tab, label)[1]
 
 
 def _frame_op(qubit: int, letter: str) -> NoisyOperation:

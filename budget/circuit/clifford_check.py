@@ -1,4 +1,4 @@
-"""Is an operation Clifford? Its local tableau, read from its matrix.
+"""Is an operation Clifford? Its local tableau, read from its matrix by stim.
 
 A unitary U on k qubits is Clifford when it maps every Pauli to a Pauli under conjugation; it is
 enough to check the 2k generators X_j, Z_j (Gottesman, "The Heisenberg representation of quantum
@@ -6,12 +6,14 @@ computers", arXiv:quant-ph/9807006 (1998)). The check works on the ideal matrix,
 gate is covered (x, y, z, h, s, sdg, sx, sxdg, cx, cy, cz, swap, iswap, and rx/ry/rz/p/u/cp/rzz with
 angles at multiples of π/2) as well as fallback ``unitary`` gates.
 
-A local Pauli is written (x bits, z bits, e): the operator i^e X^x Z^z with the X factors first,
-qubits in gate order. A Hermitian Pauli label such as ``"XY"`` has e = number of Y letters (Y = iXZ).
+stim reads the tableau (``stim.Tableau.from_unitary_matrix``; Gidney, "Stim: a fast stabilizer
+circuit simulator", Quantum 5, 497 (2021)); stim snaps loosely, so the matrix is then held to
+:data:`TOLERANCE`: each conjugated generator must be the tableau's signed Pauli to within ``tol`` in
+every Pauli coefficient; an angle π/2 + ε passes for |ε| ≲ 2·tol. The small difference is then
+ignored (the snapped Clifford is the ideal gate).
 
-The tolerance: a gate counts as Clifford when each conjugated generator is a signed Pauli to within
-``tol`` in every Pauli coefficient; an angle π/2 + ε passes for |ε| ≲ 2·tol. The small difference is
-then ignored (the snapped Clifford is the ideal gate).
+Local Paulis are in the bit form of :mod:`budget.pauli_algebra`: (x bits, z bits, e) meaning
+i^e X^x Z^z with the X factors first, qubits in gate order.
 """
 
 from __future__ import annotations
@@ -20,39 +22,69 @@ from dataclasses import dataclass
 from typing import Iterable
 
 import numpy as np
+import stim
 
 from budget.circuit.ir import Operation
-from budget.errors.fidelity import pauli_decompose, pauli_labels, pauli_matrix
+from budget.pauli_algebra import LocalPauli, pauli_coefficients, pauli_labels, pauli_matrix
 
 TOLERANCE = 1e-9
 """Largest Pauli coefficient allowed off the dominant one (dimensionless; ≈ half an angle offset)."""
 
-LocalPauli = tuple[tuple[int, ...], tuple[int, ...], int]
-"""(x bits, z bits, e) meaning i^e X^x Z^z on the gate's qubits in gate order."""
+
+def _label(ps: stim.PauliString) -> str:
+    return "".join("IXYZ"[ps[q]] for q in range(len(ps)))
 
 
-def label_bits(label: str) -> LocalPauli:
-    """The (x, z, e) form of a Hermitian Pauli label.
+def _bits(ps: stim.PauliString) -> LocalPauli:
+    """(x, z, e) of a stim Pauli string with sign ±1."""
+    codes = [ps[q] for q in range(len(ps))]  # 0..3 = I, X, Y, Z
+    x = tuple(int(c in (1, 2)) for c in codes)
+    z = tuple(int(c in (2, 3)) for c in codes)
+    return x, z, (codes.count(2) + (2 if ps.sign == -1 else 0)) % 4
 
-    >>> label_bits("XY")
-    ((1, 1), (0, 1), 1)
+
+def _outputs(tab: stim.Tableau) -> list[stim.PauliString]:
+    """Images of X_0..X_{k-1}, Z_0..Z_{k-1}."""
+    k = len(tab)
+    return [tab.x_output(j) for j in range(k)] + [tab.z_output(j) for j in range(k)]
+
+
+def clifford_tableau(unitary: np.ndarray, tol: float = TOLERANCE) -> stim.Tableau | None:
+    """The stim tableau of ``unitary`` (gate order, first qubit most significant; it maps P to
+    U P U†), or None when the matrix is not Clifford to within ``tol`` (module docstring).
+
+    >>> str(clifford_tableau(np.array([[0, 1j], [1, 0]])).z_output(0))
+    '-Z'
+    >>> clifford_tableau(np.diag([1, np.exp(0.25j * np.pi)])) is None
+    True
     """
-    x = tuple(int(c in "XY") for c in label)
-    z = tuple(int(c in "YZ") for c in label)
-    return x, z, label.count("Y") % 4
-
-
-def _as_pauli(m: np.ndarray, tol: float) -> LocalPauli | None:
-    """The signed Pauli equal to Hermitian ``m`` (to ``tol``), or None if it is not one."""
-    k = int(round(np.log2(m.shape[0])))
-    coeffs = np.array(list(pauli_decompose(m).values()))
-    best = int(np.argmax(np.abs(coeffs)))
-    rest = np.delete(coeffs, best)
-    c = coeffs[best]
-    if rest.size and np.max(np.abs(rest)) > tol or abs(abs(c) - 1) > 2 * tol or abs(c.imag) > 2 * tol:
+    u = np.asarray(unitary, dtype=complex)
+    k = u.shape[0].bit_length() - 1
+    try:
+        tab = stim.Tableau.from_unitary_matrix(u, endian="big")
+    except ValueError:
         return None
-    x, z, e = label_bits(pauli_labels(k)[best])
-    return x, z, (e + (2 if c.real < 0 else 0)) % 4
+    gens = np.array([pauli_matrix("".join(c if i == j else "I" for i in range(k))) for c in "XZ" for j in range(k)])
+    coeffs = pauli_coefficients(np.concatenate([u @ gens @ u.conj().T, u.conj().T @ gens @ u]))
+    index = {label: i for i, label in enumerate(pauli_labels(k))}
+    for row, ps in zip(coeffs, _outputs(tab) + _outputs(tab.inverse())):
+        at = index[_label(ps)]
+        c, rest = row[at], np.delete(row, at)
+        if rest.size and np.max(np.abs(rest)) > tol or abs(abs(c) - 1) > 2 * tol or abs(c.imag) > 2 * tol:
+            return None
+        if (c.real < 0) != (ps.sign == -1):
+            return None
+    return tab
+
+
+def conjugated_label(tab: stim.Tableau, label: str) -> tuple[int, str]:
+    """(sign, label) with U P U† = sign · P_label for the Clifford U of ``tab``.
+
+    >>> conjugated_label(clifford_tableau(np.array([[1, 1], [1, -1]]) / np.sqrt(2)), "Y")
+    (-1, 'Y')
+    """
+    out = tab(stim.PauliString(label))
+    return int(out.sign.real), _label(out)
 
 
 @dataclass(frozen=True)
@@ -83,20 +115,12 @@ def local_clifford(unitary: np.ndarray, tol: float = TOLERANCE) -> LocalClifford
     >>> local_clifford(cirq.unitary(cirq.T)) is None
     True
     """
-    u = np.asarray(unitary, dtype=complex)
-    k = int(round(np.log2(u.shape[0])))
-    gens = [pauli_matrix("".join("X" if i == j else "I" for i in range(k))) for j in range(k)]
-    gens += [pauli_matrix("".join("Z" if i == j else "I" for i in range(k))) for j in range(k)]
-    fwd, bwd = [], []
-    for g in gens:
-        a = _as_pauli(u @ g @ u.conj().T, tol)
-        b = _as_pauli(u.conj().T @ g @ u, tol)
-        if a is None or b is None:
-            return None
-        fwd.append(a)
-        bwd.append(b)
-    unit = [label_bits("".join(c if i == j else "I" for i in range(k))) for c in "XZ" for j in range(k)]
-    return LocalClifford(k, tuple(fwd), tuple(bwd), tuple(fwd) == tuple(unit))
+    tab = clifford_tableau(unitary, tol)
+    if tab is None:
+        return None
+    k = len(tab)
+    return LocalClifford(k, tuple(map(_bits, _outputs(tab))), tuple(map(_bits, _outputs(tab.inverse()))),
+                         tab == stim.Tableau(k))
 
 
 _CACHE: dict[tuple, LocalClifford | None] = {}

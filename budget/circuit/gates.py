@@ -17,10 +17,8 @@ from typing import Callable
 
 import numpy as np
 
-_I = np.eye(2, dtype=complex)
-_X = np.array([[0, 1], [1, 0]], dtype=complex)
-_Y = np.array([[0, -1j], [1j, 0]], dtype=complex)
-_Z = np.diag([1.0 + 0j, -1.0])
+from budget.pauli_algebra import I as _I, X as _X, Y as _Y, Z as _Z
+
 _P1 = np.diag([0.0 + 0j, 1.0])  # |1><1|
 
 

@@ -1,7 +1,8 @@
-"""Pauli-basis helpers, each operation's error channel, and the naive fidelity product.
+"""Each operation's error channel and the naive fidelity product.
 
 Conventions: matrices in gate order, first qubit most significant (cirq's convention); a Pauli
-label such as ``"XZ"`` means X on the operation's first qubit and Z on its second.
+label such as ``"XZ"`` means X on the operation's first qubit and Z on its second (the Pauli
+algebra itself is :mod:`budget.pauli_algebra`).
 
 Process fidelity of a channel E relative to the identity (the error channel of an operation is
 measured against "no error"): F_pro = (1/d²) Σ_k |Tr K_k|² over its Kraus operators K_k, and the
@@ -10,126 +11,18 @@ average gate fidelity is F_avg = (d F_pro + 1)/(d + 1) (Nielsen, Phys. Lett. A 3
 
 from __future__ import annotations
 
-import itertools
 import math
-from functools import lru_cache
 
 import numpy as np
-import scipy.linalg
 
 from budget.errors.noisy import NoisyCircuit, NoisyOperation, Relaxation
-
-_ONE_QUBIT = {
-    "I": np.eye(2, dtype=complex),
-    "X": np.array([[0, 1], [1, 0]], dtype=complex),
-    "Y": np.array([[0, -1j], [1j, 0]], dtype=complex),
-    "Z": np.diag([1.0 + 0j, -1.0]),
-}
-# _TO_PAULI[p, 2*i + j] = P_p[j, i], so Tr(P M) = Σ_ij P[j, i] M[i, j] is one contraction per qubit.
-_TO_PAULI = np.array([m.T.reshape(4) for m in _ONE_QUBIT.values()])
-
-
-@lru_cache(maxsize=None)
-def pauli_labels(n: int) -> tuple[str, ...]:
-    """All 4**n Pauli labels on n qubits, ``"I…I"`` first, letters in the order I, X, Y, Z.
-
-    >>> pauli_labels(1)
-    ('I', 'X', 'Y', 'Z')
-    """
-    return tuple("".join(p) for p in itertools.product("IXYZ", repeat=n))
-
-
-@lru_cache(maxsize=4096)
-def pauli_matrix(label: str) -> np.ndarray:
-    """The matrix of a Pauli label (read-only), first letter on the most significant qubit.
-
-    >>> pauli_matrix("XZ").real.astype(int).tolist()[0]
-    [0, 0, 1, 0]
-    """
-    if not label or set(label) - set("IXYZ"):
-        raise ValueError(f"Pauli label {label!r}: expected a non-empty string of the letters I, X, Y, Z")
-    m = np.ones((1, 1), dtype=complex)
-    for ch in label:
-        m = np.kron(m, _ONE_QUBIT[ch])
-    m.setflags(write=False)
-    return m
-
-
-def pauli_sum(terms, num_qubits: int | None = None) -> np.ndarray:
-    """Σ h_P P as a matrix (gate order) from a dict or (label, h) pairs; ``num_qubits`` sizes an
-    empty sum.
-
-    >>> pauli_sum({"Z": 0.5}).real.tolist()
-    [[0.5, 0.0], [0.0, -0.5]]
-    """
-    items = list(terms.items()) if isinstance(terms, dict) else list(terms)
-    k = len(items[0][0]) if items else num_qubits
-    if k is None:
-        raise ValueError("pauli_sum: an empty sum needs num_qubits")
-    out = np.zeros((2**k, 2**k), dtype=complex)
-    for label, h in items:
-        out += h * pauli_matrix(label)
-    return out
-
-
-def pauli_decompose(matrix: np.ndarray, *, tol: float | None = None) -> dict[str, complex]:
-    """Coefficients c_P with matrix = Σ_P c_P P, c_P = Tr(P M)/d.
-
-    Args:
-        matrix: a d x d matrix, d = 2**n.
-        tol: when given, labels with |c_P| <= tol are left out; by default all 4**n labels appear.
-
-    >>> pauli_decompose(np.diag([1.0, 0.0]))
-    {'I': (0.5+0j), 'X': 0j, 'Y': 0j, 'Z': (0.5+0j)}
-    """
-    m = np.asarray(matrix, dtype=complex)
-    d = m.shape[0]
-    n = d.bit_length() - 1
-    if m.shape != (d, d) or d != 2**n or n < 1:
-        raise ValueError(f"matrix of shape {m.shape}: expected a square matrix of side 2**n, n >= 1")
-    t = m.reshape((2,) * (2 * n))
-    t = t.transpose([k for q in range(n) for k in (q, n + q)]).reshape((4,) * n)
-    for axis in range(n):
-        t = np.moveaxis(np.tensordot(_TO_PAULI, t, axes=([1], [axis])), 0, axis)
-    coeffs = t.reshape(-1) / d
-    return {
-        label: complex(c)
-        for label, c in zip(pauli_labels(n), coeffs)
-        if tol is None or abs(c) > tol
-    }
-
-
-def pauli_hamiltonian(unitary: np.ndarray, *, tol: float = 1e-15) -> dict[str, float]:
-    """H = Σ h_P P with unitary = exp(-i H) up to global phase; identity label left out.
-
-    The global phase arg Tr U is removed first, then the principal logarithm is taken through a
-    complex Schur decomposition (unitary, so the Schur form is diagonal and the basis stays unitary
-    for degenerate eigenvalues). Exact for any error whose eigenphases spread less than π.
-    Labels with |h_P| < tol are dropped.
-
-    >>> h = pauli_hamiltonian(scipy.linalg.expm(-0.01j * pauli_matrix("X")))
-    >>> list(h), round(h["X"], 12)
-    (['X'], 0.01)
-    """
-    u = np.asarray(unitary, dtype=complex)
-    tr = np.trace(u)
-    if abs(tr) > 1e-12:
-        u = u * (tr.conjugate() / abs(tr))
-    t, q = scipy.linalg.schur(u, output="complex")
-    phases = np.angle(np.diag(t))
-    h = -(q * phases) @ q.conj().T
-    out = {}
-    for label, c in pauli_decompose(h).items():
-        if "X" in label or "Y" in label or "Z" in label:
-            if abs(c.real) >= tol:
-                out[label] = float(c.real)
-    return out
+from budget.pauli_algebra import I, pauli_labels, pauli_matrix
 
 
 def _embed(k: np.ndarray, pos: int, n: int) -> np.ndarray:
     out = np.ones((1, 1), dtype=complex)
     for j in range(n):
-        out = np.kron(out, k if j == pos else _ONE_QUBIT["I"])
+        out = np.kron(out, k if j == pos else I)
     return out
 
 

@@ -25,10 +25,9 @@ from functools import reduce
 import numpy as np
 
 from budget.circuit.gates import ideal_unitary, overrotation_unitary
-from budget.errors.fidelity import pauli_decompose, pauli_hamiltonian, pauli_sum
 from budget.errors.params import GateParams
-
-_Z = np.diag([1.0 + 0j, -1.0])
+from budget.pauli_algebra import Z as _Z
+from budget.pauli_algebra import pauli_decompose, pauli_hamiltonian, pauli_unitary
 _PROBE_RAD = 0.0625  # over-rotation probe: H(δ) = δ K exactly for every table gate (one-parameter group)
 
 
@@ -58,12 +57,6 @@ def swap_unitary(theta_rad: float) -> np.ndarray:
     """exp(-i θ (XX+YY)/2): the fSim(θ, 0) exchange block on |01>, |10>."""
     c, s = np.cos(theta_rad), -1j * np.sin(theta_rad)
     return np.array([[1, 0, 0, 0], [0, c, s, 0], [0, s, c, 0], [0, 0, 0, 1]], dtype=complex)
-
-
-def pauli_unitary(terms: dict[str, float] | tuple[tuple[str, float], ...]) -> np.ndarray:
-    """exp(-i Σ h_P P) through an eigendecomposition of the Hermitian sum."""
-    w, v = np.linalg.eigh(pauli_sum(terms))
-    return (v * np.exp(-1j * w)) @ v.conj().T
 
 
 def _traceless(matrix: np.ndarray) -> dict[str, float]:

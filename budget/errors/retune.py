@@ -23,9 +23,10 @@ from typing import Mapping
 import numpy as np
 
 from budget.engines.knob_rows import PLAIN_KNOB, knob_grouping
-from budget.errors.knobs import coherent_error, pauli_unitary
+from budget.errors.knobs import coherent_error
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat
 from budget.errors.params import GateParams
+from budget.pauli_algebra import pauli_unitary
 
 
 def params_from_values(values: Mapping[str, float]) -> GateParams:

@@ -24,7 +24,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.circuit.clifford_check import first_non_clifford, label_bits
+from budget.circuit.clifford_check import first_non_clifford
 from budget.engines.clifford.cone import light_cone
 from budget.engines.knob_rows import knob_grouping
 from budget.engines.frame.groups import Budget, aggregate, quadratic_matrix
@@ -43,6 +43,7 @@ from budget.engines.orders import (
 from budget.engines.frame.walk import MAX_UNROLLED, ORBIT_BABY, Walker
 from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.errors.noisy import NoisyCircuit
+from budget.pauli_algebra import label_bits
 from budget.problems import TooLargeError
 
 SMALL = 0.1

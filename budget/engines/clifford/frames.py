@@ -19,17 +19,15 @@ needs the exact engine.
 
 from __future__ import annotations
 
-import itertools
 from dataclasses import dataclass
 
 import numpy as np
 import stim
 
 from budget.engines.clifford.stim_circuit import to_stim
-from budget.errors.fidelity import error_channel_kraus, pauli_matrix
+from budget.errors.fidelity import error_channel_kraus
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyMeasure, NoisyReset
-
-_LABELS = {k: ["".join(p) for p in itertools.product("IXYZ", repeat=k)][1:] for k in (1, 2)}
+from budget.pauli_algebra import channel_twirl, pauli_labels
 
 
 @dataclass(frozen=True)
@@ -45,18 +43,6 @@ class FrameResult:
     log_none_fires: float
     """Σ log(1 - p_m) over mechanisms that flip some detector: log P(no detector fires), kept
     apart so that it stays finite when P(some detector fires) rounds to 1."""
-
-
-_PAULI_STACK = {k: np.array([pauli_matrix(lab) for lab in labels]) for k, labels in _LABELS.items()}
-
-
-def twirl_channel(kraus: list[np.ndarray]) -> dict[str, float]:
-    """Pauli probabilities p_P = Σ_K |Tr(P K)/d|² of a channel (identity excluded)."""
-    d = kraus[0].shape[0]
-    k = int(np.log2(d))
-    traces = np.einsum("pij,kji->pk", _PAULI_STACK[k], np.asarray(kraus)) / d
-    probs = np.sum(np.abs(traces) ** 2, axis=1)
-    return {lab: float(p) for lab, p in zip(_LABELS[k], probs)}
 
 
 class _Noise:
@@ -75,10 +61,10 @@ class _Noise:
                 if not self.wants(nop.family) or not (nop.has_coherent or nop.has_incoherent):
                     continue
                 if id(nop) not in self.cache:
-                    self.cache[id(nop)] = twirl_channel(error_channel_kraus(nop))
+                    self.cache[id(nop)] = channel_twirl(error_channel_kraus(nop))
                 probs = self.cache[id(nop)]
                 name = "PAULI_CHANNEL_1" if len(nop.qubits) == 1 else "PAULI_CHANNEL_2"
-                out.append(name, list(nop.qubits), [probs[lab] for lab in _LABELS[len(nop.qubits)]])
+                out.append(name, list(nop.qubits), [probs[lab] for lab in pauli_labels(len(nop.qubits))[1:]])
         if isinstance(item, (NoisyLayer, NoisyMeasure, NoisyReset)) and self.wants(IDLE):
             for r in item.idle:
                 if not r.is_trivial:

@@ -25,7 +25,8 @@ from __future__ import annotations
 import numpy as np
 
 from budget.engines.frame.groups import group_rows
-from budget.engines.frame.pauli_frame import fingerprints, hermitian_sign, multiply, popcount
+from budget.engines.frame.pauli_frame import fingerprints
+from budget.pauli_algebra import hermitian_sign, popcount, row_product
 
 PHASE = np.array([1, 1j, -1, -1j])
 PAIR_LIMIT = 5_000_000
@@ -80,7 +81,7 @@ def observable_change(terms: tuple, obs: tuple) -> tuple[float, float | None]:
         return 0.0, 0.0
     anti = ((popcount(x & zo[None]) + popcount(z & xo[None])) & 1).astype(bool)
     o_rows = (np.broadcast_to(xo, x.shape), np.broadcast_to(zo, z.shape), np.full(len(c), eo, np.uint8))
-    px, pz, pe = multiply((x, z, e), o_rows)  # P_t O
+    px, pz, pe = row_product((x, z, e), o_rows)  # P_t O
     linear = float(np.real(np.sum(2j * c[anti] * _expect(pe[anti], px[anti]))))
     fx = fingerprints(x, None)
     fo = fingerprints(xo[None], None)[0]
@@ -92,8 +93,8 @@ def observable_change(terms: tuple, obs: tuple) -> tuple[float, float | None]:
                 continue
             s, t = _join(fx[left], fx[right] ^ fo)  # x_s = x_O ⊕ x_t
             s, t = left[s], right[t]
-            ox, oz, oe = multiply((np.broadcast_to(xo, (len(s), len(xo))), np.broadcast_to(zo, (len(s), len(zo))), np.full(len(s), eo, np.uint8)), (x[s], z[s], e[s]))
-            _, _, pe2 = multiply((ox, oz, oe), (x[t], z[t], e[t]))
+            ox, oz, oe = row_product((np.broadcast_to(xo, (len(s), len(xo))), np.broadcast_to(zo, (len(s), len(zo))), np.full(len(s), eo, np.uint8)), (x[s], z[s], e[s]))
+            _, _, pe2 = row_product((ox, oz, oe), (x[t], z[t], e[t]))
             total += weight * np.sum(c[s] * c[t] * PHASE[pe2.astype(np.int64) & 3])
     except OverflowError:
         return linear, None

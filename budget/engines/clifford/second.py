@@ -30,9 +30,10 @@ from __future__ import annotations
 import numpy as np
 
 from budget.engines.frame.groups import group_rows
-from budget.engines.frame.pauli_frame import Frame, fingerprints, hermitian_sign, multiply, popcount
+from budget.engines.frame.pauli_frame import Frame, fingerprints
 from budget.engines.frame.sinks import GroupSink
 from budget.errors.noisy import NoisyLayer
+from budget.pauli_algebra import hermitian_sign, popcount, row_product
 
 PAIR_BUDGET = 3e8
 """Largest number of (pair x word) operations spent on second-order terms in one run."""
@@ -217,7 +218,7 @@ def commutator_terms(later: tuple, earlier: tuple, weight: float = 1.0) -> tuple
     j = np.concatenate([f[1] for f in found])
     if not len(i):
         return _empty(w)
-    x, z, e = multiply((xv[i], zv[i], ev[i]), (xe[j], ze[j], ee[j]))  # P_v P_u, anti-Hermitian
+    x, z, e = row_product((xv[i], zv[i], ev[i]), (xe[j], ze[j], ee[j]))  # P_v P_u, anti-Hermitian
     e = ((e.astype(np.int64) - 1) & 3).astype(np.uint8)  # -i P_v P_u, Hermitian
     c = weight * cv[i] * ce[j] / 2
     cat = np.concatenate

@@ -27,8 +27,8 @@ from functools import reduce
 
 import numpy as np
 
-from budget.errors.fidelity import pauli_matrix
 from budget.errors.noisy import NoisyOperation, Relaxation
+from budget.pauli_algebra import pauli_matrix
 
 PAULI_BASIS = np.array([pauli_matrix(p).conj().reshape(-1) for p in "IXYZ"]) / np.sqrt(2)
 """T with T[P, 2r + c] = conj(P[r, c])/√2: (r, c) coefficients of one qubit -> Pauli coefficients."""

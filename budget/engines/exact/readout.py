@@ -18,7 +18,7 @@ from __future__ import annotations
 import numpy as np
 
 from budget.engines.exact.local import PAULI_BASIS
-from budget.errors.fidelity import pauli_matrix
+from budget.pauli_algebra import pauli_matrix
 
 
 def from_pauli(data: np.ndarray, n: int) -> np.ndarray:

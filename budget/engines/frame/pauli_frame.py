@@ -1,13 +1,9 @@
 """Packed Pauli strings and a running Pauli map (a tableau), vectorised with numpy.
 
 A Pauli string on n qubits is kept as bit rows: x (W words of 64 bits), z (W words) and a phase
-exponent e in Z_4, meaning i^e X^x Z^z with every X factor written before every Z factor. Products
-follow from Z X = -X Z:
-
-    (i^e1 X^x1 Z^z1)(i^e2 X^x2 Z^z2) = i^(e1 + e2 + 2 |z1 ∧ x2|) X^(x1⊕x2) Z^(z1⊕z2),
-
-one AND and one popcount per word. A Hermitian Pauli has e ≡ |x ∧ z| (mod 2) and sign
-i^(e - |x ∧ z|) = ±1. On |0…0> the Pauli acts as i^e |x>.
+exponent e in Z_4, meaning i^e X^x Z^z with every X factor written before every Z factor; products
+(one AND and one popcount per word) and signs are :func:`budget.pauli_algebra.row_product` and
+:func:`budget.pauli_algebra.hermitian_sign`. On |0…0> the Pauli acts as i^e |x>.
 
 A :class:`Frame` holds the images of the 2n generators X_0..X_{n-1}, Z_0..Z_{n-1} under a Clifford
 conjugation (rows 0..n-1 and n..2n-1; an extra last row is the identity, so "no generator" can be
@@ -24,7 +20,8 @@ from functools import lru_cache
 
 import numpy as np
 
-from budget.circuit.clifford_check import LocalClifford, LocalPauli
+from budget.circuit.clifford_check import LocalClifford
+from budget.pauli_algebra import LocalPauli, hermitian_sign, popcount, row_product
 
 WORD_BITS = 64
 HASH_BITS = 128
@@ -34,29 +31,6 @@ _HASH_SEED = 20240611
 def num_words(n: int) -> int:
     """Words of 64 bits needed for n qubits (at least one)."""
     return max(1, (n + WORD_BITS - 1) // WORD_BITS)
-
-
-def popcount(a: np.ndarray) -> np.ndarray:
-    """Number of set bits along the last axis (of uint64 words)."""
-    return np.bitwise_count(a).sum(axis=-1, dtype=np.int64)
-
-
-def multiply(
-    a: tuple[np.ndarray, np.ndarray, np.ndarray], b: tuple[np.ndarray, np.ndarray, np.ndarray]
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Row-wise product a·b of Pauli rows (x, z, e), broadcasting over leading axes."""
-    xa, za, ea = a
-    xb, zb, eb = b
-    e = (ea.astype(np.int64) + eb + 2 * popcount(za & xb)) & 3
-    return xa ^ xb, za ^ zb, e.astype(np.uint8)
-
-
-def hermitian_sign(x: np.ndarray, z: np.ndarray, e: np.ndarray) -> np.ndarray:
-    """±1: the sign s with i^e X^x Z^z = s · (the Hermitian Pauli with those bits)."""
-    d = (e.astype(np.int64) - popcount(x & z)) & 3
-    if np.any(d & 1):
-        raise ValueError("a Pauli row is not Hermitian (internal error)")
-    return 1 - d  # d is 0 or 2
 
 
 def pack_bits(qubits: list[int] | np.ndarray, n: int) -> np.ndarray:
@@ -199,7 +173,7 @@ class Frame:
         """
         acc = self.rows(slots[:, 0])
         for j in range(1, slots.shape[1]):
-            acc = multiply(acc, self.rows(slots[:, j]))
+            acc = row_product(acc, self.rows(slots[:, j]))
         return acc[0], acc[1], ((acc[2].astype(np.int64) + e0) & 3).astype(np.uint8)
 
     def image_x(self, slots: np.ndarray) -> np.ndarray:
@@ -230,7 +204,7 @@ class Frame:
                 fx = fxz = 0
                 for j, bit in enumerate(xb + zb):
                     if bit:
-                        acc = old[j] if acc is None else multiply(acc, old[j])
+                        acc = old[j] if acc is None else row_product(acc, old[j])
                         fx, fxz = fx ^ old_f[j][0], fxz ^ old_f[j][1]
                 new.append((acc[0], acc[1], ((acc[2].astype(np.int64) + e) & 3).astype(np.uint8), fx, fxz))
             for g, (x, z, e, fx, fxz) in zip(gens, new):

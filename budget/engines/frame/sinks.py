@@ -22,9 +22,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from budget.engines.frame.pauli_frame import Frame, fingerprints, popcount, unpack_bits
+from budget.engines.frame.pauli_frame import Frame, fingerprints, unpack_bits
 from budget.engines.frame.terms import LayerTable, TermBuilder, stochastic_terms, term_slots
 from budget.errors.noisy import NoisyLayer
+from budget.pauli_algebra import popcount
 
 BITS16 = (np.arange(16)[:, None] >> np.arange(4)) & 1
 """(16, 4): the generator bits of each local Pauli index v."""

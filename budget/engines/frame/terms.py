@@ -24,9 +24,8 @@ from typing import Callable
 
 import numpy as np
 
-from budget.circuit.clifford_check import label_bits
-from budget.errors.fidelity import pauli_labels
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
+from budget.pauli_algebra import label_bits, pauli_labels
 
 
 @lru_cache(maxsize=None)

@@ -18,8 +18,8 @@ import numpy as np
 from budget.engines.matrices.apply import apply, apply_gate, conjugate
 from budget.engines.generators.dense import ContentOf, DensePropagator
 from budget.engines.generators.jumps import repetitions
-from budget.errors.fidelity import pauli_matrix
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
+from budget.pauli_algebra import pauli_matrix
 
 
 def observable_vector(letters: dict[int, str], v: np.ndarray, num_qubits: int) -> np.ndarray:

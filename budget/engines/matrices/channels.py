@@ -23,11 +23,11 @@ from typing import Callable, Iterable
 import numpy as np
 
 from budget.engines.matrices.apply import LocalOp, as_rows, embed, fuse
-from budget.errors.fidelity import pauli_labels, pauli_matrix, pauli_sum
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
+from budget.pauli_algebra import Z as _Z
+from budget.pauli_algebra import pauli_labels, pauli_matrix, pauli_sum
 
 _SIGMA_MINUS = np.array([[0, 1], [0, 0]], dtype=complex)
-_Z = np.diag([1.0 + 0j, -1.0])
 
 Grouping = Callable[[NoisyOperation], Iterable[tuple[object, dict[str, float]]]]
 """Maps an operation to (group key, Pauli generator {label: h_P}) pairs whose sum is H_op."""

@@ -23,7 +23,8 @@ from functools import lru_cache
 
 import numpy as np
 
-from budget.errors.fidelity import pauli_matrix
+from budget.pauli_algebra import pauli_matrix
+from budget.pauli_algebra import transfer_matrix as _transfer
 
 LETTERS = "IXZY"
 """Letter of each one-qubit code c = x + 2z."""
@@ -44,13 +45,7 @@ def local_label(label: str) -> int:
 
 def transfer_matrix(superop, k: int) -> np.ndarray:
     """M[w, v] = Re Tr(P_w superop(P_v)) / d for a map given as a Python function on matrices."""
-    basis = local_basis(k)
-    d = 2**k
-    images = np.array([superop(p) for p in basis])
-    m = np.einsum("wij,vji->wv", basis, images) / d
-    if np.max(np.abs(m.imag), initial=0.0) > 1e-10:
-        raise ValueError("local map does not preserve Hermiticity (internal error)")
-    return np.ascontiguousarray(m.real)
+    return _transfer(superop, local_basis(k))
 
 
 @dataclass(frozen=True)

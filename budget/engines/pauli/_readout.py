@@ -21,8 +21,8 @@ from __future__ import annotations
 import numpy as np
 
 from budget.engines.frame.groups import Budget
-from budget.engines.frame.pauli_frame import popcount
 from budget.engines.pauli._store import Store, group_equal
+from budget.pauli_algebra import popcount
 
 PHASE = np.array([1, 1j, -1, -1j])
 
