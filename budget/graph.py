@@ -1,4 +1,5 @@
-"""Operation graphs: per-qubit timelines, earliest-possible layering, light cones.
+"""Operation graphs: per-qubit timelines, earliest-possible layering (light cones:
+:mod:`budget.errors.light_cone`).
 
 A flat list of operations defines a directed acyclic graph (DAG): an edge i -> j joins operation
 i to the next operation j that acts on one of its qubits. Placing every operation in the earliest
@@ -175,47 +176,3 @@ def flat_operations(circuit: StructuredCircuit, *, max_operations: int = 1_000_0
             f"{max_operations}; use a method that keeps repeated blocks folded"
         )
     return [op for layer in circuit.iter_layers() for op in layer.operations]
-
-
-def light_cone(circuit: StructuredCircuit | Sequence[Operation], qubits: Iterable[int]) -> list[int]:
-    """Indices of the operations in the backward light cone of ``qubits`` (ascending).
-
-    Walking backwards from the end, an operation belongs to the cone when it acts on a qubit
-    already in the cone; its other qubits then join the cone. Operations outside the cone cannot
-    change the reduced state of ``qubits`` at the end. For a :class:`StructuredCircuit` the indices
-    refer to :func:`flat_operations` of it.
-    """
-    ops = flat_operations(circuit) if isinstance(circuit, StructuredCircuit) else list(circuit)
-    live = set(qubits)
-    inside: list[int] = []
-    for i in range(len(ops) - 1, -1, -1):
-        if live.intersection(ops[i].qubits):
-            live.update(ops[i].qubits)
-            inside.append(i)
-    return inside[::-1]
-
-
-def light_cone_qubits(circuit: StructuredCircuit, qubits: Iterable[int]) -> frozenset[int]:
-    """Qubits whose initial state can influence ``qubits`` at the end, without unrolling repeats.
-
-    A repeated body is walked backwards until the set of qubits stops growing, which takes at
-    most one pass per qubit, so a count of 10**9 costs no more than a few passes.
-    """
-    return frozenset(_cone_items(circuit.body, set(qubits)))
-
-
-def _cone_items(items: Sequence[Item], live: set[int]) -> set[int]:
-    for it in reversed(items):
-        if isinstance(it, Layer):
-            for op in it.operations:
-                if live.intersection(op.qubits):
-                    live = live | set(op.qubits)
-        elif isinstance(it, Repeat):
-            for _ in range(it.count):
-                grown = _cone_items(it.body, set(live))
-                if grown == live:
-                    break
-                live = grown
-        else:
-            raise TypeError(f"light cone: circuit item {type(it).__name__} is not supported (gate layers only)")
-    return live

@@ -21,7 +21,7 @@ import stim
 
 from budget.circuit.clifford_check import is_clifford, local_clifford, operation_clifford
 from budget.circuit.ir import Operation
-from budget.engines.clifford.cone import light_cone
+from budget.errors.light_cone import light_cone_circuit
 from budget.engines.frame.pauli_frame import Frame, layer_classes, pack_bits, unpack_bits
 from budget.engines.frame.walk import Walker
 from budget.engines.clifford.engine import CliffordEngine
@@ -342,7 +342,7 @@ def test_light_cone_of_a_local_observable_is_small_on_a_wide_shallow_circuit():
     rng = np.random.default_rng(9)
     layers = [random_layer(rng, 40) for _ in range(2)]
     c = NoisyCircuit(tuple(f"q[{i}]" for i in range(40)), (NoisyRepeat(tuple(layers), 10**6),))
-    sub, kept = light_cone(c, {0})
+    sub, kept = light_cone_circuit(c, {0})
     assert len(kept) < 40 and 0 in kept
     # the restricted circuit keeps the repeat (saturated live set), so N = 10^6 stays folded
     assert any(isinstance(it, NoisyRepeat) and it.count > 10**5 for it in sub.body)

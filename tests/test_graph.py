@@ -1,4 +1,4 @@
-"""Layering (ASAP per segment, barriers, loops) and light cones, budget/graph.py."""
+"""Layering (ASAP per segment, barriers, loops), budget/graph.py, and light cones, budget/errors/light_cone.py."""
 
 from __future__ import annotations
 
@@ -10,12 +10,11 @@ from hypothesis import strategies as st
 
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
 from budget.circuit.program import Barrier, Loop
+from budget.errors.light_cone import light_cone_operations, light_cone_qubits
 from budget.graph import (
     asap_layers,
     flat_operations,
     layer_program,
-    light_cone,
-    light_cone_qubits,
     operation_dag,
     qubit_timelines,
 )
@@ -162,7 +161,7 @@ def test_light_cone_keeps_reduced_state(seed):
     nq = 5
     ops = _random_ops(rng, 14, nq)
     keep = [int(rng.integers(nq))]
-    cone = light_cone(ops, keep)
+    cone = light_cone_operations(ops, keep)
     assert cone == sorted(cone)
     kept = [ops[i] for i in cone]
     np.testing.assert_allclose(_reduced(kept, nq, keep), _reduced(ops, nq, keep), atol=1e-9)
@@ -170,11 +169,11 @@ def test_light_cone_keeps_reduced_state(seed):
 
 def test_light_cone_simple_chain():
     ops = [Operation("x", (0,)), Operation("cx", (0, 1)), Operation("x", (2,)), Operation("h", (1,))]
-    assert light_cone(ops, [1]) == [0, 1, 3]
-    assert light_cone(ops, [2]) == [2]
+    assert light_cone_operations(ops, [1]) == [0, 1, 3]
+    assert light_cone_operations(ops, [2]) == [2]
     circ = layer_program(ops, qubits=NAMES)
     flat = flat_operations(circ)
-    assert [flat[i] for i in light_cone(circ, [1])] == [ops[0], ops[1], ops[3]]
+    assert [flat[i] for i in light_cone_operations(circ, [1])] == [ops[0], ops[1], ops[3]]
 
 
 def test_light_cone_qubits_folded_matches_unrolled():
@@ -184,7 +183,7 @@ def test_light_cone_qubits_folded_matches_unrolled():
     for count, expected in [(1, {2, 3}), (2, {1, 2, 3}), (3, {0, 1, 2, 3}), (5, {0, 1, 2, 3})]:
         small = StructuredCircuit(NAMES, (Repeat(body, count),))
         ops = flat_operations(small)
-        unrolled = {q for i in light_cone(ops, [3]) for q in ops[i].qubits} | {3}
+        unrolled = {q for i in light_cone_operations(ops, [3]) for q in ops[i].qubits} | {3}
         assert light_cone_qubits(small, [3]) == frozenset(unrolled) == frozenset(expected)
     huge = StructuredCircuit(NAMES, (Repeat(body, 10**9),))
     assert light_cone_qubits(huge, [3]) == frozenset({0, 1, 2, 3})

@@ -26,7 +26,7 @@ from scipy.optimize import brentq
 
 from budget.engines.door import choose_engine
 from budget.analysis.sensitivity import quadratic_form
-from budget.engines.knob_rows import knob_grouping
+from budget.errors.knobs import knob_grouping
 from budget.errors.retune import with_knob_values
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
 from budget.problems import TooLargeError

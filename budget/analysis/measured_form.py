@@ -1,7 +1,7 @@
 """The quadratic form of the detector metric in the coherent knobs, for tolerances and cost.
 
 P(some detector fires) ≈ δᵀ A δ + s over the (family, knob) labels of
-:func:`budget.engines.knob_rows.knob_grouping` (each operation's Hamiltonian is Σ_knob δ_knob K_knob to
+:func:`budget.errors.knobs.knob_grouping` (each operation's Hamiltonian is Σ_knob δ_knob K_knob to
 first order; Blume-Kohout et al., PRX Quantum 3, 020335 (2022)). Here A is read by central second
 differences of the metric itself, with every coherent error rebuilt as exp(-i Σ δ K) at the probe
 values: s = f(0), A_ii = (f(h e_i) - s)/h², A_ij = (f(h e_i + h e_j) - f(h e_i) - f(h e_j) + s)/(2h²)
@@ -21,8 +21,8 @@ from scipy.linalg import expm
 from budget.analysis.detectors import infer_checks
 from budget.analysis.folding import scaled
 from budget.engines.clifford.frames import frames
-from budget.engines.knob_rows import _knob_terms, knob_grouping
 from budget.engines.base import QuadraticForm
+from budget.errors.knobs import knob_grouping, knob_terms
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyRepeat
 from budget.pauli_algebra import pauli_sum
 from budget.problems import InputError, TooLargeError
@@ -37,7 +37,7 @@ def with_knobs(noisy: NoisyCircuit, values: dict[tuple[str, str], float], scale:
     memo: dict[int, object] = {}
 
     def op(nop):
-        terms = _knob_terms(nop)
+        terms = knob_terms(nop)
         if not terms:
             return nop
         ham: dict[str, float] = {}

@@ -1,4 +1,5 @@
-"""The coherent part of one operation's error: named knobs -> unitary, Hamiltonian, unit generators.
+"""Coherent knobs: named knobs -> an operation's unitary, Hamiltonian and unit generators, and the
+(family, knob) rows a circuit's operations form.
 
 Each knob is a unitary applied right after the ideal gate G (design.md §2, all angles in radians):
 
@@ -15,16 +16,25 @@ U_coh = U_pauli · U_swap · U_cphase · U_zphase · U_axis · U_overrot.
 The Hamiltonian is exact (H with U_coh = e^{-iH} up to global phase, principal logarithm); each
 knob's generator is the derivative of that Hamiltonian in the knob alone at zero error, so to first
 order H ≈ Σ_k value_k · generator_k (Blume-Kohout et al., PRX Quantum 3, 020335 (2022)).
+
+Rows (design.md §5). The quadratic form and the retuned circuits have one row per (family, knob)
+with value δ: the value all of the family's operations share, or the largest in magnitude when they
+differ. Each operation enters that row with its generator scaled by value_op / δ, so δ times the
+row's propagated generator is exactly the family's first-order Hamiltonian for that knob (δ = 0:
+unit generators, for sensitivity only). Operations with a Hamiltonian but no knob generators form
+the knob ``"pauli"`` (:data:`PLAIN_KNOB`) with δ = 1.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import reduce
+from typing import Callable
 
 import numpy as np
 
 from budget.circuit.gates import ideal_unitary, overrotation_unitary
+from budget.errors.noisy import NoisyCircuit, NoisyOperation
 from budget.errors.params import GateParams
 from budget.pauli_algebra import Z as _Z
 from budget.pauli_algebra import pauli_decompose, pauli_hamiltonian, pauli_unitary
@@ -107,3 +117,42 @@ def coherent_error(gate: str, params: tuple[float, ...], gp: GateParams, num_qub
         gens.update({f"pauli:{label}": {label: 1.0} for label, _ in gp.pauli})
     u = reduce(lambda acc, f: f @ acc, factors, np.eye(d, dtype=complex))
     return CoherentError(u, pauli_hamiltonian(u), gens, values)
+
+
+PLAIN_KNOB = "pauli"
+"""Knob name of an operation with a Hamiltonian but no knob generators."""
+
+Grouping = Callable[[NoisyOperation], list[tuple[object, dict[str, float]]]]
+"""Maps an operation to (row key, Pauli generator {label: h_P}) pairs whose sum is its Hamiltonian."""
+
+
+def knob_terms(nop: NoisyOperation) -> list[tuple[str, dict[str, float], float]]:
+    """(knob, unit generator, value in rad) of each of the operation's knobs; an operation with a
+    Hamiltonian but no knobs gives (``"pauli"``, its Hamiltonian, 1.0)."""
+    if nop.knob_generators:
+        return [(k, g, float(nop.knob_values.get(k, 0.0))) for k, g in nop.knob_generators.items()]
+    if nop.hamiltonian:
+        return [(PLAIN_KNOB, nop.hamiltonian, 1.0)]
+    return []
+
+
+def knob_grouping(circuit: NoisyCircuit) -> tuple[Grouping, dict[tuple[str, str], float]]:
+    """(grouping for :func:`budget.engines.matrices.channels.layer_content`, (family, knob) -> δ in
+    rad), rows as in the module docstring."""
+    values: dict[tuple[str, str], float] = {}
+    for layer in circuit.distinct_layers():
+        for nop in layer.operations:
+            for knob, _, v in knob_terms(nop):
+                key = (nop.family, knob)
+                if key not in values or abs(v) > abs(values[key]):
+                    values[key] = v
+
+    def grouping(nop: NoisyOperation) -> list[tuple[object, dict[str, float]]]:
+        out = []
+        for knob, gen, v in knob_terms(nop):
+            key = (nop.family, knob)
+            scale = v / values[key] if values[key] else 1.0
+            out.append((key, {p: c * scale for p, c in gen.items()}))
+        return out
+
+    return grouping, values

@@ -7,7 +7,7 @@ the same code that built them from the error model (:func:`budget.errors.knobs.c
 and leaves everything else (ideal gates, incoherent parts, layers, repeats) untouched.
 
 Values are given per row of the quadratic form, (family, knob) -> δ in rad. The rows follow
-``budget/engines/knob_rows.py``: a family's row value is its operations' value, or the largest in
+``budget/errors/knobs.py``: a family's row value is its operations' value, or the largest in
 magnitude when they differ; each operation then gets δ · value_op / value_row (the same
 proportions as today), or δ itself when the row's value is zero today. Operations whose
 Hamiltonian has no knob generators form the knob ``"pauli"``: their Hamiltonian is scaled by δ.
@@ -22,8 +22,7 @@ from typing import Mapping
 
 import numpy as np
 
-from budget.engines.knob_rows import PLAIN_KNOB, knob_grouping
-from budget.errors.knobs import coherent_error
+from budget.errors.knobs import PLAIN_KNOB, coherent_error, knob_grouping
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat
 from budget.errors.params import GateParams
 from budget.pauli_algebra import pauli_unitary

@@ -25,8 +25,6 @@ from __future__ import annotations
 import numpy as np
 
 from budget.circuit.clifford_check import first_non_clifford
-from budget.engines.clifford.cone import light_cone
-from budget.engines.knob_rows import knob_grouping
 from budget.engines.frame.groups import Budget, aggregate, quadratic_matrix
 from budget.engines.frame.pauli_frame import num_words
 from budget.engines.clifford.observables import merge_terms, observable_change
@@ -42,6 +40,8 @@ from budget.engines.orders import (
 )
 from budget.engines.frame.walk import MAX_UNROLLED, ORBIT_BABY, Walker
 from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
+from budget.errors.knobs import knob_grouping
+from budget.errors.light_cone import light_cone_circuit
 from budget.errors.noisy import NoisyCircuit
 from budget.pauli_algebra import label_bits
 from budget.problems import TooLargeError
@@ -324,7 +324,7 @@ class CliffordEngine:
         whole: list[str] = []
         for label, paulis in parsed.items():
             if prune:
-                sub, kept = light_cone(circuit, set(paulis))
+                sub, kept = light_cone_circuit(circuit, set(paulis))
                 if len(kept) < circuit.num_qubits:
                     index = {q: i for i, q in enumerate(kept)}
                     out.update(self._observables(sub, {label: {index[q]: p for q, p in paulis.items()}}, {}))
@@ -378,7 +378,7 @@ class CliffordEngine:
     def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:
         """e ≈ δᵀ A δ + floor over (family, knob) labels, from the knobs' first-order generators.
 
-        Labels and values as in :func:`budget.engines.knob_rows.knob_grouping` (shared with the
+        Labels and values as in :func:`budget.errors.knobs.knob_grouping` (shared with the
         generators engine): δ is the knob value of largest magnitude in the family, each operation
         enters scaled by its value / δ, and operations with a Hamiltonian but no knobs form the
         knob ``"pauli"`` with δ = 1. A_ab = Σ_g Re(conj(B_ga) B_gb) over the groups of

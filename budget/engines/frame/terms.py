@@ -145,7 +145,7 @@ class TermBuilder:
     """Builds (and caches per layer object) the site tables of one circuit.
 
     ``grouping`` (for the quadratic form) maps an operation to its (knob label, unit generator)
-    pairs, as :func:`budget.engines.knob_rows.knob_grouping` does; unit terms are then collected.
+    pairs, as :func:`budget.errors.knobs.knob_grouping` does; unit terms are then collected.
     """
 
     def __init__(self, n: int, names: tuple[str, ...], sources: Sources, grouping: Callable | None = None):

@@ -33,7 +33,6 @@ from budget.engines.matrices.apply import as_rows
 from budget.engines.matrices.channels import by_family, content_cache
 from budget.engines.generators.dense import DensePropagator
 from budget.engines.generators.jumps import StateJumps
-from budget.engines.knob_rows import knob_grouping
 from budget.engines.generators.krylov import expm_apply
 from budget.engines.generators.observables import IncoherentObservables, observable_vector
 from budget.engines.generators.states import StatePath
@@ -42,6 +41,7 @@ from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, EngineResult, Metr
 from budget.engines.exact.engine import ExactEngine
 from budget.engines.generators.depth import DepthCurve, depth_curve
 from budget.engines.matrices.periodic import coherent_infidelity
+from budget.errors.knobs import knob_grouping
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.problems import TooLargeError
 

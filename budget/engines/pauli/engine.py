@@ -26,12 +26,12 @@ from dataclasses import dataclass
 import numpy as np
 
 from budget.engines.matrices.channels import by_family
-from budget.engines.knob_rows import knob_grouping
 from budget.engines.frame.groups import budget_result, size_warning
 from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable
 from budget.engines.pauli._plan import PlanBook
 from budget.engines.pauli._readout import coherent_budget, first_order_bound, group_amplitudes, jump_costs, zero_readout
 from budget.engines.pauli._sweep import OutOfTime, Sweep, TooManyTerms
+from budget.errors.knobs import knob_grouping
 from budget.errors.noisy import IDLE, NoisyCircuit
 from budget.problems import InputError, TooLargeError
 
@@ -249,7 +249,7 @@ class PauliEngine:
         return best, []
 
     def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:
-        """e ≈ δᵀAδ + floor over (family, knob) labels (:func:`budget.engines.knob_rows.knob_grouping`,
+        """e ≈ δᵀAδ + floor over (family, knob) labels (:func:`budget.errors.knobs.knob_grouping`,
         as the generators and clifford engines): the knobs' unit generators are carried as the
         columns of one sum, A_ab = Σ_g Re(conj(B_ga) B_gb) over its groups (process: Paulis; state:
         X parts without x = 0). Threshold: ``truncate``, else the one the budget run settles on;
