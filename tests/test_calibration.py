@@ -36,7 +36,7 @@ from budget.analysis.tolerances import tolerances
 from budget.circuit.ir import Layer, Operation, StructuredCircuit
 from budget.engines.base import QuadraticForm
 from budget.errors.attach import attach
-from budget.errors.model import ErrorModel
+from budget.errors.model import ErrorModel, load_model
 from budget.errors.noisy import NoisyOperation, Relaxation
 from budget.pauli_algebra import pauli_matrix
 from budget.problems import ModelError
@@ -380,3 +380,44 @@ def test_drift_keys_follow_the_families_of_the_model():
     model["calibration"]["drift_rad_per_hour"]["cz.swap_angle"] = 0.001
     with pytest.raises(ModelError, match="the model has no knob cz.swap_angle"):
         decide(circ, model, target=0.01)
+
+
+# ---- one wording for the whole error-model file ---------------------------------------------------
+
+def _message(fn) -> str:
+    with pytest.raises(ModelError) as info:
+        fn()
+    return str(info.value)
+
+
+def test_calibration_table_and_model_word_the_same_fault_the_same_way(tmp_path):
+    """The [calibration] table and the rest of the model file share one message template
+    (budget/errors/toml_keys.py): KEY.PATH = VALUE in FILE: RULE (style rule 4, docs/error-model.md)."""
+    # not a table: the same key, the same value, so the very same line
+    assert _message(lambda: ErrorModel.from_dict({"calibration": 3}, "lab.toml")) \
+        == _message(lambda: read_calibration(3, source="lab.toml")) \
+        == "calibration = 3 in lab.toml: expected a table"
+    # a misspelt key: the same rule text, only the key path and suggestion differ
+    model = _message(lambda: ErrorModel.from_dict({"qubits": {"t1_uss": 50.0}}, "lab.toml"))
+    calib = _message(lambda: read_calibration({"sigma_factr": 2}, source="lab.toml"))
+    assert model.startswith("qubits.t1_uss = 50.0 in lab.toml: unknown key; did you mean 't1_us'? valid keys here: ")
+    assert calib.startswith("calibration.sigma_factr = 2 in lab.toml: unknown key; did you mean 'sigma_factor'? valid keys here: ")
+    # a boolean key given a string
+    ctx = {"context": [{"name": "c", "gate": "cz", "all_driven": "yes", "cphase": 0.01}]}
+    assert _message(lambda: ErrorModel.from_dict(ctx, "lab.toml")) == \
+        "context.0.all_driven = 'yes' in lab.toml: expected true or false"
+    assert _message(lambda: read_calibration({"parallel_sites": "yes"}, source="lab.toml")) == \
+        "calibration.parallel_sites = 'yes' in lab.toml: expected true or false"
+    # a long value is shortened the same way everywhere (60 characters), uncertainty tables included
+    spread = {"value": 0.0123456789, "low": 0.000123456789, "high": 0.0000987654321}  # uniform and normal at once
+    for text in (_message(lambda: ErrorModel.from_dict({"gates": {"cz": {"cphase": "z" * 80}}}, "lab.toml")),
+                 _message(lambda: ErrorModel.from_dict({"gates": {"cz": {"cphase": spread}}}, "lab.toml")),
+                 _message(lambda: read_calibration({"drift_rad_per_hour": "y" * 80}, source="lab.toml"))):
+        value = text.split(" = ", 1)[1].split(" in lab.toml: ", 1)[0]
+        assert len(value) <= 60 and value.endswith("...")
+    # read from a file, the calibration message names the file like every other key
+    path = tmp_path / "m.toml"
+    path.write_text("[calibration]\nladder_shots = 2.5\n")
+    loaded = load_model(path)
+    assert _message(lambda: read_calibration(loaded.calibration, source=loaded.source)) == \
+        f"calibration.ladder_shots = 2.5 in {path}: expected a whole number >= 1"

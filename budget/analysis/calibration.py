@@ -21,7 +21,6 @@ from __future__ import annotations
 
 import difflib
 import math
-import numbers
 from dataclasses import dataclass, field, fields
 from typing import Any, Mapping
 
@@ -29,7 +28,7 @@ from budget.analysis.phase_estimation import Probe, final_depth, find_probes  # 
 from budget.analysis.sensitivity import knob_key
 from budget.analysis.tolerances import NO_EFFECT, ToleranceReport
 from budget.errors.context_layers import context_knob_keys
-from budget.problems import ModelError
+from budget.errors.toml_keys import KeyPaths
 
 HOURS_PER_DAY = 24.0
 
@@ -62,73 +61,58 @@ class CalibrationSettings:
     source: str = "<defaults>"
 
 
-_RULES: dict[str, tuple[type, str, float]] = {
-    "shot_overhead_us": (float, "a number of µs >= 0", 0.0),
-    "circuit_overhead_ms": (float, "a number of ms >= 0", 0.0),
-    "sigma_factor": (float, "a number > 1 (tolerance / standard deviation)", 1.0),
-    "ladder_shots": (int, "a whole number >= 1", 1.0),
-    "max_depth": (int, "a whole number >= 1", 1.0),
+_NUMBERS: dict[str, tuple[str, dict]] = {
+    "shot_overhead_us": ("expected a number of µs >= 0", {"low": 0.0}),
+    "circuit_overhead_ms": ("expected a number of ms >= 0", {"low": 0.0}),
+    "sigma_factor": ("expected a number > 1 (tolerance / standard deviation)", {"low": 1.0, "strict": True}),
+    "ladder_shots": ("expected a whole number >= 1", {"low": 1.0, "whole": True}),
+    "max_depth": ("expected a whole number >= 1", {"low": 1.0, "whole": True}),
 }
+"""Key -> (rule, bounds) of the numeric keys (:meth:`budget.errors.toml_keys.KeyPaths.number`)."""
+_TABLE = ("calibration",)
 
 
 def read_calibration(table: Mapping[str, Any] | None, *, source: str = "<dict>") -> CalibrationSettings:
     """Validate the parsed ``[calibration]`` table (None or {} = defaults).
 
-    Every bad value raises one ModelError naming the key, the value, the file and the rule.
+    Every bad value raises one ModelError naming the key, the value, the file and the rule, worded
+    as everywhere else in the error-model file (:class:`budget.errors.toml_keys.KeyPaths`).
 
     >>> read_calibration({"sigma_factor": 2, "drift_rad_per_hour": {"cz.cphase": 0.002}}).sigma_factor
     2.0
     """
     if table is None:
         return CalibrationSettings(source=source)
-    if not isinstance(table, Mapping):
-        raise ModelError(f"calibration = {_show(table)} in {source}: expected a table")
+    keys = KeyPaths(source)
+    keys.table(_TABLE, table)
     known = [f.name for f in fields(CalibrationSettings) if f.name != "source"]
     values: dict[str, Any] = {"source": source}
     for key, value in table.items():
+        path = _TABLE + (key,)
         if key.startswith("drift") and key != "drift_rad_per_hour":
-            raise _fail(key, value, source, "give drift rates with their unit, as calibration.drift_rad_per_hour")
+            raise keys.fail(path, value, "give drift rates with their unit, as calibration.drift_rad_per_hour")
         if key not in known:
-            close = difflib.get_close_matches(key, known, n=1)
-            hint = f"; did you mean {close[0]!r}?" if close else f"; valid keys: {', '.join(known)}"
-            raise _fail(key, value, source, "unknown key" + hint)
+            raise keys.unknown(path, value, known)
         if key == "parallel_sites":
-            if not isinstance(value, bool):
-                raise _fail(key, value, source, "expected true or false")
-            values[key] = value
+            values[key] = keys.flag(path, value)
         elif key == "drift_rad_per_hour":
-            values[key] = _drifts(value, source)
+            values[key] = _drifts(keys, value)
         else:
-            kind, rule, low = _RULES[key]
-            ok = isinstance(value, numbers.Real) and not isinstance(value, bool) and math.isfinite(value)
-            ok = ok and (value > low if key == "sigma_factor" else value >= low)
-            if not ok or (kind is int and value != int(value)):
-                raise _fail(key, value, source, f"expected {rule}")
-            values[key] = kind(value)
+            rule, bounds = _NUMBERS[key]
+            values[key] = keys.number(path, value, rule, **bounds)
     return CalibrationSettings(**values)
 
 
-def _drifts(value: Any, source: str) -> dict[str, float]:
+def _drifts(keys: KeyPaths, value: Any) -> dict[str, float]:
+    path = _TABLE + ("drift_rad_per_hour",)
     if not isinstance(value, Mapping):
-        raise _fail("drift_rad_per_hour", value, source, 'expected a table such as {"cz.cphase" = 0.002}')
+        raise keys.fail(path, value, 'expected a table such as {"cz.cphase" = 0.002}')
     out = {}
     for knob, rate in value.items():
         if isinstance(rate, str):
-            raise _fail(f'drift_rad_per_hour."{knob}"', rate, source,
-                        "expected a plain number in rad per hour (the unit is in the key name)")
-        if isinstance(rate, bool) or not isinstance(rate, numbers.Real) or not math.isfinite(rate) or rate < 0:
-            raise _fail(f'drift_rad_per_hour."{knob}"', rate, source, "expected a drift rate >= 0 in rad per hour")
-        out[str(knob)] = float(rate)
+            raise keys.fail(path + (str(knob),), rate, "expected a plain number in rad per hour (the unit is in the key name)")
+        out[str(knob)] = keys.number(path + (str(knob),), rate, "expected a drift rate >= 0 in rad per hour", low=0.0)
     return out
-
-
-def _show(value: Any) -> str:
-    text = repr(value)
-    return text if len(text) <= 60 else text[:57] + "..."
-
-
-def _fail(key: str, value: Any, source: str, rule: str) -> ModelError:
-    return ModelError(f"calibration.{key} = {_show(value)} in {source}: {rule}")
 
 
 @dataclass(frozen=True)
@@ -227,7 +211,8 @@ def calibration_plan(
             known = sorted(keys | model_knobs)
             close = difflib.get_close_matches(key, known, n=1)
             hint = f"did you mean {close[0]!r}?" if close else f"knobs: {', '.join(known) or 'none'}"
-            raise _fail(f'drift_rad_per_hour."{key}"', rate, settings.source, f"the model has no knob {key}; {hint}")
+            raise KeyPaths(settings.source).fail(_TABLE + ("drift_rad_per_hour", key), rate,
+                                                 f"the model has no knob {key}; {hint}")
     k = settings.sigma_factor
     plans: list[KnobPlan] = []
     unplanned: dict[str, str] = {}

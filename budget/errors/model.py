@@ -27,8 +27,9 @@ from typing import Any, Mapping
 from budget.circuit.gates import ALIASES, GATES, exchange_symmetric
 from budget.errors.context import SECTIONS, ContextModel, parse_context
 from budget.errors.params import (
-    LARGE_ANGLE_RAD, PROBES, FieldError, GateParams, QubitParams, key_path, mirrored, show, split_names,
+    LARGE_ANGLE_RAD, PROBES, FieldError, GateParams, QubitParams, key_path, mirrored, split_names,
 )
+from budget.errors.toml_keys import KeyPaths
 from budget.errors.uncertain import central_values
 from budget.problems import ModelError, place
 
@@ -123,26 +124,13 @@ def load_model(path: str | Path) -> ErrorModel:
     return ErrorModel.from_dict(data, source)
 
 
-class _Parser:
-    """Walks the nested dict with the current key path so every error can name it."""
+class _Parser(KeyPaths):
+    """Walks the nested dict with the current key path so every error can name it (messages and
+    plain value checks: :class:`~budget.errors.toml_keys.KeyPaths`)."""
 
     def __init__(self, source: str):
-        self.source = source
+        super().__init__(source)
         self.mentions: dict[str, str] = {}
-
-    def fail(self, path: tuple[str, ...], value: Any, rule: str) -> ModelError:
-        return ModelError(f"{key_path(path)} = {show(value)} in {self.source}: {rule}")
-
-    def table(self, path: tuple[str, ...], value: Any) -> Mapping[str, Any]:
-        if not isinstance(value, Mapping):
-            raise self.fail(path, value, "expected a table")
-        return value
-
-    def unknown(self, path: tuple[str, ...], value: Any, valid: tuple[str, ...] | list[str],
-                what: str = "unknown key", listing: str = "valid keys here") -> ModelError:
-        close = difflib.get_close_matches(path[-1], valid, n=1)
-        hint = f"did you mean {close[0]!r}? " if close else ""
-        return self.fail(path, value, f"{what}; {hint}{listing}: {', '.join(valid)}")
 
     def split(self, path: tuple[str, ...], table: Mapping[str, Any], keys: tuple[str, ...]) -> tuple[dict, dict]:
         """Own keys and named sub-tables (overrides); a scalar unknown key is an error."""

@@ -23,8 +23,7 @@ from typing import Any, Mapping
 
 from scipy import stats
 
-from budget.errors.params import key_path
-from budget.problems import ModelError
+from budget.errors.toml_keys import KeyPaths
 
 PARTS = ("value", "sigma", "low", "high", "drift_per_hour")
 UNCERTAIN_SECTIONS = ("qubits", "gates", "couplings", "crosstalk", "bleed", "context")  # sections whose numbers may carry a spread
@@ -76,9 +75,7 @@ def central_values(data: Mapping[str, Any], source: str) -> tuple[dict, tuple[Sp
         ModelError: a malformed uncertainty table (message names the key path, value, file, rule).
     """
     spreads: list[Spread] = []
-
-    def fail(path: tuple[str, ...], value: Any, rule: str) -> ModelError:
-        return ModelError(f"{key_path(path)} = {value!r} in {source}: {rule}")
+    fail = KeyPaths(source).fail
 
     def walk(value: Any, path: tuple[str, ...]) -> Any:
         if is_spread(value):
