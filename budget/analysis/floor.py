@@ -29,6 +29,7 @@ from budget.analysis.sensitivity import quadratic_form
 from budget.errors.knobs import knob_grouping
 from budget.errors.retune import with_knob_values
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
+from budget.memo import ObjectKey
 from budget.problems import TooLargeError
 
 
@@ -103,18 +104,18 @@ class FloorRemedy:
 
 def without_relaxation(circuit: NoisyCircuit) -> NoisyCircuit:
     """The same circuit with every T1/T2 relaxation removed (gates and idle)."""
-    memo: dict[int, Any] = {}
+    memo: dict[ObjectKey, Any] = {}
 
     def walk(items: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
         out = []
         for it in items:
-            if id(it) not in memo:
+            if ObjectKey(it) not in memo:
                 if isinstance(it, NoisyLayer):
-                    ops = tuple(memo.setdefault(id(n), dataclasses.replace(n, relaxation=())) for n in it.operations)
-                    memo[id(it)] = dataclasses.replace(it, operations=ops, idle=())
+                    ops = tuple(memo.setdefault(ObjectKey(n), dataclasses.replace(n, relaxation=())) for n in it.operations)
+                    memo[ObjectKey(it)] = dataclasses.replace(it, operations=ops, idle=())
                 else:
-                    memo[id(it)] = NoisyRepeat(walk(it.body), it.count)
-            out.append(memo[id(it)])
+                    memo[ObjectKey(it)] = NoisyRepeat(walk(it.body), it.count)
+            out.append(memo[ObjectKey(it)])
         return tuple(out)
 
     return dataclasses.replace(circuit, body=walk(circuit.body))
@@ -123,7 +124,7 @@ def without_relaxation(circuit: NoisyCircuit) -> NoisyCircuit:
 def scaled_incoherent(circuit: NoisyCircuit, gates: float, relaxation: float) -> NoisyCircuit:
     """``circuit`` with the gates' depolarizing and Pauli rates times ``gates`` and every T1, T2
     (gates and idle) divided by ``relaxation`` (γ → 1 - (1-γ)^g, dephasing factor c → c^g)."""
-    memo: dict[int, Any] = {}
+    memo: dict[ObjectKey, Any] = {}
 
     def relax(rs):
         return tuple(dataclasses.replace(r, gamma=1 - (1 - r.gamma) ** relaxation,
@@ -136,13 +137,13 @@ def scaled_incoherent(circuit: NoisyCircuit, gates: float, relaxation: float) ->
     def walk(items: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
         out = []
         for it in items:
-            if id(it) not in memo:
+            if ObjectKey(it) not in memo:
                 if isinstance(it, NoisyLayer):
-                    ops = tuple(memo.setdefault(id(n), op(n)) for n in it.operations)
-                    memo[id(it)] = dataclasses.replace(it, operations=ops, idle=relax(it.idle))
+                    ops = tuple(memo.setdefault(ObjectKey(n), op(n)) for n in it.operations)
+                    memo[ObjectKey(it)] = dataclasses.replace(it, operations=ops, idle=relax(it.idle))
                 else:
-                    memo[id(it)] = NoisyRepeat(walk(it.body), it.count)
-            out.append(memo[id(it)])
+                    memo[ObjectKey(it)] = NoisyRepeat(walk(it.body), it.count)
+            out.append(memo[ObjectKey(it)])
         return tuple(out)
 
     return dataclasses.replace(circuit, body=walk(circuit.body))

@@ -22,6 +22,7 @@ import numpy as np
 
 from budget.errors.fidelity import operation_process_fidelity, relaxation_process_fidelity
 from budget.errors.noisy import NoisyCircuit
+from budget.memo import ObjectKey
 
 MAX_COLUMNS = 400
 """Layers beyond this many are summed into the last column (noted in ``note``)."""
@@ -66,17 +67,17 @@ def error_map(circuit: NoisyCircuit, *, max_columns: int = MAX_COLUMNS) -> Error
     width = min(len(layers), max_columns)
     values = np.zeros((n, max(width, 1)))
     labels: list[str] = []
-    cache: dict[int, float] = {}
+    cache: dict[ObjectKey, float] = {}
     i = -1
     for layer, mult in everything:
         if not layer.context or i < 0:
             i += 1
         col = min(i, width - 1)
         for nop in layer.operations:
-            if id(nop) not in cache:
-                cache[id(nop)] = 1.0 - operation_process_fidelity(nop)
+            if ObjectKey(nop) not in cache:
+                cache[ObjectKey(nop)] = 1.0 - operation_process_fidelity(nop)
             for q in nop.qubits:
-                values[q, col] += mult * cache[id(nop)] / len(nop.qubits)
+                values[q, col] += mult * cache[ObjectKey(nop)] / len(nop.qubits)
         for r in layer.idle:
             values[r.qubit, col] += mult * (1.0 - relaxation_process_fidelity(r))
         if i < width and len(labels) == i:

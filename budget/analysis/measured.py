@@ -35,6 +35,7 @@ from budget.engines.exact.branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, P
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.fidelity import naive_infidelity
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
+from budget.memo import ObjectKey
 from budget.problems import InputError, TooLargeError
 
 TWIRL_WARNING = ("coherent errors enter as their Pauli twirl on the clifford engine: their build-up within a "
@@ -278,7 +279,7 @@ def _has_coherent(noisy: NoisyCircuit) -> bool:
 
 def without_family(noisy: NoisyCircuit, family: str) -> NoisyCircuit:
     """The same circuit with one family's errors removed (gate family, idle, readout or reset)."""
-    memo: dict[int, object] = {}
+    memo: dict[ObjectKey, object] = {}
 
     def op(nop):
         if nop.family != family:
@@ -290,7 +291,7 @@ def without_family(noisy: NoisyCircuit, family: str) -> NoisyCircuit:
     def items(its):
         out = []
         for it in its:
-            if id(it) not in memo:
+            if ObjectKey(it) not in memo:
                 if isinstance(it, NoisyLayer):
                     new = NoisyLayer(tuple(op(n) for n in it.operations), () if family == IDLE else it.idle,
                                      it.duration_ns)
@@ -308,8 +309,8 @@ def without_family(noisy: NoisyCircuit, family: str) -> NoisyCircuit:
                     new = NoisyIf(it.item, items(it.then), items(it.orelse))
                 else:
                     raise TypeError(f"without_family: unknown item {type(it).__name__}")
-                memo[id(it)] = new
-            out.append(memo[id(it)])
+                memo[ObjectKey(it)] = new
+            out.append(memo[ObjectKey(it)])
         return tuple(out)
 
     return dataclasses.replace(noisy, body=items(noisy.body))

@@ -24,6 +24,7 @@ from budget.engines.clifford.frames import frames
 from budget.engines.base import QuadraticForm
 from budget.errors.knobs import knob_grouping, knob_terms
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyRepeat
+from budget.memo import ObjectKey
 from budget.pauli_algebra import pauli_sum
 from budget.problems import InputError, TooLargeError
 
@@ -34,7 +35,7 @@ MAX_KNOBS = 24
 
 def with_knobs(noisy: NoisyCircuit, values: dict[tuple[str, str], float], scale: dict[tuple[str, str], float]) -> NoisyCircuit:
     """The circuit with every coherent error rebuilt from the knob values (per label)."""
-    memo: dict[int, object] = {}
+    memo: dict[ObjectKey, object] = {}
 
     def op(nop):
         terms = knob_terms(nop)
@@ -52,16 +53,16 @@ def with_knobs(noisy: NoisyCircuit, values: dict[tuple[str, str], float], scale:
     def items(its):
         out = []
         for it in its:
-            if id(it) not in memo:
+            if ObjectKey(it) not in memo:
                 if isinstance(it, NoisyLayer):
-                    memo[id(it)] = dataclasses.replace(it, operations=tuple(op(n) for n in it.operations))
+                    memo[ObjectKey(it)] = dataclasses.replace(it, operations=tuple(op(n) for n in it.operations))
                 elif isinstance(it, NoisyRepeat):
-                    memo[id(it)] = NoisyRepeat(items(it.body), it.count)
+                    memo[ObjectKey(it)] = NoisyRepeat(items(it.body), it.count)
                 elif isinstance(it, NoisyIf):
-                    memo[id(it)] = NoisyIf(it.item, items(it.then), items(it.orelse))
+                    memo[ObjectKey(it)] = NoisyIf(it.item, items(it.then), items(it.orelse))
                 else:
-                    memo[id(it)] = it
-            out.append(memo[id(it)])
+                    memo[ObjectKey(it)] = it
+            out.append(memo[ObjectKey(it)])
         return tuple(out)
 
     return dataclasses.replace(noisy, body=items(noisy.body))

@@ -23,6 +23,7 @@ from budget.errors.noisy import (
     NoisyRepeat,
     NoisyReset,
 )
+from budget.memo import ObjectKey
 from budget.pauli_algebra import twirl_probabilities
 
 
@@ -36,10 +37,10 @@ def _twirl_op(nop: NoisyOperation) -> NoisyOperation:
     return replace(nop, coherent=np.eye(d, dtype=complex), hamiltonian={}, pauli_rates=rates)
 
 
-def _twirl_items(items: tuple[NoisyItem, ...], memo: dict[int, NoisyItem]) -> tuple[NoisyItem, ...]:
+def _twirl_items(items: tuple[NoisyItem, ...], memo: dict[ObjectKey, NoisyItem]) -> tuple[NoisyItem, ...]:
     out = []
     for it in items:
-        key = id(it)
+        key = ObjectKey(it)
         if key not in memo:
             if isinstance(it, NoisyLayer):
                 memo[key] = replace(it, operations=tuple(_twirl_op(n) for n in it.operations))

@@ -39,6 +39,7 @@ from budget.errors.noisy import (
     Relaxation,
 )
 from budget.errors.params import GateParams
+from budget.memo import ObjectKey
 from budget.problems import ModelError, TooLargeError
 
 FamilyBy = Literal["gate", "pair"]
@@ -167,9 +168,10 @@ class _Attacher:
                 block, prev = self.repeat(it, prev)
                 out.extend(block)
             elif isinstance(it, (Measure, Reset)):
-                if id(it) not in self._items:
-                    self._items[id(it)] = self.probe(it)
-                out.append(self._items[id(it)])
+                key = ObjectKey(it)
+                if key not in self._items:
+                    self._items[key] = self.probe(it)
+                out.append(self._items[key])
                 prev = None  # no pulse bleeds across a measurement or reset
             elif isinstance(it, IfBlock):
                 then, _ = self.items(it.then, prev)
@@ -181,7 +183,7 @@ class _Attacher:
         return tuple(out), prev
 
     def repeat(self, rep: Repeat, prev: Layer | None) -> tuple[tuple[NoisyItem, ...], Layer | None]:
-        key = (id(rep), self.context.bleed_key(prev, _first_layer(rep)))
+        key = (ObjectKey(rep), self.context.bleed_key(prev, _first_layer(rep)))
         if key not in self._items:
             first, last = self.items(rep.body, prev)
             block: tuple[NoisyItem, ...] = (NoisyRepeat(first, rep.count),)
@@ -194,7 +196,7 @@ class _Attacher:
 
     def expanded(self, layer: Layer) -> tuple[NoisyLayer, ...]:
         """The layer and the context layers after it (crosstalk, then spectator ZZ)."""
-        key = id(layer)
+        key = ObjectKey(layer)
         if key not in self._items:
             real = self.layer(layer)
             self._items[key] = (real, *self.context.after(layer, real))
@@ -229,7 +231,7 @@ class _Attacher:
         return NoisyReset(it, family, errors, idle, length)
 
     def operation(self, op: Operation, table: ContextTable | None = None) -> NoisyOperation:
-        key = (op.gate, op.qubits, op.params, None if op.matrix is None else id(op.matrix), id(table))
+        key = (op.gate, op.qubits, op.params, ObjectKey(op.matrix), ObjectKey(table))
         if key in self._ops:
             return self._ops[key]
         names = tuple(self.names[q] for q in op.qubits)

@@ -16,6 +16,7 @@ import math
 import numpy as np
 
 from budget.errors.noisy import NoisyCircuit, NoisyOperation, Relaxation
+from budget.memo import ObjectKey
 from budget.pauli_algebra import I, pauli_labels, pauli_matrix
 
 
@@ -119,18 +120,18 @@ def naive_infidelity(circuit: NoisyCircuit) -> float:
     relaxation; repeats count with their exact multiplicity (no unrolling), summed in log space:
     1 - exp(Σ m_i log1p(-e_i)), with math.fsum, so N = 10**9 repetitions cost no more than one.
     """
-    by_object: dict[int, float] = {}
+    by_object: dict[ObjectKey, float] = {}
     by_channel: dict[tuple, float] = {}
     terms: list[float] = []
     for layer, mult in circuit.multiplicities():
         logs: list[float] = []
         for nop in layer.operations:
-            if id(nop) not in by_object:
+            if ObjectKey(nop) not in by_object:
                 key = _channel_key(nop)
                 if key not in by_channel:
                     by_channel[key] = _log_fidelity(operation_infidelity(nop))
-                by_object[id(nop)] = by_channel[key]
-            logs.append(by_object[id(nop)])
+                by_object[ObjectKey(nop)] = by_channel[key]
+            logs.append(by_object[ObjectKey(nop)])
         logs.extend(_log_fidelity(_relaxation_infidelity(r)) for r in layer.idle if not r.is_trivial)
         if any(v == -math.inf for v in logs):
             return 1.0

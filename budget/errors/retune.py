@@ -25,6 +25,7 @@ import numpy as np
 from budget.errors.knobs import PLAIN_KNOB, coherent_error, knob_grouping
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat
 from budget.errors.params import GateParams
+from budget.memo import ObjectKey
 from budget.pauli_algebra import pauli_unitary
 
 
@@ -59,8 +60,8 @@ def with_knob_values(circuit: NoisyCircuit, values: Mapping[tuple[str, str], flo
     The structure is kept: an operation object shared by several layers or repeats stays shared.
     """
     _, today = knob_grouping(circuit)
-    ops: dict[int, NoisyOperation] = {}
-    items: dict[int, NoisyItem] = {}
+    ops: dict[ObjectKey, NoisyOperation] = {}
+    items: dict[ObjectKey, NoisyItem] = {}
 
     def new_value(family: str, knob: str, old: float) -> float:
         key = (family, knob)
@@ -70,8 +71,8 @@ def with_knob_values(circuit: NoisyCircuit, values: Mapping[tuple[str, str], flo
         return float(values[key]) * (old / row if row else 1.0)
 
     def operation(nop: NoisyOperation) -> NoisyOperation:
-        if id(nop) in ops:
-            return ops[id(nop)]
+        if ObjectKey(nop) in ops:
+            return ops[ObjectKey(nop)]
         out = nop
         if nop.knob_generators and any((nop.family, k) in values for k in nop.knob_generators):
             knobs = {k: new_value(nop.family, k, float(nop.knob_values.get(k, 0.0))) for k in nop.knob_generators}
@@ -91,18 +92,18 @@ def with_knob_values(circuit: NoisyCircuit, values: Mapping[tuple[str, str], flo
             h = {p: c * scale for p, c in nop.hamiltonian.items() if c * scale != 0}
             out = dataclasses.replace(nop, coherent=pauli_unitary(h) if h else np.eye(2 ** len(nop.qubits), dtype=complex),
                                       hamiltonian=h)
-        ops[id(nop)] = out
+        ops[ObjectKey(nop)] = out
         return out
 
     def walk(body: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
         out = []
         for it in body:
-            if id(it) not in items:
+            if ObjectKey(it) not in items:
                 if isinstance(it, NoisyLayer):
-                    items[id(it)] = dataclasses.replace(it, operations=tuple(operation(n) for n in it.operations))
+                    items[ObjectKey(it)] = dataclasses.replace(it, operations=tuple(operation(n) for n in it.operations))
                 else:
-                    items[id(it)] = NoisyRepeat(walk(it.body), it.count)
-            out.append(items[id(it)])
+                    items[ObjectKey(it)] = NoisyRepeat(walk(it.body), it.count)
+            out.append(items[ObjectKey(it)])
         return tuple(out)
 
     return dataclasses.replace(circuit, body=walk(circuit.body))

@@ -43,6 +43,7 @@ from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, pa
 from budget.errors.knobs import knob_grouping
 from budget.errors.light_cone import light_cone_circuit
 from budget.errors.noisy import NoisyCircuit
+from budget.memo import distinct
 from budget.pauli_algebra import label_bits
 from budget.problems import TooLargeError
 
@@ -111,8 +112,7 @@ class CliffordEngine:
             return f"metric {metric!r} is not one of {', '.join(METRICS)}"
         if circuit.has_mid_circuit:
             return circuit.mid_circuit_reason()
-        distinct = {id(nop): nop.op for layer in circuit.distinct_layers() for nop in layer.operations}
-        op = first_non_clifford(distinct.values())
+        op = first_non_clifford(nop.op for nop in distinct(n for layer in circuit.distinct_layers() for n in layer.operations))
         if op is None:
             return None
         angles = f"({', '.join(f'{a:.6g}' for a in op.params)})" if op.params else ""

@@ -27,6 +27,7 @@ import stim
 from budget.engines.clifford.stim_circuit import to_stim
 from budget.errors.fidelity import error_channel_kraus
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyMeasure, NoisyReset
+from budget.memo import ObjectKey
 from budget.pauli_algebra import channel_twirl, pauli_labels
 
 
@@ -48,7 +49,7 @@ class FrameResult:
 class _Noise:
     """Writes the twirled noise of the chosen families into the stim circuit."""
 
-    def __init__(self, families: set[str] | None, cache: dict[int, dict[str, float]]):
+    def __init__(self, families: set[str] | None, cache: dict[ObjectKey, dict[str, float]]):
         self.families = families
         self.cache = cache
 
@@ -60,9 +61,10 @@ class _Noise:
             for nop in item.operations:
                 if not self.wants(nop.family) or not (nop.has_coherent or nop.has_incoherent):
                     continue
-                if id(nop) not in self.cache:
-                    self.cache[id(nop)] = channel_twirl(error_channel_kraus(nop))
-                probs = self.cache[id(nop)]
+                key = ObjectKey(nop)
+                if key not in self.cache:
+                    self.cache[key] = channel_twirl(error_channel_kraus(nop))
+                probs = self.cache[key]
                 name = "PAULI_CHANNEL_1" if len(nop.qubits) == 1 else "PAULI_CHANNEL_2"
                 out.append(name, list(nop.qubits), [probs[lab] for lab in pauli_labels(len(nop.qubits))[1:]])
         if isinstance(item, (NoisyLayer, NoisyMeasure, NoisyReset)) and self.wants(IDLE):
@@ -117,7 +119,7 @@ def frames(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...]) -> Fra
     n = len(detectors)
     log_keep = np.zeros(n)
     any_keep = 0.0
-    cache: dict[int, dict[str, float]] = {}
+    cache: dict[ObjectKey, dict[str, float]] = {}
     for p, dets in _mechanisms(circuit, detectors, None, cache):
         for d in dets:
             log_keep[d] += np.log1p(-2 * p) if p < 0.5 else -np.inf

@@ -22,6 +22,7 @@ import stim
 
 from budget.circuit.ir import IfBlock, Measure, Operation, Repeat, StructuredCircuit, item_kind
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
+from budget.memo import ObjectKey
 from budget.problems import InputError, place
 
 _PAULIS = {"x": "X", "y": "Y", "z": "Z", "id": "I"}
@@ -116,7 +117,7 @@ class _Writer:
         return InputError(f"{place(self.source, line)}: {what}")
 
     def op(self, out: Text, op: Operation) -> None:
-        key = (op.gate, op.params, None if op.matrix is None else id(op.matrix))
+        key = (op.gate, op.params, ObjectKey(op.matrix))
         if key not in self.cache:
             try:
                 self.cache[key] = [(inst.name, [t.value for t in inst.targets_copy()], inst.gate_args_copy())

@@ -27,6 +27,7 @@ import numpy as np
 
 from budget.errors.fidelity import error_channel_kraus
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
+from budget.memo import ObjectKey
 
 MAX_QUBITS = 10
 MAX_KEY_BITS = 20
@@ -116,7 +117,7 @@ class _Sim:
                 self.det_of.setdefault(i, []).append(k)
             self.last_of.setdefault(max(ms), []).append(k)
         self.det_prob = [0.0] * len(plan.detectors)
-        self.kraus_cache: dict[int, list[np.ndarray]] = {}
+        self.kraus_cache: dict[ObjectKey, list[np.ndarray]] = {}
         self.superops: dict[object, np.ndarray] = {}
 
     # -- linear algebra on the stack -------------------------------------------------------------
@@ -174,7 +175,7 @@ class _Sim:
 
     def layer(self, layer: NoisyLayer) -> None:
         for nop in layer.operations:
-            key = id(nop)
+            key = ObjectKey(nop)
             if key not in self.kraus_cache:
                 u = nop.op.unitary()
                 self.kraus_cache[key] = [k @ u for k in error_channel_kraus(nop)]
@@ -184,7 +185,7 @@ class _Sim:
     def idle(self, relax) -> None:
         for r in relax:
             if not r.is_trivial:
-                self.rho = self.apply(r.kraus(), (r.qubit,), id(r))
+                self.rho = self.apply(r.kraus(), (r.qubit,), ObjectKey(r))
 
     def measure(self, q: int, bit: str, e: float) -> None:
         parts, keys = [], []

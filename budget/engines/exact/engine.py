@@ -44,6 +44,7 @@ from budget.engines.exact.readout import expectation, from_pauli, infidelity
 from budget.engines.exact.register import Fuser, Register
 from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, EngineResult, Metric, parse_observable, zero_result
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
+from budget.memo import ObjectKey
 from budget.problems import TooLargeError
 
 
@@ -56,14 +57,14 @@ class _Runner:
         site_dim: int,
         local: Callable[[NoisyOperation], np.ndarray],
         idle: Callable[[Relaxation], np.ndarray] | None,
-        powered: dict[int, bool],
+        powered: dict[ObjectKey, bool],
     ) -> None:
         self.n, self.s = n, site_dim
         self._local, self._idle = local, idle
         self._powered = powered
         self._cache: dict[tuple, np.ndarray] = {}
         self._idle_cache: dict[tuple[float, float], np.ndarray] = {}
-        self._powers: dict[int, np.ndarray] = {}
+        self._powers: dict[ObjectKey, np.ndarray] = {}
         self.methods: set[str] = set()
 
     def local(self, nop: NoisyOperation) -> np.ndarray:
@@ -95,7 +96,7 @@ class _Runner:
                     for r in it.idle:
                         if not r.is_trivial:
                             fuser.add((r.qubit,), self.idle(r))
-            elif self._powered.get(id(it), False):
+            elif self._powered.get(ObjectKey(it), False):
                 fuser.flush()
                 reg.apply_full(self._power(it))
             else:
@@ -103,7 +104,7 @@ class _Runner:
                     self._walk(it.body, reg, fuser)
 
     def _power(self, rep: NoisyRepeat) -> np.ndarray:
-        p = self._powers.get(id(rep))
+        p = self._powers.get(ObjectKey(rep))
         if p is None:
             dtype = complex if self.s == 2 else float
             block = self.run(rep.body, Register.identity(self.n, self.s, dtype)).canonical().copy()
@@ -113,7 +114,7 @@ class _Runner:
                 p, method = channel_power(block, rep.count)
                 p = np.ascontiguousarray(p.real)  # a real Pauli transfer matrix
             self.methods.add(method)
-            self._powers[id(rep)] = p
+            self._powers[ObjectKey(rep)] = p
         return p
 
 

@@ -20,6 +20,7 @@ import math
 from dataclasses import dataclass
 
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
+from budget.memo import ObjectKey
 
 STATE_VECTOR_MAX_QUBITS = 22
 """Coherent errors, state metric: 64 MiB state vector, ~60 ms per two-qubit gate (measured)."""
@@ -68,7 +69,7 @@ class Plan:
         columns: 1 for a state, s^n for an operator.
         work: estimated complex multiply-adds (noisy and ideal runs).
         memory_bytes: estimated peak memory.
-        powered: repeated blocks raised to a power (id of the NoisyRepeat -> True) or unrolled.
+        powered: repeated blocks raised to a power (ObjectKey of the NoisyRepeat -> True) or unrolled.
         ideal_powered: the same choice for the ideal run (state vector or unitary).
     """
 
@@ -78,8 +79,8 @@ class Plan:
     columns: int
     work: float
     memory_bytes: float
-    powered: dict[int, bool]
-    ideal_powered: dict[int, bool]
+    powered: dict[ObjectKey, bool]
+    ideal_powered: dict[ObjectKey, bool]
 
 
 def _big(x: int) -> float:
@@ -93,7 +94,7 @@ class _Costs:
 
     def __init__(self, n: int, s: int, repeats: str) -> None:
         self.n, self.s, self.mode = n, s, repeats
-        self.powered: dict[int, bool] = {}
+        self.powered: dict[ObjectKey, bool] = {}
         self.uses_power = False
 
     def items(self, items: tuple[NoisyItem, ...], columns: int) -> float:
@@ -113,11 +114,11 @@ class _Costs:
         unroll = rep.count * self.items(rep.body, columns)
         dim = self.s**self.n
         if dim > POWER_MAX_DIM or self.mode == "unroll":
-            self.powered.setdefault(id(rep), False)
+            self.powered.setdefault(ObjectKey(rep), False)
             return unroll
         power = self.items(rep.body, dim) + _DECOMPOSITION * dim**3 + dim * dim * columns
         use = power < unroll or power <= CHEAP_POWER_WORK or self.mode == "power"
-        self.powered[id(rep)] = self.powered.get(id(rep), False) or use
+        self.powered[ObjectKey(rep)] = self.powered.get(ObjectKey(rep), False) or use
         self.uses_power |= use
         return min(unroll, power)
 

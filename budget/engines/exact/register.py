@@ -17,6 +17,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from budget.memo import distinct
+
 
 class Register:
     """A tensor of n sites of dimension s and C trailing columns, with a movable axis order.
@@ -117,7 +119,7 @@ class Fuser:
         self._pending: dict[int, tuple[tuple[int, ...], np.ndarray]] = {}
 
     def add(self, qubits: tuple[int, ...], matrix: np.ndarray) -> None:
-        entries = {id(e): e for q in qubits if (e := self._pending.get(q)) is not None}.values()
+        entries = distinct(e for q in qubits if (e := self._pending.get(q)) is not None)
         union = set(qubits).union(*(e[0] for e in entries))
         if len(union) > 2:
             for e in list(entries):
@@ -150,5 +152,5 @@ class Fuser:
 
     def flush(self) -> None:
         """Apply every pending operation."""
-        for entry in list({id(e): e for e in self._pending.values()}.values()):
+        for entry in distinct(self._pending.values()):
             self._flush(entry)

@@ -66,18 +66,10 @@ def layer_classes(ops: list[tuple[tuple[int, ...], LocalClifford]], direction: s
     ``direction`` ``"pull"`` uses U† G U (map each Pauli back towards the input), ``"push"`` uses
     U G U† (towards the output). Identity gates are left out.
     """
-    groups: dict[int, tuple[tuple, list[tuple[int, ...]]]] = {}
+    groups: dict[tuple, list[tuple[int, ...]]] = {}
     for qubits, cl in ops:
-        if cl.is_identity:
-            continue
-        hit = groups.get(id(cl))
-        if hit is None:
-            hit = groups[id(cl)] = (cl.backward if direction == "pull" else cl.forward, [])
-        hit[1].append(qubits)
-    merged: dict[tuple, list[tuple[int, ...]]] = {}
-    for images, qs in groups.values():
-        merged.setdefault(images, []).extend(qs)
-    groups = merged
+        if not cl.is_identity:
+            groups.setdefault(cl.backward if direction == "pull" else cl.forward, []).append(qubits)
     return tuple(GateClass(np.array(qs, dtype=np.int64).reshape(len(qs), -1), images) for images, qs in groups.items())
 
 

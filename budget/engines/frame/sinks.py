@@ -25,6 +25,7 @@ import numpy as np
 from budget.engines.frame.pauli_frame import Frame, fingerprints, unpack_bits
 from budget.engines.frame.terms import LayerTable, TermBuilder, stochastic_terms, term_slots
 from budget.errors.noisy import NoisyLayer
+from budget.memo import ObjectKey
 from budget.pauli_algebra import popcount
 
 BITS16 = (np.arange(16)[:, None] >> np.arange(4)) & 1
@@ -119,7 +120,7 @@ class GroupSink(_Batches):
         self.builder, self.key, self.unit = builder, key, unit
         self.chunks: list[tuple[int, np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = []  # batch, keys, coef, phase, tag
         self.sto: list[tuple[int, np.ndarray, np.ndarray]] = []  # batch, sources, summed rates
-        self._static: dict[int, tuple] = {}
+        self._static: dict[ObjectKey, tuple] = {}
         self.terms_emitted = 0
         self.rates_emitted = 0
         self.folded: list = []  # FoldedTerms of blocks folded by orbits (budget/engines/frame/orbits.py)
@@ -162,9 +163,10 @@ class GroupSink(_Batches):
             uniq, sums = _per_source(table, per_site)
             self.sto.append((b, uniq, sums))
         else:
-            if id(table) not in self._static:
-                self._static[id(table)] = _per_source(table, table.rates.sum(axis=1))
-            self.sto.append((b,) + self._static[id(table)])
+            key = ObjectKey(table)
+            if key not in self._static:
+                self._static[key] = _per_source(table, table.rates.sum(axis=1))
+            self.sto.append((b,) + self._static[key])
 
     def coherent_terms(self, bucket: int | None = None, buckets: int = 1):
         """(fingerprints, amplitudes h·i^e with batch factors applied, tags) of the coherent terms,
@@ -268,20 +270,20 @@ class LandingSink(_Batches):
         self.amps: list[np.ndarray] = []
         self.batch_of: list[int] = []
         self.land: dict[int, np.ndarray] = {}
-        self._slots: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}  # id(table) -> slots
+        self._slots: dict[ObjectKey, tuple[np.ndarray, np.ndarray, list]] = {}  # table -> slots
 
     def _layer_slots(self, table: LayerTable, n: int) -> tuple[np.ndarray, np.ndarray, list]:
         """(coherent slots, stochastic slots, runs (rate, term indices) of equal stochastic rates)
         of a table; they do not depend on
-        the frame, so each table's are built once (tables stay alive in the builder)."""
-        hit = self._slots.get(id(table))
+        the frame, so each table's are built once (the key holds the table)."""
+        hit = self._slots.get(ObjectKey(table))
         if hit is None:
             c = table.coherent
             site, v, rates = stochastic_terms(table)
             order = np.argsort(rates, kind="stable")  # runs of equal rates (few per layer)
             values, starts = np.unique(rates[order], return_index=True)
             runs = [(float(r), order[a:b]) for r, a, b in zip(values, starts, [*starts[1:], len(order)])]
-            hit = self._slots[id(table)] = (term_slots(table, c.site, c.v, n), term_slots(table, site, v, n), runs)
+            hit = self._slots[ObjectKey(table)] = (term_slots(table, c.site, c.v, n), term_slots(table, site, v, n), runs)
         return hit
 
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:

@@ -38,6 +38,7 @@ import numpy as np
 from budget.circuit.clifford_check import operation_clifford
 from budget.engines.frame.pauli_frame import Frame, GateClass, layer_classes
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
+from budget.memo import ObjectKey
 
 MAX_UNROLLED = 4096
 """Default cap on repetitions walked while looking for a block's period."""
@@ -97,7 +98,7 @@ class Walker:
         self._plans: dict[tuple, tuple[GateClass, ...]] = {} if plans is None else plans
         self.orbit_baby = orbit_baby
         self.orbit_records: list[dict] = []
-        self._orbit_block: int | None = None
+        self._orbit_block: NoisyItem | None = None
         self._outside: tuple = (None, None)  # coherent terms after / before that block (_collect)
         self._frame_lost = False
 
@@ -108,7 +109,7 @@ class Walker:
         found = self._orbit_candidate(items)
         if found is not None:
             at = found
-            self._orbit_block = id(items[at])
+            self._orbit_block = items[at]
             self._outside = (self._collect(items[at + 1 :], "pull"), self._collect(items[:at], "push"))
             self._frame_lost = True  # only the block's own frame matters (see _orbit_repeat)
         self._items(items)
@@ -158,25 +159,23 @@ class Walker:
                 self._repeat(it)
 
     def _plan(self, layer: NoisyLayer) -> tuple[GateClass, ...]:
-        key = (id(layer), self.direction)
+        # keys hold the layer and operation objects (ObjectKey), so a recycled id() never hits
+        key = (ObjectKey(layer), self.direction)
         if key not in self._plans:
-            content = (tuple(map(id, layer.operations)), self.direction)
-            if content in self._plans:
-                self._plans[key] = self._plans[content]
-                self._plans.setdefault("alive", []).append(layer)
-                return self._plans[key]
-            ops = self._plans.setdefault("ops", {})
-            pairs = []
-            for nop in layer.operations:
-                hit = ops.get(id(nop))
-                if hit is None:
-                    cl = operation_clifford(nop.op)
-                    if cl is None:
-                        raise ValueError(f"operation {nop.op.gate} on {nop.op.qubits} is not Clifford")
-                    hit = ops[id(nop)] = (nop.op.qubits, cl, nop)
-                pairs.append(hit[:2])
-            self._plans[key] = self._plans[content] = layer_classes(pairs, self.direction)
-            self._plans.setdefault("alive", []).append(layer)
+            content = (tuple(map(ObjectKey, layer.operations)), self.direction)
+            if content not in self._plans:
+                ops = self._plans.setdefault("ops", {})
+                pairs = []
+                for nop in layer.operations:
+                    hit = ops.get(ObjectKey(nop))
+                    if hit is None:
+                        cl = operation_clifford(nop.op)
+                        if cl is None:
+                            raise ValueError(f"operation {nop.op.gate} on {nop.op.qubits} is not Clifford")
+                        hit = ops[ObjectKey(nop)] = (nop.op.qubits, cl)
+                    pairs.append(hit)
+                self._plans[content] = layer_classes(pairs, self.direction)
+            self._plans[key] = self._plans[content]
         return self._plans[key]
 
     def _layer(self, layer: NoisyLayer) -> None:
@@ -194,7 +193,7 @@ class Walker:
 
     def _repeat(self, rep: NoisyRepeat) -> None:
         count = int(rep.count)
-        if id(rep) == self._orbit_block:
+        if rep is self._orbit_block:
             self._orbit_repeat(rep)
             return
         if self._frame_lost:  # stochastic terms only: one repetition, rates times N

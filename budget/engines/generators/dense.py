@@ -49,6 +49,7 @@ from budget.engines.matrices.apply import LocalOp, apply, conjugate, embed
 from budget.engines.matrices.channels import LayerContent
 from budget.engines.matrices.periodic import CycleBasis, cross_cycle_sum, cycle_basis, periodic_sum, principal_generator
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
+from budget.memo import ObjectKey
 
 ContentOf = Callable[[NoisyLayer], LayerContent]
 
@@ -151,9 +152,8 @@ class DensePropagator:
         self.n = num_qubits
         self.content_of = content_of
         self.second_order = second_order
-        self._blocks: dict[int, tuple[DenseBlock, CycleBasis]] = {}  # id(body) -> block, basis
-        self._noisy_basis: dict[int, CycleBasis] = {}  # id(body) -> basis of the noisy body unitary
-        self._bodies: list[tuple] = []  # keeps the cached bodies alive, so their ids stay unique
+        self._blocks: dict[ObjectKey, tuple[DenseBlock, CycleBasis]] = {}  # body -> block, basis
+        self._noisy_basis: dict[ObjectKey, CycleBasis] = {}  # body -> basis of the noisy body unitary
 
     def block(self, items: tuple[NoisyItem, ...], *, with_unitary: bool = True) -> DenseBlock:
         """The :class:`DenseBlock` of ``items`` (see module docstring)."""
@@ -185,7 +185,7 @@ class DensePropagator:
                 if ut is not None:
                     ut = ut @ p.T
                 if noisy is not None:
-                    body = self._noisy_basis.get(id(item.body))
+                    body = self._noisy_basis.get(ObjectKey(item.body))
                     noisy = noisy @ (p if body is None else body.power(item.count)).T  # no basis: no error inside
                 if not inner.keys:
                     continue
@@ -234,11 +234,10 @@ class DensePropagator:
     def repeat(self, item: NoisyRepeat) -> tuple[DenseBlock, CycleBasis]:
         """The body's dense block and the Schur basis of its unitary (cached per body: repeats of
         one body with different counts share it)."""
-        key = id(item.body)
+        key = ObjectKey(item.body)
         if key not in self._blocks:
             inner = self.block(item.body)
             self._blocks[key] = (inner, cycle_basis(inner.unitary))
             if inner.noisy is not None:
                 self._noisy_basis[key] = cycle_basis(inner.noisy)
-            self._bodies.append(item.body)
         return self._blocks[key]

@@ -24,6 +24,7 @@ from budget.engines.matrices.channels import _operation_jumps, _relaxation_jumps
 from budget.engines.pauli._local import LocalMap, gate_map, generator_map, local_basis, local_label
 from budget.engines.pauli._store import Store, from_local
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation
+from budget.memo import ObjectKey
 
 Grouping = Callable[[NoisyOperation], list[tuple[object, dict[str, float]]]]
 
@@ -112,24 +113,25 @@ class PlanBook:
     def __init__(self, n: int, direction: str, grouping: Grouping, columns: dict, *, jumps: bool, generators: bool):
         self.n, self.direction, self.grouping, self.columns = n, direction, grouping, columns
         self.jumps, self.generators = jumps, generators
-        self._plans: dict[int, tuple[NoisyLayer, LayerPlan]] = {}
-        self._gen_cache: dict[int, tuple[np.ndarray, float, NoisyOperation]] = {}  # keeps nop alive
+        self._plans: dict[ObjectKey, LayerPlan] = {}
+        self._gen_cache: dict[ObjectKey, tuple[np.ndarray, float]] = {}
 
     def __call__(self, layer: NoisyLayer) -> LayerPlan:
-        hit = self._plans.get(id(layer))
+        key = ObjectKey(layer)
+        hit = self._plans.get(key)
         if hit is None:
-            hit = self._plans[id(layer)] = (layer, self._build(layer))
-        return hit[1]
+            hit = self._plans[key] = self._build(layer)
+        return hit
 
     def _classes(self, layer: NoisyLayer) -> tuple[GateClass, ...]:
-        groups: dict[int, tuple[LocalMap, list]] = {}
+        groups: dict[ObjectKey, tuple[LocalMap, list]] = {}
         for nop in layer.operations:
             op = nop.op
             key = (op.gate, op.params) if op.matrix is None else None
             lmap = gate_map(op.unitary(), self.direction, key)
             if np.array_equal(lmap.matrix, np.eye(lmap.matrix.shape[0])):
                 continue
-            groups.setdefault(id(lmap), (lmap, []))[1].append(op.qubits)
+            groups.setdefault(ObjectKey(lmap), (lmap, []))[1].append(op.qubits)
         out = []
         for lmap, qs in groups.values():
             arr = np.array(qs, np.int64).reshape(len(qs), -1)
@@ -158,13 +160,13 @@ class PlanBook:
         return from_local(self.n, np.array(qa), np.array(qb), np.array(v), np.zeros(t, np.int64), np.array(rows))
 
     def _generator(self, nop: NoisyOperation) -> tuple[np.ndarray, float]:
-        hit = self._gen_cache.get(id(nop))
+        hit = self._gen_cache.get(ObjectKey(nop))
         if hit is None:
             jumps = _operation_jumps(nop)
             m = generator_map(nop.hamiltonian, jumps, len(nop.qubits))
             kappa = 2 * sum(abs(c) for c in nop.hamiltonian.values()) + 2 * sum(p for _, p in jumps)
-            hit = self._gen_cache[id(nop)] = (m, kappa, nop)
-        return hit[0], hit[1]
+            hit = self._gen_cache[ObjectKey(nop)] = (m, kappa)
+        return hit
 
     def _build(self, layer: NoisyLayer) -> LayerPlan:
         sites: list[JumpSite] = []

@@ -22,6 +22,7 @@ import numpy as np
 
 from budget.engines.frame.groups import Budget
 from budget.engines.pauli._store import Store, group_equal
+from budget.memo import ObjectKey
 from budget.pauli_algebra import popcount
 
 PHASE = np.array([1, 1j, -1, -1j])
@@ -81,9 +82,9 @@ def jump_costs(occurrences: list[tuple], values: np.ndarray, dropped: np.ndarray
     ``occurrences``: (JumpSite, first tag, multiplicity) per executed site (multiplicity > 1 for
     sites of folded blocks); ``values``/``dropped``: per tag, the
     read-off <P_v> and the l1 norm of its dropped rows (an upper bound on |error of <P_v>|)."""
-    by_site: dict[int, tuple] = {}
+    by_site: dict[ObjectKey, tuple] = {}
     for site, base, mult in occurrences:
-        hit = by_site.setdefault(id(site), (site, [], []))
+        hit = by_site.setdefault(ObjectKey(site), (site, [], []))
         hit[1].append(base)
         hit[2].append(mult)
     costs: dict[str, float] = {}
