@@ -34,7 +34,7 @@ def from_cirq(circuit, source: str = "<cirq.Circuit>") -> StructuredCircuit:
     """A cirq circuit as a StructuredCircuit (moments become layers, CircuitOperation repetitions
     become repeats); see :func:`budget.circuit.cirq_reader.from_cirq`. cirq is imported here, on
     first use, because it takes seconds to import."""
-    from budget.circuit.cirq_reader import from_cirq as _from_cirq
+    from budget.circuit.cirq_reader import from_cirq as _from_cirq  # slow optional import: cirq takes seconds
 
     return _from_cirq(circuit, source)
 

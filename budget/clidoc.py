@@ -10,6 +10,7 @@ from __future__ import annotations
 from typer.testing import CliRunner
 
 from budget.cli import app
+import typer.main
 
 WIDTH = 100
 
@@ -22,16 +23,12 @@ def _help(*args: str) -> str:
 
 
 def command_names() -> list[str]:
-    import typer.main
-
     group = typer.main.get_command(app)
     return list(group.commands)  # type: ignore[attr-defined]
 
 
 def _subcommands(name: str) -> list[str]:
     """The commands of a command group (``budget model import``), else none."""
-    import typer.main
-
     group = typer.main.get_command(app)
     return list(getattr(group.commands[name], "commands", {}))  # type: ignore[attr-defined]
 

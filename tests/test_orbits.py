@@ -274,7 +274,7 @@ def test_byte_table_product_equals_bitwise_xor():
 def test_grouping_hash_separates_rows_differing_in_the_top_bits_of_two_words():
     # With a multiply-and-sum hash these rows collide (2^63 + 2^63 = 0 mod 2^64) and the grouping
     # fell back to a slow exact sort; the grouping must be right either way and hash them apart.
-    from budget.engines.frame.groups import group_rows, row_hash
+    from budget.engines.frame.rows import group_rows, row_hash
 
     top = np.uint64(1) << np.uint64(63)
     keys = np.zeros((4, 4), np.uint64)

@@ -29,7 +29,8 @@ from budget.errors.model import ErrorModel
 from budget.report.content import gather, num
 from budget.report.progress import progress_bar, wants_progress
 from budget.report.render import report_files
-from budget.report.sections import Table, Tiles, build
+from budget.report.blocks import Table, Tiles
+from budget.report.sections import build
 
 ROOT = Path(__file__).resolve().parent.parent
 ARTIFACTS = ROOT / "test-artifacts"

@@ -13,7 +13,8 @@ import cirq
 import numpy as np
 import pytest
 
-from budget.analysis.sensitivity import per_operation, quadratic_form, sensitivity, sensitivity_json
+from budget.analysis.families import per_operation
+from budget.analysis.sensitivity import quadratic_form, sensitivity, sensitivity_json
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
 from budget.engines.base import QuadraticForm
 from budget.errors.attach import attach

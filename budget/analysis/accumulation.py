@@ -20,6 +20,7 @@ import numpy as np
 from budget.engines.matrices.channels import Grouping, by_family, content_cache
 from budget.engines.generators.dense import DenseBlock, DensePropagator
 from budget.errors.noisy import NoisyCircuit, NoisyOperation
+from budget.engines.matrices.periodic import accumulation_split, cycle_basis
 
 MAX_QUBITS = 10
 _REL_TOL = 1e-9  # relative to the knob's own size per cycle: below this a part counts as absent
@@ -84,8 +85,6 @@ class CycleErrors:
 
     def components(self) -> tuple[Component, ...]:
         """Every knob's split, the largest long-run contributors first."""
-        from budget.engines.matrices.periodic import accumulation_split, cycle_basis
-
         basis = cycle_basis(self.unitary)
         out = [
             Component(name, *accumulation_split(basis, h), local)

@@ -22,7 +22,8 @@ from budget.analysis.randomized import EnsembleResult
 from budget.analysis.randomized import ensemble as run_ensemble
 from budget.analysis.ratios import Ratio, safe_ratio
 from budget.analysis.result import BudgetResult
-from budget.analysis.run import analyze, analyze_noisy, attach_grouped, read_circuit, read_model
+from budget.analysis.families import attach_grouped
+from budget.analysis.run import analyze, analyze_noisy, read_circuit, read_model
 from budget.problems import InputError
 
 Progress = Callable[[int, int], None]

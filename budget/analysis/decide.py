@@ -22,11 +22,15 @@ from budget.analysis.calibration import (
 from budget.analysis.closed_loop import close_loop
 from budget.analysis.floor import floor_remedy
 from budget.analysis.phase_estimation import find_probes
-from budget.analysis.sensitivity import Sensitivity, per_operation, quadratic_form, sensitivity, sensitivity_json
+from budget.analysis.families import per_operation
+from budget.analysis.sensitivity import Sensitivity, quadratic_form, sensitivity, sensitivity_json
 from budget.analysis.tolerance_output import tolerances_json
 from budget.analysis.tolerances import ToleranceReport, check_target, tolerances
 from budget.engines.base import MEASURED_METRICS
 from budget.problems import InputError
+from budget.analysis.run import read_circuit, read_model
+from budget.errors.attach import attach
+from budget.errors.noisy import NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
 
 GROUPINGS: tuple[str, ...] = ("gate", "pair", "operation")
 
@@ -72,9 +76,6 @@ def decide(
         detector: with ``metric="detectors"``, the target is on this detector's firing probability
             (its number in the detector list) instead of P(some detector fires).
     """
-    from budget.analysis.run import read_circuit, read_model
-    from budget.errors.attach import attach
-
     check_target(target)
     if isinstance(cycles, bool) or not isinstance(cycles, int) or cycles < 1:
         raise InputError(f"cycles = {cycles!r}: expected a whole number >= 1")
@@ -107,8 +108,6 @@ def checked_tolerances(
     the incoherent floor exceeds the target :func:`~budget.analysis.floor.floor_remedy` says what
     incoherent numbers would meet it.
     """
-    from budget.errors.attach import attach
-
     if metric in MEASURED_METRICS:  # leading order only: the closed loop runs the gate metrics
         return tolerances(qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles)
     if family_by == "gate":
@@ -129,8 +128,6 @@ def checked_tolerances(
 def site_families(by_gate: Any, by_site: Any) -> dict[str, str]:
     """Per-site family name -> gate family name, read off the same circuit attached both ways
     (their items correspond one to one; context errors keep their own names)."""
-    from budget.errors.noisy import NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
-
     out: dict[str, str] = {}
 
     def walk(a: tuple, b: tuple) -> None:

@@ -34,6 +34,14 @@ from budget.engines.base import MEASURED_METRICS
 from budget.problems import InputError
 
 from budget.analysis.curves import CROSSOVER_FACTOR, CURVE_WORDS, CURVES, JSON_KEYS, DepthCurve
+from budget.engines.door import AUTO_ORDER, check_time, choose
+from budget.analysis.accumulation import cycle_hamiltonian
+from budget.engines.generators.engine import range_note
+from budget.engines.matrices.periodic import cycle_basis, periodic_sum
+from budget.analysis.measured import measured_values, naive_measured
+from budget.analysis.twirl import twirled_circuit
+from budget.errors.fidelity import naive_infidelity
+from budget.analysis.accumulation import components_or_note
 
 __all__ = ["CROSSOVER_FACTOR", "CURVE_WORDS", "CURVES", "JSON_KEYS", "DepthCurve", "depth_curve", "repetition_grid"]
 MAX_POINTS = 200
@@ -112,8 +120,6 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, de
     re-running it per point. Otherwise every point is one run of the chosen engine on the folded
     repeat (the exact engine takes matrix powers, the clifford engine folds whole periods); the
     engine is chosen for the deepest point ``deepest``, the costliest one."""
-    from budget.engines.door import AUTO_ORDER, check_time, choose
-
     notes: list[str] = []
     small = engine == "auto" and block.num_qubits <= EXACT_CURVE_QUBITS
     if (metric == "process" and engine in ("auto", "generators") and not small and block.later_body is None
@@ -140,10 +146,6 @@ def _closed_form(block: NoisyCircuit, engine) -> _Series:
     """The generators engine's value for N cycles by the periodic closed form, and whether it is
     within the engine's range (:func:`budget.engines.generators.engine.range_note` on the coherent part of
     the summed Hamiltonian S_N and the stochastic sum N s)."""
-    from budget.analysis.accumulation import cycle_hamiltonian
-    from budget.engines.generators.engine import range_note
-    from budget.engines.matrices.periodic import cycle_basis, periodic_sum
-
     one = engine.run(block, "process")
     stochastic = float(one.details.get("stochastic_first_order", 0.0))
     unitary, h = cycle_hamiltonian(block)
@@ -162,8 +164,6 @@ def _measured_curve(block: NoisyCircuit, grid: tuple[int, ...], metric: str, eng
                     progress: Progress | None) -> DepthCurve:
     """Depth curves of the detector or record metric: the whole circuit (a round) repeated N times,
     detectors inferred anew at every N. Naive: 1 - (1 - e₁)^N from the one-round product."""
-    from budget.analysis.measured import measured_values, naive_measured
-
     one = naive_measured(block)
     names: list[str] = []
     values: dict[str, list[float]] = {c: [] for c in CURVES}
@@ -225,9 +225,6 @@ def depth_curve(
         target: E in (0, 1) for the deepest count of each curve, or None.
         progress: called as progress(done, total) over the grid.
     """
-    from budget.analysis.twirl import twirled_circuit
-    from budget.errors.fidelity import naive_infidelity
-
     if isinstance(max_cycles, bool) or not isinstance(max_cycles, int) or not 1 <= max_cycles <= 10**18:
         raise InputError(f"max_cycles = {max_cycles!r}: expected a whole number from 1 to 10**18")
     if isinstance(points, bool) or not isinstance(points, int) or not 2 <= points <= MAX_POINTS:
@@ -264,8 +261,6 @@ def depth_curve(
         for c in CURVES:  # beyond its range a curve cannot vouch for the target
             first_bad = _first_true(lambda n, s=series[c]: s(n) is None or s(n) > target, grid)
             deepest[c] = max_cycles if first_bad is None else (first_bad - 1 or None)
-    from budget.analysis.accumulation import components_or_note
-
     components, note = components_or_note(block, metric)
     warnings = list(dict.fromkeys(notes + tw_notes))
     if note:

@@ -32,6 +32,8 @@ import numpy as np
 
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
 from budget.problems import InputError
+from budget.engines.clifford.stim_circuit import record_qubits
+from budget.engines.clifford.stim_circuit import to_stim
 
 SHOT_MARGIN = 64
 """Shots beyond the rank of the random part; the span is complete except with probability 2^-64."""
@@ -143,8 +145,6 @@ def recorded_qubits(noisy: NoisyCircuit, metric: str) -> list[int]:
     Raises:
         InputError: the circuit records no outcome.
     """
-    from budget.engines.clifford.stim_circuit import record_qubits  # engines import analysis helpers
-
     qubits = record_qubits(noisy)
     if not qubits:
         raise InputError(f"{noisy.source}: the {metric} metric needs measurements inside the circuit, and this one "
@@ -168,8 +168,6 @@ def infer_checks(
         InputError: a named observable is not deterministic or names a record index that does
             not exist; the circuit is not Clifford (from the stim writer).
     """
-    from budget.engines.clifford.stim_circuit import to_stim  # engines import analysis helpers
-
     qubits = recorded_qubits(circuit, "detectors")
     ideal = to_stim(circuit)
     m = len(qubits)

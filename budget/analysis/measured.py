@@ -29,7 +29,7 @@ import numpy as np
 from budget.analysis.detectors import Checks, infer_checks, recorded_qubits
 from budget.analysis.folding import fold_target, folded_frames, scaled
 from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit, circuit_fields
-from budget.analysis.run import family_counts, family_table
+from budget.analysis.families import family_counts, family_table
 from budget.circuit.ir import StructuredCircuit
 from budget.engines.exact.branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
 from budget.engines.base import MEASURED_METRICS
@@ -37,6 +37,10 @@ from budget.errors.fidelity import naive_infidelity
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
 from budget.memo import ObjectKey
 from budget.problems import InputError, TooLargeError
+from budget.engines.clifford.frames import frames
+from budget.analysis.twirl import twirled_circuit
+from budget.errors.fidelity import relaxation_process_fidelity
+from budget.engines.clifford.frames import families_of
 
 TWIRL_WARNING = ("coherent errors enter as their Pauli twirl on the clifford engine: their build-up within a "
                  "round needs the exact engine (small circuits)")
@@ -83,8 +87,6 @@ def analyze_measured(
     use_exact = engine == "exact" or (engine == "auto" and reason is None)
     if engine == "exact" and reason is not None:
         raise TooLargeError(f"engine exact: {reason}; the clifford engine fits (first order, errors twirled)")
-    from budget.engines.clifford.frames import frames
-
     fo = frames(noisy, plan.detectors)
     warnings = []
     if use_exact:
@@ -116,8 +118,6 @@ def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> t
         reason = exact_refusal(noisy, plan)
         if reason is not None or engine == "clifford":
             raise TooLargeError(f"{noisy.source}: record metric: {reason or 'the exact engine computes it'}")
-        from budget.analysis.twirl import twirled_circuit
-
         ideal = simulate(strip_errors(noisy), plan).record
         return (record_infidelity(ideal, simulate(noisy, plan).record),
                 record_infidelity(ideal, simulate(twirled_circuit(noisy), plan).record), "exact")
@@ -127,8 +127,6 @@ def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> t
 
 def detector_values(noisy: NoisyCircuit, engine: str = "auto") -> tuple[float, float, tuple[float, ...], str]:
     """(P(some detector fires), its frame value, each detector's probability, engine name)."""
-    from budget.engines.clifford.frames import frames
-
     checks = _checks(noisy, None)
     plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
                 False, tuple(condition_bits(noisy.body)), checks.num_measurements)
@@ -194,8 +192,6 @@ def _record(noisy: NoisyCircuit, structured: StructuredCircuit, engine: str, cyc
         parts[fam] = total - record_infidelity(ideal, simulate(without_family(noisy, fam), plan).record)
     twirled = None
     if compare_twirled:
-        from budget.analysis.twirl import twirled_circuit
-
         twirled = record_infidelity(ideal, simulate(twirled_circuit(noisy), plan).record)
     return _result(noisy, structured, "record", "exact", total, None, scaled(parts, total), cycles, [], twirled,
                    record_bits=tuple(bits), details={"record_length": len(qubits)})
@@ -245,8 +241,6 @@ def naive_measured(noisy: NoisyCircuit) -> float:
     log = math.log1p(-naive_infidelity(noisy)) if naive_infidelity(noisy) < 1 else -math.inf
     probes: list = []
     _walk_probes(noisy.body, 1, probes)
-    from budget.errors.fidelity import relaxation_process_fidelity
-
     terms = [log]
     for it, mult in probes:
         errs = it.readout_error if isinstance(it, NoisyMeasure) else it.reset_error
@@ -268,8 +262,6 @@ def _family_counts(noisy: NoisyCircuit) -> dict[str, int]:
 
 
 def _families(noisy: NoisyCircuit) -> list[str]:
-    from budget.engines.clifford.frames import families_of
-
     return families_of(noisy)
 
 

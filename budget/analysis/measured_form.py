@@ -27,6 +27,7 @@ from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyRepeat
 from budget.memo import ObjectKey
 from budget.pauli_algebra import pauli_sum
 from budget.problems import InputError, TooLargeError
+from budget.analysis.measured import detector_values
 
 STEP_RAD = 1e-3
 MAX_KNOBS = 24
@@ -75,8 +76,6 @@ def detector_quadratic_form(noisy: NoisyCircuit, *, engine: str = "auto", detect
     Raises:
         InputError: ``detector`` is not the number of a detector of the circuit.
     """
-    from budget.analysis.measured import detector_values
-
     _, scale = knob_grouping(noisy)
     labels = tuple(scale)
     if len(labels) > MAX_KNOBS:

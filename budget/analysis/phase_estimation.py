@@ -29,6 +29,7 @@ import numpy as np
 import scipy.linalg
 
 from budget.errors.noisy import NoisyCircuit, NoisyOperation
+from budget.errors.fidelity import operation_process_fidelity
 from budget.pauli_algebra import pauli_sum
 
 QUADRATURE_FACTOR = 2.0
@@ -126,8 +127,6 @@ def decay_per_repetition(nop: NoisyOperation) -> float:
     Pauli rates, depolarizing, T1/T2 during the gate); F is its process fidelity, exact from the
     Kraus operators, and p = (d² F - 1)/(d² - 1).
     """
-    from budget.errors.fidelity import operation_process_fidelity
-
     d = 2 ** len(nop.qubits)
     bare = dataclasses.replace(nop, coherent=np.eye(d, dtype=complex), hamiltonian={})
     p = (d * d * operation_process_fidelity(bare) - 1) / (d * d - 1)

@@ -37,6 +37,9 @@ from budget.circuit.clifford_check import clifford_tableau, conjugated_label
 from budget.circuit.ir import Operation
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation
 from budget.problems import InputError, TooLargeError
+from budget.engines.door import choose_engine
+from budget.analysis.twirl import twirled_circuit
+from budget.engines.door import run_in_range
 
 FRAME = "frame"
 """Family name of the error-free frame operations."""
@@ -210,10 +213,6 @@ def ensemble(
         InputError: count < 1 or seed < 0.
         TooLargeError: a compiled copy would exceed :data:`MAX_COMPILED_LAYERS` executed layers.
     """
-    from budget.engines.door import choose_engine
-    from budget.analysis.twirl import twirled_circuit
-    from budget.engines.door import run_in_range
-
     if isinstance(count, bool) or not isinstance(count, int) or count < 1:
         raise InputError(f"ensemble count = {count!r}: expected a whole number >= 1")
     if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:

@@ -22,6 +22,13 @@ from budget.circuit.ir import StructuredCircuit
 from budget.engines.base import MEASURED_METRICS, METRICS, parse_observable
 from budget.errors.noisy import IDLE, NoisyCircuit
 from budget.problems import InputError
+from budget.errors.attach import attach
+from budget.errors.fidelity import naive_infidelity
+from budget.analysis.measured import analyze_measured
+from budget.analysis.twirl import twirled_circuit
+from budget.analysis.families import attach_grouped, family_counts, family_table
+from budget.circuit.load import load_circuit
+from budget.errors.model import ErrorModel, load_model
 
 if TYPE_CHECKING:
     import cirq
@@ -66,9 +73,6 @@ def analyze(
     Returns:
         A frozen :class:`BudgetResult`; ``to_dict()`` gives the documented JSON (schema version 1).
     """
-    from budget.errors.attach import attach
-    from budget.errors.fidelity import naive_infidelity
-
     if metric not in METRICS + MEASURED_METRICS:
         raise InputError(f"metric = {metric!r}: expected one of {', '.join(METRICS + MEASURED_METRICS)}")
     if isinstance(cycles, bool) or not isinstance(cycles, int) or not 1 <= cycles <= MAX_CYCLES:
@@ -107,16 +111,12 @@ def analyze_noisy(
 ) -> BudgetResult:
     """The analysis once the model is attached (shared by :func:`analyze` and other commands);
     ``notes``: warnings to show with the result (the error model's, for instance)."""
-    from budget.errors.fidelity import naive_infidelity
-
     if logical is not None and metric != "detectors":
         raise InputError(f"--logical: logical observables (parities of recorded bits) belong to the detectors metric; the {metric} "
                          "metric does not use them")
     for label in observables:  # bad labels are refused before any engine runs
         parse_observable(label, noisy.qubits)
     if metric in MEASURED_METRICS:
-        from budget.analysis.measured import analyze_measured
-
         if observables:
             raise InputError(f"--observable {observables[0]}: Pauli observables are read from the output state of a "
                              f"gate circuit; the {metric} metric has none (name logical observables of the "
@@ -146,8 +146,6 @@ def analyze_noisy(
     naive = naive_infidelity(noisy)
     twirled = None
     if compare_twirled:
-        from budget.analysis.twirl import twirled_circuit
-
         tw = twirled_circuit(noisy)
         tw_result, _ = run_in_range(tw, metric, choose_engine(tw, metric, engine, brief=True, options=options), engine)
         if tw_result.beyond_range is None:
@@ -184,57 +182,15 @@ def analyze_noisy(
     )
 
 
-GROUPINGS = ("gate", "pair", "operation")
-
-
-def attach_grouped(structured: StructuredCircuit, model: Any, family_by: str = "gate") -> NoisyCircuit:
-    """The model attached with families per ``family_by``: ``"gate"`` (gate name), ``"pair"`` (gate
-    per qubit tuple) or ``"operation"`` (each operation as written, with its line; the same
-    grouping as ``budget tolerances --by-operation``)."""
-    from budget.errors.attach import attach
-
-    if family_by not in GROUPINGS:
-        raise InputError(f"family_by = {family_by!r}: expected one of {', '.join(GROUPINGS)}")
-    if family_by == "operation":
-        from budget.analysis.sensitivity import per_operation
-
-        return per_operation(attach(structured, model, family_by="gate"))
-    return attach(structured, model, family_by=family_by)
-
-
-def family_table(counts: dict[str, int], shares: dict[str, float]) -> tuple[FamilyShare, ...]:
-    """One FamilyShare per family that runs or has a share, largest share first."""
-    return tuple(
-        FamilyShare(name, counts.get(name, 0), float(shares.get(name, 0.0)))
-        for name in sorted(set(counts) | set(shares), key=lambda f: -abs(shares.get(f, 0.0)))
-    )
-
-
-def family_counts(noisy: NoisyCircuit) -> dict[str, int]:
-    """Executed operations per family (idle slots for ``idle``), repeats counted exactly."""
-    counts: dict[str, int] = {}
-    for layer, mult in noisy.multiplicities():
-        for nop in layer.operations:
-            counts[nop.family] = counts.get(nop.family, 0) + mult
-        idle = sum(1 for r in layer.idle if not r.is_trivial)
-        if idle:
-            counts[IDLE] = counts.get(IDLE, 0) + idle * mult
-    return counts
-
-
 def read_circuit(circuit: Any) -> StructuredCircuit:
     """A StructuredCircuit from a path (OpenQASM 2/3, cirq JSON), a cirq.Circuit or itself."""
     if isinstance(circuit, StructuredCircuit):
         return circuit
-    from budget.circuit.load import load_circuit
-
     return load_circuit(circuit)
 
 
 def read_model(errors: Any):
     """An ErrorModel from a TOML path, a dict in the TOML layout, or itself."""
-    from budget.errors.model import ErrorModel, load_model
-
     if isinstance(errors, ErrorModel):
         return errors
     if isinstance(errors, dict):

@@ -16,7 +16,8 @@ unit generators (Blume-Kohout et al., "A taxonomy of small Markovian errors", PR
   negative = they cancel;
 - δ_f (A δ)_f, the *share* of knob f; the shares add up to δᵀAδ.
 
-:func:`per_operation` renames families so the same engines give A per operation.
+Per operation: :func:`budget.analysis.families.per_operation` renames families so the same engines
+give A per operation.
 """
 
 from __future__ import annotations
@@ -29,6 +30,7 @@ from budget.engines.door import choose
 from budget.engines.base import QuadraticForm
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyItem, NoisyLayer, NoisyRepeat
 from budget.problems import InputError
+from budget.analysis.measured_form import detector_quadratic_form
 
 FORM_ENGINES = ("clifford", "generators", "pauli")
 """Engines that build the quadratic form, in the order ``"auto"`` tries them (clifford first: any
@@ -44,8 +46,6 @@ def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto", 
         InputError: ``engine`` is not one of ``"auto"`` and :data:`FORM_ENGINES`.
     """
     if metric == "detectors":
-        from budget.analysis.measured_form import detector_quadratic_form
-
         if engine not in ("auto", "exact", "clifford"):
             raise InputError(f"engine = {engine!r}: the detectors metric's form comes from exact or clifford (or auto)")
         return detector_quadratic_form(circuit, engine=engine, detector=detector)
@@ -190,39 +190,3 @@ def sensitivity_json(s: Sensitivity) -> dict:
         ],
         "interference": [dataclasses.asdict(p) for p in s.pairs],
     }
-
-
-def per_operation(circuit: NoisyCircuit) -> NoisyCircuit:
-    """The same circuit with one family per operation as written, so the engines give A per
-    operation: ``"cz q[0],q[1] @12"`` (the family, its qubits in gate order, the source line), with
-    ``#k`` added when the line is unknown or holds several such operations. An operation inside a
-    repeated block stays one family however often it runs. Context errors (spectator ZZ, crosstalk,
-    bleed) keep their family: a coupler has one ZZ rate however many layers it acts in. (Per
-    qubit pair: attach the model with ``family_by="pair"``.)
-    """
-    counter: dict[str, int] = {}
-
-    def name(nop) -> str:
-        tag = f"{nop.family} {','.join(circuit.qubits[q] for q in nop.qubits)}"
-        if nop.op.line is not None:
-            tag += f" @{nop.op.line}"
-        counter[tag] = counter.get(tag, 0) + 1
-        return tag if nop.op.line is not None and counter[tag] == 1 else f"{tag} #{counter[tag]}"
-
-    def walk(items: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
-        out: list[NoisyItem] = []
-        for it in items:
-            if isinstance(it, NoisyLayer) and it.context:
-                out.append(it)  # context errors already name their pair, rule or qubit: one knob each
-            elif isinstance(it, NoisyLayer):
-                ops = tuple(dataclasses.replace(n, family=name(n)) for n in it.operations)
-                out.append(dataclasses.replace(it, operations=ops))
-            elif isinstance(it, NoisyRepeat):
-                out.append(NoisyRepeat(walk(it.body), it.count))
-            elif isinstance(it, NoisyIf):
-                out.append(NoisyIf(it.item, walk(it.then), walk(it.orelse)))
-            else:
-                out.append(it)  # measurement and reset: no gate operation to name
-        return tuple(out)
-
-    return dataclasses.replace(circuit, body=walk(circuit.body))

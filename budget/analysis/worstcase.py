@@ -26,6 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy.sparse.csgraph import connected_components
+from scipy.optimize import minimize
 
 EXACT_UP_TO = 20
 """Largest group of interfering knobs that is enumerated exactly."""
@@ -178,8 +179,6 @@ def spectral_bound(b: np.ndarray) -> float:
     >>> round(spectral_bound(np.array([[1.0, 1.0], [1.0, 1.0]])), 9)
     4.0
     """
-    from scipy.optimize import minimize  # noqa: PLC0415 (only for groups beyond exact enumeration)
-
     n = len(b)
     best = [float(np.sum(np.abs(b)))]
 

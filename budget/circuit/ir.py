@@ -22,6 +22,7 @@ from dataclasses import dataclass, field
 from typing import Iterator, Union
 
 import numpy as np
+from budget.circuit.gates import ideal_unitary
 
 
 @dataclass(frozen=True)
@@ -58,8 +59,6 @@ class Operation:
         """The ideal unitary in gate order (first qubit most significant)."""
         if self.matrix is not None:
             return self.matrix
-        from budget.circuit.gates import ideal_unitary
-
         return ideal_unitary(self.gate, self.params)
 
     def __hash__(self) -> int:  # matrix is excluded from equality; keep hashing consistent

@@ -31,9 +31,9 @@ def load_circuit(source: "str | Path | cirq.AbstractCircuit") -> StructuredCircu
         CircuitSyntaxError: the file cannot be read as a circuit (message starts ``file:line``).
     """
     if type(source).__module__.startswith("cirq"):
-        import cirq
+        import cirq  # slow optional import: cirq objects only (cirq takes seconds to import)
 
-        from budget.circuit.cirq_reader import from_cirq
+        from budget.circuit.cirq_reader import from_cirq  # slow optional import: imports cirq
 
         if isinstance(source, cirq.AbstractCircuit):
             return from_cirq(source)
@@ -46,7 +46,7 @@ def load_circuit(source: "str | Path | cirq.AbstractCircuit") -> StructuredCircu
     if suffix in QASM_SUFFIXES:
         return read_qasm(path)
     if suffix in JSON_SUFFIXES:
-        from budget.circuit.cirq_reader import read_cirq_json
+        from budget.circuit.cirq_reader import read_cirq_json  # slow optional import: imports cirq
 
         return read_cirq_json(path)
     known = ", ".join(QASM_SUFFIXES + JSON_SUFFIXES)

@@ -11,12 +11,20 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any, Callable
 
-from budget.analysis.depth import DepthCurve
-from budget.analysis.heatmap import ErrorMap
+from budget.analysis.calibration import calibration_plan, model_knob_keys, read_calibration
+from budget.analysis.decide import checked_tolerances
+from budget.analysis.depth import DepthCurve, depth_curve
+from budget.analysis.families import attach_grouped
+from budget.analysis.heatmap import ErrorMap, error_map
+from budget.analysis.phase_estimation import find_probes
 from budget.analysis.ratios import safe_ratio
 from budget.analysis.result import BudgetResult
+from budget.analysis.run import analyze_noisy, read_circuit, read_model
+from budget.analysis.sensitivity import quadratic_form
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.context_layers import knob_label
+from budget.problems import InputError, TooLargeError
+from budget.report.extras import gather_extras
 
 ENGINE_WORDS = {
     "exact": "exact simulation (dense state vector or density matrix; repeated blocks by matrix powers). "
@@ -71,7 +79,7 @@ class ReportData:
     model_source: str = ""
     model_rows: tuple[ModelRow, ...] = ()
     notes: tuple[str, ...] = field(default=())
-    extras: Any = None  # budget.report.calib_sections.Extras: provenance, uncertainty band, compensation, schedule
+    extras: Any = None  # budget.report.extras.Extras: provenance, uncertainty band, compensation, schedule
 
     @property
     def title(self) -> str:
@@ -264,11 +272,6 @@ def gather(
         hours: horizon of the calibration schedule.
         progress: progress(done, total) over the depth grid.
     """
-    from budget.analysis.depth import depth_curve
-    from budget.analysis.heatmap import error_map
-    from budget.analysis.run import analyze_noisy, attach_grouped, read_circuit, read_model
-    from budget.problems import InputError, TooLargeError
-
     if isinstance(target, bool) or not isinstance(target, (int, float)) or not 0 < target < 1:
         raise InputError(f"target = {target!r}: expected an infidelity E with 0 < E < 1")
     structured = read_circuit(circuit)
@@ -290,8 +293,6 @@ def gather(
     tol, plan, why = _tolerances_and_plan(structured.with_cycles(cycles), whole, model, metric, target, cycles, family_by)
     if why:
         notes.append(why)
-    from budget.report.calib_sections import gather_extras  # import cycle: it builds on this module and sections
-
     extras = gather_extras(structured, errors, model, target=target, cycles=cycles, metric=metric, engine=engine,
                            max_cycles=deepest, hours=hours)
     return ReportData(
@@ -312,15 +313,6 @@ def _tolerances_and_plan(structured: Any, noisy: Any, model: Any, metric: str, t
                          family_by: str) -> tuple[Any, Any, str | None]:
     """The tolerance report and calibration plan (as ``budget tolerances`` and ``budget cost``
     compute them, closed loop included), or (None, None, why) when unavailable."""
-    try:
-        from budget.analysis.calibration import calibration_plan, model_knob_keys, read_calibration
-        from budget.analysis.decide import checked_tolerances
-        from budget.analysis.phase_estimation import find_probes
-        from budget.analysis.sensitivity import quadratic_form
-    except ImportError as exc:  # pragma: no cover - optional modules
-        return None, None, f"tolerances and calibration cost left out: {exc}"
-    from budget.problems import TooLargeError
-
     try:
         qf = quadratic_form(noisy, metric)
         report = checked_tolerances(structured, model, noisy, qf, target, metric=metric, cycles=cycles,

@@ -9,7 +9,8 @@ from __future__ import annotations
 from html import escape
 
 from budget.report.content import ReportData, short_name
-from budget.report.sections import Block, Figure, Heading, Para, Table, Tiles, build
+from budget.report.blocks import Block, Figure, Heading, Para, Table, Tiles
+from budget.report.sections import build
 
 _CSS = """
 :root { --paper:#faf8f4; --ink:#22303c; --soft:#5d6b77; --line:#e2ddd3; --rust:#b5472f; --slate:#3d6f8e;

@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 from budget.report.content import ReportData, short_name
-from budget.report.sections import Block, Figure, Heading, Para, Table, Tiles, build
+from budget.report.blocks import Block, Figure, Heading, Para, Table, Tiles
+from budget.report.sections import build
 
 _PREFIX = {"note": "> Note: ", "warning": "> **Warning:** ", "caution": "> *Caution:* ", "summary": ""}
 

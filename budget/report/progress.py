@@ -10,6 +10,8 @@ from __future__ import annotations
 import sys
 from contextlib import contextmanager
 from typing import Callable, Iterator, TextIO
+from rich.console import Console
+from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
 Callback = Callable[[int, int], None]
 
@@ -34,9 +36,6 @@ def progress_bar(description: str, *, quiet: bool = False, stream: TextIO | None
     if not wants_progress(quiet=quiet, stream=stream):
         yield None
         return
-    from rich.console import Console
-    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
-
     console = Console(file=sys.stderr if stream is None else stream)
     columns = (
         TextColumn("[bold]{task.description}"),

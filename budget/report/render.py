@@ -2,15 +2,16 @@
 
 from __future__ import annotations
 
+from budget.report.calib_sections import band_svg
 from budget.report.content import ReportData
+from budget.report.detector_views import heat_rows
 from budget.report.html import render_html
 from budget.report.markdown import render_markdown
+from budget.report.plots import depth_svg, detector_heat_svg, heatmap_svg, shares_svg
 
 
 def figures(data: ReportData) -> dict[str, str]:
     """Figure name -> SVG text (depth curves only when they were computed)."""
-    from budget.report.plots import depth_svg, heatmap_svg, shares_svg
-
     out = {}
     if data.curve is not None:
         out["depth-curves"] = depth_svg(data.curve)
@@ -19,13 +20,8 @@ def figures(data: ReportData) -> dict[str, str]:
                                           title=data.result.verdict.words)
     out["error-map"] = heatmap_svg(data.emap)
     if data.extras is not None and data.extras.band is not None:
-        from budget.report.calib_sections import band_svg
-
         out["uncertainty-band"] = band_svg(data.extras.band)
     if data.result.detectors:
-        from budget.report.detector_views import heat_rows
-        from budget.report.plots import detector_heat_svg
-
         out["detector-map"] = detector_heat_svg(*heat_rows(data.result))
     return out
 

@@ -1,56 +1,19 @@
-"""The report as a list of plain blocks, so HTML and Markdown show exactly the same content.
-
-Blocks: :class:`Heading`, :class:`Para`, :class:`Table`, :class:`Figure`, :class:`Tiles`. The
-renderers (:mod:`budget.report.html`, :mod:`budget.report.markdown`) only decide how a block looks.
+"""The report as a list of plain blocks (:mod:`budget.report.blocks`), so HTML and Markdown show
+exactly the same content. The renderers (:mod:`budget.report.html`, :mod:`budget.report.markdown`)
+only decide how a block looks.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-from typing import Union
 
 from budget.analysis.depth import CURVE_WORDS
 from budget.analysis.ratios import at_rounding_level
 from budget.analysis.result import naive_words
 from budget.errors.context_layers import knob_label, knob_text
+from budget.report.blocks import Block, Figure, Heading, Para, Table, Tiles
+from budget.report.calib_sections import blocks as calibration_blocks
 from budget.report.content import CAUTION_WORDS, ENGINE_WORDS, ReportData, minutes, num, short_name, summary_words, verdict
-
-
-@dataclass(frozen=True)
-class Heading:
-    text: str
-    anchor: str
-
-
-@dataclass(frozen=True)
-class Para:
-    text: str
-    kind: str = "text"  # "text", "summary", "note", "warning", "caution"
-
-
-@dataclass(frozen=True)
-class Table:
-    header: tuple[str, ...]
-    rows: tuple[tuple[str, ...], ...]
-    numeric: tuple[bool, ...] = ()  # right-align these columns
-
-
-@dataclass(frozen=True)
-class Figure:
-    name: str  # file stem, e.g. "depth-curves"
-    svg: str
-    caption: str
-
-
-@dataclass(frozen=True)
-class Tiles:
-    """The headline numbers: (label, value, explanation, tone) with tone "good", "bad" or ""."""
-
-    items: tuple[tuple[str, str, str, str], ...]
-
-
-Block = Union[Heading, Para, Table, Figure, Tiles]
 
 
 def build(data: ReportData, figures: dict[str, str]) -> list[Block]:
@@ -76,8 +39,6 @@ def build(data: ReportData, figures: dict[str, str]) -> list[Block]:
     out += _error_map(data, figures)
     out += _tolerances(data)
     out += _calibration(data)
-    from budget.report.calib_sections import blocks as calibration_blocks  # import cycle: it uses this module's blocks
-
     out += calibration_blocks(data.extras, figures)
     out += _model(data)
     out.append(Heading("Engine and validity", "engine"))

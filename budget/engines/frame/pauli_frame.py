@@ -22,6 +22,7 @@ import numpy as np
 
 from budget.circuit.clifford_check import LocalClifford
 from budget.pauli_algebra import LocalPauli, hermitian_sign, popcount, row_product
+import stim
 
 WORD_BITS = 64
 HASH_BITS = 128
@@ -204,8 +205,6 @@ class Frame:
 
     def to_stim(self):
         """The same map as a ``stim.Tableau`` (for powers of large blocks; see _walk)."""
-        import stim
-
         n = self.n
         xb = unpack_bits(self.x[: 2 * n], n).astype(bool)
         zb = unpack_bits(self.z[: 2 * n], n).astype(bool)

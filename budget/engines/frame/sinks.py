@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from budget.engines.frame.rows import group_rows
 from budget.engines.frame.pauli_frame import Frame, fingerprints, unpack_bits
 from budget.engines.frame.terms import LayerTable, TermBuilder, stochastic_terms, term_slots
 from budget.errors.noisy import NoisyLayer
@@ -306,8 +307,6 @@ class LandingSink(_Batches):
 
     def landing(self, n: int) -> np.ndarray:
         """Σ_g |A_g|² [q ∈ supp Q_g] + Σ_t p_t [q ∈ supp Q_t], batch factors applied."""
-        from budget.engines.frame.groups import group_rows
-
         out = np.zeros(n)
         for b, v in self.land.items():
             out += v * self.prob[b]

@@ -39,6 +39,7 @@ from budget.circuit.clifford_check import operation_clifford
 from budget.engines.frame.pauli_frame import Frame, GateClass, layer_classes
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 from budget.memo import ObjectKey
+from budget.engines.frame.orbits import OrbitSearch, _slots
 
 MAX_UNROLLED = 4096
 """Default cap on repetitions walked while looking for a block's period."""
@@ -232,8 +233,6 @@ class Walker:
         search replaces the coherent terms by runs of equal amplitude, and the stochastic rates of
         the block are scaled by N / B.
         """
-        from budget.engines.frame.orbits import OrbitSearch, _slots
-
         count, b, sink = int(rep.count), self.orbit_baby, self.sink
         outside = [(part, start) for part, start in zip(self._outside, (0, count)) if part is not None]
         self._frame_lost = False

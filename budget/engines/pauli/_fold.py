@@ -23,6 +23,7 @@ import numpy as np
 from budget.engines.frame.walk import Walker
 from budget.engines.pauli._store import Store
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
+import stim
 
 MAX_PERIOD = 4096
 """Largest period searched (tableau products); longer-period blocks are walked cycle by cycle."""
@@ -40,8 +41,6 @@ def all_clifford(items: tuple[NoisyItem, ...], book) -> bool:
 
 def period(n: int, body: tuple[NoisyItem, ...], limit: int = MAX_PERIOD) -> int | None:
     """Smallest r ≤ limit with c^r = identity (signs included), or None."""
-    import stim
-
     try:
         frame = Walker(n, "pull").run(body)
     except ValueError:  # a gate the Clifford check does not accept

@@ -5,7 +5,7 @@ column of an observable), P_t = ⊗_q σ(x_q, z_q) with σ(1,0) = X, σ(0,1) = Z
 unlike the i^e X^x Z^z rows of :mod:`budget.engines.frame.pauli_frame`, whose packed words it shares:
 W = ceil(n / 64) uint64 words for x and for z). ``key`` separates sums kept in one store (an
 observable index, a jump-operator tag); rows with equal (x, z, key) are merged by sorting a 64-bit
-row hash (:func:`budget.engines.frame.groups.group_rows`), never by Python dictionaries.
+row hash (:func:`budget.engines.frame.rows.group_rows`), never by Python dictionaries.
 
 Conjugation by a unitary preserves real coefficients (the Pauli transfer matrix of a unitary
 channel is real) and the Hilbert-Schmidt norm ‖A‖² = Tr(A†A)/d = Σ_t coef_t² (Paulis are
@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from budget.engines.frame.groups import row_hash
+from budget.engines.frame.rows import row_hash
 from budget.engines.frame.pauli_frame import WORD_BITS, num_words
 from budget.engines.pauli._local import LocalMap
 
