@@ -9,14 +9,28 @@ from __future__ import annotations
 import functools
 from enum import Enum
 from pathlib import Path
-from typing import Callable, List, Optional
+from typing import Any, Callable, Iterable, List, Optional
 
 import typer
 from rich.markup import escape
 from rich.text import Text
 
+from budget import __version__
+from budget.analysis.compose import analyze_all, compensate_all, depth_of
+from budget.analysis.decide import decide, decisions_json
+from budget.analysis.demo import demo_results
+from budget.analysis.plan import plan as run_plan, schedule_json
+from budget.analysis.sweep import sweep as run_sweep
+from budget.calibdata.importer import import_tables, to_toml
 from budget.problems import InputError
-from budget.report.terminal import make_console
+from budget.report.calib_views import render_compensation, render_import, render_schedule, render_sweep
+from budget.report.content import gather
+from budget.report.decisions import calibration_view, sensitivity_view, tolerance_view, totals_line
+from budget.report.files import resolve_output, write_bytes, write_folder, write_text
+from budget.report.json_out import write_json
+from budget.report.progress import progress_bar
+from budget.report.terminal import make_console, render_budget
+from budget.report.terminal_views import render_analysis, render_depth
 
 app = typer.Typer(
     add_completion=False,
@@ -25,8 +39,6 @@ app = typer.Typer(
     help="Error budgets for structured quantum circuits: naive fidelity product versus actual "
     "infidelity of coherent and incoherent gate errors.",
 )
-
-EXAMPLES = Path(__file__).resolve().parent.parent / "circuits"
 
 
 class MetricChoice(str, Enum):
@@ -77,8 +89,6 @@ def check_output_path(path: Optional[Path], option: str) -> None:
     """Refuse early an output path that cannot be written (no folder, a folder, a block device),
     so nothing half-written appears; ``-`` is standard output."""
     if path is not None:
-        from budget.report.files import resolve_output
-
         try:
             resolve_output(path)
         except InputError as exc:
@@ -90,6 +100,19 @@ def to_stdout(*paths: Optional[Path]) -> bool:
     return any(p is not None and str(p) == "-" for p in paths)
 
 
+def show(views: Iterable[Any], width: Optional[int], *outputs: Optional[Path]) -> None:
+    """Print the terminal views, on stderr when one of ``outputs`` goes to standard output."""
+    console = make_console(width=width, stderr=to_stdout(*outputs))
+    for view in views:
+        console.print(view)
+
+
+def write_json_to(path: Optional[Path], data: Callable[[], dict]) -> None:
+    """Write ``data()`` as JSON when ``--json`` was given (last, after everything succeeded)."""
+    if path is not None:
+        write_json(path, data())
+
+
 def grouping(by_pair: bool, by_operation: bool) -> str:
     """The family grouping of --by-pair / --by-operation (one at most)."""
     if by_pair and by_operation:
@@ -99,8 +122,6 @@ def grouping(by_pair: bool, by_operation: bool) -> str:
 
 def _version(value: bool) -> None:
     if value:
-        from budget import __version__
-
         typer.echo(f"budget {__version__}")
         raise typer.Exit()
 
@@ -127,6 +148,11 @@ WidthOpt = typer.Option(None, "--width", min=40, max=1000, help="Report width in
                         "(default: terminal).")
 
 
+def json_option(what: str) -> Any:
+    """The ``--json`` option of a command; ``what`` says what is written and where it is documented."""
+    return typer.Option(None, "--json", help=what)
+
+
 @app.command()
 @user_errors
 def analyze(
@@ -141,8 +167,8 @@ def analyze(
     by_pair: bool = ByPairOpt,
     by_operation: bool = ByOperationOpt,
     compare_twirled: bool = typer.Option(False, "--compare-twirled", help="Also analyse the Pauli-twirled variant."),
-    json_path: Optional[Path] = typer.Option(None, "--json", help="Write the result as JSON (schema in "
-                                             "docs/json-schema.md); - for standard output."),
+    json_path: Optional[Path] = json_option("Write the result as JSON (schema in docs/json-schema.md); - for "
+                                            "standard output."),
     width: Optional[int] = WidthOpt,
     against: Optional[str] = typer.Option(
         None, "--against", help="Second circuit file, or 'random' for random circuits with the same layers and "
@@ -159,11 +185,6 @@ def analyze(
     quiet: bool = QuietOpt,
 ) -> None:
     """Naive fidelity product versus actual infidelity, with each gate family's share."""
-    from budget.analysis.compose import analyze_all
-    from budget.report.json_out import write_json
-    from budget.report.progress import progress_bar
-    from budget.report.terminal_views import render_analysis
-
     check_output_path(json_path, "--json")
     family_by = grouping(by_pair, by_operation)
     extra = against == "random" or ensemble
@@ -172,11 +193,8 @@ def analyze(
                            observables=tuple(observable), family_by=family_by, compare_twirled=compare_twirled,
                            against=against, draws=draws, ensemble=ensemble, seed=seed, progress=tick,
                            logical=parse_logical(logical), truncate=truncate)
-    console = make_console(width=width, stderr=to_stdout(json_path))
-    for view in render_analysis(done):
-        console.print(view)
-    if json_path is not None:
-        write_json(json_path, done.to_dict())
+    show(render_analysis(done), width, json_path)
+    write_json_to(json_path, done.to_dict)
 
 
 @app.command()
@@ -191,44 +209,29 @@ def depth(
     engine: EngineChoice = EngineOpt,
     by_pair: bool = ByPairOpt,
     by_operation: bool = ByOperationOpt,
-    json_path: Optional[Path] = typer.Option(None, "--json", help="Write the curves as JSON (docs/report.md); "
-                                             "- for standard output."),
+    json_path: Optional[Path] = json_option("Write the curves as JSON (docs/report.md); - for standard output."),
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write the curves as a picture; the format comes from "
                                         "the extension (.svg, .png, .pdf); - for SVG on standard output."),
     quiet: bool = QuietOpt,
     width: Optional[int] = WidthOpt,
 ) -> None:
     """Infidelity against repetitions: naive, actual and Pauli-twirled, with the crossover."""
-    from budget.analysis.depth import depth_curve
-    from budget.analysis.run import attach_grouped, read_circuit, read_model
-    from budget.report.json_out import write_json
-    from budget.report.progress import progress_bar
-    from budget.report.terminal_views import render_depth
-
     check_output_path(json_path, "--json")
     check_output_path(plot, "--plot")
     if to_stdout(json_path) and to_stdout(plot):
         raise InputError("--json - and --plot -: only one output can go to standard output")
     fmt = None
     if plot is not None:
-        from budget.report.plots import plot_format
+        from budget.report.plots import depth_picture, plot_format  # slow optional import: matplotlib, for --plot
 
         fmt = plot_format(str(plot))
-    block = attach_grouped(read_circuit(str(circuit)), read_model(str(errors)), grouping(by_pair, by_operation))
     with progress_bar("depth curve", quiet=quiet) as tick:
-        curve = depth_curve(block, max_cycles=max_cycles, points=points, metric=metric.value,
-                            engine=engine.value, target=target, progress=tick)
-    picture = None
-    if plot is not None:
-        from budget.report.plots import depth_picture
-
-        picture = depth_picture(curve, fmt)
-    make_console(width=width, stderr=to_stdout(json_path, plot)).print(render_depth(curve))
-    if json_path is not None:
-        write_json(json_path, curve.to_dict())
+        curve = depth_of(str(circuit), str(errors), max_cycles=max_cycles, points=points, metric=metric.value,
+                         engine=engine.value, target=target, family_by=grouping(by_pair, by_operation), progress=tick)
+    picture = None if plot is None else depth_picture(curve, fmt)
+    show([render_depth(curve)], width, json_path, plot)
+    write_json_to(json_path, curve.to_dict)
     if picture is not None:
-        from budget.report.files import write_bytes
-
         write_bytes(plot, picture)
 
 
@@ -251,9 +254,7 @@ def report(
     quiet: bool = QuietOpt,
 ) -> None:
     """A report a group lead can read: HTML page (self-contained) and Markdown, with pictures."""
-    from budget.report.content import gather
-    from budget.report.progress import progress_bar
-    from budget.report.render import report_files
+    from budget.report.render import report_files  # slow optional import: matplotlib draws the pictures
 
     if out.exists() and not out.is_dir():
         raise InputError(f"--out {out}: exists and is not a folder")
@@ -263,10 +264,7 @@ def report(
         data = gather(str(circuit), str(errors), target=target, cycles=cycles, metric=metric.value,
                       engine=engine.value, max_cycles=max_cycles, points=points,
                       family_by=grouping(by_pair, by_operation), hours=hours, progress=tick)
-    files = report_files(data)
-    from budget.report.files import write_folder
-
-    written = write_folder(out, files)
+    written = write_folder(out, report_files(data))
     console = make_console()
     console.print(f"[bold]report written:[/] {escape(', '.join(str(p) for p in written))}", highlight=False, markup=True)
 
@@ -307,30 +305,26 @@ def _decision_command(name: str, summary: str, views: Callable) -> None:
         by_pair: bool = ByPairOpt,
         by_operation: bool = ByOperationOpt,
         open_loop: bool = OpenLoopOpt,
-        json_path: Optional[Path] = typer.Option(None, "--json", help="Write tolerances, sensitivity and calibration "
-                                                 "plan as JSON (docs/tolerances.md)."),
+        json_path: Optional[Path] = json_option("Write tolerances, sensitivity and calibration plan as JSON "
+                                                "(docs/tolerances.md)."),
         detector: Optional[int] = typer.Option(None, "--detector", min=0, help="With --metric detectors: the target "
                                                "is on this detector's firing probability (its number in the list of "
                                                "analyze --json) instead of P(some detector fires)."),
         width: Optional[int] = WidthOpt,
     ) -> None:
-        d = _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair,
-                       by_operation, open_loop, detector)
-        console = make_console(width=width, stderr=to_stdout(json_path))
-        for view in views(d):
-            console.print(view)
-        _write_decisions(json_path, d)
+        check_output_path(json_path, "--json")
+        d = decide(str(circuit), str(errors), target=target, cycles=cycles, metric=metric.value, assume=assume.value,
+                   allocation=allocation.value, engine=engine.value, family_by=grouping(by_pair, by_operation),
+                   closed_loop=not open_loop, detector=detector)
+        show(views(d), width, json_path)
+        write_json_to(json_path, lambda: decisions_json(d))
 
 
 def _tolerance_views(d) -> list:
-    from budget.report.decisions import sensitivity_view, tolerance_view, totals_line
-
     return [sensitivity_view(d.sensitivity), tolerance_view(d.tolerances), totals_line(d.plan, feasible=d.tolerances.feasible)]
 
 
 def _cost_views(d) -> list:
-    from budget.report.decisions import calibration_view, tolerance_view
-
     return [tolerance_view(d.tolerances), calibration_view(d.plan, feasible=d.tolerances.feasible)]
 
 
@@ -340,58 +334,17 @@ _decision_command("cost", "Device time to measure the knobs that must tighten (a
                   "with drift, how often.", _cost_views)
 
 
-def _decisions(json_path, circuit, errors, target, cycles, metric, assume, allocation, engine, by_pair, by_operation,
-               open_loop, detector=None):
-    """Shared body of `tolerances` and `cost`: check the options, then compute."""
-    from budget.analysis.decide import decide
-
-    check_output_path(json_path, "--json")
-    return decide(str(circuit), str(errors), target=target, cycles=cycles, metric=metric.value, assume=assume.value,
-                  allocation=allocation.value, engine=engine.value, family_by=grouping(by_pair, by_operation),
-                  closed_loop=not open_loop, detector=detector)
-
-
-def _write_decisions(json_path: Optional[Path], d) -> None:
-    if json_path is not None:
-        from budget.analysis.decide import decisions_json
-        from budget.report.json_out import write_json
-
-        write_json(json_path, decisions_json(d))
-
-
 @app.command()
 @user_errors
 def demo(
     width: Optional[int] = WidthOpt,
 ) -> None:
     """Run the main job on the built-in examples of the invented North Fen lab."""
-    from budget.analysis.run import analyze as run_analysis
-    from budget.report.terminal import render_budget
-
     console = make_console(width=width)
-    model = EXAMPLES / "fen_q8.toml"
-    cases = [
-        ("Four Trotter steps of a 4-site hopping chain (process metric)", "hopping_trotter.qasm", 1, "process"),
-        ("Parity-check cycle on a 5-qubit line, repeated 10 times (process metric)", "parity_cycle.qasm", 10, "process"),
-        ("XY4 echo on one qubit, 25 repetitions: the echo cancels over-rotations (process metric)", "echo_xy4.qasm", 25, "process"),
-        ("A coupled pair in memory, 20 cycles: the spectator ZZ builds up (process metric)", "pair_memory_zz.qasm", 20, "process"),
-        ("The same memory echoed: the ZZ cancels (process metric)", "pair_memory_echo.qasm", 20, "process"),
-    ]
-    own = {"pair_memory_zz.qasm": "fen_pair_zz.toml", "pair_memory_echo.qasm": "fen_pair_zz.toml"}
     console.rule(Text("budget demo · North Fen Cryogenics Lab, device fen-q8 (invented)", style="bold"))
-    for title, name, cycles, metric in cases:
+    for title, result in demo_results():
         console.print(Text(f"\n{title}", style="bold"))
-        errors = EXAMPLES / own[name] if name in own else model
-        result = run_analysis(_shown(EXAMPLES / name), _shown(errors), cycles=cycles, metric=metric, compare_twirled=True)
         console.print(render_budget(result))
-
-
-def _shown(path: Path) -> str:
-    """A path as a reader would type it: relative to the working folder when that is shorter."""
-    import os
-
-    rel = os.path.relpath(path)
-    return rel if not rel.startswith("..") and len(rel) < len(str(path)) else str(path)
 
 
 def main() -> None:  # pragma: no cover - console entry point alias
@@ -426,17 +379,12 @@ def model_import(
     width: Optional[int] = WidthOpt,
 ) -> None:
     """Write a TOML error model from measured calibration tables, with each value's source as a comment."""
-    from budget.calibdata.importer import import_tables, to_toml
-    from budget.report.calib_views import render_import
-    from budget.report.files import write_text
-
     check_output_path(out, "--out")
     imported = import_tables(files, circuit=circuit, register=register, two_qubit_gate=two_qubit_gate,
                              one_qubit_gates=tuple(g.strip() for g in one_qubit_gates.split(",") if g.strip()),
                              gates_per_clifford=gates_per_clifford)
-    text = to_toml(imported)
-    write_text(out, text)
-    make_console(width=width, stderr=to_stdout(out)).print(render_import(imported, out))
+    write_text(out, to_toml(imported))
+    show([render_import(imported, out)], width, out)
 
 
 @app.command()
@@ -460,25 +408,19 @@ def sweep(
                                             "cluster) or a scheduler address such as tcp://host:8786."),
     out: Optional[Path] = typer.Option(None, "--out", help="Stream results to this JSON-lines file; an interrupted "
                                        "sweep given the same file resumes."),
-    json_path: Optional[Path] = typer.Option(None, "--json", help="Write the summary as JSON (docs/json-schema.md)."),
+    json_path: Optional[Path] = json_option("Write the summary as JSON (docs/json-schema.md)."),
     quiet: bool = QuietOpt,
     width: Optional[int] = WidthOpt,
 ) -> None:
     """Distribution of the infidelity under the model's uncertainties and drift, and which value matters most."""
-    from budget.analysis.sweep import sweep as run_sweep
-    from budget.report.calib_views import render_sweep
-    from budget.report.json_out import write_json
-    from budget.report.progress import progress_bar
-
     check_output_path(json_path, "--json")
     check_output_path(out, "--out")
     with progress_bar("sweep", quiet=quiet) as tick:
         result = run_sweep(str(circuit), str(errors), samples=samples, hours=hours, hour_points=hour_points,
                            target=target, seed=seed, cycles=cycles, metric=metric.value, engine=engine.value,
                            sobol_base=sobol_base, out=out, workers=workers, scheduler=scheduler, progress=tick)
-    make_console(width=width, stderr=to_stdout(json_path)).print(render_sweep(result))
-    if json_path is not None:
-        write_json(json_path, result.to_dict())
+    show([render_sweep(result)], width, json_path)
+    write_json_to(json_path, result.to_dict)
 
 
 class PointsChoice(str, Enum):
@@ -499,7 +441,7 @@ def compensate(
                                         "repeated block (after every repetition), the end of the circuit, or both."),
     echoes: bool = typer.Option(False, "--echoes", help="Also try an x pulse pair on each waiting qubit of each "
                                 "repeated block (one engine run per candidate) and suggest those that help."),
-    json_path: Optional[Path] = typer.Option(None, "--json", help="Write before/after and the corrections as JSON."),
+    json_path: Optional[Path] = json_option("Write before/after and the corrections as JSON."),
     out_circuit: Optional[Path] = typer.Option(None, "--out-circuit", help="Write the corrected circuit (OpenQASM 3 "
                                                "with the added rz gates)."),
     out_model: Optional[Path] = typer.Option(None, "--out-model", help="Write the model with the corrections folded "
@@ -507,41 +449,16 @@ def compensate(
     width: Optional[int] = WidthOpt,
 ) -> None:
     """Virtual-Z corrections (free frame changes) that minimise the actual infidelity, verified."""
-    from budget.analysis.compensate import compensate as run_compensate, corrected_circuit
-    from budget.analysis.run import read_circuit, read_model
-    from budget.report.calib_views import render_compensation
-    from budget.report.files import write_text
-    from budget.report.json_out import write_json
-
     for path, option in ((json_path, "--json"), (out_circuit, "--out-circuit"), (out_model, "--out-model")):
         check_output_path(path, option)
-    result = run_compensate(str(circuit), str(errors), cycles=cycles, metric=metric.value, engine=engine.value,
-                            points=points.value)
-    structured = read_circuit(str(circuit)).with_cycles(cycles)
-    if echoes:
-        import dataclasses
-
-        from budget.analysis.echo import echo_suggestions
-
-        result = dataclasses.replace(result, echoes=echo_suggestions(
-            structured, read_model(str(errors)), metric=metric.value, engine=engine.value, before=result.before))
-    texts: dict[Path, str] = {}
-    if out_circuit is not None:
-        from budget.circuit.qasm_write import to_qasm3
-
-        texts[out_circuit] = to_qasm3(corrected_circuit(structured, result.corrections),
-                                      header=f"{structured.source} with virtual-Z corrections from budget compensate"
-                                      f"\n(--cycles {cycles} included; model {errors})")
-    if out_model is not None:
-        from budget.analysis.compensate_model import updated_model_text, z_phase_updates
-
-        texts[out_model] = updated_model_text(errors, z_phase_updates(structured, read_model(str(errors)),
-                                                                      result.corrections))
-    make_console(width=width, stderr=to_stdout(json_path, out_circuit, out_model)).print(render_compensation(result))
-    for path, text in texts.items():
-        write_text(path, text)
-    if json_path is not None:
-        write_json(json_path, result.to_dict())
+    done = compensate_all(str(circuit), str(errors), cycles=cycles, metric=metric.value, engine=engine.value,
+                          points=points.value, echoes=echoes, circuit_text=out_circuit is not None,
+                          model_text=out_model is not None)
+    show([render_compensation(done.result)], width, json_path, out_circuit, out_model)
+    for path, text in ((out_circuit, done.circuit_text), (out_model, done.model_text)):
+        if path is not None:
+            write_text(path, text)
+    write_json_to(json_path, done.result.to_dict)
 
 
 @app.command()
@@ -554,16 +471,11 @@ def plan(
                                 "for this long."),
     cycles: int = CyclesOpt,
     metric: MetricChoice = MetricOpt,
-    json_path: Optional[Path] = typer.Option(None, "--json", help="Write the schedule as JSON (docs/json-schema.md)."),
+    json_path: Optional[Path] = json_option("Write the schedule as JSON (docs/json-schema.md)."),
     width: Optional[int] = WidthOpt,
 ) -> None:
     """The cheapest calibration schedule (which knobs, how precisely, how often) for a target over H hours."""
-    from budget.analysis.plan import plan as run_plan, schedule_json
-    from budget.report.calib_views import render_schedule
-    from budget.report.json_out import write_json
-
     check_output_path(json_path, "--json")
     schedule = run_plan(str(circuit), str(errors), target=target, hours=hours, cycles=cycles, metric=metric.value)
-    make_console(width=width, stderr=to_stdout(json_path)).print(render_schedule(schedule))
-    if json_path is not None:
-        write_json(json_path, schedule_json(schedule))
+    show([render_schedule(schedule)], width, json_path)
+    write_json_to(json_path, lambda: schedule_json(schedule))

@@ -1,8 +1,11 @@
-"""The main job with its optional companions, composed in the analysis layer (not in the CLI).
+"""What a command computes from several core steps, composed in the analysis layer (not in the CLI).
 
 :func:`analyze_all` runs :func:`budget.analysis.run.analyze` and, when asked, the comparison with a
 second circuit (``against`` a path), the comparison with an ensemble of random counterparts
 (``against="random"``, :class:`RandomEnsemble`) and the randomly compiled copies (``ensemble``).
+:func:`depth_of` reads a circuit and a model and sweeps the repetitions;
+:func:`compensate_all` adds echo suggestions and the texts of the corrected circuit and model to
+the virtual-Z compensation.
 
 A single random counterpart is one sample (seed 1 and seed 7 can differ by 7 %); the circuit is
 therefore set against ``draws`` counterparts drawn with seeds ``seed``, ``seed + 1``, … and compared
@@ -15,15 +18,22 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any, Callable
 
+import dataclasses
+
 import numpy as np
 
 from budget.analysis.compare import Comparison, random_counterpart
+from budget.analysis.compensate import Compensation, compensate, corrected_circuit
+from budget.analysis.compensate_model import updated_model_text, z_phase_updates
+from budget.analysis.depth import DepthCurve, depth_curve
+from budget.analysis.echo import echo_suggestions
 from budget.analysis.randomized import EnsembleResult
 from budget.analysis.randomized import ensemble as run_ensemble
 from budget.analysis.ratios import Ratio, safe_ratio
 from budget.analysis.result import BudgetResult
 from budget.analysis.families import attach_grouped
 from budget.analysis.run import analyze, analyze_noisy, read_circuit, read_model
+from budget.circuit.qasm_write import to_qasm3
 from budget.problems import InputError
 
 Progress = Callable[[int, int], None]
@@ -155,3 +165,55 @@ def analyze_all(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "pr
         copies = run_ensemble(attach_grouped(whole, model, family_by), count=ensemble, seed=seed, metric=metric,
                               engine=engine, progress=tick)
     return Analysis(result, comparison, random, copies)
+
+
+def depth_of(circuit: Any, errors: Any, *, max_cycles: int, points: int = 25, metric: str = "process",
+             engine: str = "auto", target: float | None = None, family_by: str = "gate",
+             progress: Progress | None = None) -> DepthCurve:
+    """The depth curves of ``circuit`` (a path or an object, as for
+    :func:`budget.analysis.run.analyze`) under ``errors``: the model attached with families per
+    ``family_by``, then :func:`budget.analysis.depth.depth_curve` (other arguments as there)."""
+    block = attach_grouped(read_circuit(circuit), read_model(errors), family_by)
+    return depth_curve(block, max_cycles=max_cycles, points=points, metric=metric, engine=engine, target=target,
+                       progress=progress)
+
+
+@dataclass(frozen=True)
+class CompensationFiles:
+    """A verified compensation with what it asked to be written (None: not asked for).
+
+    Attributes:
+        result: the compensation (with its echo suggestions when asked for).
+        circuit_text: the corrected circuit as OpenQASM 3 (the added rz gates).
+        model_text: the model file with the corrections folded into gates' z_phase.
+    """
+
+    result: Compensation
+    circuit_text: str | None = None
+    model_text: str | None = None
+
+
+def compensate_all(circuit: Any, errors: Any, *, cycles: int = 1, metric: str = "process", engine: str = "auto",
+                   points: str = "all", echoes: bool = False, circuit_text: bool = False,
+                   model_text: bool = False) -> CompensationFiles:
+    """:func:`budget.analysis.compensate.compensate` and, when asked, echo suggestions
+    (:func:`budget.analysis.echo.echo_suggestions`, one engine run per candidate), the corrected
+    circuit's text and the model text with the corrections folded in (``errors`` a TOML path).
+
+    Raises:
+        InputError: as :func:`compensate`; a correction that cannot go into one gate's z_phase
+            when ``model_text`` is asked for.
+    """
+    result = compensate(circuit, errors, cycles=cycles, metric=metric, engine=engine, points=points)
+    structured = read_circuit(circuit).with_cycles(cycles)
+    if echoes:
+        result = dataclasses.replace(result, echoes=echo_suggestions(
+            structured, read_model(errors), metric=metric, engine=engine, before=result.before))
+    qasm = folded = None
+    if circuit_text:
+        qasm = to_qasm3(corrected_circuit(structured, result.corrections),
+                        header=f"{structured.source} with virtual-Z corrections from budget compensate"
+                        f"\n(--cycles {cycles} included; model {errors})")
+    if model_text:
+        folded = updated_model_text(errors, z_phase_updates(structured, read_model(errors), result.corrections))
+    return CompensationFiles(result, qasm, folded)
