@@ -3,7 +3,8 @@
 - no import cycles among budget's modules (``from pkg import name`` counts as an import of the
   submodule ``pkg.name`` when that is a module, else of ``pkg``);
 - no imports inside functions, except slow optional ones whose line (or the comment line just
-  above it) says ``# slow optional import``: a function-local import hides a dependency;
+  above it) says ``# slow optional import``: a function-local import hides a dependency, and so
+  does a call of ``importlib.import_module`` or ``__import__`` (counted as a local import);
 - the computing core (circuit/, errors/, engines/, analysis/, calibdata/, graph.py, problems.py)
   never imports rich or typer, directly or through another budget module.
 
@@ -25,6 +26,7 @@ MARKER = "# slow optional import"
 CORE = ("budget.circuit", "budget.errors", "budget.engines", "budget.analysis", "budget.calibdata",
         "budget.graph", "budget.problems")
 TERMINAL = ("rich", "typer")
+DYNAMIC = ("import_module", "__import__")
 PENDING_CYCLES = (["budget.engines.generators.depth", "budget.engines.generators.engine"],)
 """Cycles being removed on another branch of issue 11 (the engine interface moves the depth curve);
 tolerated until then, nothing else. Drop the entry when it has landed."""
@@ -79,11 +81,18 @@ def read_imports(source: str, name: str, *, is_package: bool, known: set[str]) -
         for child in ast.iter_child_nodes(node):
             if isinstance(child, (ast.Import, ast.ImportFrom)):
                 out.extend(Imported(t, child.lineno, local, marked(child)) for t in targets(child))
+            elif isinstance(child, ast.Call) and _called(child) in DYNAMIC:
+                out.append(Imported(f"(dynamic: {_called(child)})", child.lineno, True, marked(child)))
             inside = local or isinstance(child, (ast.FunctionDef, ast.AsyncFunctionDef, ast.Lambda))
             visit(child, inside)
 
     visit(ast.parse(source), False)
     return out
+
+
+def _called(call: ast.Call) -> str:
+    f = call.func
+    return f.id if isinstance(f, ast.Name) else f.attr if isinstance(f, ast.Attribute) else ""
 
 
 def all_imports(root: Path = PACKAGE) -> dict[str, list[Imported]]:
@@ -164,9 +173,11 @@ def test_reader_flags_unmarked_local_imports_only(tmp_path):
                  "def g():\n    # slow optional import: only plots need it\n    import math\n\n\n"
                  "class C:\n    def h(self):\n        from budget import m  # slow optional import\n"
                  "        if True:\n            from os import path\n"),
+        "n.py": "import importlib\n\nENGINE = importlib.import_module('budget.m')\n",
     })
     flagged = unmarked_local(all_imports(root), root)
-    assert flagged == ["budget/m.py:5 imports json", "budget/m.py:18 imports os"]
+    assert flagged == ["budget/m.py:5 imports json", "budget/m.py:18 imports os",
+                       "budget/n.py:3 imports (dynamic: import_module)"]
 
 
 def test_reader_follows_terminal_imports_through_other_modules(tmp_path):

@@ -19,22 +19,24 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from importlib import import_module
-
 from budget.engines.base import Engine, EngineResult
 from budget.engines.base import DEFAULT_ESTIMATE_S
 from budget.errors.noisy import NoisyCircuit
 from budget.circuit.ir import item_kind
 from budget.problems import InputError, TooLargeError, place
+from budget.engines.clifford import CliffordEngine
+from budget.engines.exact import ExactEngine
+from budget.engines.generators import GeneratorsEngine
+from budget.engines.pauli import PauliEngine
 
 
 _REGISTRY = {
-    "exact": ("budget.engines.exact", "ExactEngine"),
-    "generators": ("budget.engines.generators", "GeneratorsEngine"),
-    "clifford": ("budget.engines.clifford", "CliffordEngine"),
-    "pauli": ("budget.engines.pauli", "PauliEngine"),
+    "exact": ExactEngine,
+    "generators": GeneratorsEngine,
+    "clifford": CliffordEngine,
+    "pauli": PauliEngine,
 }
-"""Every engine of the tool: name -> (module, class). Imported on first use."""
+"""Every engine of the tool: name -> class."""
 
 ENGINE_NAMES: tuple[str, ...] = tuple(_REGISTRY)
 
@@ -43,8 +45,7 @@ def get_engine(name: str) -> Engine:
     """The engine called ``name`` (one of :data:`ENGINE_NAMES`)."""
     if name not in _REGISTRY:
         raise ValueError(f"engine {name!r}: expected one of {', '.join(ENGINE_NAMES)} or auto")
-    module, cls = _REGISTRY[name]
-    return getattr(import_module(module), cls)()
+    return _REGISTRY[name]()
 
 
 AUTO_ORDER = ("exact", "clifford", "generators", "pauli")
