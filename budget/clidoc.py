@@ -7,10 +7,10 @@ tests/test_cli_doc.py fails when docs/cli.md differs from what this prints.
 
 from __future__ import annotations
 
+import typer.main
 from typer.testing import CliRunner
 
 from budget.cli import app
-import typer.main
 
 WIDTH = 100
 

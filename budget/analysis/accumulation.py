@@ -19,8 +19,8 @@ import numpy as np
 
 from budget.engines.matrices.channels import Grouping, by_family, content_cache
 from budget.engines.generators.dense import DenseBlock, DensePropagator
-from budget.errors.noisy import NoisyCircuit, NoisyOperation
 from budget.engines.matrices.periodic import accumulation_split, cycle_basis
+from budget.errors.noisy import NoisyCircuit, NoisyOperation
 
 MAX_QUBITS = 10
 _REL_TOL = 1e-9  # relative to the knob's own size per cycle: below this a part counts as absent

@@ -21,16 +21,16 @@ from budget.analysis.calibration import (
 )
 from budget.analysis.closed_loop import close_loop
 from budget.analysis.floor import floor_remedy
-from budget.analysis.phase_estimation import find_probes
 from budget.analysis.families import per_operation
+from budget.analysis.phase_estimation import find_probes
+from budget.analysis.run import read_circuit, read_model
 from budget.analysis.sensitivity import Sensitivity, quadratic_form, sensitivity, sensitivity_json
 from budget.analysis.tolerance_output import tolerances_json
 from budget.analysis.tolerances import ToleranceReport, check_target, tolerances
 from budget.engines.base import MEASURED_METRICS
-from budget.problems import InputError
-from budget.analysis.run import read_circuit, read_model
 from budget.errors.attach import attach
 from budget.errors.noisy import NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
+from budget.problems import InputError
 
 GROUPINGS: tuple[str, ...] = ("gate", "pair", "operation")
 

@@ -33,15 +33,14 @@ from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.engines.base import MEASURED_METRICS
 from budget.problems import InputError
 
+from budget.analysis.accumulation import components_or_note, cycle_hamiltonian
 from budget.analysis.curves import CROSSOVER_FACTOR, CURVE_WORDS, CURVES, JSON_KEYS, DepthCurve
-from budget.engines.door import AUTO_ORDER, check_time, choose
-from budget.analysis.accumulation import cycle_hamiltonian
-from budget.engines.generators.engine import range_note
-from budget.engines.matrices.periodic import cycle_basis, periodic_sum
 from budget.analysis.measured import measured_values, naive_measured
 from budget.analysis.twirl import twirled_circuit
+from budget.engines.door import AUTO_ORDER, check_time, choose
+from budget.engines.generators.engine import range_note
+from budget.engines.matrices.periodic import cycle_basis, periodic_sum
 from budget.errors.fidelity import naive_infidelity
-from budget.analysis.accumulation import components_or_note
 
 __all__ = ["CROSSOVER_FACTOR", "CURVE_WORDS", "CURVES", "JSON_KEYS", "DepthCurve", "depth_curve", "repetition_grid"]
 MAX_POINTS = 200

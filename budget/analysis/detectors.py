@@ -30,10 +30,9 @@ from typing import Iterator, Sequence
 
 import numpy as np
 
+from budget.engines.clifford.stim_circuit import record_qubits, to_stim
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
 from budget.problems import InputError
-from budget.engines.clifford.stim_circuit import record_qubits
-from budget.engines.clifford.stim_circuit import to_stim
 
 SHOT_MARGIN = 64
 """Shots beyond the rank of the random part; the span is complete except with probability 2^-64."""

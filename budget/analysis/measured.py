@@ -28,19 +28,17 @@ import numpy as np
 
 from budget.analysis.detectors import Checks, infer_checks, recorded_qubits
 from budget.analysis.folding import fold_target, folded_frames, scaled
-from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit, circuit_fields
 from budget.analysis.families import family_counts, family_table
+from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit, circuit_fields
+from budget.analysis.twirl import twirled_circuit
 from budget.circuit.ir import StructuredCircuit
+from budget.engines.clifford.frames import families_of, frames
 from budget.engines.exact.branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
 from budget.engines.base import MEASURED_METRICS
-from budget.errors.fidelity import naive_infidelity
+from budget.errors.fidelity import naive_infidelity, relaxation_process_fidelity
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
 from budget.memo import ObjectKey
 from budget.problems import InputError, TooLargeError
-from budget.engines.clifford.frames import frames
-from budget.analysis.twirl import twirled_circuit
-from budget.errors.fidelity import relaxation_process_fidelity
-from budget.engines.clifford.frames import families_of
 
 TWIRL_WARNING = ("coherent errors enter as their Pauli twirl on the clifford engine: their build-up within a "
                  "round needs the exact engine (small circuits)")

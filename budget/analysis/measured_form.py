@@ -20,6 +20,7 @@ from scipy.linalg import expm
 
 from budget.analysis.detectors import infer_checks
 from budget.analysis.folding import scaled
+from budget.analysis.measured import detector_values
 from budget.engines.clifford.frames import frames
 from budget.engines.base import QuadraticForm
 from budget.errors.knobs import knob_grouping, knob_terms
@@ -27,7 +28,6 @@ from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyRepeat
 from budget.memo import ObjectKey
 from budget.pauli_algebra import pauli_sum
 from budget.problems import InputError, TooLargeError
-from budget.analysis.measured import detector_values
 
 STEP_RAD = 1e-3
 MAX_KNOBS = 24

@@ -37,9 +37,8 @@ from budget.circuit.clifford_check import clifford_tableau, conjugated_label
 from budget.circuit.ir import Operation
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation
 from budget.problems import InputError, TooLargeError
-from budget.engines.door import choose_engine
 from budget.analysis.twirl import twirled_circuit
-from budget.engines.door import run_in_range
+from budget.engines.door import choose_engine, run_in_range
 
 FRAME = "frame"
 """Family name of the error-free frame operations."""

@@ -15,20 +15,19 @@ import dataclasses
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary, circuit_fields
+from budget.analysis.families import attach_grouped, family_counts, family_table
+from budget.analysis.measured import analyze_measured
+from budget.analysis.result import BudgetResult, ReadoutSummary, circuit_fields
+from budget.analysis.twirl import twirled_circuit
 from budget.engines.door import choose, choose_engine, escalate, first_order_shares
 from budget.engines.door import run_in_range
 from budget.circuit.ir import StructuredCircuit
-from budget.engines.base import MEASURED_METRICS, METRICS, parse_observable
-from budget.errors.noisy import IDLE, NoisyCircuit
-from budget.problems import InputError
-from budget.errors.attach import attach
-from budget.errors.fidelity import naive_infidelity
-from budget.analysis.measured import analyze_measured
-from budget.analysis.twirl import twirled_circuit
-from budget.analysis.families import attach_grouped, family_counts, family_table
 from budget.circuit.load import load_circuit
+from budget.engines.base import MEASURED_METRICS, METRICS, parse_observable
+from budget.errors.fidelity import naive_infidelity
 from budget.errors.model import ErrorModel, load_model
+from budget.errors.noisy import NoisyCircuit
+from budget.problems import InputError
 
 if TYPE_CHECKING:
     import cirq

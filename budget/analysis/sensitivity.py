@@ -26,11 +26,11 @@ import dataclasses
 from dataclasses import dataclass
 import numpy as np
 
+from budget.analysis.measured_form import detector_quadratic_form
 from budget.engines.door import choose
 from budget.engines.base import QuadraticForm
-from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyItem, NoisyLayer, NoisyRepeat
+from budget.errors.noisy import NoisyCircuit
 from budget.problems import InputError
-from budget.analysis.measured_form import detector_quadratic_form
 
 FORM_ENGINES = ("clifford", "generators", "pauli")
 """Engines that build the quadratic form, in the order ``"auto"`` tries them (clifford first: any

@@ -25,8 +25,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.sparse.csgraph import connected_components
 from scipy.optimize import minimize
+from scipy.sparse.csgraph import connected_components
 
 EXACT_UP_TO = 20
 """Largest group of interfering knobs that is enumerated exactly."""

@@ -22,6 +22,7 @@ from dataclasses import dataclass, field
 from typing import Iterator, Union
 
 import numpy as np
+
 from budget.circuit.gates import ideal_unitary
 
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 import sys
 from contextlib import contextmanager
 from typing import Callable, Iterator, TextIO
+
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 

@@ -19,10 +19,10 @@ from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
+import stim
 
 from budget.circuit.clifford_check import LocalClifford
 from budget.pauli_algebra import LocalPauli, hermitian_sign, popcount, row_product
-import stim
 
 WORD_BITS = 64
 HASH_BITS = 128

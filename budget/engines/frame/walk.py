@@ -36,10 +36,10 @@ from typing import Protocol
 import numpy as np
 
 from budget.circuit.clifford_check import operation_clifford
+from budget.engines.frame.orbits import OrbitSearch, _slots
 from budget.engines.frame.pauli_frame import Frame, GateClass, layer_classes
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 from budget.memo import ObjectKey
-from budget.engines.frame.orbits import OrbitSearch, _slots
 
 MAX_UNROLLED = 4096
 """Default cap on repetitions walked while looking for a block's period."""

@@ -19,11 +19,11 @@ blocks with observables are folded only when s = 0 and walked cycle by cycle oth
 from __future__ import annotations
 
 import numpy as np
+import stim
 
 from budget.engines.frame.walk import Walker
 from budget.engines.pauli._store import Store
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
-import stim
 
 MAX_PERIOD = 4096
 """Largest period searched (tableau products); longer-period blocks are walked cycle by cycle."""
