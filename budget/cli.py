@@ -22,6 +22,8 @@ from budget.analysis.demo import demo_results
 from budget.analysis.plan import plan as run_plan, schedule_json
 from budget.analysis.sweep import sweep as run_sweep
 from budget.calibdata.importer import import_tables, to_toml
+from budget.engines.base import MEASURED_METRICS, METRICS
+from budget.engines.door import ENGINE_NAMES
 from budget.problems import InputError
 from budget.report.calib_views import render_compensation, render_import, render_schedule, render_sweep
 from budget.report.content import gather
@@ -41,19 +43,10 @@ app = typer.Typer(
 )
 
 
-class MetricChoice(str, Enum):
-    process = "process"
-    state = "state"
-    detectors = "detectors"
-    record = "record"
-
-
-class EngineChoice(str, Enum):
-    auto = "auto"
-    exact = "exact"
-    generators = "generators"
-    clifford = "clifford"
-    pauli = "pauli"
+MetricChoice = Enum("MetricChoice", {m: m for m in METRICS + MEASURED_METRICS}, type=str)
+"""--metric: the gate metrics of the engines, then those of the measurement record."""
+EngineChoice = Enum("EngineChoice", {e: e for e in ("auto", *ENGINE_NAMES)}, type=str)
+"""--engine: auto, then every engine of the registry (budget/engines/door.py)."""
 
 
 def user_errors(fn: Callable) -> Callable:
