@@ -7,6 +7,8 @@ the issue quotes from exact simulation (checked here against cirq as well).
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 import pytest
 from echo_reference import (
@@ -27,6 +29,7 @@ from budget.engines.base import EngineResult
 from budget.engines.clifford.engine import CliffordEngine
 from budget.engines.exact.engine import ExactEngine
 from budget.engines.generators.engine import GeneratorsEngine
+from budget.engines.pauli.engine import PauliEngine
 from budget.engines.matrices.periodic import cross_cycle_sum
 from budget.errors.fidelity import naive_infidelity
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyRepeat
@@ -144,15 +147,13 @@ def _quadratic(h: np.ndarray) -> float:
     return float(np.vdot(h, h).real / d - (np.trace(h).real / d) ** 2)
 
 
-def test_random_echoed_blocks_against_cirq():
-    """100 seeded echoed cycles (first order cancelled by an identity carrying -H_1, x/y/x/y,
-    CPMG-like pairs with inverted pulses), repeated 10-1000 times: the generators engine within
-    5 % of cirq wherever the exact infidelity is at most 0.02; the clifford engine equal to the
-    directly summed second order (its Pauli coefficients) and within 5 % of cirq for at least 90 % of the process
-    cases, the others flagged as resting on a cancellation (their third order matters)."""
+@functools.lru_cache(maxsize=1)
+def _echo_cases() -> tuple:
+    """100 seeded echoed cycles (first order cancelled by an identity carrying -H_1, the same
+    with up to 10 % left over, x/y/x/y, CPMG-like pairs with inverted pulses, non-Clifford
+    cycles cancelled the same way), repeated 10-1000 times, with cirq's infidelities."""
     rng = np.random.default_rng(2026)
-    checked = {"generators": 0, "clifford": 0}
-    process_cases, process_close = 0, 0
+    cases = []
     for case in range(100):
         kind = ["cancelled", "cancelled_off", "xy4", "cpmg", "cancelled_non_clifford"][case % 5]
         n = int(rng.integers(1, 3)) if kind.startswith("cancelled") else int(rng.integers(1, 4))
@@ -164,33 +165,65 @@ def test_random_echoed_blocks_against_cirq():
             cyc = xy4_cycle(rng, n, eps)
         else:
             cyc = cpmg_cycle(rng, n, eps)
+        u, v = repeated(tuple(f"q[{i}]" for i in range(n)), cyc, count)
+        refs = {metric: infidelity(u, v, metric) for metric in ("process", "state")}
+        cases.append((case, kind, n, count, cyc, refs))
+    return tuple(cases)
+
+
+ECHO_ENGINES = {
+    "generators": GEN,
+    "clifford": CLIFF,
+    "pauli": PauliEngine(truncate=0.0),
+}
+
+
+@pytest.mark.parametrize(
+    "name",
+    [
+        "generators",
+        "clifford",
+        pytest.param(
+            "pauli",
+            marks=pytest.mark.xfail(
+                reason="the pauli engine (issue 12, its own branch) forms the first-order generator only: "
+                "on these echoes it reports about 0 where cirq gives up to 0.02",
+                strict=False,
+            ),
+        ),
+    ],
+)
+def test_random_echoed_blocks_against_cirq(name):
+    """Issue 10's check: 100 seeded echoed blocks repeated 10-1000 times; the engine within 5 % of
+    cirq wherever the exact infidelity is at most 0.02 (the clifford engine on the Clifford
+    cycles; the others on all of them), both metrics."""
+    engine = ECHO_ENGINES[name]
+    checked = 0
+    for case, kind, n, count, cyc, refs in _echo_cases():
+        if name == "clifford" and kind == "cancelled_non_clifford":
+            continue
         c = as_circuit(n, cyc, count)
-        u, v = repeated(c.qubits, cyc, count)
-        clifford = kind != "cancelled_non_clifford"
-        brute = _brute_second_order(n, cyc, count) if clifford else None
-        for metric in ("process", "state"):
-            ref = infidelity(u, v, metric)
+        for metric, ref in refs.items():
             if ref > 0.02:
                 continue
-            g = GEN.run(c, metric).infidelity
-            assert g == pytest.approx(ref, rel=0.05, abs=1e-12), (case, kind, metric)
-            checked["generators"] += 1
-            if not clifford:
-                continue
-            r = CLIFF.run(c, metric)
-            checked["clifford"] += 1
-            if metric == "process":
-                # the same Pauli coefficients: Σ_P c_P² = Tr(H²)/d - (Tr H/d)² for H = H_1 + H_2
-                assert r.details["coherent_leading_order"] == pytest.approx(_quadratic(brute[0] + brute[1]), rel=1e-8, abs=1e-16), (case, kind)
-                process_cases += 1
-                if r.infidelity == pytest.approx(ref, rel=0.05, abs=1e-12):
-                    process_close += 1
-                else:
-                    assert r.details["rests_on_cancellation"], (case, kind)
-            elif r.infidelity != pytest.approx(ref, rel=0.05, abs=1e-12):
-                assert r.details["rests_on_cancellation"] and any("third order" in w for w in r.warnings), (case, kind)
-    assert checked["generators"] >= 150 and checked["clifford"] >= 100
-    assert process_close >= 0.9 * process_cases
+            got = engine.run(c, metric).infidelity
+            assert got == pytest.approx(ref, rel=0.05, abs=1e-12), (case, kind, metric, got, ref)
+            checked += 1
+    assert checked >= (150 if name != "clifford" else 120)
+
+
+def test_clifford_second_order_terms_equal_the_direct_sum():
+    """The clifford engine's second-order Pauli coefficients (its leading-order value Σ_P c_P² for
+    H = H_1 + H_2) against the Magnus/BCH second order summed directly with numpy over the
+    unrolled circuit, on the Clifford echoed cycles; where all orders are in reach the reported
+    value comes from them, and says so."""
+    for case, kind, n, count, cyc, refs in _echo_cases():
+        if kind == "cancelled_non_clifford" or refs["process"] > 0.02:
+            continue
+        r = CLIFF.run(as_circuit(n, cyc, count), "process")
+        brute = _brute_second_order(n, cyc, count)
+        assert r.details["coherent_leading_order"] == pytest.approx(_quadratic(brute[0] + brute[1]), rel=1e-8, abs=1e-16), (case, kind)
+        assert r.details["coherent_order"].startswith("all orders")
 
 
 def test_clifford_period_fold_equals_unrolling_at_second_order():

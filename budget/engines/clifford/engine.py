@@ -22,16 +22,20 @@ resummed coherent part 1 - Π cos²|A_g| plus the first-order stochastic part, a
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 
 from budget.circuit.clifford_check import first_non_clifford
 from budget.engines.frame.groups import Budget, aggregate, quadratic_matrix
 from budget.engines.frame.pauli_frame import num_words
 from budget.engines.clifford.observables import merge_terms, observable_change
+from budget.engines.clifford.allorders import MAX_SUPPORT_QUBITS, AllOrdersSink, OutOfReach
 from budget.engines.clifford.second import PAIR_BUDGET, SecondOrderSink, TooCostly
 from budget.engines.frame.sinks import GroupSink, LandingSink, ObservableSink
 from budget.engines.frame.terms import Sources, TermBuilder
 from budget.engines.orders import (
+    SECOND_ORDER_SHARE,
     cancellation_note,
     second_order_share,
     term_norm_sum,
@@ -45,7 +49,7 @@ from budget.errors.light_cone import light_cone_circuit
 from budget.errors.noisy import NoisyCircuit
 from budget.memo import distinct
 from budget.pauli_algebra import label_bits
-from budget.problems import TooLargeError
+from budget.problems import InputError, TooLargeError
 
 SMALL = 0.1
 """First-order infidelity above which the engine warns that the expansion is no longer small."""
@@ -248,6 +252,8 @@ class CliffordEngine:
                     "are not formed for blocks folded by orbits or approximately: the result may be far "
                     "too small (CliffordEngine(orbit_baby=0) folds by the period instead)"
                 )
+        if self.second_order and not walker.orbit_records:
+            budget = self._all_orders(circuit, metric, plans, budget, first_walk[0], validity, warnings)
         warnings += list(walker.warnings)
         fo, total = first.first_order, budget.total
         shares = _by_family(sources, budget.shares)
@@ -266,7 +272,7 @@ class CliffordEngine:
             warnings.append(TWIRL_NOTE)
         details = _details(first, first_sources, walker, self.top) | validity
         details["coherent_exponentiated"] = budget.coherent_resummed + 0.0
-        details["coherent_leading_order"] = budget.coherent
+        details.setdefault("coherent_leading_order", budget.coherent)
         sink, walker = first_walk
         emitted = sink.terms_emitted + sink.rates_emitted
         for rec in walker.orbit_records:  # the landing walk enumerates what the orbit search skipped
@@ -288,6 +294,45 @@ class CliffordEngine:
             observable_errors=obs,
             beyond_range=beyond,
         )
+
+    def _all_orders(self, circuit, metric, plans, budget: Budget, first_sink: GroupSink, validity: dict, warnings: list) -> Budget:
+        """The coherent part to all orders where every component of the error touches at most
+        MAX_SUPPORT_QUBITS qubits (budget/engines/clifford/allorders.py); otherwise ``budget`` as it is.
+
+        The coherent shares keep the split of the leading-order terms when those give the size
+        within a factor 2, else the split of the first-order term sizes Σ_t |a_t|² per source
+        (the leading order then rests on a cancellation that the higher orders decide)."""
+        direction = "pull" if metric == "state" else "push"
+        builder = TermBuilder(circuit.num_qubits, circuit.qubits, Sources())
+        sink = AllOrdersSink(GroupSink(builder, key="x" if metric == "state" else "xz"), direction)
+        walker = Walker(circuit.num_qubits, direction, sink, max_unrolled=self.max_unrolled, plans=plans, orbit_baby=0)
+        try:
+            walker.run(circuit.body)
+            exact = sink.infidelity(metric)
+        except OutOfReach as why:
+            validity["coherent_order"] = f"second (all orders out of reach: {why})"
+            return budget
+        how = f"components of at most {sink.largest} qubits"
+        validity["coherent_order"] = f"all orders ({how})"
+        validity["coherent_second_order_resummed"] = budget.coherent_resummed + 0.0
+        validity["coherent_leading_order"] = budget.coherent
+        warnings[:] = [w for w in warnings if "third order" not in w and "commutator" not in w]
+        if "second_order_share" in validity:  # now the share of every order beyond the first
+            share = second_order_share(exact, validity["coherent_without_second_order"])
+            validity["second_order_share"] = share
+            validity["rests_on_cancellation"] = share > SECOND_ORDER_SHARE
+            if note := cancellation_note(share, validity["cancellation"], engine=self.name, all_orders=how):
+                warnings.append(note)
+        lead = budget.coherent
+        if 0.5 * exact <= lead <= 2.0 * exact:
+            shares = budget.coherent_shares
+        else:
+            _, amps, tags = first_sink.coherent_terms()
+            sizes = np.bincount(tags, weights=np.abs(amps) ** 2, minlength=len(budget.coherent_shares))
+            shares = sizes * (lead / sizes.sum()) if sizes.sum() > 0 else np.zeros_like(sizes)
+            if lead <= 0:
+                shares, lead = sizes, float(sizes.sum())
+        return dataclasses.replace(budget, coherent=lead, coherent_shares=shares, coherent_resummed=exact)
 
     def _qubit_map(self, circuit: NoisyCircuit, cost: float, builder: TermBuilder, plans: dict) -> dict:
         if not self.qubit_map:
