@@ -24,6 +24,12 @@ from echo_reference import (
 from reference import pauli_matrix
 
 from budget import analyze
+from budget.analysis.closed_loop import close_loop
+from budget.analysis.sensitivity import quadratic_form
+from budget.analysis.tolerances import tolerances
+from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
+from budget.errors.attach import attach
+from budget.errors.model import ErrorModel
 from budget.engines.door import escalate
 from budget.engines.base import EngineResult
 from budget.engines.clifford.engine import CliffordEngine
@@ -281,3 +287,53 @@ def test_auto_escalates_to_exact_when_the_result_rests_on_a_cancellation():
     assert isinstance(escalate(c, "process", "auto", leaning), ExactEngine)
     assert escalate(c, "process", "auto", steady) is None
     assert escalate(c, "process", "clifford", leaning) is None  # a named engine is kept
+
+
+@pytest.mark.parametrize("count, eps", [(300, 0.02), (1000, 0.05)])
+def test_orbit_folded_block_carries_the_second_order_within_each_repetition(count, eps):
+    # x/y/x/y with random over-rotations on 6 qubits, then an error-free scrambling Clifford
+    # (h, s, a cx chain; period 102 > 64 baby steps, so the default engine folds by orbits): the
+    # first order cancels in every repetition; cirq's value (64 x 64 unitary powers) against the
+    # orbit fold with the second-order terms of each repetition (the commutators between
+    # repetitions vanish with the per-repetition first order)
+    rng = np.random.default_rng(5)
+    n = 6
+    scramble = [NoisyLayer((op("h", (0,), {}),) + tuple(op("s", (q,), {}) for q in range(1, n)), (), 0.0)]
+    scramble += [NoisyLayer((op("cx", (q, q + 1), {}),), (), 0.0) for q in range(n - 1)]
+    cyc = tuple(xy4_cycle(rng, n, eps)) + tuple(scramble)
+    c = as_circuit(n, cyc, count)
+    u, v = repeated(c.qubits, cyc, count)
+    ref = infidelity(u, v, "process")
+    r = CLIFF.run(c, "process")
+    assert r.details["orbit_folds"] and r.details["orbit_folds"][0]["longest_orbit"] is not None
+    assert r.first_order == 0.0 or r.first_order < 1e-6 * ref
+    assert r.infidelity == pytest.approx(ref, rel=0.02)
+    assert "within each repetition" in r.details["second_order"]
+
+
+@pytest.mark.parametrize("assume", ["worst", "random"])
+def test_tolerances_of_an_echo_from_the_clifford_engine_at_all_orders(assume):
+    # x/y/x/y on 4 independent qubits, 300 cycles, over-rotation 0.02 on x and y, target 0.01; the
+    # quadratic form sees no effect (the first order cancels), the closed loop runs on the clifford
+    # engine (named here; it is what runs beyond the exact engine's reach). Reference: cirq on one
+    # qubit with the reported tolerances and signs, 1 - (1 - e_1)^4 for 4 independent qubits.
+    n = 4
+    layers = tuple(Layer(tuple(Operation(g, (q,)) for q in range(n))) for g in ("x", "y", "x", "y"))
+    circuit = StructuredCircuit(tuple(f"q[{i}]" for i in range(n)), (Repeat(layers, 300),))
+    noisy = attach(circuit, ErrorModel.from_dict({"gates": {"x": {"overrotation": 0.02}, "y": {"overrotation": 0.02}}}))
+    qf = quadratic_form(noisy, "process", engine="clifford")
+    assert np.max(np.abs(qf.matrix)) < 1e-20  # no first-order effect at all
+    report = close_loop(tolerances(qf, 0.01, metric="process", assume=assume), noisy, qf, engine="clifford")
+    assert report.closed_loop.engine == "clifford" and {r.order for r in report.rows} == {"second"}
+    tol = {r.family: r.tolerance_rad for r in report.rows}
+
+    def exact(sx: float, sy: float) -> float:
+        cyc = tuple(NoisyLayer((op(g, (0,), {a: s * tol[g] / 2}),), (), 0.0) for g, a, s in (("x", "X", sx), ("y", "Y", sy), ("x", "X", sx), ("y", "Y", sy)))
+        return 1 - (1 - infidelity(*repeated(("q[0]",), cyc, 300), "process")) ** n
+
+    if assume == "worst":
+        signs = report.closed_loop.worst_signs
+        value = exact(signs["x.overrotation"], signs["y.overrotation"])
+    else:
+        value = float(np.mean([exact(sx, sy) for sx in (1, -1) for sy in (1, -1)]))
+    assert 0.95 * 0.01 <= value <= 1.0001 * 0.01

@@ -31,7 +31,7 @@ from budget.engines.frame.groups import Budget, aggregate, quadratic_matrix
 from budget.engines.frame.pauli_frame import num_words
 from budget.engines.clifford.observables import merge_terms, observable_change
 from budget.engines.clifford.allorders import MAX_SUPPORT_QUBITS, AllOrdersSink, OutOfReach
-from budget.engines.clifford.second import PAIR_BUDGET, SecondOrderSink, TooCostly
+from budget.engines.clifford.second import PAIR_BUDGET, SecondOrderSink, TooCostly, repetition_second_order
 from budget.engines.frame.sinks import GroupSink, LandingSink, ObservableSink
 from budget.engines.frame.terms import Sources, TermBuilder
 from budget.engines.orders import (
@@ -59,6 +59,11 @@ LANDING_BUDGET = 1e10
 
 CHEAP_PAIRS = 3e7
 """(terms walked)² x words below which the second order is always formed."""
+
+ORBIT_SECOND = (
+    "second order of blocks folded by orbits: within each repetition only (the commutators between "
+    "repetitions and with the layers around the block are left out)"
+)
 
 TWIRL_NOTE = (
     "state metric: T1/T2 relaxation enters through its Pauli twirl (Tomita & Svore, PRA 90, 062320 "
@@ -140,14 +145,29 @@ class CliffordEngine:
         if reason is not None:
             raise TooLargeError(f"{circuit.source}: engine clifford: {reason}")
 
-    def _pass(self, circuit: NoisyCircuit, metric: str, plans: dict, *, grouping=None, labels=(), second: bool = False):
-        """One walk; ``second``: also the second-order terms (period folds only, no orbit fold;
-        raises TooCostly beyond the pair budget)."""
+    def _pass(self, circuit: NoisyCircuit, metric: str, plans: dict, *, grouping=None, labels=(), second: bool = False, orbits: bool = False):
+        """One walk; ``second``: also the second-order terms (period folds; raises TooCostly beyond
+        the pair budget); with ``orbits`` (the first walk folded a block by orbits) the blocks
+        folded by orbits get the second-order terms within each repetition instead
+        (:func:`budget.engines.clifford.second.repetition_second_order`)."""
         sources = Sources(labels={lab: i for i, lab in enumerate(labels)})
         builder = TermBuilder(circuit.num_qubits, circuit.qubits, sources, grouping)
         sink = GroupSink(builder, key="x" if metric == "state" else "xz", unit=grouping is not None)
         direction = "pull" if metric == "state" else "push"
-        outer = SecondOrderSink(sink, direction, num_words(circuit.num_qubits)) if second else sink
+        words = num_words(circuit.num_qubits)
+        if second and orbits:
+            walker = Walker(
+                circuit.num_qubits,
+                direction,
+                sink,
+                max_unrolled=self.max_unrolled,
+                plans=plans,
+                orbit_baby=self.orbit_baby,
+                cycle_terms=lambda parts: repetition_second_order(parts, direction, words),
+            )
+            walker.run(circuit.body)
+            return sources, sink, walker
+        outer = SecondOrderSink(sink, direction, words) if second else sink
         walker = Walker(
             circuit.num_qubits,
             direction,
@@ -175,8 +195,8 @@ class CliffordEngine:
         if not self.second_order:
             return "not asked for"
         cancelled = budget.coherent < 0.1 * term_square_sum(circuit)
-        if walker.orbit_records or walker.warnings:
-            return "not formed (a block was folded by orbits or approximately; the second order needs a period fold)" + (
+        if walker.warnings:
+            return "not formed (a block was folded approximately; the second order needs a period or orbit fold)" + (
                 "!" if cancelled else ""
             )
         if sink.terms_emitted**2 * num_words(circuit.num_qubits) <= CHEAP_PAIRS or cancelled:
@@ -221,7 +241,7 @@ class CliffordEngine:
         why_not = self._wants_second(circuit, budget, sink, walker)
         if why_not is None:
             try:
-                sources, sink2, walker = self._pass(circuit, metric, plans, second=True)
+                sources, sink2, walker = self._pass(circuit, metric, plans, second=True, orbits=bool(walker.orbit_records))
             except TooCostly:
                 sink2 = None
                 validity["second_order"] = f"not formed (more than {PAIR_BUDGET:.0e} pair operations)"
@@ -244,6 +264,10 @@ class CliffordEngine:
                 if metric == "state" and (note := self._hidden_note(sink2, budget, cancellation)):
                     warnings.append(note)
                     validity["rests_on_cancellation"] = True
+                if walker.orbit_records:
+                    validity["second_order"] = ORBIT_SECOND + "".join(f"; {n}" for n in walker.cycle_notes)
+                    if cancellation < 0.1:
+                        warnings.append(f"the first-order error terms largely cancel and {ORBIT_SECOND}: the result may be too small")
         elif self.second_order:
             validity["second_order"] = why_not.rstrip("!")
             if why_not.endswith("!"):

@@ -192,7 +192,7 @@ class GeneratorsEngine:
         stoch_total = sum(stoch.values())
         total = float(np.clip(coh.exact + stoch_total, 0.0, 1.0)) + 0.0
         lead = coh.first if coh.leading is None else coh.leading
-        if 0.5 * coh.exact <= lead <= 2.0 * coh.exact:
+        if lead > 0 and 0.5 * coh.exact <= lead <= 2.0 * coh.exact:
             shares = {f: coh.exact / lead * v for f, v in coh.shares.items()}
         else:  # the leading order misjudges the size (it rests on a cancellation): split by term sizes
             shares = split_by_sizes(term_square_by_family(circuit), coh.exact)
