@@ -217,10 +217,38 @@ class AllOrdersSink:
         if self.work > WORK_BUDGET:
             raise OutOfReach("work")
 
+    def components(self) -> list[Factor]:
+        """The whole circuit's coherent error as unitaries on disjoint sets of qubits."""
+        return self.product([f for _, fs in self.items for f in fs])
+
+    def observables(self, rows: tuple[np.ndarray, np.ndarray, np.ndarray], num_qubits: int) -> np.ndarray:
+        """Coherent change <0|E† O E|0> - <0|O|0> of each Pauli O = i^e X^x Z^z given in the input
+        frame (``"pull"`` walk) as rows (x (K, W), z (K, W), e (K,)). With E = ⊗_c E_c and
+        O = i^e ⊗_q X^{x_q} Z^{z_q} the expectation factorises over the components; a qubit outside
+        every component contributes <0|X^x Z^z|0> = [x = 0]."""
+        comps = self.components()
+        covered = np.zeros(num_qubits, bool)
+        for qubits, _ in comps:
+            covered[list(qubits)] = True
+        xs, zs = unpack_bits(rows[0], num_qubits), unpack_bits(rows[1], num_qubits)
+        out = np.zeros(len(rows[2]))
+        for k in range(len(out)):
+            phase = 1j ** int(rows[2][k])
+            ideal = phase * float(not np.any(xs[k]))
+            value = phase * float(not np.any(xs[k][~covered]))
+            for qubits, m in comps:
+                if value == 0:
+                    break
+                cols = list(qubits)
+                v = m[:, 0]
+                value *= np.vdot(v, pauli_matrix(xs[k, cols], zs[k, cols], 0, qubits) @ v)
+            out[k] = (value - ideal).real
+        return out
+
     def infidelity(self, metric: str) -> float:
         """1 - Π_c F_c over the components of the whole circuit's coherent error."""
         log_f = 0.0
-        for _, m in self.product([f for _, fs in self.items for f in fs]):
+        for _, m in self.components():
             d = m.shape[0]
             if metric == "state":
                 loss = float(np.sum(np.abs(m[1:, 0]) ** 2))

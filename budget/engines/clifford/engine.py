@@ -416,11 +416,25 @@ class CliffordEngine:
         sink = ObservableSink(TermBuilder(m, circuit.qubits, Sources()), xo, zo, eo)
         Walker(m, "pull", sink, max_unrolled=self.max_unrolled, plans=plans).run(circuit.body)
         totals = sink.totals()
+        every = self._all_orders_observables(circuit, (xo, zo, eo), plans) if self.second_order else None
+        if every is not None:
+            return dict(zip(paulis, map(float, totals - sink.coherent_totals() + every)))
         if self.second_order and sink.terms_seen**2 * num_words(m) <= PAIR_BUDGET:
             coherent = self._coherent_observables(circuit, (xo, zo, eo), plans)
             if coherent is not None:
                 totals = totals - sink.coherent_totals() + coherent
         return dict(zip(paulis, map(float, totals)))
+
+    def _all_orders_observables(self, circuit: NoisyCircuit, obs: tuple, plans: dict) -> np.ndarray | None:
+        """Coherent change of each observable to all orders where the error's components touch
+        at most MAX_SUPPORT_QUBITS qubits (:meth:`AllOrdersSink.observables`), else None."""
+        m = circuit.num_qubits
+        sink = AllOrdersSink(GroupSink(TermBuilder(m, circuit.qubits, Sources()), key="x"), "pull")
+        try:
+            Walker(m, "pull", sink, max_unrolled=self.max_unrolled, plans=plans, orbit_baby=0).run(circuit.body)
+            return sink.observables(obs, m)
+        except OutOfReach:
+            return None
 
     def _coherent_observables(self, circuit: NoisyCircuit, obs: tuple, plans: dict) -> np.ndarray | None:
         """Coherent change of each observable to second order (linear term of H_1 + H_2 and the
