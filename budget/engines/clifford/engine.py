@@ -327,8 +327,7 @@ class CliffordEngine:
         within a factor 2, else the split of the first-order term sizes Σ_t |a_t|² per source
         (the leading order then rests on a cancellation that the higher orders decide)."""
         direction = "pull" if metric == "state" else "push"
-        builder = TermBuilder(circuit.num_qubits, circuit.qubits, Sources())
-        sink = AllOrdersSink(GroupSink(builder, key="x" if metric == "state" else "xz"), direction)
+        sink = AllOrdersSink(GroupSink(first_sink.builder, key="x" if metric == "state" else "xz"), direction)  # cached layer tables
         walker = Walker(circuit.num_qubits, direction, sink, max_unrolled=self.max_unrolled, plans=plans, orbit_baby=0)
         try:
             walker.run(circuit.body)
