@@ -99,6 +99,9 @@ def test_xy4_on_24_qubits_with_auto(tmp_path):
     assert want == pytest.approx(0.0828, abs=5e-5)
     assert r.engine == "clifford"
     assert r.actual_infidelity == pytest.approx(want, rel=0.01)
+    # every order on 24 one-qubit components; the map shows each qubit's own echo (cirq, 1 qubit)
+    assert r.details["coherent_order"] == "all orders (components of at most 1 qubit)"
+    assert r.details["qubit_map"] == pytest.approx({f"q[{i}]": _xy4_reference(300, "process") for i in range(24)}, rel=1e-6)
 
 
 def test_h_x_h_state_metric(tmp_path):

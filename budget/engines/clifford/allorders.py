@@ -121,6 +121,7 @@ class AllOrdersSink:
         self.qubits = _Qubits()
         self.work = 0.0
         self.largest = 0
+        self.losses: list[tuple[tuple[int, ...], float]] = []  # (qubits, infidelity) per component, after infidelity()
 
     # -- the sink protocol ----------------------------------------------------------------------
     def mark(self) -> int:
@@ -248,12 +249,13 @@ class AllOrdersSink:
     def infidelity(self, metric: str) -> float:
         """1 - Π_c F_c over the components of the whole circuit's coherent error."""
         log_f = 0.0
-        for _, m in self.components():
+        for qubits, m in self.components():
             d = m.shape[0]
             if metric == "state":
                 loss = float(np.sum(np.abs(m[1:, 0]) ** 2))
             else:
                 phases = np.angle(np.linalg.eigvals(m))
                 loss = float(2 * np.sum(np.sin((phases[:, None] - phases[None, :]) / 2) ** 2) / d**2)
+            self.losses.append((qubits, loss))
             log_f += np.log1p(-min(loss, 1.0)) if loss < 1.0 else -np.inf
         return float(-np.expm1(log_f)) + 0.0

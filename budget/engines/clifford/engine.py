@@ -276,8 +276,9 @@ class CliffordEngine:
                     "are not formed for blocks folded by orbits or approximately: the result may be far "
                     "too small (CliffordEngine(orbit_baby=0) folds by the period instead)"
                 )
+        losses: list = []  # (qubits, infidelity) of each error component, when every order was summed
         if self.second_order and not walker.orbit_records:
-            budget = self._all_orders(circuit, metric, plans, budget, first_walk[0], validity, warnings)
+            budget, losses = self._all_orders(circuit, metric, plans, budget, first_walk[0], validity, warnings)
         warnings += list(walker.warnings)
         fo, total = first.first_order, budget.total
         shares = _by_family(sources, budget.shares)
@@ -304,6 +305,15 @@ class CliffordEngine:
             emitted += rec["terms_per_repetition"] * max(0, walks - rec["baby_steps"])
         cost = emitted * circuit.num_qubits
         details.update(self._qubit_map(circuit, cost, sink.builder, plans))
+        if "qubit_map" in details and metric == "process" and validity.get("rests_on_cancellation") and losses:
+            details["qubit_map"] = {name: 0.0 for name in circuit.qubits}  # the first-order map shows the cancelled order
+            for qubits, loss in losses:
+                for q in qubits:
+                    details["qubit_map"][circuit.qubits[q]] += loss / len(qubits)
+            details["qubit_map_quantity"] = (
+                "coherent process infidelity of the error component on each qubit, all orders "
+                "(a component of k qubits split evenly)"
+            )
         obs = self.observable_errors(circuit, tuple(observables), _plans=plans) if observables else {}
         if observables and _has_relaxation(circuit):
             warnings.append("observables: T1/T2 relaxation enters through its Pauli twirl (first order)")
@@ -319,9 +329,10 @@ class CliffordEngine:
             beyond_range=beyond,
         )
 
-    def _all_orders(self, circuit, metric, plans, budget: Budget, first_sink: GroupSink, validity: dict, warnings: list) -> Budget:
+    def _all_orders(self, circuit, metric, plans, budget: Budget, first_sink: GroupSink, validity: dict, warnings: list) -> tuple[Budget, list]:
         """The coherent part to all orders where every component of the error touches at most
-        MAX_SUPPORT_QUBITS qubits (budget/engines/clifford/allorders.py); otherwise ``budget`` as it is.
+        MAX_SUPPORT_QUBITS qubits (budget/engines/clifford/allorders.py), with the (qubits,
+        infidelity) of each component; otherwise ``budget`` as it is and no components.
 
         The coherent shares keep the split of the leading-order terms when those give the size
         within a factor 2, else the split of the first-order term sizes Σ_t |a_t|² per source
@@ -334,8 +345,8 @@ class CliffordEngine:
             exact = sink.infidelity(metric)
         except OutOfReach as why:
             validity["coherent_order"] = f"second (all orders out of reach: {why})"
-            return budget
-        how = f"components of at most {sink.largest} qubits"
+            return budget, []
+        how = f"components of at most {sink.largest} qubit{'s' if sink.largest != 1 else ''}"
         validity["coherent_order"] = f"all orders ({how})"
         validity["coherent_second_order_resummed"] = budget.coherent_resummed + 0.0
         validity["coherent_leading_order"] = budget.coherent
@@ -355,7 +366,7 @@ class CliffordEngine:
             shares = sizes * (lead / sizes.sum()) if sizes.sum() > 0 else np.zeros_like(sizes)
             if lead <= 0:
                 shares, lead = sizes, float(sizes.sum())
-        return dataclasses.replace(budget, coherent=lead, coherent_shares=shares, coherent_resummed=exact)
+        return dataclasses.replace(budget, coherent=lead, coherent_shares=shares, coherent_resummed=exact), sink.losses
 
     def _qubit_map(self, circuit: NoisyCircuit, cost: float, builder: TermBuilder, plans: dict) -> dict:
         if not self.qubit_map:
