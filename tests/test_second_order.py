@@ -7,6 +7,8 @@ the issue quotes from exact simulation (checked here against cirq as well).
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 import pytest
 from echo_reference import (
@@ -22,11 +24,18 @@ from echo_reference import (
 from reference import pauli_matrix
 
 from budget import analyze
+from budget.analysis.closed_loop import close_loop
+from budget.analysis.sensitivity import quadratic_form
+from budget.analysis.tolerances import tolerances
+from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
+from budget.errors.attach import attach
+from budget.errors.model import ErrorModel
 from budget.engines.door import escalate
 from budget.engines.base import EngineResult
 from budget.engines.clifford.engine import CliffordEngine
 from budget.engines.exact.engine import ExactEngine
 from budget.engines.generators.engine import GeneratorsEngine
+from budget.engines.pauli.engine import PauliEngine
 from budget.engines.matrices.periodic import cross_cycle_sum
 from budget.errors.fidelity import naive_infidelity
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyRepeat
@@ -90,6 +99,9 @@ def test_xy4_on_24_qubits_with_auto(tmp_path):
     assert want == pytest.approx(0.0828, abs=5e-5)
     assert r.engine == "clifford"
     assert r.actual_infidelity == pytest.approx(want, rel=0.01)
+    # every order on 24 one-qubit components; the map shows each qubit's own echo (cirq, 1 qubit)
+    assert r.details["coherent_order"] == "all orders (components of at most 1 qubit)"
+    assert r.details["qubit_map"] == pytest.approx({f"q[{i}]": _xy4_reference(300, "process") for i in range(24)}, rel=1e-6)
 
 
 def test_h_x_h_state_metric(tmp_path):
@@ -144,15 +156,13 @@ def _quadratic(h: np.ndarray) -> float:
     return float(np.vdot(h, h).real / d - (np.trace(h).real / d) ** 2)
 
 
-def test_random_echoed_blocks_against_cirq():
-    """100 seeded echoed cycles (first order cancelled by an identity carrying -H_1, x/y/x/y,
-    CPMG-like pairs with inverted pulses), repeated 10-1000 times: the generators engine within
-    5 % of cirq wherever the exact infidelity is at most 0.02; the clifford engine equal to the
-    directly summed second order (its Pauli coefficients) and within 5 % of cirq for at least 90 % of the process
-    cases, the others flagged as resting on a cancellation (their third order matters)."""
+@functools.lru_cache(maxsize=1)
+def _echo_cases() -> tuple:
+    """100 seeded echoed cycles (first order cancelled by an identity carrying -H_1, the same
+    with up to 10 % left over, x/y/x/y, CPMG-like pairs with inverted pulses, non-Clifford
+    cycles cancelled the same way), repeated 10-1000 times, with cirq's infidelities."""
     rng = np.random.default_rng(2026)
-    checked = {"generators": 0, "clifford": 0}
-    process_cases, process_close = 0, 0
+    cases = []
     for case in range(100):
         kind = ["cancelled", "cancelled_off", "xy4", "cpmg", "cancelled_non_clifford"][case % 5]
         n = int(rng.integers(1, 3)) if kind.startswith("cancelled") else int(rng.integers(1, 4))
@@ -164,33 +174,65 @@ def test_random_echoed_blocks_against_cirq():
             cyc = xy4_cycle(rng, n, eps)
         else:
             cyc = cpmg_cycle(rng, n, eps)
+        u, v = repeated(tuple(f"q[{i}]" for i in range(n)), cyc, count)
+        refs = {metric: infidelity(u, v, metric) for metric in ("process", "state")}
+        cases.append((case, kind, n, count, cyc, refs))
+    return tuple(cases)
+
+
+ECHO_ENGINES = {
+    "generators": GEN,
+    "clifford": CLIFF,
+    "pauli": PauliEngine(truncate=0.0),
+}
+
+
+@pytest.mark.parametrize(
+    "name",
+    [
+        "generators",
+        "clifford",
+        pytest.param(
+            "pauli",
+            marks=pytest.mark.xfail(
+                reason="the pauli engine (issue 12, its own branch) forms the first-order generator only: "
+                "on these echoes it reports about 0 where cirq gives up to 0.02",
+                strict=False,
+            ),
+        ),
+    ],
+)
+def test_random_echoed_blocks_against_cirq(name):
+    """Issue 10's check: 100 seeded echoed blocks repeated 10-1000 times; the engine within 5 % of
+    cirq wherever the exact infidelity is at most 0.02 (the clifford engine on the Clifford
+    cycles; the others on all of them), both metrics."""
+    engine = ECHO_ENGINES[name]
+    checked = 0
+    for case, kind, n, count, cyc, refs in _echo_cases():
+        if name == "clifford" and kind == "cancelled_non_clifford":
+            continue
         c = as_circuit(n, cyc, count)
-        u, v = repeated(c.qubits, cyc, count)
-        clifford = kind != "cancelled_non_clifford"
-        brute = _brute_second_order(n, cyc, count) if clifford else None
-        for metric in ("process", "state"):
-            ref = infidelity(u, v, metric)
+        for metric, ref in refs.items():
             if ref > 0.02:
                 continue
-            g = GEN.run(c, metric).infidelity
-            assert g == pytest.approx(ref, rel=0.05, abs=1e-12), (case, kind, metric)
-            checked["generators"] += 1
-            if not clifford:
-                continue
-            r = CLIFF.run(c, metric)
-            checked["clifford"] += 1
-            if metric == "process":
-                # the same Pauli coefficients: Σ_P c_P² = Tr(H²)/d - (Tr H/d)² for H = H_1 + H_2
-                assert r.details["coherent_leading_order"] == pytest.approx(_quadratic(brute[0] + brute[1]), rel=1e-8, abs=1e-16), (case, kind)
-                process_cases += 1
-                if r.infidelity == pytest.approx(ref, rel=0.05, abs=1e-12):
-                    process_close += 1
-                else:
-                    assert r.details["rests_on_cancellation"], (case, kind)
-            elif r.infidelity != pytest.approx(ref, rel=0.05, abs=1e-12):
-                assert r.details["rests_on_cancellation"] and any("third order" in w for w in r.warnings), (case, kind)
-    assert checked["generators"] >= 150 and checked["clifford"] >= 100
-    assert process_close >= 0.9 * process_cases
+            got = engine.run(c, metric).infidelity
+            assert got == pytest.approx(ref, rel=0.05, abs=1e-12), (case, kind, metric, got, ref)
+            checked += 1
+    assert checked >= (150 if name != "clifford" else 120)
+
+
+def test_clifford_second_order_terms_equal_the_direct_sum():
+    """The clifford engine's second-order Pauli coefficients (its leading-order value Σ_P c_P² for
+    H = H_1 + H_2) against the Magnus/BCH second order summed directly with numpy over the
+    unrolled circuit, on the Clifford echoed cycles; where all orders are in reach the reported
+    value comes from them, and says so."""
+    for case, kind, n, count, cyc, refs in _echo_cases():
+        if kind == "cancelled_non_clifford" or refs["process"] > 0.02:
+            continue
+        r = CLIFF.run(as_circuit(n, cyc, count), "process")
+        brute = _brute_second_order(n, cyc, count)
+        assert r.details["coherent_leading_order"] == pytest.approx(_quadratic(brute[0] + brute[1]), rel=1e-8, abs=1e-16), (case, kind)
+        assert r.details["coherent_order"].startswith("all orders")
 
 
 def test_clifford_period_fold_equals_unrolling_at_second_order():
@@ -248,3 +290,53 @@ def test_auto_escalates_to_exact_when_the_result_rests_on_a_cancellation():
     assert isinstance(escalate(c, "process", "auto", leaning), ExactEngine)
     assert escalate(c, "process", "auto", steady) is None
     assert escalate(c, "process", "clifford", leaning) is None  # a named engine is kept
+
+
+@pytest.mark.parametrize("count, eps", [(300, 0.02), (1000, 0.05)])
+def test_orbit_folded_block_carries_the_second_order_within_each_repetition(count, eps):
+    # x/y/x/y with random over-rotations on 6 qubits, then an error-free scrambling Clifford
+    # (h, s, a cx chain; period 102 > 64 baby steps, so the default engine folds by orbits): the
+    # first order cancels in every repetition; cirq's value (64 x 64 unitary powers) against the
+    # orbit fold with the second-order terms of each repetition (the commutators between
+    # repetitions vanish with the per-repetition first order)
+    rng = np.random.default_rng(5)
+    n = 6
+    scramble = [NoisyLayer((op("h", (0,), {}),) + tuple(op("s", (q,), {}) for q in range(1, n)), (), 0.0)]
+    scramble += [NoisyLayer((op("cx", (q, q + 1), {}),), (), 0.0) for q in range(n - 1)]
+    cyc = tuple(xy4_cycle(rng, n, eps)) + tuple(scramble)
+    c = as_circuit(n, cyc, count)
+    u, v = repeated(c.qubits, cyc, count)
+    ref = infidelity(u, v, "process")
+    r = CLIFF.run(c, "process")
+    assert r.details["orbit_folds"] and r.details["orbit_folds"][0]["longest_orbit"] is not None
+    assert r.first_order == 0.0 or r.first_order < 1e-6 * ref
+    assert r.infidelity == pytest.approx(ref, rel=0.02)
+    assert "within each repetition" in r.details["second_order"]
+
+
+@pytest.mark.parametrize("assume", ["worst", "random"])
+def test_tolerances_of_an_echo_from_the_clifford_engine_at_all_orders(assume):
+    # x/y/x/y on 4 independent qubits, 300 cycles, over-rotation 0.02 on x and y, target 0.01; the
+    # quadratic form sees no effect (the first order cancels), the closed loop runs on the clifford
+    # engine (named here; it is what runs beyond the exact engine's reach). Reference: cirq on one
+    # qubit with the reported tolerances and signs, 1 - (1 - e_1)^4 for 4 independent qubits.
+    n = 4
+    layers = tuple(Layer(tuple(Operation(g, (q,)) for q in range(n))) for g in ("x", "y", "x", "y"))
+    circuit = StructuredCircuit(tuple(f"q[{i}]" for i in range(n)), (Repeat(layers, 300),))
+    noisy = attach(circuit, ErrorModel.from_dict({"gates": {"x": {"overrotation": 0.02}, "y": {"overrotation": 0.02}}}))
+    qf = quadratic_form(noisy, "process", engine="clifford")
+    assert np.max(np.abs(qf.matrix)) < 1e-20  # no first-order effect at all
+    report = close_loop(tolerances(qf, 0.01, metric="process", assume=assume), noisy, qf, engine="clifford")
+    assert report.closed_loop.engine == "clifford" and {r.order for r in report.rows} == {"second"}
+    tol = {r.family: r.tolerance_rad for r in report.rows}
+
+    def exact(sx: float, sy: float) -> float:
+        cyc = tuple(NoisyLayer((op(g, (0,), {a: s * tol[g] / 2}),), (), 0.0) for g, a, s in (("x", "X", sx), ("y", "Y", sy), ("x", "X", sx), ("y", "Y", sy)))
+        return 1 - (1 - infidelity(*repeated(("q[0]",), cyc, 300), "process")) ** n
+
+    if assume == "worst":
+        signs = report.closed_loop.worst_signs
+        value = exact(signs["x.overrotation"], signs["y.overrotation"])
+    else:
+        value = float(np.mean([exact(sx, sy) for sx in (1, -1) for sy in (1, -1)]))
+    assert 0.95 * 0.01 <= value <= 1.0001 * 0.01

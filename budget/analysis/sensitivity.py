@@ -18,6 +18,15 @@ unit generators (Blume-Kohout et al., "A taxonomy of small Markovian errors", PR
 
 Per operation: :func:`budget.analysis.families.per_operation` renames families so the same engines
 give A per operation.
+
+The form is first order on purpose. The second-order (Magnus) term of the effective generator is
+bilinear in the knobs, so it adds terms of degree 3 and 4 in δ to the infidelity, which no
+quadratic form holds; where the first order cancels (an echo) A_ff is rounding noise and the
+infidelity is quartic in δ. The tolerances therefore treat such a sensitivity as zero relative to
+the others (:mod:`budget.analysis.tolerances`) and take the knob's tolerance, and the final scale
+of all tolerances, from the engine itself in closed loop (:mod:`budget.analysis.closed_loop`),
+whose engines carry the second order and, within their reach, every order of the coherent part
+(docs/methods.md, "Orders" and "Sensitivity").
 """
 
 from __future__ import annotations

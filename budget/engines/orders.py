@@ -42,6 +42,23 @@ def term_square_sum(circuit: NoisyCircuit) -> float:
     return sum(mult * sum(h * h for nop in layer.operations for h in nop.hamiltonian.values()) for layer, mult in circuit.multiplicities())
 
 
+def term_square_by_family(circuit: NoisyCircuit) -> dict[str, float]:
+    """Σ_t ||G_t||² per family (repeat counts included): the first-order sizes by which an
+    all-orders coherent value is split when its leading order rests on a cancellation."""
+    out: dict[str, float] = {}
+    for layer, mult in circuit.multiplicities():
+        for nop in layer.operations:
+            if nop.hamiltonian:
+                out[nop.family] = out.get(nop.family, 0.0) + mult * sum(h * h for h in nop.hamiltonian.values())
+    return out
+
+
+def split_by_sizes(sizes: dict[str, float], total: float) -> dict[str, float]:
+    """``total`` split in proportion to ``sizes`` (shares that add up to it)."""
+    whole = sum(sizes.values())
+    return {f: total * v / whole for f, v in sizes.items()} if whole > 0 else {}
+
+
 def second_order_share(with_second: float, first_only: float) -> float:
     """s = |e(H_1 + H_2) - e(H_1)| / e(H_1 + H_2), 0 when both vanish."""
     if with_second <= 0.0:
@@ -49,16 +66,21 @@ def second_order_share(with_second: float, first_only: float) -> float:
     return min(1.0, abs(with_second - first_only) / with_second)
 
 
-def cancellation_note(share: float, cancellation: float, *, engine: str) -> str | None:
-    """The plain-words warning for a result that rests on a cancellation, or None."""
+def cancellation_note(share: float, cancellation: float, *, engine: str, all_orders: str | None = None) -> str | None:
+    """The plain-words warning for a result that rests on a cancellation, or None.
+
+    ``all_orders``: where the engine summed every order of the coherent part (how, in a few
+    words); the note then says the value holds instead of pointing at the exact engine."""
     if share <= SECOND_ORDER_SHARE:
         return None
-    return (
+    head = (
         f"the first-order error terms cancel (their sum is {100 * cancellation:.2g} % of the sum of their "
-        f"sizes), so {100 * share:.0f} % of the coherent infidelity comes from the second-order "
-        f"(commutator) term; the {engine} engine includes it but not the third order: trust the exact "
-        "engine where it fits"
+        f"sizes), so {100 * share:.0f} % of the coherent infidelity comes from the higher-order "
+        "(commutator) terms; "
     )
+    if all_orders:
+        return head + f"the {engine} engine sums every order of the coherent part ({all_orders}), so the value holds"
+    return head + f"the {engine} engine includes the second order but not the third: trust the exact engine where it fits"
 
 
 def validity_details(share: float, cancellation: float, norm_first_rad: float, norm_second_rad: float) -> dict:

@@ -22,16 +22,20 @@ resummed coherent part 1 - Π cos²|A_g| plus the first-order stochastic part, a
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 
 from budget.circuit.clifford_check import first_non_clifford
 from budget.engines.frame.groups import Budget, aggregate, quadratic_matrix
 from budget.engines.frame.pauli_frame import num_words
 from budget.engines.clifford.observables import merge_terms, observable_change
-from budget.engines.clifford.second import PAIR_BUDGET, SecondOrderSink, TooCostly
+from budget.engines.clifford.allorders import MAX_SUPPORT_QUBITS, AllOrdersSink, OutOfReach
+from budget.engines.clifford.second import PAIR_BUDGET, SecondOrderSink, TooCostly, repetition_second_order
 from budget.engines.frame.sinks import GroupSink, LandingSink, ObservableSink
 from budget.engines.frame.terms import Sources, TermBuilder
 from budget.engines.orders import (
+    SECOND_ORDER_SHARE,
     cancellation_note,
     second_order_share,
     term_norm_sum,
@@ -45,7 +49,7 @@ from budget.errors.light_cone import light_cone_circuit
 from budget.errors.noisy import NoisyCircuit
 from budget.memo import distinct
 from budget.pauli_algebra import label_bits
-from budget.problems import TooLargeError
+from budget.problems import InputError, TooLargeError
 
 SMALL = 0.1
 """First-order infidelity above which the engine warns that the expansion is no longer small."""
@@ -55,6 +59,11 @@ LANDING_BUDGET = 1e10
 
 CHEAP_PAIRS = 3e7
 """(terms walked)² x words below which the second order is always formed."""
+
+ORBIT_SECOND = (
+    "second order of blocks folded by orbits: within each repetition only (the commutators between "
+    "repetitions and with the layers around the block are left out)"
+)
 
 TWIRL_NOTE = (
     "state metric: T1/T2 relaxation enters through its Pauli twirl (Tomita & Svore, PRA 90, 062320 "
@@ -136,14 +145,29 @@ class CliffordEngine:
         if reason is not None:
             raise TooLargeError(f"{circuit.source}: engine clifford: {reason}")
 
-    def _pass(self, circuit: NoisyCircuit, metric: str, plans: dict, *, grouping=None, labels=(), second: bool = False):
-        """One walk; ``second``: also the second-order terms (period folds only, no orbit fold;
-        raises TooCostly beyond the pair budget)."""
+    def _pass(self, circuit: NoisyCircuit, metric: str, plans: dict, *, grouping=None, labels=(), second: bool = False, orbits: bool = False):
+        """One walk; ``second``: also the second-order terms (period folds; raises TooCostly beyond
+        the pair budget); with ``orbits`` (the first walk folded a block by orbits) the blocks
+        folded by orbits get the second-order terms within each repetition instead
+        (:func:`budget.engines.clifford.second.repetition_second_order`)."""
         sources = Sources(labels={lab: i for i, lab in enumerate(labels)})
         builder = TermBuilder(circuit.num_qubits, circuit.qubits, sources, grouping)
         sink = GroupSink(builder, key="x" if metric == "state" else "xz", unit=grouping is not None)
         direction = "pull" if metric == "state" else "push"
-        outer = SecondOrderSink(sink, direction, num_words(circuit.num_qubits)) if second else sink
+        words = num_words(circuit.num_qubits)
+        if second and orbits:
+            walker = Walker(
+                circuit.num_qubits,
+                direction,
+                sink,
+                max_unrolled=self.max_unrolled,
+                plans=plans,
+                orbit_baby=self.orbit_baby,
+                cycle_terms=lambda parts: repetition_second_order(parts, direction, words),
+            )
+            walker.run(circuit.body)
+            return sources, sink, walker
+        outer = SecondOrderSink(sink, direction, words) if second else sink
         walker = Walker(
             circuit.num_qubits,
             direction,
@@ -171,8 +195,8 @@ class CliffordEngine:
         if not self.second_order:
             return "not asked for"
         cancelled = budget.coherent < 0.1 * term_square_sum(circuit)
-        if walker.orbit_records or walker.warnings:
-            return "not formed (a block was folded by orbits or approximately; the second order needs a period fold)" + (
+        if walker.warnings:
+            return "not formed (a block was folded approximately; the second order needs a period or orbit fold)" + (
                 "!" if cancelled else ""
             )
         if sink.terms_emitted**2 * num_words(circuit.num_qubits) <= CHEAP_PAIRS or cancelled:
@@ -217,7 +241,7 @@ class CliffordEngine:
         why_not = self._wants_second(circuit, budget, sink, walker)
         if why_not is None:
             try:
-                sources, sink2, walker = self._pass(circuit, metric, plans, second=True)
+                sources, sink2, walker = self._pass(circuit, metric, plans, second=True, orbits=bool(walker.orbit_records))
             except TooCostly:
                 sink2 = None
                 validity["second_order"] = f"not formed (more than {PAIR_BUDGET:.0e} pair operations)"
@@ -240,6 +264,10 @@ class CliffordEngine:
                 if metric == "state" and (note := self._hidden_note(sink2, budget, cancellation)):
                     warnings.append(note)
                     validity["rests_on_cancellation"] = True
+                if walker.orbit_records:
+                    validity["second_order"] = ORBIT_SECOND + "".join(f"; {n}" for n in walker.cycle_notes)
+                    if cancellation < 0.1:
+                        warnings.append(f"the first-order error terms largely cancel and {ORBIT_SECOND}: the result may be too small")
         elif self.second_order:
             validity["second_order"] = why_not.rstrip("!")
             if why_not.endswith("!"):
@@ -248,6 +276,9 @@ class CliffordEngine:
                     "are not formed for blocks folded by orbits or approximately: the result may be far "
                     "too small (CliffordEngine(orbit_baby=0) folds by the period instead)"
                 )
+        losses: list = []  # (qubits, infidelity) of each error component, when every order was summed
+        if self.second_order and not walker.orbit_records:
+            budget, losses = self._all_orders(circuit, metric, plans, budget, first_walk[0], validity, warnings)
         warnings += list(walker.warnings)
         fo, total = first.first_order, budget.total
         shares = _by_family(sources, budget.shares)
@@ -266,7 +297,7 @@ class CliffordEngine:
             warnings.append(TWIRL_NOTE)
         details = _details(first, first_sources, walker, self.top) | validity
         details["coherent_exponentiated"] = budget.coherent_resummed + 0.0
-        details["coherent_leading_order"] = budget.coherent
+        details.setdefault("coherent_leading_order", budget.coherent)
         sink, walker = first_walk
         emitted = sink.terms_emitted + sink.rates_emitted
         for rec in walker.orbit_records:  # the landing walk enumerates what the orbit search skipped
@@ -274,6 +305,15 @@ class CliffordEngine:
             emitted += rec["terms_per_repetition"] * max(0, walks - rec["baby_steps"])
         cost = emitted * circuit.num_qubits
         details.update(self._qubit_map(circuit, cost, sink.builder, plans))
+        if "qubit_map" in details and metric == "process" and validity.get("rests_on_cancellation") and losses:
+            details["qubit_map"] = {name: 0.0 for name in circuit.qubits}  # the first-order map shows the cancelled order
+            for qubits, loss in losses:
+                for q in qubits:
+                    details["qubit_map"][circuit.qubits[q]] += loss / len(qubits)
+            details["qubit_map_quantity"] = (
+                "coherent process infidelity of the error component on each qubit, all orders "
+                "(a component of k qubits split evenly)"
+            )
         obs = self.observable_errors(circuit, tuple(observables), _plans=plans) if observables else {}
         if observables and _has_relaxation(circuit):
             warnings.append("observables: T1/T2 relaxation enters through its Pauli twirl (first order)")
@@ -288,6 +328,45 @@ class CliffordEngine:
             observable_errors=obs,
             beyond_range=beyond,
         )
+
+    def _all_orders(self, circuit, metric, plans, budget: Budget, first_sink: GroupSink, validity: dict, warnings: list) -> tuple[Budget, list]:
+        """The coherent part to all orders where every component of the error touches at most
+        MAX_SUPPORT_QUBITS qubits (budget/engines/clifford/allorders.py), with the (qubits,
+        infidelity) of each component; otherwise ``budget`` as it is and no components.
+
+        The coherent shares keep the split of the leading-order terms when those give the size
+        within a factor 2, else the split of the first-order term sizes Σ_t |a_t|² per source
+        (the leading order then rests on a cancellation that the higher orders decide)."""
+        direction = "pull" if metric == "state" else "push"
+        sink = AllOrdersSink(GroupSink(first_sink.builder, key="x" if metric == "state" else "xz"), direction)  # cached layer tables
+        walker = Walker(circuit.num_qubits, direction, sink, max_unrolled=self.max_unrolled, plans=plans, orbit_baby=0)
+        try:
+            walker.run(circuit.body)
+            exact = sink.infidelity(metric)
+        except OutOfReach as why:
+            validity["coherent_order"] = f"second (all orders out of reach: {why})"
+            return budget, []
+        how = f"components of at most {sink.largest} qubit{'s' if sink.largest != 1 else ''}"
+        validity["coherent_order"] = f"all orders ({how})"
+        validity["coherent_second_order_resummed"] = budget.coherent_resummed + 0.0
+        validity["coherent_leading_order"] = budget.coherent
+        warnings[:] = [w for w in warnings if "third order" not in w and "commutator" not in w]
+        if "second_order_share" in validity:  # now the share of every order beyond the first
+            share = second_order_share(exact, validity["coherent_without_second_order"])
+            validity["second_order_share"] = share
+            validity["rests_on_cancellation"] = share > SECOND_ORDER_SHARE
+            if note := cancellation_note(share, validity["cancellation"], engine=self.name, all_orders=how):
+                warnings.append(note)
+        lead = budget.coherent
+        if 0.5 * exact <= lead <= 2.0 * exact:
+            shares = budget.coherent_shares
+        else:
+            _, amps, tags = first_sink.coherent_terms()
+            sizes = np.bincount(tags, weights=np.abs(amps) ** 2, minlength=len(budget.coherent_shares))
+            shares = sizes * (lead / sizes.sum()) if sizes.sum() > 0 else np.zeros_like(sizes)
+            if lead <= 0:
+                shares, lead = sizes, float(sizes.sum())
+        return dataclasses.replace(budget, coherent=lead, coherent_shares=shares, coherent_resummed=exact), sink.losses
 
     def _qubit_map(self, circuit: NoisyCircuit, cost: float, builder: TermBuilder, plans: dict) -> dict:
         if not self.qubit_map:
@@ -347,11 +426,25 @@ class CliffordEngine:
         sink = ObservableSink(TermBuilder(m, circuit.qubits, Sources()), xo, zo, eo)
         Walker(m, "pull", sink, max_unrolled=self.max_unrolled, plans=plans).run(circuit.body)
         totals = sink.totals()
+        every = self._all_orders_observables(circuit, (xo, zo, eo), plans) if self.second_order else None
+        if every is not None:
+            return dict(zip(paulis, map(float, totals - sink.coherent_totals() + every)))
         if self.second_order and sink.terms_seen**2 * num_words(m) <= PAIR_BUDGET:
             coherent = self._coherent_observables(circuit, (xo, zo, eo), plans)
             if coherent is not None:
                 totals = totals - sink.coherent_totals() + coherent
         return dict(zip(paulis, map(float, totals)))
+
+    def _all_orders_observables(self, circuit: NoisyCircuit, obs: tuple, plans: dict) -> np.ndarray | None:
+        """Coherent change of each observable to all orders where the error's components touch
+        at most MAX_SUPPORT_QUBITS qubits (:meth:`AllOrdersSink.observables`), else None."""
+        m = circuit.num_qubits
+        sink = AllOrdersSink(GroupSink(TermBuilder(m, circuit.qubits, Sources()), key="x"), "pull")
+        try:
+            Walker(m, "pull", sink, max_unrolled=self.max_unrolled, plans=plans, orbit_baby=0).run(circuit.body)
+            return sink.observables(obs, m)
+        except OutOfReach:
+            return None
 
     def _coherent_observables(self, circuit: NoisyCircuit, obs: tuple, plans: dict) -> np.ndarray | None:
         """Coherent change of each observable to second order (linear term of H_1 + H_2 and the

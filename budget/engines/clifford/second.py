@@ -228,3 +228,21 @@ def commutator_terms(later: tuple, earlier: tuple, weight: float = 1.0) -> tuple
 def _scaled(rows: tuple, w: float) -> tuple:
     x, z, e, c, t = rows
     return x, z, e, c * w, t
+
+
+def repetition_second_order(parts: list[tuple], direction: str, words: int) -> tuple | str:
+    """H_2 of one repetition of a block, -(i/2) Σ_{j<k} [G_k, G_j] over its layers, as merged
+    Pauli rows (x, z, e, coef, tag), from the explicit terms of each layer in walk order
+    (``direction`` ``"push"`` walks backwards in time). For blocks folded by orbits
+    (budget/engines/frame/walk.py ``cycle_terms``): these terms recur in every repetition and are
+    folded with the first-order ones. A string (the reason) when the pairs exceed PAIR_BUDGET."""
+    sign = -1.0 if direction == "push" else 1.0
+    sizes = [len(p[3]) for p in parts]
+    if sum(sizes) ** 2 * words > PAIR_BUDGET:
+        return f"second order within a repetition of a block folded by orbits: more than {PAIR_BUDGET:.0e} pair operations, left out"
+    earlier: list[tuple] = []
+    seconds = []
+    for rows in parts:
+        seconds.append(commutator_terms(rows, _cat(earlier, words), sign))
+        earlier.append(rows)
+    return _merge(_cat(seconds, words))

@@ -84,6 +84,7 @@ class Walker:
         max_unrolled: int = MAX_UNROLLED,
         plans: dict | None = None,
         orbit_baby: int = ORBIT_BABY,
+        cycle_terms=None,
     ):
         if direction not in ("pull", "push"):
             raise ValueError(f"direction {direction!r}: expected 'pull' or 'push'")
@@ -102,6 +103,8 @@ class Walker:
         self._orbit_block: NoisyItem | None = None
         self._outside: tuple = (None, None)  # coherent terms after / before that block (_collect)
         self._frame_lost = False
+        self.cycle_terms = cycle_terms  # (explicit terms of one repetition, per layer) -> extra terms of each repetition
+        self.cycle_notes: list[str] = []
 
     def run(self, items: tuple[NoisyItem, ...]) -> Frame:
         """Walk ``items`` (the whole circuit body). Returns the frame of the whole circuit, except
@@ -244,16 +247,26 @@ class Walker:
         o_slots = [_slots(part[0], part[1], self.n) for part, _ in outside]
         o_keys: list[np.ndarray] = []
         frames: list[Frame] = []
+        extra, x_keys, x_phases = None, [], []  # per-repetition extra terms (cycle_terms) and their images
         for k in range(b):
             if outside:  # fingerprints of c^k(Q) for the outside terms Q; frames for their phases
                 o_keys.append(np.concatenate([np.bitwise_xor.reduce(self.frame.fxz[sl], axis=1) for sl in o_slots]))
                 frames.append(self.frame.copy())
+            if extra is not None:
+                x_keys.append(np.bitwise_xor.reduce(self.frame.fxz[x_slots], axis=1))
+                x_phases.append(self.frame.image(x_slots, extra[2])[2].astype(np.int64))
             self.sink = recorder if k == 0 else sink
             self._items(rep.body)
             self.sink = sink
+            if k == 0 and self.cycle_terms is not None:
+                extra = self._cycle_terms(rep, recorder.parts)
+                if extra is not None:
+                    x_slots = _slots(extra[0], extra[1], self.n)
+                    x_keys.append(np.bitwise_xor.reduce(start.fxz[x_slots], axis=1))
+                    x_phases.append(start.image(x_slots, extra[2])[2].astype(np.int64))
             marks.append(sink.mark())
             chunk_at.append(len(sink.chunks))
-            if self.frame.equals(start) and not outside:
+            if self.frame.equals(start) and not outside and extra is None:
                 q, s = divmod(count, k + 1)
                 for j in range(k + 1):
                     w = float(q + (1 if j < s else 0))
@@ -272,6 +285,8 @@ class Walker:
             coef = np.concatenate([c[2] * sink.amp[c[0]] for c in per_rep[0]])
             tags = np.concatenate([c[4] for c in per_rep[0]])
             parts.append((block[0], block[1].astype(np.int64), *images, coef, tags, 0, count))
+        if extra is not None:
+            parts.append((np.stack(x_keys), np.stack(x_phases), *extra, 0, count))
         for (x, z, e, coef, tags), start_at in outside:
             keys = np.stack([k[: len(coef)] for k in o_keys])
             o_keys = [k[len(coef) :] for k in o_keys]
@@ -308,6 +323,20 @@ class Walker:
         sink.scale(marks[0], marks[-1], 1.0, count / b)
         per_rep_terms = (sink.terms_emitted + sink.rates_emitted - emitted) / b
         self.orbit_records.append(record.as_dict() | {"terms_per_repetition": per_rep_terms})
+
+    def _cycle_terms(self, rep: NoisyRepeat, parts: list[tuple]):
+        """The extra terms of every repetition of an orbit-folded block (``cycle_terms``, e.g. the
+        second-order terms within one repetition), from the explicit terms of its first one; None
+        when there are none or the body holds a repeated block (its fold weights are not in
+        ``parts``)."""
+        if any(isinstance(it, NoisyRepeat) for it in rep.body):
+            self.cycle_notes.append("a block folded by orbits holds a repeated block: its terms within a repetition stay first order")
+            return None
+        got = self.cycle_terms(parts)
+        if isinstance(got, str):
+            self.cycle_notes.append(got)
+            return None
+        return got if got is not None and len(got[3]) else None
 
     def _fold(self, rep: NoisyRepeat, period: int, marks: list[int], snapshots: dict[int, Frame]) -> None:
         q, s = divmod(int(rep.count), period)

@@ -75,7 +75,7 @@ def _coherent(items: tuple[NoisyItem, ...]) -> bool:
     )
 
 
-def _exact_remainder(hs: np.ndarray, error: np.ndarray) -> np.ndarray:
+def _exact_remainder(hs: np.ndarray, error: np.ndarray) -> tuple[np.ndarray, bool]:
     """Replace the second-order generator of a block by the exact one.
 
     ``error`` is E = Ũ U† (the coherent errors pushed to the block's end, exact); its generator
@@ -85,7 +85,7 @@ def _exact_remainder(hs: np.ndarray, error: np.ndarray) -> np.ndarray:
     identity for the principal branch."""
     exact = principal_generator(error)
     if exact is None:
-        return hs
+        return hs, False
     d = error.shape[0]
     total = hs.sum(axis=(0, 1))
     total = total - np.trace(total) / d * np.eye(d)
@@ -94,7 +94,7 @@ def _exact_remainder(hs: np.ndarray, error: np.ndarray) -> np.ndarray:
     weights = sizes / sizes.sum() if sizes.sum() > 0 else np.full(len(sizes), 1.0 / len(sizes))
     hs = hs.copy()
     hs[1] += weights[:, None, None] * rest
-    return hs
+    return hs, True
 
 
 def cycle_second_order(basis: CycleBasis, hs: np.ndarray, count: int) -> np.ndarray:
@@ -125,6 +125,8 @@ class DenseBlock:
     second: np.ndarray | None = None
     noisy: np.ndarray | None = None
     """With the second order: the block's unitary including its coherent errors."""
+    all_orders: bool = False
+    """Whether the generator is the exact one (i log of the error unitary), not H_1 + H_2."""
 
     def total(self) -> np.ndarray:
         d = self.hamiltonians.shape[-1]
@@ -194,9 +196,11 @@ class DensePropagator:
                 if self.second_order:
                     second = second + cycle_second_order(basis, inner.hamiltonians, item.count)
                 hs = self._join(hs, keys, list(zip(inner.keys, first, second)))
+        all_orders = False
         if noisy is not None and keys:
-            hs = _exact_remainder(hs, noisy.T @ ut.conj())
+            hs, all_orders = _exact_remainder(hs, noisy.T @ ut.conj())
         block = DenseBlock(None if ut is None or not with_unitary else ut.T.copy(), keys, hs.sum(axis=0), hs[1])
+        block.all_orders = all_orders
         block.noisy = None if noisy is None else noisy.T.copy()
         return block
 

@@ -36,7 +36,14 @@ from budget.engines.generators.jumps import StateJumps
 from budget.engines.generators.krylov import expm_apply
 from budget.engines.generators.observables import IncoherentObservables, observable_vector
 from budget.engines.generators.states import StatePath
-from budget.engines.orders import cancellation_note, second_order_share, term_norm_sum, validity_details
+from budget.engines.orders import (
+    cancellation_note,
+    second_order_share,
+    split_by_sizes,
+    term_norm_sum,
+    term_square_by_family,
+    validity_details,
+)
 from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.engines.exact.engine import ExactEngine
 from budget.engines.generators.depth import DepthCurve, depth_curve
@@ -68,6 +75,7 @@ class _Coherent:
     first_norm: float | None = None
     second_norm: float | None = None
     leading: float | None = None  # quadratic estimate of H_1 + H_2 (the shares' scale), when formed
+    all_orders: str | None = None  # how every order was summed, when it was
 
 
 def _hs_norm(h: np.ndarray) -> float:
@@ -184,8 +192,10 @@ class GeneratorsEngine:
         stoch_total = sum(stoch.values())
         total = float(np.clip(coh.exact + stoch_total, 0.0, 1.0)) + 0.0
         lead = coh.first if coh.leading is None else coh.leading
-        scale = coh.exact / lead if lead > 0 else 0.0
-        shares = {f: scale * v for f, v in coh.shares.items()}
+        if lead > 0 and 0.5 * coh.exact <= lead <= 2.0 * coh.exact:
+            shares = {f: coh.exact / lead * v for f, v in coh.shares.items()}
+        else:  # the leading order misjudges the size (it rests on a cancellation): split by term sizes
+            shares = split_by_sizes(term_square_by_family(circuit), coh.exact)
         for f, v in stoch.items():
             shares[f] = shares.get(f, 0.0) + v
         raw = sum(shares.values())
@@ -202,9 +212,9 @@ class GeneratorsEngine:
             sizes = term_norm_sum(circuit)
             cancellation = coh.first_norm / sizes if sizes > 0 else 1.0
             details.update(validity_details(coh.second_share, cancellation, coh.first_norm, coh.second_norm))
-            if note := cancellation_note(coh.second_share, cancellation, engine=self.name):
+            if note := cancellation_note(coh.second_share, cancellation, engine=self.name, all_orders=coh.all_orders):
                 warnings.insert(0, note)
-        elif coh.exact > 0:
+        elif coh.exact > 0 and self.second_order:
             warnings.append(
                 f"state metric on {n} qubits: the coherent part is first order only (the second-order "
                 f"commutator term needs dense matrices, up to {MAX_DENSE_QUBITS} qubits); where the "
@@ -254,7 +264,18 @@ class GeneratorsEngine:
         kr = expm_apply(path.matvec, psi)
         exact = float(np.clip(1 - abs(np.vdot(psi, kr.vector)) ** 2, 0.0, 1.0))
         norm = float(np.max(np.abs(kr.ritz_values - mean)))
-        return _Coherent(exact, first, shares, norm, psi, kr.vector)
+        noisy = path.noisy_state() if self.second_order else None
+        if noisy is None:
+            return _Coherent(exact, first, shares, norm, psi, kr.vector)
+        rest = noisy - np.vdot(psi, noisy) * psi  # the part of ψ̃ orthogonal to ψ: every order
+        every = float(np.clip(np.vdot(rest, rest).real, 0.0, 1.0))
+        return _Coherent(
+            every, first, shares, norm, psi, noisy,
+            second_share=second_order_share(every, exact),
+            first_norm=float(np.sqrt(first)),
+            second_norm=float("nan"),
+            all_orders="state vectors with every coherent error unitary applied",
+        )
 
     def _coherent_dense(self, circuit, metric, dense: DensePropagator, want_state: bool) -> _Coherent:
         state = metric == "state" or want_state
@@ -291,6 +312,7 @@ class GeneratorsEngine:
             second_share=second_order_share(exact, exact1),
             first_norm=_hs_norm(h - h2),
             second_norm=_hs_norm(h2),
+            all_orders="dense logarithm of the circuit's error unitary" if block.all_orders else None,
         )
 
     def _warnings(self, circuit, metric, norm: float, stoch: float, notes: list[str]) -> list[str]:
