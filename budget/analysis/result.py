@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from budget.analysis.ratios import safe_ratio
+from budget.engines.details import Details
 from budget.analysis.verdict import Verdict, classify
 
 SCHEMA_VERSION = 2
@@ -112,12 +113,16 @@ class BudgetResult:
     warnings: tuple[str, ...] = ()
     observables: dict[str, float | None] = field(default_factory=dict)
     twirled_infidelity: float | None = None
-    details: dict[str, Any] = field(default_factory=dict)
+    details: Details = field(default_factory=Details)
     beyond_range: str | None = None
     shares_known: bool = True
     detectors: tuple[DetectorBudget, ...] = ()
     logical: tuple[tuple[int, ...], ...] = ()
     record_bits: tuple[RecordBit, ...] = ()
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.details, Details):  # a mapping in the JSON layout (measured metrics)
+            object.__setattr__(self, "details", Details.from_mapping(self.details or {}))
 
     @property
     def in_range(self) -> bool:
@@ -183,7 +188,7 @@ class BudgetResult:
         if self.twirled_infidelity is not None:
             out["twirled"] = {"infidelity": self.twirled_infidelity}
         if self.details:
-            out["details"] = _jsonable(self.details)
+            out["details"] = self.details.to_json()
         if self.metric == "detectors":
             out["detectors"] = [
                 {"measurements": list(d.measurements), "round": d.round, "probability": d.probability,

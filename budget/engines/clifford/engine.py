@@ -22,6 +22,8 @@ resummed coherent part 1 - Π cos²|A_g| plus the first-order stochastic part, a
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 
 from budget.circuit.clifford_check import first_non_clifford
@@ -39,13 +41,14 @@ from budget.engines.orders import (
     validity_details,
 )
 from budget.engines.frame.walk import MAX_UNROLLED, ORBIT_BABY, Walker
-from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
+from budget.engines.base import METRICS, Engine, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
+from budget.engines.details import Details, Drilldown, FoldedBlock, Folding, OperationShare, Parts, QubitMap, Validity
 from budget.errors.knobs import knob_grouping
 from budget.errors.light_cone import light_cone_circuit
 from budget.errors.noisy import NoisyCircuit
 from budget.memo import distinct
 from budget.pauli_algebra import label_bits
-from budget.problems import TooLargeError
+from budget.problems import InputError, TooLargeError
 
 SMALL = 0.1
 """First-order infidelity above which the engine warns that the expansion is no longer small."""
@@ -71,7 +74,7 @@ def _has_relaxation(circuit: NoisyCircuit) -> bool:
     )
 
 
-class CliffordEngine:
+class CliffordEngine(Engine):
     """Pauli-frame engine (see module docstring).
 
     Args:
@@ -88,6 +91,7 @@ class CliffordEngine:
     """
 
     name = "clifford"
+    capabilities = frozenset({"observables", "quadratic_form"})
 
     def __init__(
         self,
@@ -212,7 +216,7 @@ class CliffordEngine:
         sources, sink, walker = self._pass(circuit, metric, plans)
         budget = aggregate(sink, len(sources.families), state=metric == "state")
         first_walk, first_sources = (sink, walker), sources
-        validity, warnings = {}, []
+        validity, warnings = Validity(), []
         first = budget
         why_not = self._wants_second(circuit, budget, sink, walker)
         if why_not is None:
@@ -220,7 +224,7 @@ class CliffordEngine:
                 sources, sink2, walker = self._pass(circuit, metric, plans, second=True)
             except TooCostly:
                 sink2 = None
-                validity["second_order"] = f"not formed (more than {PAIR_BUDGET:.0e} pair operations)"
+                validity = replace(validity, second_order=f"not formed (more than {PAIR_BUDGET:.0e} pair operations)")
                 if budget.coherent < 0.1 * term_square_sum(circuit):
                     warnings.append(
                         "the first-order error terms largely cancel and their second-order (commutator) "
@@ -232,16 +236,16 @@ class CliffordEngine:
                 share = second_order_share(budget.coherent_resummed, first.coherent_resummed)
                 sizes = term_norm_sum(circuit)
                 cancellation = float(np.sqrt(first.coherent)) / sizes if sizes > 0 else 1.0
-                validity.update(validity_details(share, cancellation, float(np.sqrt(first.coherent)), float("nan")))
-                validity["coherent_without_second_order"] = first.coherent_resummed + 0.0
-                validity.pop("second_order_norm_rad")
+                validity = replace(validity_details(share, cancellation, float(np.sqrt(first.coherent)), None),
+                                   second_order=validity.second_order,
+                                   coherent_without_second_order=first.coherent_resummed + 0.0)
                 if note := cancellation_note(share, cancellation, engine=self.name):
                     warnings.append(note)
                 if metric == "state" and (note := self._hidden_note(sink2, budget, cancellation)):
                     warnings.append(note)
-                    validity["rests_on_cancellation"] = True
+                    validity = replace(validity, rests_on_cancellation=True)
         elif self.second_order:
-            validity["second_order"] = why_not.rstrip("!")
+            validity = replace(validity, second_order=why_not.rstrip("!"))
             if why_not.endswith("!"):
                 warnings.append(
                     "the first-order error terms largely cancel, but the second-order (commutator) terms "
@@ -264,16 +268,14 @@ class CliffordEngine:
             )
         if metric == "state" and _has_relaxation(circuit):
             warnings.append(TWIRL_NOTE)
-        details = _details(first, first_sources, walker, self.top) | validity
-        details["coherent_exponentiated"] = budget.coherent_resummed + 0.0
-        details["coherent_leading_order"] = budget.coherent
+        details = _details(first, first_sources, walker, self.top, budget).with_records(validity)
         sink, walker = first_walk
         emitted = sink.terms_emitted + sink.rates_emitted
         for rec in walker.orbit_records:  # the landing walk enumerates what the orbit search skipped
             walks = min(rec["count"], rec["longest_orbit"] or self.max_unrolled)
             emitted += rec["terms_per_repetition"] * max(0, walks - rec["baby_steps"])
         cost = emitted * circuit.num_qubits
-        details.update(self._qubit_map(circuit, cost, sink.builder, plans))
+        details = details.with_records(self._qubit_map(circuit, cost, sink.builder, plans))
         obs = self.observable_errors(circuit, tuple(observables), _plans=plans) if observables else {}
         if observables and _has_relaxation(circuit):
             warnings.append("observables: T1/T2 relaxation enters through its Pauli twirl (first order)")
@@ -289,21 +291,21 @@ class CliffordEngine:
             beyond_range=beyond,
         )
 
-    def _qubit_map(self, circuit: NoisyCircuit, cost: float, builder: TermBuilder, plans: dict) -> dict:
+    def _qubit_map(self, circuit: NoisyCircuit, cost: float, builder: TermBuilder, plans: dict) -> QubitMap:
         if not self.qubit_map:
-            return {}
+            return QubitMap()
         if self.qubit_map != "always" and cost > LANDING_BUDGET:
-            return {
-                "qubit_map_skipped": f"it needs about {cost:.2g} bit operations (default limit {LANDING_BUDGET:.2g}; "
+            return QubitMap(
+                qubit_map_skipped=f"it needs about {cost:.2g} bit operations (default limit {LANDING_BUDGET:.2g}; "
                 "from Python, CliffordEngine(qubit_map='always') computes it)"
-            }
+            )
         sink = LandingSink(builder)
         Walker(circuit.num_qubits, "push", sink, max_unrolled=self.max_unrolled, plans=plans).run(circuit.body)
         land = sink.landing(circuit.num_qubits)
-        return {
-            "qubit_map": {name: float(v) for name, v in zip(circuit.qubits, land)},
-            "qubit_map_quantity": "first-order marginal process infidelity per qubit at the output",
-        }
+        return QubitMap(
+            qubit_map={name: float(v) for name, v in zip(circuit.qubits, land)},
+            qubit_map_quantity="first-order marginal process infidelity per qubit at the output",
+        )
 
     def observable_error(self, circuit: NoisyCircuit, label: str, *, prune: bool | None = None) -> float:
         """First-order change <O>_actual - <O>_ideal of the Pauli observable ``label``."""
@@ -395,24 +397,27 @@ class CliffordEngine:
         )
 
 
-def _details(b: Budget, sources: Sources, walker: Walker, top: int) -> dict:
+def _details(b: Budget, sources: Sources, walker: Walker, top: int, final: Budget) -> Details:
+    """Records of the first-order pass ``b`` (the exponentiated and leading-order coherent parts
+    from ``final``, the pass with the second order where it was formed)."""
     shares = b.first_order_shares
     order = np.argsort(-np.abs(shares))[:top]
     blocks: dict[tuple, int] = {}
     for count, period in walker.periods:
         blocks[(count, period)] = blocks.get((count, period), 0) + 1
-    return {
-        "coherent_first_order": b.coherent,
-        "coherent_exponentiated": b.coherent_resummed + 0.0,
-        "stochastic_first_order": b.stochastic,
-        "coherent_groups": b.groups,
-        "max_group_amplitude_rad": b.max_amplitude,
-        "folded_blocks": [{"count": c, "period": p, "walks": w} for (c, p), w in blocks.items()],
-        "layers_walked": walker.layers_walked,
-        "orbit_folds": walker.orbit_records,
-        "first_order_family_shares": _by_family(sources, shares),
-        "top_operations": [dict(sources.info[i], first_order_share=float(shares[i])) for i in order if shares[i]],
-    }
+    return Details(
+        parts=Parts(coherent_first_order=b.coherent, coherent_exponentiated=final.coherent_resummed + 0.0,
+                    coherent_leading_order=final.coherent, stochastic_first_order=b.stochastic,
+                    coherent_groups=b.groups, max_group_amplitude_rad=b.max_amplitude),
+        folding=Folding(folded_blocks=tuple(FoldedBlock(c, p, w) for (c, p), w in blocks.items()),
+                        layers_walked=walker.layers_walked, orbit_folds=tuple(walker.orbit_records)),
+        drilldown=Drilldown(
+            first_order_family_shares=_by_family(sources, shares),
+            top_operations=tuple(OperationShare(sources.info[i]["family"], sources.info[i]["gate"],
+                                                tuple(sources.info[i]["qubits"]), sources.info[i]["line"],
+                                                float(shares[i])) for i in order if shares[i]),
+        ),
+    )
 
 
 def _by_family(sources: Sources, shares: np.ndarray) -> dict[str, float]:
