@@ -18,8 +18,8 @@ from budget.analysis.run import analyze
 from budget.engines.base import Engine
 from budget.engines.door import ENGINE_NAMES, get_engine
 from budget.engines.exact import ExactEngine
-from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyRepeat
-from reference import cirq_infidelity, random_noisy_circuit
+from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer
+from reference import cirq_infidelity, mapped, random_noisy_circuit
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -27,22 +27,13 @@ ROOT = Path(__file__).resolve().parent.parent
 def _alone(circuit: NoisyCircuit, family: str) -> NoisyCircuit:
     """Independent of the project's split: every other family's operations made ideal."""
 
-    def items(body):
-        out = []
-        for it in body:
-            if isinstance(it, NoisyRepeat):
-                out.append(NoisyRepeat(items(it.body), it.count))
-                continue
-            ops = tuple(
-                nop if nop.family == family else dataclasses.replace(
-                    nop, coherent=np.eye(2 ** len(nop.qubits), dtype=complex), hamiltonian={}, pauli_rates={},
-                    depolarizing=0.0, relaxation=())
-                for nop in it.operations
-            )
-            out.append(NoisyLayer(ops, it.idle if family == IDLE else (), it.duration_ns))
-        return tuple(out)
+    def operation(nop):
+        if nop.family == family:
+            return nop
+        return dataclasses.replace(nop, coherent=np.eye(2 ** len(nop.qubits), dtype=complex), hamiltonian={},
+                                   pauli_rates={}, depolarizing=0.0, relaxation=())
 
-    return NoisyCircuit(circuit.qubits, items(circuit.body))
+    return mapped(circuit, operation, lambda layer: layer.idle if family == IDLE else ())
 
 
 def _families(circuit: NoisyCircuit) -> list[str]:

@@ -6,7 +6,6 @@ One name per quantity in every view: the *fidelity product (naive)*, the *actual
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -215,15 +214,3 @@ CAUTION = (
     "These numbers are model predictions from the stated error model; confirm them on the device. "
     "Local lab practice decides calibration policy."
 )
-
-
-def _jsonable(value: Any) -> Any:
-    if isinstance(value, dict):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_jsonable(v) for v in value]
-    if hasattr(value, "tolist"):
-        return value.tolist()
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value

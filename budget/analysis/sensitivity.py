@@ -25,7 +25,7 @@ import dataclasses
 from dataclasses import dataclass
 import numpy as np
 
-from budget.engines.door import choose
+from budget.engines.door import choose, measured_engine
 from budget.engines.base import QuadraticForm
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyItem, NoisyLayer, NoisyRepeat
 from budget.problems import InputError
@@ -42,8 +42,7 @@ def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto", 
     if metric == "detectors":
         from budget.analysis.measured_form import detector_quadratic_form
 
-        if engine not in ("auto", "exact", "clifford"):
-            raise InputError(f"engine = {engine!r}: the detectors metric's form comes from exact or clifford (or auto)")
+        measured_engine("detectors", engine, None, what="the detectors metric's form")
         return detector_quadratic_form(circuit, engine=engine, detector=detector)
     if metric == "record":
         raise InputError("metric = 'record': tolerances and cost need a quadratic form e ≈ δᵀAδ + s, which the "

@@ -367,3 +367,33 @@ def quicker(first: Engine, circuit: NoisyCircuit, metric: str, seconds: float) -
         return first, None
     return best, (f"one {first.name} run would take about {first_time:.2g} s, too slow for the loop; it used "
                   f"the {best.name} engine")
+
+
+# --- Circuits with mid-circuit measurement (``detectors`` and ``record`` metrics) ------------------
+MEASURED_ORDER = ("exact", "clifford")
+"""Engines of the measured metrics, most accurate first: the exact engine's branches over recorded
+bits (budget/engines/exact/branches.py) and the clifford engine's Pauli frames
+(budget/engines/clifford/frames.py); the record metric has only the first."""
+
+
+def measured_engine(metric: str, requested: str, exact_reason: str | None, *, what: str | None = None) -> str:
+    """``"exact"`` or ``"clifford"`` for a measured metric: the named one, or under ``auto`` the exact
+    engine when it fits (``exact_reason`` is None), else the clifford engine. ``what``: the thing
+    computed, for the refusal wording (default: the metric).
+
+    Raises:
+        InputError: an engine that does not compute the measured metrics (or the clifford engine
+            for the record metric).
+        TooLargeError: the exact engine, named, does not fit (the line says what would).
+    """
+    names = MEASURED_ORDER if metric != "record" else MEASURED_ORDER[:1]
+    subject = what or f"the {metric} metric"
+    if requested != "auto" and requested not in names:
+        if metric == "record":
+            raise InputError(f"engine = {requested!r}: the record metric runs on the exact engine")
+        raise InputError(f"engine = {requested!r}: {subject} runs on the {' or '.join(names)} engine")
+    if requested == "exact" and exact_reason is not None and metric != "record":
+        raise TooLargeError(f"engine exact: {exact_reason}; the clifford engine fits (first order, errors twirled)")
+    if requested == "exact" or (requested == "auto" and exact_reason is None):
+        return "exact"
+    return names[-1]

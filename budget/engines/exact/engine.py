@@ -169,7 +169,8 @@ class ExactEngine(Engine):
         work = make_plan(circuit, metric, self.repeats).work
         families = error_families(circuit) if self.split else ()
         if len(families) > 1:
-            work += sum(make_plan(only_family(circuit, f), metric, self.repeats).work for f in families)
+            one = self._split_engine()
+            work += sum(make_plan(only_family(circuit, f), metric, one.repeats).work for f in families)
         return work / MULTIPLY_ADDS_PER_S
 
     def brief(self) -> "ExactEngine":
@@ -230,12 +231,18 @@ class ExactEngine(Engine):
             observable_errors=obs,
         )
 
+    def _split_engine(self) -> "ExactEngine":
+        """The engine of the family-split runs: no split of its own, and in ``auto`` mode the
+        cheaper of unrolling and a block power by the plan's estimate (the main run prefers a cheap
+        block power so that its time does not depend on N; the split runs need only the value)."""
+        return ExactEngine("cheapest" if self.repeats == "auto" else self.repeats, split=False)
+
     def _shares(self, circuit: NoisyCircuit, metric: Metric, total: float) -> tuple[dict[str, float], FamilySplit]:
         """Family shares by isolation (:mod:`budget.engines.exact.split`) and their record."""
         families = error_families(circuit)
         if len(families) == 1:
             return {families[0]: total}, FamilySplit(SHARE_METHOD, 0, total)
-        one = self.brief()
+        one = self._split_engine()
         isolated = {f: one.run(only_family(circuit, f), metric).infidelity for f in families}
         return scaled_shares(isolated, total), FamilySplit(SHARE_METHOD, len(families), sum(isolated.values()))
 
