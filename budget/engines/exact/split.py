@@ -26,6 +26,7 @@ import dataclasses
 
 import numpy as np
 
+from budget.memo import ObjectKey
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat
 
 SHARE_METHOD = "isolation: each family's errors alone, scaled to the joint value"
@@ -47,15 +48,15 @@ def error_families(circuit: NoisyCircuit) -> tuple[str, ...]:
 def only_family(circuit: NoisyCircuit, family: str) -> NoisyCircuit:
     """``circuit`` with the errors of every family but ``family`` removed (ideal gates kept, so
     the ideal circuit is unchanged); repeats stay folded."""
-    cache: dict[int, NoisyOperation] = {}
+    cache: dict[ObjectKey, NoisyOperation] = {}
 
     def operation(nop: NoisyOperation) -> NoisyOperation:
         if nop.family == family:
             return nop
-        out = cache.get(id(nop))
+        out = cache.get(ObjectKey(nop))
         if out is None:
             d = 2 ** len(nop.qubits)
-            out = cache[id(nop)] = dataclasses.replace(
+            out = cache[ObjectKey(nop)] = dataclasses.replace(
                 nop, coherent=np.eye(d, dtype=complex), hamiltonian={}, pauli_rates={}, depolarizing=0.0, relaxation=(),
                 knob_generators={}, knob_values={},
             )
