@@ -1,4 +1,4 @@
-"""Choosing an engine (``auto``), the one place where refusals are worded, and family shares.
+"""Choosing an engine (``auto``), the one place where refusals are worded, and the runs around the choice.
 
 ``auto`` weighs accuracy and estimated run time (design.md §4). AUTO_ORDER lists the engines from
 the most accurate: ``exact`` (to rounding), ``clifford`` (first order, resummed; Clifford gates
