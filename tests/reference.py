@@ -230,6 +230,22 @@ def cirq_final_states(circuit: NoisyCircuit) -> tuple[np.ndarray, np.ndarray]:
     return _simulate(circuit, [cirq.I(q) for q in qs], qs, qs)
 
 
+def mapped(circuit: NoisyCircuit, operation, idle) -> NoisyCircuit:
+    """The same circuit with ``operation(nop)`` for every operation and ``idle(layer)`` for every
+    layer's idle slots; repeats kept."""
+
+    def items(body):
+        out = []
+        for it in body:
+            if isinstance(it, NoisyRepeat):
+                out.append(NoisyRepeat(items(it.body), it.count))
+                continue
+            out.append(NoisyLayer(tuple(map(operation, it.operations)), idle(it), it.duration_ns))
+        return tuple(out)
+
+    return NoisyCircuit(circuit.qubits, items(circuit.body), circuit.readout_error, circuit.source)
+
+
 def scaled_incoherent(circuit: NoisyCircuit, factor: float) -> NoisyCircuit:
     """The same circuit with every incoherent probability scaled by ``factor`` (depolarizing λ,
     Pauli rates, amplitude damping γ, and 1 - c for the dephasing factor c); repeats kept. Keeps
@@ -239,22 +255,12 @@ def scaled_incoherent(circuit: NoisyCircuit, factor: float) -> NoisyCircuit:
     def relax(r: Relaxation) -> Relaxation:
         return dataclasses.replace(r, gamma=r.gamma * factor, dephasing_factor=1 - (1 - r.dephasing_factor) * factor)
 
-    def items(body):
-        out = []
-        for it in body:
-            if isinstance(it, NoisyRepeat):
-                out.append(NoisyRepeat(items(it.body), it.count))
-                continue
-            ops = tuple(
-                dataclasses.replace(
-                    nop,
-                    depolarizing=nop.depolarizing * factor,
-                    pauli_rates={k: v * factor for k, v in nop.pauli_rates.items()},
-                    relaxation=tuple(map(relax, nop.relaxation)),
-                )
-                for nop in it.operations
-            )
-            out.append(NoisyLayer(ops, tuple(map(relax, it.idle)), it.duration_ns))
-        return tuple(out)
+    def operation(nop):
+        return dataclasses.replace(
+            nop,
+            depolarizing=nop.depolarizing * factor,
+            pauli_rates={k: v * factor for k, v in nop.pauli_rates.items()},
+            relaxation=tuple(map(relax, nop.relaxation)),
+        )
 
-    return NoisyCircuit(circuit.qubits, items(circuit.body), circuit.readout_error, circuit.source)
+    return mapped(circuit, operation, lambda layer: tuple(map(relax, layer.idle)))

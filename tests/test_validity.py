@@ -139,9 +139,10 @@ def test_headline_and_json_of_an_out_of_range_cli_run(tmp_path):
     data = json.loads(out.read_text())
     assert data["engine"] == "exact" and data["actual"]["in_range"]
     assert data["actual"]["infidelity"] == pytest.approx(_depolarized(N, R), rel=1e-9)
-    # the split into families would come from a first-order engine beyond its range: left out, said why
-    assert data["families"][0]["share"] is None
-    assert any(w.startswith("family shares left out") for w in data["warnings"])
+    # the exact engine splits its own value (budget/engines/exact/split.py): one family, the whole
+    # total; no first-order engine (beyond its range here) is asked for the split any more
+    assert data["families"][0]["share"] == pytest.approx(data["actual"]["infidelity"], rel=1e-12)
+    assert not any(w.startswith("family shares") for w in data["warnings"])
     assert np.isfinite(data["naive"]["infidelity"])
 
 

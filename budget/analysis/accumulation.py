@@ -17,7 +17,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 import numpy as np
 
-from budget.engines.matrices.channels import Grouping, by_family, content_cache
+from budget.engines.matrices.channels import Grouping, content_cache
 from budget.engines.generators.dense import DenseBlock, DensePropagator
 from budget.engines.matrices.periodic import accumulation_split, cycle_basis
 from budget.errors.noisy import NoisyCircuit, NoisyOperation
@@ -142,14 +142,6 @@ def cycle_errors(block: NoisyCircuit) -> CycleErrors:
     d = u.shape[0]
     stack = np.array([dense.group(k) for k in names]) if names else np.zeros((0, d, d), dtype=complex)
     return CycleErrors(u, names, stack, tuple(local.get(k, 0.0) for k in names))
-
-
-def cycle_hamiltonian(block: NoisyCircuit) -> tuple[np.ndarray, np.ndarray]:
-    """(U_c, H_c): the cycle's ideal unitary and the sum of every operation's exact Hamiltonian
-    error pushed to the end of the cycle (the generators engine's coherent input for a repeat)."""
-    _check_size(block)
-    dense = _propagate(block, by_family)
-    return dense.unitary, dense.total()
 
 
 def components_or_note(block: NoisyCircuit, metric: str) -> tuple[tuple[Component, ...], str | None]:

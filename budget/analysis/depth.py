@@ -28,18 +28,15 @@ from typing import Callable
 import numpy as np
 
 from budget.analysis.ratios import at_rounding_level
-from budget.engines import get_engine
+from budget.engines.door import choose, exact_if_fits, sweep_engine
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.engines.base import MEASURED_METRICS
 from budget.problems import InputError
 
-from budget.analysis.accumulation import components_or_note, cycle_hamiltonian
+from budget.analysis.accumulation import components_or_note
 from budget.analysis.curves import CROSSOVER_FACTOR, CURVE_WORDS, CURVES, JSON_KEYS, DepthCurve
 from budget.analysis.measured import measured_values, naive_measured
 from budget.analysis.twirl import twirled_circuit
-from budget.engines.door import AUTO_ORDER, check_time, choose
-from budget.engines.generators.engine import range_note
-from budget.engines.matrices.periodic import cycle_basis, periodic_sum
 from budget.errors.fidelity import naive_infidelity
 
 __all__ = ["CROSSOVER_FACTOR", "CURVE_WORDS", "CURVES", "JSON_KEYS", "DepthCurve", "depth_curve", "repetition_grid"]
@@ -113,24 +110,22 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, de
     """One curve from an engine.
 
     ``auto`` on up to EXACT_CURVE_QUBITS qubits: the exact engine at every point (matrix powers, cheap
-    at that size). Else, for the process metric with ``auto`` or ``generators``, the curve is
-    the periodic closed form: coherent part from one Schur decomposition of the cycle, stochastic
-    part N times the cycle's, exactly what the generators engine computes for a repeat, without
-    re-running it per point. Otherwise every point is one run of the chosen engine on the folded
-    repeat (the exact engine takes matrix powers, the clifford engine folds whole periods); the
-    engine is chosen for the deepest point ``deepest``, the costliest one."""
+    at that size). Else, for the process metric, the engine's closed-form repeat sweep where the
+    front door has one for the request (:func:`budget.engines.door.sweep_engine`: the generators
+    engine's periodic closed form, :class:`budget.engines.generators.depth.RepeatSweep`): one
+    propagation of the cycle, then any N at O(d³), the same values as one engine run per N.
+    Otherwise every point is one run of the chosen engine on the folded repeat (the exact engine
+    takes matrix powers, the clifford engine folds whole periods); the engine is chosen for the
+    deepest point ``deepest``, the costliest one, among the engines that fold repeats."""
     notes: list[str] = []
     small = engine == "auto" and block.num_qubits <= EXACT_CURVE_QUBITS
-    if (metric == "process" and engine in ("auto", "generators") and not small and block.later_body is None
+    if (metric == "process" and not small and block.later_body is None
             and block.num_qubits <= MAX_CLOSED_FORM_QUBITS):  # the closed form repeats one cycle as it is
-        gen = get_engine("generators")
-        if gen.fits(_repeated(block, 2), metric) is None:
-            check_time(block, metric, gen, runs=2, what="the depth curve (closed form)")
-            return _closed_form(block, gen), "generators (periodic closed form)", notes
-    # auto leaves the pauli engine out of curves: it walks non-Clifford repeats cycle by cycle and its
-    # term count can grow with depth faster than any estimate it could give (--engine pauli still runs it)
-    order = tuple(e for e in AUTO_ORDER if e != "pauli")
-    chosen = choose(_repeated(block, deepest), metric, engine, brief=True, order=order).engine
+        sweeper = sweep_engine(block, metric, engine)
+        if sweeper is not None:
+            sweep = sweeper.repeat_sweep(block, metric)
+            return _Series(sweep.at), f"{sweeper.name} (periodic closed form)", notes
+    chosen = choose(_repeated(block, deepest), metric, engine, brief=True, repeats_folded=True).engine
 
     def run(n: int) -> tuple[float, bool]:
         result = chosen.run(_repeated(block, n), metric)
@@ -139,24 +134,6 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, de
         return result.infidelity, result.beyond_range is None
 
     return _Series(run), chosen.name, notes
-
-
-def _closed_form(block: NoisyCircuit, engine) -> _Series:
-    """The generators engine's value for N cycles by the periodic closed form, and whether it is
-    within the engine's range (:func:`budget.engines.generators.engine.range_note` on the coherent part of
-    the summed Hamiltonian S_N and the stochastic sum N s)."""
-    one = engine.run(block, "process")
-    stochastic = float(one.details.get("stochastic_first_order", 0.0))
-    unitary, h = cycle_hamiltonian(block)
-    basis = cycle_basis(unitary)
-
-    def value(n: int) -> tuple[float, bool]:
-        s = periodic_sum(basis, h, n)
-        w = np.linalg.eigvalsh((s + s.conj().T) / 2)
-        coherent = 1 - abs(np.mean(np.exp(-1j * w))) ** 2  # process 1 - |Tr e^{-iS_N}/d|², as coherent_curve
-        return float(coherent) + n * stochastic, range_note(n * stochastic, float(coherent)) is None
-
-    return _Series(value)
 
 
 def _measured_curve(block: NoisyCircuit, grid: tuple[int, ...], metric: str, engine: str, target: float | None,
@@ -243,8 +220,9 @@ def depth_curve(
     if engine == "auto" and block.num_qubits <= EXACT_FALLBACK_QUBITS:
         for key, cycle in (("structured", block), ("twirled", tw_block)):
             end = series[key].range_end(grid)
-            if end is not None and _exact_fits(cycle, metric):
-                series[key] = _switched(series[key], end, cycle, metric)
+            exact = exact_if_fits(_repeated(cycle, 2), metric) if end is not None else None
+            if exact is not None:
+                series[key] = _switched(series[key], end, cycle, metric, exact)
                 switches[key] = end
     structured, twirled = series["structured"], series["twirled"]
     values: dict[str, list[float]] = {c: [] for c in CURVES}
@@ -283,14 +261,9 @@ def depth_curve(
     )
 
 
-def _exact_fits(cycle: NoisyCircuit, metric: str) -> bool:
-    return get_engine("exact").fits(_repeated(cycle, 2), metric) is None
-
-
-def _switched(first: _Series, end: int, cycle: NoisyCircuit, metric: str) -> _Series:
+def _switched(first: _Series, end: int, cycle: NoisyCircuit, metric: str, exact) -> _Series:
     """``first`` below N = ``end`` (where it is in range), the exact engine from there on
     (engine ``auto`` switches to an engine valid there, issue of values beyond range)."""
-    exact = get_engine("exact").brief()
 
     def value(n: int) -> tuple[float, bool]:
         if n < end:

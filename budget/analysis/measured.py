@@ -34,6 +34,7 @@ from budget.analysis.twirl import twirled_circuit
 from budget.circuit.ir import StructuredCircuit
 from budget.engines.clifford.frames import families_of, frames
 from budget.engines.exact.branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
+from budget.engines.door import measured_engine
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.fidelity import naive_infidelity, relaxation_process_fidelity
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
@@ -57,8 +58,7 @@ def analyze_measured(
     logical: tuple[tuple[int, ...], ...] | None = None,
 ) -> BudgetResult:
     """The detector or record budget of ``noisy`` (see the module docstring)."""
-    if engine not in ("auto", "exact", "clifford"):
-        raise InputError(f"engine = {engine!r}: the {metric} metric runs on the exact or clifford engine")
+    measured_engine(metric, engine, None)  # an engine that does not compute the metric is refused here
     if metric == "record":
         return _record(noisy, structured, engine, cycles, compare_twirled)
     recorded_qubits(noisy, metric)
@@ -68,7 +68,7 @@ def analyze_measured(
         sc = folded.small_checks
         small_plan = Plan(tuple(d.measurements for d in sc.detectors), tuple(d.ideal for d in sc.detectors),
                           False, tuple(condition_bits(noisy.body)), sc.num_measurements)
-        if engine == "clifford" or exact_refusal(folded.small, small_plan) is not None:
+        if measured_engine(metric, engine, exact_refusal(folded.small, small_plan)) == "clifford":
             warnings = [f"the repeated block of {noisy.body[index].count:,} iterations is folded: its first and last "
                         "iterations are computed, the middle ones repeat the steady state (docs/methods.md)"]
             if _has_coherent(noisy):
@@ -81,10 +81,7 @@ def analyze_measured(
     checks = _checks(noisy, logical)
     plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
                 False, tuple(condition_bits(noisy.body)), checks.num_measurements)
-    reason = exact_refusal(noisy, plan)
-    use_exact = engine == "exact" or (engine == "auto" and reason is None)
-    if engine == "exact" and reason is not None:
-        raise TooLargeError(f"engine exact: {reason}; the clifford engine fits (first order, errors twirled)")
+    use_exact = measured_engine(metric, engine, exact_refusal(noisy, plan)) == "exact"
     fo = frames(noisy, plan.detectors)
     warnings = []
     if use_exact:
@@ -114,8 +111,9 @@ def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> t
         qubits = recorded_qubits(noisy, metric)
         plan = Plan((), (), True, tuple(condition_bits(noisy.body)), len(qubits))
         reason = exact_refusal(noisy, plan)
-        if reason is not None or engine == "clifford":
-            raise TooLargeError(f"{noisy.source}: record metric: {reason or 'the exact engine computes it'}")
+        measured_engine("record", engine, reason)
+        if reason is not None:
+            raise TooLargeError(f"{noisy.source}: record metric: {reason}")
         ideal = simulate(strip_errors(noisy), plan).record
         return (record_infidelity(ideal, simulate(noisy, plan).record),
                 record_infidelity(ideal, simulate(twirled_circuit(noisy), plan).record), "exact")
@@ -129,8 +127,7 @@ def detector_values(noisy: NoisyCircuit, engine: str = "auto") -> tuple[float, f
     plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
                 False, tuple(condition_bits(noisy.body)), checks.num_measurements)
     fo = frames(noisy, plan.detectors)
-    use_exact = engine == "exact" or (engine == "auto" and exact_refusal(noisy, plan) is None)
-    if use_exact:
+    if measured_engine("detectors", engine, exact_refusal(noisy, plan)) == "exact":
         exact = simulate(noisy, plan)
         return exact.any_fires, fo.any_fires, exact.detector_probability, "exact"
     return fo.any_fires, fo.any_fires, fo.detector_probability, "clifford"
@@ -168,8 +165,7 @@ def exact_refusal(noisy: NoisyCircuit, plan: Plan) -> str | None:
 
 def _record(noisy: NoisyCircuit, structured: StructuredCircuit, engine: str, cycles: int,
             compare_twirled: bool = False) -> BudgetResult:
-    if engine == "clifford":
-        raise InputError("engine = 'clifford': the record metric runs on the exact engine")
+    measured_engine("record", engine, None)
     qubits = recorded_qubits(noisy, "record")
     plan = Plan((), (), True, tuple(condition_bits(noisy.body)), len(qubits))
     reason = exact_refusal(noisy, plan)

@@ -240,7 +240,7 @@ def ensemble(
     for i in range(count):
         copy, why = compiled_copy(circuit, rng)
         notes.extend(why)
-        result, _ = run_in_range(copy, metric, choose_engine(copy, metric, engine, brief=True), engine)
+        result, _ = run_in_range(copy, metric, choose_engine(copy, metric, engine, brief=True), engine, brief=True)
         name = result.engine
         if result.beyond_range is None:
             values.append(float(result.infidelity))
@@ -253,6 +253,6 @@ def ensemble(
         raise TooLargeError(f"{circuit.source}: every randomly compiled copy is beyond the range of the {name} engine "
                             "and no engine valid there fits; use fewer cycles")
     tw = twirled_circuit(circuit)
-    tw_result, _ = run_in_range(tw, metric, choose_engine(tw, metric, engine, brief=True), engine)
+    tw_result, _ = run_in_range(tw, metric, choose_engine(tw, metric, engine, brief=True), engine, brief=True)
     twirled = None if tw_result.beyond_range is not None else float(tw_result.infidelity)
     return EnsembleResult(len(values), seed, metric, name, tuple(values), twirled, tuple(dict.fromkeys(notes)))

@@ -6,11 +6,11 @@ One name per quantity in every view: the *fidelity product (naive)*, the *actual
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 from typing import Any
 
 from budget.analysis.ratios import safe_ratio
+from budget.engines.details import Details
 from budget.analysis.verdict import Verdict, classify
 
 SCHEMA_VERSION = 2
@@ -112,12 +112,16 @@ class BudgetResult:
     warnings: tuple[str, ...] = ()
     observables: dict[str, float | None] = field(default_factory=dict)
     twirled_infidelity: float | None = None
-    details: dict[str, Any] = field(default_factory=dict)
+    details: Details = field(default_factory=Details)
     beyond_range: str | None = None
     shares_known: bool = True
     detectors: tuple[DetectorBudget, ...] = ()
     logical: tuple[tuple[int, ...], ...] = ()
     record_bits: tuple[RecordBit, ...] = ()
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.details, Details):  # a mapping in the JSON layout (measured metrics)
+            object.__setattr__(self, "details", Details.from_mapping(self.details or {}))
 
     @property
     def in_range(self) -> bool:
@@ -183,7 +187,7 @@ class BudgetResult:
         if self.twirled_infidelity is not None:
             out["twirled"] = {"infidelity": self.twirled_infidelity}
         if self.details:
-            out["details"] = _jsonable(self.details)
+            out["details"] = self.details.to_json()
         if self.metric == "detectors":
             out["detectors"] = [
                 {"measurements": list(d.measurements), "round": d.round, "probability": d.probability,
@@ -210,15 +214,3 @@ CAUTION = (
     "These numbers are model predictions from the stated error model; confirm them on the device. "
     "Local lab practice decides calibration policy."
 )
-
-
-def _jsonable(value: Any) -> Any:
-    if isinstance(value, dict):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_jsonable(v) for v in value]
-    if hasattr(value, "tolist"):
-        return value.tolist()
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value

@@ -17,10 +17,10 @@ from typing import TYPE_CHECKING, Any
 
 from budget.analysis.families import attach_grouped, family_counts, family_table
 from budget.analysis.measured import analyze_measured
-from budget.analysis.result import BudgetResult, ReadoutSummary, circuit_fields
+from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary, circuit_fields
 from budget.analysis.twirl import twirled_circuit
-from budget.engines.door import choose, choose_engine, escalate, first_order_shares
-from budget.engines.door import run_in_range
+from budget.engines.details import Choice
+from budget.engines.door import choose_engine, run_in_range, run_one
 from budget.circuit.ir import StructuredCircuit
 from budget.circuit.load import load_circuit
 from budget.engines.base import MEASURED_METRICS, METRICS, parse_observable
@@ -125,28 +125,19 @@ def analyze_noisy(
         return dataclasses.replace(result, warnings=tuple(notes) + result.warnings)
 
     options = {"truncate": truncate} if truncate is not None else None
-    choice = choose(noisy, metric, engine, options=options)
-    chosen = choice.engine
-    outcome, switched = run_in_range(noisy, metric, chosen, engine, observables=tuple(observables))
-    if (better := escalate(noisy, metric, engine, outcome)) is not None:
-        switched = (*switched, f"auto: the {outcome.engine} engine's result rested on a cancellation; the exact engine ran instead")
-        outcome = better.run(noisy, metric, observables=tuple(observables))
-    warnings = list(notes) + list(switched) + list(outcome.warnings)
-    if engine == "auto" and outcome.engine == "pauli":
-        warnings.insert(0, f"auto: not every gate is Clifford and dense engines cannot hold this {noisy.num_qubits}-qubit "
-                        "circuit or would be slower, so the sparse Pauli engine ran (first order, truncation bound stated)")
+    ran = run_one(noisy, metric, engine, observables=tuple(observables), options=options)
+    outcome = ran.result
+    warnings = list(notes) + list(ran.notes) + list(outcome.warnings)
     shares = dict(outcome.shares)
-    shares_known = True
-    if not shares:
-        shares, note = first_order_shares(noisy, metric, outcome.infidelity, exclude=outcome.engine)
-        if note:
-            warnings.append(note)
-            shares_known = False
+    shares_known = bool(shares) or not outcome.infidelity > 0
+    if not shares_known:
+        warnings.append(f"family shares unavailable: the {outcome.engine} engine gave none for this circuit")
     naive = naive_infidelity(noisy)
     twirled = None
     if compare_twirled:
         tw = twirled_circuit(noisy)
-        tw_result, _ = run_in_range(tw, metric, choose_engine(tw, metric, engine, brief=True, options=options), engine)
+        tw_result, _ = run_in_range(tw, metric, choose_engine(tw, metric, engine, brief=True, options=options), engine,
+                                    brief=True)
         if tw_result.beyond_range is None:
             twirled = tw_result.infidelity
         else:
@@ -168,14 +159,13 @@ def analyze_noisy(
         naive_infidelity=float(naive),
         actual_infidelity=float(outcome.infidelity),
         first_order=outcome.first_order,
-        truncation_bound=float(outcome.details.get("truncation_bound", 0.0)),
+        truncation_bound=float(truncation.truncation_bound or 0.0) if (truncation := outcome.details.truncation) else 0.0,
         families=families,
         readout=ReadoutSummary.from_errors(noisy.readout_error, noisy.qubits),
         warnings=tuple(dict.fromkeys(warnings)),
         observables=observed,
         twirled_infidelity=twirled,
-        details={**outcome.details, "engine_choice": choice.reason if outcome.engine == chosen.name else
-                 f"{choice.reason}; then {outcome.engine} (the warnings say why)"},
+        details=outcome.details.with_records(Choice(ran.reason)),
         beyond_range=outcome.beyond_range,
         shares_known=shares_known,
     )

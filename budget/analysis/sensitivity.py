@@ -36,27 +36,22 @@ from dataclasses import dataclass
 import numpy as np
 
 from budget.analysis.measured_form import detector_quadratic_form
-from budget.engines.door import choose
+from budget.engines.door import choose, measured_engine
 from budget.engines.base import QuadraticForm
 from budget.errors.noisy import NoisyCircuit
 from budget.problems import InputError
 
-FORM_ENGINES = ("clifford", "generators", "pauli")
-"""Engines that build the quadratic form, in the order ``"auto"`` tries them (clifford first: any
-size when every gate is Clifford; pauli last: any gate, any size, sparse)."""
-
-
 def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto", detector: int | None = None) -> QuadraticForm:
     """The quadratic form e ≈ δᵀAδ + s of a noisy circuit, from the engine auto's rule picks among
-    FORM_ENGINES (:func:`budget.engines.door.choose`), or the one named.
+    the engines that build quadratic forms (:func:`budget.engines.door.choose` with
+    ``needs="quadratic_form"``), or the one named.
 
     Raises:
         TooLargeError: no engine that builds quadratic forms fits, or fits in time (one line).
-        InputError: ``engine`` is not one of ``"auto"`` and :data:`FORM_ENGINES`.
+        InputError: ``engine`` names an engine that builds no quadratic form.
     """
     if metric == "detectors":
-        if engine not in ("auto", "exact", "clifford"):
-            raise InputError(f"engine = {engine!r}: the detectors metric's form comes from exact or clifford (or auto)")
+        measured_engine("detectors", engine, None, what="the detectors metric's form")
         return detector_quadratic_form(circuit, engine=engine, detector=detector)
     if metric == "record":
         raise InputError("metric = 'record': tolerances and cost need a quadratic form e ≈ δᵀAδ + s, which the "
@@ -64,9 +59,7 @@ def quadratic_form(circuit: NoisyCircuit, metric: str, *, engine: str = "auto", 
                          "or analyze and depth for the record metric")
     if detector is not None:
         raise InputError(f"detector = {detector!r}: a target on one detector needs the detectors metric")
-    if engine != "auto" and engine not in FORM_ENGINES:
-        raise InputError(f"engine = {engine!r}: quadratic forms come from {', '.join(FORM_ENGINES)} (or auto)")
-    return choose(circuit, metric, engine, order=FORM_ENGINES).engine.quadratic_form(circuit, metric)
+    return choose(circuit, metric, engine, needs="quadratic_form").engine.quadratic_form(circuit, metric)
 
 
 def knob_key(label: tuple[str, str]) -> str:

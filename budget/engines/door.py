@@ -1,4 +1,4 @@
-"""Choosing an engine (``auto``), the one place where refusals are worded, and family shares.
+"""Choosing an engine (``auto``), the one place where refusals are worded, and the runs around the choice.
 
 ``auto`` weighs accuracy and estimated run time (design.md §4). AUTO_ORDER lists the engines from
 the most accurate: ``exact`` (to rounding), ``clifford`` (first order, resummed; Clifford gates
@@ -13,15 +13,20 @@ refusal is one line (size, limit, what would fit or what to change); the engines
 reasons are short, and the limits are explained in docs/methods.md ("Engine reach").
 
 A new engine takes part by being listed in AUTO_ORDER at its accuracy rank and, ideally, by
-providing ``estimate_seconds(circuit, metric)``."""
+providing ``estimate_seconds(circuit, metric)``.
+
+Nothing outside budget/engines/ picks an engine by name or order: the analysis layer calls
+:func:`choose` (with ``needs=`` a capability of :data:`budget.engines.base.CAPABILITIES`, or
+``repeats_folded=True`` for depth curves), :func:`run_one` (the main job: choice, range and
+cancellation checks, one number), :func:`sweep_engine` (a depth curve in closed form),
+:func:`exact_if_fits`, and :func:`quicker` / :func:`next_engine` (the closed loop's time plan)."""
 
 from __future__ import annotations
 
 from dataclasses import dataclass
 
-from budget.engines.base import Engine, EngineResult
-from budget.engines.base import DEFAULT_ESTIMATE_S
-from budget.errors.noisy import NoisyCircuit
+from budget.engines.base import CAPABILITIES, DEFAULT_ESTIMATE_S, Engine, EngineResult
+from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.circuit.ir import item_kind
 from budget.problems import InputError, TooLargeError, place
 from budget.engines.clifford import CliffordEngine
@@ -85,14 +90,37 @@ class Choice:
     estimate_s: float
 
 
+def estimates(engine: Engine) -> bool:
+    """Whether ``engine`` estimates its run time: its declared capability; an object written to
+    the earlier duck-typed protocol (not an :class:`Engine`) by having the method."""
+    if isinstance(engine, Engine):
+        return engine.supports("estimate_seconds")
+    return callable(getattr(engine, "estimate_seconds", None))
+
+
 def estimate_seconds(engine: Engine, circuit: NoisyCircuit, metric: str) -> float:
     """The engine's own estimate, or DEFAULT_ESTIMATE_S when it gives none."""
-    estimate = getattr(engine, "estimate_seconds", None)
-    return DEFAULT_ESTIMATE_S if estimate is None else float(estimate(circuit, metric))
+    if not estimates(engine):
+        return DEFAULT_ESTIMATE_S
+    return float(engine.estimate_seconds(circuit, metric))
 
 
 def _estimated(engine: Engine, t: float) -> str:
-    return f" (estimated {_seconds(t)})" if hasattr(engine, "estimate_seconds") else ""
+    return f" (estimated {_seconds(t)})" if estimates(engine) else ""
+
+
+def _order(needs: str | None, repeats_folded: bool) -> tuple[str, ...]:
+    """AUTO_ORDER restricted to the engines with capability ``needs`` and, with
+    ``repeats_folded``, to those whose cost does not grow with the repeat count."""
+    out = []
+    for name in AUTO_ORDER:
+        engine = get_engine(name)
+        if needs is not None and not engine.supports(needs):
+            continue
+        if repeats_folded and not engine.folds_repeats:
+            continue
+        out.append(name)
+    return tuple(out)
 
 
 def _seconds(t: float) -> str:
@@ -104,17 +132,19 @@ def _size(circuit: NoisyCircuit, metric: str) -> str:
 
 
 def choose(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: bool = False,
-           order: tuple[str, ...] = AUTO_ORDER, options: dict | None = None) -> Choice:
-    """The engine to run: ``name`` itself (checked to fit), or auto's choice among ``order``
-    (see the module docstring); ``brief``: its :meth:`~budget.engines.base.Engine.brief` variant;
-    ``options``: settings passed to the engine's ``configure`` when it has one (e.g.
-    ``{"truncate": 1e-8}`` for the pauli engine), ignored by engines without it.
+           needs: str | None = None, repeats_folded: bool = False, options: dict | None = None) -> Choice:
+    """The engine to run: ``name`` itself (checked to fit), or auto's choice among the engines of
+    AUTO_ORDER that have the capability ``needs`` (and, with ``repeats_folded``, fold repeats;
+    see the module docstring); ``brief``: its :meth:`~budget.engines.base.Engine.brief` variant
+    (estimated as such); ``options``: settings passed to the engine's ``configure`` (e.g.
+    ``{"truncate": 1e-8}`` for the pauli engine; engines ignore settings they lack).
 
     Raises:
-        InputError: unknown or unavailable engine name.
-        TooLargeError: the named engine, or every engine of ``order``, cannot take the circuit
+        InputError: unknown engine name, or a named engine without the capability ``needs``.
+        TooLargeError: the named engine, or every engine of the order, cannot take the circuit
             (one line: size, limit, what would fit or what to change).
     """
+    order = _order(needs, repeats_folded)
     if metric in GATE_METRICS and circuit.has_mid_circuit:
         item = circuit.first_mid_circuit().item
         raise InputError(
@@ -125,6 +155,9 @@ def choose(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: boo
         if name not in ENGINE_NAMES:
             raise InputError(f"engine = {name!r}: expected auto or one of {', '.join(ENGINE_NAMES)}")
         engine = get_engine(name)
+        if needs is not None and not engine.supports(needs):
+            raise InputError(f"engine = {name!r}: {CAPABILITIES[needs]} come from {', '.join(order)} (or auto)")
+        engine = engine.brief() if brief else engine
         reason = engine.fits(circuit, metric)
         if reason is not None:
             fitting = [c for c in order if c != name and get_engine(c).fits(circuit, metric) is None]
@@ -132,11 +165,11 @@ def choose(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: boo
                     else _other_metric(circuit, metric, order))
             raise TooLargeError(f"{_size(circuit, metric)}: engine {name}: {reason}{hint}")
         t = estimate_seconds(engine, circuit, metric)
-        return Choice(_configured(engine.brief() if brief else engine, options), f"{name}, as asked{_estimated(engine, t)}", t)
+        return Choice(engine.configure(**options) if options else engine, f"{name}, as asked{_estimated(engine, t)}", t)
     fitting: list[tuple[str, Engine, float]] = []
     refused: dict[str, str] = {}
     for candidate in order:
-        engine = get_engine(candidate)
+        engine = get_engine(candidate).brief() if brief else get_engine(candidate)
         reason = engine.fits(circuit, metric) or _dense_is_slower(candidate, circuit, metric)
         if reason is None:
             fitting.append((candidate, engine, estimate_seconds(engine, circuit, metric)))
@@ -171,7 +204,7 @@ def choose(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: boo
         why += f"; {', '.join(more_accurate)} does not fit"
     else:
         why += ", the most accurate engine that fits"
-    return Choice(_configured(engine.brief() if brief else engine, options), why, t)
+    return Choice(engine.configure(**options) if options else engine, why, t)
 
 
 def _other_metric(circuit: NoisyCircuit, metric: str, order: tuple[str, ...]) -> str:
@@ -203,50 +236,13 @@ def escalate(circuit: NoisyCircuit, metric: str, requested: str, outcome: Engine
     """For ``auto``: the exact engine, when a first-order engine's result rests on a cancellation
     (``details["rests_on_cancellation"]``, budget/engines/orders.py) and the exact engine
     fits and is estimated within MAX_SECONDS; else None. The caller runs it and says so."""
-    if requested != "auto" or outcome.engine == "exact" or not outcome.details.get("rests_on_cancellation"):
+    if requested != "auto" or outcome.engine == "exact" or not outcome.details.rests_on_cancellation:
         return None
     exact = get_engine("exact")
     if exact.fits(circuit, metric) is not None or estimate_seconds(exact, circuit, metric) > MAX_SECONDS:
         return None
     return exact
 
-
-def _configured(engine: Engine, options: dict | None) -> Engine:
-    if options and hasattr(engine, "configure"):
-        return engine.configure(**options)
-    return engine
-
-
-def first_order_shares(
-    circuit: NoisyCircuit, metric: str, total: float, *, exclude: str
-) -> tuple[dict[str, float], str | None]:
-    """Family shares from a first-order engine, rescaled so they add up to ``total``.
-
-    The split between families comes from the leading-order decomposition (coherent amplitudes
-    per family, cross terms included); its overall size is set to the engine's actual value.
-    Returns the shares and a note when no first-order engine fits or the one that fits is beyond
-    its range (then no shares: a split of that engine would be a number outside its meaning);
-    nothing to split (and no note) when ``total`` is zero.
-    """
-    if not total > 0:
-        return {}, None
-    for candidate in ("generators", "clifford"):
-        if candidate == exclude:
-            continue
-        engine = get_engine(candidate)
-        if engine.fits(circuit, metric) is not None:
-            continue
-        if estimate_seconds(engine, circuit, metric) > MAX_SECONDS:
-            continue
-        fo = engine.brief().run(circuit, metric)
-        if fo.beyond_range is not None:
-            return {}, (f"family shares left out: the {candidate} engine that splits the total is beyond its "
-                        f"range here ({fo.beyond_range})")
-        s = sum(fo.shares.values())
-        if s > 0:
-            return {k: v * total / s for k, v in fo.shares.items()}, None
-        return dict(fo.shares), None
-    return {}, "family shares unavailable: no first-order engine fits this circuit within the time limit"
 
 # --- Keeping answers inside their engine's range (``auto`` only) ---------------------------------
 # The first-order engines say when their approximation no longer holds (EngineResult.beyond_range).
@@ -258,8 +254,9 @@ def first_order_shares(
 
 
 def run_in_range(circuit: NoisyCircuit, metric: str, chosen: Engine, requested: str, *,
-                 observables: tuple[str, ...] = ()) -> tuple[EngineResult, tuple[str, ...]]:
-    """Run ``chosen``; with ``requested == "auto"`` and a result beyond range, try the other engines.
+                 observables: tuple[str, ...] = (), brief: bool = False) -> tuple[EngineResult, tuple[str, ...]]:
+    """Run ``chosen``; with ``requested == "auto"`` and a result beyond range, try the other engines
+    (their brief variants with ``brief``).
 
     Returns the result used and notes saying which engine was left and why.
     """
@@ -267,7 +264,7 @@ def run_in_range(circuit: NoisyCircuit, metric: str, chosen: Engine, requested: 
     if outcome.beyond_range is None or requested != "auto" or chosen.name not in AUTO_ORDER:
         return outcome, ()
     for name in (n for n in AUTO_ORDER if n != chosen.name):
-        other = get_engine(name)
+        other = get_engine(name).brief() if brief else get_engine(name)
         if other.fits(circuit, metric) is not None or estimate_seconds(other, circuit, metric) > MAX_SECONDS:
             continue
         candidate = other.run(circuit, metric, observables=observables)
@@ -276,3 +273,128 @@ def run_in_range(circuit: NoisyCircuit, metric: str, chosen: Engine, requested: 
                     f"auto used the {name} engine, which is within its range")
             return candidate, (note,)
     return outcome, ()
+
+
+# --- Entry points of the analysis layer -----------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """The main job's one number: the result used, the choice line (``reason``), and notes on
+    any switch (beyond range, cancellation) in plain words."""
+
+    result: EngineResult
+    reason: str
+    notes: tuple[str, ...]
+
+
+def run_one(circuit: NoisyCircuit, metric: str, requested: str = "auto", *, observables: tuple[str, ...] = (),
+            options: dict | None = None) -> Outcome:
+    """Choose (:func:`choose`), run, keep the answer in range (:func:`run_in_range`) and, for
+    ``auto``, let the exact engine answer where a first-order result rests on a cancellation
+    (:func:`escalate`). One engine gives the number and its family shares; another runs only
+    when the first one's answer is not kept, and a note says why."""
+    choice = choose(circuit, metric, requested, options=options)
+    outcome, switched = run_in_range(circuit, metric, choice.engine, requested, observables=observables)
+    if (better := escalate(circuit, metric, requested, outcome)) is not None:
+        switched = (*switched, f"auto: the {outcome.engine} engine's result rested on a cancellation; the exact engine ran instead")
+        outcome = better.run(circuit, metric, observables=observables)
+    notes = list(switched)
+    if requested == "auto" and outcome.engine == "pauli":
+        notes.insert(0, f"auto: not every gate is Clifford and dense engines cannot hold this {circuit.num_qubits}-qubit "
+                     "circuit or would be slower, so the sparse Pauli engine ran (first order, truncation bound stated)")
+    reason = choice.reason if outcome.engine == choice.engine.name else f"{choice.reason}; then {outcome.engine} (the warnings say why)"
+    return Outcome(outcome, reason, tuple(notes))
+
+
+def sweep_engine(block: NoisyCircuit, metric: str, requested: str) -> Engine | None:
+    """The engine whose closed-form repeat sweep (capability ``repeat_sweep``) gives a depth
+    curve of the cycle ``block``, or None: ``requested`` is auto or an engine with the capability;
+    the most accurate such engine of AUTO_ORDER that fits the cycle run twice; two runs' worth of
+    its time is checked against MAX_SECONDS (:func:`check_time`, a refusal beyond it)."""
+    names = _order("repeat_sweep", False)
+    if requested != "auto" and requested not in names:
+        return None
+    repeated = NoisyCircuit(block.qubits, (NoisyRepeat(block.body, 2),), dict(block.readout_error), block.source)
+    for name in names if requested == "auto" else (requested,):
+        engine = get_engine(name).brief()
+        if engine.fits(repeated, metric) is None:
+            check_time(block, metric, engine, runs=2, what="the depth curve (closed form)")
+            return engine
+    return None
+
+
+def exact_if_fits(circuit: NoisyCircuit, metric: str) -> Engine | None:
+    """The exact engine's brief variant when it fits ``circuit``, else None (depth curves switch
+    to it where a first-order curve leaves its range)."""
+    exact = get_engine("exact").brief()
+    return exact if exact.fits(circuit, metric) is None else None
+
+
+def next_engine(engine: Engine, circuit: NoisyCircuit, metric: str) -> Engine | None:
+    """The next engine after ``engine`` in AUTO_ORDER that fits (brief variant), or None."""
+    for other in _later(engine, circuit, metric):
+        return other
+    return None
+
+
+def _later(engine: Engine, circuit: NoisyCircuit, metric: str):
+    if engine.name not in AUTO_ORDER:
+        return
+    for name in AUTO_ORDER[AUTO_ORDER.index(engine.name) + 1:]:
+        other = get_engine(name).brief()
+        if other.fits(circuit, metric) is None:
+            yield other
+
+
+def quicker(first: Engine, circuit: NoisyCircuit, metric: str, seconds: float) -> tuple[Engine, str | None]:
+    """``first``, or the next engine of AUTO_ORDER whose estimated run time is within ``seconds``
+    (engines without an estimate count as quick); the quickest when none is. Returns the engine
+    and a note when it is not ``first``. Engines without an estimate of their own are kept
+    (the caller times their first run, :func:`next_engine`)."""
+    if not estimates(first):
+        return first, None
+    first_time = estimate_seconds(first, circuit, metric)
+    if first_time <= seconds:
+        return first, None
+    best, best_time = first, first_time
+    for other in _later(first, circuit, metric):
+        guess = estimate_seconds(other, circuit, metric) if estimates(other) else 0.0
+        if guess < best_time:
+            best, best_time = other, guess
+        if guess <= seconds:
+            break
+    if best is first:
+        return first, None
+    return best, (f"one {first.name} run would take about {first_time:.2g} s, too slow for the loop; it used "
+                  f"the {best.name} engine")
+
+
+# --- Circuits with mid-circuit measurement (``detectors`` and ``record`` metrics) ------------------
+MEASURED_ORDER = ("exact", "clifford")
+"""Engines of the measured metrics, most accurate first: the exact engine's branches over recorded
+bits (budget/engines/exact/branches.py) and the clifford engine's Pauli frames
+(budget/engines/clifford/frames.py); the record metric has only the first."""
+
+
+def measured_engine(metric: str, requested: str, exact_reason: str | None, *, what: str | None = None) -> str:
+    """``"exact"`` or ``"clifford"`` for a measured metric: the named one, or under ``auto`` the exact
+    engine when it fits (``exact_reason`` is None), else the clifford engine. ``what``: the thing
+    computed, for the refusal wording (default: the metric).
+
+    Raises:
+        InputError: an engine that does not compute the measured metrics (or the clifford engine
+            for the record metric).
+        TooLargeError: the exact engine, named, does not fit (the line says what would).
+    """
+    names = MEASURED_ORDER if metric != "record" else MEASURED_ORDER[:1]
+    subject = what or f"the {metric} metric"
+    if requested != "auto" and requested not in names:
+        if metric == "record":
+            raise InputError(f"engine = {requested!r}: the record metric runs on the exact engine")
+        raise InputError(f"engine = {requested!r}: {subject} runs on the {' or '.join(names)} engine")
+    if requested == "exact" and exact_reason is not None and metric != "record":
+        raise TooLargeError(f"engine exact: {exact_reason}; the clifford engine fits (first order, errors twirled)")
+    if requested == "exact" or (requested == "auto" and exact_reason is None):
+        return "exact"
+    return names[-1]

@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import math
 
+from budget.engines.details import Validity
 from budget.errors.noisy import NoisyCircuit
 
 SECOND_ORDER_SHARE = 0.1
@@ -83,12 +84,12 @@ def cancellation_note(share: float, cancellation: float, *, engine: str, all_ord
     return head + f"the {engine} engine includes the second order but not the third: trust the exact engine where it fits"
 
 
-def validity_details(share: float, cancellation: float, norm_first_rad: float, norm_second_rad: float) -> dict:
-    """The validity numbers as reported in ``EngineResult.details``."""
-    return {
-        "cancellation": cancellation,
-        "second_order_share": share,
-        "first_order_norm_rad": norm_first_rad,
-        "second_order_norm_rad": norm_second_rad,
-        "rests_on_cancellation": share > SECOND_ORDER_SHARE,
-    }
+def validity_details(share: float, cancellation: float, norm_first_rad: float, norm_second_rad: float | None) -> Validity:
+    """The validity record of ``EngineResult.details`` (None: the second-order norm is not known)."""
+    return Validity(
+        cancellation=cancellation,
+        second_order_share=share,
+        first_order_norm_rad=norm_first_rad,
+        second_order_norm_rad=norm_second_rad,
+        rests_on_cancellation=share > SECOND_ORDER_SHARE,
+    )

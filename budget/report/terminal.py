@@ -86,8 +86,9 @@ def families_table(result: BudgetResult, *, width: int = 24) -> Table:
 
 
 def drilldown_table(result: BudgetResult, *, rows: int = 8) -> Table | None:
-    """The operations that contribute most (engines that report them put them in details)."""
-    top = result.details.get("top_operations")
+    """The operations that contribute most (when the result carries a drill-down record)."""
+    drill = result.details.drilldown
+    top = drill.top_operations if drill is not None else None
     if not top:
         return None
     t = Table(title="top operations", caption="first-order share of each operation", title_justify="left", caption_justify="left")
@@ -97,21 +98,24 @@ def drilldown_table(result: BudgetResult, *, rows: int = 8) -> Table | None:
     t.add_column("share", justify="right")
     for row in top[:rows]:
         t.add_row(
-            str(row.get("gate", row.get("family", ""))),
-            ",".join(row.get("qubits", ())),
-            "" if row.get("line") is None else str(row["line"]),
-            fmt(row.get("first_order_share")),
+            row.gate or row.family,
+            ",".join(row.qubits),
+            "" if row.line is None else str(row.line),
+            fmt(row.first_order_share),
         )
     return t
 
 
 def qubit_map_table(result: BudgetResult, *, rows: int = 12) -> Table | Text | None:
     """Where the error lands, per qubit (when the engine reports it)."""
-    qmap = result.details.get("qubit_map")
+    landing = result.details.landing
+    if landing is None:
+        return None
+    qmap = landing.qubit_map
     if not qmap:
-        skipped = result.details.get("qubit_map_skipped")
+        skipped = landing.qubit_map_skipped
         return Text(f"per-qubit map skipped: {skipped}", style="dim") if skipped else None
-    what = result.details.get("qubit_map_quantity", "error per qubit")
+    what = landing.qubit_map_quantity or "error per qubit"
     ranked = sorted(qmap.items(), key=lambda kv: -kv[1])
     peak = ranked[0][1] or 1.0
     t = Table(title="where the error lands", caption=what, title_justify="left", caption_justify="left")
@@ -133,8 +137,9 @@ def render_budget(result: BudgetResult) -> Group:
         f"  ·  {result.cycles:,} cycle(s)" if result.cycles != 1 else "",
     )
     parts: list = [head, Text(""), summary_table(result), verdict_text(result)]
-    if result.details.get("engine_choice"):
-        parts.append(Text(f"engine: {result.details['engine_choice']}", style="dim"))
+    choice = result.details.choice
+    if choice is not None and choice.engine_choice:
+        parts.append(Text(f"engine: {choice.engine_choice}", style="dim"))
     if result.metric == "state":
         parts.append(Text(
             "note: the fidelity product uses process fidelities, as a spreadsheet would; for the "

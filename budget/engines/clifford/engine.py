@@ -23,6 +23,7 @@ resummed coherent part 1 - Π cos²|A_g| plus the first-order stochastic part, a
 from __future__ import annotations
 
 import dataclasses
+from dataclasses import replace
 
 import numpy as np
 
@@ -43,7 +44,8 @@ from budget.engines.orders import (
     validity_details,
 )
 from budget.engines.frame.walk import MAX_UNROLLED, ORBIT_BABY, Walker
-from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
+from budget.engines.base import METRICS, Engine, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
+from budget.engines.details import Details, Drilldown, FoldedBlock, Folding, OperationShare, Parts, QubitMap, Validity
 from budget.errors.knobs import knob_grouping
 from budget.errors.light_cone import light_cone_circuit
 from budget.errors.noisy import NoisyCircuit
@@ -80,7 +82,7 @@ def _has_relaxation(circuit: NoisyCircuit) -> bool:
     )
 
 
-class CliffordEngine:
+class CliffordEngine(Engine):
     """Pauli-frame engine (see module docstring).
 
     Args:
@@ -97,6 +99,7 @@ class CliffordEngine:
     """
 
     name = "clifford"
+    capabilities = frozenset({"observables", "quadratic_form"})
 
     def __init__(
         self,
@@ -236,7 +239,7 @@ class CliffordEngine:
         sources, sink, walker = self._pass(circuit, metric, plans)
         budget = aggregate(sink, len(sources.families), state=metric == "state")
         first_walk, first_sources = (sink, walker), sources
-        validity, warnings = {}, []
+        validity, warnings = Validity(), []
         first = budget
         why_not = self._wants_second(circuit, budget, sink, walker)
         if why_not is None:
@@ -244,7 +247,7 @@ class CliffordEngine:
                 sources, sink2, walker = self._pass(circuit, metric, plans, second=True, orbits=bool(walker.orbit_records))
             except TooCostly:
                 sink2 = None
-                validity["second_order"] = f"not formed (more than {PAIR_BUDGET:.0e} pair operations)"
+                validity = replace(validity, second_order=f"not formed (more than {PAIR_BUDGET:.0e} pair operations)")
                 if budget.coherent < 0.1 * term_square_sum(circuit):
                     warnings.append(
                         "the first-order error terms largely cancel and their second-order (commutator) "
@@ -256,20 +259,20 @@ class CliffordEngine:
                 share = second_order_share(budget.coherent_resummed, first.coherent_resummed)
                 sizes = term_norm_sum(circuit)
                 cancellation = float(np.sqrt(first.coherent)) / sizes if sizes > 0 else 1.0
-                validity.update(validity_details(share, cancellation, float(np.sqrt(first.coherent)), float("nan")))
-                validity["coherent_without_second_order"] = first.coherent_resummed + 0.0
-                validity.pop("second_order_norm_rad")
+                validity = replace(validity_details(share, cancellation, float(np.sqrt(first.coherent)), None),
+                                   second_order=validity.second_order,
+                                   coherent_without_second_order=first.coherent_resummed + 0.0)
                 if note := cancellation_note(share, cancellation, engine=self.name):
                     warnings.append(note)
                 if metric == "state" and (note := self._hidden_note(sink2, budget, cancellation)):
                     warnings.append(note)
-                    validity["rests_on_cancellation"] = True
+                    validity = replace(validity, rests_on_cancellation=True)
                 if walker.orbit_records:
-                    validity["second_order"] = ORBIT_SECOND + "".join(f"; {n}" for n in walker.cycle_notes)
+                    validity = replace(validity, second_order=ORBIT_SECOND + "".join(f"; {n}" for n in walker.cycle_notes))
                     if cancellation < 0.1:
                         warnings.append(f"the first-order error terms largely cancel and {ORBIT_SECOND}: the result may be too small")
         elif self.second_order:
-            validity["second_order"] = why_not.rstrip("!")
+            validity = replace(validity, second_order=why_not.rstrip("!"))
             if why_not.endswith("!"):
                 warnings.append(
                     "the first-order error terms largely cancel, but the second-order (commutator) terms "
@@ -278,7 +281,7 @@ class CliffordEngine:
                 )
         losses: list = []  # (qubits, infidelity) of each error component, when every order was summed
         if self.second_order and not walker.orbit_records:
-            budget, losses = self._all_orders(circuit, metric, plans, budget, first_walk[0], validity, warnings)
+            budget, losses, validity = self._all_orders(circuit, metric, plans, budget, first_walk[0], validity, warnings)
         warnings += list(walker.warnings)
         fo, total = first.first_order, budget.total
         shares = _by_family(sources, budget.shares)
@@ -295,25 +298,27 @@ class CliffordEngine:
             )
         if metric == "state" and _has_relaxation(circuit):
             warnings.append(TWIRL_NOTE)
-        details = _details(first, first_sources, walker, self.top) | validity
-        details["coherent_exponentiated"] = budget.coherent_resummed + 0.0
-        details.setdefault("coherent_leading_order", budget.coherent)
+        details = _details(first, first_sources, walker, self.top, budget).with_records(validity)
         sink, walker = first_walk
         emitted = sink.terms_emitted + sink.rates_emitted
         for rec in walker.orbit_records:  # the landing walk enumerates what the orbit search skipped
             walks = min(rec["count"], rec["longest_orbit"] or self.max_unrolled)
             emitted += rec["terms_per_repetition"] * max(0, walks - rec["baby_steps"])
         cost = emitted * circuit.num_qubits
-        details.update(self._qubit_map(circuit, cost, sink.builder, plans))
-        if "qubit_map" in details and metric == "process" and validity.get("rests_on_cancellation") and losses:
-            details["qubit_map"] = {name: 0.0 for name in circuit.qubits}  # the first-order map shows the cancelled order
+        qubit_map = self._qubit_map(circuit, cost, sink.builder, plans)
+        if qubit_map.qubit_map is not None and metric == "process" and validity.rests_on_cancellation and losses:
+            landed = {name: 0.0 for name in circuit.qubits}  # the first-order map shows the cancelled order
             for qubits, loss in losses:
                 for q in qubits:
-                    details["qubit_map"][circuit.qubits[q]] += loss / len(qubits)
-            details["qubit_map_quantity"] = (
-                "coherent process infidelity of the error component on each qubit, all orders "
-                "(a component of k qubits split evenly)"
+                    landed[circuit.qubits[q]] += loss / len(qubits)
+            qubit_map = QubitMap(
+                qubit_map=landed,
+                qubit_map_quantity=(
+                    "coherent process infidelity of the error component on each qubit, all orders "
+                    "(a component of k qubits split evenly)"
+                ),
             )
+        details = details.with_records(qubit_map)
         obs = self.observable_errors(circuit, tuple(observables), _plans=plans) if observables else {}
         if observables and _has_relaxation(circuit):
             warnings.append("observables: T1/T2 relaxation enters through its Pauli twirl (first order)")
@@ -329,7 +334,7 @@ class CliffordEngine:
             beyond_range=beyond,
         )
 
-    def _all_orders(self, circuit, metric, plans, budget: Budget, first_sink: GroupSink, validity: dict, warnings: list) -> tuple[Budget, list]:
+    def _all_orders(self, circuit, metric, plans, budget: Budget, first_sink: GroupSink, validity: Validity, warnings: list) -> tuple[Budget, list, Validity]:
         """The coherent part to all orders where every component of the error touches at most
         MAX_SUPPORT_QUBITS qubits (budget/engines/clifford/allorders.py), with the (qubits,
         infidelity) of each component; otherwise ``budget`` as it is and no components.
@@ -344,18 +349,15 @@ class CliffordEngine:
             walker.run(circuit.body)
             exact = sink.infidelity(metric)
         except OutOfReach as why:
-            validity["coherent_order"] = f"second (all orders out of reach: {why})"
-            return budget, []
+            return budget, [], replace(validity, coherent_order=f"second (all orders out of reach: {why})")
         how = f"components of at most {sink.largest} qubit{'s' if sink.largest != 1 else ''}"
-        validity["coherent_order"] = f"all orders ({how})"
-        validity["coherent_second_order_resummed"] = budget.coherent_resummed + 0.0
-        validity["coherent_leading_order"] = budget.coherent
+        validity = replace(validity, coherent_order=f"all orders ({how})",
+                           coherent_second_order_resummed=budget.coherent_resummed + 0.0)
         warnings[:] = [w for w in warnings if "third order" not in w and "commutator" not in w]
-        if "second_order_share" in validity:  # now the share of every order beyond the first
-            share = second_order_share(exact, validity["coherent_without_second_order"])
-            validity["second_order_share"] = share
-            validity["rests_on_cancellation"] = share > SECOND_ORDER_SHARE
-            if note := cancellation_note(share, validity["cancellation"], engine=self.name, all_orders=how):
+        if validity.second_order_share is not None:  # now the share of every order beyond the first
+            share = second_order_share(exact, validity.coherent_without_second_order)
+            validity = replace(validity, second_order_share=share, rests_on_cancellation=share > SECOND_ORDER_SHARE)
+            if note := cancellation_note(share, validity.cancellation, engine=self.name, all_orders=how):
                 warnings.append(note)
         lead = budget.coherent
         if 0.5 * exact <= lead <= 2.0 * exact:
@@ -366,23 +368,23 @@ class CliffordEngine:
             shares = sizes * (lead / sizes.sum()) if sizes.sum() > 0 else np.zeros_like(sizes)
             if lead <= 0:
                 shares, lead = sizes, float(sizes.sum())
-        return dataclasses.replace(budget, coherent=lead, coherent_shares=shares, coherent_resummed=exact), sink.losses
+        return dataclasses.replace(budget, coherent=lead, coherent_shares=shares, coherent_resummed=exact), sink.losses, validity
 
-    def _qubit_map(self, circuit: NoisyCircuit, cost: float, builder: TermBuilder, plans: dict) -> dict:
+    def _qubit_map(self, circuit: NoisyCircuit, cost: float, builder: TermBuilder, plans: dict) -> QubitMap:
         if not self.qubit_map:
-            return {}
+            return QubitMap()
         if self.qubit_map != "always" and cost > LANDING_BUDGET:
-            return {
-                "qubit_map_skipped": f"it needs about {cost:.2g} bit operations (default limit {LANDING_BUDGET:.2g}; "
+            return QubitMap(
+                qubit_map_skipped=f"it needs about {cost:.2g} bit operations (default limit {LANDING_BUDGET:.2g}; "
                 "from Python, CliffordEngine(qubit_map='always') computes it)"
-            }
+            )
         sink = LandingSink(builder)
         Walker(circuit.num_qubits, "push", sink, max_unrolled=self.max_unrolled, plans=plans).run(circuit.body)
         land = sink.landing(circuit.num_qubits)
-        return {
-            "qubit_map": {name: float(v) for name, v in zip(circuit.qubits, land)},
-            "qubit_map_quantity": "first-order marginal process infidelity per qubit at the output",
-        }
+        return QubitMap(
+            qubit_map={name: float(v) for name, v in zip(circuit.qubits, land)},
+            qubit_map_quantity="first-order marginal process infidelity per qubit at the output",
+        )
 
     def observable_error(self, circuit: NoisyCircuit, label: str, *, prune: bool | None = None) -> float:
         """First-order change <O>_actual - <O>_ideal of the Pauli observable ``label``."""
@@ -488,24 +490,27 @@ class CliffordEngine:
         )
 
 
-def _details(b: Budget, sources: Sources, walker: Walker, top: int) -> dict:
+def _details(b: Budget, sources: Sources, walker: Walker, top: int, final: Budget) -> Details:
+    """Records of the first-order pass ``b`` (the exponentiated and leading-order coherent parts
+    from ``final``, the pass with the second order where it was formed)."""
     shares = b.first_order_shares
     order = np.argsort(-np.abs(shares))[:top]
     blocks: dict[tuple, int] = {}
     for count, period in walker.periods:
         blocks[(count, period)] = blocks.get((count, period), 0) + 1
-    return {
-        "coherent_first_order": b.coherent,
-        "coherent_exponentiated": b.coherent_resummed + 0.0,
-        "stochastic_first_order": b.stochastic,
-        "coherent_groups": b.groups,
-        "max_group_amplitude_rad": b.max_amplitude,
-        "folded_blocks": [{"count": c, "period": p, "walks": w} for (c, p), w in blocks.items()],
-        "layers_walked": walker.layers_walked,
-        "orbit_folds": walker.orbit_records,
-        "first_order_family_shares": _by_family(sources, shares),
-        "top_operations": [dict(sources.info[i], first_order_share=float(shares[i])) for i in order if shares[i]],
-    }
+    return Details(
+        parts=Parts(coherent_first_order=b.coherent, coherent_exponentiated=final.coherent_resummed + 0.0,
+                    coherent_leading_order=final.coherent, stochastic_first_order=b.stochastic,
+                    coherent_groups=b.groups, max_group_amplitude_rad=b.max_amplitude),
+        folding=Folding(folded_blocks=tuple(FoldedBlock(c, p, w) for (c, p), w in blocks.items()),
+                        layers_walked=walker.layers_walked, orbit_folds=tuple(walker.orbit_records)),
+        drilldown=Drilldown(
+            first_order_family_shares=_by_family(sources, shares),
+            top_operations=tuple(OperationShare(sources.info[i]["family"], sources.info[i]["gate"],
+                                                tuple(sources.info[i]["qubits"]), sources.info[i]["line"],
+                                                float(shares[i])) for i in order if shares[i]),
+        ),
+    )
 
 
 def _by_family(sources: Sources, shares: np.ndarray) -> dict[str, float]:

@@ -21,7 +21,8 @@ matrices on at most two qubits are multiplied together before they touch the reg
 either unrolled or replaced by its block matrix to the power N (:mod:`budget.engines.exact.power`:
 Schur form for unitaries, eigendecomposition or squaring for channels), whichever is cheaper, so
 N = 10^9 costs what N = 2 costs. The metrics are read out by :mod:`budget.engines.exact.readout`.
-Shares are left to the analysis layer.
+Family shares come from one more run per family with that family's errors alone, scaled to the
+joint value (:mod:`budget.engines.exact.split`); :meth:`ExactEngine.brief` skips them.
 """
 
 from __future__ import annotations
@@ -42,7 +43,9 @@ from budget.engines.exact.plan import REPEAT_MODES, make_plan, refusal
 from budget.engines.exact.power import channel_power, unitary_power
 from budget.engines.exact.readout import expectation, from_pauli, infidelity
 from budget.engines.exact.register import Fuser, Register
-from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, EngineResult, Metric, parse_observable, zero_result
+from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, Engine, EngineResult, Metric, parse_observable, zero_result
+from budget.engines.details import DenseRun, Details, FamilySplit
+from budget.engines.exact.split import SHARE_METHOD, error_families, only_family, scaled_shares
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
 from budget.memo import ObjectKey
 from budget.problems import TooLargeError
@@ -133,20 +136,24 @@ def _content_key(nop: NoisyOperation) -> tuple:
     )
 
 
-class ExactEngine:
+class ExactEngine(Engine):
     """Dense exact simulation; reach limits in budget/engines/exact/plan.py.
 
     Args:
         repeats: ``"auto"`` (default) takes the cheaper of unrolling a repeated block and raising
             its block matrix to the power N; ``"power"`` and ``"unroll"`` force one (for checks).
+        split: fill the family shares (one more run per family with errors,
+            :mod:`budget.engines.exact.split`); False leaves them empty (:meth:`brief`).
     """
 
     name = "exact"
+    capabilities = frozenset({"estimate_seconds", "observables"})
 
-    def __init__(self, repeats: str = "auto") -> None:
+    def __init__(self, repeats: str = "auto", *, split: bool = True) -> None:
         if repeats not in REPEAT_MODES:
             raise ValueError(f"repeats = {repeats!r}: expected one of {', '.join(REPEAT_MODES)}")
         self.repeats = repeats
+        self.split = split
 
     def fits(self, circuit: NoisyCircuit, metric: Metric) -> str | None:
         """None when the circuit fits, else the reason (qubits, limit, memory, engines that fit)."""
@@ -157,12 +164,18 @@ class ExactEngine:
         return refusal(circuit, metric, make_plan(circuit, metric, self.repeats))
 
     def estimate_seconds(self, circuit: NoisyCircuit, metric: Metric) -> float:
-        """Estimated run time: the plan's multiply-adds (:func:`make_plan`) at MULTIPLY_ADDS_PER_S."""
-        return make_plan(circuit, metric, self.repeats).work / MULTIPLY_ADDS_PER_S
+        """Estimated run time: the plan's multiply-adds (:func:`make_plan`) at MULTIPLY_ADDS_PER_S,
+        with the family-split runs when they will run (two families or more)."""
+        work = make_plan(circuit, metric, self.repeats).work
+        families = error_families(circuit) if self.split else ()
+        if len(families) > 1:
+            one = self._split_engine()
+            work += sum(make_plan(only_family(circuit, f), metric, one.repeats).work for f in families)
+        return work / MULTIPLY_ADDS_PER_S
 
     def brief(self) -> "ExactEngine":
-        """This engine (it has no optional extras to skip)."""
-        return self
+        """This engine without the family split (shares left empty): one run."""
+        return ExactEngine(self.repeats, split=False)
 
     def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
         """The metric, exactly (to rounding), and signed observable errors <O>_actual - <O>_ideal
@@ -202,15 +215,36 @@ class ExactEngine:
         warnings = ()
         if any(r.count > 10**6 for r in _repeats(circuit.body)):
             warnings = ("repeat counts above 10^6: phases of the block power carry ~N·1e-16 rad of rounding",)
+        total = float(np.clip(value, 0.0, 1.0))
+        details = Details(dense=DenseRun(form=plan.form, repeat_methods=",".join(methods) or "none", raw_infidelity=value))
+        shares: dict[str, float] = {}
+        if self.split:
+            shares, split = self._shares(circuit, metric, total)
+            details = details.with_records(split)
         return EngineResult(
             engine=self.name,
             metric=metric,
-            infidelity=float(np.clip(value, 0.0, 1.0)),
-            shares={},
+            infidelity=total,
+            shares=shares,
             warnings=warnings,
-            details={"form": plan.form, "repeat_methods": ",".join(methods) or "none", "raw_infidelity": value},
+            details=details,
             observable_errors=obs,
         )
+
+    def _split_engine(self) -> "ExactEngine":
+        """The engine of the family-split runs: no split of its own, and in ``auto`` mode the
+        cheaper of unrolling and a block power by the plan's estimate (the main run prefers a cheap
+        block power so that its time does not depend on N; the split runs need only the value)."""
+        return ExactEngine("cheapest" if self.repeats == "auto" else self.repeats, split=False)
+
+    def _shares(self, circuit: NoisyCircuit, metric: Metric, total: float) -> tuple[dict[str, float], FamilySplit]:
+        """Family shares by isolation (:mod:`budget.engines.exact.split`) and their record."""
+        families = error_families(circuit)
+        if len(families) == 1:
+            return {families[0]: total}, FamilySplit(SHARE_METHOD, 0, total)
+        one = self._split_engine()
+        isolated = {f: one.run(only_family(circuit, f), metric).infidelity for f in families}
+        return scaled_shares(isolated, total), FamilySplit(SHARE_METHOD, len(families), sum(isolated.values()))
 
     @staticmethod
     def _propagate(runner: _Runner, circuit: NoisyCircuit, s: int, operator: bool) -> np.ndarray:

@@ -117,13 +117,13 @@ class _Costs:
             self.powered.setdefault(ObjectKey(rep), False)
             return unroll
         power = self.items(rep.body, dim) + _DECOMPOSITION * dim**3 + dim * dim * columns
-        use = power < unroll or power <= CHEAP_POWER_WORK or self.mode == "power"
+        use = power < unroll or (self.mode == "auto" and power <= CHEAP_POWER_WORK) or self.mode == "power"
         self.powered[ObjectKey(rep)] = self.powered.get(ObjectKey(rep), False) or use
         self.uses_power |= use
         return min(unroll, power)
 
 
-REPEAT_MODES = ("auto", "power", "unroll")
+REPEAT_MODES = ("auto", "power", "unroll", "cheapest")
 
 
 def make_plan(circuit: NoisyCircuit, metric: str, repeats: str = "auto") -> Plan:
@@ -131,7 +131,8 @@ def make_plan(circuit: NoisyCircuit, metric: str, repeats: str = "auto") -> Plan
 
     ``repeats``: ``"auto"`` takes the cheaper of unrolling and the block power for each repeated
     block, and the block power whenever it is cheap in absolute terms (CHEAP_POWER_WORK); ``"power"`` takes the power whenever the block matrix is at most POWER_MAX_DIM wide;
-    ``"unroll"`` never takes it (tests and benchmarks compare the two).
+    ``"unroll"`` never takes it (tests and benchmarks compare the two); ``"cheapest"`` takes the
+    cheaper estimate only (the exact engine's family-split runs, budget/engines/exact/split.py).
     """
     if repeats not in REPEAT_MODES:
         raise ValueError(f"repeats = {repeats!r}: expected one of {', '.join(REPEAT_MODES)}")

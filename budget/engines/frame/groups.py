@@ -24,6 +24,7 @@ import scipy.sparse
 from budget.engines.frame.rows import group_rows
 from budget.engines.frame.sinks import GroupSink
 from budget.engines.base import EngineResult
+from budget.engines.details import Details
 
 SMALL = 0.1
 """First-order infidelity above which the engines warn that the expansion is no longer small."""
@@ -83,7 +84,7 @@ def size_warning(b: "Budget") -> list[str]:
     ]
 
 
-def budget_result(name: str, metric: str, b: "Budget", shares: dict, warnings: list[str], details: dict, observables: dict) -> EngineResult:
+def budget_result(name: str, metric: str, b: "Budget", shares: dict, warnings: list[str], details: Details, observables: dict) -> EngineResult:
     """The :class:`EngineResult` of a resummed first-order budget (clifford and pauli engines);
     beyond range when the resummed coherent part plus the incoherent sum exceeds 1."""
     beyond = None

@@ -51,6 +51,9 @@ from budget.engines.matrices.periodic import CycleBasis, cross_cycle_sum, cycle_
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 from budget.memo import ObjectKey
 
+MAX_DENSE_QUBITS = 11
+"""Dense d x d matrices (process metric, repeated blocks, observables with incoherent errors)."""
+
 ContentOf = Callable[[NoisyLayer], LayerContent]
 
 

@@ -31,7 +31,7 @@ import numpy as np
 
 from budget.engines.matrices.apply import as_rows
 from budget.engines.matrices.channels import by_family, content_cache
-from budget.engines.generators.dense import DensePropagator
+from budget.engines.generators.dense import MAX_DENSE_QUBITS, DensePropagator
 from budget.engines.generators.jumps import StateJumps
 from budget.engines.generators.krylov import expm_apply
 from budget.engines.generators.observables import IncoherentObservables, observable_vector
@@ -44,16 +44,15 @@ from budget.engines.orders import (
     term_square_by_family,
     validity_details,
 )
-from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
+from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, Engine, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
+from budget.engines.details import Details, Parts
 from budget.engines.exact.engine import ExactEngine
-from budget.engines.generators.depth import DepthCurve, depth_curve
+from budget.engines.generators.depth import RepeatSweep
 from budget.engines.matrices.periodic import coherent_infidelity
 from budget.errors.knobs import knob_grouping
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.problems import TooLargeError
 
-MAX_DENSE_QUBITS = 11
-"""Dense d x d matrices (process metric, repeated blocks, observables with incoherent errors)."""
 MAX_STATE_QUBITS = 16
 """State vectors only (state metric, no repeated block)."""
 NORM_LIMIT_RAD = 0.3
@@ -117,10 +116,11 @@ def range_note(stochastic: float, coherent: float) -> str | None:
             f"{total:.3g}, {total:.3g}x the largest possible infidelity")
 
 
-class GeneratorsEngine:
+class GeneratorsEngine(Engine):
     """First-order error generators; see the module docstring for the exact definitions."""
 
     name = "generators"
+    capabilities = frozenset({"estimate_seconds", "observables", "quadratic_form", "repeat_sweep"})
 
     def __init__(self, *, second_order: bool = True) -> None:
         """``second_order``: form the effective generator beyond first order (second order, and
@@ -202,16 +202,12 @@ class GeneratorsEngine:
         if raw and abs(raw - total) > 1e-15:
             shares = {f: v * total / raw for f, v in shares.items()}  # only when clipped
         warnings = self._warnings(circuit, metric, coh.norm_rad, stoch_total, jumps.approximations)
-        details = {
-            "coherent_exponentiated": coh.exact,
-            "coherent_first_order": coh.first,
-            "stochastic_first_order": stoch_total,
-            "hamiltonian_norm_rad": coh.norm_rad,
-        }
+        details = Details(parts=Parts(coherent_exponentiated=coh.exact, coherent_first_order=coh.first,
+                                      stochastic_first_order=stoch_total, hamiltonian_norm_rad=coh.norm_rad))
         if coh.second_share is not None:
             sizes = term_norm_sum(circuit)
             cancellation = coh.first_norm / sizes if sizes > 0 else 1.0
-            details.update(validity_details(coh.second_share, cancellation, coh.first_norm, coh.second_norm))
+            details = details.with_records(validity_details(coh.second_share, cancellation, coh.first_norm, coh.second_norm))
             if note := cancellation_note(coh.second_share, cancellation, engine=self.name, all_orders=coh.all_orders):
                 warnings.insert(0, note)
         elif coh.exact > 0 and self.second_order:
@@ -349,10 +345,19 @@ class GeneratorsEngine:
             out[label] = float(err)
         return out, inc.approximations
 
-    def depth_curve(self, circuit: NoisyCircuit, metric: Metric, counts: Sequence[int]) -> DepthCurve:
-        """Infidelity of ``circuit`` repeated N times for every N in ``counts`` at once
-        (:func:`budget.engines.generators.depth.depth_curve`)."""
-        return depth_curve(circuit, metric, counts)
+    def repeat_sweep(self, circuit: NoisyCircuit, metric: Metric) -> RepeatSweep:
+        """``circuit`` used as a cycle: the engine's value for N cycles, for any N, from one
+        propagation of the cycle (:class:`budget.engines.generators.depth.RepeatSweep`); values
+        beyond the engine's range (:func:`range_note`) are marked. TooLargeError when the
+        repeated circuit does not fit."""
+        reason = self.fits(NoisyCircuit(circuit.qubits, (NoisyRepeat(circuit.body, 2),)), metric)
+        if reason is not None:
+            raise TooLargeError(f"{circuit.source}: depth curve with the generators engine: {reason}")
+        return RepeatSweep(circuit, metric, range_note)
+
+    def depth_curve(self, circuit: NoisyCircuit, metric: Metric, counts: Sequence[int]):
+        """The values of :meth:`repeat_sweep` at every N in ``counts`` at once."""
+        return self.repeat_sweep(circuit, metric).values(counts)
 
     def quadratic_form(self, circuit: NoisyCircuit, metric: Metric) -> QuadraticForm:
         """e ≈ δᵀAδ + floor in the coherent knobs, from the propagated unit generators.

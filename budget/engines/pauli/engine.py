@@ -27,7 +27,8 @@ import numpy as np
 
 from budget.engines.matrices.channels import by_family
 from budget.engines.frame.groups import budget_result, size_warning
-from budget.engines.base import METRICS, EngineResult, Metric, QuadraticForm, parse_observable
+from budget.engines.base import METRICS, Engine, EngineResult, Metric, QuadraticForm, parse_observable
+from budget.engines.details import Details, Drilldown, Folding, Parts, Truncation
 from budget.engines.pauli._plan import PlanBook
 from budget.engines.pauli._readout import coherent_budget, first_order_bound, group_amplitudes, jump_costs, zero_readout
 from budget.engines.pauli._sweep import OutOfTime, Sweep, TooManyTerms
@@ -96,7 +97,7 @@ def _kappa_total(book: PlanBook, circuit: NoisyCircuit) -> float:
     return float(sum(m * book(layer).kappa for layer, m in circuit.multiplicities()))
 
 
-class PauliEngine:
+class PauliEngine(Engine):
     """Sparse Pauli propagation engine (see module docstring).
 
     Args:
@@ -107,6 +108,8 @@ class PauliEngine:
     """
 
     name = "pauli"
+    capabilities = frozenset({"observables", "quadratic_form"})
+    folds_repeats = False  # non-Clifford repeats are walked cycle by cycle (a fixed point ends them early)
 
     def __init__(self, *, truncate: float | None = None, target: float = TARGET, time_budget_s: float = TIME_BUDGET_S):
         if truncate is not None and not (truncate >= 0 and np.isfinite(truncate)):
@@ -200,21 +203,16 @@ class PauliEngine:
         b = result.budget
         shares = {f: float(v) for f, v in zip(result.families, b.shares)}
         warnings = list(notes) + size_warning(b)
-        details = {
-            "coherent_first_order": b.coherent,
-            "coherent_exponentiated": b.coherent_resummed,
-            "stochastic_first_order": b.stochastic,
-            "coherent_groups": b.groups,
-            "max_group_amplitude_rad": b.max_amplitude,
-            "truncation_bound": result.bound,
-            "truncation_bound_jumps": result.jump_bound,
-            "truncate": result.eps,
-            "pauli_terms_max": result.terms_max,
-            "repeated_blocks": result.blocks,
-            "first_order_family_shares": {f: float(v) for f, v in zip(result.families, b.first_order_shares)},
-        }
-        if result.observable_bounds:
-            details["observable_truncation_bounds"] = result.observable_bounds
+        details = Details(
+            parts=Parts(coherent_first_order=b.coherent, coherent_exponentiated=b.coherent_resummed,
+                        stochastic_first_order=b.stochastic, coherent_groups=b.groups,
+                        max_group_amplitude_rad=b.max_amplitude),
+            truncation=Truncation(truncation_bound=result.bound, truncation_bound_jumps=result.jump_bound,
+                                  truncate=result.eps, pauli_terms_max=result.terms_max,
+                                  observable_truncation_bounds=result.observable_bounds or None),
+            folding=Folding(repeated_blocks=tuple(result.blocks)),
+            drilldown=Drilldown(first_order_family_shares={f: float(v) for f, v in zip(result.families, b.first_order_shares)}),
+        )
         return budget_result(self.name, metric, b, shares, warnings, details, result.observables)
 
     def _first(self, circuit: NoisyCircuit, metric: str, observables: tuple[str, ...], eps: float) -> PassResult:
