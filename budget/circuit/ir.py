@@ -10,7 +10,8 @@ A circuit is a sequence of *items*, each of one explicit kind:
 - :class:`IfBlock`: items run only when named classical bits hold a value (feed-forward).
 
 Repetition is kept, never unrolled: ``count`` may be 10**9. Code that walks items must name every
-kind it supports and refuse the others (:func:`item_kind` gives the kind's name for messages);
+kind it supports and refuse the others: each class names its kind (``kind``, a
+:class:`budget.circuit.walk.Kind`) and walkers go through :mod:`budget.circuit.walk`;
 :attr:`StructuredCircuit.has_mid_circuit` tells whether the last three kinds occur at all.
 
 Matrices follow cirq's convention: the first qubit of an operation is the most significant bit.
@@ -19,11 +20,12 @@ Matrices follow cirq's convention: the first qubit of an operation is the most s
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Iterator, Union
+from typing import ClassVar, Iterator, Union
 
 import numpy as np
 
 from budget.circuit.gates import ideal_unitary
+from budget.circuit.walk import Kind, counted, first_mid_circuit, item_kind, kind_of, unrolled, unsupported_item
 
 
 @dataclass(frozen=True)
@@ -70,6 +72,8 @@ class Operation:
 class Layer:
     """Operations that run at the same time; no two share a qubit."""
 
+    kind: ClassVar[Kind] = Kind.LAYER
+
     operations: tuple[Operation, ...]
 
     def __post_init__(self) -> None:
@@ -84,6 +88,8 @@ class Layer:
 @dataclass(frozen=True)
 class Repeat:
     """A block of items run ``count`` times in a row (count >= 1)."""
+
+    kind: ClassVar[Kind] = Kind.REPEAT
 
     body: tuple["Item", ...]
     count: int
@@ -105,6 +111,8 @@ class Measure:
     record in execution order (within an item, in the order of ``qubits``).
     """
 
+    kind: ClassVar[Kind] = Kind.MEASURE
+
     qubits: tuple[int, ...]
     bits: tuple[str, ...]
     line: int | None = field(default=None, compare=False)
@@ -119,6 +127,8 @@ class Measure:
 @dataclass(frozen=True)
 class Reset:
     """Reset of ``qubits`` to |0> (a measurement whose outcome is used to flip the qubit back)."""
+
+    kind: ClassVar[Kind] = Kind.RESET
 
     qubits: tuple[int, ...]
     line: int | None = field(default=None, compare=False)
@@ -135,6 +145,8 @@ class IfBlock:
     The integer read from the bits is Σ_k bit_k 2^k (``bits[0]`` least significant, as OpenQASM
     reads ``c == 5`` for a register c); each bit holds the latest outcome written to it (0 if none).
     """
+
+    kind: ClassVar[Kind] = Kind.IF
 
     bits: tuple[str, ...]
     value: int
@@ -153,18 +165,6 @@ Item = Union[Layer, Repeat, Measure, Reset, IfBlock]
 
 MID_CIRCUIT_KINDS = (Measure, Reset, IfBlock)
 """Item kinds that only the measurement-aware metrics (detectors, record) support."""
-
-
-def item_kind(item: object) -> str:
-    """A short name of an item's kind, for messages (``"measurement"``, ``"reset"``, ...)."""
-    return {Layer: "layer", Repeat: "repeat", Measure: "measurement", Reset: "reset", IfBlock: "if block"}.get(
-        type(item), type(item).__name__
-    )
-
-
-def unsupported_item(item: object, where: str) -> TypeError:
-    """The error a walker raises for an item kind it does not handle."""
-    return TypeError(f"{where}: circuit item of kind {item_kind(item)} is not supported here")
 
 
 @dataclass(frozen=True)
@@ -196,11 +196,11 @@ class StructuredCircuit:
     @property
     def has_mid_circuit(self) -> bool:
         """True when a measurement, reset or if block is an item of the circuit (at any depth)."""
-        return _first_mid(self.body) is not None
+        return first_mid_circuit(self.body) is not None
 
     def mid_circuit_reason(self) -> str | None:
         """None for a gate-only circuit, else a one-line reason naming the first such item."""
-        it = _first_mid(self.body)
+        it = first_mid_circuit(self.body)
         if it is None:
             return None
         line = f" (line {it.line})" if it.line else ""
@@ -214,7 +214,10 @@ class StructuredCircuit:
 
     def iter_layers(self) -> Iterator[Layer]:
         """Every executed layer in order, repeats unrolled. Only for small circuits and tests."""
-        yield from _iter(self.body)
+        for it in unrolled(self.body, where="iter_layers"):
+            if it.kind is not Kind.LAYER:
+                raise unsupported_item(it, "iter_layers (gate layers only)")
+            yield it
 
     def unrolled(self) -> "StructuredCircuit":
         """The same circuit with every repeat unrolled (tests and small circuits only)."""
@@ -222,61 +225,24 @@ class StructuredCircuit:
 
     def distinct_operations(self) -> list[Operation]:
         """Every operation that appears in the text of the circuit (each once per place)."""
-        out: list[Operation] = []
-
-        def walk(items: tuple[Item, ...]) -> None:
-            for it in items:
-                if isinstance(it, Layer):
-                    out.extend(it.operations)
-                elif isinstance(it, Repeat):
-                    walk(it.body)
-                elif isinstance(it, IfBlock):
-                    walk(it.then)
-                    walk(it.orelse)
-                elif not isinstance(it, (Measure, Reset)):
-                    raise unsupported_item(it, "distinct_operations")
-
-        walk(self.body)
-        return out
-
-
-def _first_mid(items: tuple[Item, ...]) -> "Measure | Reset | IfBlock | None":
-    for it in items:
-        if isinstance(it, MID_CIRCUIT_KINDS):
-            return it
-        if isinstance(it, Repeat):
-            found = _first_mid(it.body)
-            if found is not None:
-                return found
-    return None
+        where = "distinct_operations"
+        return [op for it, _ in counted(self.body, where=where) if it.kind is Kind.LAYER for op in it.operations]
 
 
 def _counts(items: tuple[Item, ...]) -> tuple[int, int]:
     """(operations, layers) executed; an if block counts its larger branch (an upper bound)."""
     ops = layers = 0
     for it in items:
-        if isinstance(it, Layer):
+        kind = kind_of(it, "executed_counts")
+        if kind is Kind.LAYER:
             ops += len(it.operations)
             layers += 1
-        elif isinstance(it, Repeat):
+        elif kind is Kind.REPEAT:
             o, l = _counts(it.body)
             ops += o * it.count
             layers += l * it.count
-        elif isinstance(it, IfBlock):
+        elif kind is Kind.IF:
             ops_layers = max(_counts(it.then), _counts(it.orelse))
             ops += ops_layers[0]
             layers += ops_layers[1]
-        elif not isinstance(it, (Measure, Reset)):
-            raise unsupported_item(it, "executed_counts")
     return ops, layers
-
-
-def _iter(items: tuple[Item, ...]) -> Iterator[Layer]:
-    for it in items:
-        if isinstance(it, Layer):
-            yield it
-        elif isinstance(it, Repeat):
-            for _ in range(it.count):
-                yield from _iter(it.body)
-        else:
-            raise unsupported_item(it, "iter_layers (gate layers only)")

@@ -16,11 +16,12 @@ Conventions: matrices in gate order, first qubit most significant (cirq's conven
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Iterator, Union
+from typing import ClassVar, Iterator, Union
 
 import numpy as np
 
-from budget.circuit.ir import IfBlock, Measure, Operation, Reset, item_kind
+from budget.circuit.ir import IfBlock, Measure, Operation, Reset
+from budget.circuit.walk import Kind, first_mid_circuit, item_kind, kind_of, layers, unrolled, unsupported_item
 
 IDLE = "idle"
 """Family name of idle relaxation."""
@@ -127,6 +128,8 @@ class NoisyLayer:
     columns and random compiling skip it.
     """
 
+    kind: ClassVar[Kind] = Kind.LAYER
+
     operations: tuple[NoisyOperation, ...]
     idle: tuple[Relaxation, ...]
     duration_ns: float
@@ -138,6 +141,10 @@ class NoisyLayer:
 
 @dataclass(frozen=True)
 class NoisyRepeat:
+    """A block of noisy items run ``count`` times in a row (kept folded)."""
+
+    kind: ClassVar[Kind] = Kind.REPEAT
+
     body: tuple["NoisyItem", ...]
     count: int
 
@@ -158,6 +165,8 @@ class NoisyMeasure:
         duration_ns: the longest measurement duration among the qubits.
     """
 
+    kind: ClassVar[Kind] = Kind.MEASURE
+
     item: Measure
     family: str
     readout_error: tuple[float, ...]
@@ -173,6 +182,8 @@ class NoisyReset:
     """A reset item with its errors: each qubit ends in |1> with ``reset_error`` (same order as
     ``item.qubits``), else in |0>; every other qubit idles for ``duration_ns``."""
 
+    kind: ClassVar[Kind] = Kind.RESET
+
     item: Reset
     family: str
     reset_error: tuple[float, ...]
@@ -186,6 +197,8 @@ class NoisyReset:
 @dataclass(frozen=True)
 class NoisyIf:
     """A classically controlled block: ``then`` runs when ``item.bits`` hold ``item.value``."""
+
+    kind: ClassVar[Kind] = Kind.IF
 
     item: IfBlock
     then: tuple["NoisyItem", ...]
@@ -234,7 +247,7 @@ class NoisyCircuit:
 
     @property
     def has_repeats(self) -> bool:
-        return any(isinstance(it, NoisyRepeat) for it in self.body)
+        return any(kind_of(it) is Kind.REPEAT for it in self.body)
 
     @property
     def has_mid_circuit(self) -> bool:
@@ -252,18 +265,7 @@ class NoisyCircuit:
 
     def first_mid_circuit(self) -> "NoisyMeasure | NoisyReset | NoisyIf | None":
         """The first measurement, reset or if item in program order, or None."""
-
-        def first(items) -> NoisyMeasure | NoisyReset | NoisyIf | None:
-            for it in items:
-                if isinstance(it, NOISY_MID_CIRCUIT):
-                    return it
-                if isinstance(it, NoisyRepeat):
-                    found = first(it.body)
-                    if found is not None:
-                        return found
-            return None
-
-        return first(self.body)
+        return first_mid_circuit(self.body)
 
     @property
     def has_errors(self) -> bool:
@@ -277,50 +279,16 @@ class NoisyCircuit:
 
     def distinct_layers(self) -> list[NoisyLayer]:
         """Every layer as written (once per place in the text, repeats not unrolled)."""
-        out: list[NoisyLayer] = []
-
-        def walk(items: tuple[NoisyItem, ...]) -> None:
-            for it in items:
-                if isinstance(it, NoisyLayer):
-                    out.append(it)
-                elif isinstance(it, NoisyRepeat):
-                    walk(it.body)
-                elif isinstance(it, NoisyIf):
-                    walk(it.then)
-                    walk(it.orelse)
-
-        walk(self.body)
-        return out
+        return [layer for layer, _ in layers(self.body, where="distinct_layers")]
 
     def iter_layers(self) -> Iterator[NoisyLayer]:
         """Every executed layer, repeats unrolled (tests and small circuits only)."""
-
-        def walk(items: tuple[NoisyItem, ...]) -> Iterator[NoisyLayer]:
-            for it in items:
-                if isinstance(it, NoisyLayer):
-                    yield it
-                elif isinstance(it, NoisyRepeat):
-                    for _ in range(it.count):
-                        yield from walk(it.body)
-                else:
-                    raise TypeError(f"iter_layers: {self.mid_circuit_reason()}")
-
-        yield from walk(self.body)
+        for it in unrolled(self.body, where="iter_layers"):
+            if it.kind is not Kind.LAYER:
+                raise unsupported_item(it, f"iter_layers: {self.mid_circuit_reason()}")
+            yield it
 
     def multiplicities(self) -> list[tuple[NoisyLayer, int]]:
         """Each distinct layer with the number of times it executes (Python int, exact); the
         layers of an if block count as if both branches ran (an upper bound)."""
-        out: list[tuple[NoisyLayer, int]] = []
-
-        def walk(items: tuple[NoisyItem, ...], mult: int) -> None:
-            for it in items:
-                if isinstance(it, NoisyLayer):
-                    out.append((it, mult))
-                elif isinstance(it, NoisyRepeat):
-                    walk(it.body, mult * it.count)
-                elif isinstance(it, NoisyIf):
-                    walk(it.then, mult)
-                    walk(it.orelse, mult)
-
-        walk(self.body, 1)
-        return out
+        return list(layers(self.body, where="multiplicities"))

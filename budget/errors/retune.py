@@ -22,8 +22,9 @@ from typing import Mapping
 
 import numpy as np
 
+from budget.circuit.walk import Kind, gate_kind
 from budget.errors.knobs import PLAIN_KNOB, coherent_error, knob_grouping
-from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat
+from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyOperation, NoisyRepeat
 from budget.errors.params import GateParams
 from budget.memo import ObjectKey
 from budget.pauli_algebra import pauli_unitary
@@ -99,7 +100,7 @@ def with_knob_values(circuit: NoisyCircuit, values: Mapping[tuple[str, str], flo
         out = []
         for it in body:
             if ObjectKey(it) not in items:
-                if isinstance(it, NoisyLayer):
+                if gate_kind(it, "retune") is Kind.LAYER:
                     items[ObjectKey(it)] = dataclasses.replace(it, operations=tuple(operation(n) for n in it.operations))
                 else:
                     items[ObjectKey(it)] = NoisyRepeat(walk(it.body), it.count)

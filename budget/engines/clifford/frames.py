@@ -24,9 +24,10 @@ from dataclasses import dataclass
 import numpy as np
 import stim
 
+from budget.circuit.walk import Kind, counted, kind_of
 from budget.engines.clifford.stim_circuit import to_stim
 from budget.errors.fidelity import error_channel_kraus
-from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyMeasure, NoisyReset
+from budget.errors.noisy import IDLE, NoisyCircuit
 from budget.memo import ObjectKey
 from budget.pauli_algebra import channel_twirl, pauli_labels
 
@@ -57,7 +58,8 @@ class _Noise:
         return self.families is None or family in self.families
 
     def __call__(self, out, item) -> None:
-        if isinstance(item, NoisyLayer):
+        kind = kind_of(item, "measured frames (noise)")
+        if kind is Kind.LAYER:
             for nop in item.operations:
                 if not self.wants(nop.family) or not (nop.has_coherent or nop.has_incoherent):
                     continue
@@ -67,11 +69,11 @@ class _Noise:
                 probs = self.cache[key]
                 name = "PAULI_CHANNEL_1" if len(nop.qubits) == 1 else "PAULI_CHANNEL_2"
                 out.append(name, list(nop.qubits), [probs[lab] for lab in pauli_labels(len(nop.qubits))[1:]])
-        if isinstance(item, (NoisyLayer, NoisyMeasure, NoisyReset)) and self.wants(IDLE):
+        if kind in (Kind.LAYER, Kind.MEASURE, Kind.RESET) and self.wants(IDLE):
             for r in item.idle:
                 if not r.is_trivial:
                     out.append("PAULI_CHANNEL_1", [r.qubit], list(r.pauli_twirl()))
-        if isinstance(item, NoisyReset) and self.wants(item.family):
+        if kind is Kind.RESET and self.wants(item.family):
             for q, e in zip(item.item.qubits, item.reset_error):
                 if e:
                     out.append("X_ERROR", [q], [e])
@@ -80,22 +82,17 @@ class _Noise:
 def families_of(circuit: NoisyCircuit) -> list[str]:
     out: list[str] = []
 
-    def walk(items) -> None:
-        for it in items:
-            if isinstance(it, NoisyLayer):
-                out.extend(n.family for n in it.operations if n.has_coherent or n.has_incoherent)
-                if any(not r.is_trivial for r in it.idle):
-                    out.append(IDLE)
-            elif isinstance(it, (NoisyMeasure, NoisyReset)):
-                errs = it.readout_error if isinstance(it, NoisyMeasure) else it.reset_error
-                if any(errs):
-                    out.append(it.family)
-                if any(not r.is_trivial for r in it.idle):
-                    out.append(IDLE)
-            for sub in (getattr(it, "body", ()), getattr(it, "then", ()), getattr(it, "orelse", ())):
-                walk(sub)
-
-    walk(circuit.body)
+    for it, _ in counted(circuit.body, where="families_of"):
+        if it.kind is Kind.LAYER:
+            out.extend(n.family for n in it.operations if n.has_coherent or n.has_incoherent)
+            if any(not r.is_trivial for r in it.idle):
+                out.append(IDLE)
+        elif it.kind in (Kind.MEASURE, Kind.RESET):
+            errs = it.readout_error if it.kind is Kind.MEASURE else it.reset_error
+            if any(errs):
+                out.append(it.family)
+            if any(not r.is_trivial for r in it.idle):
+                out.append(IDLE)
     return list(dict.fromkeys(out))
 
 

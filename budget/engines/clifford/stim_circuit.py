@@ -20,8 +20,9 @@ from typing import Callable
 import numpy as np
 import stim
 
-from budget.circuit.ir import IfBlock, Measure, Operation, Repeat, StructuredCircuit, item_kind
-from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
+from budget.circuit.ir import Operation, StructuredCircuit, item_kind
+from budget.circuit.walk import Kind, counted, kind_of
+from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyMeasure
 from budget.memo import ObjectKey
 from budget.problems import InputError, place
 
@@ -83,14 +84,15 @@ def record_qubits(circuit: NoisyCircuit | StructuredCircuit) -> list[int]:
 
     def walk(items) -> None:
         for it in items:
-            inner = getattr(it, "item", it)
-            if isinstance(inner, Measure):
+            kind = kind_of(it, "record_qubits")
+            inner = getattr(it, "item", it)  # the ideal item of a noisy one
+            if kind is Kind.MEASURE:
                 out.extend(inner.qubits)
-            elif isinstance(it, (Repeat, NoisyRepeat)):
+            elif kind is Kind.REPEAT:
                 mark = len(out)
                 walk(it.body)
                 out.extend(out[mark:] * (it.count - 1))
-            elif isinstance(inner, IfBlock) and _measures(it):
+            elif kind is Kind.IF and _measures(it):
                 raise InputError(f"{place(circuit.source, inner.line)}: a measurement inside an if block: the "
                                  "measurement record would depend on the branch taken (not supported)")
 
@@ -99,11 +101,8 @@ def record_qubits(circuit: NoisyCircuit | StructuredCircuit) -> list[int]:
 
 
 def _measures(it) -> bool:
-    inner = getattr(it, "item", it)
-    if isinstance(inner, Measure):
-        return True
-    branches = (it.then, it.orelse) if hasattr(it, "then") else ((it.body,) if hasattr(it, "body") else ())
-    return any(_measures(x) for b in branches for x in b)
+    """Whether ``it`` is or holds a measurement."""
+    return any(x.kind is Kind.MEASURE for x, _ in counted((it,), where="record_qubits"))
 
 
 class _Writer:
@@ -132,12 +131,13 @@ class _Writer:
         """Write items; ``written``: bit -> record index of its latest write; ``count``: [records so
         far]; ``start``: record index where the current iteration of the innermost repeat began."""
         for it in items:
-            if isinstance(it, NoisyLayer):
+            kind = kind_of(it, "stabilizer path")
+            if kind is Kind.LAYER:
                 for nop in it.operations:
                     self.op(out, nop.op)
                 if self.noise is not None:
                     self.noise(out, it)
-            elif isinstance(it, NoisyMeasure):
+            elif kind is Kind.MEASURE:
                 if self.noise is not None:
                     self.noise(out, it)
                 if self.readout is not None and self.readout(it):
@@ -148,11 +148,11 @@ class _Writer:
                 for b in it.item.bits:
                     written[b] = count[0]
                     count[0] += 1
-            elif isinstance(it, NoisyReset):
+            elif kind is Kind.RESET:
                 out.append("R", list(it.item.qubits))
                 if self.noise is not None:
                     self.noise(out, it)
-            elif isinstance(it, NoisyRepeat):
+            elif kind is Kind.REPEAT:
                 first = count[0]
                 inner = dict(written)
                 body = Text()
@@ -168,11 +168,8 @@ class _Writer:
                 for b, i in inner.items():
                     if i >= first:
                         written[b] = i + (it.count - 1) * per
-            elif isinstance(it, NoisyIf):
+            else:  # Kind.IF
                 self.feed_forward(out, it, written, count[0], start)
-            else:
-                inner = getattr(it, "item", it)
-                raise self.fail(getattr(inner, "line", None), f"{item_kind(inner)} is not supported by the stabilizer path")
 
     def feed_forward(self, out: Text, noisy: NoisyIf, written: dict[str, int], now: int, start: int) -> None:
         """Pauli feed-forward on one bit (errors of the gates under the if are not modelled here)."""
@@ -202,7 +199,7 @@ class _Writer:
     def paulis(self, items, line) -> dict[int, str]:
         out: dict[int, str] = {}
         for it in items:
-            if not isinstance(it, NoisyLayer):
+            if kind_of(it, "stabilizer path") is not Kind.LAYER:
                 inner = getattr(it, "item", it)
                 raise self.fail(line, f"a {item_kind(inner)} inside an if block: the stabilizer path supports Pauli gates there")
             for op in (nop.op for nop in it.operations):

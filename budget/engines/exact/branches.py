@@ -25,8 +25,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from budget.circuit.walk import Kind, counted, kind_of
 from budget.errors.fidelity import error_channel_kraus
-from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
+from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer
 from budget.memo import ObjectKey
 
 MAX_QUBITS = 10
@@ -73,16 +74,9 @@ def condition_bits(items) -> list[str]:
     """Every bit name an if block reads (in order of first appearance)."""
     out: list[str] = []
 
-    def walk(its) -> None:
-        for it in its:
-            if isinstance(it, NoisyIf):
-                out.extend(b for b in it.item.bits if b not in out)
-                walk(it.then)
-                walk(it.orelse)
-            elif isinstance(it, NoisyRepeat):
-                walk(it.body)
-
-    walk(items)
+    for it, _ in counted(items, where="condition_bits"):
+        if it.kind is Kind.IF:
+            out.extend(b for b in it.item.bits if b not in out)
     return out
 
 
@@ -153,25 +147,24 @@ class _Sim:
             self.steps += 1
             if self.steps > MAX_STEPS:
                 raise MemoryError(f"more than {MAX_STEPS} executed items")
-            if isinstance(it, NoisyLayer):
+            kind = kind_of(it, "exact engine (measurement branches)")
+            if kind is Kind.LAYER:
                 self.layer(it)
-            elif isinstance(it, NoisyMeasure):
+            elif kind is Kind.MEASURE:
                 self.idle(it.idle)
                 for q, bit, e in zip(it.item.qubits, it.item.bits, it.readout_error):
                     self.measure(q, bit, e)
-            elif isinstance(it, NoisyReset):
+            elif kind is Kind.RESET:
                 self.idle(it.idle)
                 for q, e in zip(it.item.qubits, it.reset_error):
                     self.rho = self.apply(list(_RESET), (q,), "reset")
                     if e:
                         self.rho = self.apply([np.sqrt(1 - e) * np.eye(2), np.sqrt(e) * _X], (q,), ("flip", e))
-            elif isinstance(it, NoisyRepeat):
+            elif kind is Kind.REPEAT:
                 for _ in range(it.count):
                     self.items(it.body)
-            elif isinstance(it, NoisyIf):
+            else:  # Kind.IF
                 self.branch(it)
-            else:
-                raise TypeError(f"exact branches: unknown item {type(it).__name__}")
 
     def layer(self, layer: NoisyLayer) -> None:
         for nop in layer.operations:

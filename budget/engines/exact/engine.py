@@ -32,6 +32,7 @@ from typing import Callable
 
 import numpy as np
 
+from budget.circuit.walk import Kind, gate_kind
 from budget.engines.exact.local import (
     PAULI_BASIS,
     channel_superop,
@@ -46,7 +47,7 @@ from budget.engines.exact.register import Fuser, Register
 from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, Engine, EngineResult, Metric, parse_observable, zero_result
 from budget.engines.details import DenseRun, Details, FamilySplit
 from budget.engines.exact.split import SHARE_METHOD, error_families, only_family, scaled_shares
-from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat, Relaxation
+from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyOperation, NoisyRepeat, Relaxation
 from budget.memo import ObjectKey
 from budget.problems import TooLargeError
 
@@ -92,7 +93,7 @@ class _Runner:
 
     def _walk(self, items: tuple[NoisyItem, ...], reg: Register, fuser: Fuser) -> None:
         for it in items:
-            if isinstance(it, NoisyLayer):
+            if gate_kind(it, "exact engine") is Kind.LAYER:
                 for nop in it.operations:
                     fuser.add(nop.qubits, self.local(nop))
                 if self._idle is not None:
@@ -262,6 +263,6 @@ class ExactEngine(Engine):
 
 def _repeats(items: tuple[NoisyItem, ...]):
     for it in items:
-        if isinstance(it, NoisyRepeat):
+        if gate_kind(it, "exact engine") is Kind.REPEAT:
             yield it
             yield from _repeats(it.body)

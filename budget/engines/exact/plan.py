@@ -19,7 +19,8 @@ import math
 
 from dataclasses import dataclass
 
-from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
+from budget.circuit.walk import Kind, gate_kind
+from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyRepeat
 from budget.memo import ObjectKey
 
 STATE_VECTOR_MAX_QUBITS = 22
@@ -101,7 +102,7 @@ class _Costs:
         size = _big(self.s**self.n * columns)
         total = 0.0
         for it in items:
-            if isinstance(it, NoisyLayer):
+            if gate_kind(it, "exact engine plan") is Kind.LAYER:
                 for nop in it.operations:
                     total += size * self.s ** len(nop.qubits) + _OVERHEAD
                 if self.s == 4:

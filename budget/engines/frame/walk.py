@@ -36,6 +36,7 @@ from typing import Protocol
 import numpy as np
 
 from budget.circuit.clifford_check import operation_clifford
+from budget.circuit.walk import Kind, Visitor, gate_kind
 from budget.engines.frame.orbits import OrbitSearch, _slots
 from budget.engines.frame.pauli_frame import Frame, GateClass, layer_classes
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
@@ -62,7 +63,7 @@ class Sink(Protocol):
     def emit(self, layer: NoisyLayer, frame: Frame) -> None: ...
 
 
-class Walker:
+class Walker(Visitor):
     """One pass over a circuit in one direction (see module docstring).
 
     ``plans`` may be shared between walkers over the same circuit objects (gate classes per layer
@@ -74,6 +75,8 @@ class Walker:
         warnings: plain-words notes about approximate folding.
         layers_walked: executed layers actually visited (cost measure).
     """
+
+    where = "clifford engine (Pauli-frame walk)"
 
     def __init__(
         self,
@@ -132,11 +135,11 @@ class Walker:
             return None
 
         def coherent(item: NoisyItem) -> bool:
-            if isinstance(item, NoisyLayer):
+            if gate_kind(item, self.where) is Kind.LAYER:
                 return count_terms(item) > 0
             return any(coherent(x) for x in item.body)
 
-        blocks = [i for i, it in enumerate(items) if isinstance(it, NoisyRepeat) and coherent(it)]
+        blocks = [i for i, it in enumerate(items) if gate_kind(it, self.where) is Kind.REPEAT and coherent(it)]
         if len(blocks) != 1:
             return None
         rep = items[blocks[0]]
@@ -156,11 +159,7 @@ class Walker:
         return tuple(np.concatenate([p[i] for p in sink.parts]) for i in range(5))
 
     def _items(self, items: tuple[NoisyItem, ...]) -> None:
-        for it in items if self.direction == "pull" else reversed(items):
-            if isinstance(it, NoisyLayer):
-                self._layer(it)
-            else:
-                self._repeat(it)
+        self.visit_all(items, reverse=self.direction == "push")
 
     def _plan(self, layer: NoisyLayer) -> tuple[GateClass, ...]:
         # keys hold the layer and operation objects (ObjectKey), so a recycled id() never hits
@@ -182,7 +181,7 @@ class Walker:
             self._plans[key] = self._plans[content]
         return self._plans[key]
 
-    def _layer(self, layer: NoisyLayer) -> None:
+    def layer(self, layer: NoisyLayer) -> None:
         self.layers_walked += 1
         if self._frame_lost:  # rates only; coherent terms here were collected by _collect
             if self._emit:
@@ -195,7 +194,7 @@ class Walker:
         if self.direction == "push":
             self.frame.apply(self._plan(layer))
 
-    def _repeat(self, rep: NoisyRepeat) -> None:
+    def repeat(self, rep: NoisyRepeat) -> None:
         count = int(rep.count)
         if rep is self._orbit_block:
             self._orbit_repeat(rep)

@@ -45,6 +45,7 @@ from typing import Callable, Hashable
 
 import numpy as np
 
+from budget.circuit.walk import Kind, gate_kind
 from budget.engines.matrices.apply import LocalOp, apply, conjugate, embed
 from budget.engines.matrices.channels import LayerContent
 from budget.engines.matrices.periodic import CycleBasis, cross_cycle_sum, cycle_basis, periodic_sum, principal_generator
@@ -73,7 +74,7 @@ def local_commutator(ops: tuple[LocalOp, ...], dense: np.ndarray, num_qubits: in
 def _coherent(items: tuple[NoisyItem, ...]) -> bool:
     """Whether any operation of ``items`` (repeats included) has a coherent error."""
     return any(
-        any(nop.hamiltonian for nop in it.operations) if isinstance(it, NoisyLayer) else _coherent(getattr(it, "body", ()))
+        any(nop.hamiltonian for nop in it.operations) if gate_kind(it, "generators engine") is Kind.LAYER else _coherent(it.body)
         for it in items
     )
 
@@ -169,7 +170,7 @@ class DensePropagator:
         keys: list[Hashable] = []
         hs = np.zeros((2, 0, d, d), dtype=complex)  # [0]: first-order part, [1]: the rest
         for item in items:
-            if isinstance(item, NoisyLayer):
+            if gate_kind(item, "generators engine") is Kind.LAYER:
                 c = self.content_of(item)
                 for g in c.gate_list:
                     hs = conjugate(hs, g, n) if len(keys) else hs

@@ -29,6 +29,7 @@ from typing import Hashable, Sequence
 
 import numpy as np
 
+from budget.circuit.walk import Kind, gate_kind
 from budget.engines.matrices.apply import as_rows
 from budget.engines.matrices.channels import by_family, content_cache
 from budget.engines.generators.dense import MAX_DENSE_QUBITS, DensePropagator
@@ -50,7 +51,7 @@ from budget.engines.exact.engine import ExactEngine
 from budget.engines.generators.depth import RepeatSweep
 from budget.engines.matrices.periodic import coherent_infidelity
 from budget.errors.knobs import knob_grouping
-from budget.errors.noisy import NoisyCircuit, NoisyRepeat
+from budget.errors.noisy import NoisyCircuit
 from budget.problems import TooLargeError
 
 MAX_STATE_QUBITS = 16
@@ -96,7 +97,7 @@ def _needs_dense(circuit: NoisyCircuit, metric: str, observables: tuple[str, ...
 
 def _count_repeats(items) -> int:
     """Repeated blocks as written (each body's Schur basis is computed once)."""
-    return sum(1 + _count_repeats(it.body) for it in items if isinstance(it, NoisyRepeat))
+    return sum(1 + _count_repeats(it.body) for it in items if gate_kind(it, "generators engine") is Kind.REPEAT)
 
 
 def range_note(stochastic: float, coherent: float) -> str | None:

@@ -20,10 +20,11 @@ from typing import Sequence
 
 import numpy as np
 
+from budget.circuit.walk import Kind, gate_kind
 from budget.engines.matrices.apply import apply, as_rows
 from budget.engines.generators.dense import ContentOf, DensePropagator
 from budget.engines.matrices.periodic import frequency_count, repeated_means, repeated_squares, state_components
-from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
+from budget.errors.noisy import NoisyItem, NoisyRepeat
 
 EXPLICIT_REPEATS = 64
 SAMPLED_REPEATS = 64
@@ -56,7 +57,7 @@ def _add(acc: dict[str, float], families: Sequence[str], values: np.ndarray, wei
 
 
 def _flat(items: tuple[NoisyItem, ...]) -> bool:
-    return all(isinstance(it, NoisyLayer) for it in items)
+    return all(gate_kind(it, "generators engine") is Kind.LAYER for it in items)
 
 
 def repetitions(count: int) -> tuple[list[tuple[int, float]], bool]:
@@ -80,7 +81,7 @@ class StateJumps:
         """(ideal state after ``items``, family -> first-order cost) for input state ``psi``."""
         costs: dict[str, float] = {}
         for item in items:
-            if isinstance(item, NoisyLayer):
+            if gate_kind(item, "generators engine") is Kind.LAYER:
                 c = self.content_of(item)
                 for g in c.gates:
                     psi = apply(psi, g, self.n)

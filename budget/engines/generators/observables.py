@@ -15,10 +15,11 @@ from __future__ import annotations
 
 import numpy as np
 
+from budget.circuit.walk import Kind, gate_kind
 from budget.engines.matrices.apply import apply, apply_gate, conjugate
 from budget.engines.generators.dense import ContentOf, DensePropagator
 from budget.engines.generators.jumps import repetitions
-from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
+from budget.errors.noisy import NoisyItem, NoisyRepeat
 from budget.pauli_algebra import pauli_matrix
 
 
@@ -47,7 +48,7 @@ class IncoherentObservables:
     def _backward(self, items, psi: np.ndarray, o: np.ndarray) -> tuple[float, np.ndarray, np.ndarray]:
         total = 0.0
         for item in reversed(items):
-            if isinstance(item, NoisyLayer):
+            if gate_kind(item, "generators engine") is Kind.LAYER:
                 c = self.content_of(item)
                 for js in c.jumps:
                     o_psi = o @ psi

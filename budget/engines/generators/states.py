@@ -25,10 +25,11 @@ from typing import Hashable
 
 import numpy as np
 
+from budget.circuit.walk import Kind, gate_kind
 from budget.engines.matrices.apply import LocalOp, apply
 from budget.engines.generators.dense import ContentOf, DensePropagator
 from budget.engines.matrices.periodic import CycleBasis, periodic_sum
-from budget.errors.noisy import NoisyCircuit, NoisyLayer
+from budget.errors.noisy import NoisyCircuit
 
 
 @dataclass
@@ -47,7 +48,7 @@ class StatePath:
         self.items = circuit.body
         keys: list[Hashable] = []
         for item in circuit.body:
-            if isinstance(item, NoisyLayer):
+            if gate_kind(item, "generators engine") is Kind.LAYER:
                 seg = content_of(item)
                 new = list(seg.hamiltonians)
             else:

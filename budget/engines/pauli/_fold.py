@@ -21,9 +21,10 @@ from __future__ import annotations
 import numpy as np
 import stim
 
+from budget.circuit.walk import Kind, gate_kind
 from budget.engines.frame.walk import Walker
 from budget.engines.pauli._store import Store
-from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
+from budget.errors.noisy import NoisyItem, NoisyRepeat
 
 MAX_PERIOD = 4096
 """Largest period searched (tableau products); longer-period blocks are walked cycle by cycle."""
@@ -31,7 +32,7 @@ MAX_PERIOD = 4096
 
 def all_clifford(items: tuple[NoisyItem, ...], book) -> bool:
     for it in items:
-        if isinstance(it, NoisyLayer):
+        if gate_kind(it, "pauli engine") is Kind.LAYER:
             if not book(it).clifford:
                 return False
         elif not all_clifford(it.body, book):

@@ -37,6 +37,7 @@ from types import SimpleNamespace
 
 import numpy as np
 
+from budget.circuit.walk import Kind, gate_kind
 from budget.engines.pauli._fold import fold
 from budget.engines.pauli._plan import LayerPlan, PlanBook
 from budget.engines.pauli._store import Store, conjugate, from_local, generate
@@ -151,7 +152,7 @@ class Sweep:
 
     def _items(self, items: tuple[NoisyItem, ...]) -> None:
         for it in reversed(items) if self.pull else items:
-            if isinstance(it, NoisyLayer):
+            if gate_kind(it, "pauli engine") is Kind.LAYER:
                 self._layer(it)
             else:
                 self._repeat(it)
