@@ -28,12 +28,13 @@ import numpy as np
 import scipy.linalg
 
 from budget.analysis.run import read_circuit, read_model
+from budget.circuit.walk import Kind, kind_of, layers
 from budget.engines.door import choose_engine
 from budget.analysis.sensitivity import quadratic_form
-from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
+from budget.circuit.ir import Layer, Operation, StructuredCircuit
 from budget.errors.attach import attach
 from budget.errors.knobs import coherent_error
-from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation, NoisyRepeat
+from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation
 from budget.errors.params import GateParams
 from budget.problems import InputError
 
@@ -102,7 +103,7 @@ def correction_points(circuit: StructuredCircuit, which: str = "all") -> tuple[P
 
     def walk(items: tuple) -> None:
         for it in items:
-            if isinstance(it, Repeat):
+            if kind_of(it, "correction_points") is Kind.REPEAT:
                 ops = _ops(it.body)
                 line = next((o.line for o in ops if o.line is not None), None)
                 index = len(points)
@@ -118,13 +119,7 @@ def correction_points(circuit: StructuredCircuit, which: str = "all") -> tuple[P
 
 
 def _ops(items: tuple) -> list[Operation]:
-    out: list[Operation] = []
-    for it in items:
-        if isinstance(it, Layer):
-            out.extend(it.operations)
-        elif isinstance(it, Repeat):
-            out.extend(_ops(it.body))
-    return out
+    return [op for it, _ in layers(items, where="correction_points") for op in it.operations]
 
 
 def _rz_op(qubit: int, name: str, where: str, angle: float) -> NoisyOperation:
@@ -144,7 +139,7 @@ def map_blocks(items: tuple, fn: Callable[[int, tuple], tuple]) -> tuple:
     def walk(items: tuple) -> tuple:
         out: list = []
         for it in items:
-            if isinstance(it, (Repeat, NoisyRepeat)):
+            if kind_of(it, "map_blocks") is Kind.REPEAT:
                 index = counter[0]
                 counter[0] += 1
                 out.append(type(it)(fn(index, walk(it.body)), it.count))

@@ -19,7 +19,8 @@ import tomlkit
 
 from budget.analysis.compensate import Correction
 from budget.circuit.gates import GATES
-from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
+from budget.circuit.ir import Operation, StructuredCircuit
+from budget.circuit.walk import Kind, kind_of, layers
 from budget.errors.model import ErrorModel
 from budget.problems import InputError
 
@@ -30,7 +31,7 @@ def _blocks(circuit: StructuredCircuit) -> dict[int | None, tuple]:
 
     def walk(items: tuple) -> None:
         for it in items:
-            if isinstance(it, Repeat):
+            if kind_of(it, "compensation blocks") is Kind.REPEAT:
                 out[len(out) - 1] = it.body
                 walk(it.body)
 
@@ -41,23 +42,14 @@ def _blocks(circuit: StructuredCircuit) -> dict[int | None, tuple]:
 def _last_on(items: tuple, qubit: int) -> Operation | None | str:
     """The last operation on ``qubit`` directly in ``items``; ``"nested"`` if it is inside a repeat."""
     for it in reversed(items):
-        if isinstance(it, Layer):
+        kind = kind_of(it, "compensation")
+        if kind is Kind.LAYER:
             for op in it.operations:
                 if qubit in op.qubits:
                     return op
-        elif isinstance(it, Repeat) and any(qubit in op.qubits for layer in _layers(it.body) for op in layer.operations):
+        elif kind is Kind.REPEAT and any(qubit in op.qubits for layer, _ in layers(it.body) for op in layer.operations):
             return "nested"
     return None
-
-
-def _layers(items: tuple) -> list[Layer]:
-    out: list[Layer] = []
-    for it in items:
-        if isinstance(it, Layer):
-            out.append(it)
-        elif isinstance(it, Repeat):
-            out.extend(_layers(it.body))
-    return out
 
 
 def z_phase_updates(circuit: StructuredCircuit, model: ErrorModel,

@@ -27,6 +27,7 @@ from budget.analysis.run import read_circuit, read_model
 from budget.analysis.sensitivity import Sensitivity, quadratic_form, sensitivity, sensitivity_json
 from budget.analysis.tolerance_output import tolerances_json
 from budget.analysis.tolerances import ToleranceReport, check_target, tolerances
+from budget.circuit.walk import Kind, branches, kind_of
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.attach import attach
 from budget.errors.noisy import NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
@@ -132,17 +133,16 @@ def site_families(by_gate: Any, by_site: Any) -> dict[str, str]:
 
     def walk(a: tuple, b: tuple) -> None:
         for x, y in zip(a, b):
-            if isinstance(x, NoisyLayer) and isinstance(y, NoisyLayer):
+            kind = kind_of(x, "site_families")
+            if kind is not kind_of(y, "site_families"):
+                raise TypeError(f"site_families: items {type(x).__name__} and {type(y).__name__} do not match")
+            if kind is Kind.LAYER:
                 out.update((q.family, p.family) for p, q in zip(x.operations, y.operations))
-            elif isinstance(x, NoisyRepeat) and isinstance(y, NoisyRepeat):
-                walk(x.body, y.body)
-            elif isinstance(x, NoisyIf) and isinstance(y, NoisyIf):
-                walk(x.then, y.then)
-                walk(x.orelse, y.orelse)
-            elif isinstance(x, (NoisyMeasure, NoisyReset)) and type(x) is type(y):
+            elif kind in (Kind.MEASURE, Kind.RESET):
                 out[y.family] = x.family
             else:
-                raise TypeError(f"site_families: items {type(x).__name__} and {type(y).__name__} do not match")
+                for inner_x, inner_y in zip(branches(x), branches(y)):
+                    walk(inner_x, inner_y)
 
     walk(by_gate.body, by_site.body)
     return out

@@ -30,8 +30,9 @@ from typing import Iterator, Sequence
 
 import numpy as np
 
+from budget.circuit.walk import Kind, branches, kind_of
 from budget.engines.clifford.stim_circuit import record_qubits, to_stim
-from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
+from budget.errors.noisy import NoisyCircuit
 from budget.problems import InputError
 
 SHOT_MARGIN = 64
@@ -284,18 +285,16 @@ def _measured_last(circuit: NoisyCircuit) -> set[int]:
 
     def walk(items) -> None:
         for it in items:
-            if isinstance(it, NoisyLayer):
+            kind = kind_of(it, "detectors")
+            if kind is Kind.LAYER:
                 for nop in it.operations:  # a one-qubit gate after the readout cannot change the record
                     last.update({q: "gate" for q in nop.qubits if len(nop.qubits) == 2 or last.get(q) != "measure"})
-            elif isinstance(it, NoisyMeasure):
+            elif kind is Kind.MEASURE:
                 last.update({q: "measure" for q in it.item.qubits})
-            elif isinstance(it, NoisyReset):
+            elif kind is Kind.RESET:
                 last.update({q: "reset" for q in it.item.qubits})
-            elif isinstance(it, NoisyRepeat):
-                walk(it.body)
-            elif isinstance(it, NoisyIf):
-                walk(it.then)
-                walk(it.orelse)
+            for inner in branches(it):
+                walk(inner)
 
     walk(circuit.body)
     return {q for q, kind in last.items() if kind == "measure"}

@@ -16,6 +16,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from budget.analysis.compensate import correction_points, map_blocks
+from budget.circuit.walk import Kind, kind_of
 from budget.engines.door import choose_engine
 from budget.circuit.ir import Layer, Operation, StructuredCircuit
 from budget.errors.attach import attach
@@ -45,7 +46,7 @@ def _idle_stretches(body: tuple, qubit: int) -> list[list[int]]:
     """Runs of consecutive top-level layers of ``body`` (indices) in which no gate touches ``qubit``."""
     runs: list[list[int]] = [[]]
     for i, it in enumerate(body):
-        if isinstance(it, Layer) and all(qubit not in op.qubits for op in it.operations):
+        if kind_of(it, "echo") is Kind.LAYER and all(qubit not in op.qubits for op in it.operations):
             runs[-1].append(i)
         elif runs[-1]:
             runs.append([])

@@ -14,7 +14,7 @@ from typing import Any
 from budget.analysis.result import FamilyShare
 from budget.circuit.ir import StructuredCircuit
 from budget.errors.attach import attach
-from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyItem, NoisyLayer, NoisyRepeat
+from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, map_items
 from budget.problems import InputError
 
 GROUPINGS = ("gate", "pair", "operation")
@@ -68,20 +68,10 @@ def per_operation(circuit: NoisyCircuit) -> NoisyCircuit:
         counter[tag] = counter.get(tag, 0) + 1
         return tag if nop.op.line is not None and counter[tag] == 1 else f"{tag} #{counter[tag]}"
 
-    def walk(items: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
-        out: list[NoisyItem] = []
-        for it in items:
-            if isinstance(it, NoisyLayer) and it.context:
-                out.append(it)  # context errors already name their pair, rule or qubit: one knob each
-            elif isinstance(it, NoisyLayer):
-                ops = tuple(dataclasses.replace(n, family=name(n)) for n in it.operations)
-                out.append(dataclasses.replace(it, operations=ops))
-            elif isinstance(it, NoisyRepeat):
-                out.append(NoisyRepeat(walk(it.body), it.count))
-            elif isinstance(it, NoisyIf):
-                out.append(NoisyIf(it.item, walk(it.then), walk(it.orelse)))
-            else:
-                out.append(it)  # measurement and reset: no gate operation to name
-        return tuple(out)
+    def layer(it: NoisyLayer) -> NoisyLayer:
+        if it.context:
+            return it  # context errors already name their pair, rule or qubit: one knob each
+        return dataclasses.replace(it, operations=tuple(dataclasses.replace(n, family=name(n)) for n in it.operations))
 
-    return dataclasses.replace(circuit, body=walk(circuit.body))
+    # measurements and resets are kept: no gate operation to name
+    return dataclasses.replace(circuit, body=map_items(circuit.body, layer))

@@ -28,7 +28,7 @@ from budget.engines.door import choose_engine
 from budget.analysis.sensitivity import quadratic_form
 from budget.errors.knobs import knob_grouping
 from budget.errors.retune import with_knob_values
-from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
+from budget.errors.noisy import NoisyCircuit, NoisyLayer, map_items
 from budget.memo import ObjectKey
 from budget.problems import TooLargeError
 
@@ -104,21 +104,16 @@ class FloorRemedy:
 
 def without_relaxation(circuit: NoisyCircuit) -> NoisyCircuit:
     """The same circuit with every T1/T2 relaxation removed (gates and idle)."""
-    memo: dict[ObjectKey, Any] = {}
+    ops: dict[ObjectKey, Any] = {}
 
-    def walk(items: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
-        out = []
-        for it in items:
-            if ObjectKey(it) not in memo:
-                if isinstance(it, NoisyLayer):
-                    ops = tuple(memo.setdefault(ObjectKey(n), dataclasses.replace(n, relaxation=())) for n in it.operations)
-                    memo[ObjectKey(it)] = dataclasses.replace(it, operations=ops, idle=())
-                else:
-                    memo[ObjectKey(it)] = NoisyRepeat(walk(it.body), it.count)
-            out.append(memo[ObjectKey(it)])
-        return tuple(out)
+    def layer(it: NoisyLayer) -> NoisyLayer:
+        new = tuple(ops.setdefault(ObjectKey(n), dataclasses.replace(n, relaxation=())) for n in it.operations)
+        return dataclasses.replace(it, operations=new, idle=())
 
-    return dataclasses.replace(circuit, body=walk(circuit.body))
+    def probe(it):
+        return dataclasses.replace(it, idle=())
+
+    return dataclasses.replace(circuit, body=map_items(circuit.body, layer, probe, memo={}))
 
 
 def scaled_incoherent(circuit: NoisyCircuit, gates: float, relaxation: float) -> NoisyCircuit:
@@ -134,19 +129,14 @@ def scaled_incoherent(circuit: NoisyCircuit, gates: float, relaxation: float) ->
         return dataclasses.replace(n, depolarizing=n.depolarizing * gates, relaxation=relax(n.relaxation),
                                    pauli_rates={k: v * gates for k, v in n.pauli_rates.items()})
 
-    def walk(items: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
-        out = []
-        for it in items:
-            if ObjectKey(it) not in memo:
-                if isinstance(it, NoisyLayer):
-                    ops = tuple(memo.setdefault(ObjectKey(n), op(n)) for n in it.operations)
-                    memo[ObjectKey(it)] = dataclasses.replace(it, operations=ops, idle=relax(it.idle))
-                else:
-                    memo[ObjectKey(it)] = NoisyRepeat(walk(it.body), it.count)
-            out.append(memo[ObjectKey(it)])
-        return tuple(out)
+    def layer(it: NoisyLayer) -> NoisyLayer:
+        ops = tuple(memo.setdefault(ObjectKey(n), op(n)) for n in it.operations)
+        return dataclasses.replace(it, operations=ops, idle=relax(it.idle))
 
-    return dataclasses.replace(circuit, body=walk(circuit.body))
+    def probe(it):
+        return dataclasses.replace(it, idle=relax(it.idle))
+
+    return dataclasses.replace(circuit, body=map_items(circuit.body, layer, probe, memo={}))
 
 
 def floor_remedy(report: Any, model: Any, noisy: NoisyCircuit, metric: str, *, engine: str = "auto") -> FloorRemedy | None:

@@ -20,6 +20,7 @@ from dataclasses import dataclass
 
 from budget.analysis.detectors import Checks, infer_checks
 from budget.analysis.result import DetectorBudget
+from budget.circuit.walk import Kind, kind_of
 from budget.engines.clifford.frames import FrameResult, frames
 from budget.engines.clifford.stim_circuit import record_qubits
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
@@ -47,7 +48,7 @@ def fold_target(noisy: NoisyCircuit) -> int | None:
     """Index of the top-level repeat to fold (the one with most iterations, above FOLD_AT)."""
     best = None
     for i, it in enumerate(noisy.body):
-        if isinstance(it, NoisyRepeat) and it.count > FOLD_AT and (best is None or it.count > noisy.body[best].count):
+        if kind_of(it, "fold_target") is Kind.REPEAT and it.count > FOLD_AT and (best is None or it.count > noisy.body[best].count):
             best = i
     return best
 

@@ -32,12 +32,13 @@ from budget.analysis.families import family_counts, family_table
 from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit, circuit_fields
 from budget.analysis.twirl import twirled_circuit
 from budget.circuit.ir import StructuredCircuit
+from budget.circuit.walk import Kind, counted
 from budget.engines.clifford.frames import families_of, frames
 from budget.engines.exact.branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
 from budget.engines.door import measured_engine
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.fidelity import naive_infidelity, relaxation_process_fidelity
-from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
+from budget.errors.noisy import IDLE, NoisyCircuit, map_items
 from budget.memo import ObjectKey
 from budget.problems import InputError, TooLargeError
 
@@ -219,14 +220,7 @@ def _result(noisy, structured, metric, engine, actual, first_order, shares, cycl
 
 
 def _walk_probes(items, mult: int, out: list) -> None:
-    for it in items:
-        if isinstance(it, (NoisyMeasure, NoisyReset)):
-            out.append((it, mult))
-        elif isinstance(it, NoisyRepeat):
-            _walk_probes(it.body, mult * it.count, out)
-        elif isinstance(it, NoisyIf):
-            _walk_probes(it.then, mult, out)
-            _walk_probes(it.orelse, mult, out)
+    out.extend((it, n) for it, n in counted(items, mult, where="measured") if it.kind in (Kind.MEASURE, Kind.RESET))
 
 
 def naive_measured(noisy: NoisyCircuit) -> float:
@@ -237,7 +231,7 @@ def naive_measured(noisy: NoisyCircuit) -> float:
     _walk_probes(noisy.body, 1, probes)
     terms = [log]
     for it, mult in probes:
-        errs = it.readout_error if isinstance(it, NoisyMeasure) else it.reset_error
+        errs = it.readout_error if it.kind is Kind.MEASURE else it.reset_error
         part = sum(math.log1p(-e) if e < 1 else -math.inf for e in errs)
         part += sum(math.log(max(relaxation_process_fidelity(r), 1e-300)) for r in it.idle if not r.is_trivial)
         terms.append(mult * part)
@@ -274,29 +268,12 @@ def without_family(noisy: NoisyCircuit, family: str) -> NoisyCircuit:
         return dataclasses.replace(nop, coherent=np.eye(d, dtype=complex), hamiltonian={}, pauli_rates={},
                                    depolarizing=0.0, relaxation=())
 
-    def items(its):
-        out = []
-        for it in its:
-            if ObjectKey(it) not in memo:
-                if isinstance(it, NoisyLayer):
-                    new = NoisyLayer(tuple(op(n) for n in it.operations), () if family == IDLE else it.idle,
-                                     it.duration_ns)
-                elif isinstance(it, NoisyMeasure):
-                    new = dataclasses.replace(
-                        it, readout_error=tuple(0.0 for _ in it.readout_error) if it.family == family else it.readout_error,
-                        idle=() if family == IDLE else it.idle)
-                elif isinstance(it, NoisyReset):
-                    new = dataclasses.replace(
-                        it, reset_error=tuple(0.0 for _ in it.reset_error) if it.family == family else it.reset_error,
-                        idle=() if family == IDLE else it.idle)
-                elif isinstance(it, NoisyRepeat):
-                    new = NoisyRepeat(items(it.body), it.count)
-                elif isinstance(it, NoisyIf):
-                    new = NoisyIf(it.item, items(it.then), items(it.orelse))
-                else:
-                    raise TypeError(f"without_family: unknown item {type(it).__name__}")
-                memo[ObjectKey(it)] = new
-            out.append(memo[ObjectKey(it)])
-        return tuple(out)
+    def layer(it):
+        return dataclasses.replace(it, operations=tuple(op(n) for n in it.operations), idle=() if family == IDLE else it.idle)
 
-    return dataclasses.replace(noisy, body=items(noisy.body))
+    def probe(it):
+        errors = "readout_error" if it.kind is Kind.MEASURE else "reset_error"
+        mine = tuple(0.0 for _ in getattr(it, errors)) if it.family == family else getattr(it, errors)
+        return dataclasses.replace(it, **{errors: mine}, idle=() if family == IDLE else it.idle)
+
+    return dataclasses.replace(noisy, body=map_items(noisy.body, layer, probe, memo=memo))

@@ -24,7 +24,7 @@ from budget.analysis.measured import detector_values
 from budget.engines.clifford.frames import frames
 from budget.engines.base import QuadraticForm
 from budget.errors.knobs import knob_grouping, knob_terms
-from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer, NoisyRepeat
+from budget.errors.noisy import NoisyCircuit, map_items
 from budget.memo import ObjectKey
 from budget.pauli_algebra import pauli_sum
 from budget.problems import InputError, TooLargeError
@@ -51,22 +51,10 @@ def with_knobs(noisy: NoisyCircuit, values: dict[tuple[str, str], float], scale:
         h = pauli_sum(ham, len(nop.qubits))
         return dataclasses.replace(nop, coherent=expm(-1j * h), hamiltonian={p: c for p, c in ham.items() if c})
 
-    def items(its):
-        out = []
-        for it in its:
-            if ObjectKey(it) not in memo:
-                if isinstance(it, NoisyLayer):
-                    memo[ObjectKey(it)] = dataclasses.replace(it, operations=tuple(op(n) for n in it.operations))
-                elif isinstance(it, NoisyRepeat):
-                    memo[ObjectKey(it)] = NoisyRepeat(items(it.body), it.count)
-                elif isinstance(it, NoisyIf):
-                    memo[ObjectKey(it)] = NoisyIf(it.item, items(it.then), items(it.orelse))
-                else:
-                    memo[ObjectKey(it)] = it
-            out.append(memo[ObjectKey(it)])
-        return tuple(out)
+    def layer(it):
+        return dataclasses.replace(it, operations=tuple(op(n) for n in it.operations))
 
-    return dataclasses.replace(noisy, body=items(noisy.body))
+    return dataclasses.replace(noisy, body=map_items(noisy.body, layer, memo=memo))
 
 
 def detector_quadratic_form(noisy: NoisyCircuit, *, engine: str = "auto", detector: int | None = None) -> QuadraticForm:

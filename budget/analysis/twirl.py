@@ -13,17 +13,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from budget.errors.noisy import (
-    NoisyCircuit,
-    NoisyIf,
-    NoisyItem,
-    NoisyLayer,
-    NoisyMeasure,
-    NoisyOperation,
-    NoisyRepeat,
-    NoisyReset,
-)
-from budget.memo import ObjectKey
+from budget.errors.noisy import NoisyCircuit, NoisyOperation, map_items
 from budget.pauli_algebra import twirl_probabilities
 
 
@@ -37,25 +27,10 @@ def _twirl_op(nop: NoisyOperation) -> NoisyOperation:
     return replace(nop, coherent=np.eye(d, dtype=complex), hamiltonian={}, pauli_rates=rates)
 
 
-def _twirl_items(items: tuple[NoisyItem, ...], memo: dict[ObjectKey, NoisyItem]) -> tuple[NoisyItem, ...]:
-    out = []
-    for it in items:
-        key = ObjectKey(it)
-        if key not in memo:
-            if isinstance(it, NoisyLayer):
-                memo[key] = replace(it, operations=tuple(_twirl_op(n) for n in it.operations))
-            elif isinstance(it, NoisyRepeat):
-                memo[key] = NoisyRepeat(_twirl_items(it.body, memo), it.count)
-            elif isinstance(it, NoisyIf):
-                memo[key] = NoisyIf(it.item, _twirl_items(it.then, memo), _twirl_items(it.orelse, memo))
-            elif isinstance(it, (NoisyMeasure, NoisyReset)):
-                memo[key] = it  # readout and reset errors are already stochastic
-            else:
-                raise TypeError(f"twirl: circuit item {type(it).__name__} is not supported")
-        out.append(memo[key])
-    return tuple(out)
 
 
 def twirled_circuit(circuit: NoisyCircuit) -> NoisyCircuit:
     """The same circuit with every coherent error replaced by its Pauli twirl (repeats kept)."""
-    return replace(circuit, body=_twirl_items(circuit.body, {}))
+    # readout and reset errors are already stochastic: measurements and resets are kept
+    layer = lambda it: replace(it, operations=tuple(_twirl_op(n) for n in it.operations))  # noqa: E731
+    return replace(circuit, body=map_items(circuit.body, layer, memo={}))

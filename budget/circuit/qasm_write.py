@@ -10,7 +10,8 @@ from __future__ import annotations
 
 import re
 
-from budget.circuit.ir import Layer, Repeat, StructuredCircuit, item_kind
+from budget.circuit.ir import StructuredCircuit
+from budget.circuit.walk import Kind, item_kind, kind_of
 from budget.problems import InputError
 
 _NAME = re.compile(r"([A-Za-z_][A-Za-z0-9_]*)\[(\d+)\]")
@@ -39,14 +40,15 @@ def to_qasm3(circuit: StructuredCircuit, *, header: str = "") -> str:
 
     def walk(items: tuple, indent: str) -> None:
         for it in items:
-            if isinstance(it, Layer):
+            kind = kind_of(it, "OpenQASM writer")
+            if kind is Kind.LAYER:
                 for op in it.operations:
                     if op.gate == "unitary":
                         raise InputError(f"{circuit.source}: operation {op.label or 'unitary'} on "
                                          f"{', '.join(circuit.qubits[q] for q in op.qubits)} has no OpenQASM name")
                     args = f"({', '.join(repr(float(p)) for p in op.params)})" if op.params else ""
                     lines.append(f"{indent}{op.gate}{args} {', '.join(circuit.qubits[q] for q in op.qubits)};")
-            elif isinstance(it, Repeat):
+            elif kind is Kind.REPEAT:
                 var = f"i{depth[0]}"
                 depth[0] += 1
                 lines.append(f"{indent}for int {var} in [0:{it.count - 1}] {{")

@@ -22,7 +22,8 @@ import difflib
 import re
 from typing import Literal
 
-from budget.circuit.ir import IfBlock, Layer, Measure, Operation, Repeat, Reset, StructuredCircuit
+from budget.circuit.ir import Layer, Measure, Operation, Repeat, Reset, StructuredCircuit
+from budget.circuit.walk import Kind, kind_of
 from budget.errors.context import ContextTable
 from budget.errors.context_attach import ContextPlacer
 from budget.errors.knobs import CoherentError, coherent_error
@@ -96,7 +97,7 @@ development machine)."""
 
 def _written_layers(items: tuple) -> int:
     """Layers as written (repeats folded); other items (measurements, resets) count as one."""
-    return sum(_written_layers(it.body) if isinstance(getattr(it, "body", None), tuple) else 1 for it in items)
+    return sum(_written_layers(it.body) if kind_of(it, "attach") is Kind.REPEAT else 1 for it in items)
 
 
 def _check_size(circuit: StructuredCircuit) -> None:
@@ -160,26 +161,25 @@ class _Attacher:
         """The noisy items of ``items`` after the circuit layer ``prev``, and the last layer."""
         out: list[NoisyItem] = []
         for it in items:
-            if isinstance(it, Layer):
+            kind = kind_of(it, "attach")
+            if kind is Kind.LAYER:
                 out.extend(self.context.bleed(prev, it))
                 out.extend(self.expanded(it))
                 prev = it
-            elif isinstance(it, Repeat):
+            elif kind is Kind.REPEAT:
                 block, prev = self.repeat(it, prev)
                 out.extend(block)
-            elif isinstance(it, (Measure, Reset)):
+            elif kind in (Kind.MEASURE, Kind.RESET):
                 key = ObjectKey(it)
                 if key not in self._items:
                     self._items[key] = self.probe(it)
                 out.append(self._items[key])
                 prev = None  # no pulse bleeds across a measurement or reset
-            elif isinstance(it, IfBlock):
+            else:  # Kind.IF
                 then, _ = self.items(it.then, prev)
                 orelse, _ = self.items(it.orelse, prev)
                 out.append(NoisyIf(it, then, orelse))
                 prev = None
-            else:
-                raise TypeError(f"circuit item {it!r}: expected a Layer, Repeat, Measure, Reset or IfBlock")
         return tuple(out), prev
 
     def repeat(self, rep: Repeat, prev: Layer | None) -> tuple[tuple[NoisyItem, ...], Layer | None]:
@@ -218,13 +218,13 @@ class _Attacher:
         """Measurement or reset: its error per qubit ([qubits] readout_error / reset_error), its
         duration ([gates.measure] / [gates.reset] duration_ns, the longest of its qubits) and the
         idle relaxation of every other qubit meanwhile."""
-        name = "measure" if isinstance(it, Measure) else "reset"
+        name = "measure" if it.kind is Kind.MEASURE else "reset"
         params = [self.model.gate(name, (self.names[q],)) for q in it.qubits]
         length = max((gp.duration_ns for gp in params), default=0.0)
         family = params[0].family or name if params else name
         idle = tuple(r for q in range(len(self.names)) if q not in it.qubits
                      for r in [self.relax(q, length)] if r is not None)
-        if isinstance(it, Measure):
+        if it.kind is Kind.MEASURE:
             errors = tuple(self.qubit_params[q].readout_error for q in it.qubits)
             return NoisyMeasure(it, family, errors, idle, length)
         errors = tuple(self.qubit_params[q].reset_error for q in it.qubits)
@@ -269,9 +269,10 @@ class _Attacher:
 def _first_layer(rep: Repeat) -> Layer | None:
     """The first gate layer of a repeat's body, None when a measurement, reset or if comes first."""
     for it in rep.body:
-        if not isinstance(it, (Layer, Repeat)):
+        kind = kind_of(it, "attach")
+        if kind is not Kind.LAYER and kind is not Kind.REPEAT:
             return None
-        found = it if isinstance(it, Layer) else _first_layer(it)
+        found = it if kind is Kind.LAYER else _first_layer(it)
         if found is not None:
             return found
     return None

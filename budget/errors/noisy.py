@@ -16,12 +16,13 @@ Conventions: matrices in gate order, first qubit most significant (cirq's conven
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import ClassVar, Iterator, Union
+from typing import Callable, ClassVar, Iterator, Union
 
 import numpy as np
 
 from budget.circuit.ir import IfBlock, Measure, Operation, Reset
 from budget.circuit.walk import Kind, first_mid_circuit, item_kind, kind_of, layers, unrolled, unsupported_item
+from budget.memo import ObjectKey
 
 IDLE = "idle"
 """Family name of idle relaxation."""
@@ -292,3 +293,35 @@ class NoisyCircuit:
         """Each distinct layer with the number of times it executes (Python int, exact); the
         layers of an if block count as if both branches ran (an upper bound)."""
         return list(layers(self.body, where="multiplicities"))
+
+
+def map_items(
+    items: tuple[NoisyItem, ...],
+    layer: Callable[[NoisyLayer], NoisyLayer],
+    probe: Callable[[NoisyMeasure | NoisyReset], NoisyItem] | None = None,
+    memo: dict[ObjectKey, NoisyItem] | None = None,
+) -> tuple[NoisyItem, ...]:
+    """The same items with each layer replaced by ``layer(it)`` and each measurement or reset by
+    ``probe(it)`` (kept when ``probe`` is None); repeats and if blocks are rebuilt around their
+    mapped items, repeats still folded. With ``memo`` (keyed by :class:`budget.memo.ObjectKey`),
+    an item that occurs at several places is mapped once and shared."""
+
+    def one(it: NoisyItem) -> NoisyItem:
+        kind = kind_of(it, "map_items")
+        if kind is Kind.LAYER:
+            return layer(it)
+        if kind is Kind.REPEAT:
+            return NoisyRepeat(map_items(it.body, layer, probe, memo), it.count)
+        if kind is Kind.IF:
+            return NoisyIf(it.item, map_items(it.then, layer, probe, memo), map_items(it.orelse, layer, probe, memo))
+        return it if probe is None else probe(it)
+
+    if memo is None:
+        return tuple(one(it) for it in items)
+    out = []
+    for it in items:
+        key = ObjectKey(it)
+        if key not in memo:
+            memo[key] = one(it)
+        out.append(memo[key])
+    return tuple(out)

@@ -152,7 +152,7 @@ class Walker(Visitor):
         (``"pull"`` from the block's end for items after it) or start frame (``"push"`` to the
         block's start for items before it): (x, z, e, coef, tag) or None."""
         sink = _Explicit(self.sink, forward=False)
-        if any(isinstance(it, NoisyLayer) and self.sink.orbit_terms(it) > 0 for it in items):
+        if any(gate_kind(it, self.where) is Kind.LAYER and self.sink.orbit_terms(it) > 0 for it in items):
             Walker(self.n, direction, sink, max_unrolled=self.max_unrolled, plans=self._plans, orbit_baby=0).run(items)
         if not sink.parts:
             return None
