@@ -10,7 +10,8 @@ One operation's error (design.md §2) becomes, in the generator picture (Blume-K
 - unit terms: the first-order generator of each coherent knob (``knob_generators``), for the
   quadratic form.
 
-A *site* is one operation of the layer, or one idle qubit that relaxes. Its four frame rows are
+The terms are read from the layer's normal form (:mod:`budget.errors.normal_form`). A *site* is
+one operation of the layer, or one idle qubit that relaxes. Its four frame rows are
 [X_a, X_b, Z_a, Z_b] (2n where the site has one qubit), and a local Pauli is a 4-bit index
 v = x_a + 2 x_b + 4 z_a + 8 z_b with phase exponent e0 (the label's Y count): the operator
 i^e0 X_a^{x_a} X_b^{x_b} Z_a^{z_a} Z_b^{z_b}. Stochastic rates of a site form one row of 16.
@@ -25,7 +26,8 @@ from typing import Callable
 import numpy as np
 
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
-from budget.pauli_algebra import label_bits, pauli_labels
+from budget.errors.normal_form import hamiltonian, idle_terms, operation_terms, stochastic_rates
+from budget.pauli_algebra import label_bits
 
 
 @lru_cache(maxsize=None)
@@ -106,27 +108,6 @@ class Sources:
         return self._add((IDLE, qubit), IDLE, {"family": IDLE, "gate": IDLE, "qubits": [names[qubit]], "line": None})
 
 
-def twirl_rates(r: Relaxation, k: int, pos: int) -> dict[str, float]:
-    """The Pauli-twirled relaxation of one qubit (position ``pos`` of k) as label -> rate."""
-    px, py, pz = r.pauli_twirl()
-    pad = lambda c: "I" * pos + c + "I" * (k - pos - 1)  # noqa: E731
-    return {pad("X"): px, pad("Y"): py, pad("Z"): pz}
-
-
-def stochastic_rates(nop: NoisyOperation) -> dict[str, float]:
-    """Label -> first-order stochastic rate of one operation (Pauli rates + depolarizing + twirl)."""
-    k = len(nop.qubits)
-    rates: dict[str, float] = {}
-    parts = [nop.pauli_rates]
-    if nop.depolarizing:
-        parts.append({label: nop.depolarizing / 4**k for label in pauli_labels(k)[1:]})
-    parts += [twirl_rates(r, k, nop.qubits.index(r.qubit)) for r in nop.relaxation if not r.is_trivial]
-    for part in parts:
-        for label, p in part.items():
-            rates[label] = rates.get(label, 0.0) + p
-    return rates
-
-
 def _row16(rates: dict[str, float]) -> np.ndarray:
     row = np.zeros(16)
     for label, p in rates.items():
@@ -187,12 +168,13 @@ class TermBuilder:
                 idx = self.sources.labels.setdefault(lab, len(self.sources.labels))
                 unit.append((idx,) + _local(gen))
         qs = nop.op.qubits
+        errors = operation_terms(nop)
         info = (
             self.sources.of_operation(nop, self.names),
             qs[0],
             qs[1] if len(qs) == 2 else -1,
-            _local(nop.hamiltonian),
-            _row16(stochastic_rates(nop)),
+            _local(hamiltonian(errors)),
+            _row16(stochastic_rates(errors, nop.qubits)),
             unit,
             nop,  # keeps the object alive so its id stays unique
         )
@@ -202,7 +184,8 @@ class TermBuilder:
     def _idle_site(self, r: Relaxation) -> tuple:
         key = (r.qubit, r.gamma, r.dephasing_factor)
         if key not in self._idle:
-            self._idle[key] = (self.sources.of_idle(r.qubit, self.names), r.qubit, -1, _row16(twirl_rates(r, 1, 0)))
+            rates = stochastic_rates(idle_terms(r), (r.qubit,))
+            self._idle[key] = (self.sources.of_idle(r.qubit, self.names), r.qubit, -1, _row16(rates))
         return self._idle[key]
 
     def _build(self, layer: NoisyLayer) -> LayerTable:

@@ -1,6 +1,7 @@
 """First-order content of one layer: ideal gates, Hamiltonian generators, jump operators.
 
-Each operation's error, to first order, is a small generator (Blume-Kohout et al., "A taxonomy of
+The errors are read from the layer's normal form (:mod:`budget.errors.normal_form`). Each
+operation's error, to first order, is a small generator (Blume-Kohout et al., "A taxonomy of
 small Markovian errors", PRX Quantum 3, 020335 (2022)):
 
 - a Hamiltonian part H_op = Σ h_P P (the exact generator of the coherent unitary,
@@ -22,12 +23,10 @@ from typing import Callable, Iterable
 
 import numpy as np
 
-from budget.engines.matrices.apply import LocalOp, as_rows, embed, fuse
-from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
-from budget.pauli_algebra import Z as _Z
-from budget.pauli_algebra import pauli_labels, pauli_matrix, pauli_sum
-
-_SIGMA_MINUS = np.array([[0, 1], [0, 0]], dtype=complex)
+from budget.engines.matrices.apply import LocalOp, as_rows, fuse
+from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation
+from budget.errors.normal_form import idle_terms, jump_operators, operation_terms, relaxation_jumps, stochastic_process
+from budget.pauli_algebra import pauli_sum
 
 Grouping = Callable[[NoisyOperation], Iterable[tuple[object, dict[str, float]]]]
 """Maps an operation to (group key, Pauli generator {label: h_P}) pairs whose sum is H_op."""
@@ -84,27 +83,6 @@ class LayerContent:
     process_stochastic: dict[str, float]
 
 
-def _relaxation_jumps(r: Relaxation) -> list[tuple[np.ndarray, float]]:
-    out = []
-    if r.gamma > 0:
-        out.append((_SIGMA_MINUS, r.gamma))
-    if r.dephasing_factor < 1:
-        out.append((_Z, (1 - r.dephasing_factor) / 2))
-    return out
-
-
-def _operation_jumps(nop: NoisyOperation) -> list[tuple[np.ndarray, float]]:
-    """Pauli rates, depolarizing and relaxation of one operation, all on the operation's qubits."""
-    k = len(nop.qubits)
-    out = [(pauli_matrix(label), p) for label, p in nop.pauli_rates.items() if p > 0]
-    if nop.depolarizing > 0:
-        out += [(pauli_matrix(label), nop.depolarizing / 4**k) for label in pauli_labels(k)[1:]]
-    for r in nop.relaxation:
-        pos = nop.qubits.index(r.qubit)
-        out += [(embed(m, (pos,), k), p) for m, p in _relaxation_jumps(r)]
-    return out
-
-
 def _jump_set(qubits, items: list[tuple[np.ndarray, float]], family: str) -> JumpSet:
     ops = np.array([m for m, _ in items], dtype=complex)
     return JumpSet(
@@ -114,11 +92,6 @@ def _jump_set(qubits, items: list[tuple[np.ndarray, float]], family: str) -> Jum
         np.array([p for _, p in items], dtype=float),
         (family,) * len(items),
     )
-
-
-def _stochastic_process(nop: NoisyOperation) -> float:
-    total = sum(nop.pauli_rates.values()) + nop.depolarizing * (4 ** len(nop.qubits) - 1) / 4 ** len(nop.qubits)
-    return total + sum(sum(r.pauli_twirl()) for r in nop.relaxation if not r.is_trivial)
 
 
 def layer_content(layer: NoisyLayer, num_qubits: int, grouping: Grouping = by_family) -> LayerContent:
@@ -133,14 +106,15 @@ def layer_content(layer: NoisyLayer, num_qubits: int, grouping: Grouping = by_fa
         for key, h in grouping(nop):
             if h:
                 terms.setdefault(key, []).append((pauli_sum(h), nop.qubits))
-        if items := _operation_jumps(nop):
+        errors = operation_terms(nop)
+        if items := jump_operators(errors, nop.qubits):
             jumps.append(_jump_set(nop.qubits, items, nop.family))
-        if s := _stochastic_process(nop):
+        if s := stochastic_process(errors):
             stoch[nop.family] = stoch.get(nop.family, 0.0) + s
     for r in layer.idle:
-        if rj := _relaxation_jumps(r):
+        if rj := relaxation_jumps(r):
             jumps.append(_jump_set((r.qubit,), rj, IDLE))
-            stoch[IDLE] = stoch.get(IDLE, 0.0) + sum(r.pauli_twirl())
+            stoch[IDLE] = stoch.get(IDLE, 0.0) + stochastic_process(idle_terms(r))
     hams = {key: fuse(t, n, product=False) for key, t in terms.items()}
     generator = fuse([t for ts in terms.values() for t in ts], n, product=False) if len(terms) > 1 else next(iter(hams.values()), ())
     gate_list = tuple(LocalOp.of(m, qs) for m, qs in ideal)

@@ -5,7 +5,7 @@
 - coherent rows: each operation's Hamiltonian Σ h_P P as store rows, one column per group (gate
   family for budgets and shares, (family, knob) for the quadratic form);
 - jump sites (state metric): each operation's and idle qubit's jump operators L at probability p,
-  exactly those of the generators engine (:func:`budget.engines.matrices.channels._operation_jumps`: Pauli
+  exactly those of the generators engine (:func:`budget.errors.normal_form.operation_jumps`: Pauli
   rates, depolarizing λ/d² per Pauli, σ- at γ and Z at (1-c)/2 for relaxation), written in the local
   Pauli basis: L = Σ_v l_v P_v, L†L = Σ_v m_v P_v;
 - generator sites (observables): the local Heisenberg generator i[H, ·] + Σ p (L† · L - ½{L†L, ·});
@@ -20,10 +20,10 @@ from typing import Callable
 
 import numpy as np
 
-from budget.engines.matrices.channels import _operation_jumps, _relaxation_jumps, _stochastic_process
 from budget.engines.pauli._local import LocalMap, gate_map, generator_map, local_basis, local_label
 from budget.engines.pauli._store import Store, from_local
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation
+from budget.errors.normal_form import operation_jumps, operation_stochastic, relaxation_jumps
 from budget.memo import ObjectKey
 
 Grouping = Callable[[NoisyOperation], list[tuple[object, dict[str, float]]]]
@@ -162,7 +162,7 @@ class PlanBook:
     def _generator(self, nop: NoisyOperation) -> tuple[np.ndarray, float]:
         hit = self._gen_cache.get(ObjectKey(nop))
         if hit is None:
-            jumps = _operation_jumps(nop)
+            jumps = operation_jumps(nop)
             m = generator_map(nop.hamiltonian, jumps, len(nop.qubits))
             kappa = 2 * sum(abs(c) for c in nop.hamiltonian.values()) + 2 * sum(p for _, p in jumps)
             hit = self._gen_cache[ObjectKey(nop)] = (m, kappa)
@@ -176,9 +176,9 @@ class PlanBook:
         for nop in layer.operations:
             qs = nop.qubits
             qa, qb = qs[0], (qs[1] if len(qs) == 2 else -1)
-            if s := _stochastic_process(nop):
+            if s := operation_stochastic(nop):
                 stoch[nop.family] = stoch.get(nop.family, 0.0) + s
-            if self.jumps and (site := _jump_site(qa, qb, nop.family, _operation_jumps(nop))) is not None:
+            if self.jumps and (site := _jump_site(qa, qb, nop.family, operation_jumps(nop))) is not None:
                 sites.append(site)
             if self.generators and (nop.hamiltonian or nop.has_incoherent):
                 m, kap = self._generator(nop)
@@ -190,7 +190,7 @@ class PlanBook:
             if r.is_trivial:
                 continue
             stoch[IDLE] = stoch.get(IDLE, 0.0) + sum(r.pauli_twirl())
-            items = _relaxation_jumps(r)
+            items = relaxation_jumps(r)
             if self.jumps and (site := _jump_site(r.qubit, -1, IDLE, items)) is not None:
                 sites.append(site)
             if self.generators:
