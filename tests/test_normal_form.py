@@ -19,9 +19,9 @@ from budget.errors.noisy import NoisyOperation, Relaxation
 from budget.errors.normal_form import (
     TermKind,
     hamiltonian,
-    idle_terms,
+    idle_errors,
     jump_operators,
-    operation_terms,
+    operation_errors,
     relaxation_jumps,
     stochastic_process,
     stochastic_rates,
@@ -66,15 +66,15 @@ def test_first_order_infidelity_of_the_terms_matches_cirq(k):
     rng = np.random.default_rng(20261202 + k)
     for _ in range(6):
         nop = _random_operation(rng, k, 3e-3)
-        terms = operation_terms(nop)
-        first = sum(h * h for h in hamiltonian(terms).values()) + stochastic_process(terms)
+        errors = operation_errors(nop)
+        first = sum(h * h for h in hamiltonian(errors).values()) + stochastic_process(errors)
         exact = 1 - _cirq_process_fidelity(nop)
         assert first == pytest.approx(exact, rel=2e-3, abs=1e-12)
 
 
 def test_terms_carry_support_kind_and_source():
     nop = _random_operation(np.random.default_rng(5), 2, 1e-2)
-    terms = operation_terms(nop)
+    terms = operation_errors(nop).terms()
     kinds = [t.kind for t in terms]
     # channel order (noisy.py): Hamiltonian, stochastic (Pauli rates, then depolarizing), relaxation
     assert kinds == sorted(kinds, key=[TermKind.HAMILTONIAN, TermKind.STOCHASTIC, TermKind.RELAXATION].index)
@@ -82,9 +82,10 @@ def test_terms_carry_support_kind_and_source():
     assert all(t.source.family == "g" and t.source.site == (0, 1) and t.source.operation is nop for t in terms)
     assert {t.qubits for t in terms if t.kind is TermKind.RELAXATION} == {(0,), (1,)}
     r = Relaxation(4, 50.0, 1e-3, 0.999)
-    (idle,) = idle_terms(r)
+    (idle,) = idle_errors(r).terms()
     assert idle.source.family == "idle" and idle.qubits == (4,) and idle.source.operation is None
-    assert idle_terms(Relaxation(4, 0.0, 0.0, 1.0)) == ()
+    assert idle.kind is TermKind.RELAXATION and idle.relaxation is r
+    assert idle_errors(Relaxation(4, 0.0, 0.0, 1.0)) is None
 
 
 def test_relaxation_twirl_and_jumps():
@@ -93,8 +94,9 @@ def test_relaxation_twirl_and_jumps():
     t1, t2, t = 100e3, 80e3, 50.0
     gamma = 1 - np.exp(-t / t1)
     c = np.exp(-t * (1 / t2 - 1 / (2 * t1)))
-    (term,) = idle_terms(Relaxation(0, t, gamma, c))
-    rates = stochastic_rates((term,), (0,))
+    errors = idle_errors(Relaxation(0, t, gamma, c))
+    (term,) = errors.terms()
+    rates = stochastic_rates(errors)
     assert rates["X"] == pytest.approx(1.2496875520767725e-4, rel=1e-12)
     assert rates["Z"] == pytest.approx(1.8743360888417993e-4, rel=1e-12)
     # jumps: σ- at γ and Z at (1-c)/2; the Lindblad step reproduces cirq's channels to first order
@@ -110,6 +112,6 @@ def test_relaxation_twirl_and_jumps():
 def test_jump_operators_embed_a_one_qubit_term_in_its_site():
     r = Relaxation(1, 10.0, 1e-3, 1.0)
     nop = NoisyOperation(Operation("cz", (0, 1)), "cz", np.eye(4), {}, relaxation=(r,))
-    (m, p), = jump_operators(operation_terms(nop), nop.qubits)
+    (m, p), = jump_operators(operation_errors(nop))
     sigma_minus = np.array([[0, 1], [0, 0]])
     assert p == 1e-3 and np.array_equal(m, np.kron(np.eye(2), sigma_minus))  # second qubit, least significant

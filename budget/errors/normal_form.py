@@ -16,8 +16,10 @@ becomes:
   (Tomita & Svore, Phys. Rev. A 90, 062320 (2014)) keeps the process fidelity exact.
 
 Engines that work with first-order generators (generators, clifford, pauli) read an operation's
-or an idle qubit's errors only through :func:`operation_terms`, :func:`idle_terms` and the helpers
-below (:func:`jump_operators`, :func:`stochastic_rates`, :func:`stochastic_process`). A new error
+or an idle qubit's errors only through :func:`operation_errors`, :func:`idle_errors` (a
+:class:`SiteErrors`: the terms of one site grouped by kind, in channel order; ``terms()`` lists
+them one by one) and the helpers below (:func:`jump_operators`, :func:`stochastic_rates`,
+:func:`stochastic_process`). A new error
 mechanism is a new source of terms here (or a new term kind with its jump operators and twirl),
 not a change in every engine. The exact engine uses the exact channel of the same operation
 (:func:`budget.errors.fidelity.error_channel_kraus`).
@@ -25,14 +27,14 @@ not a change in every engine. The exact engine uses the exact channel of the sam
 >>> from budget.circuit.ir import Operation
 >>> import numpy as np
 >>> nop = NoisyOperation(Operation("x", (3,)), "x", np.eye(2), {"X": 0.01}, depolarizing=0.003)
->>> [(t.kind.value, t.qubits, t.label, round(t.value, 6)) for t in operation_terms(nop)][:2]
+>>> [(t.kind.value, t.qubits, t.label, round(t.value, 6)) for t in operation_errors(nop).terms()][:2]
 [('hamiltonian', (3,), 'X', 0.01), ('stochastic', (3,), 'X', 0.00075)]
 """
 
 from __future__ import annotations
 
 import enum
-from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 
@@ -51,8 +53,7 @@ class TermKind(enum.Enum):
     RELAXATION = "relaxation"
 
 
-@dataclass(frozen=True)
-class Source:
+class Source(NamedTuple):
     """Where a term comes from: its family (shares), its site (the qubits of the operation or the
     idle qubit, in gate order) and the operation (None for idle relaxation), whose knobs give the
     unit generators for sensitivities (``NoisyOperation.knob_generators``)."""
@@ -62,9 +63,9 @@ class Source:
     operation: NoisyOperation | None = None
 
 
-@dataclass(frozen=True)
-class ErrorTerm:
-    """One local error term (see module docstring).
+class ErrorTerm(NamedTuple):
+    """One local error term (see module docstring). A named tuple, not a dataclass: a 1,000-qubit
+    circuit has tens of thousands of distinct operations, and their terms are built once per run.
 
     Attributes:
         kind: the term's kind.
@@ -111,24 +112,53 @@ def relaxation_jumps(r: Relaxation) -> list[tuple[np.ndarray, float]]:
     return out
 
 
-def operation_terms(nop: NoisyOperation) -> tuple[ErrorTerm, ...]:
-    """The terms of one operation, in the order Hamiltonian, stochastic Pauli rates,
-    depolarizing, relaxation of each of its qubits (the order of the channel, noisy.py)."""
-    src = Source(nop.family, nop.qubits, nop)
-    k = len(nop.qubits)
-    out = [ErrorTerm(TermKind.HAMILTONIAN, nop.qubits, src, label, h) for label, h in nop.hamiltonian.items()]
-    out += [ErrorTerm(TermKind.STOCHASTIC, nop.qubits, src, label, p) for label, p in nop.pauli_rates.items()]
+class SiteErrors(NamedTuple):
+    """The terms of one site (an operation, or an idle qubit), grouped by kind in channel order.
+    A named tuple of tuples, so that building it costs about what reading the operation does.
+
+    Attributes:
+        source: family, site (the support of the site's terms, gate order) and operation.
+        hamiltonian: (label over the site, h_P) of the HAMILTONIAN terms.
+        stochastic: (label over the site, p_P) of the STOCHASTIC terms: the Pauli rates, then the
+            depolarizing channel as every non-identity Pauli at λ/d².
+        relaxation: the RELAXATION terms, each on its own qubit.
+    """
+
+    source: Source
+    hamiltonian: tuple[tuple[str, float], ...]
+    stochastic: tuple[tuple[str, float], ...]
+    relaxation: tuple[Relaxation, ...]
+
+    @property
+    def qubits(self) -> tuple[int, ...]:
+        return self.source.site
+
+    def terms(self) -> tuple[ErrorTerm, ...]:
+        """The site's terms one by one, each with its support, kind and source."""
+        qs, src = self.source.site, self.source
+        return (
+            *(ErrorTerm(TermKind.HAMILTONIAN, qs, src, lab, h) for lab, h in self.hamiltonian),
+            *(ErrorTerm(TermKind.STOCHASTIC, qs, src, lab, p) for lab, p in self.stochastic),
+            *(ErrorTerm(TermKind.RELAXATION, (r.qubit,), src, "", 0.0, r) for r in self.relaxation),
+        )
+
+
+def operation_errors(nop: NoisyOperation) -> SiteErrors:
+    """The terms of one operation: Hamiltonian, stochastic Pauli rates, depolarizing, relaxation
+    of each of its qubits (the order of the channel, noisy.py)."""
+    qs = nop.op.qubits
+    sto = tuple(nop.pauli_rates.items())
     if nop.depolarizing > 0:
-        out += [ErrorTerm(TermKind.STOCHASTIC, nop.qubits, src, label, nop.depolarizing / 4**k) for label in pauli_labels(k)[1:]]
-    out += [ErrorTerm(TermKind.RELAXATION, (r.qubit,), src, relaxation=r) for r in nop.relaxation]
-    return tuple(out)
+        p = nop.depolarizing / 4 ** len(qs)
+        sto += tuple((label, p) for label in pauli_labels(len(qs))[1:])
+    return SiteErrors(Source(nop.family, qs, nop), tuple(nop.hamiltonian.items()), sto, nop.relaxation)
 
 
-def idle_terms(r: Relaxation) -> tuple[ErrorTerm, ...]:
-    """The term of an idle qubit's relaxation (family ``"idle"``); none when it is trivial."""
+def idle_errors(r: Relaxation) -> SiteErrors | None:
+    """The relaxation term of an idle qubit (family ``"idle"``); None when it is trivial."""
     if r.is_trivial:
-        return ()
-    return (ErrorTerm(TermKind.RELAXATION, (r.qubit,), Source(IDLE, (r.qubit,)), relaxation=r),)
+        return None
+    return SiteErrors(Source(IDLE, (r.qubit,)), (), (), (r,))
 
 
 def _place(label: str, qubits: tuple[int, ...], site: tuple[int, ...]) -> str:
@@ -139,63 +169,58 @@ def _place(label: str, qubits: tuple[int, ...], site: tuple[int, ...]) -> str:
     return "".join(letters.get(q, "I") for q in site)
 
 
-def jump_operators(terms: tuple[ErrorTerm, ...], site: tuple[int, ...]) -> list[tuple[np.ndarray, float]]:
-    """(L on the site's qubits, probability) of every stochastic and relaxation term, in order.
-    Terms of a sub-support are embedded in the site (first qubit most significant)."""
-    out = []
-    for t in terms:
-        for m, p in t.jumps():
-            if t.kind is TermKind.STOCHASTIC and t.value <= 0:
-                continue
-            if t.qubits != site:
-                m = _embed(m, t.qubits, site)
-            out.append((m, p))
-    return out
-
-
 def _embed(m: np.ndarray, qubits: tuple[int, ...], site: tuple[int, ...]) -> np.ndarray:
     """``m`` on ``qubits`` as a matrix on ``site`` (a superset), first qubit most significant."""
     k, j = len(site), len(qubits)
+    if qubits == site:
+        return m
     pos = [site.index(q) for q in qubits]
-    rest = [i for i in range(k) if i not in pos]
+    order = pos + [i for i in range(k) if i not in pos]
+    inverse = list(np.argsort(order))
     full = np.kron(m, np.eye(2 ** (k - j), dtype=complex)).reshape((2,) * (2 * k))
-    order = pos + rest
-    inverse = np.argsort(order)
-    full = full.transpose(list(inverse) + [k + i for i in inverse])
-    return full.reshape(2**k, 2**k)
+    return full.transpose(inverse + [k + i for i in inverse]).reshape(2**k, 2**k)
 
 
-def stochastic_rates(terms: tuple[ErrorTerm, ...], site: tuple[int, ...]) -> dict[str, float]:
+def jump_operators(errors: SiteErrors) -> list[tuple[np.ndarray, float]]:
+    """(L on the site's qubits, probability) of every stochastic term (L = P, p > 0) and of every
+    relaxation (σ- at γ, Z at (1-c)/2, embedded in the site), in channel order."""
+    out = [(pauli_matrix(label), p) for label, p in errors.stochastic if p > 0]
+    for r in errors.relaxation:
+        out += [(_embed(m, (r.qubit,), errors.qubits), p) for m, p in relaxation_jumps(r)]
+    return out
+
+
+def stochastic_rates(errors: SiteErrors) -> dict[str, float]:
     """Label over the site's qubits -> first-order stochastic rate (stochastic terms plus the
-    Pauli twirl of relaxation), summed in the order of the terms."""
+    Pauli twirl of each relaxation), summed in channel order."""
     rates: dict[str, float] = {}
-    for t in terms:
-        for label, p in t.twirl().items():
-            key = _place(label, t.qubits, site)
+    for label, p in errors.stochastic:
+        rates[label] = rates.get(label, 0.0) + p
+    for r in errors.relaxation:
+        if r.is_trivial:
+            continue
+        for letter, p in zip("XYZ", r.pauli_twirl()):
+            key = _place(letter, (r.qubit,), errors.qubits)
             rates[key] = rates.get(key, 0.0) + p
     return rates
 
 
-def stochastic_process(terms: tuple[ErrorTerm, ...]) -> float:
-    """First-order process infidelity of the stochastic part: Σ p_P over stochastic terms plus
+def stochastic_process(errors: SiteErrors) -> float:
+    """First-order process infidelity of the stochastic part: Σ p_P over the stochastic terms plus
     p_x + p_y + p_z of each relaxation (its twirl; exact for the process fidelity)."""
-    return sum(sum(t.twirl().values()) for t in terms)
+    return sum(p for _, p in errors.stochastic) + sum(sum(r.pauli_twirl()) for r in errors.relaxation if not r.is_trivial)
+
+
+def hamiltonian(errors: SiteErrors) -> dict[str, float]:
+    """Pauli label over the site -> h_P of the Hamiltonian terms."""
+    return dict(errors.hamiltonian)
 
 
 def operation_jumps(nop: NoisyOperation) -> list[tuple[np.ndarray, float]]:
-    """:func:`jump_operators` of one operation's terms, on its own qubits."""
-    return jump_operators(operation_terms(nop), nop.qubits)
+    """:func:`jump_operators` of one operation, on its own qubits."""
+    return jump_operators(operation_errors(nop))
 
 
 def operation_stochastic(nop: NoisyOperation) -> float:
-    """:func:`stochastic_process` of one operation's terms."""
-    return stochastic_process(operation_terms(nop))
-
-
-def hamiltonian(terms: tuple[ErrorTerm, ...]) -> dict[str, float]:
-    """Pauli label -> h_P of the Hamiltonian terms (all on one support)."""
-    out: dict[str, float] = {}
-    for t in terms:
-        if t.kind is TermKind.HAMILTONIAN:
-            out[t.label] = out.get(t.label, 0.0) + t.value
-    return out
+    """:func:`stochastic_process` of one operation."""
+    return stochastic_process(operation_errors(nop))

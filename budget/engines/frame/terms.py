@@ -26,7 +26,7 @@ from typing import Callable
 import numpy as np
 
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
-from budget.errors.normal_form import hamiltonian, idle_terms, operation_terms, stochastic_rates
+from budget.errors.normal_form import hamiltonian, idle_errors, operation_errors, stochastic_rates
 from budget.pauli_algebra import label_bits
 
 
@@ -168,13 +168,13 @@ class TermBuilder:
                 idx = self.sources.labels.setdefault(lab, len(self.sources.labels))
                 unit.append((idx,) + _local(gen))
         qs = nop.op.qubits
-        errors = operation_terms(nop)
+        errors = operation_errors(nop)
         info = (
             self.sources.of_operation(nop, self.names),
             qs[0],
             qs[1] if len(qs) == 2 else -1,
             _local(hamiltonian(errors)),
-            _row16(stochastic_rates(errors, nop.qubits)),
+            _row16(stochastic_rates(errors)),
             unit,
             nop,  # keeps the object alive so its id stays unique
         )
@@ -184,7 +184,7 @@ class TermBuilder:
     def _idle_site(self, r: Relaxation) -> tuple:
         key = (r.qubit, r.gamma, r.dephasing_factor)
         if key not in self._idle:
-            rates = stochastic_rates(idle_terms(r), (r.qubit,))
+            rates = stochastic_rates(idle_errors(r))
             self._idle[key] = (self.sources.of_idle(r.qubit, self.names), r.qubit, -1, _row16(rates))
         return self._idle[key]
 

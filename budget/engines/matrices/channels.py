@@ -25,7 +25,7 @@ import numpy as np
 
 from budget.engines.matrices.apply import LocalOp, as_rows, fuse
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation
-from budget.errors.normal_form import idle_terms, jump_operators, operation_terms, relaxation_jumps, stochastic_process
+from budget.errors.normal_form import idle_errors, jump_operators, operation_errors, relaxation_jumps, stochastic_process
 from budget.pauli_algebra import pauli_sum
 
 Grouping = Callable[[NoisyOperation], Iterable[tuple[object, dict[str, float]]]]
@@ -106,15 +106,15 @@ def layer_content(layer: NoisyLayer, num_qubits: int, grouping: Grouping = by_fa
         for key, h in grouping(nop):
             if h:
                 terms.setdefault(key, []).append((pauli_sum(h), nop.qubits))
-        errors = operation_terms(nop)
-        if items := jump_operators(errors, nop.qubits):
+        errors = operation_errors(nop)
+        if items := jump_operators(errors):
             jumps.append(_jump_set(nop.qubits, items, nop.family))
         if s := stochastic_process(errors):
             stoch[nop.family] = stoch.get(nop.family, 0.0) + s
     for r in layer.idle:
         if rj := relaxation_jumps(r):
             jumps.append(_jump_set((r.qubit,), rj, IDLE))
-            stoch[IDLE] = stoch.get(IDLE, 0.0) + stochastic_process(idle_terms(r))
+            stoch[IDLE] = stoch.get(IDLE, 0.0) + stochastic_process(idle_errors(r))
     hams = {key: fuse(t, n, product=False) for key, t in terms.items()}
     generator = fuse([t for ts in terms.values() for t in ts], n, product=False) if len(terms) > 1 else next(iter(hams.values()), ())
     gate_list = tuple(LocalOp.of(m, qs) for m, qs in ideal)
