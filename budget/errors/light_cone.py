@@ -21,7 +21,8 @@ from __future__ import annotations
 import dataclasses
 from typing import Iterable, Sequence
 
-from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
+from budget.circuit.ir import Operation, StructuredCircuit
+from budget.circuit.walk import Kind, gate_kind
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat
 from budget.graph import flat_operations
 
@@ -32,12 +33,12 @@ def _select(items: Sequence, live: frozenset[int]) -> tuple[list[_Sel], frozense
     """The cone's part of ``items`` walked backwards from ``live``, and the live set before them."""
     out: list[_Sel] = []
     for it in reversed(items):
-        if isinstance(it, (Layer, NoisyLayer)):
+        if gate_kind(it, "light cone (gate layers and repeats only)") is Kind.LAYER:
             ops = tuple(op for op in it.operations if live.intersection(op.qubits))
             idle = tuple(r for r in getattr(it, "idle", ()) if r.qubit in live)
             live = live.union(q for op in ops for q in op.qubits)
             out.append(("layer", it, ops, idle))
-        elif isinstance(it, (Repeat, NoisyRepeat)):
+        else:
             remaining = int(it.count)
             while remaining:
                 body, before = _select(it.body, live)
@@ -47,8 +48,6 @@ def _select(items: Sequence, live: frozenset[int]) -> tuple[list[_Sel], frozense
                 out.append(("repeat", body, 1))
                 live = before
                 remaining -= 1
-        else:
-            raise TypeError(f"light cone: circuit item {type(it).__name__} is not supported (gate layers and repeats only)")
     out.reverse()
     return out, live
 
