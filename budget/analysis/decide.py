@@ -30,7 +30,6 @@ from budget.analysis.tolerances import ToleranceReport, check_target, tolerances
 from budget.circuit.walk import Kind, branches, kind_of
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.attach import attach
-from budget.errors.noisy import NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
 from budget.problems import InputError
 
 GROUPINGS: tuple[str, ...] = ("gate", "pair", "operation")

@@ -26,8 +26,9 @@ import dataclasses
 
 import numpy as np
 
+from budget.circuit.walk import unsupported_item
 from budget.memo import ObjectKey
-from budget.errors.noisy import IDLE, NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat
+from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyOperation, map_items
 
 SHARE_METHOD = "isolation: each family's errors alone, scaled to the joint value"
 
@@ -62,19 +63,14 @@ def only_family(circuit: NoisyCircuit, family: str) -> NoisyCircuit:
             )
         return out
 
-    def items(body: tuple[NoisyItem, ...]) -> tuple[NoisyItem, ...]:
-        out: list[NoisyItem] = []
-        for it in body:
-            if isinstance(it, NoisyLayer):
-                idle = it.idle if family == IDLE else ()
-                out.append(dataclasses.replace(it, operations=tuple(map(operation, it.operations)), idle=idle))
-            elif isinstance(it, NoisyRepeat):
-                out.append(NoisyRepeat(items(it.body), it.count))
-            else:  # the exact engine refuses mid-circuit items before it splits
-                raise TypeError(f"only_family: {type(it).__name__} is not a gate layer or a repeat")
-        return tuple(out)
+    def layer(it: NoisyLayer) -> NoisyLayer:
+        idle = it.idle if family == IDLE else ()
+        return dataclasses.replace(it, operations=tuple(map(operation, it.operations)), idle=idle)
 
-    return NoisyCircuit(circuit.qubits, items(circuit.body), dict(circuit.readout_error), circuit.source)
+    def probe(it):  # the exact engine refuses mid-circuit items before it splits
+        raise unsupported_item(it, "only_family (gate layers and repeats only)")
+
+    return NoisyCircuit(circuit.qubits, map_items(circuit.body, layer, probe), dict(circuit.readout_error), circuit.source)
 
 
 def scaled_shares(isolated: dict[str, float], total: float) -> dict[str, float]:

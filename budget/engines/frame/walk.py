@@ -328,7 +328,7 @@ class Walker(Visitor):
         second-order terms within one repetition), from the explicit terms of its first one; None
         when there are none or the body holds a repeated block (its fold weights are not in
         ``parts``)."""
-        if any(isinstance(it, NoisyRepeat) for it in rep.body):
+        if any(gate_kind(it, self.where) is Kind.REPEAT for it in rep.body):
             self.cycle_notes.append("a block folded by orbits holds a repeated block: its terms within a repetition stay first order")
             return None
         got = self.cycle_terms(parts)

@@ -51,7 +51,7 @@ from budget.engines.exact.engine import ExactEngine
 from budget.engines.generators.depth import RepeatSweep
 from budget.engines.matrices.periodic import coherent_infidelity
 from budget.errors.knobs import knob_grouping
-from budget.errors.noisy import NoisyCircuit
+from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.problems import TooLargeError
 
 MAX_STATE_QUBITS = 16
