@@ -245,6 +245,7 @@ def report(
     by_operation: bool = ByOperationOpt,
     hours: float = typer.Option(24.0, "--hours", min=0.001, help="Horizon of the calibration schedule section."),
     quiet: bool = QuietOpt,
+    width: Optional[int] = WidthOpt,
 ) -> None:
     """A report a group lead can read: HTML page (self-contained) and Markdown, with pictures."""
     from budget.report.render import report_files  # slow optional import: matplotlib draws the pictures
@@ -258,7 +259,7 @@ def report(
                       engine=engine.value, max_cycles=max_cycles, points=points,
                       family_by=grouping(by_pair, by_operation), hours=hours, progress=tick)
     written = write_folder(out, report_files(data))
-    console = make_console()
+    console = make_console(width=width)
     console.print(f"[bold]report written:[/] {escape(', '.join(str(p) for p in written))}", highlight=False, markup=True)
 
 

@@ -100,20 +100,29 @@ class Stream:
 
 def run_tasks(context: Context, tasks: list[tuple[tuple, list[float]]], stream: Stream, *, workers: int | None,
               scheduler: Any, progress: Callable[[int, int], None] | None) -> None:
-    """Evaluate the tasks not yet in ``stream``, in chunks, recording each result as it arrives."""
-    todo = [t for t in tasks if tuple(t[0]) not in stream.done]
-    total, done = len(tasks), len(tasks) - len(todo)
+    """Evaluate the tasks not yet in ``stream``, in chunks, recording each result as it arrives.
+
+    Tasks with the same values are evaluated once (a model with nothing uncertain, or a value that
+    does not drift, gives every sample the same model); each key still gets its own record."""
+    pending = [t for t in tasks if tuple(t[0]) not in stream.done]
+    total, done = len(tasks), len(tasks) - len(pending)
     if progress:
         progress(done, total)
-    if not todo:
+    if not pending:
         return
+    same: dict[tuple, list[tuple]] = {}
+    for key, values in pending:
+        same.setdefault(tuple(values), []).append(key)
+    todo = [(keys[0], list(values)) for values, keys in same.items()]
+    twins = {tuple(keys[0]): keys[1:] for keys in same.values()}
     workers = workers or os.cpu_count() or 1
     size = max(1, min(32, len(todo) // (4 * workers)))
     chunks = [todo[i:i + size] for i in range(0, len(todo), size)]
     for results in _results(context, chunks, workers, scheduler):
         for key, value in results:
-            stream.add(key, value)
-        done += len(results)
+            for k in (key, *twins[tuple(key)]):
+                stream.add(k, value)
+                done += 1
         if progress:
             progress(done, total)
 

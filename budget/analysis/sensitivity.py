@@ -144,11 +144,18 @@ class Sensitivity:
         return self.coherent + self.floor
 
 
-def sensitivity(qf: QuadraticForm, *, top_pairs: int = 8, min_overlap: float = 1e-6) -> Sensitivity:
+MIN_OVERLAP = 1e-3
+"""Weakest overlap listed as interference. By Cauchy-Schwarz the cross term is bounded by the two
+knobs' own contributions, |2 A_fg δ_f δ_g| <= |overlap| (A_ff δ_f² + A_gg δ_g²), so a pair below
+10⁻³ moves the infidelity by less than 0.1 % of what the two knobs cost alone (and its overlap
+would read ±0.000 at the three decimals the views show)."""
+
+
+def sensitivity(qf: QuadraticForm, *, top_pairs: int = 8, min_overlap: float = MIN_OVERLAP) -> Sensitivity:
     """Read a quadratic form: per-knob sensitivities and shares, and the strongest interference.
 
     Pairs are ranked by |overlap| (a property of the circuit, not of today's values), at most
-    ``top_pairs``, only those with |overlap| >= ``min_overlap``.
+    ``top_pairs``, only those with |overlap| >= ``min_overlap`` (:data:`MIN_OVERLAP`).
 
     >>> qf = QuadraticForm((("x", "overrotation"), ("sx", "overrotation")),
     ...                    np.array([[1.0, -0.5], [-0.5, 0.25]]), np.array([0.01, 0.01]), 1e-4, {"x": 1e-4})

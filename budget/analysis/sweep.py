@@ -59,7 +59,12 @@ class Distribution:
 
     @classmethod
     def of(cls, values: np.ndarray, target: float | None) -> "Distribution":
+        """Summary of ``values``; equal values (nothing varied) give that value and a spread of
+        exactly 0, not the last-bit noise of a floating-point mean and standard deviation."""
         v = np.asarray(values, float)
+        if v.size and np.all(v == v[0]):
+            x = float(v[0])
+            return cls(x, 0.0, x, x, x, 0.0, None if target is None else float(x <= target))
         std = float(v.std(ddof=1)) if v.size > 1 else 0.0
         q05, med, q95 = (float(x) for x in np.quantile(v, [0.05, 0.5, 0.95]))
         p = float(np.mean(v <= target)) if target is not None else None

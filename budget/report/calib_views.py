@@ -38,7 +38,8 @@ def render_sweep(result) -> Group:
     head = [
         Text.assemble(("uncertainty sweep: ", "bold"), f"{result.source}, {result.samples} samples; varied: {varied}"),
         Text(f"infidelity: mean {_e(d.mean)} ± {_e(d.mean_stderr)} (Monte Carlo error), std {_e(d.std)}, "
-             f"median {_e(d.median)}, 5-95 % [{_e(d.q05)}, {_e(d.q95)}]"),
+             f"median {_e(d.median)}, 5-95 % [{_e(d.q05)}, {_e(d.q95)}]") if d.q05 != d.q95 else
+        Text(f"infidelity: {_e(d.mean)} in every sample (nothing varies, so no spread)"),
     ]
     if result.unused:
         head.append(Text(f"not drawn (the circuit does not use them): {', '.join(result.unused)}", style="dim"))

@@ -20,6 +20,7 @@ from budget.analysis.sensitivity import Sensitivity
 from budget.analysis.tolerance_output import floor_message
 from budget.analysis.tolerances import NO_EFFECT, ToleranceReport
 from budget.errors.context_layers import knob_text
+from budget.report.fit import FitWidth
 from budget.report.terminal import fmt
 
 _STATUS = {"tighten": "bold red", "ok": "green", NO_EFFECT: "dim", "floor too high": "bold red"}
@@ -54,7 +55,7 @@ def sensitivity_view(s: Sensitivity, *, top: int = 15) -> Group:
     for k in s.knobs[:top]:
         frac = f"{100 * k.share / s.coherent:.1f} %" if s.coherent > 0 else "—"
         t.add_row(k.family, k.knob, _rad(k.current_rad, k.knob), fmt(k.per_rad2), fmt(k.share), frac)
-    parts: list = [t]
+    parts: list = [FitWidth(t)]
     if len(s.knobs) > top:
         parts.append(Text(f"… {len(s.knobs) - top} more knobs in the JSON output", style="dim"))
     if s.pairs:
@@ -65,7 +66,7 @@ def sensitivity_view(s: Sensitivity, *, top: int = 15) -> Group:
             style = "red" if pair.effect == "add up" else "green" if pair.effect == "cancel" else "dim"
             p.add_row(f"{pair.first} × {pair.second}", f"{pair.overlap:+.3f}", fmt(pair.cross_term),
                       Text(pair.effect, style=style))
-        parts.append(p)
+        parts.append(FitWidth(p))
     sources = ", ".join(f"{n} {fmt(v)}" for n, v in sorted(s.floor_sources.items(), key=lambda kv: -kv[1])[:4] if v > 0)
     parts.append(Text.assemble(
         ("coherent δᵀAδ ", "bold"), fmt(s.coherent), ("   incoherent floor s ", "bold"), fmt(s.floor),
@@ -130,7 +131,7 @@ def tolerance_view(report: ToleranceReport) -> Group:
             cells += [f"{r.sites_over} of {len(r.sites)}", _site_name(r) if r.sites_over else "—"]
         status = r.status + (" (2nd order)" if r.order == "second" else "")
         t.add_row(*cells, Text(status, style=_STATUS.get(r.status, "")))
-    parts.append(t if report.rows else Text("no coherent knob in this model: nothing to calibrate", style="dim"))
+    parts.append(FitWidth(t) if report.rows else Text("no coherent knob in this model: nothing to calibrate", style="dim"))
     if any(r.capped for r in report.rows):
         parts.append(Text("* capped at π: no tolerance below π reaches the target's share; this knob barely matters",
                           style="dim"))
@@ -160,7 +161,7 @@ def calibration_view(plan: CalibrationPlan, *, feasible: bool = True) -> Group:
         t.add_column(name, justify="left" if i < 2 else "right", no_wrap=i == 0)
     for r in rows:
         t.add_row(*r)
-    parts: list = [t] if plan.knobs else [] if not feasible else [
+    parts: list = [FitWidth(t)] if plan.knobs else [] if not feasible else [
         Text("no knob needs a calibration experiment for this target", style="green")]
     parts += [Text(f"not planned: {k}: {why}", style="yellow") for k, why in plan.unplanned.items()]
     parts.append(totals_line(plan, feasible=feasible))

@@ -1,0 +1,138 @@
+"""A new user's faults, round 3: each reproduction as a test.
+
+Sources: cirq unitaries for the process infidelity of an over-rotation (|Tr(U_ideal† U)|²/d²,
+Nielsen, Phys. Lett. A 303, 249 (2002)); the Cauchy-Schwarz inequality for the interference
+threshold; "tables a user can read at 80 columns" is common practice, no source.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import cirq
+import numpy as np
+import pytest
+from rich.console import Console
+from typer.testing import CliRunner
+
+import budget.analysis._sweep_exec as sweep_exec
+from budget.analysis.sensitivity import MIN_OVERLAP, sensitivity, sensitivity_json
+from budget.analysis.sweep import sweep
+from budget.cli import app
+from budget.engines.base import QuadraticForm
+from budget.report.decisions import sensitivity_view
+
+runner = CliRunner()
+ONE_SX = 'OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[1];\nsx q[0];\n'
+PAIR = ('OPENQASM 3.0;\ninclude "stdgates.inc";\nqubit[2] q;\nfor int i in [0:4] {\n  sx q[0]; sx q[1];\n'
+        '  cz q[0], q[1];\n  rz(0.3) q[1];\n}\n')
+PAIR_MODEL = ("[gates.sx]\nduration_ns = 30.0\noverrotation = 0.004\naxis_error = 0.002\n"
+              "[gates.cz]\nduration_ns = 60.0\ncphase = 0.01\nz_phase = [0.003, -0.002]\n[gates.rz]\nz_phase = 1e-4\n")
+
+
+def _text(renderable, width: int = 80) -> str:
+    console = Console(width=width, color_system=None)
+    with console.capture() as out:
+        console.print(renderable)
+    return out.get()
+
+
+# --- interference between knobs: no pair at rounding level, labelled "cancel" as -0.000 --------------
+
+def test_weak_overlap_is_not_listed_as_interference():
+    """An overlap of 1e-5 printed as "-0.000 … cancel"; now pairs below MIN_OVERLAP are left out of
+    the table and of the JSON alike, and every listed overlap reads as a non-zero number."""
+    a = np.array([[4.0, -1e-5 * 2 * 3], [-1e-5 * 2 * 3, 9.0]])  # overlap -1e-5
+    qf = QuadraticForm((("x", "overrotation"), ("cz", "cphase")), a, np.array([0.01, 0.02]), 0.0, {})
+    s = sensitivity(qf)
+    assert s.pairs == () and sensitivity_json(s)["interference"] == []
+    assert "0.000" not in _text(sensitivity_view(s))
+    a[0, 1] = a[1, 0] = -2e-3 * 6  # overlap -0.002: listed, and shown as such
+    s = sensitivity(QuadraticForm(qf.labels, a, qf.values_rad, 0.0, {}))
+    assert [p.overlap for p in s.pairs] == [pytest.approx(-2e-3)] and "-0.002" in _text(sensitivity_view(s))
+
+
+def test_overlap_threshold_bounds_the_cross_term():
+    """Cauchy-Schwarz: |2 A_fg δ_f δ_g| <= |overlap| (A_ff δ_f² + A_gg δ_g²), so a pair left out
+    moves the infidelity by under MIN_OVERLAP of what the two knobs cost alone (seeded forms)."""
+    rng = np.random.default_rng(3)
+    for _ in range(200):
+        m = rng.normal(size=(2, 2))
+        a, v = m @ m.T, rng.normal(0, 0.01, 2)
+        overlap = a[0, 1] / math.sqrt(a[0, 0] * a[1, 1])
+        assert abs(2 * a[0, 1] * v[0] * v[1]) <= abs(overlap) * (a[0, 0] * v[0] ** 2 + a[1, 1] * v[1] ** 2) + 1e-18
+    assert MIN_OVERLAP == 1e-3
+
+
+# --- a sweep where nothing varies: one evaluation, the value itself, no float noise --------------------
+
+def test_sweep_with_nothing_uncertain_is_exact_and_evaluates_once(tmp_path, monkeypatch):
+    """Every sample is the same model: the spread is exactly 0 (it printed 1e-19 noise), the value
+    is the process infidelity of the over-rotated gate (cirq), and the engine runs once, not 40
+    times (a 200-sample sweep took over 100 s on a 4-qubit Trotter loop)."""
+    circ = tmp_path / "c.qasm"
+    circ.write_text(ONE_SX)
+    delta = 0.03
+    calls = []
+    real = sweep_exec.evaluate
+    monkeypatch.setattr(sweep_exec, "evaluate", lambda ctx, chunk: calls.append(len(chunk)) or real(ctx, chunk))
+    out = tmp_path / "s.jsonl"
+    res = sweep(str(circ), {"gates": {"sx": {"overrotation": delta}}}, samples=40, hours=1.0, hour_points=3,
+                workers=1, out=str(out), target=0.5)
+    ideal, actual = cirq.unitary(cirq.rx(math.pi / 2)), cirq.unitary(cirq.rx(math.pi / 2 + delta))
+    expected = 1 - abs(np.trace(ideal.conj().T @ actual)) ** 2 / 4
+    d = res.now
+    assert d.mean == pytest.approx(expected, rel=1e-9)
+    assert (d.std, d.mean_stderr) == (0.0, 0.0) and d.mean == d.median == d.q05 == d.q95
+    assert d.p_meet_target == 1.0 and all(x.std == 0.0 for _, x in res.hours)
+    assert sum(calls) == 1
+    assert len(out.read_text().splitlines()) == 1 + 40 * 3  # every key still recorded (resume works)
+    again = sweep(str(circ), {"gates": {"sx": {"overrotation": delta}}}, samples=40, hours=1.0, hour_points=3,
+                  workers=1, out=str(out), target=0.5)
+    assert again.now == d and sum(calls) == 1  # resumed from the file: nothing evaluated again
+
+
+def test_sweep_view_says_nothing_varies(tmp_path):
+    circ, model = tmp_path / "c.qasm", tmp_path / "m.toml"
+    circ.write_text(ONE_SX)
+    model.write_text("[gates.sx]\noverrotation = 0.03\n")
+    res = runner.invoke(app, ["sweep", str(circ), "-e", str(model), "--samples", "5", "--workers", "1",
+                              "--width", "80"], catch_exceptions=False)
+    assert res.exit_code == 0, res.output
+    assert "in every sample (nothing varies" in res.output and "e-1" not in res.output
+
+
+# --- tables at 80 columns: no number cut to "0.0018…" -------------------------------------------------
+
+def test_cost_and_tolerance_tables_readable_at_80_columns(tmp_path):
+    """At 80 columns the cost table cut every number ("3.8…", "tig…") and the tolerance table its
+    knobs and tolerances; now rows that do not fit become one wrapped block each, and every number
+    of the JSON is in the text whole."""
+    circ, model, out = tmp_path / "c.qasm", tmp_path / "m.toml", tmp_path / "d.json"
+    circ.write_text(PAIR)
+    model.write_text(PAIR_MODEL)
+    res = runner.invoke(app, ["cost", str(circ), "-e", str(model), "-t", "1e-3", "--open-loop", "--width", "80",
+                              "--json", str(out)], catch_exceptions=False)
+    assert res.exit_code == 0, res.output
+    assert "…" not in res.output
+    text = " ".join(res.output.split())  # the blocks wrap at spaces
+    data = json.loads(out.read_text())
+    rows = data["tolerances"]
+    assert rows and all(r["knob"] in text and f"{r['tolerance_rad']:.4g}" in text for r in rows)
+    assert all(k["knob"] in text for k in data["calibration"]["knobs"])
+    assert "calibration experiments" in text and "device time:" in text
+    wide = runner.invoke(app, ["cost", str(circ), "-e", str(model), "-t", "1e-3", "--open-loop", "--width", "200"],
+                         catch_exceptions=False)
+    assert "┃ family" in wide.output  # wide terminals keep the table
+
+
+def test_report_takes_a_width(tmp_path):
+    circ, model = tmp_path / "c.qasm", tmp_path / "m.toml"
+    circ.write_text(ONE_SX)
+    model.write_text("[gates.sx]\noverrotation = 0.03\n")
+    res = runner.invoke(app, ["report", str(circ), "-e", str(model), "-t", "0.01", "--out", str(tmp_path / "r"),
+                              "--max-cycles", "10", "--points", "2", "-q", "--width", "200"], catch_exceptions=False)
+    assert res.exit_code == 0, res.output
+    assert max(len(line) for line in res.output.splitlines()) > 80  # one line, not wrapped at the default
