@@ -13,7 +13,7 @@ import numpy as np
 from budget.analysis.compensate import engine_value, first_order_value
 from budget.errors.context_layers import knob_text
 from budget.report.blocks import Block, Figure, Heading, Para, Table
-from budget.report.content import minutes, num
+from budget.report.content import fixed, minutes, num
 from budget.report.extras import Band, Extras
 from budget.report.plots import _STYLE, _svg, COLOURS, GRID, INK
 
@@ -89,7 +89,7 @@ def _compensation_blocks(extras: Extras) -> list[Block]:
                      (False, True, True)))
     if c.corrections:
         out.append(Table(("qubit", "where", "angle (rad)"),
-                         tuple((k.qubit, k.where, f"{k.angle_rad:+.6f}") for k in c.corrections), (False, False, True)))
+                         tuple((k.qubit, k.where, fixed(k.angle_rad, 6, sign=True)) for k in c.corrections), (False, False, True)))
     else:
         out.append(Para("No virtual-Z correction lowers the leading-order infidelity."))
     return out

@@ -12,6 +12,7 @@ from rich.text import Text
 
 from budget.analysis.compensate import engine_value, first_order_value
 from budget.errors.context_layers import knob_text
+from budget.report.content import fixed
 
 CAUTION = "Numbers are model predictions, to be confirmed on the device; local lab practice decides."
 
@@ -84,7 +85,7 @@ def render_compensation(result) -> Group:
         for col in ("qubit", "where", "angle (rad)"):
             c.add_column(col, justify="right" if col.startswith("angle") else "left")
         for k in result.corrections:
-            c.add_row(k.qubit, k.where, f"{k.angle_rad:+.6f}")
+            c.add_row(k.qubit, k.where, fixed(k.angle_rad, 6, sign=True))
         parts.append(c)
     else:
         parts.append(Text("no virtual-Z correction lowers the leading-order infidelity"))

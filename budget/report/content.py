@@ -90,6 +90,15 @@ def short_name(source: str) -> str:
     return source.replace("\\", "/").rsplit("/", 1)[-1]
 
 
+def fixed(x: float, digits: int = 1, *, sign: bool = False) -> str:
+    """``x`` with ``digits`` decimals, never "-0.0": a value that rounds to zero prints as 0.
+
+    >>> fixed(-1e-5, 3, sign=True), fixed(-0.04), fixed(-0.06), fixed(2e-7, 6, sign=True)
+    ('+0.000', '0.0', '-0.1', '+0.000000')
+    """
+    return f"{round(x, digits) + 0.0:{'+' if sign else ''}.{digits}f}"  # + 0.0 turns -0.0 into 0.0
+
+
 def num(x: float | None, digits: int = 3) -> str:
     """A number for people: 0.0123, 1.23e-05, '—' for missing."""
     if x is None:

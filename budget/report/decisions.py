@@ -21,6 +21,7 @@ from budget.analysis.tolerance_output import floor_message
 from budget.analysis.tolerances import NO_EFFECT, ToleranceReport
 from budget.errors.context_layers import knob_text
 from budget.report.fit import FitWidth
+from budget.report.content import fixed
 from budget.report.terminal import fmt
 
 _STATUS = {"tighten": "bold red", "ok": "green", NO_EFFECT: "dim", "floor too high": "bold red"}
@@ -53,7 +54,7 @@ def sensitivity_view(s: Sensitivity, *, top: int = 15) -> Group:
                         ("share", True), ("of coherent", True)):
         t.add_column(name, justify="right" if right else "left")
     for k in s.knobs[:top]:
-        frac = f"{100 * k.share / s.coherent:.1f} %" if s.coherent > 0 else "—"
+        frac = f"{fixed(100 * k.share / s.coherent)} %" if s.coherent > 0 else "—"
         t.add_row(k.family, k.knob, _rad(k.current_rad, k.knob), fmt(k.per_rad2), fmt(k.share), frac)
     parts: list = [FitWidth(t)]
     if len(s.knobs) > top:
@@ -64,7 +65,7 @@ def sensitivity_view(s: Sensitivity, *, top: int = 15) -> Group:
             p.add_column(name, justify="right" if right else "left")
         for pair in s.pairs:
             style = "red" if pair.effect == "add up" else "green" if pair.effect == "cancel" else "dim"
-            p.add_row(f"{pair.first} × {pair.second}", f"{pair.overlap:+.3f}", fmt(pair.cross_term),
+            p.add_row(f"{pair.first} × {pair.second}", fixed(pair.overlap, 3, sign=True), fmt(pair.cross_term),
                       Text(pair.effect, style=style))
         parts.append(FitWidth(p))
     sources = ", ".join(f"{n} {fmt(v)}" for n, v in sorted(s.floor_sources.items(), key=lambda kv: -kv[1])[:4] if v > 0)

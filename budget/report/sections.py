@@ -13,7 +13,7 @@ from budget.analysis.result import naive_words
 from budget.errors.context_layers import knob_label, knob_text
 from budget.report.blocks import Block, Figure, Heading, Para, Table, Tiles
 from budget.report.calib_sections import blocks as calibration_blocks
-from budget.report.content import CAUTION_WORDS, ENGINE_WORDS, ReportData, minutes, num, short_name, summary_words, verdict
+from budget.report.content import CAUTION_WORDS, ENGINE_WORDS, ReportData, fixed, minutes, num, short_name, summary_words, verdict
 
 
 def build(data: ReportData, figures: dict[str, str]) -> list[Block]:
@@ -136,7 +136,7 @@ def _shares(data: ReportData, figures: dict[str, str]) -> list[Block]:
     total = r.actual_infidelity
     out.append(Table(
         ("family", "operations executed", "share", "of total"),
-        tuple((f.name, f"{f.operations:,}", num(f.share), f"{100 * f.share / total:.1f} %" if _meaningful(total) else "—")
+        tuple((f.name, f"{f.operations:,}", num(f.share), f"{fixed(100 * f.share / total)} %" if _meaningful(total) else "—")
               for f in r.families),
         (False, True, True, True),
     ))
@@ -184,7 +184,7 @@ def _error_map(data: ReportData, figures: dict[str, str]) -> list[Block]:
     if hot:
         out.append(Table(
             ("qubit", "layer", "local infidelity", "of map total"),
-            tuple((q, col, num(v), f"{100 * v / m.total:.1f} %" if _meaningful(m.total) else "—") for q, col, v in hot),
+            tuple((q, col, num(v), f"{fixed(100 * v / m.total)} %" if _meaningful(m.total) else "—") for q, col, v in hot),
             (False, False, True, True),
         ))
     if m.note:

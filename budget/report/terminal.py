@@ -9,6 +9,7 @@ from rich.text import Text
 
 from budget.analysis.ratios import at_rounding_level
 from budget.analysis.result import CAUTION, BudgetResult, naive_words
+from budget.report.content import fixed
 from budget.report.detector_views import detector_views
 
 _METRIC_WORDS = {
@@ -78,7 +79,7 @@ def families_table(result: BudgetResult, *, width: int = 24) -> Table:
         if not result.shows_shares:
             t.add_row(f.name, f"{f.operations:,}", "—", "—", "")
             continue
-        pct = f"{100 * f.share / total:.1f} %" if total > 0 and not at_rounding_level(total) else "—"
+        pct = f"{fixed(100 * f.share / total)} %" if total > 0 and not at_rounding_level(total) else "—"
         n = int(round(width * abs(f.share) / peak))
         bar = Text("█" * n, style="cyan" if f.share >= 0 else "magenta")
         t.add_row(f.name, f"{f.operations:,}", fmt(f.share), pct, bar)
