@@ -14,6 +14,7 @@ from pathlib import Path
 import cirq
 import numpy as np
 import pytest
+import stim
 from rich.console import Console
 from typer.testing import CliRunner
 
@@ -136,3 +137,38 @@ def test_report_takes_a_width(tmp_path):
                               "--max-cycles", "10", "--points", "2", "-q", "--width", "200"], catch_exceptions=False)
     assert res.exit_code == 0, res.output
     assert max(len(line) for line in res.output.splitlines()) > 80  # one line, not wrapped at the default
+
+
+# --- stim's own memory circuit: leading resets and the logical-observable line ------------------------
+
+def _stim_repetition(tmp_path: Path) -> tuple[Path, Path, int]:
+    c = stim.Circuit.generated("repetition_code:memory", distance=3, rounds=3, after_clifford_depolarization=0)
+    circ, model = tmp_path / "rep3.qasm", tmp_path / "m.toml"
+    circ.write_text(c.to_qasm(open_qasm_version=3, skip_dets_and_obs=True))
+    model.write_text("[qubits]\nt1_us = 100.0\nt2_us = 80.0\nreadout_error = 0.01\n"
+                     "[gates.cx]\nduration_ns = 40.0\navg_infidelity = 0.005\n")
+    return circ, model, c.num_observables
+
+
+def test_leading_reset_is_named_without_calling_it_mid_circuit(tmp_path):
+    """stim's memory circuits start with resets; the gate metrics refuse them in one line that names
+    the reset and its line, without calling a first statement 'the middle of the circuit'."""
+    circ, model, _ = _stim_repetition(tmp_path)
+    res = runner.invoke(app, ["analyze", str(circ), "-e", str(model)])
+    assert res.exit_code == 2
+    line = res.output.strip()
+    assert "\n" not in line and "rep3.qasm:" in line and "reset" in line and "middle" not in line
+    assert "--metric detectors" in line
+
+
+def test_logical_observable_line_counts_observables_like_stim(tmp_path):
+    """The detectors view says how many logical observables were inferred; stim's generator declares
+    the same number for its memory circuit (one for the repetition code), and the JSON agrees."""
+    circ, model, declared = _stim_repetition(tmp_path)
+    out = tmp_path / "d.json"
+    res = runner.invoke(app, ["analyze", str(circ), "-e", str(model), "--metric", "detectors", "--json", str(out)])
+    assert res.exit_code == 0, res.output
+    data = json.loads(out.read_text())
+    assert len(data["logical_observables"]) == declared == 1
+    text = " ".join(res.output.split())
+    assert f"{declared} logical observable " in text

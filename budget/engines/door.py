@@ -148,8 +148,8 @@ def choose(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: boo
     if metric in GATE_METRICS and circuit.has_mid_circuit:
         item = circuit.first_mid_circuit().item
         raise InputError(
-            f"{place(circuit.source, item.line)}: {item_kind(item)} in the middle of the circuit: the {metric} "
-            "metric needs a gate-only circuit; use --metric detectors or --metric record"
+            f"{place(circuit.source, item.line)}: {item_kind(item)}: the {metric} metric needs gates only (measurements "
+            "at the very end are fine; no reset, mid-circuit measurement or if); use --metric detectors or --metric record"
         )
     if name != "auto":
         if name not in ENGINE_NAMES:

@@ -86,7 +86,11 @@ def tolerance_view(report: ToleranceReport) -> Group:
     head.add_column(justify="right")
     head.add_column(style="dim")
     head.add_row("target", fmt(report.target), f"{report.metric} infidelity")
-    head.add_row("incoherent floor", fmt(report.incoherent_floor), "not reachable by calibration")
+    floor_note = "not reachable by calibration"
+    if report.incoherent_floor >= 1.0:  # a first-order sum, no longer a probability
+        floor_note += ("; a first-order sum of incoherent rates, at or above 1: the incoherent errors alone "
+                       "leave nothing of the ideal output")
+    head.add_row("incoherent floor", fmt(report.incoherent_floor), floor_note)
     if report.feasible:
         head.add_row("coherent budget", fmt(report.coherent_budget), f"{how}; {split}")
     else:  # E - s < 0: no budget is left for coherent errors (never printed as a negative budget)

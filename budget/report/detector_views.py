@@ -53,8 +53,10 @@ def detector_views(result: BudgetResult, *, rows: int = 8, max_rounds: int = 40)
                 lines.append(Text(f"  … {len(rounds) - len(shown)} rounds not shown", style="dim"))
         out.extend(lines)
         if result.logical:
-            out.append(Text(f"logical observables (not checks): "
-                            + "; ".join(",".join(map(str, o)) for o in result.logical), style="dim"))
+            n = len(result.logical)
+            out.append(Text(f"{n} logical observable{'s' if n != 1 else ''} (deterministic parities that are not "
+                            "checks), by measurement index: "
+                            + "; ".join("m" + "+m".join(map(str, o)) for o in result.logical), style="dim"))
     if result.metric == "record" and result.record_bits:
         t = Table(title="recorded bits the ideal circuit fixes", title_justify="left")
         t.add_column("bit", justify="right")

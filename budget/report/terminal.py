@@ -9,7 +9,7 @@ from rich.text import Text
 
 from budget.analysis.ratios import at_rounding_level
 from budget.analysis.result import CAUTION, BudgetResult, naive_words
-from budget.report.content import fixed
+from budget.report.content import fixed, num
 from budget.report.detector_views import detector_views
 
 _METRIC_WORDS = {
@@ -21,11 +21,11 @@ _METRIC_WORDS = {
 
 
 def fmt(x: float | None, digits: int = 3) -> str:
-    """A number in engineering-friendly form: 1.23e-04, 0.0123, or '—' for missing."""
-    if x is None:
-        return "—"
-    if x == 0:
-        return "0"
+    """A number in engineering-friendly form: 1.23e-04, 0.0123, or '—' for missing (one digit more
+    than the markdown and HTML views' :func:`budget.report.content.num` between 1e-3 and 1e4, where
+    a terminal reader compares values side by side; NaN and infinities as there)."""
+    if x is None or x == 0 or x != x or x in (float("inf"), float("-inf")):
+        return num(x, digits)
     if 1e-3 <= abs(x) < 1e4:
         return f"{x:.{digits + 1}g}"
     return f"{x:.{digits - 1}e}"
