@@ -40,6 +40,7 @@ import numpy as np
 from budget.circuit.walk import Kind, gate_kind
 from budget.engines.pauli._fold import fold
 from budget.engines.pauli._plan import LayerPlan, PlanBook
+from budget.engines.pauli._rotate import rotate
 from budget.engines.pauli._store import Store, conjugate, from_local, generate
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 
@@ -120,6 +121,8 @@ class Sweep:
         self.terms_max = 0
         self.stochastic: dict[str, float] = {}
         self.blocks: list[dict] = []
+        self.block_of: list[int] = []  # id of the repeat each report is about (its origin if cut)
+        self.origin: dict[int, NoisyRepeat] = {}  # id(piece) -> the repeat a cut piece came from
         self.layers_walked = 0
         self.every = TRUNCATE_EVERY
         self._since = 0
@@ -203,11 +206,13 @@ class Sweep:
 
     def _conjugate(self, plan: LayerPlan) -> None:
         for cls in plan.classes:
-            self.coh = conjugate(self.coh, cls.lmap, cls.qa, cls.qb)
-            if self.pull:
-                self.tags = conjugate(self.tags, cls.lmap, cls.qa, cls.qb)
-                self.obs = conjugate(self.obs, cls.lmap, cls.qa, cls.qb)
-                self.err = conjugate(self.err, cls.lmap, cls.qa, cls.qb)
+            names = ("coh", "tags", "obs", "err") if self.pull else ("coh",)
+            for name in names:
+                st = getattr(self, name)
+                if cls.axis is not None:
+                    setattr(self, name, rotate(st, cls.lmap.matrix, cls.axis, cls.mask))
+                else:
+                    setattr(self, name, conjugate(st, cls.lmap, cls.qa, cls.qb))
 
     # -- merging and truncation ---------------------------------------------------------------
 
@@ -267,9 +272,15 @@ class Sweep:
             self._items(rep.body)
             if k + 1 < count and self._fixed(before):
                 self._skip(before, count - k - 1)
-                self.blocks.append({"count": count, "mode": "fixed point", "cycles_walked": k + 1})
+                self.note_block(rep, {"mode": "fixed point", "cycles_walked": k + 1})
                 return
-        self.blocks.append({"count": count, "mode": "cycles", "cycles_walked": count})
+        self.note_block(rep, {"mode": "cycles", "cycles_walked": count})
+
+    def note_block(self, rep: NoisyRepeat, entry: dict) -> None:
+        """Report how a repeated block was handled (count: of the block it was cut from, if cut)."""
+        whole = self.origin.get(id(rep), rep)
+        self.blocks.append({"count": int(whole.count), **entry})
+        self.block_of.append(id(whole))
 
     def _fixed(self, b: SimpleNamespace) -> bool:
         return (

@@ -29,6 +29,7 @@ from budget.engines.matrices.channels import by_family
 from budget.engines.frame.groups import budget_result, size_warning
 from budget.engines.base import METRICS, Engine, EngineResult, Metric, QuadraticForm, parse_observable
 from budget.engines.details import Details, Drilldown, Folding, Parts, Truncation
+from budget.engines.pauli._meet import meet
 from budget.engines.pauli._plan import PlanBook
 from budget.engines.pauli._readout import coherent_budget, first_order_bound, group_amplitudes, jump_costs, zero_readout
 from budget.engines.pauli._sweep import OutOfTime, Sweep, TooManyTerms
@@ -163,12 +164,14 @@ class PauliEngine(Engine):
         columns = {f: i for i, f in enumerate(families)}
         scale = np.ones(len(families))
         state = metric == "state"
-        direction = "pull" if state else "push"
-        book = PlanBook(n, direction, by_family, columns, jumps=state, generators=state and bool(letters))
-        sweep = Sweep(n, book, eps, scale=scale, observables=letters if state else (), deadline=deadline,
-                      tag_scale=_tag_scale(circuit) if state else 1.0,
-                      kappa_total=_kappa_total(book, circuit) if state and letters else 0.0)
-        sweep.run(circuit.body)
+        if state:
+            book = PlanBook(n, "pull", by_family, columns, jumps=True, generators=bool(letters))
+            sweep = Sweep(n, book, eps, scale=scale, observables=letters, deadline=deadline,
+                          tag_scale=_tag_scale(circuit), kappa_total=_kappa_total(book, circuit) if letters else 0.0)
+            sweep.run(circuit.body)
+        else:
+            sweep = meet(circuit.body, lambda way: Sweep(
+                n, PlanBook(n, way, by_family, columns, jumps=False, generators=False), eps, scale=scale, deadline=deadline))
         if state:
             values = zero_readout(sweep.tags, sweep.tag_count)
             costs, tag_bound = jump_costs(sweep.occurrences, values, sweep.tag_dropped)
@@ -262,9 +265,12 @@ class PauliEngine(Engine):
         scale = np.where(vals != 0, np.abs(vals), nonzero.mean() if len(nonzero) else 1.0)
         state = metric == "state"
         n = circuit.num_qubits
-        book = PlanBook(n, "pull" if state else "push", grouping, columns, jumps=False, generators=False)
-        sweep = Sweep(n, book, budget_pass.eps, scale=scale)
-        sweep.run(circuit.body)
+        if state:
+            sweep = Sweep(n, PlanBook(n, "pull", grouping, columns, jumps=False, generators=False), budget_pass.eps, scale=scale)
+            sweep.run(circuit.body)
+        else:
+            sweep = meet(circuit.body, lambda way: Sweep(
+                n, PlanBook(n, way, grouping, columns, jumps=False, generators=False), budget_pass.eps, scale=scale))
         b = group_amplitudes(sweep.coh, state=state)
         a = (b.conj().T @ b).real if len(b) else np.zeros((len(labels), len(labels)))
         sto = budget_pass.budget.stochastic_shares
