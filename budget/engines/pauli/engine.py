@@ -21,15 +21,18 @@ and the time budget allows.
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from budget.engines.matrices.channels import by_family
-from budget.engines.frame.groups import budget_result, size_warning
-from budget.engines.base import METRICS, Engine, EngineResult, Metric, QuadraticForm, parse_observable
-from budget.engines.details import Details, Drilldown, Folding, Parts, Truncation
+from budget.engines.frame.groups import Budget, budget_result, size_warning
+from budget.engines.base import METRICS, Engine, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
+from budget.engines.clifford.second import PAIR_BUDGET, TooCostly
+from budget.engines.details import Details, Drilldown, Folding, Parts, Truncation, Validity
+from budget.engines.orders import cancellation_note, second_order_share, term_norm_sum, term_square_sum, validity_details
 from budget.engines.pauli._meet import meet
+from budget.engines.pauli._store import Store
 from budget.engines.pauli._plan import PlanBook
 from budget.engines.pauli._readout import coherent_budget, first_order_bound, group_amplitudes, jump_costs, zero_readout
 from budget.engines.pauli._sweep import OutOfTime, Sweep, TooManyTerms
@@ -50,6 +53,10 @@ BRIEF_BUDGET_S = 5.0
 """Tightening budget of :meth:`PauliEngine.brief`."""
 TIGHTEN = 4.0
 """Each tightening divides the threshold by this factor."""
+CANCELLED = 0.1
+"""First order below this fraction of Σ_t ‖G_t‖² counts as cancelled (the clifford engine's test)."""
+CHEAP_TERMS = 5000
+"""Largest rows held by the first pass for which the second order is always formed."""
 MAX_EXECUTED_LAYERS = 10**6
 """Executed layers walked at most (repeats run cycle by cycle unless folded)."""
 
@@ -112,19 +119,23 @@ class PauliEngine(Engine):
     capabilities = frozenset({"observables", "quadratic_form"})
     folds_repeats = False  # non-Clifford repeats are walked cycle by cycle (a fixed point ends them early)
 
-    def __init__(self, *, truncate: float | None = None, target: float = TARGET, time_budget_s: float = TIME_BUDGET_S):
+    def __init__(self, *, truncate: float | None = None, target: float = TARGET, time_budget_s: float = TIME_BUDGET_S,
+                 second_order: bool = True):
         if truncate is not None and not (truncate >= 0 and np.isfinite(truncate)):
             raise InputError(f"truncate = {truncate!r}: expected a number >= 0 (0 keeps every term)")
         self.truncate, self.target, self.time_budget_s = truncate, target, time_budget_s
+        self.second_order = second_order
 
     def configure(self, *, truncate: float | None = None, **_ignored) -> "PauliEngine":
         """The same engine with another threshold (the CLI's ``--truncate``)."""
-        return PauliEngine(truncate=truncate, target=self.target, time_budget_s=self.time_budget_s)
+        return PauliEngine(truncate=truncate, target=self.target, time_budget_s=self.time_budget_s,
+                           second_order=self.second_order)
 
     def brief(self) -> "PauliEngine":
         """The same engine with at most BRIEF_BUDGET_S for tightening the threshold (depth curves,
         twirled variants and ensembles run it many times)."""
-        return PauliEngine(truncate=self.truncate, target=self.target, time_budget_s=min(self.time_budget_s, BRIEF_BUDGET_S))
+        return PauliEngine(truncate=self.truncate, target=self.target, time_budget_s=min(self.time_budget_s, BRIEF_BUDGET_S),
+                           second_order=self.second_order)
 
     def fits(self, circuit: NoisyCircuit, metric: Metric, observables: tuple[str, ...] = ()) -> str | None:
         """None unless the circuit has mid-circuit items (measurement, reset, if) or executes more
@@ -202,21 +213,83 @@ class PauliEngine(Engine):
     def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
         """First-order and resummed infidelity, family shares, observables, truncation bound."""
         self._check(circuit, metric)
+        if not circuit.has_errors:
+            for label in observables:
+                self._observable(circuit, label)
+            return zero_result(self.name, metric, tuple(observables))
         result, notes = self._tightened(circuit, metric, tuple(observables))
-        b = result.budget
+        b, validity, more = self._leading(circuit, metric, result)
         shares = {f: float(v) for f, v in zip(result.families, b.shares)}
-        warnings = list(notes) + size_warning(b)
+        warnings = list(notes) + more + size_warning(b)
         details = Details(
-            parts=Parts(coherent_first_order=b.coherent, coherent_exponentiated=b.coherent_resummed,
+            parts=Parts(coherent_first_order=result.budget.coherent, coherent_exponentiated=b.coherent_resummed,
                         stochastic_first_order=b.stochastic, coherent_groups=b.groups,
                         max_group_amplitude_rad=b.max_amplitude),
+            validity=validity,
             truncation=Truncation(truncation_bound=result.bound, truncation_bound_jumps=result.jump_bound,
                                   truncate=result.eps, pauli_terms_max=result.terms_max,
                                   observable_truncation_bounds=result.observable_bounds or None),
             folding=Folding(repeated_blocks=tuple(result.blocks)),
-            drilldown=Drilldown(first_order_family_shares={f: float(v) for f, v in zip(result.families, b.first_order_shares)}),
+            drilldown=Drilldown(first_order_family_shares={
+                f: float(v) for f, v in zip(result.families, result.budget.first_order_shares)}),
         )
-        return budget_result(self.name, metric, b, shares, warnings, details, result.observables)
+        out = budget_result(self.name, metric, b, shares, warnings, details, result.observables)
+        return replace(out, first_order=float(result.budget.first_order))
+
+    @staticmethod
+    def _observable(circuit: NoisyCircuit, label: str) -> dict[int, str]:
+        try:
+            return parse_observable(label, circuit.num_qubits)
+        except ValueError as err:
+            raise InputError(f"{circuit.source}: {err}") from None
+
+    def _leading(self, circuit: NoisyCircuit, metric: str, result: PassResult) -> tuple[Budget, Validity | None, list[str]]:
+        """The budget to report: with the second-order (commutator) term of the effective generator
+        when the first order looks cancelled (its coherent sum below CANCELLED x what the terms would
+        give landing apart) or the sums are small (at most CHEAP_TERMS rows), else the first order;
+        with the validity details of :mod:`budget.engines.orders` and its warnings."""
+        first = result.budget
+        if not self.second_order:
+            return first, None, []
+        squares = term_square_sum(circuit)
+        cancelled = first.coherent < CANCELLED * squares
+        if not (cancelled or result.terms_max <= CHEAP_TERMS) or squares == 0.0:
+            return first, Validity(second_order="not formed (costly, and the first order shows no cancellation)"), []
+        try:
+            coh = self._second_sum(circuit, metric, result.eps)
+        except TooCostly:
+            warn = ["the first-order error terms largely cancel and their second-order (commutator) terms were too "
+                    "many to form: the result may be far too small"] if cancelled else []
+            return first, Validity(second_order=f"not formed (more than {PAIR_BUDGET:.0e} pair operations)"), warn
+        b = coherent_budget(coh, first.stochastic_shares, state=metric == "state")
+        share = second_order_share(b.coherent_resummed, first.coherent_resummed)
+        sizes = term_norm_sum(circuit)
+        cancellation = float(np.sqrt(first.coherent)) / sizes if sizes > 0 else 1.0
+        validity = replace(validity_details(share, cancellation, float(np.sqrt(first.coherent)), None),
+                           coherent_without_second_order=first.coherent_resummed + 0.0)
+        notes = [note] if (note := cancellation_note(share, cancellation, engine=self.name)) else []
+        size = float(np.sum(coh.total() ** 2))  # what H_1 + H_2 would cost the process metric
+        if metric == "state" and cancellation < 0.1 and size > 0 and b.coherent < 0.01 * size:
+            validity = replace(validity, rests_on_cancellation=True)
+            notes.append(
+                f"state metric: the first-order error terms cancel and the second-order term leaves the input state "
+                f"almost unchanged (state infidelity {b.coherent:.2g} against {size:.2g} for the process metric), so "
+                "the state value comes from the third order, which the pauli engine leaves out: use the generators "
+                "or exact engine where they fit")
+        return b, validity, notes
+
+    def _second_sum(self, circuit: NoisyCircuit, metric: str, eps: float):
+        """H_1 + H_2 (coherent store, family columns) from one sweep carrying the second order
+        (:mod:`budget.engines.pauli._second`): the whole circuit in one direction (no meeting point:
+        the two halves' cross commutator would pair every row with every row)."""
+        n = circuit.num_qubits
+        families = _families(circuit)
+        columns = {f: i for i, f in enumerate(families)}
+        way = "pull" if metric == "state" else "push"
+        sweep = Sweep(n, PlanBook(n, way, by_family, columns, jumps=False, generators=False), eps,
+                      scale=np.ones(len(families)), second=True)
+        sweep.run(circuit.body)
+        return Store.concat([sweep.coh, sweep.second.sum]).merged()
 
     def _first(self, circuit: NoisyCircuit, metric: str, observables: tuple[str, ...], eps: float) -> PassResult:
         try:
