@@ -280,3 +280,21 @@ def test_too_many_terms_is_one_clear_refusal(monkeypatch):
     monkeypatch.setattr(sweep, "MAX_TERMS", 50)
     with pytest.raises(TooLargeError, match="more than 50 Pauli terms"):
         PauliEngine(truncate=0.0).run(ising(8, 3), "process")
+
+
+def test_estimate_grows_with_depth_and_meets_the_measured_order():
+    """estimate_seconds counts rows through a growth model (no allocation): it must grow with the
+    number of Trotter steps, and on a 40-qubit loop stay within a factor 30 of the measured CPU time
+    (an order-of-magnitude estimate for auto; common practice, no source)."""
+    import time
+
+    engine = PauliEngine()
+    for metric in ("process", "state"):
+        est = [engine.estimate_seconds(ising(40, steps), metric) for steps in (2, 4, 6, 8)]
+        assert all(a < b for a, b in zip(est, est[1:])), (metric, est)
+    c = ising(40, 8)
+    start = time.process_time()
+    PauliEngine(truncate=1e-5).run(c, "process")
+    took = time.process_time() - start
+    guess = engine.estimate_seconds(c, "process")
+    assert took / 30 <= guess <= 30 * max(took, 0.05), (guess, took)

@@ -35,7 +35,8 @@ from budget.engines.pauli._meet import meet
 from budget.engines.pauli._store import Store
 from budget.engines.pauli._plan import PlanBook
 from budget.engines.pauli._readout import coherent_budget, first_order_bound, group_amplitudes, jump_costs, zero_readout
-from budget.engines.pauli._sweep import OutOfTime, Sweep, TooManyTerms
+from budget.engines.pauli._sweep import MAX_TERMS, OutOfTime, Sweep, TooManyTerms
+from budget.circuit.clifford_check import is_clifford
 from budget.errors.knobs import knob_grouping
 from budget.errors.noisy import IDLE, NoisyCircuit
 from budget.problems import InputError, TooLargeError
@@ -57,6 +58,11 @@ CANCELLED = 0.1
 """First order below this fraction of Σ_t ‖G_t‖² counts as cancelled (the clifford engine's test)."""
 CHEAP_TERMS = 5000
 """Largest rows held by the first pass for which the second order is always formed."""
+GROWTH = 0.6
+"""Row growth per layer per non-Clifford site per qubit (estimate_seconds; the 100-qubit Ising loop
+grows about 2.5x per Trotter step and half at the default threshold)."""
+SECONDS_PER_ROW_LAYER = 3.5e-7
+"""CPU seconds per row per walked layer (estimate_seconds; fitted to the 100-qubit, 14-step Ising loop)."""
 MAX_EXECUTED_LAYERS = 10**6
 """Executed layers walked at most (repeats run cycle by cycle unless folded)."""
 
@@ -151,6 +157,40 @@ class PauliEngine(Engine):
                 f"{MAX_EXECUTED_LAYERS} layers; the clifford engine folds Clifford blocks of any count"
             )
         return None
+
+    def estimate_seconds(self, circuit: NoisyCircuit, metric: Metric) -> float:
+        """Estimated run time from a model of term growth with depth (counts only, nothing allocated).
+
+        Rows R are walked layer by layer as the sweeps do: each layer adds its coherent terms
+        (state metric: its jump tags too) and multiplies R by 1 + GROWTH · s, s the non-Clifford
+        sites of the layer per qubit (a rotation splits the rows it touches in two; rows spread
+        over the light cone, so a share of them is touched), capped at min(4^n, MAX_TERMS). The
+        process metric walks each half of the depth (meeting point); repeats are counted in full
+        (fixed points and folds are not foreseen, so the estimate errs long). Time = Σ R ·
+        SECONDS_PER_ROW_LAYER. Calibrated on the Ising loop of docs/benchmarks.md ("Pauli"); an
+        order of magnitude, not more."""
+        n = circuit.num_qubits
+        cap = float(min(4.0**min(n, 40), MAX_TERMS))
+        per_layer = []
+        for layer, mult in circuit.multiplicities():
+            new = sum(len(nop.hamiltonian) for nop in layer.operations)
+            if metric == "state":  # jump tags: every local Pauli of an incoherent site
+                new += sum(4 ** len(nop.qubits) - 1 for nop in layer.operations if nop.has_incoherent)
+                new += 3 * sum(1 for r in layer.idle if not r.is_trivial)
+            sites = sum(1 for nop in layer.operations if not is_clifford(nop.op)) / max(n, 1)
+            per_layer.append((new, sites, mult))
+        total = 0.0
+        halves = (1,) if metric == "state" else (0.5, 0.5)
+        for half in halves:
+            rows = 0.0
+            for new, sites, mult in per_layer:
+                count = max(1, int(mult * half))
+                growth = 1.0 + GROWTH * sites
+                for _ in range(min(count, 64)):  # beyond 64 cycles the rows are extrapolated
+                    rows = min(cap, rows * growth + new)
+                    total += rows
+                total += rows * max(0, count - 64)
+        return total * SECONDS_PER_ROW_LAYER + 0.05
 
     def _check(self, circuit: NoisyCircuit, metric: Metric) -> None:
         if metric not in METRICS:
