@@ -27,6 +27,7 @@ from __future__ import annotations
 from types import SimpleNamespace
 
 from budget.engines.pauli._store import Store
+from budget.memo import ObjectKey
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 
 
@@ -38,9 +39,9 @@ def executed(items: tuple[NoisyItem, ...], memo: dict | None = None) -> int:
         if isinstance(it, NoisyLayer):
             total += 1
         elif isinstance(it, NoisyRepeat):
-            hit = memo.get(id(it))
+            hit = memo.get(ObjectKey(it))
             if hit is None:
-                hit = memo[id(it)] = int(it.count) * executed(it.body, memo)
+                hit = memo[ObjectKey(it)] = int(it.count) * executed(it.body, memo)
             total += hit
         else:
             raise TypeError(f"pauli engine: cannot split a circuit at a {type(it).__name__} (gate layers and repeats only)")
@@ -49,7 +50,7 @@ def executed(items: tuple[NoisyItem, ...], memo: dict | None = None) -> int:
 
 def split(items: tuple[NoisyItem, ...], at: int, memo: dict | None = None, origin: dict | None = None) -> tuple[tuple, tuple]:
     """(head, tail): head executes the first ``at`` layers of ``items``, tail the rest. ``origin``
-    receives id(piece) -> the repeat each new piece was cut from."""
+    receives ObjectKey(piece) -> the repeat each new piece was cut from."""
     memo = {} if memo is None else memo
     origin = {} if origin is None else origin
     head: list[NoisyItem] = []
@@ -64,11 +65,11 @@ def split(items: tuple[NoisyItem, ...], at: int, memo: dict | None = None, origi
             at -= size
             continue
         per = executed(it.body, memo)  # a repeat straddling the cut
-        whole = origin.get(id(it), it)
+        whole = origin.get(ObjectKey(it), it)
         k, rem = divmod(at, per)
         if k:
             head.append(NoisyRepeat(it.body, k))
-            origin[id(head[-1])] = whole
+            origin[ObjectKey(head[-1])] = whole
         if rem:
             h, t = split(it.body, rem, memo, origin)
             head.extend(h)
@@ -76,7 +77,7 @@ def split(items: tuple[NoisyItem, ...], at: int, memo: dict | None = None, origi
         rest = int(it.count) - k - (1 if rem else 0)
         if rest:
             tail.append(NoisyRepeat(it.body, rest))
-            origin[id(tail[-1])] = whole
+            origin[ObjectKey(tail[-1])] = whole
         tail.extend(items[i + 1:])
         break
     return tuple(head), tuple(tail)
@@ -107,7 +108,7 @@ def meet(items: tuple[NoisyItem, ...], make_sweep) -> SimpleNamespace:
 def _joined(first, second) -> list[dict]:
     """One report per repeated block: the two sides' pieces of a cut block added up (cycles
     walked), with both modes when they differ."""
-    out: dict[int, dict] = {}
+    out: dict[ObjectKey, dict] = {}
     for sweep in (first, second):
         for key, b in zip(sweep.block_of, sweep.blocks):
             if key not in out:

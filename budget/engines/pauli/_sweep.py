@@ -44,6 +44,7 @@ from budget.engines.pauli._plan import LayerPlan, PlanBook
 from budget.engines.pauli._rotate import rotate
 from budget.engines.pauli._second import SecondOrder
 from budget.engines.pauli._store import Store, conjugate, from_local, generate
+from budget.memo import ObjectKey
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 
 
@@ -129,8 +130,8 @@ class Sweep:
         self.terms_max = 0
         self.stochastic: dict[str, float] = {}
         self.blocks: list[dict] = []
-        self.block_of: list[int] = []  # id of the repeat each report is about (its origin if cut)
-        self.origin: dict[int, NoisyRepeat] = {}  # id(piece) -> the repeat a cut piece came from
+        self.block_of: list[ObjectKey] = []  # the repeat each report is about (its origin if cut)
+        self.origin: dict[ObjectKey, NoisyRepeat] = {}  # piece -> the repeat a cut piece came from
         self.layers_walked = 0
         self.every = TRUNCATE_EVERY
         self._since = 0
@@ -304,9 +305,9 @@ class Sweep:
 
     def note_block(self, rep: NoisyRepeat, entry: dict) -> None:
         """Report how a repeated block was handled (count: of the block it was cut from, if cut)."""
-        whole = self.origin.get(id(rep), rep)
+        whole = self.origin.get(ObjectKey(rep), rep)
         self.blocks.append({"count": int(whole.count), **entry})
-        self.block_of.append(id(whole))
+        self.block_of.append(ObjectKey(whole))
 
     def _fixed(self, b: SimpleNamespace) -> bool:
         return (
