@@ -127,7 +127,7 @@ class PauliEngine(Engine):
     """
 
     name = "pauli"
-    capabilities = frozenset({"observables", "quadratic_form"})
+    capabilities = frozenset({"estimate_seconds", "observables", "quadratic_form"})
     folds_repeats = False  # non-Clifford repeats are walked cycle by cycle (a fixed point ends them early)
 
     def __init__(self, *, truncate: float | None = None, target: float = TARGET, time_budget_s: float = TIME_BUDGET_S,
