@@ -106,5 +106,5 @@ def fold(sweep, rep: NoisyRepeat) -> bool:
             site, base, mult = sweep.occurrences[i]
             sweep.occurrences[i] = (site, base, mult * weight)
         prev = occ_cycle[k]
-    sweep.blocks.append({"count": count, "mode": "period", "period": r, "cycles_walked": r})
+    sweep.note_block(rep, {"mode": "period", "period": r, "cycles_walked": r})
     return True

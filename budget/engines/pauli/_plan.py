@@ -21,6 +21,7 @@ from typing import Callable
 import numpy as np
 
 from budget.engines.pauli._local import LocalMap, gate_map, generator_map, local_basis, local_label
+from budget.engines.pauli._rotate import qubit_mask, rotation_axis
 from budget.engines.pauli._store import Store, from_local
 from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation
 from budget.errors.normal_form import operation_jumps, operation_stochastic, relaxation_jumps
@@ -31,9 +32,14 @@ Grouping = Callable[[NoisyOperation], list[tuple[object, dict[str, float]]]]
 
 @dataclass(frozen=True)
 class GateClass:
+    """Gates of one layer with equal transfer matrix: qubits, and for one-qubit rotations about a
+    Pauli axis that axis and the qubit mask (:mod:`budget.engines.pauli._rotate`)."""
+
     lmap: LocalMap
     qa: np.ndarray
     qb: np.ndarray | None
+    axis: int | None = None
+    mask: np.ndarray | None = None
 
 
 @dataclass(frozen=True)
@@ -135,7 +141,9 @@ class PlanBook:
         out = []
         for lmap, qs in groups.values():
             arr = np.array(qs, np.int64).reshape(len(qs), -1)
-            out.append(GateClass(lmap, arr[:, 0].copy(), arr[:, 1].copy() if arr.shape[1] == 2 else None))
+            qa, qb = arr[:, 0].copy(), (arr[:, 1].copy() if arr.shape[1] == 2 else None)
+            axis = None if lmap.clifford or qb is not None else rotation_axis(lmap.matrix)
+            out.append(GateClass(lmap, qa, qb, axis, None if axis is None else qubit_mask(self.n, qa)))
         return tuple(out)
 
     def _coherent(self, layer: NoisyLayer) -> Store:

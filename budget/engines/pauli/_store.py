@@ -23,6 +23,8 @@ from budget.engines.frame.pauli_frame import WORD_BITS, num_words
 from budget.engines.pauli._local import LocalMap
 
 _ONE = np.uint64(1)
+_SHIFT = np.uint64(32)
+_LOW = np.uint64(1 << 32)
 
 
 @dataclass
@@ -63,8 +65,7 @@ class Store:
         """Rows with equal (x, z, key) summed into one; rows whose coefficients are all zero dropped."""
         if len(self) == 0:
             return self
-        keys = np.concatenate([self.x, self.z, self.key.view(np.uint64)[:, None]], axis=1)
-        inv, first = group_equal(keys)
+        inv, first = group_equal(self._keys())
         if len(first) < len(self):
             coef = np.zeros((len(first), self.columns))
             for k in range(self.columns):
@@ -75,22 +76,43 @@ class Store:
         keep = np.any(out.coef != 0.0, axis=1)
         return out if keep.all() else out.take(keep)
 
+    def _keys(self) -> np.ndarray:
+        """(T, w) uint64 words that identify a row: x, z and key, or, when x and z fit in 32 bits
+        and the key is constant (the coherent sums on up to 32 qubits), the one word x + 2^32 z."""
+        if self.x.shape[1] == 1 and self.key[0] == self.key[-1] and np.all(self.key == self.key[0]):
+            if (self.x | self.z).max() < _LOW:
+                return self.x | (self.z << _SHIFT)
+        return np.concatenate([self.x, self.z, self.key.view(np.uint64)[:, None]], axis=1)
+
     def total(self, weights: np.ndarray | None = None) -> np.ndarray:
         """Σ_k coef[:, k] (weights[k])."""
         return self.coef.sum(axis=1) if weights is None else self.coef @ weights
 
 
 def group_equal(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """(inverse index per row, first row of each group) of equal rows of a (T, w) uint64 array:
-    sort by a 64-bit row hash, verify, and redo exactly with ``np.unique(axis=0)`` on a collision."""
+    """(inverse index per row, one row of each group) of equal rows of a (T, w) uint64 array.
+
+    One word is its own key; wider rows are sorted by a 64-bit row hash (:func:`row_hash`), the
+    rows that share a hash are checked against their group's representative, and the grouping is
+    redone exactly with ``np.unique(axis=0)`` on a collision."""
     if len(keys) == 0:
         return np.zeros(0, np.int64), np.zeros(0, np.int64)
-    _, first, inv = np.unique(row_hash(keys), return_index=True, return_inverse=True)
-    inv = inv.reshape(-1)
-    if not np.array_equal(keys, keys[first][inv]):
-        _, first, inv = np.unique(keys, axis=0, return_index=True, return_inverse=True)
-        inv = inv.reshape(-1)
-    return inv.astype(np.int64), first.astype(np.int64)
+    h = keys[:, 0] if keys.shape[1] == 1 else row_hash(keys)
+    order = np.argsort(h)
+    hs = h[order]
+    new = np.empty(len(h), bool)
+    new[0] = True
+    np.not_equal(hs[1:], hs[:-1], out=new[1:])
+    gid = np.cumsum(new) - 1
+    inv = np.empty(len(h), np.int64)
+    inv[order] = gid
+    first = order[new]
+    if keys.shape[1] > 1:
+        later = order[~new]
+        if len(later) and not np.array_equal(keys[later], keys[first[gid[~new]]]):
+            _, first, inv = np.unique(keys, axis=0, return_index=True, return_inverse=True)
+            return inv.reshape(-1).astype(np.int64), first.astype(np.int64)
+    return inv, first
 
 
 def from_local(n: int, qa: np.ndarray, qb: np.ndarray, v: np.ndarray, key: np.ndarray, coef: np.ndarray) -> Store:
@@ -119,11 +141,6 @@ BLOCK_ROWS = 1 << 16
 def _unpack_t(words: np.ndarray) -> np.ndarray:
     """(64 W, B) uint8 bits of packed rows (B, W), one row per qubit (row gathers are cheap)."""
     return np.ascontiguousarray(np.unpackbits(words.view(np.uint8), axis=1, bitorder="little").T)
-
-
-def _pack_t(bits: np.ndarray) -> np.ndarray:
-    """Inverse of :func:`_unpack_t`."""
-    return np.ascontiguousarray(np.packbits(bits, axis=0, bitorder="little").T).view(np.uint64)
 
 
 def _site_codes(ux: np.ndarray, uz: np.ndarray, qa: np.ndarray, qb: np.ndarray | None) -> np.ndarray:
@@ -171,38 +188,18 @@ def _ranges(starts: np.ndarray, lengths: np.ndarray) -> np.ndarray:
     return np.repeat(starts, lengths) + np.arange(total) - offsets
 
 
-def _conjugate_clifford(s: Store, lmap: LocalMap, qa: np.ndarray, qb: np.ndarray | None) -> Store:
-    """A Clifford class: every row keeps one row; bits are rewritten through the local signed
-    permutation on unpacked blocks of rows, all sites at once."""
-    perm = lmap.out_index[:, 0]
-    negative = (lmap.out_value[:, 0] < 0).astype(np.uint8)
-    out = Store(np.empty_like(s.x), np.empty_like(s.z), s.key, s.coef.copy())
-    for lo in range(0, len(s), BLOCK_ROWS):
-        hi = min(len(s), lo + BLOCK_ROWS)
-        ux, uz = _unpack_t(s.x[lo:hi]), _unpack_t(s.z[lo:hi])
-        v = _site_codes(ux, uz, qa, qb)
-        new = perm[v]
-        flips = negative[v].sum(axis=0, dtype=np.int64) & 1
-        out.coef[lo:hi] *= (1 - 2 * flips)[:, None]
-        ux[qa], uz[qa] = new & 1, (new >> 1) & 1
-        if qb is not None:
-            ux[qb], uz[qb] = (new >> 2) & 1, (new >> 3) & 1
-        out.x[lo:hi], out.z[lo:hi] = _pack_t(ux), _pack_t(uz)
-    return out
-
-
 def conjugate(s: Store, lmap: LocalMap, qa: np.ndarray, qb: np.ndarray | None) -> Store:
     """Apply the same local map (a gate's transfer matrix) on every site (qa[j], qb[j]) (disjoint).
 
     A row whose local Pauli on a touched site j is v_j becomes the rows Π_j (Σ_w M[w, v_j] P_w):
     one output row per combination of branches (a Clifford gate keeps one row per row). All rows
     are expanded at once: the output count of a row is Π_j b(v_j), and output k of a row takes on
-    its r-th touched site the branch (k // Π_{r'<r} b) mod b_r (mixed radix). Not merged.
+    its r-th touched site the branch (k // Π_{r'<r} b) mod b_r (mixed radix). Not merged. (Clifford
+    classes and one-qubit axis rotations take the faster paths of :mod:`budget.engines.pauli._bits`
+    and :mod:`budget.engines.pauli._rotate`.)
     """
     if len(s) == 0 or len(qa) == 0:
         return s
-    if lmap.clifford:
-        return _conjugate_clifford(s, lmap, qa, qb)
     vm = local_indices(s, qa, qb)
     touched = np.any(vm != 0, axis=1)
     if not touched.any():

@@ -39,8 +39,12 @@ import numpy as np
 
 from budget.circuit.walk import Kind, gate_kind
 from budget.engines.pauli._fold import fold
+from budget.engines.pauli._bits import conjugate_clifford
 from budget.engines.pauli._plan import LayerPlan, PlanBook
+from budget.engines.pauli._rotate import rotate
+from budget.engines.pauli._second import SecondOrder
 from budget.engines.pauli._store import Store, conjugate, from_local, generate
+from budget.memo import ObjectKey
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
 
 
@@ -59,6 +63,10 @@ class OutOfTime(RuntimeError):
 
 class TooManyTerms(RuntimeError):
     """The carried sums passed MAX_TERMS rows."""
+
+
+def _scaled(s: Store, factor: float) -> Store:
+    return Store(s.x, s.z, s.key, s.coef * factor)
 
 
 def _equal(a: Store, b: Store) -> bool:
@@ -99,11 +107,13 @@ class Sweep:
         kappa_total: float = 0.0,
         tag_scale: float = 1.0,
         deadline: float | None = None,
+        second: bool = False,
     ):
         self.n, self.book, self.eps, self.scale = n, book, eps, scale
         self.tag_eps = eps * tag_scale
         self.pull = book.direction == "pull"
         self.coh = Store.empty(n, len(scale))
+        self.second = SecondOrder(n, len(scale), later_first=not self.pull) if second else None
         self.tags = Store.empty(n, 1)
         self.tag_weight: list[np.ndarray] = []
         self.tag_count = 0
@@ -120,6 +130,8 @@ class Sweep:
         self.terms_max = 0
         self.stochastic: dict[str, float] = {}
         self.blocks: list[dict] = []
+        self.block_of: list[ObjectKey] = []  # the repeat each report is about (its origin if cut)
+        self.origin: dict[ObjectKey, NoisyRepeat] = {}  # piece -> the repeat a cut piece came from
         self.layers_walked = 0
         self.every = TRUNCATE_EVERY
         self._since = 0
@@ -182,6 +194,8 @@ class Sweep:
     def _add(self, plan: LayerPlan) -> bool:
         added = False
         if len(plan.coherent):
+            if self.second is not None:
+                self.second.add(plan.coherent, self.coh)
             self.coh = Store.concat([self.coh, plan.coherent.copy()])
             added = True
         if self.pull and plan.jump_sites:
@@ -202,12 +216,19 @@ class Sweep:
         return added
 
     def _conjugate(self, plan: LayerPlan) -> None:
+        names = ("coh", "tags", "obs", "err") if self.pull else ("coh",)
         for cls in plan.classes:
-            self.coh = conjugate(self.coh, cls.lmap, cls.qa, cls.qb)
-            if self.pull:
-                self.tags = conjugate(self.tags, cls.lmap, cls.qa, cls.qb)
-                self.obs = conjugate(self.obs, cls.lmap, cls.qa, cls.qb)
-                self.err = conjugate(self.err, cls.lmap, cls.qa, cls.qb)
+            for name in names:
+                setattr(self, name, self._apply(cls, getattr(self, name)))
+            if self.second is not None:
+                self.second.sum = self._apply(cls, self.second.sum)
+
+    def _apply(self, cls, st: Store) -> Store:
+        if cls.axis is not None:
+            return rotate(st, cls.lmap.matrix, cls.axis, cls.mask)
+        if cls.lmap.clifford:
+            return conjugate_clifford(st, cls.lmap, cls.qa, cls.qb, self.n)
+        return conjugate(st, cls.lmap, cls.qa, cls.qb)
 
     # -- merging and truncation ---------------------------------------------------------------
 
@@ -215,6 +236,8 @@ class Sweep:
         if cut:
             self._since = 0
         self.coh = self.coh.merged()
+        if self.second is not None:
+            self.second.sum = self.second.sum.merged()  # never truncated: the bound is first order's
         if cut and self.eps > 0 and len(self.coh):
             c = self.coh.coef * self.scale
             total = c.sum(axis=1)
@@ -256,20 +279,35 @@ class Sweep:
             coh=self.coh, obs=self.obs, err=self.err, tags=self.tags, tag_count=self.tag_count,
             bound_l2=self.bound_l2, bound_l1=self.bound_l1, obs_bound=self.obs_bound.copy(),
             stochastic=dict(self.stochastic), kappa_left=self.kappa_left,
+            second=None if self.second is None else self.second.sum,
         )
 
     def _repeat(self, rep: NoisyRepeat) -> None:
         count = int(rep.count)
-        if fold(self, rep):
+        if self.second is None and fold(self, rep):
             return
+        step = None  # the second-order sum's change over the last cycle
         for k in range(count):
             before = self.snapshot()
             self._items(rep.body)
             if k + 1 < count and self._fixed(before):
+                if self.second is not None:
+                    # with S fixed, H_2 changes by Δ_k = C Δ_{k-1} C† per cycle: constant once two agree
+                    now = Store.concat([self.second.sum, _scaled(before.second, -1.0)]).merged()
+                    if step is None or not _equal(now, step):
+                        step = now
+                        continue
+                    self.second.sum = Store.concat([self.second.sum, _scaled(step, float(count - k - 1))]).merged()
                 self._skip(before, count - k - 1)
-                self.blocks.append({"count": count, "mode": "fixed point", "cycles_walked": k + 1})
+                self.note_block(rep, {"mode": "fixed point", "cycles_walked": k + 1})
                 return
-        self.blocks.append({"count": count, "mode": "cycles", "cycles_walked": count})
+        self.note_block(rep, {"mode": "cycles", "cycles_walked": count})
+
+    def note_block(self, rep: NoisyRepeat, entry: dict) -> None:
+        """Report how a repeated block was handled (count: of the block it was cut from, if cut)."""
+        whole = self.origin.get(ObjectKey(rep), rep)
+        self.blocks.append({"count": int(whole.count), **entry})
+        self.block_of.append(ObjectKey(whole))
 
     def _fixed(self, b: SimpleNamespace) -> bool:
         return (

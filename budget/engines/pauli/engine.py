@@ -14,24 +14,33 @@ to rounding; the reported ``infidelity`` resums the coherent part as the cliffor
 Truncation (``truncate`` = EPS): rows below EPS are dropped after each layer and their norms add up
 to ``truncation_bound``, a rigorous bound on |first order reported - first order untruncated|
 (:mod:`budget.engines.pauli._sweep`). With ``truncate=None`` the engine starts at EPS = 10⁻² of the
-largest coherent coefficient and divides EPS by 4 while the bound exceeds ``target`` x the result
+largest coherent coefficient and divides EPS by 1.5-4 (TIGHTEN) while the bound exceeds ``target`` x the result
 and the time budget allows.
+
+The process metric is read in the frame of the circuit's middle (:mod:`budget.engines.pauli._meet`);
+where the first order cancels (or the sums are small) the second-order Magnus term is added
+(:mod:`budget.engines.pauli._second`); :meth:`PauliEngine.estimate_seconds` models row growth.
 """
 
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from budget.engines.matrices.channels import by_family
-from budget.engines.frame.groups import budget_result, size_warning
-from budget.engines.base import METRICS, Engine, EngineResult, Metric, QuadraticForm, parse_observable
-from budget.engines.details import Details, Drilldown, Folding, Parts, Truncation
+from budget.engines.frame.groups import Budget, budget_result, size_warning
+from budget.engines.base import METRICS, Engine, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
+from budget.engines.clifford.second import PAIR_BUDGET, TooCostly
+from budget.engines.details import Details, Drilldown, Folding, Parts, Truncation, Validity
+from budget.engines.orders import cancellation_note, second_order_share, term_norm_sum, term_square_sum, validity_details
+from budget.engines.pauli._meet import meet
+from budget.engines.pauli._store import Store
 from budget.engines.pauli._plan import PlanBook
 from budget.engines.pauli._readout import coherent_budget, first_order_bound, group_amplitudes, jump_costs, zero_readout
-from budget.engines.pauli._sweep import OutOfTime, Sweep, TooManyTerms
+from budget.engines.pauli._sweep import MAX_TERMS, OutOfTime, Sweep, TooManyTerms
+from budget.circuit.clifford_check import is_clifford
 from budget.errors.knobs import knob_grouping
 from budget.errors.noisy import IDLE, NoisyCircuit
 from budget.problems import InputError, TooLargeError
@@ -48,7 +57,17 @@ bound come out about equal, docs/benchmarks.md)."""
 BRIEF_BUDGET_S = 5.0
 """Tightening budget of :meth:`PauliEngine.brief`."""
 TIGHTEN = 4.0
-"""Each tightening divides the threshold by this factor."""
+"""Each tightening divides the threshold by at most this factor (by 1.2 (bound / goal)^1.5, at
+least 1.5: the bound fell about as eps^(2/3) between 1e-5 and 5e-6 on the 100-qubit Ising loop)."""
+CANCELLED = 0.1
+"""First order below this fraction of Σ_t ‖G_t‖² counts as cancelled (the clifford engine's test)."""
+CHEAP_TERMS = 5000
+"""Largest rows held by the first pass for which the second order is always formed."""
+GROWTH = 0.6
+"""Row growth per layer per non-Clifford site per qubit (estimate_seconds; the 100-qubit Ising loop
+grows about 2.5x per Trotter step and half at the default threshold)."""
+SECONDS_PER_ROW_LAYER = 3.5e-7
+"""CPU seconds per row per walked layer (estimate_seconds; fitted to the 100-qubit, 14-step Ising loop)."""
 MAX_EXECUTED_LAYERS = 10**6
 """Executed layers walked at most (repeats run cycle by cycle unless folded)."""
 
@@ -108,22 +127,26 @@ class PauliEngine(Engine):
     """
 
     name = "pauli"
-    capabilities = frozenset({"observables", "quadratic_form"})
+    capabilities = frozenset({"estimate_seconds", "observables", "quadratic_form"})
     folds_repeats = False  # non-Clifford repeats are walked cycle by cycle (a fixed point ends them early)
 
-    def __init__(self, *, truncate: float | None = None, target: float = TARGET, time_budget_s: float = TIME_BUDGET_S):
+    def __init__(self, *, truncate: float | None = None, target: float = TARGET, time_budget_s: float = TIME_BUDGET_S,
+                 second_order: bool = True):
         if truncate is not None and not (truncate >= 0 and np.isfinite(truncate)):
             raise InputError(f"truncate = {truncate!r}: expected a number >= 0 (0 keeps every term)")
         self.truncate, self.target, self.time_budget_s = truncate, target, time_budget_s
+        self.second_order = second_order
 
     def configure(self, *, truncate: float | None = None, **_ignored) -> "PauliEngine":
         """The same engine with another threshold (the CLI's ``--truncate``)."""
-        return PauliEngine(truncate=truncate, target=self.target, time_budget_s=self.time_budget_s)
+        return PauliEngine(truncate=truncate, target=self.target, time_budget_s=self.time_budget_s,
+                           second_order=self.second_order)
 
     def brief(self) -> "PauliEngine":
         """The same engine with at most BRIEF_BUDGET_S for tightening the threshold (depth curves,
         twirled variants and ensembles run it many times)."""
-        return PauliEngine(truncate=self.truncate, target=self.target, time_budget_s=min(self.time_budget_s, BRIEF_BUDGET_S))
+        return PauliEngine(truncate=self.truncate, target=self.target, time_budget_s=min(self.time_budget_s, BRIEF_BUDGET_S),
+                           second_order=self.second_order)
 
     def fits(self, circuit: NoisyCircuit, metric: Metric, observables: tuple[str, ...] = ()) -> str | None:
         """None unless the circuit has mid-circuit items (measurement, reset, if) or executes more
@@ -139,6 +162,40 @@ class PauliEngine(Engine):
                 f"{MAX_EXECUTED_LAYERS} layers; the clifford engine folds Clifford blocks of any count"
             )
         return None
+
+    def estimate_seconds(self, circuit: NoisyCircuit, metric: Metric) -> float:
+        """Estimated run time from a model of term growth with depth (counts only, nothing allocated).
+
+        Rows R are walked layer by layer as the sweeps do: each layer adds its coherent terms
+        (state metric: its jump tags too) and multiplies R by 1 + GROWTH · s, s the non-Clifford
+        sites of the layer per qubit (a rotation splits the rows it touches in two; rows spread
+        over the light cone, so a share of them is touched), capped at min(4^n, MAX_TERMS). The
+        process metric walks each half of the depth (meeting point); repeats are counted in full
+        (fixed points and folds are not foreseen, so the estimate errs long). Time = Σ R ·
+        SECONDS_PER_ROW_LAYER. Calibrated on the Ising loop of docs/benchmarks.md ("Pauli"); an
+        order of magnitude, not more."""
+        n = circuit.num_qubits
+        cap = float(min(4.0**min(n, 40), MAX_TERMS))
+        per_layer = []
+        for layer, mult in circuit.multiplicities():
+            new = sum(len(nop.hamiltonian) for nop in layer.operations)
+            if metric == "state":  # jump tags: every local Pauli of an incoherent site
+                new += sum(4 ** len(nop.qubits) - 1 for nop in layer.operations if nop.has_incoherent)
+                new += 3 * sum(1 for r in layer.idle if not r.is_trivial)
+            sites = sum(1 for nop in layer.operations if not is_clifford(nop.op)) / max(n, 1)
+            per_layer.append((new, sites, mult))
+        total = 0.0
+        halves = (1,) if metric == "state" else (0.5, 0.5)
+        for half in halves:
+            rows = 0.0
+            for new, sites, mult in per_layer:
+                count = max(1, int(mult * half))
+                growth = 1.0 + GROWTH * sites
+                for _ in range(min(count, 64)):  # beyond 64 cycles the rows are extrapolated
+                    rows = min(cap, rows * growth + new)
+                    total += rows
+                total += rows * max(0, count - 64)
+        return total * SECONDS_PER_ROW_LAYER + 0.05
 
     def _check(self, circuit: NoisyCircuit, metric: Metric) -> None:
         if metric not in METRICS:
@@ -163,12 +220,14 @@ class PauliEngine(Engine):
         columns = {f: i for i, f in enumerate(families)}
         scale = np.ones(len(families))
         state = metric == "state"
-        direction = "pull" if state else "push"
-        book = PlanBook(n, direction, by_family, columns, jumps=state, generators=state and bool(letters))
-        sweep = Sweep(n, book, eps, scale=scale, observables=letters if state else (), deadline=deadline,
-                      tag_scale=_tag_scale(circuit) if state else 1.0,
-                      kappa_total=_kappa_total(book, circuit) if state and letters else 0.0)
-        sweep.run(circuit.body)
+        if state:
+            book = PlanBook(n, "pull", by_family, columns, jumps=True, generators=bool(letters))
+            sweep = Sweep(n, book, eps, scale=scale, observables=letters, deadline=deadline,
+                          tag_scale=_tag_scale(circuit), kappa_total=_kappa_total(book, circuit) if letters else 0.0)
+            sweep.run(circuit.body)
+        else:
+            sweep = meet(circuit.body, lambda way: Sweep(
+                n, PlanBook(n, way, by_family, columns, jumps=False, generators=False), eps, scale=scale, deadline=deadline))
         if state:
             values = zero_readout(sweep.tags, sweep.tag_count)
             costs, tag_bound = jump_costs(sweep.occurrences, values, sweep.tag_dropped)
@@ -199,21 +258,83 @@ class PauliEngine(Engine):
     def run(self, circuit: NoisyCircuit, metric: Metric, *, observables: tuple[str, ...] = ()) -> EngineResult:
         """First-order and resummed infidelity, family shares, observables, truncation bound."""
         self._check(circuit, metric)
+        if not circuit.has_errors:
+            for label in observables:
+                self._observable(circuit, label)
+            return zero_result(self.name, metric, tuple(observables))
         result, notes = self._tightened(circuit, metric, tuple(observables))
-        b = result.budget
+        b, validity, more = self._leading(circuit, metric, result)
         shares = {f: float(v) for f, v in zip(result.families, b.shares)}
-        warnings = list(notes) + size_warning(b)
+        warnings = list(notes) + more + size_warning(b)
         details = Details(
-            parts=Parts(coherent_first_order=b.coherent, coherent_exponentiated=b.coherent_resummed,
+            parts=Parts(coherent_first_order=result.budget.coherent, coherent_exponentiated=b.coherent_resummed,
                         stochastic_first_order=b.stochastic, coherent_groups=b.groups,
                         max_group_amplitude_rad=b.max_amplitude),
+            validity=validity,
             truncation=Truncation(truncation_bound=result.bound, truncation_bound_jumps=result.jump_bound,
                                   truncate=result.eps, pauli_terms_max=result.terms_max,
                                   observable_truncation_bounds=result.observable_bounds or None),
             folding=Folding(repeated_blocks=tuple(result.blocks)),
-            drilldown=Drilldown(first_order_family_shares={f: float(v) for f, v in zip(result.families, b.first_order_shares)}),
+            drilldown=Drilldown(first_order_family_shares={
+                f: float(v) for f, v in zip(result.families, result.budget.first_order_shares)}),
         )
-        return budget_result(self.name, metric, b, shares, warnings, details, result.observables)
+        out = budget_result(self.name, metric, b, shares, warnings, details, result.observables)
+        return replace(out, first_order=float(result.budget.first_order))
+
+    @staticmethod
+    def _observable(circuit: NoisyCircuit, label: str) -> dict[int, str]:
+        try:
+            return parse_observable(label, circuit.num_qubits)
+        except ValueError as err:
+            raise InputError(f"{circuit.source}: {err}") from None
+
+    def _leading(self, circuit: NoisyCircuit, metric: str, result: PassResult) -> tuple[Budget, Validity | None, list[str]]:
+        """The budget to report: with the second-order (commutator) term of the effective generator
+        when the first order looks cancelled (its coherent sum below CANCELLED x what the terms would
+        give landing apart) or the sums are small (at most CHEAP_TERMS rows), else the first order;
+        with the validity details of :mod:`budget.engines.orders` and its warnings."""
+        first = result.budget
+        if not self.second_order:
+            return first, None, []
+        squares = term_square_sum(circuit)
+        cancelled = first.coherent < CANCELLED * squares
+        if not (cancelled or result.terms_max <= CHEAP_TERMS) or squares == 0.0:
+            return first, Validity(second_order="not formed (costly, and the first order shows no cancellation)"), []
+        try:
+            coh = self._second_sum(circuit, metric, result.eps)
+        except TooCostly:
+            warn = ["the first-order error terms largely cancel and their second-order (commutator) terms were too "
+                    "many to form: the result may be far too small"] if cancelled else []
+            return first, Validity(second_order=f"not formed (more than {PAIR_BUDGET:.0e} pair operations)"), warn
+        b = coherent_budget(coh, first.stochastic_shares, state=metric == "state")
+        share = second_order_share(b.coherent_resummed, first.coherent_resummed)
+        sizes = term_norm_sum(circuit)
+        cancellation = float(np.sqrt(first.coherent)) / sizes if sizes > 0 else 1.0
+        validity = replace(validity_details(share, cancellation, float(np.sqrt(first.coherent)), None),
+                           coherent_without_second_order=first.coherent_resummed + 0.0)
+        notes = [note] if (note := cancellation_note(share, cancellation, engine=self.name)) else []
+        size = float(np.sum(coh.total() ** 2))  # what H_1 + H_2 would cost the process metric
+        if metric == "state" and cancellation < 0.1 and size > 0 and b.coherent < 0.01 * size:
+            validity = replace(validity, rests_on_cancellation=True)
+            notes.append(
+                f"state metric: the first-order error terms cancel and the second-order term leaves the input state "
+                f"almost unchanged (state infidelity {b.coherent:.2g} against {size:.2g} for the process metric), so "
+                "the state value comes from the third order, which the pauli engine leaves out: use the generators "
+                "or exact engine where they fit")
+        return b, validity, notes
+
+    def _second_sum(self, circuit: NoisyCircuit, metric: str, eps: float):
+        """H_1 + H_2 (coherent store, family columns) from one sweep carrying the second order
+        (:mod:`budget.engines.pauli._second`): the whole circuit in one direction (no meeting point:
+        the two halves' cross commutator would pair every row with every row)."""
+        n = circuit.num_qubits
+        families = _families(circuit)
+        columns = {f: i for i, f in enumerate(families)}
+        way = "pull" if metric == "state" else "push"
+        sweep = Sweep(n, PlanBook(n, way, by_family, columns, jumps=False, generators=False), eps,
+                      scale=np.ones(len(families)), second=True)
+        sweep.run(circuit.body)
+        return Store.concat([sweep.coh, sweep.second.sum]).merged()
 
     def _first(self, circuit: NoisyCircuit, metric: str, observables: tuple[str, ...], eps: float) -> PassResult:
         try:
@@ -234,7 +355,8 @@ class PauliEngine(Engine):
         deadline = time.monotonic() + self.time_budget_s
         best = self._first(circuit, metric, observables, eps)
         while best.bound > self.target * best.budget.first_order and best.bound > 0:
-            eps /= TIGHTEN
+            over = best.bound / (self.target * best.budget.first_order)
+            eps /= min(TIGHTEN, max(1.5, 1.2 * over**1.5))  # bound ∝ eps^(2/3) or so on the Ising loops
             try:
                 best = self.evaluate(circuit, metric, eps=eps, observables=observables, deadline=deadline)
             except (OutOfTime, TooManyTerms) as stop:
@@ -262,9 +384,12 @@ class PauliEngine(Engine):
         scale = np.where(vals != 0, np.abs(vals), nonzero.mean() if len(nonzero) else 1.0)
         state = metric == "state"
         n = circuit.num_qubits
-        book = PlanBook(n, "pull" if state else "push", grouping, columns, jumps=False, generators=False)
-        sweep = Sweep(n, book, budget_pass.eps, scale=scale)
-        sweep.run(circuit.body)
+        if state:
+            sweep = Sweep(n, PlanBook(n, "pull", grouping, columns, jumps=False, generators=False), budget_pass.eps, scale=scale)
+            sweep.run(circuit.body)
+        else:
+            sweep = meet(circuit.body, lambda way: Sweep(
+                n, PlanBook(n, way, grouping, columns, jumps=False, generators=False), budget_pass.eps, scale=scale))
         b = group_amplitudes(sweep.coh, state=state)
         a = (b.conj().T @ b).real if len(b) else np.zeros((len(labels), len(labels)))
         sto = budget_pass.budget.stochastic_shares
