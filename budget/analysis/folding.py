@@ -42,6 +42,8 @@ class Folded:
     random_rank: int
     small: NoisyCircuit
     small_checks: Checks
+    twirled_any_fires: float
+    """P(some detector fires) with every error twirled, folded the same way."""
 
 
 def fold_target(noisy: NoisyCircuit) -> int | None:
@@ -60,13 +62,16 @@ def with_count(noisy: NoisyCircuit, index: int, count: int) -> NoisyCircuit:
 
 
 def folded_frames(noisy: NoisyCircuit, index: int) -> Folded:
-    """See the module docstring."""
+    """See the module docstring (coherent errors by amplitude classes, :func:`frames`)."""
     rep = noisy.body[index]
     n = rep.count
     small, big = with_count(noisy, index, KEEP), with_count(noisy, index, KEEP + 1)
     cs, cb = infer_checks(small), infer_checks(big)
-    fs: FrameResult = frames(small, tuple(d.measurements for d in cs.detectors))
-    fb: FrameResult = frames(big, tuple(d.measurements for d in cb.detectors))
+    small_dets, big_dets = tuple(d.measurements for d in cs.detectors), tuple(d.measurements for d in cb.detectors)
+    fs: FrameResult = frames(small, small_dets, coherent=True)
+    fb: FrameResult = frames(big, big_dets, coherent=True)
+    ts = frames(small, small_dets, shares=False).log_none_fires
+    tb = frames(big, big_dets, shares=False).log_none_fires
     before = len(record_qubits(dataclasses.replace(noisy, body=noisy.body[:index])))
     one = record_qubits(dataclasses.replace(noisy, body=rep.body))
     per = len(one)
@@ -93,7 +98,8 @@ def folded_frames(noisy: NoisyCircuit, index: int) -> Folded:
     rs, rb = fs.any_family_rates, fb.any_family_rates
     fams = {f: rs.get(f, 0.0) + extra * (rb.get(f, 0.0) - rs.get(f, 0.0)) for f in set(rs) | set(rb)}
     return Folded(tuple(out), logical, any_fires, scaled(fams, any_fires), cs.num_measurements + extra * per,
-                  cs.random_rank + extra * (cb.random_rank - cs.random_rank), small, cs)
+                  cs.random_rank + extra * (cb.random_rank - cs.random_rank), small, cs,
+                  -math.expm1(ts + extra * (tb - ts)))
 
 
 def scaled(parts: dict[str, float], total: float) -> dict[str, float]:

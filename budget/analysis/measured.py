@@ -37,13 +37,15 @@ from budget.engines.clifford.frames import families_of, frames
 from budget.engines.exact.branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
 from budget.engines.door import measured_engine
 from budget.engines.base import MEASURED_METRICS
-from budget.errors.fidelity import naive_infidelity, relaxation_process_fidelity
-from budget.errors.noisy import IDLE, NoisyCircuit, map_items
+from budget.engines.clifford.frames import families_of, frames, has_coherent
+from budget.errors.fidelity import naive_infidelity
+from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
 from budget.memo import ObjectKey
 from budget.problems import InputError, TooLargeError
 
-TWIRL_WARNING = ("coherent errors enter as their Pauli twirl on the clifford engine: their build-up within a "
-                 "round needs the exact engine (small circuits)")
+COHERENT_NOTE = ("coherent errors on the clifford engine: amplitudes of errors that act alike add within a round "
+                 "and across rounds while no check sees them, then are squared (first order in the amplitudes; "
+                 "the exact engine keeps every order on small circuits)")
 
 __all__ = ["MEASURED_METRICS", "analyze_measured", "naive_measured", "record_infidelity", "without_family"]
 
@@ -72,33 +74,39 @@ def analyze_measured(
         if measured_engine(metric, engine, exact_refusal(folded.small, small_plan)) == "clifford":
             warnings = [f"the repeated block of {noisy.body[index].count:,} iterations is folded: its first and last "
                         "iterations are computed, the middle ones repeat the steady state (docs/methods.md)"]
-            if _has_coherent(noisy):
-                warnings.append(TWIRL_WARNING)
+            if has_coherent(noisy):
+                warnings.append(COHERENT_NOTE)
             return _result(noisy, structured, metric, "clifford", folded.any_fires, None,
-                           scaled(folded.any_families, folded.any_fires), cycles, warnings, folded.any_fires,
+                           scaled(folded.any_families, folded.any_fires), cycles, warnings, folded.twirled_any_fires,
                            detectors=folded.detectors, logical=folded.logical,
                            details={"detectors": len(folded.detectors), "record_length": folded.num_measurements,
                                     "random_bits": folded.random_rank})
     checks = _checks(noisy, logical)
     plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
                 False, tuple(condition_bits(noisy.body)), checks.num_measurements)
-    use_exact = measured_engine(metric, engine, exact_refusal(noisy, plan)) == "exact"
-    fo = frames(noisy, plan.detectors)
+    reason = exact_refusal(noisy, plan)
+    use_exact = engine == "exact" or (engine == "auto" and reason is None)
+    if engine == "exact" and reason is not None:
+        raise TooLargeError(f"engine exact: {reason}; the clifford engine fits (first order, errors twirled)")
+    fo = frames(noisy, plan.detectors, coherent=True)
+    twirled = frames(noisy, plan.detectors, shares=False).any_fires if has_coherent(noisy) else fo.any_fires
     warnings = []
+    first_order = None
     if use_exact:
         exact = simulate(noisy, plan)
         probs, any_fires, name = exact.detector_probability, exact.any_fires, "exact"
+        first_order = fo.any_fires
     else:
         probs, any_fires, name = fo.detector_probability, fo.any_fires, "clifford"
-        if _has_coherent(noisy):
-            warnings.append(TWIRL_WARNING)
+        if has_coherent(noisy):
+            warnings.append(COHERENT_NOTE)
     detectors = tuple(
         DetectorBudget(d.measurements, d.round, float(p), scaled(fams, p))
         for d, p, fams in zip(checks.detectors, probs, fo.detector_families)
     )
     shares = scaled(fo.any_families, any_fires)
-    return _result(noisy, structured, metric, name, any_fires, None, shares, cycles, warnings,
-                   fo.any_fires, detectors=detectors,
+    return _result(noisy, structured, metric, name, any_fires, first_order, shares, cycles, warnings,
+                   twirled, detectors=detectors,
                    logical=checks.observables, details={"detectors": len(detectors),
                                                         "record_length": checks.num_measurements,
                                                         "random_bits": checks.random_rank})
@@ -123,15 +131,17 @@ def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> t
 
 
 def detector_values(noisy: NoisyCircuit, engine: str = "auto") -> tuple[float, float, tuple[float, ...], str]:
-    """(P(some detector fires), its frame value, each detector's probability, engine name)."""
+    """(P(some detector fires), its twirled frame value, each detector's probability, engine name)."""
     checks = _checks(noisy, None)
     plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
                 False, tuple(condition_bits(noisy.body)), checks.num_measurements)
-    fo = frames(noisy, plan.detectors)
-    if measured_engine("detectors", engine, exact_refusal(noisy, plan)) == "exact":
+    twirled = frames(noisy, plan.detectors, shares=False)
+    use_exact = engine == "exact" or (engine == "auto" and exact_refusal(noisy, plan) is None)
+    if use_exact:
         exact = simulate(noisy, plan)
-        return exact.any_fires, fo.any_fires, exact.detector_probability, "exact"
-    return fo.any_fires, fo.any_fires, fo.detector_probability, "clifford"
+        return exact.any_fires, twirled.any_fires, exact.detector_probability, "exact"
+    fo = frames(noisy, plan.detectors, coherent=True, shares=False) if has_coherent(noisy) else twirled
+    return fo.any_fires, twirled.any_fires, fo.detector_probability, "clifford"
 
 
 def strip_errors(noisy: NoisyCircuit) -> NoisyCircuit:
@@ -251,10 +261,6 @@ def _family_counts(noisy: NoisyCircuit) -> dict[str, int]:
 
 def _families(noisy: NoisyCircuit) -> list[str]:
     return families_of(noisy)
-
-
-def _has_coherent(noisy: NoisyCircuit) -> bool:
-    return any(nop.has_coherent for layer in noisy.distinct_layers() for nop in layer.operations)
 
 
 def without_family(noisy: NoisyCircuit, family: str) -> NoisyCircuit:

@@ -19,12 +19,14 @@ needs the exact engine.
 
 from __future__ import annotations
 
+import dataclasses
+import itertools
 from dataclasses import dataclass
 
 import numpy as np
 import stim
 
-from budget.circuit.walk import Kind, counted, kind_of
+from budget.engines.clifford.coherent import coherent_classes
 from budget.engines.clifford.stim_circuit import to_stim
 from budget.errors.fidelity import error_channel_kraus
 from budget.errors.noisy import IDLE, NoisyCircuit
@@ -50,9 +52,11 @@ class FrameResult:
 class _Noise:
     """Writes the twirled noise of the chosen families into the stim circuit."""
 
-    def __init__(self, families: set[str] | None, cache: dict[ObjectKey, dict[str, float]]):
+    def __init__(self, families: set[str] | None, cache: dict[tuple[int, bool], dict[str, float]],
+                 coherent: bool = True):
         self.families = families
         self.cache = cache
+        self.coherent = coherent
 
     def wants(self, family: str) -> bool:
         return self.families is None or family in self.families
@@ -61,11 +65,11 @@ class _Noise:
         kind = kind_of(item, "measured frames (noise)")
         if kind is Kind.LAYER:
             for nop in item.operations:
-                if not self.wants(nop.family) or not (nop.has_coherent or nop.has_incoherent):
+                if not self.wants(nop.family) or not (nop.has_incoherent or (self.coherent and nop.has_coherent)):
                     continue
-                key = ObjectKey(nop)
+                key = (id(nop), self.coherent)
                 if key not in self.cache:
-                    self.cache[key] = channel_twirl(error_channel_kraus(nop))
+                    self.cache[key] = twirl_channel(error_channel_kraus(nop if self.coherent else _incoherent(nop)))
                 probs = self.cache[key]
                 name = "PAULI_CHANNEL_1" if len(nop.qubits) == 1 else "PAULI_CHANNEL_2"
                 out.append(name, list(nop.qubits), [probs[lab] for lab in pauli_labels(len(nop.qubits))[1:]])
@@ -77,6 +81,11 @@ class _Noise:
             for q, e in zip(item.item.qubits, item.reset_error):
                 if e:
                     out.append("X_ERROR", [q], [e])
+
+
+def _incoherent(nop):
+    """The operation with its coherent part removed (the incoherent channel alone)."""
+    return dataclasses.replace(nop, coherent=np.eye(2 ** len(nop.qubits), dtype=complex), hamiltonian={})
 
 
 def families_of(circuit: NoisyCircuit) -> list[str]:
@@ -97,8 +106,8 @@ def families_of(circuit: NoisyCircuit) -> list[str]:
 
 
 def _mechanisms(circuit: NoisyCircuit, detectors, families: set[str] | None,
-                cache: dict) -> list[tuple[float, tuple[int, ...]]]:
-    noise = _Noise(families, cache)
+                cache: dict, coherent: bool = True) -> list[tuple[float, tuple[int, ...]]]:
+    noise = _Noise(families, cache, coherent)
     sc = to_stim(circuit, noise, readout=lambda item: noise.wants(item.family))
     m = sc.num_measurements
     sc += stim.Circuit("\n".join(f"DETECTOR {' '.join(f'rec[{i - m}]' for i in ms)}" for ms in detectors))
@@ -111,38 +120,51 @@ def _mechanisms(circuit: NoisyCircuit, detectors, families: set[str] | None,
     return out
 
 
-def frames(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...]) -> FrameResult:
-    """Firing probability of each detector (record index lists) and family parts (see module)."""
+def frames(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...], *, coherent: bool = False,
+           shares: bool = True) -> FrameResult:
+    """Firing probability of each detector (record index lists) and family parts (see module);
+    ``coherent``: coherent errors by amplitude classes instead of their twirl; ``shares=False``
+    leaves the family parts empty (one stim pass instead of one per family)."""
     n = len(detectors)
+    cache: dict = {}
+    twirl_coherent = not (coherent and has_coherent(circuit))
+    classes = [] if twirl_coherent else coherent_classes(circuit, detectors)
     log_keep = np.zeros(n)
     any_keep = 0.0
-    cache: dict[ObjectKey, dict[str, float]] = {}
-    for p, dets in _mechanisms(circuit, detectors, None, cache):
+    mechanisms = _mechanisms(circuit, detectors, None, cache, twirl_coherent)
+    mechanisms += [(c.probability, c.detectors) for c in classes]
+    for p, dets in mechanisms:
         for d in dets:
             log_keep[d] += np.log1p(-2 * p) if p < 0.5 else -np.inf
         if dets:
             any_keep += np.log1p(-p)
     prob = (1 - np.exp(log_keep)) / 2
     any_fires = float(-np.expm1(any_keep))
-    per_family = np.zeros((0, n))
-    any_parts: dict[str, float] = {}
-    names = families_of(circuit)
-    for fam in names:
-        row = np.zeros(n)
-        total = 0.0
-        for p, dets in _mechanisms(circuit, detectors, {fam}, cache):
-            for d in dets:
-                row[d] += p
-            total += p if dets else 0.0
-        per_family = np.vstack([per_family, row])
-        any_parts[fam] = total
+    names = families_of(circuit) if shares else []
+    per_family = np.zeros((len(names), n))
+    any_parts: dict[str, float] = dict.fromkeys(names, 0.0)
+    for i, fam in enumerate(names):
+        for p, dets in _mechanisms(circuit, detectors, {fam}, cache, twirl_coherent):
+            per_family[i, list(dets)] += p
+            any_parts[fam] += p if dets else 0.0
+    index = {f: i for i, f in enumerate(names)}
+    for c in classes if shares else ():
+        for fam, part in c.family_parts.items():
+            per_family[index[fam], list(c.detectors)] += part
+            any_parts[fam] += part if c.detectors else 0.0
     col = per_family.sum(axis=0) if len(names) else np.zeros(n)
     det_fam = tuple(
-        {f: float(per_family[i, k] / col[k] * prob[k]) for i, f in enumerate(names) if per_family[i, k] > 0}
+        {f: float(per_family[i, k] / col[k] * prob[k]) for i, f in enumerate(names) if per_family[i, k] != 0}
         if col[k] > 0 else {}
         for k in range(n)
     )
+    any_parts = {f: v for f, v in any_parts.items() if v != 0}
     s = sum(any_parts.values())
-    any_families = {f: v / s * any_fires for f, v in any_parts.items() if v > 0} if s > 0 else {}
+    any_families = {f: v / s * any_fires for f, v in any_parts.items()} if s > 0 else {}
     return FrameResult(tuple(float(x) for x in prob), det_fam, any_fires, any_families, dict(any_parts),
                        float(any_keep))
+
+
+def has_coherent(circuit: NoisyCircuit) -> bool:
+    """Whether some operation (if blocks included) carries a coherent error."""
+    return any(nop.has_coherent for layer in circuit.distinct_layers() for nop in layer.operations)

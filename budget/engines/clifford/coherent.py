@@ -1,0 +1,179 @@
+"""Coherent errors on the detector path: amplitudes that flip the same detectors add (first order).
+
+Deferred measurement (Nielsen & Chuang 2000, §4.4) turns the circuit into one Clifford unitary U
+on the qubits plus one fresh ancilla per recorded bit and per reset, all starting in |0…0>: a
+measurement of q is a CNOT from q onto its ancilla (the record is the ancillas' final Z values), a
+reset is a CNOT from q onto a fresh ancilla and back, a Pauli feed-forward is a controlled Pauli from
+the ancilla that holds the bit. Every detector D (a parity of record bits) is then a Z-parity on
+ancillas, deterministic on U|0…0>.
+
+A coherent error exp(-i Σ h_P P) after an operation at time t is, to first order, the sum
+-i Σ h_P P. Pulled back to the input, P becomes P̃ = U_t† P U_t (U_t: the circuit up to t), a
+Pauli string whose action on |0…0> is c |x> (x: its X part; c = sign · i^{#Y}). The state after all
+errors is U (1 - i Σ_k h_k c_k |x_k>) to first order, so
+
+    P(syndrome s) = Σ_{x: syndrome(x) = s} |A_x|²,   A_x = Σ_{k: x_k = x} h_k c_k,
+
+where syndrome(x) is the set of detectors D whose pull-back D̃ = U† D U (a Z-type string) has odd
+overlap with x. Terms add in amplitude exactly when they act alike on the input, which is the
+precise form of the rules in design.md §8: within a round, errors that flip the same detectors
+through the same operator interfere (an error and the same error times a stabilizer of the state
+with a fixed sign: h₁ ± h₂); an error that a measurement sees leaves an X on that measurement's
+ancilla, so it no longer interferes with the errors of later rounds (the check projects it); an
+error that no check sees keeps its x from round to round and builds up coherently. Each class x is
+given the probability sin²|A_x| (exact for a single Pauli string, = |A_x|² to first order) and is
+combined with the incoherent mechanisms as an independent mechanism (:mod:`frames`).
+
+This is the state-metric grouping of the clifford engine (group by X part, design.md §4) applied to
+the deferred-measurement circuit; syndrome-resolved coherent noise follows Beale, Wallman,
+Gutiérrez, Brown & Laflamme, "Quantum error correction decoheres noise", PRL 121, 190501 (2018).
+A family's part of a class is Re(conj(A_x) A_x,f)/|A_x|² of its probability (the parts add up).
+Cost: one stabilizer simulation of n + (recorded bits) + (resets) qubits, unrolled; the folded path
+(:mod:`budget.analysis.folding`) keeps it at a few rounds.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import defaultdict
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+import stim
+
+from budget.engines.clifford.stim_circuit import to_stim
+from budget.errors.noisy import NoisyCircuit, NoisyLayer
+
+MAX_DEFERRED_QUBITS = 16_000
+"""Largest deferred-measurement register simulated (its tableau holds (2n)² bits: 128 MB here)."""
+
+_MARK = "DETECTOR"
+"""A target-less DETECTOR with one coordinate marks where a layer's coherent errors sit (stim
+ignores it when simulating; the coordinate is the layer's index in the marker list)."""
+
+
+@dataclass(frozen=True)
+class CoherentClass:
+    """Error terms with the same action x on the deferred input state.
+
+    Attributes:
+        detectors: indices of the detectors the class flips (ascending).
+        probability: sin²|A| with A the summed amplitude.
+        family_parts: family -> its part of ``probability`` (may be negative: interference).
+    """
+
+    detectors: tuple[int, ...]
+    probability: float
+    family_parts: dict[str, float]
+
+
+def deferred_qubits(circuit: NoisyCircuit) -> int:
+    """Qubits of the deferred-measurement form: the circuit's, one per recorded bit, one per reset."""
+    ideal = to_stim(circuit)
+    extra = sum(len(inst.targets_copy()) for inst in ideal.flattened() if inst.name in ("M", "R"))
+    return circuit.num_qubits + extra
+
+
+def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...]) -> list[CoherentClass]:
+    """The coherent error classes of ``circuit`` (see the module docstring); detectors are record
+    index lists. Errors of gates under an if block are not included (as on the twirled path)."""
+    layers: list[NoisyLayer] = []
+
+    def mark(out, item) -> None:
+        if isinstance(item, NoisyLayer) and any(n.has_coherent for n in item.operations):
+            out.append(_MARK, [], [len(layers)])
+            layers.append(item)
+
+    program = to_stim(circuit, mark).flattened()
+    if not layers:
+        return []
+    n = circuit.num_qubits
+    total = n + sum(len(inst.targets_copy()) for inst in program if inst.name in ("M", "R"))
+    sim = stim.TableauSimulator()
+    sim.set_num_qubits(total)
+    ancilla: list[int] = []  # record index -> its ancilla
+    fresh = n
+    chunk = stim.Circuit()
+    amplitude: dict[bytes, complex] = defaultdict(complex)
+    parts: dict[bytes, dict[str, complex]] = defaultdict(lambda: defaultdict(complex))
+    xs_of: dict[bytes, np.ndarray] = {}
+    for inst in program:
+        name = inst.name
+        targets = inst.targets_copy()
+        if name == "M":
+            for t in targets:
+                chunk.append("CX", [t.value, fresh])
+                ancilla.append(fresh)
+                fresh += 1
+        elif name == "R":
+            for t in targets:
+                chunk.append("CX", [t.value, fresh, fresh, t.value])
+                fresh += 1
+        elif name == _MARK and not targets:
+            sim.do(chunk)
+            chunk = stim.Circuit()
+            _pull_back(sim, layers[int(inst.gate_args_copy()[0])], total, amplitude, parts, xs_of)
+        elif any(t.is_measurement_record_target for t in targets):
+            fixed = []
+            for t in targets:
+                fixed.append(ancilla[len(ancilla) + t.value] if t.is_measurement_record_target else t.value)
+            chunk.append(name, fixed)
+        else:
+            chunk.append(inst)
+    sim.do(chunk)
+    keys = list(amplitude)
+    rows = np.concatenate([np.flatnonzero(xs_of[k]) for k in keys]) if keys else np.zeros(0, int)
+    ptr = np.cumsum([0] + [int(xs_of[k].sum()) for k in keys])
+    x_mat = sp.csr_matrix((np.ones(len(rows), np.int64), rows, ptr), shape=(len(keys), total))
+    flips = (x_mat @ _detector_supports(sim.current_inverse_tableau(), detectors, ancilla, total)).tocsr()
+    flips.data %= 2
+    flips.eliminate_zeros()
+    out = []
+    for i, key in enumerate(keys):
+        a = amplitude[key]
+        size = abs(a)
+        if size == 0.0 or not xs_of[key].any():  # x = 0: a phase of the ideal state, not an error
+            continue
+        p = math.sin(min(size, math.pi / 2)) ** 2
+        fam = {f: p * float((np.conj(a) * v).real) / size**2 for f, v in parts[key].items()}
+        dets = tuple(int(d) for d in np.sort(flips.indices[flips.indptr[i]:flips.indptr[i + 1]]))
+        out.append(CoherentClass(dets, p, fam))
+    return out
+
+
+def _pull_back(sim: stim.TableauSimulator, layer: NoisyLayer, total: int, amplitude, parts, xs_of) -> None:
+    """Add the layer's Hamiltonian terms, pulled back to the input, to their classes."""
+    inverse = sim.current_inverse_tableau()
+    for nop in layer.operations:
+        for label, h in nop.hamiltonian.items():
+            if not h:
+                continue
+            p = stim.PauliString(total)
+            for q, c in zip(nop.qubits, label):
+                if c != "I":
+                    p[q] = c
+            back = inverse(p)
+            xs, zs = back.to_numpy()
+            c = complex(back.sign) * 1j ** int(np.count_nonzero(xs & zs))
+            key = np.packbits(xs).tobytes()
+            xs_of.setdefault(key, xs)
+            amplitude[key] += h * c
+            parts[key][nop.family] += h * c
+
+
+def _detector_supports(inverse: stim.Tableau, detectors, ancilla: list[int], total: int) -> sp.csc_matrix:
+    """Z support of each detector's pull-back U† D U (qubits × detectors, 0/1)."""
+    rows, cols = [], []
+    for j, ms in enumerate(detectors):
+        d = stim.PauliString(total)
+        for m in ms:
+            d[ancilla[m]] = "Z"
+        back = inverse(d)
+        _, zs = back.to_numpy()
+        nz = np.flatnonzero(zs)
+        rows.append(nz)
+        cols.append(np.full(len(nz), j))
+    r = np.concatenate(rows) if rows else np.zeros(0, int)
+    c = np.concatenate(cols) if cols else np.zeros(0, int)
+    return sp.csc_matrix((np.ones(len(r), np.int64), (r, c)), shape=(total, len(detectors)))
