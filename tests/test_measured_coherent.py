@@ -223,3 +223,18 @@ def test_cli_shows_naive_twirled_and_coherent(tmp_path):
     actual, twirled, naive = data["actual"]["infidelity"], data["twirled"]["infidelity"], data["naive"]["infidelity"]
     assert actual > 1.5 * twirled and naive > 0
     assert "first order in the amplitudes" in res.output
+
+
+def test_unchecked_build_up_over_a_long_block_is_not_folded_away():
+    """Above the folding threshold the frame path analyses 5 and 6 iterations; an error no check sees
+    grows with every iteration, so the detectors after the block would keep its 5-iteration value.
+    The fold notices (the detectors after the block differ between 5 and 6 iterations) and unrolls:
+    the detector still follows sin²(Nε) (first principles, as above)."""
+    from budget.analysis.folding import FOLD_AT
+
+    eps, n = 0.01, FOLD_AT + 6
+    circuit = parse_qasm(UNSEEN.format(n=n, last=n - 1), source="unseen.qasm")
+    noisy = attach(circuit, ErrorModel.from_dict({"gates": {"x": {"overrotation": eps}}}))
+    result = analyze_measured(noisy, circuit, metric="detectors", engine="clifford")
+    (after,) = [d for d in result.detectors if d.measurements == (n,)]
+    assert after.probability == pytest.approx(math.sin(n * eps) ** 2, rel=1e-9)

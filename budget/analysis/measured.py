@@ -37,6 +37,7 @@ from budget.engines.clifford.frames import families_of, frames
 from budget.engines.exact.branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
 from budget.engines.door import measured_engine
 from budget.engines.base import MEASURED_METRICS
+from budget.engines.clifford.coherent import MAX_DEFERRED_QUBITS
 from budget.engines.clifford.frames import families_of, frames, has_coherent
 from budget.errors.fidelity import naive_infidelity
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
@@ -46,6 +47,8 @@ from budget.problems import InputError, TooLargeError
 COHERENT_NOTE = ("coherent errors on the clifford engine: amplitudes of errors that act alike add within a round "
                  "and across rounds while no check sees them, then are squared (first order in the amplitudes; "
                  "the exact engine keeps every order on small circuits)")
+TWIRLED_NOTE = (f"coherent errors enter as their Pauli twirl here: the deferred-measurement register (qubits + "
+                f"recorded bits + resets) exceeds {MAX_DEFERRED_QUBITS:,} qubits")
 
 __all__ = ["MEASURED_METRICS", "analyze_measured", "naive_measured", "record_infidelity", "without_family"]
 
@@ -71,11 +74,16 @@ def analyze_measured(
         sc = folded.small_checks
         small_plan = Plan(tuple(d.measurements for d in sc.detectors), tuple(d.ideal for d in sc.detectors),
                           False, tuple(condition_bits(noisy.body)), sc.num_measurements)
-        if measured_engine(metric, engine, exact_refusal(folded.small, small_plan)) == "clifford":
+        unroll = not folded.steady and noisy.num_qubits + 2 * folded.num_measurements <= MAX_DEFERRED_QUBITS
+        if not unroll and (engine == "clifford" or exact_refusal(folded.small, small_plan) is not None):
             warnings = [f"the repeated block of {noisy.body[index].count:,} iterations is folded: its first and last "
                         "iterations are computed, the middle ones repeat the steady state (docs/methods.md)"]
+            if not folded.steady:
+                warnings.append("a coherent error that no check sees builds up over the repeated block: the folded "
+                                "values after the block include its growth over 6 iterations only (too many "
+                                "iterations to unroll)")
             if has_coherent(noisy):
-                warnings.append(COHERENT_NOTE)
+                warnings.append(TWIRLED_NOTE if folded.coherent_twirled else COHERENT_NOTE)
             return _result(noisy, structured, metric, "clifford", folded.any_fires, None,
                            scaled(folded.any_families, folded.any_fires), cycles, warnings, folded.twirled_any_fires,
                            detectors=folded.detectors, logical=folded.logical,
@@ -87,7 +95,7 @@ def analyze_measured(
     reason = exact_refusal(noisy, plan)
     use_exact = engine == "exact" or (engine == "auto" and reason is None)
     if engine == "exact" and reason is not None:
-        raise TooLargeError(f"engine exact: {reason}; the clifford engine fits (first order, errors twirled)")
+        raise TooLargeError(f"engine exact: {reason}; the clifford engine fits (first order)")
     fo = frames(noisy, plan.detectors, coherent=True)
     twirled = frames(noisy, plan.detectors, shares=False).any_fires if has_coherent(noisy) else fo.any_fires
     warnings = []
@@ -99,7 +107,7 @@ def analyze_measured(
     else:
         probs, any_fires, name = fo.detector_probability, fo.any_fires, "clifford"
         if has_coherent(noisy):
-            warnings.append(COHERENT_NOTE)
+            warnings.append(TWIRLED_NOTE if fo.coherent_twirled else COHERENT_NOTE)
     detectors = tuple(
         DetectorBudget(d.measurements, d.round, float(p), scaled(fams, p))
         for d, p, fams in zip(checks.detectors, probs, fo.detector_families)

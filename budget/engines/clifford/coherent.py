@@ -68,16 +68,10 @@ class CoherentClass:
     family_parts: dict[str, float]
 
 
-def deferred_qubits(circuit: NoisyCircuit) -> int:
-    """Qubits of the deferred-measurement form: the circuit's, one per recorded bit, one per reset."""
-    ideal = to_stim(circuit)
-    extra = sum(len(inst.targets_copy()) for inst in ideal.flattened() if inst.name in ("M", "R"))
-    return circuit.num_qubits + extra
-
-
-def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...]) -> list[CoherentClass]:
+def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...]) -> list[CoherentClass] | None:
     """The coherent error classes of ``circuit`` (see the module docstring); detectors are record
-    index lists. Errors of gates under an if block are not included (as on the twirled path)."""
+    index lists. Errors of gates under an if block are not included (as on the twirled path).
+    None when the deferred register exceeds :data:`MAX_DEFERRED_QUBITS` (the caller twirls)."""
     layers: list[NoisyLayer] = []
 
     def mark(out, item) -> None:
@@ -90,6 +84,8 @@ def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ..
         return []
     n = circuit.num_qubits
     total = n + sum(len(inst.targets_copy()) for inst in program if inst.name in ("M", "R"))
+    if total > MAX_DEFERRED_QUBITS:
+        return None
     sim = stim.TableauSimulator()
     sim.set_num_qubits(total)
     ancilla: list[int] = []  # record index -> its ancilla

@@ -47,6 +47,8 @@ class FrameResult:
     log_none_fires: float
     """Σ log(1 - p_m) over mechanisms that flip some detector: log P(no detector fires), kept
     apart so that it stays finite when P(some detector fires) rounds to 1."""
+    coherent_twirled: bool = False
+    """Coherent errors were asked for as amplitudes but twirled: the deferred register was too large."""
 
 
 class _Noise:
@@ -129,6 +131,9 @@ def frames(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...], *, coh
     cache: dict = {}
     twirl_coherent = not (coherent and has_coherent(circuit))
     classes = [] if twirl_coherent else coherent_classes(circuit, detectors)
+    too_large = classes is None
+    if too_large:
+        twirl_coherent, classes = True, []
     log_keep = np.zeros(n)
     any_keep = 0.0
     mechanisms = _mechanisms(circuit, detectors, None, cache, twirl_coherent)
@@ -162,7 +167,7 @@ def frames(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...], *, coh
     s = sum(any_parts.values())
     any_families = {f: v / s * any_fires for f, v in any_parts.items()} if s > 0 else {}
     return FrameResult(tuple(float(x) for x in prob), det_fam, any_fires, any_families, dict(any_parts),
-                       float(any_keep))
+                       float(any_keep), too_large)
 
 
 def has_coherent(circuit: NoisyCircuit) -> bool:
