@@ -227,7 +227,7 @@ def _result(noisy, structured, metric, engine, actual, first_order, shares, cycl
         actual_infidelity=float(actual),
         first_order=None if first_order is None else float(first_order),
         families=families,
-        readout=ReadoutSummary.from_errors({}, noisy.qubits),
+        readout=ReadoutSummary.in_metric(),
         warnings=tuple(warnings),
         twirled_infidelity=None if twirled is None else float(twirled),
         details=dict(details or {}),

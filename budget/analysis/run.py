@@ -161,7 +161,7 @@ def analyze_noisy(
         first_order=outcome.first_order,
         truncation_bound=float(truncation.truncation_bound or 0.0) if (truncation := outcome.details.truncation) else 0.0,
         families=families,
-        readout=ReadoutSummary.from_errors(noisy.readout_error, noisy.qubits),
+        readout=ReadoutSummary.from_errors(noisy.readout_error, noisy.qubits, assumed=not structured.measured),
         warnings=tuple(dict.fromkeys(warnings)),
         observables=observed,
         twirled_infidelity=twirled,
