@@ -31,13 +31,16 @@ def _e(x: float | None) -> str:
     return "—" if x is None else f"{x:.3e}"
 
 
+METRIC_WORDS = {"detectors": "P(some detector fires)", "record": "record infidelity"}
+
+
 def render_sweep(result) -> Group:
     """Distribution now, over the drift hours, and the Sobol indices."""
     d = result.now
     varied = ", ".join(f"{v.knob}@{v.site}" for v in result.varied) or "none (the model gives no uncertainty)"
     head = [
         Text.assemble(("uncertainty sweep: ", "bold"), f"{result.source}, {result.samples} samples; varied: {varied}"),
-        Text(f"infidelity: mean {_e(d.mean)} ± {_e(d.mean_stderr)} (Monte Carlo error), std {_e(d.std)}, "
+        Text(f"{METRIC_WORDS.get(result.metric, 'infidelity')}: mean {_e(d.mean)} ± {_e(d.mean_stderr)} (Monte Carlo error), std {_e(d.std)}, "
              f"median {_e(d.median)}, 5-95 % [{_e(d.q05)}, {_e(d.q95)}]"),
     ]
     if result.unused:
