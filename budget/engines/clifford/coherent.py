@@ -73,11 +73,14 @@ def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ..
     index lists. Errors of gates under an if block are not included (as on the twirled path).
     None when the deferred register exceeds :data:`MAX_DEFERRED_QUBITS` (the caller twirls)."""
     layers: list[NoisyLayer] = []
+    index: dict[int, int] = {}
 
     def mark(out, item) -> None:
         if isinstance(item, NoisyLayer) and any(n.has_coherent for n in item.operations):
-            out.append(_MARK, [], [len(layers)])
-            layers.append(item)
+            if id(item) not in index:
+                index[id(item)] = len(layers)
+                layers.append(item)
+            out.append(_MARK, [], [index[id(item)]])
 
     program = to_stim(circuit, mark).flattened()
     if not layers:
