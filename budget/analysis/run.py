@@ -24,9 +24,8 @@ from budget.engines.door import choose_engine, run_in_range, run_one
 from budget.circuit.ir import StructuredCircuit
 from budget.circuit.load import load_circuit
 from budget.engines.base import MEASURED_METRICS, METRICS, parse_observable
-from budget.errors.fidelity import naive_infidelity
-from budget.errors.model import ErrorModel, load_model
-from budget.errors.noisy import NoisyCircuit
+from budget.errors.context_attach import model_notes
+from budget.errors.noisy import IDLE, NoisyCircuit
 from budget.problems import InputError
 
 if TYPE_CHECKING:
@@ -89,7 +88,7 @@ def analyze(
         observables=observables,
         compare_twirled=compare_twirled,
         cycles=cycles,
-        notes=model.warnings(),
+        notes=model_notes(structured, model),
         logical=logical,
         truncate=truncate,
     )

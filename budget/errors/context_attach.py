@@ -11,7 +11,7 @@ from __future__ import annotations
 import dataclasses
 
 from budget.circuit.gates import GATES, exchange_symmetric
-from budget.circuit.ir import Layer, Operation, StructuredCircuit
+from budget.circuit.ir import IfBlock, Layer, Measure, Operation, Repeat, Reset, StructuredCircuit, unsupported_item
 from budget.errors.context import ContextTable, Crosstalk, mirrored_fields
 from budget.errors.context_layers import context_layer, crosstalk_layers, edge_layers, spill_operation, zz_operation
 from budget.errors.model import ErrorModel
@@ -155,3 +155,49 @@ def zz_rates(circuit: StructuredCircuit, model: ErrorModel, index: dict[str, int
         if None not in ids:
             rates[tuple(sorted(ids))] = khz
     return {p: rates[p] for p in sorted(rates) if rates[p] > 0}
+
+
+def unmatched_context(circuit: StructuredCircuit, model: ErrorModel) -> tuple[str, ...]:
+    """One warning per ``[[context]]`` table that matches no operation of ``circuit`` (its key
+    path, what it selects, and the rule), in file order. Not an error: a device-wide model holds
+    tables for qubits and layers that a given circuit never has; but a table that silently does
+    nothing is usually a typo in its gate, qubits or conditions."""
+    if not model.context.tables:
+        return ()
+    placer = ContextPlacer(circuit, model)
+    used: set[str] = set()
+
+    def walk(items) -> None:
+        for it in items:
+            if isinstance(it, Layer):
+                for op in it.operations:
+                    table = placer.table(op, it)
+                    if table is not None:
+                        used.add(table.path)
+            elif isinstance(it, Repeat):
+                walk(it.body)
+            elif isinstance(it, IfBlock):
+                walk(it.then)
+                walk(it.orelse)
+            elif not isinstance(it, (Measure, Reset)):
+                raise unsupported_item(it, "unmatched_context")
+
+    walk(circuit.body)
+    out = []
+    for t in model.context.tables:
+        if t.path in used:
+            continue
+        what = f"{t.gate} on {','.join(t.qubits) if t.qubits else 'any qubits'}"
+        if t.with_ops:
+            what += " with " + "; ".join(f"{g} {','.join(qs)}" for g, qs in t.with_ops)
+        if t.all_driven:
+            what += " in a layer driving every qubit"
+        out.append(f"{t.path} in {model.source} ({what}) matches no operation of {circuit.source}: its values are "
+                   "not used here (a table applies to the operations its gate, qubits and conditions select)")
+    return tuple(out)
+
+
+def model_notes(circuit: StructuredCircuit, model: ErrorModel) -> tuple[str, ...]:
+    """Warnings about the model on this circuit: unusual values (:meth:`ErrorModel.warnings`) and
+    ``[[context]]`` tables that match nothing (:func:`unmatched_context`)."""
+    return model.warnings() + unmatched_context(circuit, model)
