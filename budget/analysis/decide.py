@@ -26,8 +26,7 @@ from budget.analysis.phase_estimation import find_probes
 from budget.analysis.run import read_circuit, read_model
 from budget.analysis.sensitivity import Sensitivity, quadratic_form, sensitivity, sensitivity_json
 from budget.analysis.tolerance_output import tolerances_json
-from budget.analysis.tolerances import ToleranceReport, check_target, tolerances
-from budget.circuit.walk import Kind, branches, kind_of
+from budget.analysis.tolerances import ToleranceReport, check_target, hardware_notes, tolerances
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.attach import attach
 from budget.problems import InputError
@@ -115,7 +114,8 @@ def checked_tolerances(
 
     if metric in MEASURED_METRICS:  # family rows (the detector form is read by finite differences, per knob row)
         report = tolerances(qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles)
-        return close_loop(report, noisy, qf, detector=detector) if closed_loop else report
+        report = close_loop(report, noisy, qf, detector=detector) if closed_loop else report
+        return dataclasses.replace(report, warnings=report.warnings + hardware_notes(report))
     if family_by == "gate":
         site_noisy = attach(structured, model, family_by="pair")
         site_qf = dataclasses.replace(quadratic_form(site_noisy, metric, engine=engine), floor_sources=dict(qf.floor_sources))
@@ -128,7 +128,7 @@ def checked_tolerances(
         report = close_loop(report, site_noisy, site_qf)
     if not report.feasible:
         report = dataclasses.replace(report, floor_remedy=floor_remedy(report, model, noisy, metric))
-    return report
+    return dataclasses.replace(report, warnings=report.warnings + hardware_notes(report))
 
 
 def site_families(by_gate: Any, by_site: Any) -> dict[str, str]:

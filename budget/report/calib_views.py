@@ -135,5 +135,7 @@ def render_schedule(s) -> Group:
                           + (f", {ratio:.3g}× this schedule" if math.isfinite(ratio) else "")))
     elif s.baseline_sigma_rad is not None:
         parts.append(Text("everything at the tightest tolerance: no common schedule meets the target"))
+    for note in s.notes:
+        parts.append(Text(f"note: {note}", style="yellow"))
     parts.append(Text(CAUTION, style="dim"))
     return Group(*parts)
