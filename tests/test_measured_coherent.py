@@ -34,9 +34,11 @@ from tests.test_measured_frames import REPETITION
 
 def clifford_program(rng: np.random.Generator, scale: float) -> tuple[str, dict]:
     """A seeded Clifford circuit (2-3 qubits) with mid-circuit measurement, reset, Pauli
-    feed-forward and idle x pairs, and a model with coherent knobs of size ~scale on every gate and
-    Pauli-type incoherent errors (depolarizing, readout, reset) of size ~scale². The y under an if
-    carries no error: errors of conditioned gates are outside the frame path."""
+    feed-forward and idle x pairs, and a model with coherent knobs of size ~scale on every gate,
+    depolarizing, readout and reset errors of size ~scale², and T1/T2 relaxation during h gates and
+    measurements (amplitude damping is not a Pauli channel: the jumps are kept at the rate the state
+    gives them). The y under an if carries no error: errors of conditioned gates are outside the
+    frame path."""
     n = int(rng.integers(2, 4))
     lines = ["OPENQASM 3;", 'include "stdgates.inc";', f"qubit[{n}] q;", "bit[8] c;"]
     bits = 0
@@ -68,10 +70,13 @@ def clifford_program(rng: np.random.Generator, scale: float) -> tuple[str, dict]
     def g() -> float:
         return float(rng.normal(0, scale))
 
+    t1 = float(rng.uniform(60, 150))  # γ <= 0.5 % per measurement: products of two errors stay below 1 %
     model = {
-        "qubits": {"readout_error": float(rng.uniform(0, scale**2)), "reset_error": float(rng.uniform(0, scale**2))},
+        "qubits": {"readout_error": float(rng.uniform(0, scale**2)), "reset_error": float(rng.uniform(0, scale**2)),
+                   "t1_us": t1, "t2_us": t1 * float(rng.uniform(0.5, 1.5))},
         "gates": {
-            "h": {"overrotation": g(), "avg_infidelity": scale**2 / 3},
+            "measure": {"duration_ns": 300.0},
+            "h": {"overrotation": g(), "avg_infidelity": scale**2 / 3, "duration_ns": 25.0},
             "sx": {"overrotation": g(), "axis_error": g()},
             "x": {"overrotation": g()},
             "s": {"z_phase": [g()]},
@@ -96,9 +101,11 @@ def _cirq_detector_probabilities(noisy, detectors, ideal) -> np.ndarray:
 
 
 def test_amplitude_classes_match_cirq_on_random_clifford_circuits():
-    """First order in the amplitudes: within 1 % (+1e-7) of cirq's exact detector probabilities on
+    """First order in the amplitudes: within 2 % (+1e-7) of cirq's exact detector probabilities on
     every detector of 16 seeded circuits, while the twirled frame path misses by more than 10 % on
-    many of them (so the comparison can tell the two apart)."""
+    many of them (so the comparison can tell the two apart). What is left is second order, products
+    of two errors (found by reducing a case: a reset error leaves |1>, which then decays during a
+    measurement with γ = 0.5 %, so the detector fires with e(1 - γ), not e)."""
     checked, twirl_misses = 0, 0
     for seed in range(16):
         rng = np.random.default_rng(1000 + seed)
@@ -111,7 +118,7 @@ def test_amplitude_classes_match_cirq_on_random_clifford_circuits():
         ref = _cirq_detector_probabilities(noisy, dets, [d.ideal for d in checks])
         ours = np.array(frames(noisy, dets, coherent=True).detector_probability)
         twirled = np.array(frames(noisy, dets).detector_probability)
-        assert np.all(np.abs(ours - ref) <= 0.01 * ref + 1e-7), (seed, ours, ref)
+        assert np.all(np.abs(ours - ref) <= 0.02 * ref + 1e-7), (seed, ours, ref)
         twirl_misses += int(np.sum(np.abs(twirled - ref) > 0.1 * ref))
         checked += len(dets)
     assert checked >= 40 and twirl_misses >= 5
@@ -238,3 +245,39 @@ def test_unchecked_build_up_over_a_long_block_is_not_folded_away():
     result = analyze_measured(noisy, circuit, metric="detectors", engine="clifford")
     (after,) = [d for d in result.detectors if d.measurements == (n,)]
     assert after.probability == pytest.approx(math.sin(n * eps) ** 2, rel=1e-9)
+
+
+RELAX = """OPENQASM 3;
+include "stdgates.inc";
+qubit[2] q;
+bit[3] c;
+{prep}
+c[0] = measure q[1];
+z q[1];
+c[1] = measure q[0];
+c[2] = measure q[0];
+"""
+
+
+@pytest.mark.parametrize("prep, flips", [("x q[0];", 1.0), ("", 0.0), ("h q[0];", None)])
+def test_relaxation_jumps_follow_the_state(prep, flips):
+    """q0 idles for the 400 ns of q1's measurement (the z after it keeps q0's measurement apart)
+    with T1 = 40 µs, T2 = 2 T1 (no pure dephasing):
+    amplitude damping with γ = 1 - exp(-t/T1) takes |1> to |0> with probability γ and leaves |0>
+    alone (first principles of the channel, Nielsen & Chuang §8.3.5), so the detector on q0's first
+    outcome fires with γ after x and never without; after h the outcome is random (no detector).
+    Its Pauli twirl would flip either state with γ/2 (Tomita & Svore, PRA 90, 062320 (2014))."""
+    t1 = 40.0
+    model = {"qubits": {"t1_us": t1, "t2_us": 2 * t1}, "gates": {"measure": {"duration_ns": 400.0}, "x": {}}}
+    noisy = attach(parse_qasm(RELAX.format(prep=prep), source="relax.qasm"), ErrorModel.from_dict(model))
+    checks = infer_checks(noisy)
+    dets = tuple(d.measurements for d in checks.detectors)
+    gamma = 1 - math.exp(-0.4 / t1)
+    if flips is None:
+        assert (1,) not in dets
+        return
+    k = dets.index((1,))
+    assert frames(noisy, dets, coherent=True).detector_probability[k] == pytest.approx(flips * gamma, abs=1e-15)
+    assert frames(noisy, dets).detector_probability[k] == pytest.approx(gamma / 2, rel=1e-9)
+    exact = analyze_measured(noisy, parse_qasm(RELAX.format(prep=prep)), metric="detectors", engine="exact")
+    assert exact.detectors[k].probability == pytest.approx(flips * gamma, abs=1e-12)

@@ -47,8 +47,8 @@ from budget.problems import InputError, TooLargeError
 COHERENT_NOTE = ("coherent errors on the clifford engine: amplitudes of errors that act alike add within a round "
                  "and across rounds while no check sees them, then are squared (first order in the amplitudes; "
                  "the exact engine keeps every order on small circuits)")
-TWIRLED_NOTE = (f"coherent errors enter as their Pauli twirl here: the deferred-measurement register (qubits + "
-                f"recorded bits + resets) exceeds {MAX_DEFERRED_QUBITS:,} qubits")
+TWIRLED_NOTE = (f"coherent errors and relaxation enter as their Pauli twirl here: the deferred-measurement register "
+                f"(qubits + recorded bits + resets) exceeds {MAX_DEFERRED_QUBITS:,} qubits")
 
 __all__ = ["MEASURED_METRICS", "analyze_measured", "naive_measured", "record_infidelity", "without_family"]
 
@@ -82,8 +82,10 @@ def analyze_measured(
                 warnings.append("a coherent error that no check sees builds up over the repeated block: the folded "
                                 "values after the block include its growth over 6 iterations only (too many "
                                 "iterations to unroll)")
-            if has_coherent(noisy):
-                warnings.append(TWIRLED_NOTE if folded.coherent_twirled else COHERENT_NOTE)
+            if folded.coherent_twirled:
+                warnings.append(TWIRLED_NOTE)
+            elif has_coherent(noisy):
+                warnings.append(COHERENT_NOTE)
             return _result(noisy, structured, metric, "clifford", folded.any_fires, None,
                            scaled(folded.any_families, folded.any_fires), cycles, warnings, folded.twirled_any_fires,
                            detectors=folded.detectors, logical=folded.logical,
@@ -97,7 +99,7 @@ def analyze_measured(
     if engine == "exact" and reason is not None:
         raise TooLargeError(f"engine exact: {reason}; the clifford engine fits (first order)")
     fo = frames(noisy, plan.detectors, coherent=True)
-    twirled = frames(noisy, plan.detectors, shares=False).any_fires if has_coherent(noisy) else fo.any_fires
+    twirled = frames(noisy, plan.detectors, shares=False).any_fires
     warnings = []
     first_order = None
     if use_exact:
@@ -106,8 +108,10 @@ def analyze_measured(
         first_order = fo.any_fires
     else:
         probs, any_fires, name = fo.detector_probability, fo.any_fires, "clifford"
-        if has_coherent(noisy):
-            warnings.append(TWIRLED_NOTE if fo.coherent_twirled else COHERENT_NOTE)
+        if fo.coherent_twirled:
+            warnings.append(TWIRLED_NOTE)
+        elif has_coherent(noisy):
+            warnings.append(COHERENT_NOTE)
     detectors = tuple(
         DetectorBudget(d.measurements, d.round, float(p), scaled(fams, p))
         for d, p, fams in zip(checks.detectors, probs, fo.detector_families)
@@ -148,7 +152,7 @@ def detector_values(noisy: NoisyCircuit, engine: str = "auto") -> tuple[float, f
     if use_exact:
         exact = simulate(noisy, plan)
         return exact.any_fires, twirled.any_fires, exact.detector_probability, "exact"
-    fo = frames(noisy, plan.detectors, coherent=True, shares=False) if has_coherent(noisy) else twirled
+    fo = frames(noisy, plan.detectors, coherent=True, shares=False)
     return fo.any_fires, twirled.any_fires, fo.detector_probability, "clifford"
 
 

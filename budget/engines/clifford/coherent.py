@@ -43,7 +43,7 @@ import scipy.sparse as sp
 import stim
 
 from budget.engines.clifford.stim_circuit import to_stim
-from budget.errors.noisy import NoisyCircuit, NoisyLayer
+from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyMeasure, NoisyReset
 
 MAX_DEFERRED_QUBITS = 16_000
 """Largest deferred-measurement register simulated (its tableau holds (2n)² bits: 128 MB here)."""
@@ -69,21 +69,22 @@ class CoherentClass:
 
 
 def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...]) -> list[CoherentClass] | None:
-    """The coherent error classes of ``circuit`` (see the module docstring); detectors are record
-    index lists. Errors of gates under an if block are not included (as on the twirled path).
-    None when the deferred register exceeds :data:`MAX_DEFERRED_QUBITS` (the caller twirls)."""
-    layers: list[NoisyLayer] = []
+    """The coherent error classes of ``circuit`` and its relaxation jumps (see the module
+    docstring); detectors are record index lists. Errors of gates under an if block are not
+    included (as on the twirled path). None when the deferred register exceeds
+    :data:`MAX_DEFERRED_QUBITS` (the caller twirls)."""
+    items: list = []
     index: dict[int, int] = {}
 
     def mark(out, item) -> None:
-        if isinstance(item, NoisyLayer) and any(n.has_coherent for n in item.operations):
+        if _has_amplitudes(item):
             if id(item) not in index:
-                index[id(item)] = len(layers)
-                layers.append(item)
+                index[id(item)] = len(items)
+                items.append(item)
             out.append(_MARK, [], [index[id(item)]])
 
     program = to_stim(circuit, mark).flattened()
-    if not layers:
+    if not items:
         return []
     n = circuit.num_qubits
     total = n + sum(len(inst.targets_copy()) for inst in program if inst.name in ("M", "R"))
@@ -94,9 +95,7 @@ def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ..
     ancilla: list[int] = []  # record index -> its ancilla
     fresh = n
     chunk = stim.Circuit()
-    amplitude: dict[bytes, complex] = defaultdict(complex)
-    parts: dict[bytes, dict[str, complex]] = defaultdict(lambda: defaultdict(complex))
-    xs_of: dict[bytes, np.ndarray] = {}
+    acc = _Classes()
     for inst in program:
         name = inst.name
         targets = inst.targets_copy()
@@ -112,7 +111,7 @@ def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ..
         elif name == _MARK and not targets:
             sim.do(chunk)
             chunk = stim.Circuit()
-            _pull_back(sim, layers[int(inst.gate_args_copy()[0])], total, amplitude, parts, xs_of)
+            acc.add(sim.current_inverse_tableau(), items[int(inst.gate_args_copy()[0])], total)
         elif any(t.is_measurement_record_target for t in targets):
             fixed = []
             for t in targets:
@@ -121,44 +120,107 @@ def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ..
         else:
             chunk.append(inst)
     sim.do(chunk)
-    keys = list(amplitude)
-    rows = np.concatenate([np.flatnonzero(xs_of[k]) for k in keys]) if keys else np.zeros(0, int)
-    ptr = np.cumsum([0] + [int(xs_of[k].sum()) for k in keys])
-    x_mat = sp.csr_matrix((np.ones(len(rows), np.int64), rows, ptr), shape=(len(keys), total))
+    entries = acc.entries()
+    rows = np.concatenate([np.flatnonzero(xs) for xs, _, _ in entries]) if entries else np.zeros(0, int)
+    ptr = np.cumsum([0] + [int(xs.sum()) for xs, _, _ in entries])
+    x_mat = sp.csr_matrix((np.ones(len(rows), np.int64), rows, ptr), shape=(len(entries), total))
     flips = (x_mat @ _detector_supports(sim.current_inverse_tableau(), detectors, ancilla, total)).tocsr()
     flips.data %= 2
     flips.eliminate_zeros()
     out = []
-    for i, key in enumerate(keys):
-        a = amplitude[key]
-        size = abs(a)
-        if size == 0.0 or not xs_of[key].any():  # x = 0: a phase of the ideal state, not an error
-            continue
-        p = math.sin(min(size, math.pi / 2)) ** 2
-        fam = {f: p * float((np.conj(a) * v).real) / size**2 for f, v in parts[key].items()}
+    for i, (_, p, fam) in enumerate(entries):
         dets = tuple(int(d) for d in np.sort(flips.indices[flips.indptr[i]:flips.indptr[i + 1]]))
         out.append(CoherentClass(dets, p, fam))
     return out
 
 
-def _pull_back(sim: stim.TableauSimulator, layer: NoisyLayer, total: int, amplitude, parts, xs_of) -> None:
-    """Add the layer's Hamiltonian terms, pulled back to the input, to their classes."""
-    inverse = sim.current_inverse_tableau()
-    for nop in layer.operations:
-        for label, h in nop.hamiltonian.items():
-            if not h:
+def _has_amplitudes(item) -> bool:
+    """Whether an item carries coherent errors or relaxation (marked for the pull-back)."""
+    if isinstance(item, NoisyLayer):
+        return (any(n.has_coherent or any(not r.is_trivial for r in n.relaxation) for n in item.operations)
+                or any(not r.is_trivial for r in item.idle))
+    if isinstance(item, (NoisyMeasure, NoisyReset)):
+        return any(not r.is_trivial for r in item.idle)
+    return False
+
+
+class _Classes:
+    """Amplitudes of Hamiltonian terms summed per action x on the input, and relaxation jumps
+    (each its own Kraus branch: probabilities, never summed with other terms)."""
+
+    def __init__(self) -> None:
+        self.amplitude: dict[bytes, complex] = defaultdict(complex)
+        self.parts: dict[bytes, dict[str, complex]] = defaultdict(lambda: defaultdict(complex))
+        self.xs_of: dict[bytes, np.ndarray] = {}
+        self.jumps: list[tuple[np.ndarray, float, dict[str, float]]] = []
+
+    def add(self, inverse: stim.Tableau, item, total: int) -> None:
+        """The item's terms and jumps, pulled back with ``inverse`` (U_t†·U_t)."""
+        if isinstance(item, NoisyLayer):
+            for nop in item.operations:
+                for label, h in nop.hamiltonian.items():
+                    if h:
+                        self.term(inverse, nop.qubits, label, h, nop.family, total)
+                for r in nop.relaxation:
+                    self.jump(inverse, r, nop.family)
+        for r in item.idle:
+            self.jump(inverse, r, IDLE)
+
+    def term(self, inverse: stim.Tableau, qubits, label: str, h: float, family: str, total: int) -> None:
+        p = stim.PauliString(total)
+        for q, c in zip(qubits, label):
+            if c != "I":
+                p[q] = c
+        xs, c = _action(inverse(p))
+        self.add_amplitude(xs, h * c, family)
+
+    def add_amplitude(self, xs: np.ndarray, amplitude: complex, family: str) -> None:
+        """Add A to the class of x (the state changes by -i A|x> to first order)."""
+        key = np.packbits(xs).tobytes()
+        self.xs_of.setdefault(key, xs)
+        self.amplitude[key] += amplitude
+        self.parts[key][family] += amplitude
+
+    def jump(self, inverse: stim.Tableau, r, family: str) -> None:
+        """Amplitude damping (Kraus diag(1, √(1-γ)) and √γ σ⁻): the jump √γ σ⁻ = (√γ/2)(X + iY) with
+        X̃|0…0> = c₁|x₁>, Ỹ|0…0> = c₂|x₂> is one branch of probability (γ/4)|c₁ + i c₂|² when
+        x₁ = x₂ (γ on |1>, 0 on |0>), else two of γ/4 (a qubit whose Z value the ideal circuit
+        leaves random); the no-jump branch adds an amplitude along Z̃ (below)."""
+        if r.is_trivial or r.gamma == 0.0:
+            return
+        # the no-jump branch diag(1, √(1-γ)) = a I + b Z, b = (1 - √(1-γ))/2: a first-order amplitude
+        # b Z̃|0…0> = b c|x>, i.e. -i A|x> with A = i b c, which interferes with the coherent terms
+        b = (1 - math.sqrt(1 - r.gamma)) / 2
+        xz, cz = _action(inverse.z_output(r.qubit))
+        self.add_amplitude(xz, 1j * b * cz, family)
+        x1, c1 = _action(inverse.x_output(r.qubit))
+        x2, c2 = _action(inverse.y_output(r.qubit))
+        if np.array_equal(x1, x2):
+            p = r.gamma / 4 * abs(c1 + 1j * c2) ** 2
+            if p > 0 and x1.any():
+                self.jumps.append((x1, p, {family: p}))
+            return
+        for xs in (x1, x2):
+            if xs.any():
+                self.jumps.append((xs, r.gamma / 4, {family: r.gamma / 4}))
+
+    def entries(self) -> list[tuple[np.ndarray, float, dict[str, float]]]:
+        """(x, probability, family parts) of every class with an effect (x ≠ 0) and every jump."""
+        out = []
+        for key, a in self.amplitude.items():
+            size = abs(a)
+            xs = self.xs_of[key]
+            if size == 0.0 or not xs.any():  # x = 0: a phase of the ideal state, not an error
                 continue
-            p = stim.PauliString(total)
-            for q, c in zip(nop.qubits, label):
-                if c != "I":
-                    p[q] = c
-            back = inverse(p)
-            xs, zs = back.to_numpy()
-            c = complex(back.sign) * 1j ** int(np.count_nonzero(xs & zs))
-            key = np.packbits(xs).tobytes()
-            xs_of.setdefault(key, xs)
-            amplitude[key] += h * c
-            parts[key][nop.family] += h * c
+            p = math.sin(min(size, math.pi / 2)) ** 2
+            out.append((xs, p, {f: p * float((np.conj(a) * v).real) / size**2 for f, v in self.parts[key].items()}))
+        return out + self.jumps
+
+
+def _action(pauli: stim.PauliString) -> tuple[np.ndarray, complex]:
+    """(x, c) with pauli|0…0> = c|x>: x the X part, c = sign · i^{#Y}."""
+    xs, zs = pauli.to_numpy()
+    return xs, complex(pauli.sign) * 1j ** int(np.count_nonzero(xs & zs))
 
 
 def _detector_supports(inverse: stim.Tableau, detectors, ancilla: list[int], total: int) -> sp.csc_matrix:

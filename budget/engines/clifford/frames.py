@@ -52,42 +52,56 @@ class FrameResult:
 
 
 class _Noise:
-    """Writes the twirled noise of the chosen families into the stim circuit."""
+    """Writes the twirled noise of the chosen families into the stim circuit. With ``amplitudes``
+    the coherent parts and the relaxation jumps (amplitude damping) are left to
+    :func:`coherent_classes`: the rest of each channel is twirled, relaxation keeps only its Z part."""
 
     def __init__(self, families: set[str] | None, cache: dict[tuple[int, bool], dict[str, float]],
-                 coherent: bool = True):
+                 amplitudes: bool = False):
         self.families = families
         self.cache = cache
-        self.coherent = coherent
+        self.amplitudes = amplitudes
 
     def wants(self, family: str) -> bool:
         return self.families is None or family in self.families
+
+    def relax(self, out, r) -> None:
+        if r.is_trivial:
+            return
+        px, py, pz = r.pauli_twirl()
+        out.append("PAULI_CHANNEL_1", [r.qubit], [0.0, 0.0, pz] if self.amplitudes else [px, py, pz])
 
     def __call__(self, out, item) -> None:
         kind = kind_of(item, "measured frames (noise)")
         if kind is Kind.LAYER:
             for nop in item.operations:
-                if not self.wants(nop.family) or not (nop.has_incoherent or (self.coherent and nop.has_coherent)):
+                if not self.wants(nop.family):
                     continue
-                key = (id(nop), self.coherent)
-                if key not in self.cache:
-                    self.cache[key] = twirl_channel(error_channel_kraus(nop if self.coherent else _incoherent(nop)))
-                probs = self.cache[key]
-                name = "PAULI_CHANNEL_1" if len(nop.qubits) == 1 else "PAULI_CHANNEL_2"
-                out.append(name, list(nop.qubits), [probs[lab] for lab in pauli_labels(len(nop.qubits))[1:]])
-        if kind in (Kind.LAYER, Kind.MEASURE, Kind.RESET) and self.wants(IDLE):
+                rest = _rest(nop) if self.amplitudes else nop
+                if rest.has_incoherent or (not self.amplitudes and nop.has_coherent):
+                    key = (id(nop), self.amplitudes)
+                    if key not in self.cache:
+                        self.cache[key] = twirl_channel(error_channel_kraus(rest))
+                    probs = self.cache[key]
+                    name = "PAULI_CHANNEL_1" if len(nop.qubits) == 1 else "PAULI_CHANNEL_2"
+                    out.append(name, list(nop.qubits), [probs[lab] for lab in _LABELS[len(nop.qubits)]])
+                if self.amplitudes:
+                    for r in nop.relaxation:
+                        self.relax(out, r)
+        if isinstance(item, (NoisyLayer, NoisyMeasure, NoisyReset)) and self.wants(IDLE):
             for r in item.idle:
-                if not r.is_trivial:
-                    out.append("PAULI_CHANNEL_1", [r.qubit], list(r.pauli_twirl()))
-        if kind is Kind.RESET and self.wants(item.family):
+                self.relax(out, r)
+        if isinstance(item, NoisyReset) and self.wants(item.family):
             for q, e in zip(item.item.qubits, item.reset_error):
                 if e:
                     out.append("X_ERROR", [q], [e])
 
 
-def _incoherent(nop):
-    """The operation with its coherent part removed (the incoherent channel alone)."""
-    return dataclasses.replace(nop, coherent=np.eye(2 ** len(nop.qubits), dtype=complex), hamiltonian={})
+def _rest(nop):
+    """The operation's channel without its coherent part and its relaxation (depolarizing and
+    stochastic Pauli rates only)."""
+    return dataclasses.replace(nop, coherent=np.eye(2 ** len(nop.qubits), dtype=complex), hamiltonian={},
+                               relaxation=())
 
 
 def families_of(circuit: NoisyCircuit) -> list[str]:
@@ -108,8 +122,8 @@ def families_of(circuit: NoisyCircuit) -> list[str]:
 
 
 def _mechanisms(circuit: NoisyCircuit, detectors, families: set[str] | None,
-                cache: dict, coherent: bool = True) -> list[tuple[float, tuple[int, ...]]]:
-    noise = _Noise(families, cache, coherent)
+                cache: dict, amplitudes: bool = False) -> list[tuple[float, tuple[int, ...]]]:
+    noise = _Noise(families, cache, amplitudes)
     sc = to_stim(circuit, noise, readout=lambda item: noise.wants(item.family))
     m = sc.num_measurements
     sc += stim.Circuit("\n".join(f"DETECTOR {' '.join(f'rec[{i - m}]' for i in ms)}" for ms in detectors))
@@ -129,14 +143,13 @@ def frames(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...], *, coh
     leaves the family parts empty (one stim pass instead of one per family)."""
     n = len(detectors)
     cache: dict = {}
-    twirl_coherent = not (coherent and has_coherent(circuit))
-    classes = [] if twirl_coherent else coherent_classes(circuit, detectors)
+    classes = coherent_classes(circuit, detectors) if coherent else []
     too_large = classes is None
-    if too_large:
-        twirl_coherent, classes = True, []
+    amplitudes = coherent and not too_large
+    classes = classes or []
     log_keep = np.zeros(n)
     any_keep = 0.0
-    mechanisms = _mechanisms(circuit, detectors, None, cache, twirl_coherent)
+    mechanisms = _mechanisms(circuit, detectors, None, cache, amplitudes)
     mechanisms += [(c.probability, c.detectors) for c in classes]
     for p, dets in mechanisms:
         for d in dets:
@@ -149,7 +162,7 @@ def frames(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...], *, coh
     per_family = np.zeros((len(names), n))
     any_parts: dict[str, float] = dict.fromkeys(names, 0.0)
     for i, fam in enumerate(names):
-        for p, dets in _mechanisms(circuit, detectors, {fam}, cache, twirl_coherent):
+        for p, dets in _mechanisms(circuit, detectors, {fam}, cache, amplitudes):
             per_family[i, list(dets)] += p
             any_parts[fam] += p if dets else 0.0
     index = {f: i for i, f in enumerate(names)}
