@@ -37,8 +37,8 @@ def clifford_program(rng: np.random.Generator, scale: float) -> tuple[str, dict]
     feed-forward and idle x pairs, and a model with coherent knobs of size ~scale on every gate,
     depolarizing, readout and reset errors of size ~scale², and T1/T2 relaxation during h gates and
     measurements (amplitude damping is not a Pauli channel: the jumps are kept at the rate the state
-    gives them). The y under an if carries no error: errors of conditioned gates are outside the
-    frame path."""
+    gives them). The y under an if carries coherent errors (conditioned on the bit); incoherent
+    errors of conditioned gates are outside the frame path (stim has no conditioned noise)."""
     n = int(rng.integers(2, 4))
     lines = ["OPENQASM 3;", 'include "stdgates.inc";', f"qubit[{n}] q;", "bit[8] c;"]
     bits = 0
@@ -61,7 +61,9 @@ def clifford_program(rng: np.random.Generator, scale: float) -> tuple[str, dict]
         elif kind == 4:
             lines.append(f"reset q[{int(rng.integers(n))}];")
         elif kind == 5 and bits:
-            lines.append(f"if (c[{int(rng.integers(bits))}]) {{ y q[{int(rng.integers(n))}]; }}")
+            t, u = int(rng.integers(n)), int(rng.integers(n))
+            cond = f"c[{int(rng.integers(bits))}]" if rng.random() < 0.5 else f"!c[{int(rng.integers(bits))}]"
+            lines.append(f"if ({cond}) {{ y q[{t}]; x q[{t}]; }} else {{ y q[{u}]; }}")
         elif kind == 6:
             q = int(rng.integers(n))
             lines.append(f"x q[{q}]; x q[{q}];")
@@ -79,6 +81,7 @@ def clifford_program(rng: np.random.Generator, scale: float) -> tuple[str, dict]
             "h": {"overrotation": g(), "avg_infidelity": scale**2 / 3, "duration_ns": 25.0},
             "sx": {"overrotation": g(), "axis_error": g()},
             "x": {"overrotation": g()},
+            "y": {"overrotation": g(), "axis_error": g()},  # under the ifs: coherent errors only
             "s": {"z_phase": [g()]},
             "cx": {"overrotation": g(), "cphase": g(), "avg_infidelity": scale**2 / 2},
             "cz": {"cphase": g(), "z_phase": [g(), g()]},
@@ -101,11 +104,12 @@ def _cirq_detector_probabilities(noisy, detectors, ideal) -> np.ndarray:
 
 
 def test_amplitude_classes_match_cirq_on_random_clifford_circuits():
-    """First order in the amplitudes: within 2 % (+1e-7) of cirq's exact detector probabilities on
-    every detector of 16 seeded circuits, while the twirled frame path misses by more than 10 % on
-    many of them (so the comparison can tell the two apart). What is left is second order, products
-    of two errors (found by reducing a case: a reset error leaves |1>, which then decays during a
-    measurement with γ = 0.5 %, so the detector fires with e(1 - γ), not e)."""
+    """First order in the amplitudes: within 1 % of cirq's exact detector probabilities plus the
+    second-order allowance 2 P(any)² on every detector of 16 seeded circuits, while the twirled
+    frame path misses by more than 10 % on many of them (so the comparison can tell the two apart).
+    What is left is second order, products of two error events (found by reducing a case: a reset
+    error leaves |1>, which then decays during a measurement with γ = 0.5 %, so the detector fires
+    with e(1 - γ), not e)."""
     checked, twirl_misses = 0, 0
     for seed in range(16):
         rng = np.random.default_rng(1000 + seed)
@@ -116,9 +120,11 @@ def test_amplitude_classes_match_cirq_on_random_clifford_circuits():
         if not dets:
             continue
         ref = _cirq_detector_probabilities(noisy, dets, [d.ideal for d in checks])
-        ours = np.array(frames(noisy, dets, coherent=True).detector_probability)
+        result = frames(noisy, dets, coherent=True)
+        ours = np.array(result.detector_probability)
         twirled = np.array(frames(noisy, dets).detector_probability)
-        assert np.all(np.abs(ours - ref) <= 0.02 * ref + 1e-7), (seed, ours, ref)
+        # first order: 1 % of each probability, plus products of two error events, at most P(any)²
+        assert np.all(np.abs(ours - ref) <= 0.01 * ref + 2 * result.any_fires**2 + 1e-9), (seed, ours, ref)
         twirl_misses += int(np.sum(np.abs(twirled - ref) > 0.1 * ref))
         checked += len(dets)
     assert checked >= 40 and twirl_misses >= 5

@@ -42,7 +42,7 @@ import numpy as np
 import scipy.sparse as sp
 import stim
 
-from budget.engines.clifford.stim_circuit import to_stim
+from budget.engines.clifford.stim_circuit import Conditioned, as_pauli, to_stim
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyMeasure, NoisyReset
 
 MAX_DEFERRED_QUBITS = 16_000
@@ -70,18 +70,20 @@ class CoherentClass:
 
 def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ...]) -> list[CoherentClass] | None:
     """The coherent error classes of ``circuit`` and its relaxation jumps (see the module
-    docstring); detectors are record index lists. Errors of gates under an if block are not
-    included (as on the twirled path). None when the deferred register exceeds
-    :data:`MAX_DEFERRED_QUBITS` (the caller twirls)."""
+    docstring); detectors are record index lists. Coherent errors of gates under an if block are
+    included as errors conditioned on the bit (:meth:`_Classes.conditioned`), their incoherent
+    errors are not. None when the deferred register exceeds :data:`MAX_DEFERRED_QUBITS` (the
+    caller twirls)."""
     items: list = []
     index: dict[int, int] = {}
 
     def mark(out, item) -> None:
         if _has_amplitudes(item):
-            if id(item) not in index:
-                index[id(item)] = len(items)
+            key = (id(item.item), item.lookback, item.want) if isinstance(item, Conditioned) else id(item)
+            if key not in index:
+                index[key] = len(items)
                 items.append(item)
-            out.append(_MARK, [], [index[id(item)]])
+            out.append(_MARK, [], [index[key]])
 
     program = to_stim(circuit, mark).flattened()
     if not items:
@@ -111,7 +113,7 @@ def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ..
         elif name == _MARK and not targets:
             sim.do(chunk)
             chunk = stim.Circuit()
-            acc.add(sim.current_inverse_tableau(), items[int(inst.gate_args_copy()[0])], total)
+            acc.add(sim.current_inverse_tableau(), items[int(inst.gate_args_copy()[0])], total, ancilla)
         elif any(t.is_measurement_record_target for t in targets):
             fixed = []
             for t in targets:
@@ -141,6 +143,8 @@ def _has_amplitudes(item) -> bool:
                 or any(not r.is_trivial for r in item.idle))
     if isinstance(item, (NoisyMeasure, NoisyReset)):
         return any(not r.is_trivial for r in item.idle)
+    if isinstance(item, Conditioned):
+        return any(n.has_coherent for b in (item.item.then, item.item.orelse) for layer in b for n in layer.operations)
     return False
 
 
@@ -154,8 +158,11 @@ class _Classes:
         self.xs_of: dict[bytes, np.ndarray] = {}
         self.jumps: list[tuple[np.ndarray, float, dict[str, float]]] = []
 
-    def add(self, inverse: stim.Tableau, item, total: int) -> None:
+    def add(self, inverse: stim.Tableau, item, total: int, ancilla: list[int]) -> None:
         """The item's terms and jumps, pulled back with ``inverse`` (U_t†·U_t)."""
+        if isinstance(item, Conditioned):
+            self.conditioned(inverse, item, total, ancilla[len(ancilla) - item.lookback])
+            return
         if isinstance(item, NoisyLayer):
             for nop in item.operations:
                 for label, h in nop.hamiltonian.items():
@@ -166,13 +173,35 @@ class _Classes:
         for r in item.idle:
             self.jump(inverse, r, IDLE)
 
-    def term(self, inverse: stim.Tableau, qubits, label: str, h: float, family: str, total: int) -> None:
+    def term(self, inverse: stim.Tableau, qubits, label: str, h: float, family: str, total: int,
+             control: int | None = None) -> None:
+        """h·P on ``qubits`` (label in gate order), times Z on the ``control`` ancilla when given."""
         p = stim.PauliString(total)
         for q, c in zip(qubits, label):
             if c != "I":
                 p[q] = c
+        if control is not None:
+            p[control] = "Z"
         xs, c = _action(inverse(p))
         self.add_amplitude(xs, h * c, family)
+
+    def conditioned(self, inverse: stim.Tableau, item: Conditioned, total: int, control: int) -> None:
+        """Coherent errors of a branch that runs when the bit (ancilla ``control``) reads v: the
+        error exp(-i h P) conditioned on it is exp(-i h P Π_v), Π_v = (I + (-1)^v Z)/2, whose
+        generator is the two Pauli terms (h/2) P and (-1)^v (h/2) P Z. The marker sits after the
+        branch's gates (all Paulis), so a term anticommuting with k later gates of its branch
+        changes sign (-1)^k."""
+        for branch, v in ((item.item.then, item.want), (item.item.orelse, 1 - item.want)):
+            nops = [n for layer in branch for n in layer.operations]
+            later = [as_pauli(n.op) or {} for n in nops]
+            for j, nop in enumerate(nops):
+                for label, h in nop.hamiltonian.items():
+                    if not h:
+                        continue
+                    term = {q: c for q, c in zip(nop.qubits, label) if c != "I"}
+                    sign = (-1) ** sum(_anticommute(term, g) for g in later[j + 1:])
+                    self.term(inverse, nop.qubits, label, sign * h / 2, nop.family, total)
+                    self.term(inverse, nop.qubits, label, sign * (-1) ** v * h / 2, nop.family, total, control)
 
     def add_amplitude(self, xs: np.ndarray, amplitude: complex, family: str) -> None:
         """Add A to the class of x (the state changes by -i A|x> to first order)."""
@@ -215,6 +244,11 @@ class _Classes:
             p = math.sin(min(size, math.pi / 2)) ** 2
             out.append((xs, p, {f: p * float((np.conj(a) * v).real) / size**2 for f, v in self.parts[key].items()}))
         return out + self.jumps
+
+
+def _anticommute(a: dict[int, str], b: dict[int, str]) -> bool:
+    """Whether two Pauli strings (qubit -> letter) anticommute."""
+    return sum(1 for q, p in a.items() if q in b and b[q] != p) % 2 == 1
 
 
 def _action(pauli: stim.PauliString) -> tuple[np.ndarray, complex]:

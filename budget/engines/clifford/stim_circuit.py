@@ -27,6 +27,16 @@ from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyMeasure
 from budget.memo import ObjectKey
 from budget.problems import InputError, place
 
+@dataclass(frozen=True)
+class Conditioned:
+    """A feed-forward whose branch depends on the recorded bit ``rec[-lookback]``: ``then`` runs
+    when it reads ``want``, ``orelse`` otherwise (given to the noise callback after its gates)."""
+
+    item: NoisyIf
+    lookback: int
+    want: int
+
+
 Noise = Callable[["Text", object], None]
 """Called with the stim circuit being written and a noisy item (after a gate layer, before a
 measurement, after a reset); appends the item's noise instructions."""
@@ -212,16 +222,18 @@ class _Writer:
 
     def feed_forward(self, out: Text, noisy: NoisyIf, written: dict[str, int], now: int) -> None:
         """Pauli feed-forward on one recorded bit (stim's ``CX rec[-k] q``); bits never written read
-        0, so a condition on a register reduces to its written bits. Errors of the gates under the
-        if are not modelled here."""
+        0, so a condition on a register reduces to its written bits (a branch they decide is written
+        as plain gates with their noise). A conditioned branch reaches the noise callback as a
+        :class:`Conditioned` item after its gates (stim has no conditioned noise: the twirled path
+        leaves those errors out, the coherent classes include its coherent errors)."""
         it = noisy.item
-        then, orelse = self.paulis(noisy.then, it.line), self.paulis(noisy.orelse, it.line)
         live = [(k, b) for k, b in enumerate(it.bits) if b in written]
         fixed = all((it.value >> k) & 1 == 0 for k, b in enumerate(it.bits) if b not in written)
-        if not fixed or not live:  # decided by bits never written (they read 0)
+        if not fixed or not live:  # decided by bits never written (they read 0): the branch always runs
             taken = fixed and it.value == 0
-            self.apply_paulis(out, then if taken else orelse)
+            self.items(out, noisy.then if taken else noisy.orelse, written, [now])
             return
+        then, orelse = self.paulis(noisy.then, it.line), self.paulis(noisy.orelse, it.line)
         if len(live) > 1:
             names = ", ".join(b for _, b in live)
             raise self.fail(it.line, f"feed-forward on {len(live)} recorded bits ({names}): the condition is an AND of "
@@ -237,6 +249,8 @@ class _Writer:
             p = _product(base.get(q, "I"), other.get(q, "I"))
             if p != "I":
                 out.append(f"C{p}", [f"rec[{-lookback}]", q])
+        if self.noise is not None:
+            self.noise(out, Conditioned(noisy, lookback, want))
 
     def paulis(self, items, line) -> dict[int, str]:
         """The Pauli (up to phase) that a branch applies: any gates whose product is a Pauli string
@@ -248,7 +262,7 @@ class _Writer:
                 raise self.fail(line, f"a {item_kind(inner)} inside an if block: the stabilizer path supports gates "
                                 "that apply a Pauli there")
             for op in (nop.op for nop in it.operations):
-                for q, p in _as_pauli(op).items() if _as_pauli(op) is not None else self._not_pauli(op, line):
+                for q, p in as_pauli(op).items() if as_pauli(op) is not None else self._not_pauli(op, line):
                     out[q] = _product(out.get(q, "I"), p)
         return {q: p for q, p in out.items() if p != "I"}
 
@@ -278,7 +292,7 @@ def _first_line(it: NoisyRepeat) -> int | None:
     return None
 
 
-def _as_pauli(op: Operation) -> dict[int, str] | None:
+def as_pauli(op: Operation) -> dict[int, str] | None:
     """The Pauli string (qubit -> letter, identity left out) an operation applies up to phase, or
     None when it is not a Pauli (stim's tableau of its unitary)."""
     try:
