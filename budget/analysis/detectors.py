@@ -218,7 +218,8 @@ def infer_checks(
             if not ms or any(not 0 <= i < m for i in ms):
                 raise InputError(f"observable {k}: record indices {list(o)} must lie in 0..{m - 1}")
             if _xor(cols, ms) != 0:
-                raise InputError(f"observable {k} = {list(ms)}: this parity is random in the ideal circuit")
+                raise InputError(f"--logical {','.join(map(str, ms))} (observable {k}): this parity is random in the ideal "
+                                 "circuit; a logical observable must be a deterministic parity of recorded bits")
             if not span.add(_mask(ms)):
                 raise InputError(f"--logical {','.join(map(str, ms))}: this parity is fixed by the checks (a combination "
                                  "of detectors or of the observables named before it), so no error flips it without "

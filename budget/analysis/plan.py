@@ -117,7 +117,8 @@ def plan(circuit: Any, errors: Any, *, target: float, hours: float, cycles: int 
     menus = [_menu(label, float(diag[i]), float(qf.values_rad[i]), probes.get(label, ()), settings, budget, hours,
                    *spreads.get(label, (0.0, 0.0)))
              for i, label in enumerate(qf.labels)]
-    fixed = [(m[0], float(diag[i])) for i, m in enumerate(menus) if m[0].action == "hardware"]
+    fixed = [(m[0], float(diag[i])) for i, m in enumerate(menus)
+             if m[0].action == "hardware" and m[0].per_rad2 * m[0].mean_square_rad2 > 0]
     fixed_load = math.fsum(m.per_rad2 * m.mean_square_rad2 for m, _ in fixed)
     if fixed and fixed_load >= budget:
         rows = ", ".join(f"{m.family} at {knob_text(m.current_rad, m.knob, lambda x: f'{x:.3g}')}" for m, _ in fixed)
