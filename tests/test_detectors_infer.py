@@ -93,7 +93,7 @@ def test_user_named_observables():
     m = gen.num_measurements
     checks = infer_checks(noisy, observables=[[m - 3]])  # first data qubit
     assert checks.observables == ((m - 3,),)
-    with pytest.raises(InputError, match="observable 0 .* random"):
+    with pytest.raises(InputError, match=r"--logical 0 \(observable 0\): this parity is random"):
         # the outcome of measuring H|0> is random
         text = "OPENQASM 3;\nqubit q;\nbit[2] b;\nh q;\nb[0] = measure q;\nreset q;\nb[1] = measure q;\n"
         infer_checks(attach(parse_qasm(text), ErrorModel.from_dict({})), observables=[[0]])
