@@ -11,7 +11,7 @@ from __future__ import annotations
 import dataclasses
 
 from budget.circuit.gates import GATES, exchange_symmetric
-from budget.circuit.ir import IfBlock, Layer, Measure, Operation, Repeat, Reset, StructuredCircuit, unsupported_item
+from budget.circuit.ir import Layer, Operation, StructuredCircuit
 from budget.errors.context import ContextTable, Crosstalk, mirrored_fields
 from budget.errors.context_layers import context_layer, crosstalk_layers, edge_layers, spill_operation, zz_operation
 from budget.errors.model import ErrorModel
@@ -166,23 +166,11 @@ def unmatched_context(circuit: StructuredCircuit, model: ErrorModel) -> tuple[st
         return ()
     placer = ContextPlacer(circuit, model)
     used: set[str] = set()
-
-    def walk(items) -> None:
-        for it in items:
-            if isinstance(it, Layer):
-                for op in it.operations:
-                    table = placer.table(op, it)
-                    if table is not None:
-                        used.add(table.path)
-            elif isinstance(it, Repeat):
-                walk(it.body)
-            elif isinstance(it, IfBlock):
-                walk(it.then)
-                walk(it.orelse)
-            elif not isinstance(it, (Measure, Reset)):
-                raise unsupported_item(it, "unmatched_context")
-
-    walk(circuit.body)
+    for layer in circuit.distinct_layers():
+        for op in layer.operations:
+            table = placer.table(op, layer)
+            if table is not None:
+                used.add(table.path)
     out = []
     for t in model.context.tables:
         if t.path in used:
