@@ -28,7 +28,7 @@ from budget.analysis.phase_estimation import Probe, final_depth, find_probes  # 
 from budget.analysis.sensitivity import knob_key
 from budget.analysis.tolerances import NO_EFFECT, ToleranceReport
 from budget.errors.context_layers import HARDWARE_KNOBS, HARDWARE_REMEDY, context_knob_keys
-from budget.problems import ModelError
+from budget.errors.toml_keys import KeyPaths
 
 HOURS_PER_DAY = 24.0
 

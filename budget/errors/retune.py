@@ -22,8 +22,7 @@ from typing import Mapping
 
 import numpy as np
 
-from budget.engines.knob_rows import PLAIN_KNOB, knob_grouping
-from budget.errors.knobs import coherent_error, pauli_unitary
+from budget.errors.knobs import PLAIN_KNOB, coherent_error, knob_grouping
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyItem, NoisyLayer, NoisyMeasure, NoisyOperation, NoisyRepeat, NoisyReset
 from budget.errors.params import GateParams
 from budget.memo import ObjectKey
@@ -101,16 +100,16 @@ def with_knob_values(circuit: NoisyCircuit, values: Mapping[tuple[str, str], flo
         for it in body:
             if ObjectKey(it) not in items:
                 if isinstance(it, NoisyLayer):
-                    items[id(it)] = dataclasses.replace(it, operations=tuple(operation(n) for n in it.operations))
+                    items[ObjectKey(it)] = dataclasses.replace(it, operations=tuple(operation(n) for n in it.operations))
                 elif isinstance(it, NoisyRepeat):
-                    items[id(it)] = NoisyRepeat(walk(it.body), it.count)
+                    items[ObjectKey(it)] = NoisyRepeat(walk(it.body), it.count)
                 elif isinstance(it, NoisyIf):
-                    items[id(it)] = NoisyIf(it.item, walk(it.then), walk(it.orelse))
+                    items[ObjectKey(it)] = NoisyIf(it.item, walk(it.then), walk(it.orelse))
                 elif isinstance(it, (NoisyMeasure, NoisyReset)):  # readout and reset errors have no knobs
-                    items[id(it)] = it
+                    items[ObjectKey(it)] = it
                 else:
                     raise TypeError(f"with_knob_values: unknown item {type(it).__name__}")
-            out.append(items[id(it)])
+            out.append(items[ObjectKey(it)])
         return tuple(out)
 
     return dataclasses.replace(circuit, body=walk(circuit.body))

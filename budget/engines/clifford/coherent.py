@@ -44,6 +44,7 @@ import stim
 
 from budget.engines.clifford.stim_circuit import Conditioned, as_pauli, to_stim
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyMeasure, NoisyReset
+from budget.memo import ObjectKey
 
 MAX_DEFERRED_QUBITS = 16_000
 """Largest deferred-measurement register simulated (its tableau holds (2n)² bits: 128 MB here)."""
@@ -75,11 +76,11 @@ def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ..
     errors are not. None when the deferred register exceeds :data:`MAX_DEFERRED_QUBITS` (the
     caller twirls)."""
     items: list = []
-    index: dict[int, int] = {}
+    index: dict = {}
 
     def mark(out, item) -> None:
         if _has_amplitudes(item):
-            key = (id(item.item), item.lookback, item.want) if isinstance(item, Conditioned) else id(item)
+            key = (ObjectKey(item.item), item.lookback, item.want) if isinstance(item, Conditioned) else ObjectKey(item)
             if key not in index:
                 index[key] = len(items)
                 items.append(item)

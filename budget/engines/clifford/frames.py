@@ -20,7 +20,6 @@ needs the exact engine.
 from __future__ import annotations
 
 import dataclasses
-import itertools
 from dataclasses import dataclass
 
 import numpy as np
@@ -32,7 +31,6 @@ from budget.errors.fidelity import error_channel_kraus
 from budget.errors.noisy import IDLE, NoisyCircuit
 from budget.memo import ObjectKey
 from budget.pauli_algebra import channel_twirl, pauli_labels
-
 
 @dataclass(frozen=True)
 class FrameResult:
@@ -56,7 +54,7 @@ class _Noise:
     the coherent parts and the relaxation jumps (amplitude damping) are left to
     :func:`coherent_classes`: the rest of each channel is twirled, relaxation keeps only its Z part."""
 
-    def __init__(self, families: set[str] | None, cache: dict[tuple[int, bool], dict[str, float]],
+    def __init__(self, families: set[str] | None, cache: dict[tuple[ObjectKey, bool], dict[str, float]],
                  amplitudes: bool = False):
         self.families = families
         self.cache = cache
@@ -79,12 +77,12 @@ class _Noise:
                     continue
                 rest = _rest(nop) if self.amplitudes else nop
                 if rest.has_incoherent or (not self.amplitudes and nop.has_coherent):
-                    key = (id(nop), self.amplitudes)
+                    key = (ObjectKey(nop), self.amplitudes)
                     if key not in self.cache:
-                        self.cache[key] = twirl_channel(error_channel_kraus(rest))
+                        self.cache[key] = channel_twirl(error_channel_kraus(rest))
                     probs = self.cache[key]
                     name = "PAULI_CHANNEL_1" if len(nop.qubits) == 1 else "PAULI_CHANNEL_2"
-                    out.append(name, list(nop.qubits), [probs[lab] for lab in _LABELS[len(nop.qubits)]])
+                    out.append(name, list(nop.qubits), [probs[lab] for lab in pauli_labels(len(nop.qubits))[1:]])
                 if self.amplitudes:
                     for r in nop.relaxation:
                         self.relax(out, r)
