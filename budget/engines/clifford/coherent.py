@@ -45,6 +45,7 @@ import stim
 from budget.engines.clifford.stim_circuit import Conditioned, as_pauli, to_stim
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyMeasure, NoisyReset
 from budget.memo import ObjectKey
+from budget.pauli_algebra import commutes
 
 MAX_DEFERRED_QUBITS = 16_000
 """Largest deferred-measurement register simulated (its tableau holds (2n)² bits: 128 MB here)."""
@@ -249,7 +250,8 @@ class _Classes:
 
 def _anticommute(a: dict[int, str], b: dict[int, str]) -> bool:
     """Whether two Pauli strings (qubit -> letter) anticommute."""
-    return sum(1 for q, p in a.items() if q in b and b[q] != p) % 2 == 1
+    qubits = sorted(set(a) | set(b))
+    return not commutes("".join(a.get(q, "I") for q in qubits), "".join(b.get(q, "I") for q in qubits))
 
 
 def _action(pauli: stim.PauliString) -> tuple[np.ndarray, complex]:

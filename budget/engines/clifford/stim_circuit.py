@@ -25,6 +25,7 @@ from budget.circuit.ir import Operation, StructuredCircuit, item_kind
 from budget.circuit.walk import Kind, counted, kind_of
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyMeasure
 from budget.memo import ObjectKey
+from budget.pauli_algebra import multiply
 from budget.problems import InputError, place
 
 @dataclass(frozen=True)
@@ -305,8 +306,4 @@ def as_pauli(op: Operation) -> dict[int, str] | None:
 
 def _product(a: str, b: str) -> str:
     """Pauli product up to phase."""
-    if a == "I":
-        return b
-    if b == "I" or a == b:
-        return a if b == "I" else "I"
-    return ({"X", "Y", "Z"} - {a, b}).pop()
+    return multiply(a, b)[1]
