@@ -110,8 +110,6 @@ def checked_tolerances(
     the incoherent floor exceeds the target :func:`~budget.analysis.floor.floor_remedy` says what
     incoherent numbers would meet it.
     """
-    from budget.errors.attach import attach
-
     if metric in MEASURED_METRICS:  # family rows (the detector form is read by finite differences, per knob row)
         report = tolerances(qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles)
         report = close_loop(report, noisy, qf, detector=detector) if closed_loop else report

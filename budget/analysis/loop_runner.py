@@ -17,8 +17,7 @@ from dataclasses import dataclass
 
 from budget.analysis.measured import detector_values, measured_values
 from budget.engines.base import MEASURED_METRICS
-from budget.engines.door import AUTO_ORDER, choose_engine
-from budget.engines.exact.plan import make_plan
+from budget.engines.door import choose_engine, estimate_seconds, estimates, next_engine, quicker
 from budget.errors.noisy import NoisyCircuit
 from budget.errors.retune import with_knob_values
 RUNS_PER_PATTERN = 8
@@ -82,23 +81,19 @@ def loop_engine(circuit: NoisyCircuit, metric: str, engine: str, detector: int |
 
 
 def run_seconds(engine, circuit: NoisyCircuit, metric: str) -> float | None:
-    """The engine's own estimate of one run, when it gives one (``estimate_seconds``); for the
-    exact engine its plan's multiply-adds (:func:`budget.engines.exact.plan.make_plan`) at
-    :data:`MULTIPLY_ADDS_PER_S`; else None. Estimates, unlike measured times, do not change with
-    the machine's load, so the loop's choices (engine, sign patterns) are reproducible."""
-    if metric in MEASURED_METRICS:
+    """The engine's own estimate of one run, when it gives one (``estimate_seconds``), else
+    None. Estimates, unlike measured times, do not change with the machine's load, so the loop's
+    choices (engine, sign patterns) are reproducible."""
+    if metric in MEASURED_METRICS:  # the loop's own adapter (MeasuredEngine) has no estimate
         return None
-    estimate = getattr(engine, "estimate_seconds", None)
-    if estimate is not None:
-        return float(estimate(circuit, metric))
-    if engine.name == "exact":
-        return make_plan(circuit, metric).work / MULTIPLY_ADDS_PER_S
-    return None
+    return estimate_seconds(engine, circuit, metric) if estimates(engine) else None
 
 
 def quick_enough(first, circuit: NoisyCircuit, metric: str, seconds: float, notes: list[str]):
     """``first``, or the engine the front door finds quick enough for ``seconds`` per run
     (:func:`budget.engines.door.quicker`); a note when it changed."""
+    if metric in MEASURED_METRICS:
+        return first
     engine, note = quicker(first, circuit, metric, seconds)
     if note:
         notes.append(note)
@@ -110,6 +105,8 @@ def faster(runner: TimedRunner, floor: float, circuit: NoisyCircuit, metric: str
     """The next engine of ``auto``'s order that fits (:func:`budget.engines.door.next_engine`),
     when the first run of an engine without an estimate took more than half of ``max_seconds``."""
     slow = time.monotonic() - runner.start
+    if metric in MEASURED_METRICS:  # MeasuredEngine already takes the exact engine only where it fits
+        return runner, floor
     other = next_engine(runner.engine, circuit, metric)
     if other is None:
         return runner, floor

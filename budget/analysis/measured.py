@@ -32,14 +32,12 @@ from budget.analysis.families import family_counts, family_table
 from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit, circuit_fields
 from budget.analysis.twirl import twirled_circuit
 from budget.circuit.ir import StructuredCircuit
-from budget.circuit.walk import Kind, counted
-from budget.engines.clifford.frames import families_of, frames
+from budget.engines.clifford.coherent import MAX_DEFERRED_QUBITS
+from budget.engines.clifford.frames import families_of, frames, has_coherent
 from budget.engines.exact.branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
 from budget.engines.door import measured_engine
 from budget.engines.base import MEASURED_METRICS
-from budget.engines.clifford.coherent import MAX_DEFERRED_QUBITS
-from budget.engines.clifford.frames import families_of, frames, has_coherent
-from budget.errors.fidelity import naive_infidelity
+from budget.errors.fidelity import naive_infidelity, relaxation_process_fidelity
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
 from budget.memo import ObjectKey
 from budget.problems import InputError, TooLargeError
@@ -75,7 +73,7 @@ def analyze_measured(
         small_plan = Plan(tuple(d.measurements for d in sc.detectors), tuple(d.ideal for d in sc.detectors),
                           False, tuple(condition_bits(noisy.body)), sc.num_measurements)
         unroll = not folded.steady and noisy.num_qubits + 2 * folded.num_measurements <= MAX_DEFERRED_QUBITS
-        if not unroll and (engine == "clifford" or exact_refusal(folded.small, small_plan) is not None):
+        if not unroll and measured_engine(metric, engine, exact_refusal(folded.small, small_plan)) == "clifford":
             warnings = [f"the repeated block of {noisy.body[index].count:,} iterations is folded: its first and last "
                         "iterations are computed, the middle ones repeat the steady state (docs/methods.md)"]
             if not folded.steady:
@@ -94,10 +92,7 @@ def analyze_measured(
     checks = _checks(noisy, logical)
     plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
                 False, tuple(condition_bits(noisy.body)), checks.num_measurements)
-    reason = exact_refusal(noisy, plan)
-    use_exact = engine == "exact" or (engine == "auto" and reason is None)
-    if engine == "exact" and reason is not None:
-        raise TooLargeError(f"engine exact: {reason}; the clifford engine fits (first order)")
+    use_exact = measured_engine(metric, engine, exact_refusal(noisy, plan)) == "exact"
     fo = frames(noisy, plan.detectors, coherent=True)
     twirled = frames(noisy, plan.detectors, shares=False).any_fires
     warnings = []
@@ -148,8 +143,7 @@ def detector_values(noisy: NoisyCircuit, engine: str = "auto") -> tuple[float, f
     plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
                 False, tuple(condition_bits(noisy.body)), checks.num_measurements)
     twirled = frames(noisy, plan.detectors, shares=False)
-    use_exact = engine == "exact" or (engine == "auto" and exact_refusal(noisy, plan) is None)
-    if use_exact:
+    if measured_engine("detectors", engine, exact_refusal(noisy, plan)) == "exact":
         exact = simulate(noisy, plan)
         return exact.any_fires, twirled.any_fires, exact.detector_probability, "exact"
     fo = frames(noisy, plan.detectors, coherent=True, shares=False)

@@ -25,7 +25,9 @@ from budget.circuit.ir import StructuredCircuit
 from budget.circuit.load import load_circuit
 from budget.engines.base import MEASURED_METRICS, METRICS, parse_observable
 from budget.errors.context_attach import model_notes
-from budget.errors.noisy import IDLE, NoisyCircuit
+from budget.errors.fidelity import naive_infidelity
+from budget.errors.model import ErrorModel, load_model
+from budget.errors.noisy import NoisyCircuit
 from budget.problems import InputError
 
 if TYPE_CHECKING:
