@@ -27,6 +27,7 @@ from budget.analysis.run import read_circuit, read_model
 from budget.analysis.sensitivity import Sensitivity, quadratic_form, sensitivity, sensitivity_json
 from budget.analysis.tolerance_output import tolerances_json
 from budget.analysis.tolerances import ToleranceReport, check_target, hardware_notes, tolerances
+from budget.circuit.walk import Kind, branches, kind_of
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.attach import attach
 from budget.problems import InputError

@@ -32,13 +32,14 @@ from budget.analysis.families import family_counts, family_table
 from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit, circuit_fields
 from budget.analysis.twirl import twirled_circuit
 from budget.circuit.ir import StructuredCircuit
+from budget.circuit.walk import Kind, counted
 from budget.engines.clifford.coherent import MAX_DEFERRED_QUBITS
 from budget.engines.clifford.frames import families_of, frames, has_coherent
 from budget.engines.exact.branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
 from budget.engines.door import measured_engine
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.fidelity import naive_infidelity, relaxation_process_fidelity
-from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, NoisyMeasure, NoisyRepeat, NoisyReset
+from budget.errors.noisy import IDLE, NoisyCircuit, map_items
 from budget.memo import ObjectKey
 from budget.problems import InputError, TooLargeError
 

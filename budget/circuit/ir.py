@@ -230,33 +230,7 @@ class StructuredCircuit:
     def distinct_layers(self) -> list[Layer]:
         """Every gate layer as written (once per place in the text, repeats not unrolled, both
         branches of an if block)."""
-        out: list[Layer] = []
-
-        def walk(items: tuple[Item, ...]) -> None:
-            for it in items:
-                if isinstance(it, Layer):
-                    out.append(it)
-                elif isinstance(it, Repeat):
-                    walk(it.body)
-                elif isinstance(it, IfBlock):
-                    walk(it.then)
-                    walk(it.orelse)
-                elif not isinstance(it, (Measure, Reset)):
-                    raise unsupported_item(it, "distinct_layers")
-
-        walk(self.body)
-        return out
-
-
-def _first_mid(items: tuple[Item, ...]) -> "Measure | Reset | IfBlock | None":
-    for it in items:
-        if isinstance(it, MID_CIRCUIT_KINDS):
-            return it
-        if isinstance(it, Repeat):
-            found = _first_mid(it.body)
-            if found is not None:
-                return found
-    return None
+        return [it for it, _ in counted(self.body, where="distinct_layers") if it.kind is Kind.LAYER]
 
 
 def _counts(items: tuple[Item, ...]) -> tuple[int, int]:

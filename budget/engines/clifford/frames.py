@@ -25,8 +25,9 @@ from dataclasses import dataclass
 import numpy as np
 import stim
 
+from budget.circuit.walk import Kind, counted, kind_of
 from budget.engines.clifford.coherent import coherent_classes
-from budget.engines.clifford.stim_circuit import to_stim
+from budget.engines.clifford.stim_circuit import Conditioned, to_stim
 from budget.errors.fidelity import error_channel_kraus
 from budget.errors.noisy import IDLE, NoisyCircuit
 from budget.memo import ObjectKey
@@ -70,6 +71,8 @@ class _Noise:
         out.append("PAULI_CHANNEL_1", [r.qubit], [0.0, 0.0, pz] if self.amplitudes else [px, py, pz])
 
     def __call__(self, out, item) -> None:
+        if isinstance(item, Conditioned):  # stim has no noise conditioned on a recorded bit
+            return
         kind = kind_of(item, "measured frames (noise)")
         if kind is Kind.LAYER:
             for nop in item.operations:
@@ -86,10 +89,10 @@ class _Noise:
                 if self.amplitudes:
                     for r in nop.relaxation:
                         self.relax(out, r)
-        if isinstance(item, (NoisyLayer, NoisyMeasure, NoisyReset)) and self.wants(IDLE):
+        if kind in (Kind.LAYER, Kind.MEASURE, Kind.RESET) and self.wants(IDLE):
             for r in item.idle:
                 self.relax(out, r)
-        if isinstance(item, NoisyReset) and self.wants(item.family):
+        if kind is Kind.RESET and self.wants(item.family):
             for q, e in zip(item.item.qubits, item.reset_error):
                 if e:
                     out.append("X_ERROR", [q], [e])

@@ -160,13 +160,10 @@ class _Writer:
                 out.append("R", list(it.item.qubits))
                 if self.noise is not None:
                     self.noise(out, it)
-            elif isinstance(it, NoisyRepeat):
+            elif kind is Kind.REPEAT:
                 self.repeat(out, it, written, count)
-            elif isinstance(it, NoisyIf):
+            else:  # Kind.IF
                 self.feed_forward(out, it, written, count[0])
-            else:
-                inner = getattr(it, "item", it)
-                raise self.fail(getattr(inner, "line", None), f"{item_kind(inner)} is not supported by the stabilizer path")
 
     def repeat(self, out: Text, it: NoisyRepeat, written: dict[str, int], count: list[int]) -> None:
         """A repeated block as stim's REPEAT when its iterations read alike.
