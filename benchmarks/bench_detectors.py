@@ -10,7 +10,8 @@ would be 100 times longer than the loop it encodes). Error model (invented devic
 on every gate (h over-rotation 0.01 rad, cx conditional phase 0.02 rad and z phases), cx average
 infidelity 3e-3, T1 = 60 µs / T2 = 45 µs, readout 1 %, reset 0.2 %, measurement 500 ns, reset
 200 ns. Each scenario times reading, detector inference and the budget (per-detector probability
-and family shares, clifford engine) and the peak memory (tracemalloc plus the process's maximum
+and family shares, clifford engine: coherent errors and relaxation as amplitude classes, and the
+all-twirled comparison) and the peak memory (tracemalloc plus the process's maximum
 resident size).
 
 Targets: d7 under 60 s and 4 GB; d15 (100 rounds, folded input) under 5 minutes; ``rounds``: the

@@ -100,8 +100,14 @@ def test_model_naming_a_qubit_not_in_the_circuit():
     other_register = {"gates": {"cz": {"anc[0],q[1]": {"cphase": 0.1}}}}
     with pytest.raises(ModelError, match=r'gates\.cz\."anc\[0\],q\[1\]" in fen.toml'):
         attach(circuit(layer), ErrorModel.from_dict(other_register, "fen.toml"))
-    # a device qubit the circuit leaves unused (same register) is fine; so is skipping the check
-    attach(circuit(layer), ErrorModel.from_dict({"qubits": {"q[7]": {"t1_us": 10.0}}}))
+    # a qubit beyond the circuit's register is refused with its key path, unless the model says it
+    # describes a whole device; skipping the check passes anything
+    beyond = {"qubits": {"q[7]": {"t1_us": 10.0}}}
+    with pytest.raises(ModelError, match=r'^qubits\."q\[7\]" in fen\.toml: qubit \'q\[7\]\' is beyond .*device_wide = true'):
+        attach(circuit(layer), ErrorModel.from_dict(beyond, "fen.toml"))
+    attach(circuit(layer), ErrorModel.from_dict({**beyond, "device_wide": True}))
+    with pytest.raises(ModelError, match=r"^device_wide = 'yes' in fen\.toml: expected true or false"):
+        ErrorModel.from_dict({**beyond, "device_wide": "yes"}, "fen.toml")
     attach(circuit(layer), ErrorModel.from_dict(typo), check_qubits=False)
 
 

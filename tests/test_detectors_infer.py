@@ -93,9 +93,36 @@ def test_user_named_observables():
     m = gen.num_measurements
     checks = infer_checks(noisy, observables=[[m - 3]])  # first data qubit
     assert checks.observables == ((m - 3,),)
-    with pytest.raises(InputError, match="observable 0 .* random"):
+    with pytest.raises(InputError, match=r"--logical 0 \(observable 0\): this parity is random"):
         # the outcome of measuring H|0> is random
         text = "OPENQASM 3;\nqubit q;\nbit[2] b;\nh q;\nb[0] = measure q;\nreset q;\nb[1] = measure q;\n"
         infer_checks(attach(parse_qasm(text), ErrorModel.from_dict({})), observables=[[0]])
     with pytest.raises(InputError, match="must lie in"):
         infer_checks(noisy, observables=[[m]])
+
+
+def test_logical_refuses_a_parity_the_checks_fix(tmp_path):
+    """The first-round outcome of a check (record index 0) is deterministic but a detector, not a
+    logical observable, and an observable named twice adds nothing the first did not. The CLI
+    prints one line, exit code 2, no output file."""
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    gen = stim.Circuit.generated("repetition_code:memory", distance=3, rounds=2)
+    noisy = noisy_from_stim(gen)
+    m = gen.num_measurements
+    with pytest.raises(InputError, match="fixed by the checks"):
+        infer_checks(noisy, observables=[[0]])
+    with pytest.raises(InputError, match="fixed by the checks"):  # the same observable named twice
+        infer_checks(noisy, observables=[[m - 3], [m - 3]])
+    path = tmp_path / "rep.qasm"
+    path.write_text(gen.without_noise().to_qasm(open_qasm_version=3, skip_dets_and_obs=True))
+    out = tmp_path / "o.json"
+    model = tmp_path / "m.toml"
+    model.write_text("[qubits]\nreadout_error = 0.01\n")
+    res = CliRunner().invoke(app, ["analyze", str(path), "-e", str(model), "--metric", "detectors", "--logical", "0",
+                                   "--json", str(out)], env={"COLUMNS": "400"})
+    assert res.exit_code == 2 and not out.exists()
+    lines = [ln for ln in res.output.strip().splitlines() if ln.strip()]
+    assert len(lines) == 1 and "--logical 0" in lines[0] and "fixed by the checks" in lines[0], res.output

@@ -74,7 +74,7 @@ def test_sweep_draws_only_values_the_circuit_uses(tmp_path):
     circuit.write_text('OPENQASM 3.0;\ninclude "stdgates.inc";\nqubit[1] q;\nx q[0];\nx q[0];\nx q[0];\n')
     used = {"gates": {"x": {"duration_ns": 40.0, "overrotation": {"value": 0.01, "sigma": 0.004}}}}
     extra = {"gates": {**used["gates"], "cz": {"duration_ns": 60.0, "cphase": {"value": 0.0, "sigma": 0.01}}},
-             "qubits": {"q[7]": {"t1_us": {"value": 50.0, "sigma": 5.0}}}}
+             "qubits": {"q[7]": {"t1_us": {"value": 50.0, "sigma": 5.0}}}, "device_wide": True}
     a = sweep(circuit, used, samples=40, sobol_base=0, workers=1)
     b = sweep(circuit, extra, samples=40, sobol_base=0, workers=1)
     assert [f"{v.knob}@{v.site}" for v in b.varied] == ["x.overrotation@all"]

@@ -85,7 +85,7 @@ def test_folded_repeat_equals_unrolled_frames():
     assert index is not None
     folded = folded_frames(noisy, index)
     checks = infer_checks(noisy)
-    whole = frames(noisy, tuple(d.measurements for d in checks.detectors))
+    whole = frames(noisy, tuple(d.measurements for d in checks.detectors), coherent=True)
     ref = {d.measurements: (d.round, p) for d, p in zip(checks.detectors, whole.detector_probability)}
     assert len(folded.detectors) == len(ref) == 2 * rounds + 2
     for d in folded.detectors:

@@ -135,7 +135,7 @@ def test_cli_json_schema_and_bad_input(tmp_path):
                               "--sobol-base", "4", "--workers", "1", "--json", str(j), "--width", "120"])
     assert res.exit_code == 0, res.output
     data = json.loads(j.read_text())
-    assert set(data) == {"samples", "infidelity", "p_meet_target", "contributions", "hours"}
+    assert set(data) == {"metric", "samples", "infidelity", "p_meet_target", "contributions", "hours"}
     assert set(data["infidelity"]) == {"mean", "std", "median", "q05", "q95"}
     assert data["contributions"] == [{"knob": "x.overrotation", "site": "all", "index": 1.0}]  # the only uncertain value
     assert "model predictions" in res.output

@@ -17,8 +17,9 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable, Iterable, Mapping
 
-from budget.engines.door import choose_engine
+from budget.analysis.measured import MEASURED_METRICS, measured_values
 from budget.analysis.uncertainty import with_values
+from budget.engines.door import choose_engine
 from budget.circuit.ir import StructuredCircuit
 from budget.errors.attach import attach
 from budget.errors.model import ErrorModel
@@ -39,11 +40,15 @@ class Context:
 
 
 def evaluate(context: Context, chunk: list[tuple[tuple, list[float]]]) -> list[tuple[tuple, float]]:
-    """The infidelity of each task's drawn model (the engine's brief path, as depth curves use)."""
+    """The infidelity of each task's drawn model (the engine's brief path, as depth curves use; the
+    detector and record metrics through :func:`measured_values`, as their depth curves)."""
     out = []
     for key, values in chunk:
         model = ErrorModel.from_dict(with_values(context.plain, context.paths, values), source=context.source)
         noisy = attach(context.circuit, model)
+        if context.metric in MEASURED_METRICS:
+            out.append((tuple(key), float(measured_values(noisy, context.metric, context.engine)[0])))
+            continue
         engine = choose_engine(noisy, context.metric, context.engine, brief=True)
         result = engine.run(noisy, context.metric)
         # beyond the engine's range there is no value (the analysis shows none either): NaN, refused by sweep()

@@ -27,7 +27,7 @@ from typing import Any, Mapping
 from budget.analysis.phase_estimation import Probe, final_depth, find_probes  # noqa: F401 (re-exported)
 from budget.analysis.sensitivity import knob_key
 from budget.analysis.tolerances import NO_EFFECT, ToleranceReport
-from budget.errors.context_layers import context_knob_keys
+from budget.errors.context_layers import HARDWARE_KNOBS, HARDWARE_REMEDY, context_knob_keys
 from budget.errors.toml_keys import KeyPaths
 
 HOURS_PER_DAY = 24.0
@@ -220,6 +220,9 @@ def calibration_plan(
         key = knob_key((row.family, row.knob))
         drift = _drift_of((row.family, row.knob), settings.drift_rad_per_hour)
         if row.status != "tighten" and drift is None:
+            continue
+        if row.knob in HARDWARE_KNOBS:
+            unplanned[key] = HARDWARE_REMEDY
             continue
         if not 0 < row.tolerance_rad < math.inf:
             unplanned[key] = "no effect found" if row.status == NO_EFFECT else "its tolerance is zero"

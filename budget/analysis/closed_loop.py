@@ -36,8 +36,7 @@ from typing import Callable
 import numpy as np
 from scipy.optimize import brentq
 
-from budget.analysis.loop_runner import RUNS_PER_PATTERN, TimedRunner, faster, quick_enough, run_seconds
-from budget.engines.door import choose_engine
+from budget.analysis.loop_runner import RUNS_PER_PATTERN, TimedRunner, faster, loop_engine, quick_enough, run_seconds
 from budget.analysis.sign_patterns import describe, joint_signs, patterns_for
 from budget.analysis.tolerances import LEADING_ORDER_ONLY, ToleranceReport, make_row
 from budget.engines.base import QuadraticForm
@@ -104,6 +103,7 @@ def close_loop(
     engine: str = "auto",
     seed: int = 0,
     max_seconds: float = 20.0,
+    detector: int | None = None,
 ) -> ToleranceReport:
     """``report`` with tolerances checked and corrected by an engine run (module docstring).
 
@@ -117,12 +117,13 @@ def close_loop(
         max_seconds: the planned wall time: fewer sign patterns are used when one engine run is
             slow (the method says so); at twice this the loop stops and says so, keeping the
             largest tolerances found to meet the target if there are any.
+        detector: detector metric only: the target is on this detector's firing probability.
     """
     if not report.feasible or not report.rows:
         return report
     notes: list[str] = []
     try:
-        chosen = choose_engine(circuit, report.metric, engine, brief=True)
+        chosen = loop_engine(circuit, report.metric, engine, detector)
         if engine == "auto":
             chosen = quick_enough(chosen, circuit, report.metric, max_seconds / RUNS_PER_PATTERN, notes)
         runner = TimedRunner(circuit, report.metric, chosen, max_seconds)

@@ -26,7 +26,7 @@ from budget.analysis.phase_estimation import find_probes
 from budget.analysis.run import read_circuit, read_model
 from budget.analysis.sensitivity import Sensitivity, quadratic_form, sensitivity, sensitivity_json
 from budget.analysis.tolerance_output import tolerances_json
-from budget.analysis.tolerances import ToleranceReport, check_target, tolerances
+from budget.analysis.tolerances import ToleranceReport, check_target, hardware_notes, tolerances
 from budget.circuit.walk import Kind, branches, kind_of
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.attach import attach
@@ -72,7 +72,8 @@ def decide(
             as written).
         engine: ``"auto"``, ``"clifford"`` or ``"generators"`` for the quadratic form.
         closed_loop: check and correct the tolerances with an engine run at the tolerances (the
-            gate metrics; the detector and record metrics are checked at leading order only).
+            detector metric: the exact engine with branches where it fits, else the Pauli frames
+            with coherent classes).
         detector: with ``metric="detectors"``, the target is on this detector's firing probability
             (its number in the detector list) instead of P(some detector fires).
     """
@@ -89,7 +90,8 @@ def decide(
         noisy = per_operation(noisy)
     qf = quadratic_form(noisy, metric, engine=engine, detector=detector)
     report = checked_tolerances(structured, model, noisy, qf, target, metric=metric, cycles=cycles, assume=assume,
-                                allocation=allocation, family_by=family_by, engine=engine, closed_loop=closed_loop)
+                                allocation=allocation, family_by=family_by, engine=engine, closed_loop=closed_loop,
+                                detector=detector)
     plan = calibration_plan(report, find_probes(noisy), settings, model_knobs=model_knob_keys(model))
     return Decisions(structured.source, sensitivity(qf), report, plan)
 
@@ -98,6 +100,7 @@ def checked_tolerances(
     structured: Any, model: Any, noisy: Any, qf: Any, target: float, *, metric: str, cycles: int,
     assume: str = "worst", allocation: str = "equal", family_by: str = "gate", engine: str = "auto",
     closed_loop: bool = True,
+    detector: int | None = None,
 ) -> ToleranceReport:
     """Tolerances per family row over its sites, checked in closed loop, with the floor's remedy.
 
@@ -108,8 +111,10 @@ def checked_tolerances(
     the incoherent floor exceeds the target :func:`~budget.analysis.floor.floor_remedy` says what
     incoherent numbers would meet it.
     """
-    if metric in MEASURED_METRICS:  # leading order only: the closed loop runs the gate metrics
-        return tolerances(qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles)
+    if metric in MEASURED_METRICS:  # family rows (the detector form is read by finite differences, per knob row)
+        report = tolerances(qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles)
+        report = close_loop(report, noisy, qf, detector=detector) if closed_loop else report
+        return dataclasses.replace(report, warnings=report.warnings + hardware_notes(report))
     if family_by == "gate":
         site_noisy = attach(structured, model, family_by="pair")
         site_qf = dataclasses.replace(quadratic_form(site_noisy, metric, engine=engine), floor_sources=dict(qf.floor_sources))
@@ -122,7 +127,7 @@ def checked_tolerances(
         report = close_loop(report, site_noisy, site_qf)
     if not report.feasible:
         report = dataclasses.replace(report, floor_remedy=floor_remedy(report, model, noisy, metric))
-    return report
+    return dataclasses.replace(report, warnings=report.warnings + hardware_notes(report))
 
 
 def site_families(by_gate: Any, by_site: Any) -> dict[str, str]:

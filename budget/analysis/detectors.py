@@ -165,8 +165,9 @@ def infer_checks(
         seed: seed of the sampler.
 
     Raises:
-        InputError: a named observable is not deterministic or names a record index that does
-            not exist; the circuit is not Clifford (from the stim writer).
+        InputError: a named observable is not deterministic, lies in the span of the detectors
+            (or of the observables named before it), or names a record index that does not exist;
+            the circuit is not Clifford (from the stim writer).
     """
     qubits = recorded_qubits(circuit, "detectors")
     ideal = to_stim(circuit)
@@ -217,8 +218,13 @@ def infer_checks(
             if not ms or any(not 0 <= i < m for i in ms):
                 raise InputError(f"observable {k}: record indices {list(o)} must lie in 0..{m - 1}")
             if _xor(cols, ms) != 0:
-                raise InputError(f"observable {k} = {list(ms)}: this parity is random in the ideal circuit")
-            span.add(_mask(ms))
+                raise InputError(f"--logical {','.join(map(str, ms))} (observable {k}): this parity is random in the ideal "
+                                 "circuit; a logical observable must be a deterministic parity of recorded bits")
+            if not span.add(_mask(ms)):
+                raise InputError(f"--logical {','.join(map(str, ms))}: this parity is fixed by the checks (a combination "
+                                 "of detectors or of the observables named before it), so no error flips it without "
+                                 "firing a detector: a logical observable must be a deterministic parity the detectors "
+                                 "do not span")
             obs.append(ms)
     else:
         for combo in _dependencies(cols, sorted(data)):

@@ -42,6 +42,14 @@ class Folded:
     random_rank: int
     small: NoisyCircuit
     small_checks: Checks
+    twirled_any_fires: float
+    """P(some detector fires) with every error twirled, folded the same way."""
+    steady: bool
+    """The detectors after the block have the same probabilities after KEEP and KEEP + 1
+    iterations. False when a coherent error that no check sees builds up over the iterations: the
+    fold would then miss its growth (unroll instead)."""
+    coherent_twirled: bool
+    """Coherent errors had to be twirled (deferred register too large)."""
 
 
 def fold_target(noisy: NoisyCircuit) -> int | None:
@@ -60,13 +68,16 @@ def with_count(noisy: NoisyCircuit, index: int, count: int) -> NoisyCircuit:
 
 
 def folded_frames(noisy: NoisyCircuit, index: int) -> Folded:
-    """See the module docstring."""
+    """See the module docstring (coherent errors by amplitude classes, :func:`frames`)."""
     rep = noisy.body[index]
     n = rep.count
     small, big = with_count(noisy, index, KEEP), with_count(noisy, index, KEEP + 1)
     cs, cb = infer_checks(small), infer_checks(big)
-    fs: FrameResult = frames(small, tuple(d.measurements for d in cs.detectors))
-    fb: FrameResult = frames(big, tuple(d.measurements for d in cb.detectors))
+    small_dets, big_dets = tuple(d.measurements for d in cs.detectors), tuple(d.measurements for d in cb.detectors)
+    fs: FrameResult = frames(small, small_dets, coherent=True)
+    fb: FrameResult = frames(big, big_dets, coherent=True)
+    ts = frames(small, small_dets, shares=False).log_none_fires
+    tb = frames(big, big_dets, shares=False).log_none_fires
     before = len(record_qubits(dataclasses.replace(noisy, body=noisy.body[:index])))
     one = record_qubits(dataclasses.replace(noisy, body=rep.body))
     per = len(one)
@@ -88,12 +99,18 @@ def folded_frames(noisy: NoisyCircuit, index: int) -> Folded:
             out.append(DetectorBudget(ms, d.round + extra * per_round, p, shares))
     out.sort(key=lambda d: (max(d.measurements), d.measurements))
     logical = tuple(tuple(i + extra * per if i >= hi else i for i in o) for o in cs.observables)
+    after_big = {d.measurements: p for d, p in zip(cb.detectors, fb.detector_probability)}
+    steady = all(
+        math.isclose(p, after_big.get(tuple(i + per if i >= lo else i for i in d.measurements), -1.0),
+                     rel_tol=1e-9, abs_tol=1e-15)
+        for d, p in zip(cs.detectors, fs.detector_probability) if max(d.measurements) >= hi)
     ls, lb = fs.log_none_fires, fb.log_none_fires
     any_fires = -math.expm1(ls + extra * (lb - ls))
     rs, rb = fs.any_family_rates, fb.any_family_rates
     fams = {f: rs.get(f, 0.0) + extra * (rb.get(f, 0.0) - rs.get(f, 0.0)) for f in set(rs) | set(rb)}
     return Folded(tuple(out), logical, any_fires, scaled(fams, any_fires), cs.num_measurements + extra * per,
-                  cs.random_rank + extra * (cb.random_rank - cs.random_rank), small, cs)
+                  cs.random_rank + extra * (cb.random_rank - cs.random_rank), small, cs,
+                  -math.expm1(ts + extra * (tb - ts)), steady, fs.coherent_twirled or fb.coherent_twirled)
 
 
 def scaled(parts: dict[str, float], total: float) -> dict[str, float]:

@@ -13,8 +13,11 @@ door's answer (:func:`budget.engines.door.quicker`, :func:`budget.engines.door.n
 from __future__ import annotations
 
 import time
+from dataclasses import dataclass
 
-from budget.engines.door import estimate_seconds, estimates, next_engine, quicker
+from budget.analysis.measured import detector_values, measured_values
+from budget.engines.base import MEASURED_METRICS
+from budget.engines.door import choose_engine, estimate_seconds, estimates, next_engine, quicker
 from budget.errors.noisy import NoisyCircuit
 from budget.errors.retune import with_knob_values
 RUNS_PER_PATTERN = 8
@@ -42,16 +45,55 @@ class TimedRunner:
         return float(res.infidelity)
 
 
+@dataclass(frozen=True)
+class MeasuredValue:
+    infidelity: float
+    warnings: tuple[str, ...] = ()
+    beyond_range: str | None = None
+
+
+class MeasuredEngine:
+    """The detector or record metric as an engine for the loop (:func:`measured_values`: the exact
+    engine with branches where it fits under ``auto``, else the Pauli frames with coherent classes);
+    with ``detector`` the firing probability of that detector (its number in the detector list).
+    ``name`` is the engine that ran last (``engine`` before the first run)."""
+
+    def __init__(self, engine: str, detector: int | None = None) -> None:
+        self.engine = engine
+        self.detector = detector
+        self.name = engine
+
+    def run(self, circuit: NoisyCircuit, metric: str) -> MeasuredValue:
+        if self.detector is None:
+            actual, _, self.name = measured_values(circuit, metric, self.engine)
+        else:
+            _, _, probs, self.name = detector_values(circuit, self.engine)
+            actual = probs[self.detector]
+        return MeasuredValue(float(actual))
+
+
+def loop_engine(circuit: NoisyCircuit, metric: str, engine: str, detector: int | None = None):
+    """The engine the loop runs: :class:`MeasuredEngine` for the detector and record metrics,
+    else the door's choice (its brief form)."""
+    if metric in MEASURED_METRICS:
+        return MeasuredEngine(engine, detector)
+    return choose_engine(circuit, metric, engine, brief=True)
+
+
 def run_seconds(engine, circuit: NoisyCircuit, metric: str) -> float | None:
     """The engine's own estimate of one run, when it gives one (``estimate_seconds``), else
     None. Estimates, unlike measured times, do not change with the machine's load, so the loop's
     choices (engine, sign patterns) are reproducible."""
+    if metric in MEASURED_METRICS:  # the loop's own adapter (MeasuredEngine) has no estimate
+        return None
     return estimate_seconds(engine, circuit, metric) if estimates(engine) else None
 
 
 def quick_enough(first, circuit: NoisyCircuit, metric: str, seconds: float, notes: list[str]):
     """``first``, or the engine the front door finds quick enough for ``seconds`` per run
     (:func:`budget.engines.door.quicker`); a note when it changed."""
+    if metric in MEASURED_METRICS:
+        return first
     engine, note = quicker(first, circuit, metric, seconds)
     if note:
         notes.append(note)
@@ -63,6 +105,8 @@ def faster(runner: TimedRunner, floor: float, circuit: NoisyCircuit, metric: str
     """The next engine of ``auto``'s order that fits (:func:`budget.engines.door.next_engine`),
     when the first run of an engine without an estimate took more than half of ``max_seconds``."""
     slow = time.monotonic() - runner.start
+    if metric in MEASURED_METRICS:  # MeasuredEngine already takes the exact engine only where it fits
+        return runner, floor
     other = next_engine(runner.engine, circuit, metric)
     if other is None:
         return runner, floor

@@ -33,7 +33,8 @@ from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary,
 from budget.analysis.twirl import twirled_circuit
 from budget.circuit.ir import StructuredCircuit
 from budget.circuit.walk import Kind, counted
-from budget.engines.clifford.frames import families_of, frames
+from budget.engines.clifford.coherent import MAX_DEFERRED_QUBITS
+from budget.engines.clifford.frames import families_of, frames, has_coherent
 from budget.engines.exact.branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
 from budget.engines.door import measured_engine
 from budget.engines.base import MEASURED_METRICS
@@ -42,8 +43,11 @@ from budget.errors.noisy import IDLE, NoisyCircuit, map_items
 from budget.memo import ObjectKey
 from budget.problems import InputError, TooLargeError
 
-TWIRL_WARNING = ("coherent errors enter as their Pauli twirl on the clifford engine: their build-up within a "
-                 "round needs the exact engine (small circuits)")
+COHERENT_NOTE = ("coherent errors on the clifford engine: amplitudes of errors that act alike add within a round "
+                 "and across rounds while no check sees them, then are squared (first order in the amplitudes; "
+                 "the exact engine keeps every order on small circuits)")
+TWIRLED_NOTE = (f"coherent errors and relaxation enter as their Pauli twirl here: the deferred-measurement register "
+                f"(qubits + recorded bits + resets) exceeds {MAX_DEFERRED_QUBITS:,} qubits")
 
 __all__ = ["MEASURED_METRICS", "analyze_measured", "naive_measured", "record_infidelity", "without_family"]
 
@@ -69,13 +73,20 @@ def analyze_measured(
         sc = folded.small_checks
         small_plan = Plan(tuple(d.measurements for d in sc.detectors), tuple(d.ideal for d in sc.detectors),
                           False, tuple(condition_bits(noisy.body)), sc.num_measurements)
-        if measured_engine(metric, engine, exact_refusal(folded.small, small_plan)) == "clifford":
+        unroll = not folded.steady and noisy.num_qubits + 2 * folded.num_measurements <= MAX_DEFERRED_QUBITS
+        if not unroll and measured_engine(metric, engine, exact_refusal(folded.small, small_plan)) == "clifford":
             warnings = [f"the repeated block of {noisy.body[index].count:,} iterations is folded: its first and last "
                         "iterations are computed, the middle ones repeat the steady state (docs/methods.md)"]
-            if _has_coherent(noisy):
-                warnings.append(TWIRL_WARNING)
+            if not folded.steady:
+                warnings.append("a coherent error that no check sees builds up over the repeated block: the folded "
+                                "values after the block include its growth over 6 iterations only (too many "
+                                "iterations to unroll)")
+            if folded.coherent_twirled:
+                warnings.append(TWIRLED_NOTE)
+            elif has_coherent(noisy):
+                warnings.append(COHERENT_NOTE)
             return _result(noisy, structured, metric, "clifford", folded.any_fires, None,
-                           scaled(folded.any_families, folded.any_fires), cycles, warnings, folded.any_fires,
+                           scaled(folded.any_families, folded.any_fires), cycles, warnings, folded.twirled_any_fires,
                            detectors=folded.detectors, logical=folded.logical,
                            details={"detectors": len(folded.detectors), "record_length": folded.num_measurements,
                                     "random_bits": folded.random_rank})
@@ -83,22 +94,27 @@ def analyze_measured(
     plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
                 False, tuple(condition_bits(noisy.body)), checks.num_measurements)
     use_exact = measured_engine(metric, engine, exact_refusal(noisy, plan)) == "exact"
-    fo = frames(noisy, plan.detectors)
+    fo = frames(noisy, plan.detectors, coherent=True)
+    twirled = frames(noisy, plan.detectors, shares=False).any_fires
     warnings = []
+    first_order = None
     if use_exact:
         exact = simulate(noisy, plan)
         probs, any_fires, name = exact.detector_probability, exact.any_fires, "exact"
+        first_order = fo.any_fires
     else:
         probs, any_fires, name = fo.detector_probability, fo.any_fires, "clifford"
-        if _has_coherent(noisy):
-            warnings.append(TWIRL_WARNING)
+        if fo.coherent_twirled:
+            warnings.append(TWIRLED_NOTE)
+        elif has_coherent(noisy):
+            warnings.append(COHERENT_NOTE)
     detectors = tuple(
         DetectorBudget(d.measurements, d.round, float(p), scaled(fams, p))
         for d, p, fams in zip(checks.detectors, probs, fo.detector_families)
     )
     shares = scaled(fo.any_families, any_fires)
-    return _result(noisy, structured, metric, name, any_fires, None, shares, cycles, warnings,
-                   fo.any_fires, detectors=detectors,
+    return _result(noisy, structured, metric, name, any_fires, first_order, shares, cycles, warnings,
+                   twirled, detectors=detectors,
                    logical=checks.observables, details={"detectors": len(detectors),
                                                         "record_length": checks.num_measurements,
                                                         "random_bits": checks.random_rank})
@@ -123,15 +139,16 @@ def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> t
 
 
 def detector_values(noisy: NoisyCircuit, engine: str = "auto") -> tuple[float, float, tuple[float, ...], str]:
-    """(P(some detector fires), its frame value, each detector's probability, engine name)."""
+    """(P(some detector fires), its twirled frame value, each detector's probability, engine name)."""
     checks = _checks(noisy, None)
     plan = Plan(tuple(d.measurements for d in checks.detectors), tuple(d.ideal for d in checks.detectors),
                 False, tuple(condition_bits(noisy.body)), checks.num_measurements)
-    fo = frames(noisy, plan.detectors)
+    twirled = frames(noisy, plan.detectors, shares=False)
     if measured_engine("detectors", engine, exact_refusal(noisy, plan)) == "exact":
         exact = simulate(noisy, plan)
-        return exact.any_fires, fo.any_fires, exact.detector_probability, "exact"
-    return fo.any_fires, fo.any_fires, fo.detector_probability, "clifford"
+        return exact.any_fires, twirled.any_fires, exact.detector_probability, "exact"
+    fo = frames(noisy, plan.detectors, coherent=True, shares=False)
+    return fo.any_fires, twirled.any_fires, fo.detector_probability, "clifford"
 
 
 def strip_errors(noisy: NoisyCircuit) -> NoisyCircuit:
@@ -209,7 +226,7 @@ def _result(noisy, structured, metric, engine, actual, first_order, shares, cycl
         actual_infidelity=float(actual),
         first_order=None if first_order is None else float(first_order),
         families=families,
-        readout=ReadoutSummary.from_errors({}, noisy.qubits),
+        readout=ReadoutSummary.in_metric(),
         warnings=tuple(warnings),
         twirled_infidelity=None if twirled is None else float(twirled),
         details=dict(details or {}),
@@ -251,10 +268,6 @@ def _family_counts(noisy: NoisyCircuit) -> dict[str, int]:
 
 def _families(noisy: NoisyCircuit) -> list[str]:
     return families_of(noisy)
-
-
-def _has_coherent(noisy: NoisyCircuit) -> bool:
-    return any(nop.has_coherent for layer in noisy.distinct_layers() for nop in layer.operations)
 
 
 def without_family(noisy: NoisyCircuit, family: str) -> NoisyCircuit:

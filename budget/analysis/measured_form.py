@@ -7,8 +7,8 @@ differences of the metric itself, with every coherent error rebuilt as exp(-i Σ
 values: s = f(0), A_ii = (f(h e_i) - s)/h², A_ij = (f(h e_i + h e_j) - f(h e_i) - f(h e_j) + s)/(2h²)
 (exact for a quadratic f; the step h = 1e-3 rad keeps the quartic terms far below the quadratic
 ones; the matrix is then projected on the positive semidefinite cone to remove rounding noise).
-f is the exact engine when it fits (coherent terms add within a round), else the Pauli-frame
-engine (twirled). Cost: 1 + L + L(L-1)/2 runs for L knobs.
+f is the exact engine when it fits, else the Pauli-frame engine with coherent amplitude classes
+(:mod:`budget.engines.clifford.coherent`: coherent terms that act alike add, first order). Cost: 1 + L + L(L-1)/2 runs for L knobs.
 """
 
 from __future__ import annotations

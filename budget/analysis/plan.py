@@ -22,6 +22,13 @@ Each knob picks one option o from a menu (leave it; or σ from a geometric grid 
 solved with ``scipy.optimize.milp`` (HiGHS). The comparison: every calibratable knob measured to
 the tightest tolerance of the equal-share allocation (σ = t_min / k), all in common rounds as often
 as the budget needs.
+
+Knobs the hardware sets (static ZZ, :data:`~budget.errors.context_layers.HARDWARE_KNOBS`) have one
+option, ``"hardware"``: their load A_ii δ² stays whatever is scheduled (a calibration would measure
+the coupling, not lower it). When the floor and those loads alone reach the target, no schedule
+exists and the message says which couplings must fall (``budget tolerances`` gives their rates).
+The signs are random here, as ``budget tolerances --assume random``; the default worst-sign
+tolerances are stricter, and the schedule's notes say so.
 """
 
 from __future__ import annotations
@@ -41,6 +48,7 @@ from budget.analysis.tolerances import check_target, tolerances
 from budget.analysis.uncertainty import name_of
 from budget.circuit.gates import ALIASES
 from budget.errors.attach import attach
+from budget.errors.context_layers import HARDWARE_KNOBS, HARDWARE_REMEDY, knob_text
 from budget.errors.params import GateParams
 from budget.problems import InputError
 
@@ -81,6 +89,7 @@ class Schedule:
     baseline_device_s: float | None
     baseline_sigma_rad: float | None
     baseline_rounds: int | None
+    notes: tuple[str, ...] = ()
 
     @property
     def minutes_per_day(self) -> float:
@@ -108,12 +117,25 @@ def plan(circuit: Any, errors: Any, *, target: float, hours: float, cycles: int 
     menus = [_menu(label, float(diag[i]), float(qf.values_rad[i]), probes.get(label, ()), settings, budget, hours,
                    *spreads.get(label, (0.0, 0.0)))
              for i, label in enumerate(qf.labels)]
+    fixed = [(m[0], float(diag[i])) for i, m in enumerate(menus)
+             if m[0].action == "hardware" and m[0].per_rad2 * m[0].mean_square_rad2 > 0]
+    fixed_load = math.fsum(m.per_rad2 * m.mean_square_rad2 for m, _ in fixed)
+    if fixed and fixed_load >= budget:
+        rows = ", ".join(f"{m.family} at {knob_text(m.current_rad, m.knob, lambda x: f'{x:.3g}')}" for m, _ in fixed)
+        raise InputError(f"target = {target:g}: the incoherent floor {qf.floor:.3g} and the static ZZ ({rows}) already "
+                         f"give {qf.floor + fixed_load:.3g}; static ZZ is {HARDWARE_REMEDY}; budget tolerances gives "
+                         "the rate each coupling may have")
     choice = _solve(menus, diag, budget, structured.source)
     knobs = tuple(sorted((m[c] for m, c in zip(menus, choice)), key=lambda k: (-k.device_s, k.family, k.knob)))
     predicted = qf.floor + float(sum(k.per_rad2 * k.mean_square_rad2 for k in knobs))
     base = _baseline(menus, diag, budget, qf, settings, probes, hours, target)
+    notes = ["signs: random, as budget tolerances --assume random (its default, worst signs, asks for tighter "
+             "tolerances)"]
+    if fixed:
+        notes.append(f"static ZZ ({', '.join(m.family for m, _ in fixed)}): {HARDWARE_REMEDY}; its load "
+                     f"{fixed_load:.3g} is kept as it is")
     return Schedule(structured.source, target, float(hours), float(qf.floor), knobs, predicted,
-                    float(sum(k.device_s for k in knobs)), *base)
+                    float(sum(k.device_s for k in knobs)), *base, notes=tuple(notes))
 
 
 def knob_spreads(model: Any) -> dict[tuple[str, str], tuple[float, float]]:
@@ -141,6 +163,8 @@ def _menu(label: tuple[str, str], a: float, value: float, sites: tuple[Probe, ..
     drift = _drift_of(label, settings.drift_rad_per_hour) or drift_inline
     common = dict(per_rad2=a, current_rad=value, drift_rad_per_hour=drift)
     leave = (abs(value) + drift * hours) ** 2 + sigma_now**2
+    if knob in HARDWARE_KNOBS:
+        return [KnobSchedule(family, knob, "hardware", None, None, 0, (), 0.0, 0.0, leave, **common)]
     out = [KnobSchedule(family, knob, "leave", None, None, 0, (), 0.0, 0.0, leave, **common)]
     if a <= 0 or not sites:
         return out
@@ -189,7 +213,7 @@ def _solve(menus: list[list[KnobSchedule]], diag: np.ndarray, budget: float, sou
 def _baseline(menus, diag, budget, qf, settings, probes, hours, target) -> tuple:
     """Every calibratable knob at σ = t_min/k (equal-share tolerances, random signs), common rounds."""
     report = tolerances(qf, target, assume="random", allocation="equal")
-    finite = [r.tolerance_rad for r in report.rows if 0 < r.tolerance_rad < math.inf]
+    finite = [r.tolerance_rad for r in report.rows if 0 < r.tolerance_rad < math.inf and r.knob not in HARDWARE_KNOBS]
     if not finite:
         return None, None, None
     sigma = min(finite) / settings.sigma_factor
@@ -198,7 +222,7 @@ def _baseline(menus, diag, budget, qf, settings, probes, hours, target) -> tuple
         rounds, total, load = 2**k, 0.0, qf.floor
         for label, i in index.items():
             m = menus[i][0]
-            runs = [_site(p, sigma, settings) for p in probes.get(label, ())] if diag[i] > 0 else []
+            runs = [_site(p, sigma, settings) for p in probes.get(label, ())] if diag[i] > 0 and m.action != "hardware" else []
             if runs and not any(isinstance(r, str) for r in runs):
                 per = max(r.device_s for r in runs) if settings.parallel_sites else math.fsum(r.device_s for r in runs)
                 total += per * rounds
@@ -217,6 +241,7 @@ def schedule_json(s: Schedule) -> dict:
         "device_minutes": s.device_s / 60, "device_minutes_per_day": s.minutes_per_day,
         "baseline": {"device_minutes": None if s.baseline_device_s is None else s.baseline_device_s / 60,
                      "sigma_rad": s.baseline_sigma_rad, "rounds": s.baseline_rounds},
+        "notes": list(s.notes),
         "knobs": [
             {"knob": knob_key((k.family, k.knob)), "action": k.action, "sigma_rad": k.sigma_rad,
              "every_hours": k.every_hours, "rounds": k.rounds, "device_minutes": k.device_s / 60,

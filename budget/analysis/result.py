@@ -47,19 +47,31 @@ class ReadoutSummary:
 
     Attributes:
         per_qubit: qubit name -> assignment error probability.
-        any_error: probability that at least one measured qubit is misread, 1 - Π(1 - p_q).
+        any_error: probability that at least one of those qubits is misread, 1 - Π(1 - p_q); None
+            where readout is part of the metric itself (detector and record metrics).
+        assumed: the circuit measures no qubit, and ``per_qubit`` lists every qubit on the
+            assumption that each is read once at the end (the common use of an output state).
     """
 
     per_qubit: dict[str, float]
-    any_error: float
+    any_error: float | None
+    assumed: bool = False
 
     @classmethod
-    def from_errors(cls, errors: dict[int, float], names: tuple[str, ...]) -> "ReadoutSummary":
+    def from_errors(cls, errors: dict[int, float], names: tuple[str, ...], *, assumed: bool = False) -> "ReadoutSummary":
         per = {names[q]: float(p) for q, p in sorted(errors.items())}
         keep = 1.0
         for p in per.values():
             keep *= 1.0 - p
-        return cls(per, 1.0 - keep)
+        return cls(per, 1.0 - keep, assumed)
+
+    @classmethod
+    def in_metric(cls) -> "ReadoutSummary":
+        """For metrics whose value already includes the readout errors."""
+        return cls({}, None)
+
+    def to_dict(self) -> dict:
+        return {"per_qubit": self.per_qubit, "any_error": self.any_error, "assumed_read_at_end": self.assumed}
 
 
 @dataclass(frozen=True)
@@ -179,7 +191,7 @@ class BudgetResult:
                 {"name": f.name, "operations": f.operations, "share": f.share if self.shows_shares else None}
                 for f in self.families
             ],
-            "readout": {"per_qubit": self.readout.per_qubit, "any_error": self.readout.any_error},
+            "readout": self.readout.to_dict(),
             "observables": [{"observable": k, "error": v} for k, v in self.observables.items()],
             "warnings": list(self.warnings),
             "caution": CAUTION,

@@ -24,6 +24,7 @@ from budget.engines.door import choose_engine, run_in_range, run_one
 from budget.circuit.ir import StructuredCircuit
 from budget.circuit.load import load_circuit
 from budget.engines.base import MEASURED_METRICS, METRICS, parse_observable
+from budget.errors.context_attach import model_notes
 from budget.errors.fidelity import naive_infidelity
 from budget.errors.model import ErrorModel, load_model
 from budget.errors.noisy import NoisyCircuit
@@ -89,7 +90,7 @@ def analyze(
         observables=observables,
         compare_twirled=compare_twirled,
         cycles=cycles,
-        notes=model.warnings(),
+        notes=model_notes(structured, model),
         logical=logical,
         truncate=truncate,
     )
@@ -161,7 +162,7 @@ def analyze_noisy(
         first_order=outcome.first_order,
         truncation_bound=float(truncation.truncation_bound or 0.0) if (truncation := outcome.details.truncation) else 0.0,
         families=families,
-        readout=ReadoutSummary.from_errors(noisy.readout_error, noisy.qubits),
+        readout=ReadoutSummary.from_errors(noisy.readout_error, noisy.qubits, assumed=not structured.measured),
         warnings=tuple(dict.fromkeys(warnings)),
         observables=observed,
         twirled_infidelity=twirled,

@@ -97,11 +97,13 @@ class SweepResult:
     varied: tuple[Varied, ...]
     sobol_base: int
     unused: tuple[str, ...] = ()  # uncertain values of gates or qubits the circuit does not have (not drawn)
+    metric: str = "process"
 
     def to_dict(self) -> dict:
         """The documented JSON (docs/json-schema.md, ``budget sweep``)."""
         d = self.now
         return {
+            "metric": self.metric,
             "samples": self.samples,
             "infidelity": {"mean": d.mean, "std": d.std, "median": d.median, "q05": d.q05, "q95": d.q95},
             "p_meet_target": d.p_meet_target,
@@ -173,7 +175,7 @@ def sweep(circuit: Any, errors: Any, *, samples: int = 2000, hours: float = 0.0,
         v = varied[random[0]]
         contributions = (Contribution(v.knob, v.site, 1.0, 1.0),)
     return SweepResult(structured.source, samples, target, dists[0][1], dists if hours > 0 else (), contributions,
-                       varied, n_sobol, unused)
+                       varied, n_sobol, unused, metric)
 
 
 def used_by(path: tuple[str, ...], circuit: StructuredCircuit) -> bool:

@@ -31,6 +31,7 @@ import numpy as np
 from budget.analysis.sensitivity import check_form, knob_key
 from budget.analysis.worstcase import EXACT_UP_TO, box_maximum
 from budget.engines.base import QuadraticForm
+from budget.errors.context_layers import HARDWARE_KNOBS, HARDWARE_REMEDY, knob_in_lab_units
 from budget.problems import InputError
 
 Assumption = Literal["worst", "random"]
@@ -278,6 +279,19 @@ def tolerances(
         max_cycles=int(math.floor(cycles * target / floor * (1 + 1e-12))) if floor > 0 else None,
         exact=exact, warnings=tuple(warnings),
     )
+
+
+def hardware_notes(report: ToleranceReport) -> tuple[str, ...]:
+    """One line per row of a knob the hardware sets (static ZZ) that must tighten: the rate it
+    needs, and that calibration does not get there (``budget plan`` leaves such rows alone)."""
+    out = []
+    for r in report.rows:
+        if r.knob in HARDWARE_KNOBS and r.status == "tighten":
+            now, unit = knob_in_lab_units(r.knob, r.current_rad)
+            need, _ = knob_in_lab_units(r.knob, r.tolerance_rad)
+            out.append(f"{r.family}: the static ZZ must fall from {now:.4g} to {need:.4g} {unit}; it is {HARDWARE_REMEDY} "
+                       "(budget plan schedules no calibration for it)")
+    return tuple(out)
 
 
 def live_rows(matrix: np.ndarray) -> np.ndarray:

@@ -85,6 +85,9 @@ def to_toml(imported: Imported) -> str:
         doc.add(tomlkit.comment(f"not imported: {line}"))
     for line in imported.off_circuit:
         doc.add(tomlkit.comment(f"note: {line}"))
+    flag = tomlkit.item(True)  # calibration tables describe the whole device
+    flag.comment("the device's tables: circuits on fewer qubits leave some unused")
+    doc.add("device_wide", flag)
     for section in ("qubits", "gates"):
         if section in imported.data:
             doc.add(section, _table(imported.data[section], (section,), imported.notes, super_table=section == "gates"))

@@ -225,8 +225,12 @@ class StructuredCircuit:
 
     def distinct_operations(self) -> list[Operation]:
         """Every operation that appears in the text of the circuit (each once per place)."""
-        where = "distinct_operations"
-        return [op for it, _ in counted(self.body, where=where) if it.kind is Kind.LAYER for op in it.operations]
+        return [op for layer in self.distinct_layers() for op in layer.operations]
+
+    def distinct_layers(self) -> list[Layer]:
+        """Every gate layer as written (once per place in the text, repeats not unrolled, both
+        branches of an if block)."""
+        return [it for it, _ in counted(self.body, where="distinct_layers") if it.kind is Kind.LAYER]
 
 
 def _counts(items: tuple[Item, ...]) -> tuple[int, int]:

@@ -394,7 +394,7 @@ def measured_engine(metric: str, requested: str, exact_reason: str | None, *, wh
             raise InputError(f"engine = {requested!r}: the record metric runs on the exact engine")
         raise InputError(f"engine = {requested!r}: {subject} runs on the {' or '.join(names)} engine")
     if requested == "exact" and exact_reason is not None and metric != "record":
-        raise TooLargeError(f"engine exact: {exact_reason}; the clifford engine fits (first order, errors twirled)")
+        raise TooLargeError(f"engine exact: {exact_reason}; the clifford engine fits (first order)")
     if requested == "exact" or (requested == "auto" and exact_reason is None):
         return "exact"
     return names[-1]

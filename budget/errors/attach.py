@@ -121,18 +121,27 @@ def _register(name: str) -> str | None:
 
 
 def _check_qubits(circuit: StructuredCircuit, model: ErrorModel) -> None:
-    """A name the circuit lacks is a typo unless it is an indexed qubit of one of the circuit's
-    registers (a device qubit this circuit leaves unused, e.g. ``q[7]`` for a circuit on q[0..2])."""
+    """A name the circuit lacks is refused: a typo, or a qubit beyond the circuit's register
+    (``q[7]`` for a circuit on q[0..2]), which a model passes only when it declares itself
+    ``device_wide`` (a device qubit this circuit leaves unused)."""
     known = set(circuit.qubits)
     registers = {_register(q) for q in circuit.qubits} - {None}
+    shown = ", ".join(circuit.qubits[:8]) + (", ..." if circuit.num_qubits > 8 else "")
     for name, path in model.mentions.items():
-        if name not in known and _register(name) not in registers:
+        if name in known:
+            continue
+        if _register(name) not in registers:
             close = difflib.get_close_matches(name, circuit.qubits, n=1)
             hint = f"; did you mean {close[0]!r}?" if close else ""
-            shown = ", ".join(circuit.qubits[:8]) + (", ..." if circuit.num_qubits > 8 else "")
             raise ModelError(
                 f"{path} in {model.source}: qubit {name!r} is neither a qubit nor in a register of "
                 f"circuit {circuit.source} (its qubits: {shown}){hint}"
+            )
+        if not model.device_wide:
+            raise ModelError(
+                f"{path} in {model.source}: qubit {name!r} is beyond circuit {circuit.source} (its qubits: {shown}); "
+                "a model names only qubits the circuit has, unless the file says device_wide = true at its top "
+                "(it describes a larger device, whose unused qubits are then accepted)"
             )
 
 

@@ -155,3 +155,37 @@ def zz_rates(circuit: StructuredCircuit, model: ErrorModel, index: dict[str, int
         if None not in ids:
             rates[tuple(sorted(ids))] = khz
     return {p: rates[p] for p in sorted(rates) if rates[p] > 0}
+
+
+def unmatched_context(circuit: StructuredCircuit, model: ErrorModel) -> tuple[str, ...]:
+    """One warning per ``[[context]]`` table that matches no operation of ``circuit`` (its key
+    path, what it selects, and the rule), in file order. Not an error: a device-wide model holds
+    tables for qubits and layers that a given circuit never has; but a table that silently does
+    nothing is usually a typo in its gate, qubits or conditions."""
+    if not model.context.tables:
+        return ()
+    placer = ContextPlacer(circuit, model)
+    used: set[str] = set()
+    for layer in circuit.distinct_layers():
+        for op in layer.operations:
+            table = placer.table(op, layer)
+            if table is not None:
+                used.add(table.path)
+    out = []
+    for t in model.context.tables:
+        if t.path in used:
+            continue
+        what = f"{t.gate} on {','.join(t.qubits) if t.qubits else 'any qubits'}"
+        if t.with_ops:
+            what += " with " + "; ".join(f"{g} {','.join(qs)}" for g, qs in t.with_ops)
+        if t.all_driven:
+            what += " in a layer driving every qubit"
+        out.append(f"{t.path} in {model.source} ({what}) matches no operation of {circuit.source}: its values are "
+                   "not used here (a table applies to the operations its gate, qubits and conditions select)")
+    return tuple(out)
+
+
+def model_notes(circuit: StructuredCircuit, model: ErrorModel) -> tuple[str, ...]:
+    """Warnings about the model on this circuit: unusual values (:meth:`ErrorModel.warnings`) and
+    ``[[context]]`` tables that match nothing (:func:`unmatched_context`)."""
+    return model.warnings() + unmatched_context(circuit, model)

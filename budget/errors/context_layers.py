@@ -44,6 +44,12 @@ from budget.errors.params import GateParams
 
 ZZ_KNOB = "zz_rad_per_us"
 """Knob of a spectator-ZZ family: the conditional phase per microsecond, 2π·ζ·1 µs, in radians."""
+HARDWARE_KNOBS = frozenset({ZZ_KNOB})
+"""Knobs the hardware sets: a calibration measures them but does not lower them (a static coupling
+is lowered by a coupler or frequency change, or cancelled by an echo). ``budget plan`` and the
+calibration cost of ``budget tolerances`` schedule no calibration for them."""
+HARDWARE_REMEDY = ("set by the hardware, not lowered by calibration: lower the coupling (coupler or frequency "
+                   "change) or cancel it with an echo")
 SPILL_KNOB = "rotation"
 """Knob of a crosstalk or bleed family: the spilled rotation angle in radians."""
 _CPHASE_GENERATOR = {"ZI": 0.25, "IZ": 0.25, "ZZ": -0.25}  # diag(1,1,1,e^{iφ}) = e^{iφ/4} exp(-iφ(ZI+IZ-ZZ)/4)

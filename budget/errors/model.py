@@ -68,6 +68,9 @@ class ErrorModel:
     uncertain: tuple = ()
     """:class:`~budget.errors.uncertain.Spread` of every value given with an uncertainty or drift
     (the model itself holds the central values)."""
+    device_wide: bool = False
+    """The file describes a whole device (top-level ``device_wide = true``): names of qubits of the
+    circuit's registers that this circuit does not have are accepted (unused device qubits)."""
 
     @classmethod
     def from_dict(cls, data: Mapping[str, Any], source: str = "<dict>") -> "ErrorModel":
@@ -168,16 +171,19 @@ class _Parser(KeyPaths):
 
     def model(self, data: Mapping[str, Any]) -> ErrorModel:
         data, spreads = central_values(self.table(("<top>",), data), self.source)
-        top = ("qubits", "gates", "calibration") + SECTIONS
+        top = ("qubits", "gates", "calibration", "device_wide") + SECTIONS
         for k, v in data.items():
             if k not in top:
                 raise self.unknown((k,), v, top)
+        device_wide = data.get("device_wide", False)
+        if not isinstance(device_wide, bool):
+            raise self.fail(("device_wide",), device_wide, "expected true or false (the file describes a whole device)")
         defaults, overrides = self.qubits(data.get("qubits", {}))
         gates, gate_overrides = self.gates(data.get("gates", {}))
         calibration = self.table(("calibration",), data["calibration"]) if "calibration" in data else None
         context = parse_context(self, data, gates, gate_overrides)
         return ErrorModel(defaults, overrides, gates, gate_overrides, dict(self.mentions), self.source, calibration,
-                          context, spreads)
+                          context, spreads, device_wide)
 
     def qubits(self, raw: Any) -> tuple[QubitParams, dict[str, QubitParams]]:
         base = ("qubits",)

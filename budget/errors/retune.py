@@ -22,9 +22,9 @@ from typing import Mapping
 
 import numpy as np
 
-from budget.circuit.walk import Kind, gate_kind
+from budget.circuit.walk import Kind, kind_of
 from budget.errors.knobs import PLAIN_KNOB, coherent_error, knob_grouping
-from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyOperation, NoisyRepeat
+from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyItem, NoisyOperation, NoisyRepeat
 from budget.errors.params import GateParams
 from budget.memo import ObjectKey
 from budget.pauli_algebra import pauli_unitary
@@ -100,10 +100,15 @@ def with_knob_values(circuit: NoisyCircuit, values: Mapping[tuple[str, str], flo
         out = []
         for it in body:
             if ObjectKey(it) not in items:
-                if gate_kind(it, "retune") is Kind.LAYER:
+                kind = kind_of(it, "retune")
+                if kind is Kind.LAYER:
                     items[ObjectKey(it)] = dataclasses.replace(it, operations=tuple(operation(n) for n in it.operations))
-                else:
+                elif kind is Kind.REPEAT:
                     items[ObjectKey(it)] = NoisyRepeat(walk(it.body), it.count)
+                elif kind is Kind.IF:
+                    items[ObjectKey(it)] = NoisyIf(it.item, walk(it.then), walk(it.orelse))
+                else:  # measurement and reset: readout and reset errors have no knobs
+                    items[ObjectKey(it)] = it
             out.append(items[ObjectKey(it)])
         return tuple(out)
 

@@ -32,15 +32,18 @@ def _e(x: float | None) -> str:
     return "—" if x is None else f"{x:.3e}"
 
 
+METRIC_WORDS = {"detectors": "P(some detector fires)", "record": "record infidelity"}
+
+
 def render_sweep(result) -> Group:
     """Distribution now, over the drift hours, and the Sobol indices."""
     d = result.now
     varied = ", ".join(f"{v.knob}@{v.site}" for v in result.varied) or "none (the model gives no uncertainty)"
     head = [
         Text.assemble(("uncertainty sweep: ", "bold"), f"{result.source}, {result.samples} samples; varied: {varied}"),
-        Text(f"infidelity: mean {_e(d.mean)} ± {_e(d.mean_stderr)} (Monte Carlo error), std {_e(d.std)}, "
-             f"median {_e(d.median)}, 5-95 % [{_e(d.q05)}, {_e(d.q95)}]") if d.q05 != d.q95 else
-        Text(f"infidelity: {_e(d.mean)} in every sample (nothing varies, so no spread)"),
+        Text(f"{METRIC_WORDS.get(result.metric, 'infidelity')}: mean {_e(d.mean)} ± {_e(d.mean_stderr)} (Monte Carlo error), "
+             f"std {_e(d.std)}, median {_e(d.median)}, 5-95 % [{_e(d.q05)}, {_e(d.q95)}]") if d.q05 != d.q95 else
+        Text(f"{METRIC_WORDS.get(result.metric, 'infidelity')}: {_e(d.mean)} in every sample (nothing varies, so no spread)"),
     ]
     if result.unused:
         head.append(Text(f"not drawn (the circuit does not use them): {', '.join(result.unused)}", style="dim"))
@@ -134,5 +137,7 @@ def render_schedule(s) -> Group:
                           + (f", {ratio:.3g}× this schedule" if math.isfinite(ratio) else "")))
     elif s.baseline_sigma_rad is not None:
         parts.append(Text("everything at the tightest tolerance: no common schedule meets the target"))
+    for note in s.notes:
+        parts.append(Text(f"note: {note}", style="yellow"))
     parts.append(Text(CAUTION, style="dim"))
     return Group(*parts)

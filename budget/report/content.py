@@ -22,6 +22,7 @@ from budget.analysis.result import BudgetResult
 from budget.analysis.run import analyze_noisy, read_circuit, read_model
 from budget.analysis.sensitivity import quadratic_form
 from budget.engines.base import MEASURED_METRICS
+from budget.errors.context_attach import model_notes
 from budget.errors.context_layers import knob_label
 from budget.problems import InputError, TooLargeError
 from budget.report.extras import gather_extras
@@ -288,7 +289,7 @@ def gather(
     block = attach_grouped(structured, model, family_by)
     whole = attach_grouped(structured.with_cycles(cycles), model, family_by)
     result = analyze_noisy(whole, structured.with_cycles(cycles), metric=metric, engine=engine,
-                           compare_twirled=True, cycles=cycles, notes=model.warnings())
+                           compare_twirled=True, cycles=cycles, notes=model_notes(structured, model))
     notes: list[str] = []
     deepest = max_cycles if max_cycles is not None else min(max(1000, 100 * cycles), 10**18)
     if metric in MEASURED_METRICS and max_cycles is None:

@@ -272,8 +272,9 @@ def _model(data: ReportData) -> list[Block]:
     if context:
         out.append(Table(("context error", "on", "value"), tuple((c.name, c.where, c.values["value"]) for c in context)))
     ro = data.result.readout
-    if ro.per_qubit and ro.any_error > 0:
-        out.append(Para(f"Readout is kept apart from gate errors: P(at least one misread) = {num(ro.any_error)}."))
+    if ro.per_qubit and ro.any_error:
+        assumed = " (the circuit measures no qubit: every qubit read once at the end)" if ro.assumed else ""
+        out.append(Para(f"Readout is kept apart from gate errors: P(at least one misread){assumed} = {num(ro.any_error)}."))
     return out
 
 

@@ -162,11 +162,14 @@ def render_budget(result: BudgetResult) -> Group:
         for k, v in result.observables.items():
             ot.add_row(k, "beyond range" if v is None else f"{v:+.3e}")
         parts.append(ot)
-    if result.readout.per_qubit and result.readout.any_error > 0:  # no line for a model without readout error
+    if result.readout.per_qubit and result.readout.any_error:  # no line for a model without readout error
         worst = max(result.readout.per_qubit.items(), key=lambda kv: kv[1])
+        count = len(result.readout.per_qubit)
+        which = (f"the circuit measures no qubit; if all {count} are read at the end" if result.readout.assumed
+                 else f"{count} measured qubit(s)")
         parts.append(
             Text(
-                f"readout (kept apart from gate errors): {len(result.readout.per_qubit)} measured qubit(s), "
+                f"readout (kept apart from gate errors): {which}, "
                 f"P(any misread) = {fmt(result.readout.any_error)}, worst {worst[0]} at {fmt(worst[1])}"
             )
         )
