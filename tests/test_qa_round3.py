@@ -172,3 +172,39 @@ def test_logical_observable_line_counts_observables_like_stim(tmp_path):
     assert len(data["logical_observables"]) == declared == 1
     text = " ".join(res.output.split())
     assert f"{declared} logical observable " in text
+
+
+# --- incoherent errors under an if block: never silently dropped -----------------------------------------
+
+FEED = """OPENQASM 2.0;
+include "qelib1.inc";
+qreg q[1];
+creg c[1];
+creg d[1];
+x q[0];
+measure q[0] -> c[0];
+if (c==1) y q[0];
+measure q[0] -> d[0];
+"""
+
+
+def test_incoherent_error_under_if_exact_value_and_clifford_warning(tmp_path):
+    """y under `if (c==1)` brings |1> back to |0>; with average gate infidelity r on y (a
+    depolarizing channel), the final bit flips with probability r: X and Y flip a Z measurement,
+    each with probability p/3 where r = 2p/3 (F_avg = (d F_pro + 1)/(d + 1), Nielsen, Phys. Lett. A
+    303, 249 (2002)). The exact engine gives it; the clifford engine cannot condition stim noise on
+    a recorded bit, so it must say that it leaves the error out (never a silent 0)."""
+    r = 0.003
+    circ, model = tmp_path / "ff.qasm", tmp_path / "m.toml"
+    circ.write_text(FEED)
+    model.write_text(f"[gates.y]\navg_infidelity = {r}\n")
+    out = {}
+    for engine in ("exact", "clifford"):
+        path = tmp_path / f"{engine}.json"
+        res = runner.invoke(app, ["analyze", str(circ), "-e", str(model), "--metric", "detectors",
+                                  "--engine", engine, "--json", str(path)])
+        assert res.exit_code == 0, res.output
+        out[engine] = json.loads(path.read_text())
+    assert out["exact"]["actual"]["infidelity"] == pytest.approx(r, rel=1e-9)
+    assert not any("under if blocks" in w for w in out["exact"]["warnings"])
+    assert any("under if blocks (line 8)" in w for w in out["clifford"]["warnings"])

@@ -32,14 +32,14 @@ from budget.analysis.families import family_counts, family_table
 from budget.analysis.result import BudgetResult, DetectorBudget, ReadoutSummary, RecordBit, circuit_fields
 from budget.analysis.twirl import twirled_circuit
 from budget.circuit.ir import StructuredCircuit
-from budget.circuit.walk import Kind, counted
+from budget.circuit.walk import Kind, branches, counted
 from budget.engines.clifford.coherent import MAX_DEFERRED_QUBITS
 from budget.engines.clifford.frames import families_of, frames, has_coherent
 from budget.engines.exact.branches import MAX_BYTES, MAX_KEY_BITS, MAX_QUBITS, Plan, condition_bits, key_bits_needed, simulate
 from budget.engines.door import measured_engine
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.fidelity import naive_infidelity, relaxation_process_fidelity
-from budget.errors.noisy import IDLE, NoisyCircuit, map_items
+from budget.errors.noisy import IDLE, NoisyCircuit, NoisyIf, NoisyLayer, map_items
 from budget.memo import ObjectKey
 from budget.problems import InputError, TooLargeError
 
@@ -85,6 +85,8 @@ def analyze_measured(
                 warnings.append(TWIRLED_NOTE)
             elif has_coherent(noisy):
                 warnings.append(COHERENT_NOTE)
+            if note := conditioned_noise_note(noisy):
+                warnings.append(note)
             return _result(noisy, structured, metric, "clifford", folded.any_fires, None,
                            scaled(folded.any_families, folded.any_fires), cycles, warnings, folded.twirled_any_fires,
                            detectors=folded.detectors, logical=folded.logical,
@@ -108,6 +110,8 @@ def analyze_measured(
             warnings.append(TWIRLED_NOTE)
         elif has_coherent(noisy):
             warnings.append(COHERENT_NOTE)
+        if note := conditioned_noise_note(noisy):
+            warnings.append(note)
     detectors = tuple(
         DetectorBudget(d.measurements, d.round, float(p), scaled(fams, p))
         for d, p, fams in zip(checks.detectors, probs, fo.detector_families)
@@ -118,6 +122,26 @@ def analyze_measured(
                    logical=checks.observables, details={"detectors": len(detectors),
                                                         "record_length": checks.num_measurements,
                                                         "random_bits": checks.random_rank})
+
+
+def conditioned_noise_note(noisy: NoisyCircuit) -> str | None:
+    """On the clifford path, incoherent errors (Pauli rates, relaxation) of gates inside an if block
+    whose branch depends on a recorded bit are left out: stim has no noise conditioned on a
+    measurement outcome (budget/engines/clifford/frames.py). One line naming the if blocks' lines,
+    or None when no branch carries such an error. Coherent errors there are included."""
+    lines = sorted({
+        it.item.line or 0
+        for it, _ in counted(noisy.body, where="measured budget")
+        if isinstance(it, NoisyIf)
+        and any(nop.has_incoherent for branch in branches(it) for layer, _ in counted(branch, where="measured budget")
+                if isinstance(layer, NoisyLayer) for nop in layer.operations)
+    })
+    if not lines:
+        return None
+    where = ", ".join(str(n) for n in lines[:5]) + (" …" if len(lines) > 5 else "")
+    return (f"incoherent errors of gates under if blocks (line {where}) are left out on the clifford engine (stim "
+            "conditions no noise on a recorded bit); their coherent errors are included; the exact engine includes "
+            "both where it fits (--engine exact)")
 
 
 def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> tuple[float, float, str]:
