@@ -195,9 +195,10 @@ ECHO_ENGINES = {
         pytest.param(
             "pauli",
             marks=pytest.mark.xfail(
-                reason="the pauli engine (issue 12, its own branch) forms the first-order generator only: "
-                "on these echoes it reports about 0 where cirq gives up to 0.02",
-                strict=False,
+                reason="the pauli engine carries the second order (tests/test_pauli_echo.py: 100 echoes within "
+                "5 %) but not the all-orders pass of the clifford engine: 36 of these 200 checks (x/y/x/y state "
+                "metric and blocks whose third order leads) miss 5 % (issue 10, open)",
+                strict=True,
             ),
         ),
     ],
