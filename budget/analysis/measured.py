@@ -81,12 +81,7 @@ def analyze_measured(
                 warnings.append("a coherent error that no check sees builds up over the repeated block: the folded "
                                 "values after the block include its growth over 6 iterations only (too many "
                                 "iterations to unroll)")
-            if folded.coherent_twirled:
-                warnings.append(TWIRLED_NOTE)
-            elif has_coherent(noisy):
-                warnings.append(COHERENT_NOTE)
-            if note := conditioned_noise_note(noisy):
-                warnings.append(note)
+            warnings += clifford_notes(noisy, folded.coherent_twirled)
             return _result(noisy, structured, metric, "clifford", folded.any_fires, None,
                            scaled(folded.any_families, folded.any_fires), cycles, warnings, folded.twirled_any_fires,
                            detectors=folded.detectors, logical=folded.logical,
@@ -106,12 +101,7 @@ def analyze_measured(
         first_order = fo.any_fires
     else:
         probs, any_fires, name = fo.detector_probability, fo.any_fires, "clifford"
-        if fo.coherent_twirled:
-            warnings.append(TWIRLED_NOTE)
-        elif has_coherent(noisy):
-            warnings.append(COHERENT_NOTE)
-        if note := conditioned_noise_note(noisy):
-            warnings.append(note)
+        warnings += clifford_notes(noisy, fo.coherent_twirled)
     detectors = tuple(
         DetectorBudget(d.measurements, d.round, float(p), scaled(fams, p))
         for d, p, fams in zip(checks.detectors, probs, fo.detector_families)
@@ -142,6 +132,15 @@ def conditioned_noise_note(noisy: NoisyCircuit) -> str | None:
     return (f"incoherent errors of gates under if blocks (line {where}) are left out on the clifford engine (stim "
             "conditions no noise on a recorded bit); their coherent errors are included; the exact engine includes "
             "both where it fits (--engine exact)")
+
+
+def clifford_notes(noisy: NoisyCircuit, coherent_twirled: bool) -> list[str]:
+    """What a clifford-engine detector value rests on: coherent errors twirled (the deferred
+    register too large) or added in amplitude, and incoherent errors left out under if blocks."""
+    notes = [TWIRLED_NOTE] if coherent_twirled else [COHERENT_NOTE] if has_coherent(noisy) else []
+    if note := conditioned_noise_note(noisy):
+        notes.append(note)
+    return notes
 
 
 def measured_values(noisy: NoisyCircuit, metric: str, engine: str = "auto") -> tuple[float, float, str]:
