@@ -208,3 +208,18 @@ def test_incoherent_error_under_if_exact_value_and_clifford_warning(tmp_path):
     assert out["exact"]["actual"]["infidelity"] == pytest.approx(r, rel=1e-9)
     assert not any("under if blocks" in w for w in out["exact"]["warnings"])
     assert any("under if blocks (line 8)" in w for w in out["clifford"]["warnings"])
+
+
+def test_every_command_refuses_a_bad_calibration_table_the_same_way(tmp_path):
+    """A misspelt [calibration] key was accepted by `analyze` and refused by `tolerances`; every
+    command reads the model through one path, so both give the same one line (exit 2, no JSON)."""
+    circ, model = tmp_path / "one.qasm", tmp_path / "m.toml"
+    circ.write_text('OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[1];\nx q[0];\n')
+    model.write_text("[gates.x]\noverrotation = 0.01\n[calibration]\nshots = -3\n")
+    lines = set()
+    for args in (["analyze"], ["tolerances", "-t", "0.01"], ["cost", "-t", "0.01"]):
+        out = tmp_path / f"{args[0]}.json"
+        res = runner.invoke(app, [args[0], str(circ), "-e", str(model), *args[1:], "--json", str(out)])
+        assert res.exit_code == 2 and not out.exists(), res.output
+        lines.add(" ".join(res.output.split()))
+    assert len(lines) == 1 and "calibration.shots" in lines.pop()

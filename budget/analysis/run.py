@@ -15,6 +15,7 @@ import dataclasses
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from budget.analysis.calibration import read_calibration
 from budget.analysis.families import attach_grouped, family_counts, family_table
 from budget.analysis.measured import analyze_measured
 from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary, circuit_fields
@@ -180,11 +181,17 @@ def read_circuit(circuit: Any) -> StructuredCircuit:
 
 
 def read_model(errors: Any):
-    """An ErrorModel from a TOML path, a dict in the TOML layout, or itself."""
+    """An ErrorModel from a TOML path, a dict in the TOML layout, or itself. A ``[calibration]``
+    table is checked here too, so every command refuses the same bad file the same way (not only
+    the commands that plan calibration)."""
     if isinstance(errors, ErrorModel):
-        return errors
-    if isinstance(errors, dict):
-        return ErrorModel.from_dict(errors)
-    if isinstance(errors, (str, Path)):
-        return load_model(errors)
-    raise TypeError(f"errors: expected a path, an ErrorModel or a dict, got {type(errors).__name__}")
+        model = errors
+    elif isinstance(errors, dict):
+        model = ErrorModel.from_dict(errors)
+    elif isinstance(errors, (str, Path)):
+        model = load_model(errors)
+    else:
+        raise TypeError(f"errors: expected a path, an ErrorModel or a dict, got {type(errors).__name__}")
+    if model.calibration is not None:
+        read_calibration(model.calibration, source=model.source)
+    return model
