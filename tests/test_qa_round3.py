@@ -223,3 +223,14 @@ def test_every_command_refuses_a_bad_calibration_table_the_same_way(tmp_path):
         assert res.exit_code == 2 and not out.exists(), res.output
         lines.add(" ".join(res.output.split()))
     assert len(lines) == 1 and "calibration.shots" in lines.pop()
+
+
+def test_tolerances_without_coherent_knobs_says_so_instead_of_an_empty_table(tmp_path):
+    """A model with only incoherent errors has no knob to tolerance: one plain sentence, no empty
+    sensitivity table (its floor is the cx error rate itself, first order: common practice, no source)."""
+    circ, model = tmp_path / "bell.qasm", tmp_path / "m.toml"
+    circ.write_text('OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[2];\nh q[0];\ncx q[0],q[1];\n')
+    model.write_text("[gates.cx]\navg_infidelity = 0.001\n")
+    res = runner.invoke(app, ["tolerances", str(circ), "-e", str(model), "-t", "0.01"])
+    assert res.exit_code == 0, res.output
+    assert "no coherent knob in this model" in res.output and "A_ff" not in res.output

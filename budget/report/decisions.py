@@ -56,7 +56,9 @@ def sensitivity_view(s: Sensitivity, *, top: int = 15) -> Group:
     for k in s.knobs[:top]:
         frac = f"{fixed(100 * k.share / s.coherent)} %" if s.coherent > 0 else "—"
         t.add_row(k.family, k.knob, _rad(k.current_rad, k.knob), fmt(k.per_rad2), fmt(k.share), frac)
-    parts: list = [FitWidth(t)]
+    parts: list = [FitWidth(t)] if s.knobs else [Text(
+        "sensitivity: no coherent knob in this model (no over-rotation, phase or other angle key), so there "
+        "is nothing per knob to show", style="bold")]
     if len(s.knobs) > top:
         parts.append(Text(f"… {len(s.knobs) - top} more knobs in the JSON output", style="dim"))
     if s.pairs:
