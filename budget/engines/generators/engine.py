@@ -320,9 +320,12 @@ class GeneratorsEngine(Engine):
             what.append(f"the incoherent errors add up to {stoch:.3f} (first order holds below ~{STOCHASTIC_LIMIT})")
         if not what:
             return list(notes)
-        exact_fits = ExactEngine().fits(circuit, metric) is None
+        exact = ExactEngine()
+        exact_fits = exact.fits(circuit, metric) is None
+        seconds = exact.estimate_seconds(circuit, metric) if exact_fits else 0.0
         trust = (
-            "trust the exact engine instead (it fits this circuit)"
+            "trust the exact engine instead (it fits this circuit"
+            + (f"; estimated {seconds / 60:.0f} min, run it with --engine exact)" if seconds > 60 else ")")
             if exact_fits
             else "no exact engine fits this circuit, so read the number as an estimate of its size only"
         )
