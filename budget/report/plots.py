@@ -161,17 +161,12 @@ def heatmap_svg(emap: ErrorMap) -> str:
         fig, ax = plt.subplots(figsize=(min(max(4.0, 0.32 * n_l + 2.0), 11.0), 0.38 * n_q + 1.4))
         total = emap.total
         data = 100 * emap.values / total if total > 0 and not at_rounding_level(total) else emap.values
-        im = ax.imshow(data, aspect="auto", cmap=_HEAT, interpolation="nearest", vmin=0)
         ax.set_yticks(range(n_q), emap.qubits)
         step = max(1, math.ceil(n_l / 30))
         ax.set_xticks(range(0, n_l, step), [emap.columns[i] for i in range(0, n_l, step)],
                       rotation=60, ha="right", fontsize=8)
         ax.set_xlabel("layer as written (×N: runs N times)")
-        for s in ax.spines.values():
-            s.set_visible(False)
-        bar = fig.colorbar(im, ax=ax, pad=0.02)
-        bar.set_label("% of the local error total")
-        return _svg(fig, "error-map")
+        return _heat(fig, ax, data, "% of the local error total", "error-map")
 
 
 def detector_heat_svg(rounds: list[int], grid: list[list[float | None]]) -> str:
@@ -180,16 +175,20 @@ def detector_heat_svg(rounds: list[int], grid: list[list[float | None]]) -> str:
         data = np.array([[np.nan if p is None else p for p in row] for row in grid], dtype=float)
         n_r, n_d = data.shape
         fig, ax = plt.subplots(figsize=(min(max(4.0, 0.3 * n_d + 2.5), 11.0), min(0.3 * n_r + 1.6, 9.0)))
-        im = ax.imshow(data, aspect="auto", cmap=_HEAT, interpolation="nearest", vmin=0)
         step = max(1, math.ceil(n_r / 25))
         ax.set_yticks(range(0, n_r, step), [str(rounds[i]) for i in range(0, n_r, step)])
         ax.set_ylabel("round")
         ax.set_xlabel("detector within the round")
-        for s in ax.spines.values():
-            s.set_visible(False)
-        bar = fig.colorbar(im, ax=ax, pad=0.02)
-        bar.set_label("probability that the detector fires")
-        return _svg(fig, "detector-map")
+        return _heat(fig, ax, data, "probability that the detector fires", "detector-map")
+
+
+def _heat(fig, ax, data: np.ndarray, label: str, name: str) -> str:
+    """The heat map of ``data`` on ``ax`` (ticks already set): frameless, with a labelled colour bar."""
+    im = ax.imshow(data, aspect="auto", cmap=_HEAT, interpolation="nearest", vmin=0)
+    for s in ax.spines.values():
+        s.set_visible(False)
+    fig.colorbar(im, ax=ax, pad=0.02).set_label(label)
+    return _svg(fig, name)
 
 
 def _positive_floor(curve: DepthCurve) -> float:
