@@ -234,3 +234,21 @@ def test_tolerances_without_coherent_knobs_says_so_instead_of_an_empty_table(tmp
     res = runner.invoke(app, ["tolerances", str(circ), "-e", str(model), "-t", "0.01"])
     assert res.exit_code == 0, res.output
     assert "no coherent knob in this model" in res.output and "A_ff" not in res.output
+
+
+def test_depth_curve_at_one_cycle_is_the_headline_value(tmp_path):
+    """On a small circuit whose incoherent errors already pass the first-order range at N = 1, the
+    depth curve's N = 1 point and `analyze` (exact engine) must be the same number, not the
+    first-order 0.9 beside the exact 0.59 (two views of one quantity)."""
+    circ, model = tmp_path / "c.qasm", tmp_path / "m.toml"
+    circ.write_text('OPENQASM 2.0;\ninclude "qelib1.inc";\nqreg q[4];\n'  # 4 qubits: the closed form, then exact
+                    + "h q[0];\ncx q[0],q[1];\ncx q[2],q[3];\nrx(0.2) q[1];\n" * 6)
+    model.write_text("[gates.cx]\navg_infidelity = 0.03\noverrotation = 0.02\n[gates.rx]\navg_infidelity = 0.01\n")
+    a, d = tmp_path / "a.json", tmp_path / "d.json"
+    assert runner.invoke(app, ["analyze", str(circ), "-e", str(model), "--json", str(a)]).exit_code == 0
+    assert runner.invoke(app, ["depth", str(circ), "-e", str(model), "--max-cycles", "20", "--json", str(d)]).exit_code == 0
+    head, curve = json.loads(a.read_text()), json.loads(d.read_text())
+    assert head["engine"] == "exact" and head["actual"]["infidelity"] > 0.05
+    ns = curve["repetitions"]
+    assert ns[0] == 1
+    assert curve["actual"][0] == pytest.approx(head["actual"]["infidelity"], rel=1e-9)

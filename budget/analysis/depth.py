@@ -31,6 +31,7 @@ from budget.analysis.ratios import at_rounding_level
 from budget.engines.door import choose, exact_if_fits, sweep_engine
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.engines.base import MEASURED_METRICS
+from budget.engines.generators.engine import STOCHASTIC_LIMIT
 from budget.problems import InputError
 
 from budget.analysis.accumulation import components_or_note
@@ -48,7 +49,8 @@ EXACT_CURVE_QUBITS = 3
 """With engine ``auto``, cycles on up to this many qubits use the exact engine at every point."""
 EXACT_FALLBACK_QUBITS = 4
 """With engine ``auto``, curves of a cycle on up to this many qubits switch to the exact engine from
-the N where the first-order closed form leaves its range (about 0.1 s per point at 4 qubits with one
+the N where the first-order closed form stops being accurate (above the generators engine's
+STOCHASTIC_LIMIT) or leaves its range (about 0.1 s per point at 4 qubits with one
 BLAS thread on the test machine; 5 qubits took up to 5 s per point, too slow for 25 points)."""
 
 
@@ -219,7 +221,10 @@ def depth_curve(
     switches: dict[str, int] = {}
     if engine == "auto" and block.num_qubits <= EXACT_FALLBACK_QUBITS:
         for key, cycle in (("structured", block), ("twirled", tw_block)):
-            end = series[key].range_end(grid)
+            # switch where the first-order value stops being accurate (the generators engine warns
+            # from STOCHASTIC_LIMIT on), not only where it stops being a probability, so the curve
+            # at N = 1 is the headline's exact value whenever the headline came from exact
+            end = _first_true(lambda n, s=series[key]: s(n) is None or s(n) > STOCHASTIC_LIMIT, grid)
             exact = exact_if_fits(_repeated(cycle, 2), metric) if end is not None else None
             if exact is not None:
                 series[key] = _switched(series[key], end, cycle, metric, exact)
