@@ -265,7 +265,12 @@ def tolerances(
         for g, key in enumerate(keys)
     ]
     rows.sort(key=lambda r: (-r.tighten_by, -abs(r.current_rad), r.family, r.knob))
-    if not exact:
+    if not exact and gap - 1 <= 1e-9:  # the bound meets a setting found: rounding, not a gap
+        warnings.append(
+            f"more than {exact_up_to} interfering knobs: the worst case uses an upper bound, and a sign setting "
+            "reaches it (docs/tolerances.md), so the leading-order tolerances are exact"
+        )
+    elif not exact:
         warnings.append(
             f"more than {exact_up_to} interfering knobs: the worst case uses an upper bound at most "
             f"{100 * (gap - 1):.3g} % above the worst setting found (docs/tolerances.md), so the leading-order "
