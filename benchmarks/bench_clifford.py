@@ -130,7 +130,7 @@ def unrolled(rows: int = 32, cols: int = 32, cycles: int = 100) -> dict:
 
 
 def noisy_ops(noisy) -> int:
-    return sum(len(layer.operations) * m for layer, m in noisy.multiplicities())
+    return sum(len(layer.sites) * m for layer, m in noisy.multiplicities())
 
 
 def folded(pattern: str, count: int, rows: int = 32, cols: int = 32) -> dict:

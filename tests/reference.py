@@ -169,25 +169,36 @@ def _relax_ops(r: Relaxation, qs) -> list[cirq.Operation]:
     return [cirq.amplitude_damp(r.gamma).on(qs[r.qubit]), cirq.phase_damp(1 - r.dephasing_factor**2).on(qs[r.qubit])]
 
 
+def _channel_ops(nop, qs) -> list[cirq.Operation]:
+    """The error channel of one operation (or context error) after its ideal gate, in the order of
+    budget/errors/noisy.py: coherent unitary, Pauli rates, depolarizing, relaxation."""
+    targets = [qs[q] for q in nop.qubits]
+    k = len(targets)
+    out = [cirq.MatrixGate(nop.coherent).on(*targets)]
+    if nop.pauli_rates:
+        p0 = 1 - sum(nop.pauli_rates.values())
+        kraus = [np.sqrt(p0) * np.eye(2**k)] + [np.sqrt(p) * pauli_matrix(l) for l, p in nop.pauli_rates.items()]
+        out.append(cirq.KrausChannel(kraus).on(*targets))
+    if nop.depolarizing:
+        d = 2**k
+        out.append(cirq.depolarize(nop.depolarizing * (d * d - 1) / (d * d), n_qubits=k).on(*targets))
+    for r in nop.relaxation:
+        out.extend(_relax_ops(r, qs))
+    return out
+
+
 def _noisy_ops(circuit: NoisyCircuit, qs) -> list[cirq.Operation]:
+    """Per layer (docs/error-model.md, "Context errors"): each gate then its own errors, the idle
+    relaxation, then the layer's context errors in order (ideal gate the identity)."""
     out = []
     for layer in circuit.iter_layers():
         for nop in layer.operations:
-            targets = [qs[q] for q in nop.qubits]
-            k = len(targets)
-            out.append(cirq.MatrixGate(nop.op.unitary()).on(*targets))
-            out.append(cirq.MatrixGate(nop.coherent).on(*targets))
-            if nop.pauli_rates:
-                p0 = 1 - sum(nop.pauli_rates.values())
-                kraus = [np.sqrt(p0) * np.eye(2**k)] + [np.sqrt(p) * pauli_matrix(l) for l, p in nop.pauli_rates.items()]
-                out.append(cirq.KrausChannel(kraus).on(*targets))
-            if nop.depolarizing:
-                d = 2**k
-                out.append(cirq.depolarize(nop.depolarizing * (d * d - 1) / (d * d), n_qubits=k).on(*targets))
-            for r in nop.relaxation:
-                out.extend(_relax_ops(r, qs))
+            out.append(cirq.MatrixGate(nop.op.unitary()).on(*[qs[q] for q in nop.qubits]))
+            out.extend(_channel_ops(nop, qs))
         for r in layer.idle:
             out.extend(_relax_ops(r, qs))
+        for nop in layer.context:
+            out.extend(_channel_ops(nop, qs))
     return out
 
 
@@ -240,7 +251,8 @@ def mapped(circuit: NoisyCircuit, operation, idle) -> NoisyCircuit:
             if isinstance(it, NoisyRepeat):
                 out.append(NoisyRepeat(items(it.body), it.count))
                 continue
-            out.append(NoisyLayer(tuple(map(operation, it.operations)), idle(it), it.duration_ns))
+            out.append(NoisyLayer(tuple(map(operation, it.operations)), idle(it), it.duration_ns,
+                                  tuple(map(operation, it.context))))
         return tuple(out)
 
     return NoisyCircuit(circuit.qubits, items(circuit.body), circuit.readout_error, circuit.source)

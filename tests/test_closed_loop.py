@@ -228,7 +228,7 @@ def test_a_slow_engine_gives_way_to_the_next_that_fits():
 
 
 def test_context_knobs_are_checked_in_closed_loop_too():
-    """A spectator-ZZ knob (rad per µs, budget/errors/context_layers.py): cirq with the coupling
+    """A spectator-ZZ knob (rad per µs, budget/errors/context_terms.py): cirq with the coupling
     written in the model at ± the reported tolerance (in kHz) gives the target."""
     import tomllib
     from pathlib import Path

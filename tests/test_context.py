@@ -13,7 +13,7 @@ import pytest
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
 from budget.engines import get_engine
 from budget.errors.attach import attach
-from budget.errors.context_layers import ZZ_KNOB, knob_in_lab_units
+from budget.errors.context_terms import ZZ_KNOB, knob_in_lab_units
 from budget.errors.fidelity import naive_infidelity
 from budget.errors.model import ErrorModel
 from budget.errors.noisy import NoisyCircuit
@@ -47,7 +47,7 @@ def test_idle_pair_gets_two_pi_zeta_t():
     # ζ = 100 kHz, t = 1 µs: φ = 2π·0.1 = 0.6283 rad (worked by hand; the example)
     model = ErrorModel.from_dict({"gates": {"id": {"duration_ns": 1000.0}}, "couplings": {"q[0],q[1]": {"zz_khz": 100.0}}})
     noisy = attach(_circuit(2, Layer((Operation("id", (0,)),))), model)
-    zz = [op for layer in noisy.iter_layers() if layer.context for op in layer.operations]
+    zz = [op for layer in noisy.iter_layers() for op in layer.context]
     assert len(zz) == 1 and zz[0].family == "zz q[0],q[1]"
     phi = 0.6283185307179586
     # cirq's CZ**t is diag(1, 1, 1, e^{iπt}) (cirq's documented convention): t = φ/π
@@ -66,12 +66,7 @@ def test_pair_running_its_own_gate_gets_none_and_default_covers_gate_pairs():
     })
     c = _circuit(4, Layer((Operation("cz", (0, 1)), Operation("sx", (2,)))), Layer((Operation("cz", (2, 3)),)))
     noisy = attach(c, model)
-    per_layer = []
-    for layer in noisy.body:
-        if layer.context:
-            per_layer[-1].update({op.family: op.hamiltonian["ZZ"] for op in layer.operations})
-        else:
-            per_layer.append({})
+    per_layer = [{op.family: op.hamiltonian["ZZ"] for op in layer.context} for layer in noisy.body]
     # default pairs: those of the circuit's two-qubit gates, (0,1) and (2,3); (1,2) from its own table
     assert set(per_layer[0]) == {"zz q[1],q[2]", "zz q[2],q[3]"}  # (0,1) runs its cz
     assert set(per_layer[1]) == {"zz q[0],q[1]", "zz q[1],q[2]"}
@@ -80,29 +75,25 @@ def test_pair_running_its_own_gate_gets_none_and_default_covers_gate_pairs():
     assert per_layer[1]["zz q[0],q[1]"] == pytest.approx(-2 * np.pi * 50e3 * 60e-9 / 4, rel=1e-12)
 
 
-def test_zero_duration_layers_get_no_zz_and_context_layers_add_no_time():
+def test_zero_duration_layers_get_no_zz_and_context_errors_add_no_time():
     model = ErrorModel.from_dict({"qubits": {"t1_us": 50.0}, "couplings": {"q[0],q[1]": {"zz_khz": 300.0}},
                                   "gates": {"sx": {"duration_ns": 30.0}}})
     noisy = attach(_circuit(2, Layer((Operation("rz", (0,), (0.3,)),)), Layer((Operation("sx", (1,)),))), model)
     layers = list(noisy.iter_layers())
-    assert [l.context for l in layers] == [False, False, True]  # virtual rz: T = 0, no ZZ
-    assert layers[2].duration_ns == 0.0 and layers[2].idle == ()
+    assert [len(l.context) for l in layers] == [0, 1]  # virtual rz: T = 0, no ZZ; the sx layer's ZZ is its own
+    assert layers[1].duration_ns == 30.0  # the ZZ adds no time to its layer
     assert len(layers[1].idle) == 1 and layers[1].idle[0].duration_ns == 30.0  # idle time unchanged
 
 
-def test_overlapping_pairs_are_split_into_disjoint_sub_layers():
-    # a triangle plus a tail: pairs sharing a qubit never share a context layer
+def test_overlapping_pairs_all_get_their_zz_in_the_layer():
+    # a triangle plus a tail: pairs sharing a qubit are error sites of the same layer, each with its
+    # own family (their terms are diagonal and commute, so their order does not matter)
     pairs = {"q[0],q[1]": 10.0, "q[1],q[2]": 20.0, "q[0],q[2]": 30.0, "q[2],q[3]": 40.0}
     model = ErrorModel.from_dict({"gates": {"x": {"duration_ns": 40.0}},
                                   "couplings": {k: {"zz_khz": v} for k, v in pairs.items()}})
     noisy = attach(_circuit(4, Layer((Operation("x", (3,)),))), model)
-    ctx = [layer for layer in noisy.body if layer.context]
-    seen = []
-    for layer in ctx:
-        qubits = [q for op in layer.operations for q in op.qubits]
-        assert len(qubits) == len(set(qubits))
-        seen.extend(op.family for op in layer.operations)
-    assert sorted(seen) == sorted(f"zz {k}" for k in pairs)
+    (layer,) = noisy.body
+    assert sorted(op.family for op in layer.context) == sorted(f"zz {k}" for k in pairs)
 
 
 def _echo(phi_total, correction=None):
@@ -157,7 +148,7 @@ def test_crosstalk_rotates_the_neighbour_by_a_fraction(axis, expected):
     model = ErrorModel.from_dict({"gates": {"sx": {"duration_ns": 25.0}, "x": {"duration_ns": 25.0}},
                                   "crosstalk": {"q[0]->q[1]": table}})
     noisy = attach(_circuit(2, Layer((Operation("sx", (0,)), Operation("x", (1,))))), model)
-    (spill,) = [op for layer in noisy.body if layer.context for op in layer.operations]
+    (spill,) = [op for layer in noisy.body for op in layer.context]
     assert spill.family == "crosstalk sx q[0]->q[1]" and spill.qubits == (1,)
     angle = f * np.pi / 2
     gate = {"x": cirq.rx, "y": cirq.ry, "z": cirq.rz}[expected](angle)
@@ -171,7 +162,7 @@ def test_crosstalk_only_for_listed_driven_gates():
     model = ErrorModel.from_dict({"gates": {"x": {"duration_ns": 25.0}, "sx": {"duration_ns": 25.0}},
                                   "crosstalk": {"q[0]->q[1]": {"fraction": 0.1, "gates": ["x"]}}})
     c = _circuit(2, Layer((Operation("sx", (0,)),)), Layer((Operation("rz", (0,), (1.0,)),)), Layer((Operation("x", (0,)),)))
-    fams = [op.family for layer in attach(c, model).body if layer.context for op in layer.operations]
+    fams = [op.family for layer in attach(c, model).body for op in layer.context]
     assert fams == ["crosstalk x q[0]->q[1]"]
 
 
@@ -182,7 +173,7 @@ def test_bleed_spills_a_fraction_of_the_previous_pulse():
     model = ErrorModel.from_dict({"gates": {"x": {"duration_ns": 25.0}, "sx": {"duration_ns": 25.0}},
                                   "bleed": {"x->sx": {"fraction": f}}})
     noisy = attach(_circuit(1, Layer((Operation("x", (0,)),)), Layer((Operation("sx", (0,)),))), model)
-    (spill,) = [op for layer in noisy.body if layer.context for op in layer.operations]
+    (spill,) = [op for layer in noisy.body for op in layer.context]
     assert spill.family == "bleed x->sx q[0]"
     for engine in ("exact",):
         assert _run(engine, noisy).infidelity == pytest.approx(math.sin(f * np.pi / 2) ** 2, abs=1e-12)
@@ -191,7 +182,7 @@ def test_bleed_spills_a_fraction_of_the_previous_pulse():
     assert not any(layer.context for layer in other.body)
 
 
-def test_bleed_across_a_repeat_peels_the_first_repetition():
+def test_bleed_across_a_repeat_peels_one_repetition():
     # x; {sx} x 5 with bleed sx->sx on q[0] only (a qubit table) and x->sx for every qubit:
     # the first sx follows x, the other four follow sx. Exact: all rotations about x add up.
     f_xs, f_ss = 0.01, 0.03
@@ -201,7 +192,8 @@ def test_bleed_across_a_repeat_peels_the_first_repetition():
     noisy = attach(c, model)
     total = f_xs * np.pi + 4 * f_ss * np.pi / 2
     assert _run("exact", noisy).infidelity == pytest.approx(math.sin(total / 2) ** 2, abs=1e-12)
-    assert noisy.body[-1].count == 4  # one repetition peeled, the rest still folded
+    # one repetition peeled (the last: its sx bleeds into nothing), the rest still folded
+    assert len(noisy.body) == 3 and noisy.body[1].count == 4
 
 
 # ---- calibration in context ----------------------------------------------------------------------
@@ -502,10 +494,10 @@ def test_heat_map_puts_context_errors_in_the_column_of_their_layer():
     assert m.values[:, 1] == pytest.approx([0.0, 0.0, 0.0], abs=1e-15)
 
 
-def test_random_compiling_puts_no_frames_around_context_layers():
-    # two cz layers, each followed by a ZZ context layer: frames (before and after) may dress the
+def test_random_compiling_puts_no_frames_around_context_errors():
+    # two cz layers, each with ZZ context errors: frames (before and after) may dress the
     # two gate layers only, so at most 4 frame layers, and 4 for most draws; dressing the context
-    # layers too would give up to 8
+    # errors (a layer of their own each in the copy) too would give up to 8
     from budget.analysis.randomized import FRAME, compiled_copy
 
     model = ErrorModel.from_dict({"gates": {"cz": {"duration_ns": 60.0}}, "couplings": {"zz_khz": 100.0}})
@@ -514,7 +506,7 @@ def test_random_compiling_puts_no_frames_around_context_layers():
     for seed in range(20):
         copy, _ = compiled_copy(noisy, np.random.default_rng(seed))
         counts.append(sum(any(op.family == FRAME for op in l.operations) for l in copy.body))
-        assert sum(l.context for l in copy.body) == 2
+        assert sum(bool(l.context) for l in copy.body) == 2
     assert max(counts) == 4
 
 

@@ -134,7 +134,7 @@ def cycle_errors(block: NoisyCircuit) -> CycleErrors:
     u = dense.unitary
     local: dict[str, float] = {}
     for layer, mult in block.multiplicities():
-        for nop in layer.operations:
+        for nop in layer.sites:
             for name, gen, scale in _op_terms(nop):
                 size = abs(scale) * float(np.sqrt(sum(c * c for c in gen.values())))
                 local[name] = local.get(name, 0.0) + mult * size

@@ -27,7 +27,7 @@ from typing import Any, Mapping
 from budget.analysis.phase_estimation import Probe, final_depth, find_probes  # noqa: F401 (re-exported)
 from budget.analysis.sensitivity import knob_key
 from budget.analysis.tolerances import NO_EFFECT, ToleranceReport
-from budget.errors.context_layers import HARDWARE_KNOBS, HARDWARE_REMEDY, context_knob_keys
+from budget.errors.context_terms import HARDWARE_KNOBS, HARDWARE_REMEDY, context_knob_keys
 from budget.errors.toml_keys import KeyPaths
 
 HOURS_PER_DAY = 24.0
@@ -176,7 +176,7 @@ class CalibrationPlan:
 
 def model_knob_keys(model: Any) -> frozenset[str]:
     """Every ``"family.knob"`` an ErrorModel defines (gate tables and per-qubit tables alike, and
-    the context sections: :func:`budget.errors.context_layers.context_knob_keys`)."""
+    the context sections: :func:`budget.errors.context_terms.context_knob_keys`)."""
     out = set(context_knob_keys(model.context, model.gates))
     for gate, gp in list(model.gates.items()) + [(g, p) for (g, _), p in model.gate_overrides.items()]:
         out.update(f"{gp.family or gate}.{k}" for k in gp.knob_values())

@@ -141,7 +141,7 @@ def site_families(by_gate: Any, by_site: Any) -> dict[str, str]:
             if kind is not kind_of(y, "site_families"):
                 raise TypeError(f"site_families: items {type(x).__name__} and {type(y).__name__} do not match")
             if kind is Kind.LAYER:
-                out.update((q.family, p.family) for p, q in zip(x.operations, y.operations))
+                out.update((q.family, p.family) for p, q in zip(x.sites, y.sites))
             elif kind in (Kind.MEASURE, Kind.RESET):
                 out[y.family] = x.family
             else:

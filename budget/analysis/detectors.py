@@ -293,7 +293,7 @@ def _measured_last(circuit: NoisyCircuit) -> set[int]:
         for it in items:
             kind = kind_of(it, "detectors")
             if kind is Kind.LAYER:
-                for nop in it.operations:  # a one-qubit gate after the readout cannot change the record
+                for nop in it.sites:  # a one-qubit gate after the readout cannot change the record
                     last.update({q: "gate" for q in nop.qubits if len(nop.qubits) == 2 or last.get(q) != "measure"})
             elif kind is Kind.MEASURE:
                 last.update({q: "measure" for q in it.item.qubits})
@@ -309,7 +309,7 @@ def _measured_last(circuit: NoisyCircuit) -> set[int]:
 def _neighbours(circuit: NoisyCircuit) -> dict[int, set[int]]:
     out: dict[int, set[int]] = {}
     for layer in circuit.distinct_layers():
-        for nop in layer.operations:
+        for nop in layer.sites:
             if len(nop.qubits) == 2:
                 a, b = nop.qubits
                 out.setdefault(a, set()).add(b)

@@ -40,10 +40,10 @@ def family_table(counts: dict[str, int], shares: dict[str, float]) -> tuple[Fami
 
 
 def family_counts(noisy: NoisyCircuit) -> dict[str, int]:
-    """Executed operations per family (idle slots for ``idle``), repeats counted exactly."""
+    """Executed operations and context errors per family (idle slots for ``idle``), repeats counted exactly."""
     counts: dict[str, int] = {}
     for layer, mult in noisy.multiplicities():
-        for nop in layer.operations:
+        for nop in layer.sites:
             counts[nop.family] = counts.get(nop.family, 0) + mult
         idle = sum(1 for r in layer.idle if not r.is_trivial)
         if idle:
@@ -69,8 +69,7 @@ def per_operation(circuit: NoisyCircuit) -> NoisyCircuit:
         return tag if nop.op.line is not None and counter[tag] == 1 else f"{tag} #{counter[tag]}"
 
     def layer(it: NoisyLayer) -> NoisyLayer:
-        if it.context:
-            return it  # context errors already name their pair, rule or qubit: one knob each
+        # context errors (it.context) already name their pair, rule or qubit: one knob each
         return dataclasses.replace(it, operations=tuple(dataclasses.replace(n, family=name(n)) for n in it.operations))
 
     # measurements and resets are kept: no gate operation to name

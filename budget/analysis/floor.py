@@ -107,8 +107,7 @@ def without_relaxation(circuit: NoisyCircuit) -> NoisyCircuit:
     ops: dict[ObjectKey, Any] = {}
 
     def layer(it: NoisyLayer) -> NoisyLayer:
-        new = tuple(ops.setdefault(ObjectKey(n), dataclasses.replace(n, relaxation=())) for n in it.operations)
-        return dataclasses.replace(it, operations=new, idle=())
+        return it.map_sites(lambda n: ops.setdefault(ObjectKey(n), dataclasses.replace(n, relaxation=())), idle=())
 
     def probe(it):
         return dataclasses.replace(it, idle=())
@@ -130,8 +129,7 @@ def scaled_incoherent(circuit: NoisyCircuit, gates: float, relaxation: float) ->
                                    pauli_rates={k: v * gates for k, v in n.pauli_rates.items()})
 
     def layer(it: NoisyLayer) -> NoisyLayer:
-        ops = tuple(memo.setdefault(ObjectKey(n), op(n)) for n in it.operations)
-        return dataclasses.replace(it, operations=ops, idle=relax(it.idle))
+        return it.map_sites(lambda n: memo.setdefault(ObjectKey(n), op(n)), idle=relax(it.idle))
 
     def probe(it):
         return dataclasses.replace(it, idle=relax(it.idle))

@@ -10,8 +10,9 @@ and relaxation; :func:`budget.errors.fidelity.operation_process_fidelity`), spli
 k_op qubits, e_idle the process infidelity of the qubit's idle relaxation in that layer, and m the
 layer's execution count. Summed over the whole map this is the first-order (small-error) sum of the
 naive estimate, Σ m_i e_i ≈ -log Π F_pro. It says where the local error sits; it does not show
-coherent build-up or echo between operations (the family shares and depth curves do). Context
-layers (spectator ZZ, crosstalk, bleed; zero duration) add to the column of the layer before them.
+coherent build-up or echo between operations (the family shares and depth curves do). A layer's
+context errors (spectator ZZ, crosstalk, bleed) count like its operations, e_op split over their
+qubits; a layer holding context errors only (a bleed across a seam) adds to the column before it.
 """
 
 from __future__ import annotations
@@ -62,7 +63,7 @@ class ErrorMap:
 def error_map(circuit: NoisyCircuit, *, max_columns: int = MAX_COLUMNS) -> ErrorMap:
     """The layer-by-qubit map of first-order local infidelity (see module docstring)."""
     everything = circuit.multiplicities()
-    layers = [x for x in everything if not x[0].context]
+    layers = [x for x in everything if not x[0].errors_only]
     n = circuit.num_qubits
     width = min(len(layers), max_columns)
     values = np.zeros((n, max(width, 1)))
@@ -70,10 +71,10 @@ def error_map(circuit: NoisyCircuit, *, max_columns: int = MAX_COLUMNS) -> Error
     cache: dict[ObjectKey, float] = {}
     i = -1
     for layer, mult in everything:
-        if not layer.context or i < 0:
+        if not layer.errors_only or i < 0:
             i += 1
         col = min(i, width - 1)
-        for nop in layer.operations:
+        for nop in layer.sites:
             if ObjectKey(nop) not in cache:
                 cache[ObjectKey(nop)] = 1.0 - operation_process_fidelity(nop)
             for q in nop.qubits:

@@ -124,7 +124,7 @@ def conditioned_noise_note(noisy: NoisyCircuit) -> str | None:
         for it, _ in counted(noisy.body, where="measured budget")
         if isinstance(it, NoisyIf)
         and any(nop.has_incoherent for branch in branches(it) for layer, _ in counted(branch, where="measured budget")
-                if isinstance(layer, NoisyLayer) for nop in layer.operations)
+                if isinstance(layer, NoisyLayer) for nop in layer.sites)
     })
     if not lines:
         return None
@@ -305,7 +305,7 @@ def without_family(noisy: NoisyCircuit, family: str) -> NoisyCircuit:
                                    depolarizing=0.0, relaxation=())
 
     def layer(it):
-        return dataclasses.replace(it, operations=tuple(op(n) for n in it.operations), idle=() if family == IDLE else it.idle)
+        return it.map_sites(op, idle=() if family == IDLE else it.idle)
 
     def probe(it):
         errors = "readout_error" if it.kind is Kind.MEASURE else "reset_error"

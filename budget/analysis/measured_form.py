@@ -52,7 +52,7 @@ def with_knobs(noisy: NoisyCircuit, values: dict[tuple[str, str], float], scale:
         return dataclasses.replace(nop, coherent=expm(-1j * h), hamiltonian={p: c for p, c in ham.items() if c})
 
     def layer(it):
-        return dataclasses.replace(it, operations=tuple(op(n) for n in it.operations))
+        return it.map_sites(op)
 
     return dataclasses.replace(noisy, body=map_items(noisy.body, layer, memo=memo))
 

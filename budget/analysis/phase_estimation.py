@@ -172,7 +172,7 @@ def find_probes(circuit: NoisyCircuit) -> dict[tuple[str, str], tuple[Probe, ...
     """(family, knob) -> one probe per distinct qubit tuple of the family (first operation there)."""
     out: dict[tuple[str, str], dict[tuple[int, ...], Probe]] = {}
     for layer in circuit.distinct_layers():
-        for nop in layer.operations:
+        for nop in layer.sites:
             for knob in nop.knob_generators:
                 sites = out.setdefault((nop.family, knob), {})
                 if nop.qubits not in sites:

@@ -23,7 +23,7 @@ solved with ``scipy.optimize.milp`` (HiGHS). The comparison: every calibratable 
 the tightest tolerance of the equal-share allocation (σ = t_min / k), all in common rounds as often
 as the budget needs.
 
-Knobs the hardware sets (static ZZ, :data:`~budget.errors.context_layers.HARDWARE_KNOBS`) have one
+Knobs the hardware sets (static ZZ, :data:`~budget.errors.context_terms.HARDWARE_KNOBS`) have one
 option, ``"hardware"``: their load A_ii δ² stays whatever is scheduled (a calibration would measure
 the coupling, not lower it). When the floor and those loads alone reach the target, no schedule
 exists and the message says which couplings must fall (``budget tolerances`` gives their rates).
@@ -48,7 +48,7 @@ from budget.analysis.tolerances import check_target, tolerances
 from budget.analysis.uncertainty import name_of
 from budget.circuit.gates import ALIASES
 from budget.errors.attach import attach
-from budget.errors.context_layers import HARDWARE_KNOBS, HARDWARE_REMEDY, knob_text
+from budget.errors.context_terms import HARDWARE_KNOBS, HARDWARE_REMEDY, knob_text
 from budget.errors.params import GateParams
 from budget.problems import InputError
 

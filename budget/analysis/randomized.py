@@ -132,11 +132,12 @@ def compiled_copy(circuit: NoisyCircuit, rng: np.random.Generator) -> tuple[Nois
     body: list[NoisyLayer] = []
     notes: list[str] = []
     for layer in circuit.iter_layers():
-        if not layer.context and any(len(n.qubits) == 2 for n in layer.operations):  # context errors get no frame
+        if any(len(n.qubits) == 2 for n in layer.operations):
+            gates, *context = layer.without_context()  # context errors get no frame: they stay after it
             qubits = sorted(q for n in layer.operations for q in n.qubits)
             letters = rng.integers(0, 4, size=len(qubits))
-            layers, why = dress_layer(layer, {q: "IXYZ"[i] for q, i in zip(qubits, letters)})
-            body.extend(layers)
+            layers, why = dress_layer(gates, {q: "IXYZ"[i] for q, i in zip(qubits, letters)})
+            body.extend(layers + context)
             notes.extend(why)
         else:
             body.append(layer)

@@ -7,7 +7,7 @@ import math
 
 from budget.analysis.sensitivity import knob_key
 from budget.analysis.tolerances import SCHEMA_VERSION, ToleranceReport
-from budget.errors.context_layers import knob_in_lab_units
+from budget.errors.context_terms import knob_in_lab_units
 
 
 def floor_message(report: ToleranceReport) -> str | None:

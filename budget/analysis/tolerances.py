@@ -31,7 +31,7 @@ import numpy as np
 from budget.analysis.sensitivity import check_form, knob_key
 from budget.analysis.worstcase import EXACT_UP_TO, box_maximum
 from budget.engines.base import QuadraticForm
-from budget.errors.context_layers import HARDWARE_KNOBS, HARDWARE_REMEDY, knob_in_lab_units
+from budget.errors.context_terms import HARDWARE_KNOBS, HARDWARE_REMEDY, knob_in_lab_units
 from budget.problems import InputError
 
 Assumption = Literal["worst", "random"]

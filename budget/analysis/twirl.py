@@ -32,5 +32,5 @@ def _twirl_op(nop: NoisyOperation) -> NoisyOperation:
 def twirled_circuit(circuit: NoisyCircuit) -> NoisyCircuit:
     """The same circuit with every coherent error replaced by its Pauli twirl (repeats kept)."""
     # readout and reset errors are already stochastic: measurements and resets are kept
-    layer = lambda it: replace(it, operations=tuple(_twirl_op(n) for n in it.operations))  # noqa: E731
+    layer = lambda it: it.map_sites(_twirl_op)  # noqa: E731
     return replace(circuit, body=map_items(circuit.body, layer, memo={}))

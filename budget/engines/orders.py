@@ -22,6 +22,7 @@ import math
 
 from budget.engines.details import Validity
 from budget.errors.noisy import NoisyCircuit
+from budget.errors.normal_form import layer_errors
 
 SECOND_ORDER_SHARE = 0.1
 """Share of the coherent infidelity from the second-order term above which the result is said to
@@ -29,10 +30,10 @@ rest on a cancellation (a judgement of this tool, no source)."""
 
 
 def term_norm_sum(circuit: NoisyCircuit) -> float:
-    """Σ_t ||G_t|| over every executed operation (repeat counts included), in radians."""
+    """Σ_t ||G_t|| over every executed error site (repeat counts included), in radians."""
     total = 0.0
     for layer, mult in circuit.multiplicities():
-        s = sum(math.sqrt(sum(h * h for h in nop.hamiltonian.values())) for nop in layer.operations)
+        s = sum(math.sqrt(sum(h * h for _, h in e.hamiltonian)) for e in layer_errors(layer))
         total += mult * s
     return total
 
@@ -40,7 +41,7 @@ def term_norm_sum(circuit: NoisyCircuit) -> float:
 def term_square_sum(circuit: NoisyCircuit) -> float:
     """Σ_t ||G_t||² over every executed operation: the first-order coherent process infidelity the
     terms would give if each landed on its own Pauli (no build-up, no cancellation)."""
-    return sum(mult * sum(h * h for nop in layer.operations for h in nop.hamiltonian.values()) for layer, mult in circuit.multiplicities())
+    return sum(mult * sum(h * h for e in layer_errors(layer) for _, h in e.hamiltonian) for layer, mult in circuit.multiplicities())
 
 
 def term_square_by_family(circuit: NoisyCircuit) -> dict[str, float]:
@@ -48,9 +49,9 @@ def term_square_by_family(circuit: NoisyCircuit) -> dict[str, float]:
     all-orders coherent value is split when its leading order rests on a cancellation."""
     out: dict[str, float] = {}
     for layer, mult in circuit.multiplicities():
-        for nop in layer.operations:
-            if nop.hamiltonian:
-                out[nop.family] = out.get(nop.family, 0.0) + mult * sum(h * h for h in nop.hamiltonian.values())
+        for e in layer_errors(layer):
+            if e.hamiltonian:
+                out[e.source.family] = out.get(e.source.family, 0.0) + mult * sum(h * h for _, h in e.hamiltonian)
     return out
 
 

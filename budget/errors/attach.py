@@ -8,16 +8,18 @@ knobs (:mod:`budget.errors.knobs`), depolarizing λ = r d/(d-1) from the average
 its duration. Per layer: the layer lasts as long as its longest operation; every qubit relaxes for
 the part of the layer it spends outside an operation (idle). Relaxations that do nothing (zero time,
 or a qubit without T1 and T2) are left out. Context errors (spectator ZZ, drive crosstalk, pulse
-bleed) follow each layer as zero-duration context layers (:mod:`budget.errors.context_layers`,
-placed by :mod:`budget.errors.context_attach`); calibration in context replaces an operation's
-parameters by the most specific matching ``[[context]]`` table. Pulse bleed depends on the previous
-layer, so a repeated block whose first layer sees a different predecessor in its first repetition
-is split into that repetition and a repeat of the rest (one extra copy of the block's structure,
-never an unrolling).
+bleed) are error sites of the layer they act in (``NoisyLayer.context``, built by
+:mod:`budget.errors.context_terms`, placed by :mod:`budget.errors.context_attach`); calibration in
+context replaces an operation's parameters by the most specific matching ``[[context]]`` table.
+Pulse bleed into a layer is the last error site of the layer before it, so a layer's noisy form
+depends on the next layer: a repeated block whose first or last repetition sees a different
+neighbour is split into that repetition and a repeat of the rest (one extra copy of the block's
+structure, never an unrolling).
 """
 
 from __future__ import annotations
 
+import dataclasses
 import difflib
 import re
 from typing import Literal
@@ -78,12 +80,9 @@ def attach(
         _check_qubits(circuit, model)
     _check_size(circuit)
     attacher = _Attacher(circuit, model, family_by)
-    body, last = attacher.items(circuit.body, None)
-    later = None
-    if attacher.context.has_bleed and last is not None:  # a repetition after the last layer of another
-        again, _ = attacher.items(circuit.body, last)
-        if len(again) != len(body) or any(a is not b for a, b in zip(again, body)):
-            later = again
+    body = attacher.items(circuit.body, None, None)
+    seam = attacher.context.seam(_last_in(circuit.body), _first_in(circuit.body))
+    later = (*seam, *body) if seam else None  # a repetition after another: the bleed across the seam first
     measured = circuit.measured or tuple(range(circuit.num_qubits))
     readout = {q: model.qubit(circuit.qubits[q]).readout_error for q in measured}
     return NoisyCircuit(circuit.qubits, body, readout, circuit.source, later)
@@ -166,49 +165,74 @@ class _Attacher:
             self._relax[key] = None if r is None or r.is_trivial else r
         return self._relax[key]
 
-    def items(self, items: tuple, prev: Layer | None) -> tuple[tuple[NoisyItem, ...], Layer | None]:
-        """The noisy items of ``items`` after the circuit layer ``prev``, and the last layer."""
+    def items(self, items: tuple, prev: Layer | None, nxt: Layer | None) -> tuple[NoisyItem, ...]:
+        """The noisy items of ``items``, which run after the circuit layer ``prev`` and before the
+        circuit layer ``nxt`` (None: the start or end of the circuit, or a measurement, reset or
+        if block in between: no pulse bleeds across those)."""
         out: list[NoisyItem] = []
-        for it in items:
+        for i, it in enumerate(items):
             kind = kind_of(it, "attach")
             if kind is Kind.LAYER:
-                out.extend(self.context.bleed(prev, it))
-                out.extend(self.expanded(it))
+                out.append(self.expanded(it, _first_in(items, nxt, i + 1)))
                 prev = it
             elif kind is Kind.REPEAT:
-                block, prev = self.repeat(it, prev)
-                out.extend(block)
+                out.extend(self.repeat(it, prev, _first_in(items, nxt, i + 1)))
+                prev = _last_in(it.body)
             elif kind in (Kind.MEASURE, Kind.RESET):
                 key = ObjectKey(it)
                 if key not in self._items:
                     self._items[key] = self.probe(it)
                 out.append(self._items[key])
-                prev = None  # no pulse bleeds across a measurement or reset
-            else:  # Kind.IF
-                then, _ = self.items(it.then, prev)
-                orelse, _ = self.items(it.orelse, prev)
+                prev = None
+            else:  # Kind.IF: a bleed into a branch is the branch's own (it runs only with the branch)
+                then = (*self.context.seam(prev, _first_in(it.then)), *self.items(it.then, prev, None))
+                orelse = (*self.context.seam(prev, _first_in(it.orelse)), *self.items(it.orelse, prev, None))
                 out.append(NoisyIf(it, then, orelse))
                 prev = None
-        return tuple(out), prev
+        return tuple(out)
 
-    def repeat(self, rep: Repeat, prev: Layer | None) -> tuple[tuple[NoisyItem, ...], Layer | None]:
-        key = (ObjectKey(rep), self.context.bleed_key(prev, _first_layer(rep)))
-        if key not in self._items:
-            first, last = self.items(rep.body, prev)
-            block: tuple[NoisyItem, ...] = (NoisyRepeat(first, rep.count),)
-            if rep.count > 1 and self.context.has_bleed:
-                again, _ = self.items(rep.body, last)
-                if len(again) != len(first) or any(a is not b for a, b in zip(again, first)):
-                    block = (*first, NoisyRepeat(again, rep.count - 1))  # first repetition peeled
-            self._items[key] = (block, last)
-        return self._items[key]
+    def repeat(self, rep: Repeat, prev: Layer | None, nxt: Layer | None) -> tuple[NoisyItem, ...]:
+        """A repeat's noisy items: one NoisyRepeat, or, when pulse bleed makes its first or last
+        repetition differ from the others, those repetitions written out beside a repeat of the rest."""
+        if not self.context.has_bleed:
+            key: tuple = (ObjectKey(rep),)
+            prev = nxt = None
+        else:
+            key = (ObjectKey(rep), None if prev is None else ObjectKey(prev), None if nxt is None else ObjectKey(nxt))
+        if key in self._items:
+            return self._items[key]
+        count = int(rep.count)
+        if count <= 1 or not self.context.has_bleed:
+            block: tuple[NoisyItem, ...] = (NoisyRepeat(self.items(rep.body, prev, nxt), rep.count),)
+        else:
+            first, last = _first_in(rep.body), _last_in(rep.body)
+            parts: list[list] = []
+            for body, times in ((self.items(rep.body, prev, first), 1), (self.items(rep.body, last, first), count - 2),
+                                (self.items(rep.body, last, nxt), 1)):
+                if parts and _same(parts[-1][0], body):
+                    parts[-1][1] += times
+                elif times:
+                    parts.append([body, times])
+            if len(parts) == 1:
+                block = (NoisyRepeat(parts[0][0], rep.count),)
+            else:
+                block = tuple(x for body, times in parts for x in (body if times == 1 else (NoisyRepeat(body, times),)))
+        self._items[key] = block
+        return block
 
-    def expanded(self, layer: Layer) -> tuple[NoisyLayer, ...]:
-        """The layer and the context layers after it (crosstalk, then spectator ZZ)."""
-        key = ObjectKey(layer)
+    def expanded(self, layer: Layer, nxt: Layer | None) -> NoisyLayer:
+        """The layer with its context errors: crosstalk, spectator ZZ, bleed into ``nxt``."""
+        bleed = self.context.bleed_key(layer, nxt)
+        key = (ObjectKey(layer), bleed)
         if key not in self._items:
-            real = self.layer(layer)
-            self._items[key] = (real, *self.context.after(layer, real))
+            base = (ObjectKey(layer), ())
+            if base not in self._items:
+                real = self.layer(layer)
+                context = self.context.after(layer, real)
+                self._items[base] = dataclasses.replace(real, context=context) if context else real
+            plain = self._items[base]
+            sites = self.context.bleed(bleed)
+            self._items[key] = dataclasses.replace(plain, context=plain.context + sites) if sites else plain
         return self._items[key]
 
     def layer(self, layer: Layer) -> NoisyLayer:
@@ -275,14 +299,33 @@ class _Attacher:
         return base if self.family_by == "gate" else f"{base} {','.join(names)}"
 
 
-def _first_layer(rep: Repeat) -> Layer | None:
-    """The first gate layer of a repeat's body, None when a measurement, reset or if comes first."""
-    for it in rep.body:
+def _first_in(items: tuple, after: Layer | None = None, start: int = 0) -> Layer | None:
+    """The first gate layer that ``items[start:]`` run (``after`` when they run none): None when a
+    measurement, reset or if block comes first."""
+    for i in range(start, len(items)):
+        it = items[i]
         kind = kind_of(it, "attach")
-        if kind is not Kind.LAYER and kind is not Kind.REPEAT:
+        if kind is Kind.LAYER:
+            return it
+        if kind is not Kind.REPEAT:
             return None
-        found = it if kind is Kind.LAYER else _first_layer(it)
-        if found is not None:
-            return found
+        if it.body:
+            return _first_in(it.body)
+    return after
+
+
+def _last_in(items: tuple) -> Layer | None:
+    """The last gate layer that ``items`` run: None when a measurement, reset or if block ends them."""
+    for it in reversed(items):
+        kind = kind_of(it, "attach")
+        if kind is Kind.LAYER:
+            return it
+        if kind is not Kind.REPEAT:
+            return None
+        if it.body:
+            return _last_in(it.body)
     return None
 
+
+def _same(a: tuple, b: tuple) -> bool:
+    return len(a) == len(b) and all(x is y for x, y in zip(a, b))

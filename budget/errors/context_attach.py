@@ -1,9 +1,9 @@
-"""Where context errors go in one attach call: which layers get which context layers, and which
+"""Where context errors go in one attach call: which error sites each layer gets, and which
 ``[[context]]`` table calibrates an operation (docs/error-model.md, "Context errors").
 
 :class:`ContextPlacer` is used by :func:`budget.errors.attach.attach`; it caches by structure as
-attach does, so a layer repeated 10**9 times is looked at once. The pseudo-operations themselves
-are built in :mod:`budget.errors.context_layers`.
+attach does, so a layer repeated 10**9 times is looked at once. The error sites themselves are
+built in :mod:`budget.errors.context_terms`.
 """
 
 from __future__ import annotations
@@ -13,7 +13,7 @@ import dataclasses
 from budget.circuit.gates import GATES, exchange_symmetric
 from budget.circuit.ir import Layer, Operation, StructuredCircuit
 from budget.errors.context import ContextTable, Crosstalk, mirrored_fields
-from budget.errors.context_layers import context_layer, crosstalk_layers, edge_layers, spill_operation, zz_operation
+from budget.errors.context_terms import crosstalk_terms, spill_operation, zz_operation
 from budget.errors.model import ErrorModel
 from budget.errors.noisy import NoisyLayer, NoisyOperation
 from budget.errors.params import GateParams
@@ -42,21 +42,22 @@ class ContextPlacer:
             self.tables.setdefault(t.gate, []).append(t)
         self._cache: dict = {}
 
-    def after(self, layer: Layer, noisy: NoisyLayer) -> tuple[NoisyLayer, ...]:
-        """The context layers after a layer (``noisy`` its attached form): crosstalk, then ZZ."""
-        out = crosstalk_layers(noisy.operations, self.crosstalk, self.names, self.index) if self.crosstalk else []
-        return (*out, *self.zz_layers(layer, noisy.duration_ns))
+    def after(self, layer: Layer, noisy: NoisyLayer) -> tuple[NoisyOperation, ...]:
+        """The context error sites of a layer (``noisy`` its attached form), before any bleed into
+        the next layer: crosstalk, then spectator ZZ."""
+        out = crosstalk_terms(noisy.operations, self.crosstalk, self.names, self.index) if self.crosstalk else []
+        return (*out, *self.zz_terms(layer, noisy.duration_ns))
 
-    def zz_layers(self, layer: Layer, duration_ns: float) -> tuple[NoisyLayer, ...]:
-        """Spectator ZZ of every coupled pair not running its own two-qubit gate in ``layer``."""
+    def zz_terms(self, layer: Layer, duration_ns: float) -> tuple[NoisyOperation, ...]:
+        """Spectator ZZ of every coupled pair not running its own two-qubit gate in ``layer``
+        (sorted pairs: the terms are diagonal and commute)."""
         if duration_ns <= 0 or not self.zz:
             return ()
         busy = {frozenset(op.qubits) for op in layer.operations if len(op.qubits) == 2}
         active = tuple(p for p in self.zz if frozenset(p) not in busy)
         key = ("zz", duration_ns, active)
         if key not in self._cache:
-            ops = {p: self._zz_op(p, duration_ns) for p in active}
-            self._cache[key] = tuple(context_layer([ops[p] for p in group]) for group in edge_layers(list(active)))
+            self._cache[key] = tuple(self._zz_op(p, duration_ns) for p in active)
         return self._cache[key]
 
     def _zz_op(self, pair: tuple[int, int], duration_ns: float) -> NoisyOperation:
@@ -81,17 +82,23 @@ class ContextPlacer:
                 out.append((op.qubits[0], a.gate, a.params, op.gate, f))
         return tuple(out)
 
-    def bleed(self, prev: Layer | None, layer: Layer) -> tuple[NoisyLayer, ...]:
-        """The pulse-bleed context layer between ``prev`` and ``layer`` (empty without bleed)."""
-        key = ("bleed", self.bleed_key(prev, layer))
-        if not key[1]:
+    def bleed(self, key: tuple) -> tuple[NoisyOperation, ...]:
+        """The pulse-bleed error sites of one :meth:`bleed_key` (empty without bleed)."""
+        if not key:
             return ()
-        if key not in self._cache:
-            ops = [spill_operation(q, f"bleed {a}->{b} {self.names[q]}", "bleed", a, params, f,
-                                   duration_ns=self.model.gate(a, (self.names[q],)).duration_ns)
-                   for q, a, params, b, f in key[1]]
-            self._cache[key] = (context_layer(ops),)
-        return self._cache[key]
+        if ("bleed", key) not in self._cache:
+            self._cache[("bleed", key)] = tuple(
+                spill_operation(q, f"bleed {a}->{b} {self.names[q]}", "bleed", a, params, f,
+                                duration_ns=self.model.gate(a, (self.names[q],)).duration_ns)
+                for q, a, params, b, f in key)
+        return self._cache[("bleed", key)]
+
+    def seam(self, prev: Layer | None, layer: Layer | None) -> tuple[NoisyLayer, ...]:
+        """A layer without gates that holds the bleed from ``prev`` into ``layer`` when no noisy
+        layer of ``prev`` can carry it (the start of an if branch, a repetition of the whole
+        circuit); empty without such a bleed."""
+        sites = self.bleed(self.bleed_key(prev, layer))
+        return (NoisyLayer((), (), 0.0, sites),) if sites else ()
 
     def table(self, op: Operation, layer: Layer) -> ContextTable | None:
         """The most specific ``[[context]]`` table of this operation's gate that matches the layer.

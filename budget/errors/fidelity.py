@@ -16,8 +16,9 @@ import math
 import numpy as np
 
 from budget.errors.noisy import NoisyCircuit, NoisyOperation, Relaxation
+from budget.errors.normal_form import SiteErrors, operation_errors
 from budget.memo import ObjectKey
-from budget.pauli_algebra import I, pauli_labels, pauli_matrix
+from budget.pauli_algebra import I, pauli_matrix
 
 
 def _embed(k: np.ndarray, pos: int, n: int) -> np.ndarray:
@@ -33,40 +34,48 @@ def _stage(ops: list[np.ndarray]) -> np.ndarray:
     return np.array(kept, dtype=complex)
 
 
-def error_channel_kraus(nop: NoisyOperation) -> list[np.ndarray]:
-    """Kraus operators of the operation's error channel on its own qubits (gate order).
+def site_kraus(errors: SiteErrors) -> list[np.ndarray]:
+    """Kraus operators of one site's error channel on the site's qubits (gate order), read from
+    its normal form (:mod:`budget.errors.normal_form`).
 
-    Order of application (noisy.py): coherent unitary, then the stochastic Pauli rates
-    ρ -> (1 - Σ p_P) ρ + Σ p_P P ρ P, then depolarizing ρ -> (1-λ) ρ + λ I/d (Kraus
-    sqrt(1 - λ(d²-1)/d²) I and sqrt(λ/d²) P for every P ≠ I), then T1/T2 relaxation on each qubit
-    (:meth:`Relaxation.kraus`). The ideal gate itself is not included: E_actual = E ∘ U_ideal.
+    Order of application (noisy.py): the coherent unitary (``errors.unitary``), then each Pauli
+    channel of ``errors.stochastic`` (``errors.groups``) ρ -> (1 - Σ p_P) ρ + Σ p_P P ρ P (the
+    Pauli rates, then depolarizing λ as every P ≠ I at λ/d², which is ρ -> (1-λ) ρ + λ I/d), then
+    T1/T2 relaxation on each qubit (:meth:`Relaxation.kraus`). The ideal gate itself is not
+    included: E_actual = E ∘ U_ideal.
     """
-    n = len(nop.qubits)
+    n = len(errors.qubits)
     d = 2**n
-    stages = [_stage([np.asarray(nop.coherent, dtype=complex)])]
-    if nop.pauli_rates:
-        p0 = 1.0 - math.fsum(nop.pauli_rates.values())
-        if p0 < -1e-12 or any(p < 0 for p in nop.pauli_rates.values()):
-            raise ValueError(f"pauli_rates {nop.pauli_rates}: probabilities must be >= 0 and sum to <= 1")
-        stages.append(
-            _stage([math.sqrt(max(p0, 0.0)) * np.eye(d)] + [math.sqrt(p) * pauli_matrix(l) for l, p in nop.pauli_rates.items()])
-        )
-    lam = nop.depolarizing
-    if lam:
-        if not 0 <= lam <= d * d / (d * d - 1):
-            raise ValueError(f"depolarizing = {lam}: must lie in [0, d²/(d²-1)] for d = {d}")
-        labels = pauli_labels(n)
-        stages.append(
-            _stage([math.sqrt(1 - lam * (d * d - 1) / (d * d)) * np.eye(d)] + [math.sqrt(lam) / d * pauli_matrix(l) for l in labels[1:]])
-        )
-    for r in nop.relaxation:
+    stages = [_stage([np.eye(d, dtype=complex) if errors.unitary is None else np.asarray(errors.unitary, dtype=complex)])]
+    start = 0
+    for size in errors.groups or ((len(errors.stochastic),) if errors.stochastic else ()):
+        part = errors.stochastic[start:start + size]
+        start += size
+        p0 = 1.0 - math.fsum(p for _, p in part)
+        if p0 < -1e-12 or any(p < 0 for _, p in part):
+            raise ValueError(f"Pauli rates {dict(part)}: probabilities must be >= 0 and sum to <= 1")
+        stages.append(_stage([math.sqrt(max(p0, 0.0)) * np.eye(d)] + [math.sqrt(p) * pauli_matrix(l) for l, p in part]))
+    for r in errors.relaxation:
         if not r.is_trivial:
-            pos = nop.qubits.index(r.qubit)
+            pos = errors.qubits.index(r.qubit)
             stages.append(_stage([_embed(k, pos, n) for k in r.kraus()]))
     total = stages[0]
     for s in stages[1:]:
         total = (s[:, None] @ total[None, :]).reshape(-1, d, d)
     return list(total)
+
+
+def error_channel_kraus(nop: NoisyOperation) -> list[np.ndarray]:
+    """:func:`site_kraus` of one operation's own errors.
+
+    Raises:
+        ValueError: Pauli rates that are not probabilities, or a depolarizing λ outside
+            [0, d²/(d²-1)].
+    """
+    d = 2 ** len(nop.qubits)
+    if not 0 <= nop.depolarizing <= d * d / (d * d - 1):
+        raise ValueError(f"depolarizing = {nop.depolarizing}: must lie in [0, d²/(d²-1)] for d = {d}")
+    return site_kraus(operation_errors(nop))
 
 
 def operation_process_fidelity(nop: NoisyOperation) -> float:
@@ -116,8 +125,8 @@ def relaxation_process_fidelity(r: Relaxation) -> float:
 def naive_infidelity(circuit: NoisyCircuit) -> float:
     """The spreadsheet estimate 1 - Π F_pro over every executed operation and idle slot.
 
-    Each operation contributes the F_pro of its whole error channel, each idle slot that of its
-    relaxation; repeats count with their exact multiplicity (no unrolling), summed in log space:
+    Each operation and context error contributes the F_pro of its whole error channel, each idle
+    slot that of its relaxation; repeats count with their exact multiplicity (no unrolling), summed in log space:
     1 - exp(Σ m_i log1p(-e_i)), with math.fsum, so N = 10**9 repetitions cost no more than one.
     """
     by_object: dict[ObjectKey, float] = {}
@@ -125,7 +134,7 @@ def naive_infidelity(circuit: NoisyCircuit) -> float:
     terms: list[float] = []
     for layer, mult in circuit.multiplicities():
         logs: list[float] = []
-        for nop in layer.operations:
+        for nop in layer.sites:
             if ObjectKey(nop) not in by_object:
                 key = _channel_key(nop)
                 if key not in by_channel:

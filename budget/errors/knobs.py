@@ -141,7 +141,7 @@ def knob_grouping(circuit: NoisyCircuit) -> tuple[Grouping, dict[tuple[str, str]
     rad), rows as in the module docstring."""
     values: dict[tuple[str, str], float] = {}
     for layer in circuit.distinct_layers():
-        for nop in layer.operations:
+        for nop in layer.sites:
             for knob, _, v in knob_terms(nop):
                 key = (nop.family, knob)
                 if key not in values or abs(v) > abs(values[key]):

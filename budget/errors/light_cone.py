@@ -26,7 +26,7 @@ from budget.circuit.walk import Kind, gate_kind
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyOperation, NoisyRepeat
 from budget.graph import flat_operations
 
-_Sel = tuple  # ("layer", layer, ops, idle) or ("repeat", body_selection, count)
+_Sel = tuple  # ("layer", layer, ops, idle, context) or ("repeat", body_selection, count)
 
 
 def _select(items: Sequence, live: frozenset[int]) -> tuple[list[_Sel], frozenset[int]]:
@@ -34,10 +34,15 @@ def _select(items: Sequence, live: frozenset[int]) -> tuple[list[_Sel], frozense
     out: list[_Sel] = []
     for it in reversed(items):
         if gate_kind(it, "light cone (gate layers and repeats only)") is Kind.LAYER:
+            context = []
+            for site in reversed(getattr(it, "context", ())):  # a noisy layer's context errors act after its gates
+                if live.intersection(site.qubits):
+                    context.append(site)
+                    live = live.union(site.qubits)
             ops = tuple(op for op in it.operations if live.intersection(op.qubits))
             idle = tuple(r for r in getattr(it, "idle", ()) if r.qubit in live)
             live = live.union(q for op in ops for q in op.qubits)
-            out.append(("layer", it, ops, idle))
+            out.append(("layer", it, ops, idle, tuple(reversed(context))))
         else:
             remaining = int(it.count)
             while remaining:
@@ -96,13 +101,14 @@ class _Remap:
         out: list[NoisyItem] = []
         for s in sel:
             if s[0] == "layer":
-                _, layer, ops, idle = s
-                key = (layer, ops, tuple(r.qubit for r in idle))
+                _, layer, ops, idle, context = s
+                key = (layer, ops, tuple(r.qubit for r in idle), context)
                 if key not in self._layers:
                     self._layers[key] = NoisyLayer(
                         tuple(self.op(n) for n in ops),
                         tuple(dataclasses.replace(r, qubit=self.index[r.qubit]) for r in idle),
                         layer.duration_ns,
+                        tuple(self.op(n) for n in context),
                     )
                 out.append(self._layers[key])
             else:

@@ -15,7 +15,7 @@ Conventions: matrices in gate order, first qubit most significant (cirq's conven
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Callable, ClassVar, Iterator, Union
 
 import numpy as np
@@ -88,8 +88,8 @@ class NoisyOperation:
             from a file; the twirled variant of a circuit moves coherent errors here).
         depolarizing: λ of ρ -> (1-λ) ρ + λ I/d on the operation's qubits, λ = r d/(d-1).
         relaxation: relaxation of each of the operation's qubits during the operation.
-        duration_ns: the operation's duration (for a context pseudo-operation: the time its error
-            builds up over; its context layer itself lasts 0 ns).
+        duration_ns: the operation's duration (for a context error: the time it builds up over,
+            which adds nothing to its layer's duration).
     """
 
     op: Operation
@@ -121,12 +121,17 @@ class NoisyOperation:
 
 @dataclass(frozen=True)
 class NoisyLayer:
-    """A layer of noisy operations plus idle relaxation to fill the layer's duration.
+    """A layer of noisy operations, idle relaxation to fill the layer's duration, and the layer's
+    context errors.
 
-    ``context`` marks a zero-duration layer of context errors (spectator ZZ, drive crosstalk, pulse
-    bleed; :mod:`budget.errors.context_layers`): its operations are error-only pseudo-operations
-    whose ideal gate is the identity. Engines treat it like any layer; depth counts, heat-map
-    columns and random compiling skip it.
+    Channel order (docs/error-model.md, "Context errors"): the operations, each followed by its own
+    errors; the idle relaxation; then ``context``, in order: drive crosstalk, spectator ZZ, and the
+    pulse bleed into the next layer (:mod:`budget.errors.context_terms`). A context error is an
+    error-only site (a :class:`NoisyOperation` whose ideal gate is the identity on its support,
+    which may overlap the operations' qubits); engines read the errors of a layer through its
+    normal form (:func:`budget.errors.normal_form.layer_errors`), never ``context`` by name. A layer
+    with no operations and zero duration holding only ``context`` carries a bleed across a seam
+    that no layer of its own precedes (the start of an if branch, a repetition of the whole circuit).
     """
 
     kind: ClassVar[Kind] = Kind.LAYER
@@ -134,7 +139,28 @@ class NoisyLayer:
     operations: tuple[NoisyOperation, ...]
     idle: tuple[Relaxation, ...]
     duration_ns: float
-    context: bool = False
+    context: tuple[NoisyOperation, ...] = ()
+
+    @property
+    def errors_only(self) -> bool:
+        """A layer without operations that holds context errors only (a bleed across a seam)."""
+        return not self.operations and bool(self.context)
+
+    def without_context(self) -> tuple["NoisyLayer", ...]:
+        """The layer split in two: its operations and idle relaxation, then a layer holding its
+        context errors only (the same channel, for transforms that place something between them)."""
+        if not self.context or not self.operations:
+            return (self,)
+        return replace(self, context=()), NoisyLayer((), (), 0.0, self.context)
+
+    @property
+    def sites(self) -> tuple[NoisyOperation, ...]:
+        """The operations, then the context errors: every error carrier of the layer, channel order."""
+        return self.operations + self.context if self.context else self.operations
+
+    def map_sites(self, f: Callable[[NoisyOperation], NoisyOperation], **changes) -> "NoisyLayer":
+        """The same layer with ``f`` applied to every operation and context error (and ``changes``)."""
+        return replace(self, operations=tuple(map(f, self.operations)), context=tuple(map(f, self.context)), **changes)
 
     def __hash__(self) -> int:
         return id(self)
@@ -243,7 +269,7 @@ class NoisyCircuit:
         return any(
             nop.has_incoherent or any(not r.is_trivial for r in layer.idle)
             for layer in self.distinct_layers()
-            for nop in layer.operations
+            for nop in layer.sites
         ) or any(not r.is_trivial for layer in self.distinct_layers() for r in layer.idle)
 
     @property
@@ -275,7 +301,7 @@ class NoisyCircuit:
         (their measurement errors are not looked at here)."""
         if self.has_mid_circuit:
             return True
-        coherent = any(nop.has_coherent for layer in self.distinct_layers() for nop in layer.operations)
+        coherent = any(nop.has_coherent for layer in self.distinct_layers() for nop in layer.sites)
         return coherent or self.has_incoherent
 
     def distinct_layers(self) -> list[NoisyLayer]:

@@ -15,14 +15,17 @@ becomes:
   probability γ and Z at (1 - c)/2 (c the dephasing factor); its Pauli twirl (p_x, p_y, p_z)
   (Tomita & Svore, Phys. Rev. A 90, 062320 (2014)) keeps the process fidelity exact.
 
-Engines that work with first-order generators (generators, clifford, pauli) read an operation's
-or an idle qubit's errors only through :func:`operation_errors`, :func:`idle_errors` (a
-:class:`SiteErrors`: the terms of one site grouped by kind, in channel order; ``terms()`` lists
-them one by one) and the helpers below (:func:`jump_operators`, :func:`stochastic_rates`,
-:func:`stochastic_process`). A new error
-mechanism is a new source of terms here (or a new term kind with its jump operators and twirl),
-not a change in every engine. The exact engine uses the exact channel of the same operation
-(:func:`budget.errors.fidelity.error_channel_kraus`).
+A layer's normal form (:func:`layer_errors`) is its sites in channel order: each operation's own
+errors (site i belongs to ``layer.operations[i]`` and acts right after its ideal gate), the idle
+qubits' relaxation, then the layer's context errors (drive crosstalk, spectator ZZ, pulse bleed
+into the next layer, :mod:`budget.errors.context_terms`), whose supports may overlap the
+operations' qubits and each other's. Every engine reads a layer's errors only through it: the
+ideal gates come from ``layer.operations``, the errors from the sites, one after the other
+(:class:`SiteErrors`: the terms of one site grouped by kind, in channel order; ``terms()`` lists
+them one by one), with the helpers below (:func:`jump_operators`, :func:`stochastic_rates`,
+:func:`stochastic_process`) and, for exact channels, :func:`budget.errors.fidelity.site_kraus`
+and the site's exact coherent ``unitary``. A new error mechanism is a new source of sites here
+(or a new term kind with its jump operators and twirl), not a change in any engine.
 
 >>> from budget.circuit.ir import Operation
 >>> import numpy as np
@@ -38,7 +41,7 @@ from typing import NamedTuple
 
 import numpy as np
 
-from budget.errors.noisy import IDLE, NoisyOperation, Relaxation
+from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
 from budget.pauli_algebra import pauli_labels, pauli_matrix
 
 _SIGMA_MINUS = np.array([[0, 1], [0, 0]], dtype=complex)
@@ -122,12 +125,18 @@ class SiteErrors(NamedTuple):
         stochastic: (label over the site, p_P) of the STOCHASTIC terms: the Pauli rates, then the
             depolarizing channel as every non-identity Pauli at λ/d².
         relaxation: the RELAXATION terms, each on its own qubit.
+        unitary: exp(-i Σ h_P P) of the HAMILTONIAN terms up to global phase, exactly as the model
+            built it (exact engines apply it without a matrix exponential); None: the identity.
+        groups: lengths of the consecutive Pauli channels that ``stochastic`` lists (the Pauli
+            rates, then the depolarizing channel), for exact channels; () means one channel.
     """
 
     source: Source
     hamiltonian: tuple[tuple[str, float], ...]
     stochastic: tuple[tuple[str, float], ...]
     relaxation: tuple[Relaxation, ...]
+    unitary: np.ndarray | None = None
+    groups: tuple[int, ...] = ()
 
     @property
     def qubits(self) -> tuple[int, ...]:
@@ -148,10 +157,58 @@ def operation_errors(nop: NoisyOperation) -> SiteErrors:
     of each of its qubits (the order of the channel, noisy.py)."""
     qs = nop.op.qubits
     sto = tuple(nop.pauli_rates.items())
+    groups = (len(sto),) if sto else ()
     if nop.depolarizing > 0:
         p = nop.depolarizing / 4 ** len(qs)
         sto += tuple((label, p) for label in pauli_labels(len(qs))[1:])
-    return SiteErrors(Source(nop.family, qs, nop), tuple(nop.hamiltonian.items()), sto, nop.relaxation)
+        groups += (len(sto) - sum(groups),)
+    return SiteErrors(Source(nop.family, qs, nop), tuple(nop.hamiltonian.items()), sto, nop.relaxation,
+                      nop.coherent, groups)
+
+
+def layer_errors(layer: NoisyLayer) -> tuple[SiteErrors, ...]:
+    """The layer's normal form: its sites in channel order (module docstring). The first
+    ``len(layer.operations)`` belong to the operations, in order; then the idle qubits that relax,
+    then the context errors."""
+    return (*map(operation_errors, layer.operations), *errors_after_gates(layer))
+
+
+def site_stages(sites: tuple[SiteErrors, ...]) -> tuple[int, ...]:
+    """Stage of each site (0, 1, ...; never decreasing): consecutive sites whose Hamiltonian terms
+    all commute share a stage, so that one exponential exp(-i Σ_stage h_P P) equals the product of
+    their unitaries in channel order. Commuting is tested qubit by qubit (on a qubit that two sites
+    share, every term of both carries the same letter), which is enough. A layer's operations
+    (disjoint) and idle qubits (no Hamiltonian terms) are always stage 0; a context error that does
+    not commute with what came before it opens a new stage. Engines that go beyond first order
+    apply the stages one after the other; to first order the stages do not matter.
+
+    >>> from budget.circuit.ir import Operation
+    >>> x = NoisyOperation(Operation("x", (0,)), "x", np.eye(2), {"X": 0.01})
+    >>> zz = NoisyOperation(Operation("id", (0, 1)), "zz", np.eye(4), {"ZI": 0.1, "IZ": 0.1, "ZZ": -0.1})
+    >>> z = NoisyOperation(Operation("id", (1,)), "z", np.eye(2), {"Z": 0.1})
+    >>> site_stages(tuple(map(operation_errors, (x, zz, z, x))))
+    (0, 1, 1, 2)
+    """
+    out: list[int] = []
+    stage, letters = 0, {}  # qubit -> the one letter the current stage's terms carry there ("" : several)
+    for site in sites:
+        mine: dict[int, str] = {}
+        for label, _ in site.hamiltonian:
+            for q, c in zip(site.qubits, label):
+                if c != "I":
+                    mine[q] = c if mine.get(q, c) == c else ""
+        if any(letters.get(q, c) != c or c == "" for q, c in mine.items() if q in letters):
+            stage, letters = stage + 1, {}
+        for q, c in mine.items():
+            letters[q] = c if letters.get(q, c) == c else ""
+        out.append(stage)
+    return tuple(out)
+
+
+def errors_after_gates(layer: NoisyLayer) -> tuple[SiteErrors, ...]:
+    """The sites of :func:`layer_errors` after the operations' own: idle relaxation, then context."""
+    idle = tuple(e for e in map(idle_errors, layer.idle) if e is not None)
+    return (*idle, *map(operation_errors, layer.context)) if layer.context else idle
 
 
 def idle_errors(r: Relaxation) -> SiteErrors | None:

@@ -11,8 +11,8 @@ Values are given per row of the quadratic form, (family, knob) -> δ in rad. The
 magnitude when they differ; each operation then gets δ · value_op / value_row (the same
 proportions as today), or δ itself when the row's value is zero today. Operations whose
 Hamiltonian has no knob generators form the knob ``"pauli"``: their Hamiltonian is scaled by δ.
-Context errors (spectator ZZ, crosstalk, bleed; budget/errors/context_layers.py) are one-knob
-pseudo-operations whose unitary is exp(-i value·K) exactly; they are rebuilt that way.
+Context errors (spectator ZZ, crosstalk, bleed; budget/errors/context_terms.py) are one-knob
+error sites of their layer whose unitary is exp(-i value·K) exactly; they are rebuilt that way.
 """
 
 from __future__ import annotations
@@ -102,7 +102,7 @@ def with_knob_values(circuit: NoisyCircuit, values: Mapping[tuple[str, str], flo
             if ObjectKey(it) not in items:
                 kind = kind_of(it, "retune")
                 if kind is Kind.LAYER:
-                    items[ObjectKey(it)] = dataclasses.replace(it, operations=tuple(operation(n) for n in it.operations))
+                    items[ObjectKey(it)] = it.map_sites(operation)
                 elif kind is Kind.REPEAT:
                     items[ObjectKey(it)] = NoisyRepeat(walk(it.body), it.count)
                 elif kind is Kind.IF:

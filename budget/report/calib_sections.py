@@ -11,7 +11,7 @@ import matplotlib.pyplot as plt
 import numpy as np
 
 from budget.analysis.compensate import engine_value, first_order_value
-from budget.errors.context_layers import knob_text
+from budget.errors.context_terms import knob_text
 from budget.report.blocks import Block, Figure, Heading, Para, Table
 from budget.report.content import fixed, minutes, num
 from budget.report.extras import Band, Extras

@@ -11,7 +11,7 @@ from rich.table import Table
 from rich.text import Text
 
 from budget.analysis.compensate import engine_value, first_order_value
-from budget.errors.context_layers import knob_text
+from budget.errors.context_terms import knob_text
 from budget.report.content import fixed
 
 CAUTION = "Numbers are model predictions, to be confirmed on the device; local lab practice decides."

@@ -23,7 +23,7 @@ from budget.analysis.run import analyze_noisy, read_circuit, read_model
 from budget.analysis.sensitivity import quadratic_form
 from budget.engines.base import MEASURED_METRICS
 from budget.errors.context_attach import model_notes
-from budget.errors.context_layers import knob_label
+from budget.errors.context_terms import knob_label
 from budget.problems import InputError, TooLargeError
 from budget.report.extras import gather_extras
 

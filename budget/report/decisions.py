@@ -19,7 +19,7 @@ from budget.analysis.calibration import CalibrationPlan
 from budget.analysis.sensitivity import Sensitivity
 from budget.analysis.tolerance_output import floor_message
 from budget.analysis.tolerances import NO_EFFECT, ToleranceReport
-from budget.errors.context_layers import knob_text
+from budget.errors.context_terms import knob_text
 from budget.report.fit import FitWidth
 from budget.report.content import fixed
 from budget.report.terminal import fmt

@@ -10,7 +10,7 @@ import math
 from budget.analysis.depth import CURVE_WORDS
 from budget.analysis.ratios import at_rounding_level
 from budget.analysis.result import naive_words
-from budget.errors.context_layers import knob_label, knob_text
+from budget.errors.context_terms import knob_label, knob_text
 from budget.report.blocks import Block, Figure, Heading, Para, Table, Tiles
 from budget.report.calib_sections import blocks as calibration_blocks
 from budget.report.content import CAUTION_WORDS, ENGINE_WORDS, ReportData, fixed, minutes, num, short_name, summary_words, verdict

@@ -6,7 +6,8 @@ coherent error is the time-ordered product
 
     E = Π_t e^{-i H_t}  (later layers to the left),   H_t = Σ_{terms of layer t} c P
 
-(the terms of one layer commute: disjoint operations, or one operation's single exponential).
+(the terms of one stage of a layer commute: disjoint operations, one operation's single exponential,
+or context errors that commute, :func:`budget.errors.normal_form.site_stages`; each stage is a factor).
 The Magnus series of E (Blanes, Casas, Oteo & Ros, Phys. Rep. 470, 151 (2009)) is summed here
 without truncation by multiplying the factors as dense matrices on their supports:
 
@@ -133,14 +134,13 @@ class AllOrdersSink:
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:
         b = self.count
         self.count += 1
-        got = self.sink.explicit_terms(layer, frame)
-        if got is None:
-            return
-        factors = self._layer_factors(*got)
-        if factors:
-            self.items.append((b, factors))
-            if sum(len(f) for _, f in self.items) > MAX_FACTORS:
-                raise OutOfReach("too many factors")
+        stages = self.sink.explicit_stages(layer, frame)  # one exponential per stage, in time order
+        for got in (stages if self.left else stages[::-1]):  # walk order (pull: forwards in time)
+            factors = self._layer_factors(*got)
+            if factors:
+                self.items.append((b, factors))
+                if sum(len(f) for _, f in self.items) > MAX_FACTORS:
+                    raise OutOfReach("too many factors")
 
     def fold(self, marks: list[int], count: int) -> None:
         """Repetitions k = 0..r-1 (batches marks[k]..marks[k+1]) stand for ``count`` repetitions:

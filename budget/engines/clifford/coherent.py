@@ -44,6 +44,7 @@ import stim
 
 from budget.engines.clifford.stim_circuit import Conditioned, as_pauli, to_stim
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyMeasure, NoisyReset
+from budget.errors.normal_form import layer_errors
 from budget.memo import ObjectKey
 from budget.pauli_algebra import commutes
 
@@ -141,12 +142,12 @@ def coherent_classes(circuit: NoisyCircuit, detectors: tuple[tuple[int, ...], ..
 def _has_amplitudes(item) -> bool:
     """Whether an item carries coherent errors or relaxation (marked for the pull-back)."""
     if isinstance(item, NoisyLayer):
-        return (any(n.has_coherent or any(not r.is_trivial for r in n.relaxation) for n in item.operations)
+        return (any(n.has_coherent or any(not r.is_trivial for r in n.relaxation) for n in item.sites)
                 or any(not r.is_trivial for r in item.idle))
     if isinstance(item, (NoisyMeasure, NoisyReset)):
         return any(not r.is_trivial for r in item.idle)
     if isinstance(item, Conditioned):
-        return any(n.has_coherent for b in (item.item.then, item.item.orelse) for layer in b for n in layer.operations)
+        return any(n.has_coherent for b in (item.item.then, item.item.orelse) for layer in b for n in layer.sites)
     return False
 
 
@@ -166,12 +167,13 @@ class _Classes:
             self.conditioned(inverse, item, total, ancilla[len(ancilla) - item.lookback])
             return
         if isinstance(item, NoisyLayer):
-            for nop in item.operations:
-                for label, h in nop.hamiltonian.items():
+            for e in layer_errors(item):  # the layer's normal form: operations, idle, context errors
+                for label, h in e.hamiltonian:
                     if h:
-                        self.term(inverse, nop.qubits, label, h, nop.family, total)
-                for r in nop.relaxation:
-                    self.jump(inverse, r, nop.family)
+                        self.term(inverse, e.qubits, label, h, e.source.family, total)
+                for r in e.relaxation:
+                    self.jump(inverse, r, e.source.family)
+            return
         for r in item.idle:
             self.jump(inverse, r, IDLE)
 
@@ -194,7 +196,7 @@ class _Classes:
         branch's gates (all Paulis), so a term anticommuting with k later gates of its branch
         changes sign (-1)^k."""
         for branch, v in ((item.item.then, item.want), (item.item.orelse, 1 - item.want)):
-            nops = [n for layer in branch for n in layer.operations]
+            nops = [n for layer in branch for n in layer.sites]  # context errors after their layer's gates
             later = [as_pauli(n.op) or {} for n in nops]
             for j, nop in enumerate(nops):
                 for label, h in nop.hamiltonian.items():

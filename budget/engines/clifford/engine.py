@@ -78,7 +78,7 @@ def _has_relaxation(circuit: NoisyCircuit) -> bool:
     return any(
         not r.is_trivial
         for layer in circuit.distinct_layers()
-        for r in (*layer.idle, *(r for nop in layer.operations for r in nop.relaxation))
+        for r in (*layer.idle, *(r for nop in layer.sites for r in nop.relaxation))
     )
 
 

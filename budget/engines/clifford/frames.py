@@ -75,7 +75,7 @@ class _Noise:
             return
         kind = kind_of(item, "measured frames (noise)")
         if kind is Kind.LAYER:
-            for nop in item.operations:
+            for nop in item.sites:  # operations, then context errors (error-only sites)
                 if not self.wants(nop.family):
                     continue
                 rest = _rest(nop) if self.amplitudes else nop
@@ -110,7 +110,7 @@ def families_of(circuit: NoisyCircuit) -> list[str]:
 
     for it, _ in counted(circuit.body, where="families_of"):
         if it.kind is Kind.LAYER:
-            out.extend(n.family for n in it.operations if n.has_coherent or n.has_incoherent)
+            out.extend(n.family for n in it.sites if n.has_coherent or n.has_incoherent)
             if any(not r.is_trivial for r in it.idle):
                 out.append(IDLE)
         elif it.kind in (Kind.MEASURE, Kind.RESET):

@@ -18,8 +18,9 @@ v in one period, the ordered pairs of their copies minus the reversed ones gives
 ω = q + 1 when both lie in the first s repetitions, q when both lie in the others, and 0 when u
 lies in the first s and v after them. So one walked period gives the block's whole second order,
 whatever N is; the block then stands as one item (its terms times w_k) for the pairs with what
-lies outside it. Terms of one layer commute (disjoint operations, or one operation's single
-exponential), so only pairs of different layers count.
+lies outside it. Terms of one stage of a layer commute (disjoint operations, one operation's single
+exponential, or context errors that commute: :func:`budget.errors.normal_form.site_stages`), so
+only pairs of different stages count; each stage is its own item, in time order.
 
 Cost: for each layer, its terms against the earlier terms of its level (one AND and popcount per
 64 qubits per pair); the engine runs this pass only when it is affordable (PAIR_BUDGET).
@@ -94,8 +95,8 @@ class SecondOrderSink:
         self.sink.emit(layer, frame)
         if self.too_costly:
             return
-        got = self.sink.explicit_terms(layer, frame)
-        if got is not None:
+        stages = self.sink.explicit_stages(layer, frame)
+        for got in (stages if self.sign > 0 else stages[::-1]):  # walk order
             self.rows += len(got[3]) * self.w
             if self.rows > ROW_BUDGET:
                 self.too_costly = True

@@ -26,7 +26,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from budget.circuit.walk import Kind, counted, kind_of
-from budget.errors.fidelity import error_channel_kraus
+from budget.errors.fidelity import site_kraus
+from budget.errors.normal_form import layer_errors
 from budget.errors.noisy import NoisyCircuit, NoisyIf, NoisyLayer
 from budget.memo import ObjectKey
 
@@ -167,13 +168,18 @@ class _Sim:
                 self.branch(it)
 
     def layer(self, layer: NoisyLayer) -> None:
-        for nop in layer.operations:
-            key = ObjectKey(nop)
+        """Each site of the layer's normal form in channel order (site i after the ideal gate of
+        operation i; idle relaxation and context errors after the gates)."""
+        ops = layer.operations
+        for i, errors in enumerate(layer_errors(layer)):
+            if errors.source.operation is None:  # idle relaxation
+                self.idle(errors.relaxation)
+                continue
+            key = ObjectKey(errors.source.operation)
             if key not in self.kraus_cache:
-                u = nop.op.unitary()
-                self.kraus_cache[key] = [k @ u for k in error_channel_kraus(nop)]
-            self.rho = self.apply(self.kraus_cache[key], nop.qubits, key)
-        self.idle(layer.idle)
+                kraus = site_kraus(errors)
+                self.kraus_cache[key] = [k @ ops[i].op.unitary() for k in kraus] if i < len(ops) else kraus
+            self.rho = self.apply(self.kraus_cache[key], errors.qubits, key)
 
     def idle(self, relax) -> None:
         for r in relax:

@@ -12,8 +12,9 @@ Tr(S_ideal† S)/d² for S = Σ_k K_k ⊗ conj(K_k) (Nielsen, Phys. Lett. A 303,
 superoperator is the Choi state of the doubled system reshuffled: the same 16^n numbers and the
 same work per gate, so the engine keeps the superoperator, which repeated blocks need anyway.
 
-Each operation's channel (ideal gate, coherent unitary, Pauli rates, depolarizing, relaxation;
-budget/errors/noisy.py) is one local matrix (:mod:`budget.engines.exact.local`; density
+Each site of a layer's normal form (budget/errors/normal_form.py: an operation's own errors after
+its ideal gate, idle relaxation, context errors) is one local matrix
+(:mod:`budget.engines.exact.local`; density
 matrices and superoperators are held in the real Pauli basis, channels as Pauli transfer
 matrices); consecutive
 matrices on at most two qubits are multiplied together before they touch the register
@@ -33,13 +34,7 @@ from typing import Callable
 import numpy as np
 
 from budget.circuit.walk import Kind, gate_kind
-from budget.engines.exact.local import (
-    PAULI_BASIS,
-    channel_superop,
-    gate_unitary,
-    pauli_transfer,
-    relaxation_superop,
-)
+from budget.engines.exact.local import PAULI_BASIS, pauli_transfer, site_channel, site_unitary
 from budget.engines.exact.plan import REPEAT_MODES, make_plan, refusal
 from budget.engines.exact.power import channel_power, unitary_power
 from budget.engines.exact.readout import expectation, from_pauli, infidelity
@@ -47,43 +42,48 @@ from budget.engines.exact.register import Fuser, Register
 from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, Engine, EngineResult, Metric, parse_observable, zero_result
 from budget.engines.details import DenseRun, Details, FamilySplit
 from budget.engines.exact.split import SHARE_METHOD, error_families, only_family, scaled_shares
-from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyOperation, NoisyRepeat, Relaxation
+from budget.circuit.ir import Operation
+from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
+from budget.errors.normal_form import SiteErrors, layer_errors
 from budget.memo import ObjectKey
 from budget.problems import TooLargeError
 
 
 class _Runner:
-    """Propagates one register through the circuit's items with one kind of local matrix."""
+    """Propagates one register through the circuit's items with one kind of local matrix: ``local``
+    maps a site of a layer's normal form and the ideal gate before it (None for sites after the
+    gates) to its matrix, or None when the site does nothing in this form."""
 
     def __init__(
         self,
         n: int,
         site_dim: int,
-        local: Callable[[NoisyOperation], np.ndarray],
-        idle: Callable[[Relaxation], np.ndarray] | None,
+        local: Callable[[SiteErrors, Operation | None], np.ndarray | None],
         powered: dict[ObjectKey, bool],
     ) -> None:
         self.n, self.s = n, site_dim
-        self._local, self._idle = local, idle
+        self._local = local
         self._powered = powered
-        self._cache: dict[tuple, np.ndarray] = {}
-        self._idle_cache: dict[tuple[float, float], np.ndarray] = {}
+        self._cache: dict[tuple, np.ndarray | None] = {}
+        self._layers: dict[ObjectKey, list[tuple[tuple[int, ...], np.ndarray]]] = {}
         self._powers: dict[ObjectKey, np.ndarray] = {}
         self.methods: set[str] = set()
 
-    def local(self, nop: NoisyOperation) -> np.ndarray:
-        key = _content_key(nop)
-        m = self._cache.get(key)
-        if m is None:
-            m = self._cache[key] = self._local(nop)
-        return m
-
-    def idle(self, relax: Relaxation) -> np.ndarray:
-        key = (relax.gamma, relax.dephasing_factor)
-        m = self._idle_cache.get(key)
-        if m is None:
-            m = self._idle_cache[key] = self._idle(relax)
-        return m
+    def layer(self, layer: NoisyLayer) -> list[tuple[tuple[int, ...], np.ndarray]]:
+        """(qubits, local matrix) of each site of the layer that acts, in channel order."""
+        hit = self._layers.get(ObjectKey(layer))
+        if hit is None:
+            hit = []
+            ops = layer.operations
+            for i, errors in enumerate(layer_errors(layer)):
+                gate = ops[i].op if i < len(ops) else None
+                key = _content_key(errors, gate)
+                if key not in self._cache:
+                    self._cache[key] = self._local(errors, gate)
+                if self._cache[key] is not None:
+                    hit.append((errors.qubits, self._cache[key]))
+            self._layers[ObjectKey(layer)] = hit
+        return hit
 
     def run(self, items: tuple[NoisyItem, ...], reg: Register) -> Register:
         fuser = Fuser(reg)
@@ -94,12 +94,8 @@ class _Runner:
     def _walk(self, items: tuple[NoisyItem, ...], reg: Register, fuser: Fuser) -> None:
         for it in items:
             if gate_kind(it, "exact engine") is Kind.LAYER:
-                for nop in it.operations:
-                    fuser.add(nop.qubits, self.local(nop))
-                if self._idle is not None:
-                    for r in it.idle:
-                        if not r.is_trivial:
-                            fuser.add((r.qubit,), self.idle(r))
+                for qubits, m in self.layer(it):
+                    fuser.add(qubits, m)
             elif self._powered.get(ObjectKey(it), False):
                 fuser.flush()
                 reg.apply_full(self._power(it))
@@ -122,19 +118,22 @@ class _Runner:
         return p
 
 
-def _content_key(nop: NoisyOperation) -> tuple:
-    """Operations with equal content share one local matrix (built once per run)."""
-    op = nop.op
+def _content_key(errors: SiteErrors, gate: Operation | None) -> tuple:
+    """Sites with equal content share one local matrix (built once per run): the ideal gate, the
+    error terms, and where on the site each relaxation acts."""
     return (
-        op.gate,
-        len(op.qubits),
-        op.params,
-        None if op.matrix is None else np.asarray(op.matrix).tobytes(),
-        np.asarray(nop.coherent).tobytes(),
-        tuple(sorted(nop.pauli_rates.items())),
-        nop.depolarizing,
-        tuple((r.qubit == op.qubits[0], r.gamma, r.dephasing_factor) for r in nop.relaxation),
+        None if gate is None else (gate.gate, gate.params, None if gate.matrix is None else np.asarray(gate.matrix).tobytes()),
+        len(errors.qubits),
+        None if errors.unitary is None else np.asarray(errors.unitary).tobytes(),
+        errors.stochastic,
+        errors.groups,
+        tuple((errors.qubits.index(r.qubit), r.gamma, r.dephasing_factor) for r in errors.relaxation),
     )
+
+
+def _channel(errors: SiteErrors, gate: Operation | None) -> np.ndarray:
+    """The site's channel as a real Pauli transfer matrix (:mod:`budget.engines.exact.local`)."""
+    return pauli_transfer(site_channel(errors, gate), len(errors.qubits))
 
 
 class ExactEngine(Engine):
@@ -191,19 +190,13 @@ class ExactEngine(Engine):
             raise TooLargeError(f"{circuit.source}: engine exact: {reason}")
         if not circuit.has_errors:
             return zero_result(self.name, metric, observables, first_order=None)
-        ideal_runner = _Runner(n, 2, lambda nop: gate_unitary(nop, ideal=True), None, plan.ideal_powered)
+        ideal_runner = _Runner(n, 2, lambda e, gate: site_unitary(e, gate, ideal=True), plan.ideal_powered)
         ideal = self._propagate(ideal_runner, circuit, 2, plan.columns > 1)
         if plan.site_dim == 2:
-            runner = _Runner(n, 2, lambda nop: gate_unitary(nop, ideal=False), None, plan.powered)
+            runner = _Runner(n, 2, lambda e, gate: site_unitary(e, gate, ideal=False), plan.powered)
             actual = self._propagate(runner, circuit, 2, plan.columns > 1)
         else:
-            runner = _Runner(
-                n,
-                4,
-                lambda nop: pauli_transfer(channel_superop(nop), len(nop.qubits)),
-                lambda r: pauli_transfer(relaxation_superop(r), 1),
-                plan.powered,
-            )
+            runner = _Runner(n, 4, _channel, plan.powered)
             actual = from_pauli(self._propagate(runner, circuit, 4, plan.columns > 1), n)
         value = infidelity(plan.form, actual, ideal, n)
         density = plan.site_dim == 4

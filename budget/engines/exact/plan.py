@@ -103,7 +103,7 @@ class _Costs:
         total = 0.0
         for it in items:
             if gate_kind(it, "exact engine plan") is Kind.LAYER:
-                for nop in it.operations:
+                for nop in it.sites:  # each operation and each context error of the layer: one site
                     total += size * self.s ** len(nop.qubits) + _OVERHEAD
                 if self.s == 4:
                     total += sum(size * 4 + _OVERHEAD for r in it.idle if not r.is_trivial)

@@ -38,7 +38,7 @@ def error_families(circuit: NoisyCircuit) -> tuple[str, ...]:
     slot relaxes."""
     seen: dict[str, None] = {}
     for layer in circuit.distinct_layers():
-        for nop in layer.operations:
+        for nop in layer.sites:
             if nop.has_coherent or nop.has_incoherent:
                 seen.setdefault(nop.family, None)
         if any(not r.is_trivial for r in layer.idle):
@@ -65,7 +65,7 @@ def only_family(circuit: NoisyCircuit, family: str) -> NoisyCircuit:
 
     def layer(it: NoisyLayer) -> NoisyLayer:
         idle = it.idle if family == IDLE else ()
-        return dataclasses.replace(it, operations=tuple(map(operation, it.operations)), idle=idle)
+        return it.map_sites(operation, idle=idle)
 
     def probe(it):  # the exact engine refuses mid-circuit items before it splits
         raise unsupported_item(it, "only_family (gate layers and repeats only)")

@@ -144,6 +144,15 @@ class GroupSink(_Batches):
         x, z, e = frame.image(term_slots(table, terms.site, terms.v, frame.n), terms.e0)
         return x, z, e, terms.coef, terms.tag
 
+    def explicit_stages(self, layer: NoisyLayer, frame: Frame) -> list[tuple]:
+        """:meth:`explicit_terms` split by the layer's stages, in time order (terms of one stage
+        commute; :func:`budget.errors.normal_form.site_stages`); empty without terms."""
+        got = self.explicit_terms(layer, frame)
+        if got is None:
+            return []
+        masks = self.builder.layer(layer).stages(self._terms(self.builder.layer(layer)))
+        return [got] if masks is None else [tuple(a[m] for a in got) for m in masks]
+
     def emit(self, layer: NoisyLayer, frame: Frame) -> None:
         b = self._new()
         table = self.builder.layer(layer)

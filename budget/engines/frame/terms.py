@@ -10,8 +10,10 @@ One operation's error (design.md §2) becomes, in the generator picture (Blume-K
 - unit terms: the first-order generator of each coherent knob (``knob_generators``), for the
   quadratic form.
 
-The terms are read from the layer's normal form (:mod:`budget.errors.normal_form`). A *site* is
-one operation of the layer, or one idle qubit that relaxes. Its four frame rows are
+The terms are read from the layer's normal form (:func:`budget.errors.normal_form.layer_errors`).
+A *site* is one site of it: an operation's own errors, an idle qubit that relaxes, or a context
+error (whose support may overlap the others'; at first order every site of a layer maps through
+the frame after the layer's gates, so their order does not matter here). Its four frame rows are
 [X_a, X_b, Z_a, Z_b] (2n where the site has one qubit), and a local Pauli is a 4-bit index
 v = x_a + 2 x_b + 4 z_a + 8 z_b with phase exponent e0 (the label's Y count): the operator
 i^e0 X_a^{x_a} X_b^{x_b} Z_a^{z_a} Z_b^{z_b}. Stochastic rates of a site form one row of 16.
@@ -25,8 +27,8 @@ from typing import Callable
 
 import numpy as np
 
-from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation, Relaxation
-from budget.errors.normal_form import hamiltonian, idle_errors, operation_errors, stochastic_rates
+from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation
+from budget.errors.normal_form import SiteErrors, hamiltonian, layer_errors, site_stages, stochastic_rates
 from budget.pauli_algebra import label_bits
 
 
@@ -63,6 +65,8 @@ class LayerTable:
         coherent: Hamiltonian terms.
         rates: (S, 16) stochastic rate of each local Pauli (column 0 unused).
         unit: knob unit terms (only when the quadratic form is asked for).
+        stage: (S,) stage of each site (:func:`budget.errors.normal_form.site_stages`); None when
+            the layer has one stage.
     """
 
     rows: np.ndarray
@@ -70,6 +74,14 @@ class LayerTable:
     coherent: SiteTerms
     rates: np.ndarray
     unit: SiteTerms | None = None
+    stage: np.ndarray | None = None
+
+    def stages(self, terms: SiteTerms) -> list[np.ndarray] | None:
+        """Masks of ``terms`` per stage in time order, or None when the layer has one stage."""
+        if self.stage is None:
+            return None
+        st = self.stage[terms.site]
+        return [st == k for k in range(int(self.stage[-1]) + 1) if np.any(st == k)]
 
 
 def _empty_terms() -> SiteTerms:
@@ -149,6 +161,7 @@ class TermBuilder:
             content = (
                 tuple(map(id, layer.operations)),
                 tuple((r.qubit, r.gamma, r.dephasing_factor) for r in layer.idle),
+                tuple(map(id, layer.context)),
             )
             hit = self._content.get(content)
             if hit is None:
@@ -157,8 +170,11 @@ class TermBuilder:
             self._alive.append(layer)
         return hit
 
-    def _op(self, nop: NoisyOperation) -> tuple:
+    def _site(self, errors: SiteErrors) -> tuple:
         """(source, qubit a, qubit b or -1, (v, e0, coef) of the Hamiltonian, 16 rates, unit terms)."""
+        nop = errors.source.operation
+        if nop is None:
+            return self._idle_site(errors)
         hit = self._ops.get(id(nop))
         if hit is not None:
             return hit
@@ -167,8 +183,7 @@ class TermBuilder:
             for lab, gen in self.grouping(nop):
                 idx = self.sources.labels.setdefault(lab, len(self.sources.labels))
                 unit.append((idx,) + _local(gen))
-        qs = nop.op.qubits
-        errors = operation_errors(nop)
+        qs = errors.qubits
         info = (
             self.sources.of_operation(nop, self.names),
             qs[0],
@@ -181,25 +196,31 @@ class TermBuilder:
         self._ops[id(nop)] = info
         return info
 
-    def _idle_site(self, r: Relaxation) -> tuple:
+    def _idle_site(self, errors: SiteErrors) -> tuple:
+        (r,) = errors.relaxation
         key = (r.qubit, r.gamma, r.dephasing_factor)
         if key not in self._idle:
-            rates = stochastic_rates(idle_errors(r))
-            self._idle[key] = (self.sources.of_idle(r.qubit, self.names), r.qubit, -1, _row16(rates))
+            self._idle[key] = (self.sources.of_idle(r.qubit, self.names), r.qubit, -1, _NO_TERMS,
+                               _row16(stochastic_rates(errors)), [])
         return self._idle[key]
 
     def _build(self, layer: NoisyLayer) -> LayerTable:
         n, none = self.n, 2 * self.n
-        ops = [self._op(nop) for nop in layer.operations]
-        sites = [(o[0], o[1], o[2], o[4]) for o in ops] + [self._idle_site(r) for r in layer.idle if not r.is_trivial]
+        errors = layer_errors(layer)
+        sites = [self._site(e) for e in errors]
+        stage = np.array(site_stages(errors), np.int64) if errors else None
         src = np.fromiter((t[0] for t in sites), np.int64, len(sites))
         qa = np.fromiter((t[1] for t in sites), np.int64, len(sites))
         qb = np.fromiter((t[2] for t in sites), np.int64, len(sites))
-        rates = np.array([t[3] for t in sites]).reshape(-1, 16)
+        rates = np.array([t[4] for t in sites]).reshape(-1, 16)
         rows = np.stack([qa, np.where(qb >= 0, qb, none), n + qa, np.where(qb >= 0, n + qb, none)], axis=1)
-        coh = [(s, o[0]) + o[3] for s, o in enumerate(ops) if len(o[3][2])]
-        unit = [(s, idx, v, e0, c) for s, o in enumerate(ops) for idx, v, e0, c in o[5]]
-        return LayerTable(rows, src, _pack(coh), rates, _pack(unit) if self.with_unit else None)
+        coh = [(s, o[0]) + o[3] for s, o in enumerate(sites) if len(o[3][2])]
+        unit = [(s, idx, v, e0, c) for s, o in enumerate(sites) for idx, v, e0, c in o[5]]
+        return LayerTable(rows, src, _pack(coh), rates, _pack(unit) if self.with_unit else None,
+                          stage if stage is not None and stage[-1] > 0 else None)
+
+
+_NO_TERMS = _local({})
 
 
 def _pack(parts: list[tuple]) -> SiteTerms:

@@ -50,6 +50,7 @@ from budget.engines.matrices.apply import LocalOp, apply, conjugate, embed
 from budget.engines.matrices.channels import LayerContent
 from budget.engines.matrices.periodic import CycleBasis, cross_cycle_sum, cycle_basis, periodic_sum, principal_generator
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
+from budget.errors.normal_form import layer_errors
 from budget.memo import ObjectKey
 
 MAX_DENSE_QUBITS = 11
@@ -74,9 +75,19 @@ def local_commutator(ops: tuple[LocalOp, ...], dense: np.ndarray, num_qubits: in
 def _coherent(items: tuple[NoisyItem, ...]) -> bool:
     """Whether any operation of ``items`` (repeats included) has a coherent error."""
     return any(
-        any(nop.hamiltonian for nop in it.operations) if gate_kind(it, "generators engine") is Kind.LAYER else _coherent(it.body)
+        any(e.hamiltonian for e in layer_errors(it)) if gate_kind(it, "generators engine") is Kind.LAYER else _coherent(it.body)
         for it in items
     )
+
+
+def noisy_layer(state: np.ndarray, layer: NoisyLayer, n: int) -> np.ndarray:
+    """``state`` (vectors or matrices, last axis the register) after the coherent unitary of every
+    site of the layer's normal form that has Hamiltonian terms, in channel order (the ideal gates
+    already applied)."""
+    for e in layer_errors(layer):
+        if e.hamiltonian and e.unitary is not None:
+            state = apply(state, LocalOp.of(e.unitary, e.qubits), n)
+    return state
 
 
 def _exact_remainder(hs: np.ndarray, error: np.ndarray) -> tuple[np.ndarray, bool]:
@@ -179,11 +190,10 @@ class DensePropagator:
                     if noisy is not None:
                         noisy = apply(noisy, g, n)
                 if noisy is not None:
-                    for nop in item.operations:
-                        if nop.hamiltonian:
-                            noisy = apply(noisy, LocalOp.of(nop.coherent, nop.qubits), n)
-                new = [(key, sum(embed(h.matrix, h.qubits, n) for h in terms), 0.0) for key, terms in c.hamiltonians.items()]
-                hs = self._join(hs, keys, new, c.hamiltonians, c.generator)
+                    noisy = noisy_layer(noisy, item, n)
+                for hams, generator in c.stages:  # the terms of one stage commute (normal_form.site_stages)
+                    new = [(key, sum(embed(h.matrix, h.qubits, n) for h in terms), 0.0) for key, terms in hams.items()]
+                    hs = self._join(hs, keys, new, hams, generator)
             else:
                 inner, basis = self.repeat(item)
                 p = basis.power(item.count)

@@ -52,6 +52,7 @@ from budget.engines.generators.depth import RepeatSweep
 from budget.engines.matrices.periodic import coherent_infidelity
 from budget.errors.knobs import knob_grouping
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
+from budget.errors.normal_form import layer_errors
 from budget.problems import TooLargeError
 
 MAX_STATE_QUBITS = 16
@@ -154,9 +155,9 @@ class GeneratorsEngine(Engine):
         """
         n = circuit.num_qubits
         layers = circuit.distinct_layers()
-        groups = max(1, len({nop.family for layer in layers for nop in layer.operations if nop.hamiltonian}))
-        gates = sum(2 ** len(nop.qubits) for layer in layers for nop in layer.operations)
-        ops = sum(len(layer.operations) for layer in layers)
+        groups = max(1, len({e.source.family for layer in layers for e in layer_errors(layer) if e.hamiltonian}))
+        gates = sum(2 ** len(nop.qubits) for layer in layers for nop in layer.sites)
+        ops = sum(len(layer.sites) for layer in layers)
         repeats = _count_repeats(circuit.body)
         overhead = 3e4 * ops  # Python work per operation, in multiply-adds (as the exact engine counts it)
         if _needs_dense(circuit, metric):

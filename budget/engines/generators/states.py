@@ -26,8 +26,8 @@ from typing import Hashable
 import numpy as np
 
 from budget.circuit.walk import Kind, gate_kind
-from budget.engines.matrices.apply import LocalOp, apply
-from budget.engines.generators.dense import ContentOf, DensePropagator
+from budget.engines.matrices.apply import apply
+from budget.engines.generators.dense import ContentOf, DensePropagator, noisy_layer
 from budget.engines.matrices.periodic import CycleBasis, periodic_sum
 from budget.errors.noisy import NoisyCircuit
 
@@ -94,17 +94,14 @@ class StatePath:
         return psi
 
     def noisy_state(self) -> np.ndarray | None:
-        """ψ̃ = Ũ|0…0> with every operation's coherent error unitary after its gate (module
+        """ψ̃ = Ũ|0…0> with every site's coherent error unitary after the layer's gates (module
         docstring); None when a top-level item is a repeated block (its noisy power is not held)."""
         psi = np.zeros(2**self.n, dtype=complex)
         psi[0] = 1.0
         for item, seg in zip(self.items, self.segments):
             if isinstance(seg, _Block):
                 return None
-            psi = self._forward(seg, psi)
-            for nop in item.operations:
-                if nop.hamiltonian:
-                    psi = apply(psi, LocalOp.of(nop.coherent, nop.qubits), self.n)
+            psi = noisy_layer(self._forward(seg, psi), item, self.n)
         return psi
 
     def group_vectors(self) -> dict[Hashable, np.ndarray]:

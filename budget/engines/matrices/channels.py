@@ -1,7 +1,8 @@
 """First-order content of one layer: ideal gates, Hamiltonian generators, jump operators.
 
-The errors are read from the layer's normal form (:mod:`budget.errors.normal_form`). Each
-operation's error, to first order, is a small generator (Blume-Kohout et al., "A taxonomy of
+The errors are read from the layer's normal form (:func:`budget.errors.normal_form.layer_errors`:
+the operations' own errors, idle relaxation, context errors). Each site's error, to first order,
+is a small generator (Blume-Kohout et al., "A taxonomy of
 small Markovian errors", PRX Quantum 3, 020335 (2022)):
 
 - a Hamiltonian part H_op = Σ h_P P (the exact generator of the coherent unitary,
@@ -24,8 +25,8 @@ from typing import Callable, Iterable
 import numpy as np
 
 from budget.engines.matrices.apply import LocalOp, as_rows, fuse
-from budget.errors.noisy import IDLE, NoisyLayer, NoisyOperation
-from budget.errors.normal_form import idle_errors, jump_operators, operation_errors, relaxation_jumps, stochastic_process
+from budget.errors.noisy import NoisyLayer, NoisyOperation
+from budget.errors.normal_form import jump_operators, layer_errors, site_stages, stochastic_process
 from budget.pauli_algebra import pauli_sum
 
 Grouping = Callable[[NoisyOperation], Iterable[tuple[object, dict[str, float]]]]
@@ -71,8 +72,11 @@ class LayerContent:
         gate_list: the ideal gates one by one (fewer operations per element for dense matrices).
         hamiltonians: group key -> the group's Hamiltonian terms of this layer, fused into sums.
         generator: all groups' Hamiltonian terms of this layer, fused into sums.
-        jumps: jump operators, one set per operation (its relaxation embedded) and per idle qubit.
+        jumps: jump operators, one set per site (an operation's relaxation embedded in it).
         process_stochastic: family -> first-order process infidelity of the layer's stochastic part.
+        stages: (hamiltonians, generator) of each stage of the layer in time order
+            (:func:`budget.errors.normal_form.site_stages`: the terms of one stage commute), for
+            passes beyond first order; one stage, ``(hamiltonians, generator)``, for most layers.
     """
 
     gates: tuple[LocalOp, ...]
@@ -81,6 +85,7 @@ class LayerContent:
     generator: tuple[LocalOp, ...]
     jumps: tuple[JumpSet, ...]
     process_stochastic: dict[str, float]
+    stages: tuple[tuple[dict[object, tuple[LocalOp, ...]], tuple[LocalOp, ...]], ...] = ()
 
 
 def _jump_set(qubits, items: list[tuple[np.ndarray, float]], family: str) -> JumpSet:
@@ -94,31 +99,39 @@ def _jump_set(qubits, items: list[tuple[np.ndarray, float]], family: str) -> Jum
     )
 
 
+def _fused(terms: dict[object, list], n: int) -> tuple[dict[object, tuple[LocalOp, ...]], tuple[LocalOp, ...]]:
+    """(group key -> its terms fused into sums, all groups' terms fused into sums)."""
+    hams = {key: fuse(t, n, product=False) for key, t in terms.items()}
+    generator = fuse([t for ts in terms.values() for t in ts], n, product=False) if len(terms) > 1 else next(iter(hams.values()), ())
+    return hams, generator
+
+
 def layer_content(layer: NoisyLayer, num_qubits: int, grouping: Grouping = by_family) -> LayerContent:
     """Collect the first-order content of one layer of an n-qubit circuit (module docstring)."""
     n = num_qubits
     ideal = [(nop.op.unitary(), nop.qubits) for nop in layer.operations]
     gates = fuse(ideal, n, product=True)
+    sites = layer_errors(layer)
+    stage_of = site_stages(sites)
     terms: dict[object, list] = {}
+    per_stage: list[dict[object, list]] = [{} for _ in range(stage_of[-1] + 1 if stage_of else 1)]
     jumps: list[JumpSet] = []
     stoch: dict[str, float] = {}
-    for nop in layer.operations:
-        for key, h in grouping(nop):
+    for errors, stage in zip(sites, stage_of):
+        nop, family = errors.source.operation, errors.source.family
+        for key, h in grouping(nop) if nop is not None else ():
             if h:
-                terms.setdefault(key, []).append((pauli_sum(h), nop.qubits))
-        errors = operation_errors(nop)
+                term = (pauli_sum(h), errors.qubits)
+                terms.setdefault(key, []).append(term)
+                per_stage[stage].setdefault(key, []).append(term)
         if items := jump_operators(errors):
-            jumps.append(_jump_set(nop.qubits, items, nop.family))
+            jumps.append(_jump_set(errors.qubits, items, family))
         if s := stochastic_process(errors):
-            stoch[nop.family] = stoch.get(nop.family, 0.0) + s
-    for r in layer.idle:
-        if rj := relaxation_jumps(r):
-            jumps.append(_jump_set((r.qubit,), rj, IDLE))
-            stoch[IDLE] = stoch.get(IDLE, 0.0) + stochastic_process(idle_errors(r))
-    hams = {key: fuse(t, n, product=False) for key, t in terms.items()}
-    generator = fuse([t for ts in terms.values() for t in ts], n, product=False) if len(terms) > 1 else next(iter(hams.values()), ())
+            stoch[family] = stoch.get(family, 0.0) + s
+    hams, generator = _fused(terms, n)
+    stages = ((hams, generator),) if len(per_stage) == 1 else tuple(_fused(t, n) for t in per_stage)
     gate_list = tuple(LocalOp.of(m, qs) for m, qs in ideal)
-    return LayerContent(gates, gate_list, hams, generator, tuple(jumps), stoch)
+    return LayerContent(gates, gate_list, hams, generator, tuple(jumps), stoch, stages)
 
 
 def content_cache(num_qubits: int, grouping: Grouping = by_family) -> Callable[[NoisyLayer], LayerContent]:

@@ -149,7 +149,7 @@ class PlanBook:
     def _coherent(self, layer: NoisyLayer) -> Store:
         qa, qb, v, key, rows = [], [], [], [], []
         width = len(self.columns)
-        for nop in layer.operations:
+        for nop in layer.sites:  # the operations', then the context errors' terms (normal form order)
             qs = nop.qubits
             for group, h in self.grouping(nop):
                 col = self.columns[group]
@@ -181,7 +181,7 @@ class PlanBook:
         gen_qa, gen_qb, gen_maps = [], [], []
         kappa = 0.0
         stoch: dict[str, float] = {}
-        for nop in layer.operations:
+        for nop in layer.sites:  # the operations, then the context errors (normal form order)
             qs = nop.qubits
             qa, qb = qs[0], (qs[1] if len(qs) == 2 else -1)
             if s := operation_stochastic(nop):

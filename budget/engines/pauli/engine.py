@@ -89,14 +89,14 @@ class PassResult:
 
 
 def _families(circuit: NoisyCircuit) -> list[str]:
-    fams = dict.fromkeys(nop.family for layer in circuit.distinct_layers() for nop in layer.operations)
+    fams = dict.fromkeys(nop.family for layer in circuit.distinct_layers() for nop in layer.sites)
     if any(not r.is_trivial for layer in circuit.distinct_layers() for r in layer.idle):
         fams[IDLE] = None
     return list(fams)
 
 
 def _largest_coefficient(circuit: NoisyCircuit) -> float:
-    hs = [abs(c) for layer in circuit.distinct_layers() for nop in layer.operations for c in nop.hamiltonian.values()]
+    hs = [abs(c) for layer in circuit.distinct_layers() for nop in layer.sites for c in nop.hamiltonian.values()]
     return max(hs, default=0.0)
 
 
@@ -104,7 +104,7 @@ def _tag_scale(circuit: NoisyCircuit) -> float:
     """TAG_BALANCE x 2 sqrt(e) for e = Σ h² over executed operations (the coherent part without
     interference): a dropped coherent coefficient c moves the result by about 2 sqrt(e) |c|, and
     jump-tag rows, far more numerous, are held to TAG_BALANCE of that."""
-    e = sum(mult * sum(c * c for c in nop.hamiltonian.values()) for layer, mult in circuit.multiplicities() for nop in layer.operations)
+    e = sum(mult * sum(c * c for c in nop.hamiltonian.values()) for layer, mult in circuit.multiplicities() for nop in layer.sites)
     return TAG_BALANCE * 2 * float(np.sqrt(e)) if e > 0 else TAG_BALANCE
 
 
@@ -178,9 +178,9 @@ class PauliEngine(Engine):
         cap = float(min(4.0**min(n, 40), MAX_TERMS))
         per_layer = []
         for layer, mult in circuit.multiplicities():
-            new = sum(len(nop.hamiltonian) for nop in layer.operations)
+            new = sum(len(nop.hamiltonian) for nop in layer.sites)
             if metric == "state":  # jump tags: every local Pauli of an incoherent site
-                new += sum(4 ** len(nop.qubits) - 1 for nop in layer.operations if nop.has_incoherent)
+                new += sum(4 ** len(nop.qubits) - 1 for nop in layer.sites if nop.has_incoherent)
                 new += 3 * sum(1 for r in layer.idle if not r.is_trivial)
             sites = sum(1 for nop in layer.operations if not is_clifford(nop.op)) / max(n, 1)
             per_layer.append((new, sites, mult))

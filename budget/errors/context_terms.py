@@ -1,26 +1,27 @@
-"""Context errors as error-only pseudo-operations in zero-duration layers.
+"""Context errors as error sites of the layer they act in.
 
-Every engine already consumes layers of noisy operations, so a context error becomes one more
-operation whose ideal gate is the identity on its support and whose coherent part is the error
-(docs/error-model.md, "Context errors"). They sit in *context layers* (``NoisyLayer.context``) of
-zero duration, so they add no time and no idle relaxation. Around a circuit layer L (duration T,
-its longest operation) the order is::
+A context error is an error-only site: a :class:`~budget.errors.noisy.NoisyOperation` whose ideal
+gate is the identity on its support (any qubits, the operations' own included) and whose coherent
+part is the error. Attach puts them in ``NoisyLayer.context`` of their circuit layer; every engine
+reads them through the layer's normal form (:func:`budget.errors.normal_form.layer_errors`) like
+any other error term, with their own family and knob (docs/error-model.md, "Context errors").
+Around a circuit layer L (duration T, its longest operation) the order is::
 
-    ... L-1 | ctx(L-1) | bleed(L-1 -> L) | L: gates, their own errors | crosstalk(L) | zz(L) | bleed(L -> L+1) | L+1 ...
+    L: gates, their own errors, idle relaxation | crosstalk(L) | zz(L) | bleed(L -> L+1) | L+1 ...
 
 - **Spectator ZZ** on an unordered pair with rate ζ (kHz), in every layer where the pair is not
   the target of a two-qubit gate: U = diag(1, 1, 1, e^{iφ}), φ = 2π·ζ·T (the ``cphase``
-  convention), i.e. H = (φ/4)(ZI + IZ - ZZ). Pairs sharing a qubit cannot share a layer, so the
-  pairs are edge-coloured (greedy colouring of the line graph, networkx) into sub-layers; all ZZ
-  terms are diagonal and commute, so their order does not matter.
+  convention), i.e. H = (φ/4)(ZI + IZ - ZZ). All ZZ terms are diagonal and commute, so their
+  order (the sorted pairs) does not matter.
 - **Drive crosstalk** source -> target: a driven single-qubit gate G on the source rotates the
   target by f·θ_G about G's own axis (or about x, y, z): the over-rotation unitary of G with
   δ = f·θ_G (:func:`budget.circuit.gates.overrotation_unitary`), after the target's own gate.
-  Several sources onto one target: one sub-layer each, in the order of the source qubits.
-- **Pulse bleed** A -> B on qubit q: A in layer L-1 and B in layer L on q; a rotation by f·θ_A
-  about A's axis between the two layers (after L-1's context errors, before B).
+  Several sources onto one target: in the order of the source qubits.
+- **Pulse bleed** A -> B on qubit q: A in layer L and B in layer L+1 on q; a rotation by f·θ_A
+  about A's axis between the two layers (after L's crosstalk and ZZ, before B): the last error
+  sites of layer L.
 
-Knobs (for sensitivity and tolerances): ZZ pseudo-operations carry ``zz_rad_per_us`` = 2π·ζ·1 µs
+Knobs (for sensitivity and tolerances): ZZ error sites carry ``zz_rad_per_us`` = 2π·ζ·1 µs
 with generator (T / 1 µs)·{ZI: 1/4, IZ: 1/4, ZZ: -1/4}, so one value serves every layer duration
 and a tolerance converts to kHz as ζ = value / (2π·1 µs) (:func:`knob_in_lab_units`); crosstalk
 and bleed carry ``rotation``, the spilled angle f·θ in radians.
@@ -32,14 +33,13 @@ import dataclasses
 import math
 from typing import Mapping
 
-import networkx as nx
 import numpy as np
 
 from budget.circuit.gates import GATES, spec
 from budget.circuit.ir import Operation
 from budget.errors.context import ContextModel, Crosstalk
 from budget.errors.knobs import coherent_error
-from budget.errors.noisy import NoisyLayer, NoisyOperation
+from budget.errors.noisy import NoisyOperation
 from budget.errors.params import GateParams
 
 ZZ_KNOB = "zz_rad_per_us"
@@ -144,12 +144,12 @@ def rotation_angle(gate: str, params: tuple[float, ...]) -> float:
     return float(2 * math.atan2((b / phase).real, (a / phase).real)) % (2 * math.pi)
 
 
-def pseudo_operation(qubits: tuple[int, ...], kind: str, family: str, unitary: np.ndarray,
-                     hamiltonian: dict[str, float], knob: str, value: float, generator: dict[str, float],
-                     duration_ns: float) -> NoisyOperation:
-    """An error-only operation: ideal gate the identity, coherent part ``unitary``. Its
+def error_site(qubits: tuple[int, ...], kind: str, family: str, unitary: np.ndarray,
+               hamiltonian: dict[str, float], knob: str, value: float, generator: dict[str, float],
+               duration_ns: float) -> NoisyOperation:
+    """An error-only site: ideal gate the identity, coherent part ``unitary``, one knob. Its
     ``duration_ns`` is the time over which the error builds up (the layer for ZZ, the spilling
-    pulse for crosstalk and bleed), so that measuring it is priced right; its context layer lasts 0 ns."""
+    pulse for crosstalk and bleed), so that measuring it is priced right; it adds no time to its layer."""
     return NoisyOperation(
         op=Operation("unitary", qubits, label=kind, matrix=_EYE[len(qubits)]),
         family=family,
@@ -162,10 +162,10 @@ def pseudo_operation(qubits: tuple[int, ...], kind: str, family: str, unitary: n
 
 
 def zz_operation(pair: tuple[int, int], names: tuple[str, ...], zz_khz: float, duration_ns: float) -> NoisyOperation:
-    """The spectator-ZZ pseudo-operation of one pair for one layer duration."""
+    """The spectator-ZZ error site of one pair for one layer duration."""
     phi = zz_phase_rad(zz_khz, duration_ns)
     scale = duration_ns / 1000.0
-    return pseudo_operation(
+    return error_site(
         pair, "zz", f"zz {names[pair[0]]},{names[pair[1]]}",
         np.diag([1, 1, 1, np.exp(1j * phi)]).astype(complex),
         {p: c * phi for p, c in _CPHASE_GENERATOR.items()},
@@ -180,31 +180,14 @@ def spill_operation(qubit: int, family: str, kind: str, gate: str, params: tuple
     angle = fraction * rotation_angle(gate, params)
     gate_, params_ = (gate, params) if axis is None else ("r" + axis, (0.0,))
     ce = coherent_error(gate_, params_, GateParams(overrotation=angle), 1)
-    return pseudo_operation((qubit,), kind, family, ce.unitary, dict(ce.hamiltonian), SPILL_KNOB, angle,
+    return error_site((qubit,), kind, family, ce.unitary, dict(ce.hamiltonian), SPILL_KNOB, angle,
                             dict(ce.generators["overrotation"]), duration_ns)
 
 
-def edge_layers(pairs: list[tuple[int, int]]) -> list[list[tuple[int, int]]]:
-    """Pairs split into groups of disjoint pairs: a greedy colouring of the line graph (networkx,
-    smallest-last order, which gives 16 sub-layers per cycle of the 32 x 32 benchmark grid against 27
-    for largest-first); deterministic for a given order of ``pairs``."""
-    graph = nx.Graph()
-    graph.add_edges_from(pairs)
-    colours = nx.greedy_color(nx.line_graph(graph), strategy="smallest_last") if pairs else {}
-    out: dict[int, list[tuple[int, int]]] = {}
-    for e in pairs:
-        key = e if e in colours else e[::-1]
-        out.setdefault(colours[key], []).append(e)
-    return [out[c] for c in sorted(out)]
-
-
-def context_layer(ops: list[NoisyOperation]) -> NoisyLayer:
-    return NoisyLayer(tuple(ops), (), 0.0, context=True)
-
-
-def crosstalk_layers(noisy_ops, rules: dict[str, list[Crosstalk]], names: tuple[str, ...], index: dict[str, int]) -> list[NoisyLayer]:
-    """Drive-crosstalk sub-layers of one layer: ``noisy_ops`` its noisy operations, ``rules``
-    source name -> rules. Each target gets one pseudo-operation per driving neighbour, in source order."""
+def crosstalk_terms(noisy_ops, rules: dict[str, list[Crosstalk]], names: tuple[str, ...], index: dict[str, int]) -> list[NoisyOperation]:
+    """Drive-crosstalk error sites of one layer, in channel order: ``noisy_ops`` its noisy
+    operations, ``rules`` source name -> rules. Each target gets one site per driving neighbour,
+    in the order of the source qubits (the k-th spill of every target before the (k+1)-th)."""
     per_target: dict[int, list[NoisyOperation]] = {}
     for nop in sorted(noisy_ops, key=lambda o: o.qubits):
         op = nop.op
@@ -219,4 +202,4 @@ def crosstalk_layers(noisy_ops, rules: dict[str, list[Crosstalk]], names: tuple[
             per_target.setdefault(target, []).append(
                 spill_operation(target, family, "crosstalk", op.gate, op.params, rule.fraction, rule.axis, nop.duration_ns))
     depth = max((len(v) for v in per_target.values()), default=0)
-    return [context_layer([v[k] for _, v in sorted(per_target.items()) if k < len(v)]) for k in range(depth)]
+    return [v[k] for k in range(depth) for _, v in sorted(per_target.items()) if k < len(v)]
