@@ -299,10 +299,13 @@ class _Attacher:
         return base if self.family_by == "gate" else f"{base} {','.join(names)}"
 
 
-def _first_in(items: tuple, after: Layer | None = None, start: int = 0) -> Layer | None:
-    """The first gate layer that ``items[start:]`` run (``after`` when they run none): None when a
-    measurement, reset or if block comes first."""
-    for i in range(start, len(items)):
+_NOTHING = object()
+
+
+def _edge_layer(items: tuple, last: bool, start: int = 0):
+    """The first (``last``: the last) gate layer that ``items[start:]`` run; None when a
+    measurement, reset or if block comes first (last); _NOTHING when they run no item."""
+    for i in (range(len(items) - 1, start - 1, -1) if last else range(start, len(items))):
         it = items[i]
         kind = kind_of(it, "attach")
         if kind is Kind.LAYER:
@@ -310,21 +313,21 @@ def _first_in(items: tuple, after: Layer | None = None, start: int = 0) -> Layer
         if kind is not Kind.REPEAT:
             return None
         if it.body:
-            return _first_in(it.body)
-    return after
+            inner = _edge_layer(it.body, last)
+            return None if inner is _NOTHING else inner
+    return _NOTHING
+
+
+def _first_in(items: tuple, after: Layer | None = None, start: int = 0) -> Layer | None:
+    """The first gate layer that ``items[start:]`` run (``after`` when they run none)."""
+    found = _edge_layer(items, False, start)
+    return after if found is _NOTHING else found
 
 
 def _last_in(items: tuple) -> Layer | None:
-    """The last gate layer that ``items`` run: None when a measurement, reset or if block ends them."""
-    for it in reversed(items):
-        kind = kind_of(it, "attach")
-        if kind is Kind.LAYER:
-            return it
-        if kind is not Kind.REPEAT:
-            return None
-        if it.body:
-            return _last_in(it.body)
-    return None
+    """The last gate layer that ``items`` run (None when a measurement, reset or if block ends them)."""
+    found = _edge_layer(items, True)
+    return None if found is _NOTHING else found
 
 
 def _same(a: tuple, b: tuple) -> bool:

@@ -15,7 +15,7 @@ A gate's error depends on what happens around it. Four TOML sections describe th
                                     with (operations in the same layer), all_driven, gate keys
 
 This module only reads and checks them (:func:`parse_context`, called by the model parser); the
-pseudo-operations they become are built in :mod:`budget.errors.context_terms`.
+error sites they become are built in :mod:`budget.errors.context_terms`.
 """
 
 from __future__ import annotations

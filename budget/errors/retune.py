@@ -80,7 +80,7 @@ def with_knob_values(circuit: NoisyCircuit, values: Mapping[tuple[str, str], flo
             if nop.op.gate != "unitary" and all(_gate_knob(k) for k in knobs):
                 coh = coherent_error(nop.op.gate, nop.op.params, params_from_values(knobs), len(nop.qubits))
                 out = dataclasses.replace(nop, coherent=coh.unitary, hamiltonian=dict(coh.hamiltonian), knob_values=knobs)
-            else:  # context errors: exp(-i Σ_k value_k K_k), exact for their one-knob pseudo-operations
+            else:  # context errors: exp(-i Σ_k value_k K_k), exact for their one-knob error sites
                 h: dict[str, float] = {}
                 for k, gen in nop.knob_generators.items():
                     for p, c in gen.items():
