@@ -159,9 +159,9 @@ class TermBuilder:
         hit = self._layers.get(id(layer))
         if hit is None:
             content = (
-                tuple(map(id, layer.operations)),
+                tuple(map(id, layer.sites)),
+                len(layer.operations),
                 tuple((r.qubit, r.gamma, r.dephasing_factor) for r in layer.idle),
-                tuple(map(id, layer.context)),
             )
             hit = self._content.get(content)
             if hit is None:
