@@ -36,6 +36,7 @@ from pauli_cases import ising, ising_qasm
 from reference import random_noisy_circuit
 
 EXACT = PauliEngine(truncate=0.0)
+TAGS = PauliEngine(truncate=0.0, vector_qubits=0)  # state metric through pulled jump tags at any size
 FIRST = PauliEngine(truncate=0.0, second_order=False)
 GEN = GeneratorsEngine()
 OBS = ("Z0", "X1", "Z0Z1", "Y0X1")
@@ -86,6 +87,8 @@ def test_untruncated_equals_generators_engine(block):
             a, b = EXACT.run(c, metric), GEN.run(c, metric)
             assert a.first_order == pytest.approx(b.first_order, rel=1e-9), (seed, metric)
             assert a.details["truncation_bound"] == 0.0
+            if metric == "state" and c.num_qubits <= 6:  # the sparse path (jump tags) of large registers
+                assert TAGS.run(c, metric).first_order == pytest.approx(b.first_order, rel=1e-9), seed
             assert sum(a.shares.values()) == pytest.approx(a.infidelity, rel=1e-9, abs=1e-15)
         if seed % 3 == 0 and c.num_qubits <= 6:
             labels = tuple(o for o in OBS if max(map(int, "".join(ch if ch.isdigit() else " " for ch in o).split())) < c.num_qubits)
@@ -134,7 +137,9 @@ def test_ising_loop_against_cirq_state_vector(n, steps, scale):
     r = EXACT.run(c, "state")
     assert abs(r.first_order - exact) <= exact**1.5
     assert abs(r.infidelity - exact) <= exact**1.5
-    assert r.details["repeated_blocks"] == [{"count": steps, "mode": "cycles", "cycles_walked": steps}]
+    # n <= 16: read from the state vector in the middle frame, the loop cut at the meeting point
+    block = r.details["repeated_blocks"][0]
+    assert (block["count"], block["mode"], block.get("cut_at_meeting_point", False)) == (steps, "cycles", n <= 16)
 
 
 @pytest.mark.parametrize("seed", range(8))
@@ -152,8 +157,8 @@ def test_clifford_circuits_equal_the_clifford_engine(seed):
             assert a.shares[f] == pytest.approx(v, rel=1e-10, abs=1e-15)
 
 
-@pytest.mark.parametrize("metric", ["process", "state"])
-def test_truncation_bound_is_honest(metric):
+@pytest.mark.parametrize(("metric", "vq"), [("process", 16), ("state", 16), ("state", 0)])
+def test_truncation_bound_is_honest(metric, vq):
     for seed in range(6):
         c = _random(400 + seed, 5 + seed % 2)
         exact = EXACT.run(c, metric, observables=("Z0", "X1Z2"))
@@ -161,13 +166,13 @@ def test_truncation_bound_is_honest(metric):
         previous = None
         for k in range(1, 6):
             eps = h * 10.0 ** (-k / 2)
-            r = PauliEngine(truncate=eps).run(c, metric, observables=("Z0", "X1Z2"))
+            r = PauliEngine(truncate=eps, vector_qubits=vq).run(c, metric, observables=("Z0", "X1Z2"))
             bound = r.details["truncation_bound"]
             assert abs(r.first_order - exact.first_order) <= bound * (1 + 1e-9) + 1e-15
             for o in ("Z0", "X1Z2"):
                 ob = r.details["observable_truncation_bounds"][o]
                 assert abs(r.observable_errors[o] - exact.observable_errors[o]) <= ob * (1 + 1e-9) + 1e-15
-            half = PauliEngine(truncate=eps / 2).run(c, metric)
+            half = PauliEngine(truncate=eps / 2, vector_qubits=vq).run(c, metric)
             assert abs(half.first_order - r.first_order) <= bound * (1 + 1e-9) + 1e-15
             previous = bound
         assert previous is not None
@@ -257,12 +262,13 @@ def test_clifford_block_inside_a_non_clifford_circuit_is_folded_by_its_period(se
     outside = random_noisy_circuit(rng, num_qubits=n, num_layers=2, coherent_scale=0.01, incoherent=seed % 2 == 0)
     block = NoisyRepeat(tuple(clifford_layer(rng, n, scale=0.01, relaxation=seed % 2 == 0) for _ in range(2)), [37, 1001][seed % 2])
     c = NoisyCircuit(outside.qubits, (outside.body[0], block, outside.body[1]))
-    for metric in ("process", "state"):
-        a, b = EXACT.run(c, metric), GEN.run(c, metric)
+    for metric, engine in (("process", EXACT), ("state", EXACT), ("state", TAGS)):
+        a, b = engine.run(c, metric), GEN.run(c, metric)
         assert a.first_order == pytest.approx(b.first_order, rel=1e-9), metric
         mode = a.details["repeated_blocks"][0]
-        # the process metric cuts the block at its meeting point and folds each side by the period
-        walked = mode["period"] * (1 if metric == "state" else 2)
+        # the middle frame (process metric; state metric on small registers) cuts the block at its
+        # meeting point and folds each side by the period; the pulled sum (TAGS) folds it once
+        walked = mode["period"] * (1 if engine is TAGS else 2)
         assert mode["mode"] == "period" and mode["cycles_walked"] == walked < block.count
     if c.has_incoherent and block.count > 64:
         return  # the reference samples 64 repetitions of the incoherent observable sum beyond 64

@@ -100,6 +100,9 @@ def meet(items: tuple[NoisyItem, ...], make_sweep) -> SimpleNamespace:
         coh=Store.concat([first.coh, second.coh]).merged(),
         stochastic=stochastic,
         bound_l2=first.bound_l2 + second.bound_l2,
+        bound_l1=first.bound_l1 + second.bound_l1,
+        head=head,
+        tail=tail,
         terms_max=max(first.terms_max, len(first.coh) + second.terms_max),
         blocks=_joined(first, second),
     )

@@ -53,9 +53,10 @@ def group_amplitudes(coh: Store, *, state: bool, scale: np.ndarray | None = None
     return out[nonzero_x]
 
 
-def coherent_budget(coh: Store, stochastic: np.ndarray, *, state: bool) -> Budget:
-    """:class:`Budget` of the coherent sum (columns = sources) and the stochastic part per source."""
-    a = group_amplitudes(coh, state=state)
+def coherent_budget(coh: Store, stochastic: np.ndarray, *, state: bool, amplitudes: np.ndarray | None = None) -> Budget:
+    """:class:`Budget` of the coherent sum (columns = sources) and the stochastic part per source;
+    ``amplitudes``: the (G, K) group amplitudes when already known (:mod:`._vector`)."""
+    a = group_amplitudes(coh, state=state) if amplitudes is None else amplitudes
     tot = a.sum(axis=1)
     mag = np.abs(tot)
     shares = (np.conj(a) * tot[:, None]).real.sum(axis=0) if len(a) else np.zeros(coh.columns)

@@ -108,10 +108,12 @@ class Sweep:
         tag_scale: float = 1.0,
         deadline: float | None = None,
         second: bool = False,
+        carry_tags: bool = True,
     ):
         self.n, self.book, self.eps, self.scale = n, book, eps, scale
         self.tag_eps = eps * tag_scale
         self.pull = book.direction == "pull"
+        self.carry_tags = carry_tags  # False: jump expectations come from elsewhere (_vector)
         self.coh = Store.empty(n, len(scale))
         self.second = SecondOrder(n, len(scale), later_first=not self.pull) if second else None
         self.tags = Store.empty(n, 1)
@@ -198,7 +200,7 @@ class Sweep:
                 self.second.add(plan.coherent, self.coh)
             self.coh = Store.concat([self.coh, plan.coherent.copy()])
             added = True
-        if self.pull and plan.jump_sites:
+        if self.pull and self.carry_tags and plan.jump_sites:
             parts = [self.tags]
             for site in plan.jump_sites:
                 m = len(site.needed)

@@ -40,6 +40,7 @@ from budget.engines.pauli._store import Store
 from budget.engines.pauli._plan import PlanBook
 from budget.engines.pauli._readout import coherent_budget, first_order_bound, group_amplitudes, jump_costs, zero_readout
 from budget.engines.pauli._sweep import MAX_TERMS, OutOfTime, Sweep, TooManyTerms
+from budget.engines.pauli._vector import VECTOR_QUBITS, JumpValues, fits_vector, forward, input_amplitudes, zero_state
 from budget.circuit.clifford_check import is_clifford
 from budget.errors.knobs import knob_grouping
 from budget.errors.noisy import IDLE, NoisyCircuit
@@ -131,22 +132,26 @@ class PauliEngine(Engine):
     folds_repeats = False  # non-Clifford repeats are walked cycle by cycle (a fixed point ends them early)
 
     def __init__(self, *, truncate: float | None = None, target: float = TARGET, time_budget_s: float = TIME_BUDGET_S,
-                 second_order: bool = True):
+                 second_order: bool = True, vector_qubits: int = VECTOR_QUBITS):
         if truncate is not None and not (truncate >= 0 and np.isfinite(truncate)):
             raise InputError(f"truncate = {truncate!r}: expected a number >= 0 (0 keeps every term)")
         self.truncate, self.target, self.time_budget_s = truncate, target, time_budget_s
         self.second_order = second_order
+        self.vector_qubits = vector_qubits
+
+    def _with(self, **changes) -> "PauliEngine":
+        kw = dict(truncate=self.truncate, target=self.target, time_budget_s=self.time_budget_s,
+                  second_order=self.second_order, vector_qubits=self.vector_qubits)
+        return PauliEngine(**{**kw, **changes})
 
     def configure(self, *, truncate: float | None = None, **_ignored) -> "PauliEngine":
         """The same engine with another threshold (the CLI's ``--truncate``)."""
-        return PauliEngine(truncate=truncate, target=self.target, time_budget_s=self.time_budget_s,
-                           second_order=self.second_order)
+        return self._with(truncate=truncate)
 
     def brief(self) -> "PauliEngine":
         """The same engine with at most BRIEF_BUDGET_S for tightening the threshold (depth curves,
         twirled variants and ensembles run it many times)."""
-        return PauliEngine(truncate=self.truncate, target=self.target, time_budget_s=min(self.time_budget_s, BRIEF_BUDGET_S),
-                           second_order=self.second_order)
+        return self._with(time_budget_s=min(self.time_budget_s, BRIEF_BUDGET_S))
 
     def fits(self, circuit: NoisyCircuit, metric: Metric, observables: tuple[str, ...] = ()) -> str | None:
         """None unless the circuit has mid-circuit items (measurement, reset, if) or executes more
@@ -220,28 +225,37 @@ class PauliEngine(Engine):
         columns = {f: i for i, f in enumerate(families)}
         scale = np.ones(len(families))
         state = metric == "state"
-        if state:
+        vector = state and fits_vector(circuit, self.vector_qubits)
+        amplitudes = None
+        if state and not vector:
             book = PlanBook(n, "pull", by_family, columns, jumps=True, generators=bool(letters))
             sweep = Sweep(n, book, eps, scale=scale, observables=letters, deadline=deadline,
                           tag_scale=_tag_scale(circuit), kappa_total=_kappa_total(book, circuit) if letters else 0.0)
             sweep.run(circuit.body)
+            values = zero_readout(sweep.tags, sweep.tag_count)
+            costs, tag_bound = jump_costs(sweep.occurrences, values, sweep.tag_dropped)
+            drift = sweep.bound_l1
         else:
             sweep = meet(circuit.body, lambda way: Sweep(
                 n, PlanBook(n, way, by_family, columns, jumps=False, generators=False), eps, scale=scale, deadline=deadline))
-        if state:
-            values = zero_readout(sweep.tags, sweep.tag_count)
-            costs, tag_bound = jump_costs(sweep.occurrences, values, sweep.tag_dropped)
-            sto = np.array([costs.get(f, 0.0) for f in families])
+            tag_bound, drift = 0.0, sweep.bound_l2
+        if vector:  # small register: read-offs from the state vector (_vector)
+            jumps = JumpValues(PlanBook(n, "pull", by_family, columns, jumps=True, generators=False))
+            psi_mid = forward(sweep.head, zero_state(n), jumps)
+            forward(sweep.tail, psi_mid, jumps)
+            amplitudes = input_amplitudes(sweep.coh, sweep.head, psi_mid, n)
+            costs, tag_bound = jump_costs(jumps.occurrences, jumps.values, np.zeros(0))
             drift = sweep.bound_l1
+        if state:
+            sto = np.array([costs.get(f, 0.0) for f in families])
         else:
             sto = np.array([sweep.stochastic.get(f, 0.0) for f in families])
-            tag_bound, drift = 0.0, sweep.bound_l2
-        budget = coherent_budget(sweep.coh, sto, state=state)
+        budget = coherent_budget(sweep.coh, sto, state=state, amplitudes=amplitudes)
         bound = first_order_bound(budget.coherent, drift) + tag_bound
         obs, obs_bounds, terms, blocks = {}, {}, sweep.terms_max, list(sweep.blocks)
         if letters:
             osweep = sweep
-            if not state:
+            if not state or vector:
                 obook = PlanBook(n, "pull", lambda nop: [], {}, jumps=False, generators=True)
                 osweep = Sweep(n, obook, eps, scale=np.zeros(0), observables=letters, deadline=deadline,
                                kappa_total=_kappa_total(obook, circuit))
