@@ -54,6 +54,7 @@ class JumpSite:
         amp_re, amp_im: (J, 4^k) coefficients l_v of L.
         needed: local indices v ≠ 0 whose expectation value is needed.
         weight: (len(needed),) how strongly an error in <P_v> moves the cost (truncation threshold).
+        top: (J,) largest eigenvalue of each L†L (each jump's cost lies in [0, p · top]).
     """
 
     qa: int
@@ -65,6 +66,7 @@ class JumpSite:
     amp_im: np.ndarray
     needed: np.ndarray
     weight: np.ndarray
+    top: np.ndarray
 
 
 @dataclass(frozen=True)
@@ -102,7 +104,8 @@ def _jump_site(qa: int, qb: int, family: str, items: list[tuple[np.ndarray, floa
     needed = np.nonzero(nz[:, 1:].any(axis=0))[0] + 1
     absl = np.abs(lam)
     w = (rates[:, None] * (np.abs(dec) + 2 * absl * absl.sum(axis=1, keepdims=True))).sum(axis=0)
-    return JumpSite(qa, qb, family, rates, dec, lam.real.copy(), lam.imag.copy(), needed, w[needed])
+    top = np.linalg.eigvalsh(np.conj(np.swapaxes(ops, 1, 2)) @ ops)[:, -1]
+    return JumpSite(qa, qb, family, rates, dec, lam.real.copy(), lam.imag.copy(), needed, w[needed], top)
 
 
 class PlanBook:

@@ -81,8 +81,15 @@ def jump_costs(occurrences: list[tuple], values: np.ndarray, dropped: np.ndarray
     """(family -> first-order cost of every jump, bound on the cost's error from dropped tag rows).
 
     ``occurrences``: (JumpSite, first tag, multiplicity) per executed site (multiplicity > 1 for
-    sites of folded blocks); ``values``/``dropped``: per tag, the
-    read-off <P_v> and the l1 norm of its dropped rows (an upper bound on |error of <P_v>|)."""
+    sites of folded blocks); ``values``/``dropped``: per tag, the read-off <P_v> and the l1 norm d_v
+    of its dropped rows (|<P_v> - read-off| ≤ d_v: ‖Pauli‖_op = 1).
+
+    Bound per jump, the smaller of two rigorous ones: (i) first-order propagation with
+    δ_v = min(d_v, 1 + |v_v|) (a Pauli expectation lies in [-1, 1]): |Δm·e| ≤ Σ|m_v| δ_v and
+    |s² - s'²| ≤ D (2|s'| + D) with D = Σ|l_v| δ_v for s = Re or Im <L>; (ii) the exact cost
+    p (<L†L> - |<L>|²) is a variance, in [0, p λ_max(L†L)], so it differs from the reported c' by
+    at most max(|c'|, |p λ_max - c'|). Tags whose pulled sums were cut hard (d_v ≥ 1) cost at
+    most (ii)."""
     by_site: dict[ObjectKey, tuple] = {}
     for site, base, mult in occurrences:
         hit = by_site.setdefault(ObjectKey(site), (site, [], []))
@@ -102,12 +109,14 @@ def jump_costs(occurrences: list[tuple], values: np.ndarray, dropped: np.ndarray
         if len(dropped):
             d[:, site.needed] = dropped[np.minimum(tags, len(dropped) - 1)] * (tags < len(dropped))
         s_re, s_im = e @ site.amp_re.T, e @ site.amp_im.T  # (O, J)
-        cost = weight * site.rates * (e @ site.decay.T - s_re**2 - s_im**2)
-        costs[site.family] = costs.get(site.family, 0.0) + float(cost.sum())
+        per_jump = site.rates * (e @ site.decay.T - s_re**2 - s_im**2)
+        costs[site.family] = costs.get(site.family, 0.0) + float((weight * per_jump).sum())
         if d.any():
+            d = np.minimum(d, 1.0 + np.abs(e))
             d_re, d_im = d @ np.abs(site.amp_re).T, d @ np.abs(site.amp_im).T
-            err = d @ np.abs(site.decay).T + d_re * (2 * np.abs(s_re) + d_re) + d_im * (2 * np.abs(s_im) + d_im)
-            bound += float((weight * site.rates * err).sum())
+            err = site.rates * (d @ np.abs(site.decay).T + d_re * (2 * np.abs(s_re) + d_re) + d_im * (2 * np.abs(s_im) + d_im))
+            cap = np.maximum(np.abs(per_jump), np.abs(site.rates * site.top - per_jump))
+            bound += float((weight * np.minimum(err, cap)).sum())
     return costs, bound
 
 

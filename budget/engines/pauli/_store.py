@@ -77,11 +77,14 @@ class Store:
         return out if keep.all() else out.take(keep)
 
     def _keys(self) -> np.ndarray:
-        """(T, w) uint64 words that identify a row: x, z and key, or, when x and z fit in 32 bits
-        and the key is constant (the coherent sums on up to 32 qubits), the one word x + 2^32 z."""
-        if self.x.shape[1] == 1 and self.key[0] == self.key[-1] and np.all(self.key == self.key[0]):
-            if (self.x | self.z).max() < _LOW:
-                return self.x | (self.z << _SHIFT)
+        """(T, w) uint64 words that identify a row: x, z and key (left out when constant, as in
+        the coherent sums), or, when x and z fit in 32 bits and the key is constant (the coherent
+        sums on up to 32 qubits), the one word x + 2^32 z."""
+        constant = self.key[0] == self.key[-1] and np.all(self.key == self.key[0])
+        if constant and self.x.shape[1] == 1 and (self.x | self.z).max() < _LOW:
+            return self.x | (self.z << _SHIFT)
+        if constant:
+            return np.concatenate([self.x, self.z], axis=1)
         return np.concatenate([self.x, self.z, self.key.view(np.uint64)[:, None]], axis=1)
 
     def total(self, weights: np.ndarray | None = None) -> np.ndarray:
@@ -92,12 +95,13 @@ class Store:
 def group_equal(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(inverse index per row, one row of each group) of equal rows of a (T, w) uint64 array.
 
-    One word is its own key; wider rows are sorted by a 64-bit row hash (:func:`row_hash`), the
+    One word is its own key; wider rows are sorted by a 64-bit row hash (:func:`row_hash` of the
+    words folded in pairs, w_2i · C + w_2i+1 with C odd and random: half the words to mix), the
     rows that share a hash are checked against their group's representative, and the grouping is
     redone exactly with ``np.unique(axis=0)`` on a collision."""
     if len(keys) == 0:
         return np.zeros(0, np.int64), np.zeros(0, np.int64)
-    h = keys[:, 0] if keys.shape[1] == 1 else row_hash(keys)
+    h = keys[:, 0] if keys.shape[1] == 1 else row_hash(_folded(keys))
     order = np.argsort(h)
     hs = h[order]
     new = np.empty(len(h), bool)
@@ -113,6 +117,19 @@ def group_equal(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
             _, first, inv = np.unique(keys, axis=0, return_index=True, return_inverse=True)
             return inv.reshape(-1).astype(np.int64), first.astype(np.int64)
     return inv, first
+
+
+_FOLD = np.uint64(0x9E3779B97F4A7C15)  # odd (the 64-bit golden ratio constant)
+
+
+def _folded(keys: np.ndarray) -> np.ndarray:
+    """Words paired as w_2i · C + w_2i+1 (wrapping; a hash input only, never a key)."""
+    w = keys.shape[1]
+    if w < 4:
+        return keys
+    with np.errstate(over="ignore"):
+        out = keys[:, 0 : w - 1 : 2] * _FOLD + keys[:, 1:w:2]
+    return np.concatenate([out, keys[:, w - 1 :]], axis=1) if w % 2 else out
 
 
 def from_local(n: int, qa: np.ndarray, qb: np.ndarray, v: np.ndarray, key: np.ndarray, coef: np.ndarray) -> Store:

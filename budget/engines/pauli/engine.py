@@ -52,7 +52,7 @@ TIME_BUDGET_S = 60.0
 """Default wall time for tightening the threshold (the first pass always completes)."""
 START = 1e-2
 """First threshold, relative to the largest coherent coefficient of the circuit."""
-TAG_BALANCE = 0.1
+TAG_BALANCE = 10.0
 """Jump-tag threshold relative to the coherent one (measured on Ising loops: the two parts of the
 bound come out about equal, docs/benchmarks.md)."""
 BRIEF_BUDGET_S = 5.0
