@@ -9,7 +9,9 @@ Scenarios (figures recorded in docs/benchmarks.md, section "Pauli"):
 - ``growth``: 100 qubits, growing step counts at fixed thresholds (cost growth with steps) and
   the default threshold (bound / result reached);
 - ``versus``: 10 qubits x 10 steps, the generators engine against the pauli engine untruncated,
-  side by side in one process (ratio of wall times, difference of the first-order values);
+  side by side in one process (ratio of CPU times, difference of the first-order values);
+- ``frontier``: 100 qubits, growing step counts, each metric: fixed thresholds halved until the
+  bound is under 1 % of the result (one pass each, CPU time), until a pass passes 60 CPU seconds;
 - ``public``: every circuit of ../shared/qasm-public with 10-27 qubits and no measurement-dependent
   control, analysed with ``auto`` (engine chosen, time).
 
@@ -96,6 +98,27 @@ def versus() -> None:
               f"first order {g.first_order:.12g} vs {p.first_order:.12g} (relative {rel:.1e})", flush=True)
 
 
+def frontier(n: int = 100, limit_s: float = 60.0) -> None:
+    for metric, start, steps_list in (("state", 1e-6, (2, 3, 4, 5, 6, 8)), ("process", 2e-5, (10, 14, 16, 18, 20, 22))):
+        eps = start
+        for steps in steps_list:
+            c = ising(n, steps)
+            while True:
+                t = _clock()
+                try:
+                    r = PauliEngine(truncate=eps, second_order=False).run(c, metric)
+                except TooLargeError as err:
+                    print(f"{n} x {steps} {metric} truncate={eps:.3g}: refused ({str(err)[:80]})", flush=True)
+                    break
+                cpu = time.process_time() - t[1]
+                print(_line(f"{n} x {steps} {metric} truncate={eps:.3g}", r, t), flush=True)
+                if r.details["truncation_bound"] <= 0.01 * r.first_order or cpu > limit_s:
+                    break
+                eps /= 2
+            if cpu > limit_s:
+                break
+
+
 def public() -> None:
     from budget.analysis.run import analyze
     from budget.circuit.load import load_circuit
@@ -120,7 +143,7 @@ def public() -> None:
             print(f"{path.name}: {sc.num_qubits} qubits, refused: {str(err)[:120]}")
 
 
-SCENARIOS = {"scale": scale, "growth": growth, "versus": versus, "public": public}
+SCENARIOS = {"scale": scale, "growth": growth, "versus": versus, "frontier": frontier, "public": public}
 
 if __name__ == "__main__":
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])

@@ -75,22 +75,32 @@ def rotate(s: Store, matrix: np.ndarray, axis: int, mask: np.ndarray) -> Store:
     ax, az, ak, ac, at = x[active], z[active], s.key[active], s.coef[active], touched[active]
     w = x.shape[1]
     while len(ak):
-        rows = np.arange(len(ak))
-        wi = np.argmax(at != 0, axis=1) if w > 1 else np.zeros(len(ak), np.int64)
-        r = at[rows, wi]
-        low = r & (~r + _ONE)
-        at[rows, wi] = r ^ low
+        # the lowest touched bit of each row as a one-bit mask over its words (no gathers)
+        if w == 1:
+            low = at & (~at + _ONE)
+        else:
+            nz = at != 0
+            first = nz & (np.cumsum(nz, axis=1) == 1)
+            low = np.where(first, at & (~at + _ONE), np.uint64(0))
+        at ^= low
         # which of the two letters the row has on that bit: the second (Y for Z and X axes, Z for Y)
-        letter = ((ax if axis == 1 else az)[rows, wi] & low) != 0
-        bx, bz = ax.copy(), az.copy()
-        if axis != 2:
-            bx[rows, wi] ^= low
-        if axis != 1:
-            bz[rows, wi] ^= low
+        letter = np.any((ax if axis == 1 else az) & low, axis=1) if w > 1 else ((ax if axis == 1 else az)[:, 0] & low[:, 0]) != 0
+        bx = ax ^ low if axis != 2 else ax
+        bz = az ^ low if axis != 1 else az
         letter_i = letter.astype(np.int64)
         bc = ac * new[letter_i][:, None]
         ac = ac * keep[letter_i][:, None]
-        both = Store(*(np.concatenate(pair) for pair in ((ax, bx), (az, bz), (ak, ak), (ac, bc))))
+        # both branches keep the same touched bits left (the toggle stays within the touched
+        # letters): rows with none left are done (merged later by the caller's tidy step)
+        left = np.any(at != 0, axis=1) if w > 1 else at[:, 0] != 0
+        if not left.all():
+            out = ~left
+            done.append(Store(ax[out], az[out], ak[out], ac[out]))
+            done.append(Store(bx[out], bz[out], ak[out], bc[out]))
+            ax, az, ak, ac, at, bx, bz, bc = ax[left], az[left], ak[left], ac[left], at[left], bx[left], bz[left], bc[left]
+        if not len(ak):
+            break
+        both = Store(np.concatenate([ax, bx]), np.concatenate([az, bz]), np.concatenate([ak, ak]), np.concatenate([ac, bc]))
         at = np.concatenate([at, at])
         if len(both) > MERGE_ROWS:
             inv, first = group_equal(both._keys())
@@ -99,8 +109,5 @@ def rotate(s: Store, matrix: np.ndarray, axis: int, mask: np.ndarray) -> Store:
                 for k in range(both.columns):
                     coef[:, k] = np.bincount(inv, weights=both.coef[:, k], minlength=len(first))
                 both, at = Store(both.x[first], both.z[first], both.key[first], coef), at[first]
-        left = np.any(at != 0, axis=1)
-        done.append(both.take(~left))
-        both, at = both.take(left), at[left]
         ax, az, ak, ac = both.x, both.z, both.key, both.coef
     return Store.concat(done)
