@@ -47,7 +47,7 @@ _PHASE = np.array([1, 1j, -1, -1j])
 
 def vector_work(circuit: NoisyCircuit) -> float:
     """2^n x (executed gates + executed operations and idle qubits that may carry jumps)."""
-    per = sum(m * (2 * len(layer.operations) + len(layer.idle)) for layer, m in circuit.multiplicities())
+    per = sum(m * (len(layer.operations) + len(layer.sites) + len(layer.idle)) for layer, m in circuit.multiplicities())
     return float(2**circuit.num_qubits) * per
 
 

@@ -40,7 +40,7 @@ from budget.engines.pauli._store import Store
 from budget.engines.pauli._plan import PlanBook
 from budget.engines.pauli._readout import coherent_budget, first_order_bound, group_amplitudes, jump_costs, zero_readout
 from budget.engines.pauli._sweep import MAX_TERMS, OutOfTime, Sweep, TooManyTerms
-from budget.engines.pauli._vector import VECTOR_QUBITS, JumpValues, fits_vector, forward, input_amplitudes, zero_state
+from budget.engines.pauli._vector import VECTOR_QUBITS, JumpValues, fits_vector, forward, input_amplitudes, vector_work, zero_state
 from budget.circuit.clifford_check import is_clifford
 from budget.errors.knobs import knob_grouping
 from budget.errors.noisy import IDLE, NoisyCircuit
@@ -69,6 +69,11 @@ GROWTH = 0.6
 grows about 2.5x per Trotter step and half at the default threshold)."""
 SECONDS_PER_ROW_LAYER = 3.5e-7
 """CPU seconds per row per walked layer (estimate_seconds; fitted to the 100-qubit, 14-step Ising loop)."""
+SECONDS_PER_AMPLITUDE = 1e-8
+"""CPU seconds per amplitude and gate or site of the small-register state vector (estimate_seconds)."""
+SECONDS_PER_VECTOR_STEP = 5e-4
+"""CPU seconds per gate or site step of the state vector whatever its size (numpy call overhead;
+the 10-qubit, 10-step Ising loop: 0.47 s for 800 steps)."""
 MAX_EXECUTED_LAYERS = 10**6
 """Executed layers walked at most (repeats run cycle by cycle unless folded)."""
 
@@ -111,6 +116,11 @@ def _tag_scale(circuit: NoisyCircuit) -> float:
 
 def _executed_layers(circuit: NoisyCircuit) -> int:
     return sum(m for _, m in circuit.multiplicities())
+
+
+def _vector_seconds(circuit: NoisyCircuit) -> float:
+    work = vector_work(circuit)
+    return work * SECONDS_PER_AMPLITUDE + work / 2**circuit.num_qubits * SECONDS_PER_VECTOR_STEP
 
 
 def _kappa_total(book: PlanBook, circuit: NoisyCircuit) -> float:
@@ -175,22 +185,24 @@ class PauliEngine(Engine):
         (state metric: its jump tags too) and multiplies R by 1 + GROWTH · s, s the non-Clifford
         sites of the layer per qubit (a rotation splits the rows it touches in two; rows spread
         over the light cone, so a share of them is touched), capped at min(4^n, MAX_TERMS). The
-        process metric walks each half of the depth (meeting point); repeats are counted in full
+        process metric (and the state metric on registers read from the state vector, which adds
+        its amplitude steps) walks each half of the depth (meeting point); repeats are counted in full
         (fixed points and folds are not foreseen, so the estimate errs long). Time = Σ R ·
         SECONDS_PER_ROW_LAYER. Calibrated on the Ising loop of docs/benchmarks.md ("Pauli"); an
         order of magnitude, not more."""
         n = circuit.num_qubits
         cap = float(min(4.0**min(n, 40), MAX_TERMS))
+        vector = metric == "state" and fits_vector(circuit, self.vector_qubits)
         per_layer = []
         for layer, mult in circuit.multiplicities():
             new = sum(len(nop.hamiltonian) for nop in layer.sites)
-            if metric == "state":  # jump tags: every local Pauli of an incoherent site
+            if metric == "state" and not vector:  # jump tags: every local Pauli of an incoherent site
                 new += sum(4 ** len(nop.qubits) - 1 for nop in layer.sites if nop.has_incoherent)
                 new += 3 * sum(1 for r in layer.idle if not r.is_trivial)
             sites = sum(1 for nop in layer.operations if not is_clifford(nop.op)) / max(n, 1)
             per_layer.append((new, sites, mult))
         total = 0.0
-        halves = (1,) if metric == "state" else (0.5, 0.5)
+        halves = (1,) if metric == "state" and not vector else (0.5, 0.5)
         for half in halves:
             rows = 0.0
             for new, sites, mult in per_layer:
@@ -200,7 +212,7 @@ class PauliEngine(Engine):
                     rows = min(cap, rows * growth + new)
                     total += rows
                 total += rows * max(0, count - 64)
-        return total * SECONDS_PER_ROW_LAYER + 0.05
+        return total * SECONDS_PER_ROW_LAYER + (_vector_seconds(circuit) if vector else 0.0) + 0.05
 
     def _check(self, circuit: NoisyCircuit, metric: Metric) -> None:
         if metric not in METRICS:
