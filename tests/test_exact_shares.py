@@ -18,6 +18,8 @@ from budget.analysis.run import analyze
 from budget.engines.base import Engine
 from budget.engines.door import ENGINE_NAMES, get_engine
 from budget.engines.exact import ExactEngine
+from budget.engines.exact import engine as engine_module
+from budget.engines.exact import runner as runner_module
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer
 from reference import cirq_infidelity, mapped, random_noisy_circuit
 
@@ -72,25 +74,37 @@ def test_one_family_takes_the_whole_value_without_another_run():
     assert engine.estimate_seconds(c, "process") == engine.brief().estimate_seconds(c, "process")
 
 
-def test_the_split_costs_one_run_per_family_and_brief_skips_it(monkeypatch):
+def test_the_split_costs_one_noisy_run_per_family_in_batches_and_the_ideal_once_and_brief_skips_it(monkeypatch):
+    """The stated cost (budget/engines/exact/engine.py): the joint noisy run, one noisy run per
+    family (the runs of one register form walk the circuit together as one batch), and the ideal
+    circuit propagated at most once per register form (unitary, Pauli)."""
     rng = np.random.default_rng(7)
     c = random_noisy_circuit(rng, num_qubits=2, num_layers=3)
     families = len(_families(c))
     assert families > 1
-    calls = []
-    real = ExactEngine.run
+    noisy: list[int] = []  # batch size of each noisy walk
+    ideal: list[int] = []  # site dimension of each ideal walk
+    real_noisy, real_ideal = engine_module.propagate, runner_module.propagate
 
-    def counted(self, circuit, metric, **kw):
-        calls.append(self.split)
-        return real(self, circuit, metric, **kw)
+    def counted_noisy(runner, circuit, operator):
+        noisy.append(runner.batch)
+        return real_noisy(runner, circuit, operator)
 
-    monkeypatch.setattr(ExactEngine, "run", counted)
-    full = ExactEngine().run(c, "state")
-    assert len(calls) == 1 + families and calls.count(False) == families  # the stated cost
-    calls.clear()
-    brief = ExactEngine().brief().run(c, "state")
-    assert len(calls) == 1 and brief.shares == {} and brief.infidelity == full.infidelity
-    assert ExactEngine().estimate_seconds(c, "state") > ExactEngine().brief().estimate_seconds(c, "state")
+    def counted_ideal(runner, circuit, operator):
+        ideal.append(runner.s)
+        return real_ideal(runner, circuit, operator)
+
+    monkeypatch.setattr(engine_module, "propagate", counted_noisy)
+    monkeypatch.setattr(runner_module, "propagate", counted_ideal)
+    for metric in ("state", "process"):
+        noisy.clear(), ideal.clear()
+        full = ExactEngine().run(c, metric)
+        assert noisy[0] == 1 and sum(noisy[1:]) == families and len(noisy) <= 3
+        assert 1 <= len(ideal) == len(set(ideal)) <= 2
+        noisy.clear(), ideal.clear()
+        brief = ExactEngine().brief().run(c, metric)
+        assert noisy == [1] and len(ideal) == 1 and brief.shares == {} and brief.infidelity == full.infidelity
+        assert ExactEngine().estimate_seconds(c, metric) > ExactEngine().brief().estimate_seconds(c, metric)
 
 
 @pytest.mark.parametrize("circuit, model, engine", [

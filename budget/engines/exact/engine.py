@@ -18,122 +18,108 @@ its ideal gate, idle relaxation, context errors) is one local matrix
 matrices and superoperators are held in the real Pauli basis, channels as Pauli transfer
 matrices); consecutive
 matrices on at most two qubits are multiplied together before they touch the register
-(:mod:`budget.engines.exact.register`). A repeated block (NoisyRepeat, nested allowed) is
+(:mod:`budget.engines.exact.register`), carried through the circuit by
+:mod:`budget.engines.exact.runner`. A repeated block (NoisyRepeat, nested allowed) is
 either unrolled or replaced by its block matrix to the power N (:mod:`budget.engines.exact.power`:
 Schur form for unitaries, eigendecomposition or squaring for channels), whichever is cheaper, so
 N = 10^9 costs what N = 2 costs. The metrics are read out by :mod:`budget.engines.exact.readout`.
 Family shares come from one more run per family with that family's errors alone, scaled to the
-joint value (:mod:`budget.engines.exact.split`); :meth:`ExactEngine.brief` skips them.
+joint value (:mod:`budget.engines.exact.split`); :meth:`ExactEngine.brief` skips them. The ideal
+circuit is the same in every one of these runs, so it is propagated once
+(:class:`budget.engines.exact.runner.Ideal`); the family runs of one form go through the circuit
+as one batch; a superoperator is read in the Pauli basis it is held in
+(F_pro = Tr(R_idealᵀ R)/d², :mod:`budget.engines.exact.readout`), never converted back whole.
 """
 
 from __future__ import annotations
 
-from functools import reduce
 from typing import Callable
 
 import numpy as np
 
 from budget.circuit.walk import Kind, gate_kind
-from budget.engines.exact.local import PAULI_BASIS, pauli_transfer, site_channel, site_unitary
-from budget.engines.exact.plan import REPEAT_MODES, make_plan, refusal
-from budget.engines.exact.power import channel_power, unitary_power
-from budget.engines.exact.readout import expectation, from_pauli, infidelity
-from budget.engines.exact.register import Fuser, Register
 from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, Engine, EngineResult, Metric, parse_observable, zero_result
 from budget.engines.details import DenseRun, Details, FamilySplit
-from budget.engines.exact.split import SHARE_METHOD, error_families, only_family, scaled_shares
+from budget.engines.exact.local import pauli_transfer, site_channel, site_unitary
+from budget.engines.exact.plan import FORMS, REPEAT_MODES, Plan, make_plan, refusal
+from budget.engines.exact.readout import expectation, from_pauli, infidelity, process_infidelity
+from budget.engines.exact.runner import Ideal, Runner, content_key, propagate, zero_state_pauli
+from budget.engines.exact.split import (
+    SHARE_METHOD,
+    error_families,
+    family_groups,
+    member_matrix,
+    only_family,
+    scaled_shares,
+)
 from budget.circuit.ir import Operation
-from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
-from budget.errors.normal_form import SiteErrors, layer_errors
-from budget.memo import ObjectKey
+from budget.errors.noisy import NoisyCircuit, NoisyItem
+from budget.errors.normal_form import SiteErrors
 from budget.problems import TooLargeError
 
+Local = Callable[[SiteErrors, Operation | None], np.ndarray | None]
+"""A site's local matrix from its errors and the ideal gate before it (None: the site does nothing)."""
 
-class _Runner:
-    """Propagates one register through the circuit's items with one kind of local matrix: ``local``
-    maps a site of a layer's normal form and the ideal gate before it (None for sites after the
-    gates) to its matrix, or None when the site does nothing in this form."""
-
-    def __init__(
-        self,
-        n: int,
-        site_dim: int,
-        local: Callable[[SiteErrors, Operation | None], np.ndarray | None],
-        powered: dict[ObjectKey, bool],
-    ) -> None:
-        self.n, self.s = n, site_dim
-        self._local = local
-        self._powered = powered
-        self._cache: dict[tuple, np.ndarray | None] = {}
-        self._layers: dict[ObjectKey, list[tuple[tuple[int, ...], np.ndarray]]] = {}
-        self._powers: dict[ObjectKey, np.ndarray] = {}
-        self.methods: set[str] = set()
-
-    def layer(self, layer: NoisyLayer) -> list[tuple[tuple[int, ...], np.ndarray]]:
-        """(qubits, local matrix) of each site of the layer that acts, in channel order."""
-        hit = self._layers.get(ObjectKey(layer))
-        if hit is None:
-            hit = []
-            ops = layer.operations
-            for i, errors in enumerate(layer_errors(layer)):
-                gate = ops[i].op if i < len(ops) else None
-                key = _content_key(errors, gate)
-                if key not in self._cache:
-                    self._cache[key] = self._local(errors, gate)
-                if self._cache[key] is not None:
-                    hit.append((errors.qubits, self._cache[key]))
-            self._layers[ObjectKey(layer)] = hit
-        return hit
-
-    def run(self, items: tuple[NoisyItem, ...], reg: Register) -> Register:
-        fuser = Fuser(reg)
-        self._walk(items, reg, fuser)
-        fuser.flush()
-        return reg
-
-    def _walk(self, items: tuple[NoisyItem, ...], reg: Register, fuser: Fuser) -> None:
-        for it in items:
-            if gate_kind(it, "exact engine") is Kind.LAYER:
-                for qubits, m in self.layer(it):
-                    fuser.add(qubits, m)
-            elif self._powered.get(ObjectKey(it), False):
-                fuser.flush()
-                reg.apply_full(self._power(it))
-            else:
-                for _ in range(it.count):
-                    self._walk(it.body, reg, fuser)
-
-    def _power(self, rep: NoisyRepeat) -> np.ndarray:
-        p = self._powers.get(ObjectKey(rep))
-        if p is None:
-            dtype = complex if self.s == 2 else float
-            block = self.run(rep.body, Register.identity(self.n, self.s, dtype)).canonical().copy()
-            if self.s == 2:
-                p, method = unitary_power(block, rep.count), "schur"
-            else:
-                p, method = channel_power(block, rep.count)
-                p = np.ascontiguousarray(p.real)  # a real Pauli transfer matrix
-            self.methods.add(method)
-            self._powers[ObjectKey(rep)] = p
-        return p
+BATCH_BYTES = 2**28
+"""Largest batch of family-split registers held at once (256 MiB with their buffers); a larger
+register runs its families one at a time."""
 
 
-def _content_key(errors: SiteErrors, gate: Operation | None) -> tuple:
-    """Sites with equal content share one local matrix (built once per run): the ideal gate, the
-    error terms, and where on the site each relaxation acts."""
-    return (
-        None if gate is None else (gate.gate, gate.params, None if gate.matrix is None else np.asarray(gate.matrix).tobytes()),
-        len(errors.qubits),
-        None if errors.unitary is None else np.asarray(errors.unitary).tobytes(),
-        errors.stochastic,
-        errors.groups,
-        tuple((errors.qubits.index(r.qubit), r.gamma, r.dephasing_factor) for r in errors.relaxation),
-    )
+def local_matrices(site_dim: int) -> Local:
+    """The noisy local matrix of a site of a layer's normal form in one register form, built once
+    per site content (:func:`budget.engines.exact.runner.content_key`) for a run and its
+    family-split runs: U_coh · U_ideal (site dimension 2; None for a site without a unitary part),
+    or the site's channel as a real Pauli transfer matrix (4)."""
+    if site_dim == 2:
+        build = lambda e, gate: site_unitary(e, gate, ideal=False)  # noqa: E731
+    else:
+        build = lambda e, gate: pauli_transfer(site_channel(e, gate), len(e.qubits))  # noqa: E731
+    built: dict[tuple, np.ndarray | None] = {}
+
+    def local(errors: SiteErrors, gate: Operation | None) -> np.ndarray | None:
+        key = content_key(errors, gate)
+        if key not in built:
+            built[key] = build(errors, gate)
+        return built[key]
+
+    return local
 
 
-def _channel(errors: SiteErrors, gate: Operation | None) -> np.ndarray:
-    """The site's channel as a real Pauli transfer matrix (:mod:`budget.engines.exact.local`)."""
-    return pauli_transfer(site_channel(errors, gate), len(errors.qubits))
+class _Locals:
+    """The local matrices of each register form, shared by a run and its family-split runs."""
+
+    def __init__(self) -> None:
+        self._forms: dict[int, Local] = {}
+
+    def get(self, site_dim: int) -> Local:
+        if site_dim not in self._forms:
+            self._forms[site_dim] = local_matrices(site_dim)
+        return self._forms[site_dim]
+
+
+def _read(form: str, actual: np.ndarray, ideal: Ideal, n: int) -> float:
+    """The raw infidelity of one run (budget/engines/exact/readout.py)."""
+    if form == "superop":
+        return process_infidelity(ideal.transfer(), actual, n)
+    if form == "density":
+        return infidelity(form, from_pauli(actual, n), ideal.unitary(), n)
+    return infidelity(form, actual, ideal.unitary(), n)
+
+
+def _observables(parsed: dict[str, dict[int, str]], form: str, actual: np.ndarray, ideal: Ideal,
+                 n: int) -> dict[str, float]:
+    """<O>_actual - <O>_ideal for input |0…0>: the first column of an operator, a state as it is."""
+    if not parsed:
+        return {}
+    if form == "superop":
+        v0 = zero_state_pauli(n)
+        out = from_pauli((actual @ v0)[:, None], n)[:, 0]
+        ref, ref_density = from_pauli((ideal.transfer() @ v0)[:, None], n)[:, 0], True
+    else:
+        out = from_pauli(actual, n)[:, 0] if form == "density" else actual[:, 0]
+        ref, ref_density = ideal.unitary()[:, 0], False
+    density = form in ("density", "superop")
+    return {label: expectation(out, p, n, density) - expectation(ref, p, n, ref_density) for label, p in parsed.items()}
 
 
 class ExactEngine(Engine):
@@ -190,22 +176,12 @@ class ExactEngine(Engine):
             raise TooLargeError(f"{circuit.source}: engine exact: {reason}")
         if not circuit.has_errors:
             return zero_result(self.name, metric, observables, first_order=None)
-        ideal_runner = _Runner(n, 2, lambda e, gate: site_unitary(e, gate, ideal=True), plan.ideal_powered)
-        ideal = self._propagate(ideal_runner, circuit, 2, plan.columns > 1)
-        if plan.site_dim == 2:
-            runner = _Runner(n, 2, lambda e, gate: site_unitary(e, gate, ideal=False), plan.powered)
-            actual = self._propagate(runner, circuit, 2, plan.columns > 1)
-        else:
-            runner = _Runner(n, 4, _channel, plan.powered)
-            actual = from_pauli(self._propagate(runner, circuit, 4, plan.columns > 1), n)
-        value = infidelity(plan.form, actual, ideal, n)
-        density = plan.site_dim == 4
-        out_state, ideal_state = actual[:, 0], ideal[:, 0]  # output for input |0…0>
-        obs = {
-            label: expectation(out_state, p, n, density) - expectation(ideal_state, p, n, False)
-            for label, p in parsed.items()
-        }
-        methods = sorted(ideal_runner.methods | runner.methods)
+        ideal = Ideal(circuit, plan.columns > 1, plan.ideal_powered, plan.powered)
+        matrices = _Locals()
+        actual, runner = self._actual(circuit, plan, matrices)
+        value = _read(plan.form, actual, ideal, n)
+        obs = _observables(parsed, plan.form, actual, ideal, n)
+        methods = sorted(ideal.methods | runner.methods)
         warnings = ()
         if any(r.count > 10**6 for r in _repeats(circuit.body)):
             warnings = ("repeat counts above 10^6: phases of the block power carry ~N·1e-16 rad of rounding",)
@@ -213,7 +189,7 @@ class ExactEngine(Engine):
         details = Details(dense=DenseRun(form=plan.form, repeat_methods=",".join(methods) or "none", raw_infidelity=value))
         shares: dict[str, float] = {}
         if self.split:
-            shares, split = self._shares(circuit, metric, total)
+            shares, split = self._shares(circuit, metric, total, ideal, matrices)
             details = details.with_records(split)
         return EngineResult(
             engine=self.name,
@@ -225,33 +201,50 @@ class ExactEngine(Engine):
             observable_errors=obs,
         )
 
+    @staticmethod
+    def _actual(circuit: NoisyCircuit, plan: Plan, matrices: _Locals) -> tuple[np.ndarray, Runner]:
+        """The noisy circuit propagated in the plan's form: (s^n, C), Pauli basis when s = 4."""
+        runner = Runner(circuit.num_qubits, plan.site_dim, matrices.get(plan.site_dim), plan.powered)
+        return propagate(runner, circuit, plan.columns > 1), runner
+
     def _split_engine(self) -> "ExactEngine":
         """The engine of the family-split runs: no split of its own, and in ``auto`` mode the
         cheaper of unrolling and a block power by the plan's estimate (the main run prefers a cheap
         block power so that its time does not depend on N; the split runs need only the value)."""
         return ExactEngine("cheapest" if self.repeats == "auto" else self.repeats, split=False)
 
-    def _shares(self, circuit: NoisyCircuit, metric: Metric, total: float) -> tuple[dict[str, float], FamilySplit]:
-        """Family shares by isolation (:mod:`budget.engines.exact.split`) and their record."""
+    def _shares(self, circuit: NoisyCircuit, metric: Metric, total: float, ideal: Ideal,
+                matrices: _Locals) -> tuple[dict[str, float], FamilySplit]:
+        """Family shares by isolation (:mod:`budget.engines.exact.split`) and their record: one
+        noisy run per family, the runs of one form in batches, each read against the joint
+        run's ideal."""
         families = error_families(circuit)
         if len(families) == 1:
             return {families[0]: total}, FamilySplit(SHARE_METHOD, 0, total)
-        one = self._split_engine()
-        isolated = {f: one.run(only_family(circuit, f), metric).infidelity for f in families}
+        # the powered blocks of the joint circuit as the split runs' mode chooses them
+        plan = make_plan(circuit, metric, self._split_engine().repeats)
+        isolated: dict[str, float] = {}
+        for incoherent, group in family_groups(circuit, families).items():
+            form, s, _, operator = FORMS[(incoherent, metric)]
+            n = circuit.num_qubits
+            member_bytes = 2 * (16 if s == 2 else 8) * float(s**n) * (s**n if operator else 1)
+            size = max(1, int(BATCH_BYTES // member_bytes))
+            for start in range(0, len(group), size):
+                batch = group[start:start + size]
+                for f, actual in zip(batch, self._batch(circuit, batch, s, operator, plan, matrices)):
+                    isolated[f] = float(np.clip(_read(form, actual, ideal, n), 0.0, 1.0))
+        isolated = {f: isolated[f] for f in families}
         return scaled_shares(isolated, total), FamilySplit(SHARE_METHOD, len(families), sum(isolated.values()))
 
     @staticmethod
-    def _propagate(runner: _Runner, circuit: NoisyCircuit, s: int, operator: bool) -> np.ndarray:
-        """Identity (operator forms) or |0…0> propagated through the circuit, as (s^n, C)."""
-        n = circuit.num_qubits
-        dtype = complex if s == 2 else float
-        if operator:
-            reg = Register.identity(n, s, dtype)
-        elif s == 2:  # |0…0>
-            reg = Register(np.eye(1, 2**n, dtype=dtype)[0], n, 2)
-        else:  # |0><0| = (1 + Z)/2 per qubit: Pauli coefficients (1, 0, 0, 1)/√2
-            reg = Register(reduce(np.kron, [PAULI_BASIS[:, 0].real] * n), n, 4)
-        return runner.run(circuit.body, reg).canonical()
+    def _batch(circuit: NoisyCircuit, batch: tuple[str, ...], s: int, operator: bool, plan: Plan,
+               matrices: _Locals) -> np.ndarray:
+        """The runs with each family of ``batch`` alone (only_family) in one walk: (B, s^n, C)."""
+        local = matrices.get(s)
+        runner = Runner(circuit.num_qubits, s, lambda e, gate: member_matrix(e, gate, batch, s, local),
+                        plan.powered if s == 4 else plan.ideal_powered, batch=len(batch))
+        out = propagate(runner, circuit, operator)
+        return out if len(batch) > 1 else out[None]
 
 
 def _repeats(items: tuple[NoisyItem, ...]):

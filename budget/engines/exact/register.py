@@ -11,6 +11,11 @@ A k-site matrix on adjacent axes p..p+k-1 is ``np.matmul(M, view)`` with
 view = t.reshape(s^p, s^k, rest): a batched product on a view, no transpose. Two-qubit operations
 on axes that are not adjacent move one axis next to the other (one copy) and the register
 remembers the new axis order instead of moving it back; ``canonical()`` restores qubit order.
+
+A register may hold a batch of B registers of the same shape side by side (a leading axis): a
+local matrix is then either one matrix for every member or a stack of B matrices, one per member,
+applied by one batched product (the exact engine's family-split runs go through the circuit
+together this way, :mod:`budget.engines.exact.engine`).
 """
 
 from __future__ import annotations
@@ -25,37 +30,42 @@ class Register:
 
     Args:
         data: flat array (complex, or real for Pauli-basis density matrices) of length
-            s**n * columns, qubit 0 most significant.
+            batch * s**n * columns, qubit 0 most significant.
         num_qubits: n.
         site_dim: s (2 or 4).
+        batch: B, the number of registers held side by side (module docstring).
     """
 
-    def __init__(self, data: np.ndarray, num_qubits: int, site_dim: int) -> None:
+    def __init__(self, data: np.ndarray, num_qubits: int, site_dim: int, batch: int = 1) -> None:
         self.n = num_qubits
         self.s = site_dim
-        self.columns = data.size // site_dim**num_qubits
+        self.batch = batch
+        self.columns = data.size // (batch * site_dim**num_qubits)
         self.t = np.ascontiguousarray(data).reshape(-1)
         self._buf = np.empty_like(self.t)
         self.order = list(range(num_qubits))  # axis position -> qubit
 
     @classmethod
-    def identity(cls, num_qubits: int, site_dim: int, dtype: type = complex) -> "Register":
-        d = site_dim**num_qubits
-        return cls(np.eye(d, dtype=dtype).reshape(-1), num_qubits, site_dim)
+    def identity(cls, num_qubits: int, site_dim: int, dtype: type = complex, batch: int = 1) -> "Register":
+        flat = np.eye(site_dim**num_qubits, dtype=dtype).reshape(-1)
+        return cls(np.tile(flat, batch) if batch > 1 else flat, num_qubits, site_dim, batch)
+
+    def _shape(self) -> tuple[int, ...]:
+        return (self.batch,) + (self.s,) * self.n + (self.columns,)
 
     def _swap_buffers(self) -> None:
         self.t, self._buf = self._buf, self.t
 
     def _move_axis(self, src: int, dst: int) -> None:
-        shape = (self.s,) * self.n + (self.columns,)
-        moved = np.moveaxis(self.t.reshape(shape), src, dst)
+        moved = np.moveaxis(self.t.reshape(self._shape()), src + 1, dst + 1)
         np.copyto(self._buf.reshape(moved.shape), moved)
         self._swap_buffers()
         q = self.order.pop(src)
         self.order.insert(dst, q)
 
     def apply(self, qubits: tuple[int, ...], matrix: np.ndarray) -> None:
-        """Multiply the register by ``matrix`` acting on ``qubits`` (in the matrix's site order)."""
+        """Multiply the register by ``matrix`` acting on ``qubits`` (in the matrix's site order);
+        a stack of B matrices acts member by member."""
         s = self.s
         if len(qubits) == 1:
             p = self.order.index(qubits[0])
@@ -69,30 +79,41 @@ class Register:
                 matrix = swap_sites(matrix, s)
             p = min(pa, pb)
         k = len(qubits)
-        view = self.t.reshape(s**p, s**k, -1)
+        if matrix.ndim == 3:  # one matrix per member
+            view = self.t.reshape(self.batch, s**p, s**k, -1)
+            matrix = matrix[:, None]
+        else:
+            view = self.t.reshape(self.batch * s**p, s**k, -1)
         np.matmul(matrix, view, out=self._buf.reshape(view.shape))
         self._swap_buffers()
 
     def canonical(self) -> np.ndarray:
-        """The array as (s^n, C) in qubit order (qubit 0 most significant); a view when possible."""
+        """The array as (s^n, C) in qubit order (qubit 0 most significant), (B, s^n, C) for a
+        batch; a view when possible."""
         if self.order != list(range(self.n)):
-            shape = (self.s,) * self.n + (self.columns,)
-            perm = [self.order.index(q) for q in range(self.n)] + [self.n]
+            shape = self._shape()
+            perm = [0] + [self.order.index(q) + 1 for q in range(self.n)] + [self.n + 1]
             np.copyto(self._buf.reshape(shape), self.t.reshape(shape).transpose(perm))
             self._swap_buffers()
             self.order = list(range(self.n))
-        return self.t.reshape(self.s**self.n, self.columns)
+        lead = (self.batch,) if self.batch > 1 else ()
+        return self.t.reshape(lead + (self.s**self.n, self.columns))
 
     def apply_full(self, matrix: np.ndarray) -> None:
-        """Multiply by a matrix on all n sites (e.g. a repeated block raised to its power)."""
+        """Multiply by a matrix on all n sites (e.g. a repeated block raised to its power), or by
+        a stack of B such matrices member by member."""
         data = self.canonical()
         np.matmul(matrix, data, out=self._buf.reshape(data.shape))
         self._swap_buffers()
 
 
 def swap_sites(matrix: np.ndarray, s: int) -> np.ndarray:
-    """The same two-site operator written with its two sites in the other order."""
-    return matrix.reshape(s, s, s, s).transpose(1, 0, 3, 2).reshape(s * s, s * s)
+    """The same two-site operator (or stack of them) written with its two sites in the other order."""
+    lead = matrix.shape[:-2]
+    return np.einsum("...abcd->...badc", matrix.reshape(lead + (s, s, s, s))).reshape(lead + (s * s, s * s))
+
+
+_EYE = {2: np.eye(2), 4: np.eye(4)}
 
 
 def _embed(matrix: np.ndarray, sites: tuple[int, ...], target: tuple[int, ...], s: int) -> np.ndarray:
@@ -101,10 +122,11 @@ def _embed(matrix: np.ndarray, sites: tuple[int, ...], target: tuple[int, ...], 
         return matrix
     if len(sites) == 2:
         return swap_sites(matrix, s)
-    eye = np.eye(s)
+    eye = _EYE[s]
+    shape = matrix.shape[:-2] + (s * s, s * s)
     if sites[0] == target[0]:  # matrix ⊗ 1
-        return (matrix[:, None, :, None] * eye[None, :, None, :]).reshape(s * s, s * s)
-    return (eye[:, None, :, None] * matrix[None, :, None, :]).reshape(s * s, s * s)  # 1 ⊗ matrix
+        return (matrix[..., :, None, :, None] * eye[:, None, :]).reshape(shape)
+    return (eye[:, None, :, None] * matrix[..., None, :, None, :]).reshape(shape)  # 1 ⊗ matrix
 
 
 class Fuser:

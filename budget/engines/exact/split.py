@@ -15,6 +15,9 @@ is e itself and nothing runs again.
 
 Cost: one exact run per family with errors, each in the form its own errors need (a family with
 only coherent errors runs as a state vector or unitary); the engine's time estimate counts them.
+The runs of one form go through the circuit together as one batch (:func:`family_groups`;
+budget/engines/exact/runner.py), each member with one family's errors on (:func:`member_matrix`),
+and all of them read their value against the joint run's ideal circuit, which they share.
 This is the one-at-a-time attribution of sensitivity analysis (Saltelli et al., "Global
 Sensitivity Analysis: The Primer", Wiley 2008, ch. 1; recalled from memory), with the parts
 rescaled to the joint value as the first-order engines rescale theirs.
@@ -23,11 +26,14 @@ rescaled to the joint value as the first-order engines rescale theirs.
 from __future__ import annotations
 
 import dataclasses
+from typing import Callable
 
 import numpy as np
 
+from budget.circuit.ir import Operation
 from budget.circuit.walk import unsupported_item
 from budget.memo import ObjectKey
+from budget.errors.normal_form import SiteErrors
 from budget.errors.noisy import IDLE, NoisyCircuit, NoisyLayer, NoisyOperation, map_items
 
 SHARE_METHOD = "isolation: each family's errors alone, scaled to the joint value"
@@ -46,6 +52,15 @@ def error_families(circuit: NoisyCircuit) -> tuple[str, ...]:
     return tuple(seen)
 
 
+def without_errors(nop: NoisyOperation) -> NoisyOperation:
+    """The operation with every error removed and its ideal gate kept."""
+    d = 2 ** len(nop.qubits)
+    return dataclasses.replace(
+        nop, coherent=np.eye(d, dtype=complex), hamiltonian={}, pauli_rates={}, depolarizing=0.0, relaxation=(),
+        knob_generators={}, knob_values={},
+    )
+
+
 def only_family(circuit: NoisyCircuit, family: str) -> NoisyCircuit:
     """``circuit`` with the errors of every family but ``family`` removed (ideal gates kept, so
     the ideal circuit is unchanged); repeats stay folded."""
@@ -56,11 +71,7 @@ def only_family(circuit: NoisyCircuit, family: str) -> NoisyCircuit:
             return nop
         out = cache.get(ObjectKey(nop))
         if out is None:
-            d = 2 ** len(nop.qubits)
-            out = cache[ObjectKey(nop)] = dataclasses.replace(
-                nop, coherent=np.eye(d, dtype=complex), hamiltonian={}, pauli_rates={}, depolarizing=0.0, relaxation=(),
-                knob_generators={}, knob_values={},
-            )
+            out = cache[ObjectKey(nop)] = without_errors(nop)
         return out
 
     def layer(it: NoisyLayer) -> NoisyLayer:
@@ -71,6 +82,31 @@ def only_family(circuit: NoisyCircuit, family: str) -> NoisyCircuit:
         raise unsupported_item(it, "only_family (gate layers and repeats only)")
 
     return NoisyCircuit(circuit.qubits, map_items(circuit.body, layer, probe), dict(circuit.readout_error), circuit.source)
+
+
+def family_groups(circuit: NoisyCircuit, families: tuple[str, ...]) -> dict[bool, tuple[str, ...]]:
+    """The families split by whether their errors alone are incoherent (``"idle"`` always is): the
+    runs of one group share a register form, so they run as one batch."""
+    incoherent = {IDLE}
+    for layer in circuit.distinct_layers():
+        incoherent.update(nop.family for nop in layer.sites if nop.has_incoherent)
+    groups = {flag: tuple(f for f in families if (f in incoherent) == flag) for flag in (False, True)}
+    return {flag: group for flag, group in groups.items() if group}
+
+
+def member_matrix(errors: SiteErrors, gate: Operation | None, families: tuple[str, ...], site_dim: int,
+                  matrix: Callable[[SiteErrors, Operation | None], np.ndarray | None]) -> np.ndarray | None:
+    """The stack of one site's local matrices across a batch of family runs: ``matrix`` of the site
+    for the member of its own family, of the site without its errors (its ideal gate only, as
+    :func:`only_family` leaves it) for the others; a site that does nothing in a member (None)
+    stands there as the identity. None when it does nothing in any member."""
+    clean = matrix(errors._replace(hamiltonian=(), stochastic=(), relaxation=(), unitary=None, groups=()), gate)
+    own = matrix(errors, gate) if errors.source.family in families else clean
+    if own is None and clean is None:
+        return None
+    eye = np.eye(site_dim ** len(errors.qubits))
+    own, clean = (eye if m is None else m for m in (own, clean))
+    return np.stack([own if f == errors.source.family else clean for f in families])
 
 
 def scaled_shares(isolated: dict[str, float], total: float) -> dict[str, float]:
