@@ -30,7 +30,7 @@ from budget.analysis.tolerances import tolerances
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
 from budget.errors.attach import attach
 from budget.errors.model import ErrorModel
-from budget.engines.door import escalate
+from budget.engines.escalation import escalate
 from budget.engines.base import EngineResult
 from budget.engines.clifford.engine import CliffordEngine
 from budget.engines.exact.engine import ExactEngine

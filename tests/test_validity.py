@@ -24,7 +24,7 @@ from typer.testing import CliRunner
 
 from budget.analysis.depth import depth_curve
 from budget.analysis.run import analyze, analyze_noisy
-from budget.engines.door import run_in_range
+from budget.engines.escalation import run_in_range
 from budget.circuit.ir import Layer, Operation, Repeat, StructuredCircuit
 from budget.cli import app
 from budget.engines import get_engine

@@ -28,7 +28,8 @@ from typing import Callable
 import numpy as np
 
 from budget.analysis.ratios import at_rounding_level
-from budget.engines.door import choose, exact_if_fits, sweep_engine
+from budget.engines.door import choose
+from budget.engines.escalation import exact_if_fits, sweep_engine
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.engines.base import MEASURED_METRICS
 from budget.engines.generators.engine import STOCHASTIC_LIMIT
@@ -113,7 +114,7 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, de
 
     ``auto`` on up to EXACT_CURVE_QUBITS qubits: the exact engine at every point (matrix powers, cheap
     at that size). Else, for the process metric, the engine's closed-form repeat sweep where the
-    front door has one for the request (:func:`budget.engines.door.sweep_engine`: the generators
+    front door has one for the request (:func:`budget.engines.escalation.sweep_engine`: the generators
     engine's periodic closed form, :class:`budget.engines.generators.depth.RepeatSweep`): one
     propagation of the cycle, then any N at O(d³), the same values as one engine run per N.
     Otherwise every point is one run of the chosen engine on the folded repeat (the exact engine

@@ -7,7 +7,7 @@ tens of seconds), so the runner keeps a deadline, and ``auto`` gives way to the 
 order (exact → clifford → generators) when one run would not let about :data:`RUNS_PER_PATTERN`
 evaluations fit into the planned time: by the engine's own estimate where it has one
 (``estimate_seconds``), else by the time the first run took. Which engine comes next is the front
-door's answer (:func:`budget.engines.door.quicker`, :func:`budget.engines.door.next_engine`).
+door's answer (:func:`budget.engines.escalation.quicker`, :func:`budget.engines.escalation.next_engine`).
 """
 
 from __future__ import annotations
@@ -17,7 +17,8 @@ from dataclasses import dataclass
 
 from budget.analysis.measured import detector_values, measured_values
 from budget.engines.base import MEASURED_METRICS
-from budget.engines.door import choose_engine, estimate_seconds, estimates, next_engine, quicker
+from budget.engines.door import choose_engine, estimate_seconds, estimates
+from budget.engines.escalation import next_engine, quicker
 from budget.errors.noisy import NoisyCircuit
 from budget.errors.retune import with_knob_values
 RUNS_PER_PATTERN = 8
@@ -91,7 +92,7 @@ def run_seconds(engine, circuit: NoisyCircuit, metric: str) -> float | None:
 
 def quick_enough(first, circuit: NoisyCircuit, metric: str, seconds: float, notes: list[str]):
     """``first``, or the engine the front door finds quick enough for ``seconds`` per run
-    (:func:`budget.engines.door.quicker`); a note when it changed."""
+    (:func:`budget.engines.escalation.quicker`); a note when it changed."""
     if metric in MEASURED_METRICS:
         return first
     engine, note = quicker(first, circuit, metric, seconds)
@@ -102,7 +103,7 @@ def quick_enough(first, circuit: NoisyCircuit, metric: str, seconds: float, note
 
 def faster(runner: TimedRunner, floor: float, circuit: NoisyCircuit, metric: str, zero: dict, max_seconds: float,
            notes: list[str]) -> tuple[TimedRunner, float]:
-    """The next engine of ``auto``'s order that fits (:func:`budget.engines.door.next_engine`),
+    """The next engine of ``auto``'s order that fits (:func:`budget.engines.escalation.next_engine`),
     when the first run of an engine without an estimate took more than half of ``max_seconds``."""
     slow = time.monotonic() - runner.start
     if metric in MEASURED_METRICS:  # MeasuredEngine already takes the exact engine only where it fits

@@ -38,7 +38,8 @@ from budget.circuit.ir import Operation
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyOperation
 from budget.problems import InputError, TooLargeError
 from budget.analysis.twirl import twirled_circuit
-from budget.engines.door import choose_engine, run_in_range
+from budget.engines.door import choose_engine
+from budget.engines.escalation import run_in_range
 
 FRAME = "frame"
 """Family name of the error-free frame operations."""

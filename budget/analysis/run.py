@@ -21,7 +21,8 @@ from budget.analysis.measured import analyze_measured
 from budget.analysis.result import BudgetResult, FamilyShare, ReadoutSummary, circuit_fields
 from budget.analysis.twirl import twirled_circuit
 from budget.engines.details import Choice
-from budget.engines.door import choose_engine, run_in_range, run_one
+from budget.engines.door import choose_engine
+from budget.engines.escalation import run_in_range, run_one
 from budget.circuit.ir import StructuredCircuit
 from budget.circuit.load import load_circuit
 from budget.engines.base import MEASURED_METRICS, METRICS, parse_observable

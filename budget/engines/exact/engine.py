@@ -38,7 +38,15 @@ from typing import Callable
 import numpy as np
 
 from budget.circuit.walk import Kind, gate_kind
-from budget.engines.base import METRICS, MULTIPLY_ADDS_PER_S, Engine, EngineResult, Metric, parse_observable, zero_result
+from budget.engines.base import (
+    METRICS,
+    MULTIPLY_ADDS_PER_S,
+    Engine,
+    EngineResult,
+    Metric,
+    parse_observable,
+    zero_result,
+)
 from budget.engines.details import DenseRun, Details, FamilySplit
 from budget.engines.exact.local import pauli_transfer, site_channel, site_unitary
 from budget.engines.exact.plan import FORMS, REPEAT_MODES, Plan, make_plan, refusal
