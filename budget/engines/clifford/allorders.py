@@ -34,12 +34,20 @@ and its inverse, on any number of independent qubits) are within reach.
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 
+from budget.engines.clifford.settings import Settings
+from budget.engines.details import QubitMap, Validity
+from budget.engines.frame.groups import Budget
 from budget.engines.frame.pauli_frame import Frame, unpack_bits
 from budget.engines.frame.sinks import GroupSink
+from budget.engines.frame.terms import Sources, TermBuilder
+from budget.engines.frame.walk import Walker
 from budget.engines.matrices.periodic import cycle_basis
-from budget.errors.noisy import NoisyLayer
+from budget.engines.orders import SECOND_ORDER_SHARE, cancellation_note, second_order_share
+from budget.errors.noisy import NoisyCircuit, NoisyLayer
 
 MAX_SUPPORT_QUBITS = 8
 """Largest number of qubits of one component (dense 256 x 256 matrices)."""
@@ -259,3 +267,72 @@ class AllOrdersSink:
             self.losses.append((qubits, loss))
             log_f += np.log1p(-min(loss, 1.0)) if loss < 1.0 else -np.inf
         return float(-np.expm1(log_f)) + 0.0
+
+
+# --- The engine's all-orders path (budget/engines/clifford/engine.py) ---
+
+
+def all_orders(engine: Settings, circuit: NoisyCircuit, metric: str, plans: dict, budget: Budget, first_sink: GroupSink,
+               validity: Validity, warnings: list) -> tuple[Budget, list, Validity]:
+    """The coherent part to all orders where every component of the error touches at most
+    MAX_SUPPORT_QUBITS qubits (budget/engines/clifford/allorders.py), with the (qubits,
+    infidelity) of each component; otherwise ``budget`` as it is and no components.
+
+    The coherent shares keep the split of the leading-order terms when those give the size
+    within a factor 2, else the split of the first-order term sizes Σ_t |a_t|² per source
+    (the leading order then rests on a cancellation that the higher orders decide)."""
+    direction = "pull" if metric == "state" else "push"
+    sink = AllOrdersSink(GroupSink(first_sink.builder, key="x" if metric == "state" else "xz"), direction)  # cached layer tables
+    walker = Walker(circuit.num_qubits, direction, sink, max_unrolled=engine.max_unrolled, plans=plans, orbit_baby=0)
+    try:
+        walker.run(circuit.body)
+        exact = sink.infidelity(metric)
+    except OutOfReach as why:
+        return budget, [], replace(validity, coherent_order=f"second (all orders out of reach: {why})")
+    how = f"components of at most {sink.largest} qubit{'s' if sink.largest != 1 else ''}"
+    validity = replace(validity, coherent_order=f"all orders ({how})",
+                       coherent_second_order_resummed=budget.coherent_resummed + 0.0)
+    warnings[:] = [w for w in warnings if "third order" not in w and "commutator" not in w]
+    if validity.second_order_share is not None:  # now the share of every order beyond the first
+        share = second_order_share(exact, validity.coherent_without_second_order)
+        validity = replace(validity, second_order_share=share, rests_on_cancellation=share > SECOND_ORDER_SHARE)
+        if note := cancellation_note(share, validity.cancellation, engine=engine.name, all_orders=how):
+            warnings.append(note)
+    lead = budget.coherent
+    if 0.5 * exact <= lead <= 2.0 * exact:
+        shares = budget.coherent_shares
+    else:
+        _, amps, tags = first_sink.coherent_terms()
+        sizes = np.bincount(tags, weights=np.abs(amps) ** 2, minlength=len(budget.coherent_shares))
+        shares = sizes * (lead / sizes.sum()) if sizes.sum() > 0 else np.zeros_like(sizes)
+        if lead <= 0:
+            shares, lead = sizes, float(sizes.sum())
+    return replace(budget, coherent=lead, coherent_shares=shares, coherent_resummed=exact), sink.losses, validity
+
+
+def all_orders_observables(engine: Settings, circuit: NoisyCircuit, obs: tuple, plans: dict) -> np.ndarray | None:
+    """Coherent change of each observable to all orders where the error's components touch
+    at most MAX_SUPPORT_QUBITS qubits (:meth:`AllOrdersSink.observables`), else None."""
+    m = circuit.num_qubits
+    sink = AllOrdersSink(GroupSink(TermBuilder(m, circuit.qubits, Sources()), key="x"), "pull")
+    try:
+        Walker(m, "pull", sink, max_unrolled=engine.max_unrolled, plans=plans, orbit_baby=0).run(circuit.body)
+        return sink.observables(obs, m)
+    except OutOfReach:
+        return None
+
+
+def loss_map(circuit: NoisyCircuit, losses: list) -> QubitMap:
+    """The per-qubit map of the coherent process infidelity of each error component, all orders
+    (the first-order map shows the cancelled order where the value rests on a cancellation)."""
+    landed = {name: 0.0 for name in circuit.qubits}
+    for qubits, loss in losses:
+        for q in qubits:
+            landed[circuit.qubits[q]] += loss / len(qubits)
+    return QubitMap(
+        qubit_map=landed,
+        qubit_map_quantity=(
+            "coherent process infidelity of the error component on each qubit, all orders "
+            "(a component of k qubits split evenly)"
+        ),
+    )

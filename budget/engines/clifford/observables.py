@@ -24,9 +24,18 @@ from __future__ import annotations
 
 import numpy as np
 
+from budget.engines.base import parse_observable
+from budget.engines.clifford.allorders import all_orders_observables
+from budget.engines.clifford.second import PAIR_BUDGET, SecondOrderSink
+from budget.engines.clifford.settings import Settings
 from budget.engines.frame.groups import group_rows
-from budget.engines.frame.pauli_frame import fingerprints
-from budget.pauli_algebra import hermitian_sign, popcount, row_product
+from budget.engines.frame.pauli_frame import fingerprints, num_words
+from budget.engines.frame.sinks import GroupSink, ObservableSink
+from budget.engines.frame.terms import Sources, TermBuilder
+from budget.engines.frame.walk import Walker
+from budget.errors.light_cone import light_cone_circuit
+from budget.errors.noisy import NoisyCircuit
+from budget.pauli_algebra import hermitian_sign, label_bits, popcount, row_product
 
 PHASE = np.array([1, 1j, -1, -1j])
 PAIR_LIMIT = 5_000_000
@@ -99,3 +108,78 @@ def observable_change(terms: tuple, obs: tuple) -> tuple[float, float | None]:
     except OverflowError:
         return linear, None
     return linear, float(total.real)
+
+
+# --- The engine's observable walks (budget/engines/clifford/engine.py) ---
+
+
+def observable_errors(
+    engine: Settings, circuit: NoisyCircuit, labels: tuple[str, ...], *, prune: bool | None = None, _plans: dict | None = None
+) -> dict[str, float]:
+    """First-order change of <O> for each Pauli observable (``"Z0Z1"``, ``"X3 Y4"``).
+
+    δ<O> = i<ψ|[H_total, O]|ψ> for the coherent part and -2 p <O> for each stochastic Pauli
+    that anticommutes with O. Each observable is walked on its backward light cone unless
+    ``prune`` is False; observables whose cone is the whole circuit share one walk.
+    """
+    prune = engine.prune_observables if prune is None else prune
+    parsed = {label: parse_observable(label, circuit.qubits) for label in labels}
+    out: dict[str, float] = {}
+    whole: list[str] = []
+    for label, paulis in parsed.items():
+        if prune:
+            sub, kept = light_cone_circuit(circuit, set(paulis))
+            if len(kept) < circuit.num_qubits:
+                index = {q: i for i, q in enumerate(kept)}
+                out.update(_observables(engine, sub, {label: {index[q]: p for q, p in paulis.items()}}, {}))
+                continue
+        whole.append(label)
+    if whole:
+        out.update(_observables(engine, circuit, {label: parsed[label] for label in whole}, _plans or {}))
+    return {label: out[label] for label in labels}
+
+
+def _observables(engine: Settings, circuit: NoisyCircuit, paulis: dict[str, dict[int, str]], plans: dict) -> dict[str, float]:
+    m = circuit.num_qubits
+    final = Walker(m, "pull", max_unrolled=engine.max_unrolled, plans=plans).run(circuit.body)
+    rows = []
+    for letters in paulis.values():
+        qs = sorted(letters)
+        x, z, e = label_bits("".join(letters[q] for q in qs))
+        slots = [q for q, b in zip(qs, x) if b] + [m + q for q, b in zip(qs, z) if b]
+        rows.append(final.image(np.array([slots]), np.array([e], np.uint8)))
+    xo, zo, eo = (np.concatenate([r[i] for r in rows]) for i in range(3))
+    sink = ObservableSink(TermBuilder(m, circuit.qubits, Sources()), xo, zo, eo)
+    Walker(m, "pull", sink, max_unrolled=engine.max_unrolled, plans=plans).run(circuit.body)
+    totals = sink.totals()
+    every = all_orders_observables(engine, circuit, (xo, zo, eo), plans) if engine.second_order else None
+    if every is not None:
+        return dict(zip(paulis, map(float, totals - sink.coherent_totals() + every)))
+    if engine.second_order and sink.terms_seen**2 * num_words(m) <= PAIR_BUDGET:
+        coherent = _coherent_observables(engine, circuit, (xo, zo, eo), plans)
+        if coherent is not None:
+            totals = totals - sink.coherent_totals() + coherent
+    return dict(zip(paulis, map(float, totals)))
+
+
+def _coherent_observables(engine: Settings, circuit: NoisyCircuit, obs: tuple, plans: dict) -> np.ndarray | None:
+    """Coherent change of each observable to second order (linear term of H_1 + H_2 and the
+    quadratic terms, budget/engines/clifford/observables.py) from the full input-frame terms of
+    one more walk (only when the first walk's terms, paired, stay within PAIR_BUDGET); None when that
+    walk goes beyond its budgets or folds approximately (the first-order linear term then
+    stands alone)."""
+    m = circuit.num_qubits
+    sink = GroupSink(TermBuilder(m, circuit.qubits, Sources()), key="x")
+    outer = SecondOrderSink(sink, "pull", num_words(m))
+    Walker(m, "pull", outer, max_unrolled=engine.max_unrolled, plans=plans, orbit_baby=0).run(circuit.body)
+    first, second = outer.finish(inject=False)
+    if outer.too_costly or outer.unfolded:
+        return None
+    terms = merge_terms(*(np.concatenate([a[i], b[i]]) for a, b in zip([first], [second]) for i in range(4)))
+    out = np.zeros(len(obs[2]))
+    for k in range(len(out)):
+        linear, quadratic = observable_change(terms, (obs[0][k], obs[1][k], int(obs[2][k])))
+        if quadratic is None:
+            return None
+        out[k] = linear + quadratic
+    return out
