@@ -28,7 +28,7 @@ from typing import Callable
 import numpy as np
 
 from budget.analysis.ratios import at_rounding_level
-from budget.engines.door import choose
+from budget.engines.door import check_time, choose
 from budget.engines.escalation import exact_if_fits, sweep_engine
 from budget.errors.noisy import NoisyCircuit, NoisyRepeat
 from budget.engines.base import MEASURED_METRICS
@@ -109,7 +109,8 @@ def _first_true(pred: Callable[[int], bool], grid: tuple[int, ...]) -> int | Non
     return None
 
 
-def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, deepest: int) -> tuple[_Series, str, list[str]]:
+def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, deepest: int,
+                   work: float = 1.0) -> tuple[_Series, str, list[str]]:
     """One curve from an engine.
 
     ``auto`` on up to EXACT_CURVE_QUBITS qubits: the exact engine at every point (matrix powers, cheap
@@ -119,7 +120,11 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, de
     propagation of the cycle, then any N at O(d³), the same values as one engine run per N.
     Otherwise every point is one run of the chosen engine on the folded repeat (the exact engine
     takes matrix powers, the clifford engine folds whole periods); the engine is chosen for the
-    deepest point ``deepest``, the costliest one, among the engines that fold repeats."""
+    deepest point ``deepest``, the costliest one, among the engines that fold repeats or, where none
+    of them holds the circuit (or all are estimated too slow), the pauli engine, which walks a
+    non-Clifford repeat cycle by cycle (with an early stop, :mod:`budget.engines.pauli._sweep`):
+    then the curve's whole cost, ``work`` times the deepest point's (Σ of the grid's N over the
+    deepest N), is checked against the time limit (:func:`budget.engines.door.check_time`)."""
     notes: list[str] = []
     small = engine == "auto" and block.num_qubits <= EXACT_CURVE_QUBITS
     if (metric == "process" and not small and block.later_body is None
@@ -129,6 +134,8 @@ def _engine_series(block: NoisyCircuit, metric: str, engine: str, label: str, de
             sweep = sweeper.repeat_sweep(block, metric)
             return _Series(sweep.at), f"{sweeper.name} (periodic closed form)", notes
     chosen = choose(_repeated(block, deepest), metric, engine, brief=True, repeats_folded=True).engine
+    if not chosen.folds_repeats:
+        check_time(_repeated(block, deepest), metric, chosen, runs=max(1, math.ceil(work)), what=f"the {label} depth curve")
 
     def run(n: int) -> tuple[float, bool]:
         result = chosen.run(_repeated(block, n), metric)
@@ -215,9 +222,10 @@ def depth_curve(
         return _measured_curve(block, grid, metric, engine, target, progress)
     log_keep = math.log1p(-min(naive_infidelity(block), 1.0)) if naive_infidelity(block) < 1 else -math.inf
     naive = _Series(lambda n: (-math.expm1(n * log_keep) if log_keep > -math.inf else 1.0, True))
-    structured, name, notes = _engine_series(block, metric, engine, "actual", max_cycles)
+    work = sum(grid) / max_cycles  # cost of the whole grid in deepest points, for engines walking cycle by cycle
+    structured, name, notes = _engine_series(block, metric, engine, "actual", max_cycles, work)
     tw_block = twirled_circuit(block)
-    twirled, tw_name, tw_notes = _engine_series(tw_block, metric, engine, "twirled", max_cycles)
+    twirled, tw_name, tw_notes = _engine_series(tw_block, metric, engine, "twirled", max_cycles, work)
     series = {"naive": naive, "structured": structured, "twirled": twirled}
     switches: dict[str, int] = {}
     if engine == "auto" and block.num_qubits <= EXACT_FALLBACK_QUBITS:

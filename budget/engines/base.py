@@ -151,7 +151,7 @@ class Engine:
     :attr:`capabilities`; the methods of the others raise :class:`Unsupported` with a reason, so
     callers never probe with ``hasattr``. ``folds_repeats`` says whether a repeat of N costs what
     N = 2 costs (false for an engine that may walk a repeat cycle by cycle; depth curves under
-    ``auto`` leave such an engine out).
+    ``auto`` try such an engine after every engine that folds repeats).
     """
 
     name: ClassVar[str] = "engine"

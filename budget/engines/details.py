@@ -11,7 +11,7 @@ Records:
     :class:`Parts`       the parts of a first-order value (coherent and stochastic sums);
     :class:`Validity`    how far a first-order value can be believed (budget/engines/orders.py);
     :class:`Truncation`  the pauli engine's dropped terms and their bound;
-    :class:`Folding`     how repeated blocks were folded;
+    :class:`Folding`     how repeated blocks were folded (:class:`RepeatedBlock` per pauli block);
     :class:`Drilldown`   per-family and per-operation first-order shares;
     :class:`QubitMap`    where the error lands, per qubit;
     :class:`DenseRun`    which dense form the exact engine held;
@@ -81,6 +81,24 @@ class FoldedBlock:
 
 
 @dataclass(frozen=True)
+class RepeatedBlock:
+    """How the pauli engine took one repeated block of ``count`` cycles, walking ``cycles_walked``:
+    ``mode`` "period" (Clifford, folded by its ``period``), "cycles" (walked cycle by cycle),
+    "fixed point" (a cycle left every carried sum unchanged: the rest counted without walking) or
+    "converged" (two cycles in a row dropped the same terms and added the same sum, so the block's
+    contribution grows linearly from there: the rest extrapolated, budget/engines/pauli/_converge.py);
+    ``cut_at_meeting_point``: the process metric cut the block in two (modes joined with " + ")."""
+
+    count: int
+    mode: str
+    cycles_walked: int
+    period: int | None = None
+    cut_at_meeting_point: bool | None = None
+
+    omit_none = True  # JSON: fields left at None are absent (docs/json-schema.md)
+
+
+@dataclass(frozen=True)
 class Folding:
     """How repeated blocks were folded: by period (``folded_blocks``), by orbits of error terms
     (``orbit_folds``, budget/engines/frame/orbits.py), per block of the pauli engine
@@ -89,7 +107,7 @@ class Folding:
     folded_blocks: tuple[FoldedBlock, ...] | None = None
     layers_walked: int | None = None
     orbit_folds: tuple[dict, ...] | None = None
-    repeated_blocks: tuple[dict, ...] | None = None
+    repeated_blocks: tuple[RepeatedBlock, ...] | None = None
 
 
 @dataclass(frozen=True)
@@ -171,7 +189,7 @@ RECORDS = {
 }
 """Attribute of :class:`Details` -> its record type."""
 _KEY_TO_SLOT = {f.name: slot for slot, cls in RECORDS.items() for f in dataclasses.fields(cls)}
-_NESTED = {"folded_blocks": FoldedBlock, "top_operations": OperationShare}
+_NESTED = {"folded_blocks": FoldedBlock, "top_operations": OperationShare, "repeated_blocks": RepeatedBlock}
 
 
 @dataclass(frozen=True)
@@ -256,7 +274,9 @@ def _typed(key: str, value: Any) -> Any:
 def _json(value: Any) -> Any:
     """A record value in its JSON form: records as objects, tuples as lists, NaN and inf as null."""
     if dataclasses.is_dataclass(value) and not isinstance(value, type):
-        return {f.name: _json(getattr(value, f.name)) for f in dataclasses.fields(value)}
+        omit = getattr(value, "omit_none", False)
+        return {f.name: _json(getattr(value, f.name)) for f in dataclasses.fields(value)
+                if not (omit and getattr(value, f.name) is None)}
     if isinstance(value, dict):
         return {str(k): _json(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):

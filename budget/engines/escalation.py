@@ -104,7 +104,8 @@ def sweep_engine(block: NoisyCircuit, metric: str, requested: str) -> Engine | N
     """The engine whose closed-form repeat sweep (capability ``repeat_sweep``) gives a depth
     curve of the cycle ``block``, or None: ``requested`` is auto or an engine with the capability;
     the most accurate such engine of AUTO_ORDER that fits the cycle run twice; two runs' worth of
-    its time is checked against MAX_SECONDS (:func:`check_time`, a refusal beyond it)."""
+    its time is checked against MAX_SECONDS (:func:`check_time`: a refusal beyond it when the
+    engine was named, None under ``auto``, whose curve then runs point by point)."""
     names = engine_order("repeat_sweep", False)
     if requested != "auto" and requested not in names:
         return None
@@ -112,6 +113,8 @@ def sweep_engine(block: NoisyCircuit, metric: str, requested: str) -> Engine | N
     for name in names if requested == "auto" else (requested,):
         engine = get_engine(name).brief()
         if engine.fits(repeated, metric) is None:
+            if requested == "auto" and 2 * estimate_seconds(engine, block, metric) > MAX_SECONDS:
+                return None  # too slow in closed form: the curve runs point by point on what auto picks
             check_time(block, metric, engine, runs=2, what="the depth curve (closed form)")
             return engine
     return None

@@ -38,6 +38,7 @@ from types import SimpleNamespace
 import numpy as np
 
 from budget.circuit.walk import Kind, gate_kind
+from budget.engines.pauli._converge import DropLog, Step, difference, same_rows, same_step
 from budget.engines.pauli._fold import fold
 from budget.engines.pauli._bits import conjugate_clifford
 from budget.engines.pauli._plan import LayerPlan, PlanBook
@@ -46,6 +47,7 @@ from budget.engines.pauli._second import SecondOrder
 from budget.engines.pauli._store import Store, conjugate, from_local, generate
 from budget.memo import ObjectKey
 from budget.errors.noisy import NoisyItem, NoisyLayer, NoisyRepeat
+from budget.problems import TooLargeError
 
 
 TRUNCATE_EVERY = 4
@@ -56,6 +58,14 @@ sum, at the price of carrying small rows a little longer)."""
 MAX_TERMS = 6_000_000
 """Rows held at most (all carried sums): about 2-3.5 GB with the temporaries of a layer (1.3 GB
 measured at 4.0 M rows on the 100-qubit Ising loop, state metric; 2.5 GB once at 4.3 M)."""
+
+
+MAX_WALKED_LAYERS = 10**6
+"""Layers one sweep walks at most (repeats run cycle by cycle unless folded or stopped early)."""
+
+
+class TooManyLayers(TooLargeError):
+    """A sweep would walk more than MAX_WALKED_LAYERS layers (a refusal the user reads)."""
 
 
 class OutOfTime(RuntimeError):
@@ -138,6 +148,7 @@ class Sweep:
         self.layers_walked = 0
         self.every = TRUNCATE_EVERY
         self._since = 0
+        self.log: DropLog | None = None  # drops of the cycle being walked (_converge)
 
     def _observable_rows(self, observables) -> Store:
         if not observables:
@@ -176,6 +187,11 @@ class Sweep:
         if self.deadline is not None and time.monotonic() > self.deadline:
             raise OutOfTime
         self.layers_walked += 1
+        if self.layers_walked > MAX_WALKED_LAYERS:
+            raise TooManyLayers(
+                f"pauli engine: more than {MAX_WALKED_LAYERS:,} layers to walk: a repeated block that is neither "
+                "Clifford (folded by its period) nor converges (docs/methods.md, \"Repeated blocks\") is walked cycle "
+                "by cycle; use fewer cycles")
         plan = self.book(layer)
         for f, v in plan.stochastic.items():
             self.stochastic[f] = self.stochastic.get(f, 0.0) + v
@@ -249,6 +265,7 @@ class Sweep:
             if drop.any():
                 self.bound_l2 += float(np.sqrt(np.sum(total[drop] ** 2)))
                 self.bound_l1 += float(np.sum(np.abs(total[drop])))
+                self._logged("coh", self.coh, drop)
                 self.coh = self.coh.take(~drop)
         if not self.pull:
             return
@@ -262,6 +279,7 @@ class Sweep:
                 if len(self.tag_dropped) < self.tag_count:
                     self.tag_dropped = np.concatenate([self.tag_dropped, np.zeros(self.tag_count - len(self.tag_dropped))])
                 self.tag_dropped += np.bincount(self.tags.key[drop], weights=mag[drop], minlength=self.tag_count)
+                self._logged("tags", self.tags, drop)
                 self.tags = self.tags.take(~drop)
         for name in ("obs", "err"):
             st = getattr(self, name).merged()
@@ -271,8 +289,13 @@ class Sweep:
                 if drop.any():
                     lost = np.bincount(st.key[drop], weights=mag[drop], minlength=self.num_obs)
                     self.obs_bound += lost * (max(self.kappa_left, 0.0) if name == "obs" else 1.0)
+                    self._logged(name, st, drop)
                     st = st.take(~drop)
             setattr(self, name, st)
+
+    def _logged(self, name: str, st: Store, drop: np.ndarray) -> None:
+        if self.log is not None:
+            self.log.add(name, self.layers_walked, st.take(drop))
 
     # -- repeated blocks ----------------------------------------------------------------------
 
@@ -290,9 +313,31 @@ class Sweep:
         if self.second is None and fold(self, rep):
             return
         step = None  # the second-order sum's change over the last cycle
+        last = None  # the last cycle's Step (_converge), while the block may still converge
+        h2_steps: list[Store] = []  # H_2's change per cycle since S's change became steady
         for k in range(count):
             before = self.snapshot()
-            self._items(rep.body)
+            outer = self.log
+            self.log = DropLog(self.layers_walked, outer)
+            try:
+                self._items(rep.body)
+            finally:
+                log, self.log = self.log, outer
+            if k + 1 < count and not self._fixed(before):
+                now = self._step(before, log)
+                steady = now is not None and last is not None and same_step(now, last)
+                last = now
+                if self.second is not None and now is not None:  # H_2's changes, while S's are steady
+                    change = difference(self.second.sum, before.second)
+                    h2_steps = [*h2_steps, change] if steady else [change]
+                if steady and (self.second is None or self._second_steady(h2_steps, count - k - 1)):
+                    rest = count - k - 1
+                    self._skip(before, rest)
+                    self.coh = Store.concat([self.coh, _scaled(now.coh, float(rest))]).merged()
+                    self.err = Store.concat([self.err, _scaled(now.err, float(rest))]).merged()
+                    self.note_block(rep, {"mode": "converged", "cycles_walked": k + 1})
+                    return
+                continue
             if k + 1 < count and self._fixed(before):
                 if self.second is not None:
                     # with S fixed, H_2 changes by Δ_k = C Δ_{k-1} C† per cycle: constant once two agree
@@ -312,13 +357,36 @@ class Sweep:
         self.blocks.append({"count": int(whole.count), **entry})
         self.block_of.append(ObjectKey(whole))
 
+    def _second_steady(self, steps: list[Store], rest: int) -> bool:
+        """With S's change Δ steady, H_2 changes per cycle by d_k = C d_{k-1} C† + L(Δ), L linear
+        (the cycle's commutators with the incoming sum), so its second differences obey
+        e_k = C e_{k-1} C†: once two agree, d grows by e per cycle and the remaining ``rest`` cycles
+        add rest·d_k + rest(rest+1)/2·e (added here; True). False while they do not agree yet."""
+        if len(steps) < 3:
+            return False
+        e = difference(steps[-1], steps[-2])
+        if not same_rows(e, difference(steps[-2], steps[-3])):
+            return False
+        self.second.sum = Store.concat([self.second.sum, _scaled(steps[-1], float(rest)),
+                                        _scaled(e, rest * (rest + 1) / 2)]).merged()
+        return True
+
+    def _step(self, b: SimpleNamespace, log: DropLog) -> Step | None:
+        """The cycle just walked as a :class:`~budget.engines.pauli._converge.Step`, or None when it
+        cannot be part of a converged run (it made jump tags, or changed the tags or the observable)."""
+        if b.tag_count != self.tag_count or not (_equal(b.tags, self.tags) and _equal(b.obs, self.obs)):
+            return None
+        return Step(difference(self.coh, b.coh), difference(self.err, b.err), tuple(log.entries))
+
     def _fixed(self, b: SimpleNamespace) -> bool:
         return (
             b.tag_count == self.tag_count and _equal(b.coh, self.coh) and _equal(b.obs, self.obs) and _equal(b.err, self.err)
         )
 
     def _skip(self, b: SimpleNamespace, rest: int) -> None:
-        """Count ``rest`` more cycles that change nothing: their stochastic part, bound and kappa."""
+        """Count ``rest`` more cycles like the last (their stochastic part, bound and kappa)."""
+        if self.log is not None:
+            self.log.add("skip", self.layers_walked, rest)
         self.bound_l2 += rest * (self.bound_l2 - b.bound_l2)
         self.bound_l1 += rest * (self.bound_l1 - b.bound_l1)
         self.obs_bound += rest * (self.obs_bound - b.obs_bound)

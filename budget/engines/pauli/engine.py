@@ -33,13 +33,13 @@ from budget.engines.matrices.channels import by_family
 from budget.engines.frame.groups import Budget, budget_result, size_warning
 from budget.engines.base import METRICS, Engine, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.engines.clifford.second import PAIR_BUDGET, TooCostly
-from budget.engines.details import Details, Drilldown, Folding, Parts, Truncation, Validity
+from budget.engines.details import Details, Drilldown, Folding, Parts, RepeatedBlock, Truncation, Validity
 from budget.engines.orders import cancellation_note, second_order_share, term_norm_sum, term_square_sum, validity_details
 from budget.engines.pauli._meet import meet
 from budget.engines.pauli._store import Store
 from budget.engines.pauli._plan import PlanBook
 from budget.engines.pauli._readout import coherent_budget, first_order_bound, group_amplitudes, jump_costs, zero_readout
-from budget.engines.pauli._sweep import MAX_TERMS, OutOfTime, Sweep, TooManyTerms
+from budget.engines.pauli._sweep import MAX_TERMS, OutOfTime, Sweep, TooManyLayers, TooManyTerms
 from budget.engines.pauli._vector import VECTOR_QUBITS, JumpValues, fits_vector, forward, input_amplitudes, vector_work, zero_state
 from budget.circuit.clifford_check import is_clifford
 from budget.errors.knobs import knob_grouping
@@ -74,8 +74,6 @@ SECONDS_PER_AMPLITUDE = 1e-8
 SECONDS_PER_VECTOR_STEP = 5e-4
 """CPU seconds per gate or site step of the state vector whatever its size (numpy call overhead;
 the 10-qubit, 10-step Ising loop: 0.47 s for 800 steps)."""
-MAX_EXECUTED_LAYERS = 10**6
-"""Executed layers walked at most (repeats run cycle by cycle unless folded)."""
 
 
 @dataclass(frozen=True)
@@ -114,10 +112,6 @@ def _tag_scale(circuit: NoisyCircuit) -> float:
     return TAG_BALANCE * 2 * float(np.sqrt(e)) if e > 0 else TAG_BALANCE
 
 
-def _executed_layers(circuit: NoisyCircuit) -> int:
-    return sum(m for _, m in circuit.multiplicities())
-
-
 def _vector_seconds(circuit: NoisyCircuit) -> float:
     work = vector_work(circuit)
     return work * SECONDS_PER_AMPLITUDE + work / 2**circuit.num_qubits * SECONDS_PER_VECTOR_STEP
@@ -139,7 +133,7 @@ class PauliEngine(Engine):
 
     name = "pauli"
     capabilities = frozenset({"estimate_seconds", "observables", "quadratic_form"})
-    folds_repeats = False  # non-Clifford repeats are walked cycle by cycle (a fixed point ends them early)
+    folds_repeats = False  # non-Clifford repeats are walked cycle by cycle (a fixed point or convergence ends them early)
 
     def __init__(self, *, truncate: float | None = None, target: float = TARGET, time_budget_s: float = TIME_BUDGET_S,
                  second_order: bool = True, vector_qubits: int = VECTOR_QUBITS):
@@ -164,18 +158,15 @@ class PauliEngine(Engine):
         return self._with(time_budget_s=min(self.time_budget_s, BRIEF_BUDGET_S))
 
     def fits(self, circuit: NoisyCircuit, metric: Metric, observables: tuple[str, ...] = ()) -> str | None:
-        """None unless the circuit has mid-circuit items (measurement, reset, if) or executes more
-        than MAX_EXECUTED_LAYERS layers (non-Clifford repeats run cycle by cycle)."""
+        """None unless the circuit has mid-circuit items (measurement, reset, if). A repeated block
+        of any count is accepted: a run that would walk more than MAX_WALKED_LAYERS layers (a block
+        neither Clifford, at a fixed point nor converged) stops with a refusal
+        (:class:`~budget.engines.pauli._sweep.TooManyLayers`); ``estimate_seconds`` counts repeats
+        in full, so ``auto`` keeps away from such runs."""
         if metric not in METRICS:
             return f"metric {metric!r} is not one of {', '.join(METRICS)}"
         if circuit.has_mid_circuit:
             return circuit.mid_circuit_reason()
-        layers = _executed_layers(circuit)
-        if layers > MAX_EXECUTED_LAYERS:
-            return (
-                f"{layers} executed layers: the pauli engine walks repeated blocks cycle by cycle and stops at "
-                f"{MAX_EXECUTED_LAYERS} layers; the clifford engine folds Clifford blocks of any count"
-            )
         return None
 
     def estimate_seconds(self, circuit: NoisyCircuit, metric: Metric) -> float:
@@ -300,7 +291,7 @@ class PauliEngine(Engine):
             truncation=Truncation(truncation_bound=result.bound, truncation_bound_jumps=result.jump_bound,
                                   truncate=result.eps, pauli_terms_max=result.terms_max,
                                   observable_truncation_bounds=result.observable_bounds or None),
-            folding=Folding(repeated_blocks=tuple(result.blocks)),
+            folding=Folding(repeated_blocks=tuple(RepeatedBlock(**b) for b in result.blocks)),
             drilldown=Drilldown(first_order_family_shares={
                 f: float(v) for f, v in zip(result.families, result.budget.first_order_shares)}),
         )
@@ -328,10 +319,11 @@ class PauliEngine(Engine):
             return first, Validity(second_order="not formed (costly, and the first order shows no cancellation)"), []
         try:
             coh = self._second_sum(circuit, metric, result.eps)
-        except TooCostly:
+        except (TooCostly, TooManyLayers) as stop:
             warn = ["the first-order error terms largely cancel and their second-order (commutator) terms were too "
                     "many to form: the result may be far too small"] if cancelled else []
-            return first, Validity(second_order=f"not formed (more than {PAIR_BUDGET:.0e} pair operations)"), warn
+            limit = f"more than {PAIR_BUDGET:.0e} pair operations" if isinstance(stop, TooCostly) else "too many layers to walk"
+            return first, Validity(second_order=f"not formed ({limit})"), warn
         b = coherent_budget(coh, first.stochastic_shares, state=metric == "state")
         share = second_order_share(b.coherent_resummed, first.coherent_resummed)
         sizes = term_norm_sum(circuit)
@@ -365,6 +357,8 @@ class PauliEngine(Engine):
     def _first(self, circuit: NoisyCircuit, metric: str, observables: tuple[str, ...], eps: float) -> PassResult:
         try:
             return self.evaluate(circuit, metric, eps=eps, observables=observables)
+        except TooManyLayers as err:
+            raise TooLargeError(f"{circuit.source}: {err}") from None
         except TooManyTerms as err:
             raise TooLargeError(
                 f"{circuit.source}: engine pauli: more than {err.args[1]:,} Pauli terms ({err.args[0]:,}) at threshold "
@@ -385,8 +379,9 @@ class PauliEngine(Engine):
             eps /= min(TIGHTEN, max(1.5, 1.2 * over**1.5))  # bound ∝ eps^(2/3) or so on the Ising loops
             try:
                 best = self.evaluate(circuit, metric, eps=eps, observables=observables, deadline=deadline)
-            except (OutOfTime, TooManyTerms) as stop:
-                why = f"the {self.time_budget_s:.0f} s budget" if isinstance(stop, OutOfTime) else f"{stop.args[1]:,} terms"
+            except (OutOfTime, TooManyTerms, TooManyLayers) as stop:
+                why = (f"the {self.time_budget_s:.0f} s budget" if isinstance(stop, OutOfTime) else
+                       f"{stop.args[1]:,} terms" if isinstance(stop, TooManyTerms) else "the walked-layer limit")
                 return best, [
                     f"truncation: the bound {best.bound:.2g} is {best.bound / max(best.budget.first_order, 1e-300):.1%} "
                     f"of the first-order result at threshold {best.eps:.2g}; tightening stopped at {why} "
