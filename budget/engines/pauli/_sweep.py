@@ -90,6 +90,15 @@ def _equal(a: Store, b: Store) -> bool:
     )
 
 
+def apply_class(cls, st: Store, n: int) -> Store:
+    """``st`` conjugated by one gate class of a layer plan (rotation, Clifford or general map)."""
+    if cls.axis is not None:
+        return rotate(st, cls.lmap.matrix, cls.axis, cls.mask)
+    if cls.lmap.clifford:
+        return conjugate_clifford(st, cls.lmap, cls.qa, cls.qb, n)
+    return conjugate(st, cls.lmap, cls.qa, cls.qb)
+
+
 class Sweep:
     """One pass (see module docstring).
 
@@ -243,11 +252,7 @@ class Sweep:
                 self.second.sum = self._apply(cls, self.second.sum)
 
     def _apply(self, cls, st: Store) -> Store:
-        if cls.axis is not None:
-            return rotate(st, cls.lmap.matrix, cls.axis, cls.mask)
-        if cls.lmap.clifford:
-            return conjugate_clifford(st, cls.lmap, cls.qa, cls.qb, self.n)
-        return conjugate(st, cls.lmap, cls.qa, cls.qb)
+        return apply_class(cls, st, self.n)
 
     # -- merging and truncation ---------------------------------------------------------------
 

@@ -33,8 +33,9 @@ from budget.engines.matrices.channels import by_family
 from budget.engines.frame.groups import Budget, budget_result, size_warning
 from budget.engines.base import METRICS, Engine, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.engines.clifford.second import PAIR_BUDGET, TooCostly
-from budget.engines.details import Details, Drilldown, Folding, Parts, RepeatedBlock, Truncation, Validity
+from budget.engines.details import Details, Drilldown, Folding, Parts, QubitMap, RepeatedBlock, Truncation, Validity
 from budget.engines.orders import cancellation_note, second_order_share, term_norm_sum, term_square_sum, validity_details
+from budget.engines.pauli._landing import LandingWalk, Skipped
 from budget.engines.pauli._meet import meet
 from budget.engines.pauli._store import Store
 from budget.engines.pauli._plan import PlanBook
@@ -50,6 +51,8 @@ TARGET = 0.01
 """Default goal for truncation_bound / first-order result."""
 TIME_BUDGET_S = 60.0
 """Default wall time for tightening the threshold (the first pass always completes)."""
+LANDING_BUDGET_S = 10.0
+"""Wall time for the per-qubit map's walk (beyond it the map is skipped, with the reason)."""
 START = 1e-2
 """First threshold, relative to the largest coherent coefficient of the circuit."""
 TAG_BALANCE = 10.0
@@ -129,6 +132,8 @@ class PauliEngine(Engine):
             None chooses and tightens it automatically.
         target: goal for truncation_bound / result when ``truncate`` is None.
         time_budget_s: wall time for tightening (the first pass always completes).
+        qubit_map: compute the per-qubit map of where the error lands (:mod:`._landing`, at most
+            LANDING_BUDGET_S; :meth:`brief` leaves it out).
     """
 
     name = "pauli"
@@ -136,16 +141,17 @@ class PauliEngine(Engine):
     folds_repeats = False  # non-Clifford repeats are walked cycle by cycle (a fixed point or convergence ends them early)
 
     def __init__(self, *, truncate: float | None = None, target: float = TARGET, time_budget_s: float = TIME_BUDGET_S,
-                 second_order: bool = True, vector_qubits: int = VECTOR_QUBITS):
+                 second_order: bool = True, vector_qubits: int = VECTOR_QUBITS, qubit_map: bool = True):
         if truncate is not None and not (truncate >= 0 and np.isfinite(truncate)):
             raise InputError(f"truncate = {truncate!r}: expected a number >= 0 (0 keeps every term)")
         self.truncate, self.target, self.time_budget_s = truncate, target, time_budget_s
         self.second_order = second_order
         self.vector_qubits = vector_qubits
+        self.qubit_map = qubit_map
 
     def _with(self, **changes) -> "PauliEngine":
         kw = dict(truncate=self.truncate, target=self.target, time_budget_s=self.time_budget_s,
-                  second_order=self.second_order, vector_qubits=self.vector_qubits)
+                  second_order=self.second_order, vector_qubits=self.vector_qubits, qubit_map=self.qubit_map)
         return PauliEngine(**{**kw, **changes})
 
     def configure(self, *, truncate: float | None = None, **_ignored) -> "PauliEngine":
@@ -155,7 +161,7 @@ class PauliEngine(Engine):
     def brief(self) -> "PauliEngine":
         """The same engine with at most BRIEF_BUDGET_S for tightening the threshold (depth curves,
         twirled variants and ensembles run it many times)."""
-        return self._with(time_budget_s=min(self.time_budget_s, BRIEF_BUDGET_S))
+        return self._with(time_budget_s=min(self.time_budget_s, BRIEF_BUDGET_S), qubit_map=False)
 
     def fits(self, circuit: NoisyCircuit, metric: Metric, observables: tuple[str, ...] = ()) -> str | None:
         """None unless the circuit has mid-circuit items (measurement, reset, if). A repeated block
@@ -295,8 +301,23 @@ class PauliEngine(Engine):
             drilldown=Drilldown(first_order_family_shares={
                 f: float(v) for f, v in zip(result.families, result.budget.first_order_shares)}),
         )
+        if self.qubit_map:
+            details = details.with_records(self._landing(circuit, result.eps))
         out = budget_result(self.name, metric, b, shares, warnings, details, result.observables)
         return replace(out, first_order=float(result.budget.first_order))
+
+    @staticmethod
+    def _landing(circuit: NoisyCircuit, eps: float) -> QubitMap:
+        """The per-qubit map at threshold ``eps`` (:mod:`budget.engines.pauli._landing`), or why not."""
+        try:
+            land = LandingWalk(circuit.num_qubits, eps, time.monotonic() + LANDING_BUDGET_S).run(circuit)
+        except Skipped as why:
+            return QubitMap(qubit_map_skipped=f"{why} ({LANDING_BUDGET_S:.0f} s); a larger --truncate holds fewer terms")
+        return QubitMap(
+            qubit_map={name: float(v) for name, v in zip(circuit.qubits, land)},
+            qubit_map_quantity="first-order marginal process infidelity per qubit at the output"
+                               + (f" (terms below {eps:.2g} rad left out)" if eps > 0 else ""),
+        )
 
     @staticmethod
     def _observable(circuit: NoisyCircuit, label: str) -> dict[int, str]:
