@@ -25,8 +25,6 @@ claimed); a fixed point (Δ = 0) is its special case. :class:`DropLog` records t
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 
 from budget.engines.pauli._store import Store
@@ -35,14 +33,32 @@ ROUNDING = 1e-12
 """Relative tolerance for "the same": coefficients within ROUNDING x the largest one of the sum."""
 
 
-@dataclass(frozen=True)
 class Step:
-    """What one walked cycle changed: the increments of the summed stores (cleaned of rounding
-    residue) and the drops made during it, as (store name, layer within the cycle, rows or a count)."""
+    """What one walked cycle changed: the stores before and after it and the drops made during it,
+    as (store name, layer within the cycle, rows or a count). The increments (cleaned of rounding
+    residue) are formed only when two cycles have the same :attr:`outline` (the cheap test)."""
 
-    coh: Store
-    err: Store
-    drops: tuple
+    def __init__(self, before_coh: Store, coh: Store, before_err: Store, err: Store, drops: tuple):
+        self._pairs = ((coh, before_coh), (err, before_err))
+        self.drops = drops
+        self.outline = (len(coh) - len(before_coh), len(err) - len(before_err),
+                        tuple((name, at, len(what) if isinstance(what, Store) else what) for name, at, what in drops))
+        self._increments: tuple[Store, Store] | None = None
+
+    @property
+    def increments(self) -> tuple[Store, Store]:
+        """(Δ of the coherent sum, Δ of the observable change)."""
+        if self._increments is None:
+            self._increments = tuple(difference(after, before) for after, before in self._pairs)
+        return self._increments
+
+    @property
+    def coh(self) -> Store:
+        return self.increments[0]
+
+    @property
+    def err(self) -> Store:
+        return self.increments[1]
 
 
 def difference(after: Store, before: Store) -> Store:
@@ -71,7 +87,7 @@ def same_rows(a: Store, b: Store) -> bool:
 
 def same_step(a: Step, b: Step) -> bool:
     """Whether two consecutive cycles dropped the same pieces and added the same increments."""
-    if len(a.drops) != len(b.drops):
+    if a.outline != b.outline:
         return False
     for (name_a, at_a, what_a), (name_b, at_b, what_b) in zip(a.drops, b.drops):
         if name_a != name_b or at_a != at_b:

@@ -381,7 +381,7 @@ class Sweep:
         cannot be part of a converged run (it made jump tags, or changed the tags or the observable)."""
         if b.tag_count != self.tag_count or not (_equal(b.tags, self.tags) and _equal(b.obs, self.obs)):
             return None
-        return Step(difference(self.coh, b.coh), difference(self.err, b.err), tuple(log.entries))
+        return Step(b.coh, self.coh, b.err, self.err, tuple(log.entries))
 
     def _fixed(self, b: SimpleNamespace) -> bool:
         return (

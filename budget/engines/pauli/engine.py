@@ -51,8 +51,11 @@ TARGET = 0.01
 """Default goal for truncation_bound / first-order result."""
 TIME_BUDGET_S = 60.0
 """Default wall time for tightening the threshold (the first pass always completes)."""
-LANDING_BUDGET_S = 10.0
+LANDING_BUDGET_S = 5.0
 """Wall time for the per-qubit map's walk (beyond it the map is skipped, with the reason)."""
+MAP_SHARE = 1e-4
+"""Per-qubit map: terms whose squared amplitude is below this fraction of an average qubit's share
+of the first-order value are left out (their sum is stated)."""
 START = 1e-2
 """First threshold, relative to the largest coherent coefficient of the circuit."""
 TAG_BALANCE = 10.0
@@ -77,6 +80,9 @@ SECONDS_PER_AMPLITUDE = 1e-8
 SECONDS_PER_VECTOR_STEP = 5e-4
 """CPU seconds per gate or site step of the state vector whatever its size (numpy call overhead;
 the 10-qubit, 10-step Ising loop: 0.47 s for 800 steps)."""
+ROWS_PER_QUBIT = 25_000
+"""Rows held per qubit at most in the estimate: truncation stops the growth (the most measured is
+2.4·10⁴ per qubit, 100-qubit Ising loop of 20 steps at 10⁻⁵ rad; 10-qubit public circuits 3.5·10³)."""
 
 
 @dataclass(frozen=True)
@@ -181,14 +187,15 @@ class PauliEngine(Engine):
         Rows R are walked layer by layer as the sweeps do: each layer adds its coherent terms
         (state metric: its jump tags too) and multiplies R by 1 + GROWTH · s, s the non-Clifford
         sites of the layer per qubit (a rotation splits the rows it touches in two; rows spread
-        over the light cone, so a share of them is touched), capped at min(4^n, MAX_TERMS). The
+        over the light cone, so a share of them is touched), capped at min(4^n, MAX_TERMS,
+        ROWS_PER_QUBIT · n) (truncation stops the growth: the most rows measured per qubit). The
         process metric (and the state metric on registers read from the state vector, which adds
         its amplitude steps) walks each half of the depth (meeting point); repeats are counted in full
         (fixed points and folds are not foreseen, so the estimate errs long). Time = Σ R ·
         SECONDS_PER_ROW_LAYER. Calibrated on the Ising loop of docs/benchmarks.md ("Pauli"); an
         order of magnitude, not more."""
         n = circuit.num_qubits
-        cap = float(min(4.0**min(n, 40), MAX_TERMS))
+        cap = float(min(4.0**min(n, 40), MAX_TERMS, ROWS_PER_QUBIT * max(n, 1)))
         vector = metric == "state" and fits_vector(circuit, self.vector_qubits)
         per_layer = []
         for layer, mult in circuit.multiplicities():
@@ -302,21 +309,27 @@ class PauliEngine(Engine):
                 f: float(v) for f, v in zip(result.families, result.budget.first_order_shares)}),
         )
         if self.qubit_map:
-            details = details.with_records(self._landing(circuit, result.eps))
+            details = details.with_records(self._landing(circuit, result.eps, result.budget.first_order))
         out = budget_result(self.name, metric, b, shares, warnings, details, result.observables)
         return replace(out, first_order=float(result.budget.first_order))
 
     @staticmethod
-    def _landing(circuit: NoisyCircuit, eps: float) -> QubitMap:
-        """The per-qubit map at threshold ``eps`` (:mod:`budget.engines.pauli._landing`), or why not."""
+    def _landing(circuit: NoisyCircuit, eps: float, first_order: float) -> QubitMap:
+        """The per-qubit map (:mod:`budget.engines.pauli._landing`), or why not. Threshold: ``eps``
+        when 0 (untruncated), else the larger of ``eps`` and the amplitude whose square is
+        MAP_SHARE of an average qubit's share of the first-order value (the map is a picture: terms
+        far below a qubit's share are left out, and their sum is said)."""
+        n = circuit.num_qubits
+        cut = 0.0 if eps == 0 else max(eps, float(np.sqrt(MAP_SHARE * first_order / n)))
+        walk = LandingWalk(n, cut, time.monotonic() + LANDING_BUDGET_S)
         try:
-            land = LandingWalk(circuit.num_qubits, eps, time.monotonic() + LANDING_BUDGET_S).run(circuit)
+            land = walk.run(circuit)
         except Skipped as why:
             return QubitMap(qubit_map_skipped=f"{why} ({LANDING_BUDGET_S:.0f} s); a larger --truncate holds fewer terms")
+        left = f" (terms below {cut:.2g} rad left out, {walk.dropped:.2g} in all)" if cut > 0 else ""
         return QubitMap(
             qubit_map={name: float(v) for name, v in zip(circuit.qubits, land)},
-            qubit_map_quantity="first-order marginal process infidelity per qubit at the output"
-                               + (f" (terms below {eps:.2g} rad left out)" if eps > 0 else ""),
+            qubit_map_quantity="first-order marginal process infidelity per qubit at the output" + left,
         )
 
     @staticmethod
