@@ -23,6 +23,9 @@ from budget.engines.matrices.periodic import accumulation_split, cycle_basis
 from budget.errors.noisy import NoisyCircuit, NoisyOperation
 
 MAX_QUBITS = 10
+MAX_WORK = 2e7
+"""Largest gate applications x 4^n (dense conjugations) for the cycle analysis: about 10 s on the
+test machine (the 10-qubit public adder, 137 gates x 4^10, took 66 s; docs/benchmarks.md)."""
 _REL_TOL = 1e-9  # relative to the knob's own size per cycle: below this a part counts as absent
 
 
@@ -150,5 +153,11 @@ def components_or_note(block: NoisyCircuit, metric: str) -> tuple[tuple[Componen
         return (), (
             f"which errors build up versus echo away is computed for cycles of up to {MAX_QUBITS} qubits; "
             f"this one has {block.num_qubits}"
+        )
+    work = sum(len(layer.operations) for layer in block.distinct_layers()) * 4.0**block.num_qubits
+    if work > MAX_WORK:
+        return (), (
+            f"which errors build up versus echo away is left out: the dense cycle analysis of these "
+            f"{block.num_qubits} qubits would take about {work / MAX_WORK * 10:.0f} s"
         )
     return cycle_errors(block).components(), None
