@@ -53,6 +53,9 @@ TIME_BUDGET_S = 60.0
 """Default wall time for tightening the threshold (the first pass always completes)."""
 LANDING_BUDGET_S = 5.0
 """Wall time for the per-qubit map's walk (beyond it the map is skipped, with the reason)."""
+MAP_TERMS = 500_000
+"""The per-qubit map is skipped without a walk when the budget's own pass held more terms than this
+(its walk, over the whole depth with every stochastic error kept apart, holds more)."""
 MAP_SHARE = 1e-4
 """Per-qubit map: terms whose squared amplitude is below this fraction of an average qubit's share
 of the first-order value are left out (their sum is stated)."""
@@ -308,7 +311,11 @@ class PauliEngine(Engine):
             drilldown=Drilldown(first_order_family_shares={
                 f: float(v) for f, v in zip(result.families, result.budget.first_order_shares)}),
         )
-        if self.qubit_map:
+        if self.qubit_map and result.terms_max > MAP_TERMS:
+            details = details.with_records(QubitMap(qubit_map_skipped=(
+                f"the budget's walk held {result.terms_max:,} Pauli terms (the map's walk holds more; limit "
+                f"{MAP_TERMS:,}); a larger --truncate holds fewer terms")))
+        elif self.qubit_map:
             details = details.with_records(self._landing(circuit, result.eps, result.budget.first_order))
         out = budget_result(self.name, metric, b, shares, warnings, details, result.observables)
         return replace(out, first_order=float(result.budget.first_order))
