@@ -26,7 +26,7 @@ from budget.engines.generators.dense import DensePropagator
 from budget.engines.matrices.channels import by_family, content_cache
 from budget.engines.pauli import PauliEngine
 from budget.errors.noisy import NoisyCircuit
-from budget.errors.normal_form import idle_errors, operation_errors, stochastic_rates
+from budget.errors.normal_form import layer_errors, stochastic_rates
 from clifford_reference import random_clifford_circuit
 from pauli_cases import ising
 from reference import pauli_matrix, random_noisy_circuit
@@ -62,8 +62,7 @@ def _reference(c: NoisyCircuit) -> np.ndarray:
         after.append(after[-1] @ lay)
     after = after[::-1][1:]  # after[i] for layer i
     for layer, rest in zip(layers, after):
-        sites = [operation_errors(nop) for nop in layer.operations] + [idle_errors(r) for r in layer.idle]
-        for errors in (e for e in sites if e is not None):
+        for errors in layer_errors(layer):
             for label, p in stochastic_rates(errors).items():
                 full = ["I"] * n
                 for q, ch in zip(errors.qubits, label):

@@ -36,7 +36,7 @@ from budget.engines.pauli._plan import PlanBook
 from budget.engines.pauli._store import Store, from_local
 from budget.engines.pauli._sweep import apply_class
 from budget.errors.noisy import NoisyCircuit, NoisyItem, NoisyLayer, NoisyRepeat
-from budget.errors.normal_form import idle_errors, operation_errors, stochastic_rates
+from budget.errors.normal_form import layer_errors, stochastic_rates
 from budget.memo import ObjectKey
 
 MAX_ROWS = 2_000_000
@@ -119,10 +119,7 @@ class LandingWalk:
         hit = self._spot_rows.get(ObjectKey(layer))
         if hit is None:
             qa, qb, v, amp = [], [], [], []
-            sites = [operation_errors(nop) for nop in layer.operations] + [idle_errors(r) for r in layer.idle]
-            for errors in sites:
-                if errors is None:
-                    continue
+            for errors in layer_errors(layer):  # operations, idle relaxation, context errors
                 qs = errors.qubits
                 for label, p in stochastic_rates(errors).items():
                     if p > 0 and label.strip("I"):
