@@ -105,3 +105,23 @@ def test_map_of_a_wide_loop_is_there_and_says_what_it_left_out():
     assert len(qmap) == 40 and min(qmap.values()) > 0
     assert "left out" in r.details["qubit_map_quantity"]
     assert "qubit_map" not in PauliEngine().brief().run(c, "process").details
+
+
+def test_map_includes_context_errors():
+    """Static ZZ on every coupler (context errors, sites of their layer) plus gate errors on a
+    non-Clifford 3-qubit circuit: the same references as above (the generators engine reads the
+    same layer normal form; cirq carries the stochastic part)."""
+    from budget.circuit.qasm import parse_qasm
+    from budget.errors.attach import attach
+    from budget.errors.model import ErrorModel
+
+    text = ('OPENQASM 3.0;\ninclude "stdgates.inc";\nqubit[3] q;\nh q[0]; rx(0.4) q[1];\n'
+            "for int i in [1:3] { cx q[0], q[1]; ry(0.3) q[2]; rz(0.7) q[1]; cx q[1], q[2]; }\n")
+    model = {"gates": {"cx": {"duration_ns": 200.0, "cphase": 0.003, "avg_infidelity": 1e-3},
+                       "rx": {"duration_ns": 30.0, "overrotation": 0.002}, "ry": {"duration_ns": 30.0},
+                       "rz": {"z_phase": [0.001]}, "h": {"duration_ns": 30.0}},
+             "qubits": {"t1_us": 100.0, "t2_us": 80.0}, "couplings": {"zz_khz": 50.0}}
+    c = attach(parse_qasm(text), ErrorModel.from_dict(model))
+    assert any(layer.context for layer in c.distinct_layers())
+    got = np.array([EXACT.run(c, "process").details["qubit_map"][name] for name in c.qubits])
+    np.testing.assert_allclose(got, _reference(c), rtol=1e-9, atol=1e-16)
