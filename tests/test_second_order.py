@@ -187,22 +187,7 @@ ECHO_ENGINES = {
 }
 
 
-@pytest.mark.parametrize(
-    "name",
-    [
-        "generators",
-        "clifford",
-        pytest.param(
-            "pauli",
-            marks=pytest.mark.xfail(
-                reason="the pauli engine carries the second order (tests/test_pauli_echo.py: 100 echoes within "
-                "5 %) but not the all-orders pass of the clifford engine: 36 of these 200 checks (x/y/x/y state "
-                "metric and blocks whose third order leads) miss 5 % (issue 10, open)",
-                strict=True,
-            ),
-        ),
-    ],
-)
+@pytest.mark.parametrize("name", ["generators", "clifford", "pauli"])
 def test_random_echoed_blocks_against_cirq(name):
     """Issue 10's check: 100 seeded echoed blocks repeated 10-1000 times; the engine within 5 % of
     cirq wherever the exact infidelity is at most 0.02 (the clifford engine on the Clifford

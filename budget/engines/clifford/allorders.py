@@ -102,10 +102,10 @@ class _Qubits:
         return total
 
 
-def _apply(acc: np.ndarray, m: np.ndarray, pos: tuple[int, ...], k: int, *, left: bool) -> np.ndarray:
+def apply_local(acc: np.ndarray, m: np.ndarray, pos: tuple[int, ...], k: int, *, left: bool) -> np.ndarray:
     """m (on positions ``pos`` of k qubits) times acc (left) or acc times m (right); d² 2^|pos|."""
     if not left:
-        return _apply(acc.T, m.T, pos, k, left=True).T
+        return apply_local(acc.T, m.T, pos, k, left=True).T
     d, kf = acc.shape[0], len(pos)
     t = acc.reshape((2,) * k + (d,))
     out = np.tensordot(m.reshape((2,) * (2 * kf)), t, axes=(list(range(kf, 2 * kf)), list(pos)))
@@ -217,7 +217,7 @@ class AllOrdersSink:
             acc = np.eye(2**k, dtype=complex)
             for qs, m in fs:
                 self.work += 4.0**k * 2 ** len(qs)
-                acc = _apply(acc, m, tuple(where[q] for q in qs), k, left=self.left)
+                acc = apply_local(acc, m, tuple(where[q] for q in qs), k, left=self.left)
             out.append((qubits, acc))
         self._check()
         return out
@@ -232,41 +232,55 @@ class AllOrdersSink:
 
     def observables(self, rows: tuple[np.ndarray, np.ndarray, np.ndarray], num_qubits: int) -> np.ndarray:
         """Coherent change <0|E† O E|0> - <0|O|0> of each Pauli O = i^e X^x Z^z given in the input
-        frame (``"pull"`` walk) as rows (x (K, W), z (K, W), e (K,)). With E = ⊗_c E_c and
-        O = i^e ⊗_q X^{x_q} Z^{z_q} the expectation factorises over the components; a qubit outside
-        every component contributes <0|X^x Z^z|0> = [x = 0]."""
-        comps = self.components()
-        covered = np.zeros(num_qubits, bool)
-        for qubits, _ in comps:
-            covered[list(qubits)] = True
-        xs, zs = unpack_bits(rows[0], num_qubits), unpack_bits(rows[1], num_qubits)
-        out = np.zeros(len(rows[2]))
-        for k in range(len(out)):
-            phase = 1j ** int(rows[2][k])
-            ideal = phase * float(not np.any(xs[k]))
-            value = phase * float(not np.any(xs[k][~covered]))
-            for qubits, m in comps:
-                if value == 0:
-                    break
-                cols = list(qubits)
-                v = m[:, 0]
-                value *= np.vdot(v, pauli_matrix(xs[k, cols], zs[k, cols], 0, qubits) @ v)
-            out[k] = (value - ideal).real
-        return out
+        frame (``"pull"`` walk) as rows: :func:`pauli_changes` of :meth:`components`."""
+        return pauli_changes(self.components(), rows, num_qubits)
 
     def infidelity(self, metric: str) -> float:
         """1 - Π_c F_c over the components of the whole circuit's coherent error."""
-        log_f = 0.0
-        for qubits, m in self.components():
-            d = m.shape[0]
-            if metric == "state":
-                loss = float(np.sum(np.abs(m[1:, 0]) ** 2))
-            else:
-                phases = np.angle(np.linalg.eigvals(m))
-                loss = float(2 * np.sum(np.sin((phases[:, None] - phases[None, :]) / 2) ** 2) / d**2)
-            self.losses.append((qubits, loss))
-            log_f += np.log1p(-min(loss, 1.0)) if loss < 1.0 else -np.inf
-        return float(-np.expm1(log_f)) + 0.0
+        total, losses = component_infidelity(self.components(), metric)
+        self.losses.extend(losses)
+        return total
+
+
+def pauli_changes(comps: list[Factor], rows: tuple[np.ndarray, np.ndarray, np.ndarray], num_qubits: int) -> np.ndarray:
+    """Change <0|E† O E|0> - <0|O|0> of each Pauli O = i^e X^x Z^z (rows x (K, W), z (K, W), e (K,),
+    input frame) under the coherent error E = ⊗_c E_c given by its components. The expectation
+    factorises over the components; a qubit outside every component contributes
+    <0|X^x Z^z|0> = [x = 0]."""
+    covered = np.zeros(num_qubits, bool)
+    for qubits, _ in comps:
+        covered[list(qubits)] = True
+    xs, zs = unpack_bits(rows[0], num_qubits), unpack_bits(rows[1], num_qubits)
+    out = np.zeros(len(rows[2]))
+    for k in range(len(out)):
+        phase = 1j ** int(rows[2][k])
+        ideal = phase * float(not np.any(xs[k]))
+        value = phase * float(not np.any(xs[k][~covered]))
+        for qubits, m in comps:
+            if value == 0:
+                break
+            cols = list(qubits)
+            v = m[:, 0]
+            value *= np.vdot(v, pauli_matrix(xs[k, cols], zs[k, cols], 0, qubits) @ v)
+        out[k] = (value - ideal).real
+    return out
+
+
+def component_infidelity(comps: list[Factor], metric: str) -> tuple[float, list[tuple[tuple[int, ...], float]]]:
+    """(1 - Π_c F_c, [(qubits, 1 - F_c)]) of a coherent error given by its components (module
+    docstring: eigenphases for the process metric, Σ_{x≠0} |<x|E_c|0>|² for the state metric)."""
+    log_f = 0.0
+    losses = []
+    for qubits, m in comps:
+        d = m.shape[0]
+        if metric == "state":
+            loss = float(np.sum(np.abs(m[1:, 0]) ** 2))
+        else:
+            phases = np.angle(np.linalg.eigvals(m))
+            loss = float(2 * np.sum(np.sin((phases[:, None] - phases[None, :]) / 2) ** 2) / d**2)
+        losses.append((qubits, loss))
+        log_f += np.log1p(-min(loss, 1.0)) if loss < 1.0 else -np.inf
+    return float(-np.expm1(log_f)) + 0.0, losses
 
 
 # --- The engine's all-orders path (budget/engines/clifford/engine.py) ---

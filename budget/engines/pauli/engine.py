@@ -36,6 +36,7 @@ from budget.engines.clifford.second import PAIR_BUDGET, TooCostly
 from budget.engines.details import Details, Drilldown, Folding, Parts, QubitMap, RepeatedBlock, Truncation, Validity
 from budget.engines.orders import cancellation_note, second_order_share, term_norm_sum, term_square_sum, validity_details
 from budget.engines.pauli._landing import LandingWalk, Skipped
+from budget.engines.pauli._allorders import every_order
 from budget.engines.pauli._meet import meet
 from budget.engines.pauli._store import Store
 from budget.engines.pauli._plan import PlanBook
@@ -347,13 +348,26 @@ class PauliEngine(Engine):
             raise InputError(f"{circuit.source}: {err}") from None
 
     def _leading(self, circuit: NoisyCircuit, metric: str, result: PassResult) -> tuple[Budget, Validity | None, list[str]]:
-        """The budget to report: with the second-order (commutator) term of the effective generator
+        """The budget to report: the coherent part to every order where the errors' light cones stay
+        small (:func:`budget.engines.pauli._allorders.every_order`), else with the second-order
+        term (:meth:`_second`), with the validity details of :mod:`budget.engines.orders`."""
+        if not self.second_order:
+            return result.budget, None, []
+        if term_square_sum(circuit) == 0.0:  # no coherent error: nothing beyond the first order
+            return self._second(circuit, metric, result)
+        every = every_order(circuit, metric, result.budget, result.families, engine=self.name)
+        if not isinstance(every, str):
+            return every
+        b, validity, notes = self._second(circuit, metric, result)
+        lower = "second" if validity.second_order_share is not None else "first"
+        return b, replace(validity, coherent_order=f"{lower} (all orders out of reach: {every})"), notes
+
+    def _second(self, circuit: NoisyCircuit, metric: str, result: PassResult) -> tuple[Budget, Validity, list[str]]:
+        """With the second-order (commutator) term of the effective generator
         when the first order looks cancelled (its coherent sum below CANCELLED x what the terms would
         give landing apart) or the sums are small (at most CHEAP_TERMS rows), else the first order;
         with the validity details of :mod:`budget.engines.orders` and its warnings."""
         first = result.budget
-        if not self.second_order:
-            return first, None, []
         squares = term_square_sum(circuit)
         cancelled = first.coherent < CANCELLED * squares
         if not (cancelled or result.terms_max <= CHEAP_TERMS) or squares == 0.0:
