@@ -117,11 +117,15 @@ class PlanBook:
         grouping: operation -> (group key, Pauli generator) pairs (columns of the coherent store).
         columns: group key -> column index.
         jumps, generators: build jump sites (state metric) / generator sites (observables).
+        coherent_generators: the generator sites carry i[H, ·] (False: the incoherent part only, the
+            engine then adds the coherent change beyond first order, :mod:`budget.engines.pauli._observe`).
     """
 
-    def __init__(self, n: int, direction: str, grouping: Grouping, columns: dict, *, jumps: bool, generators: bool):
+    def __init__(self, n: int, direction: str, grouping: Grouping, columns: dict, *, jumps: bool, generators: bool,
+                 coherent_generators: bool = True):
         self.n, self.direction, self.grouping, self.columns = n, direction, grouping, columns
         self.jumps, self.generators = jumps, generators
+        self.coherent_generators = coherent_generators
         self._plans: dict[ObjectKey, LayerPlan] = {}
         self._gen_cache: dict[ObjectKey, tuple[np.ndarray, float]] = {}
 
@@ -174,7 +178,7 @@ class PlanBook:
         hit = self._gen_cache.get(ObjectKey(nop))
         if hit is None:
             jumps = operation_jumps(nop)
-            m = generator_map(nop.hamiltonian, jumps, len(nop.qubits))
+            m = generator_map(nop.hamiltonian if self.coherent_generators else {}, jumps, len(nop.qubits))
             kappa = 2 * sum(abs(c) for c in nop.hamiltonian.values()) + 2 * sum(p for _, p in jumps)
             hit = self._gen_cache[ObjectKey(nop)] = (m, kappa)
         return hit
@@ -193,10 +197,11 @@ class PlanBook:
                 sites.append(site)
             if self.generators and (nop.hamiltonian or nop.has_incoherent):
                 m, kap = self._generator(nop)
-                gen_qa.append(qa)
-                gen_qb.append(qb)
-                gen_maps.append(m)
-                kappa += kap
+                kappa += kap  # the coherent part counts in the bound even when added apart
+                if self.coherent_generators or nop.has_incoherent:
+                    gen_qa.append(qa)
+                    gen_qb.append(qb)
+                    gen_maps.append(m)
         for r in layer.idle:
             if r.is_trivial:
                 continue

@@ -1,0 +1,71 @@
+"""Coherent change of Pauli observables beyond the first order, for the pauli engine.
+
+The first-order sweep gives δ<O> = <0|E|0> with E = Σ_t V_t† G_t(O_t) V_t (G_t the layer's
+Heisenberg generator); its coherent part is the linear term i<[H_1, Õ]> of the input-frame
+generator H_1 and the pulled-back observable Õ = U† O U (a sum of Pauli rows). Where that term
+vanishes the change is quadratic in the generator (issue 10). Two ways, best first:
+
+- every order, where the errors' light cones stay within MAX_SUPPORT_QUBITS qubits: the coherent
+  error W in the input frame as components (:class:`budget.engines.pauli._allorders.LightCones`),
+  and δ<O>_coh = Σ_s o_s (<0|W† P_s W|0> - <0|P_s|0>) over the rows o_s P_s of Õ, each
+  expectation a product over the components (:func:`budget.engines.clifford.allorders.pauli_changes`);
+  the sweep then carries the incoherent generators only;
+- otherwise the second order: with H = H_1 + H_2 (the Magnus/BCH second-order term, Blanes, Casas,
+  Oteo & Ros, Phys. Rep. 470, 151 (2009)) in the input frame,
+  δ<O>_coh ≈ i<[H, O]> + <H O H> - ½<{H², O}> summed over the rows of Õ
+  (:func:`budget.engines.clifford.observables.observable_change`, the clifford engine's pairing),
+  which replaces the sweep's linear term i<[H_1, Õ]>. It is formed while the rows of Õ times
+  the terms of H stay within PAIR_ROWS; beyond that the first order stands and the engine says so.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from budget.engines.clifford.allorders import OutOfReach, pauli_changes
+from budget.engines.clifford.observables import merge_terms, observable_change
+from budget.engines.pauli._allorders import LightCones
+from budget.engines.pauli._store import Store
+from budget.errors.noisy import NoisyCircuit
+from budget.pauli_algebra import popcount
+
+PAIR_ROWS = 5e7
+"""Largest (rows of Õ) x (terms of H) for the second-order observable terms."""
+
+
+def _rows(s: Store) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(x, z, e) of Hermitian Pauli rows, e = |x ∧ z| mod 4 (i^e X^x Z^z)."""
+    return s.x, s.z, (popcount(s.x & s.z) & 3).astype(np.uint8)
+
+
+def every_order_reach(circuit: NoisyCircuit) -> LightCones | str:
+    """The circuit's coherent error as components, or why it is out of reach."""
+    cones = LightCones(circuit.num_qubits)
+    try:
+        cones.run(circuit.body)
+    except OutOfReach as why:
+        return str(why)
+    return cones
+
+
+def every_order_changes(cones: LightCones, obs: Store, count: int, n: int) -> np.ndarray:
+    """Coherent change of each observable to every order (module docstring)."""
+    per_row = pauli_changes(cones.components(), _rows(obs), n)
+    return np.bincount(obs.key, weights=obs.coef[:, 0] * per_row, minlength=count)
+
+
+def second_order_terms(h: Store, obs: Store, count: int) -> tuple[np.ndarray, np.ndarray] | None:
+    """(linear, quadratic) coherent change of each observable for the input-frame generator ``h``
+    (module docstring); None when too costly."""
+    terms = merge_terms(*_rows(h), h.total())
+    if len(obs) * max(len(terms[3]), 1) > PAIR_ROWS:
+        return None
+    x, z, e = _rows(obs)
+    linear, quadratic = np.zeros(count), np.zeros(count)
+    for s in range(len(obs)):
+        lin, quad = observable_change(terms, (x[s], z[s], int(e[s])))
+        if quad is None:
+            return None
+        linear[obs.key[s]] += obs.coef[s, 0] * lin
+        quadratic[obs.key[s]] += obs.coef[s, 0] * quad
+    return linear, quadratic
