@@ -335,7 +335,9 @@ class PauliEngine(Engine):
         result, notes = self._tightened(circuit, metric, tuple(observables))
         b, validity, more = self._leading(circuit, metric, result)
         shares = {f: float(v) for f, v in zip(result.families, b.shares)}
-        warnings = list(notes) + more + size_warning(b) + list(result.observable_notes)
+        every = validity is not None and (validity.coherent_order or "").startswith("all orders")
+        # summed to every order, the coherent part needs no warning about resumming independent groups
+        warnings = list(notes) + more + ([] if every else size_warning(b)) + list(result.observable_notes)
         details = Details(
             parts=Parts(coherent_first_order=result.budget.coherent, coherent_exponentiated=b.coherent_resummed,
                         stochastic_first_order=b.stochastic, coherent_groups=b.groups,
