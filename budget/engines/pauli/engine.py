@@ -17,9 +17,12 @@ to ``truncation_bound``, a rigorous bound on |first order reported - first order
 largest coherent coefficient and divides EPS by 1.5-4 (TIGHTEN) while the bound exceeds ``target`` x the result
 and the time budget allows.
 
-The process metric is read in the frame of the circuit's middle (:mod:`budget.engines.pauli._meet`);
-where the first order cancels (or the sums are small) the second-order Magnus term is added
-(:mod:`budget.engines.pauli._second`); :meth:`PauliEngine.estimate_seconds` models row growth.
+The process metric is read in the frame of the circuit's middle (:mod:`budget.engines.pauli._meet`).
+The coherent part is summed to every order where the errors' light cones stay within 8 qubits
+(:mod:`budget.engines.pauli._allorders`); elsewhere, where the first order cancels (or the sums are
+small), the second-order Magnus term is added (:mod:`budget.engines.pauli._second`). Observables
+get the same orders (:mod:`budget.engines.pauli._observe`). :meth:`PauliEngine.estimate_seconds`
+models row growth.
 """
 
 from __future__ import annotations
