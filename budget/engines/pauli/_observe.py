@@ -24,8 +24,11 @@ import numpy as np
 
 from budget.engines.clifford.allorders import OutOfReach, pauli_changes
 from budget.engines.clifford.observables import merge_terms, observable_change
+from budget.engines.clifford.second import TooCostly
 from budget.engines.pauli._allorders import LightCones
+from budget.engines.pauli._plan import PlanBook
 from budget.engines.pauli._store import Store
+from budget.engines.pauli._sweep import Sweep
 from budget.errors.noisy import NoisyCircuit
 from budget.pauli_algebra import popcount
 
@@ -69,3 +72,33 @@ def second_order_terms(h: Store, obs: Store, count: int) -> tuple[np.ndarray, np
         linear[obs.key[s]] += obs.coef[s, 0] * lin
         quadratic[obs.key[s]] += obs.coef[s, 0] * quad
     return linear, quadratic
+
+
+def beyond_first(circuit: NoisyCircuit, cones: LightCones | str | None, obs: Store, first: np.ndarray, eps: float,
+                 deadline: float | None) -> tuple[np.ndarray, str | None]:
+    """Observable changes with the coherent part beyond the first order (module docstring): to
+    every order where ``cones`` holds the components (``first`` then holds the incoherent part
+    only), else with the second-order terms; with the note when only the first order stands.
+    ``obs``: the observables pulled back to the input frame, keyed by observable."""
+    if isinstance(cones, LightCones):
+        return first + every_order_changes(cones, obs, len(first), circuit.num_qubits), None
+    try:
+        sweep = _pull_coherent(circuit, eps, deadline, second=True)
+        h1, h12 = sweep.coh, Store.concat([sweep.coh, sweep.second.sum]).merged()
+    except TooCostly:
+        h1 = h12 = _pull_coherent(circuit, eps, deadline, second=False).coh
+    with_second = second_order_terms(h12, obs, len(first))
+    only_first = with_second if h12 is h1 else second_order_terms(h1, obs, len(first))
+    if with_second is None or only_first is None:
+        return first, ("observables: the coherent change is the first-order (linear) term only; its quadratic "
+                       "terms were too many to form, so a change that the first order misses reads as 0")
+    return first - only_first[0] + with_second[0] + with_second[1], None
+
+
+def _pull_coherent(circuit: NoisyCircuit, eps: float, deadline: float | None, *, second: bool) -> Sweep:
+    """A pull sweep of the coherent generator (H_1 in the input frame; with H_2 when ``second``)."""
+    n = circuit.num_qubits
+    book = PlanBook(n, "pull", lambda nop: [("all", nop.hamiltonian)], {"all": 0}, jumps=False, generators=False)
+    sweep = Sweep(n, book, eps, scale=np.ones(1), deadline=deadline, second=second)
+    sweep.run(circuit.body)
+    return sweep

@@ -40,7 +40,7 @@ from budget.engines.details import Details, Drilldown, Folding, Parts, QubitMap,
 from budget.engines.orders import cancellation_note, second_order_share, term_norm_sum, term_square_sum, validity_details
 from budget.engines.pauli._landing import LandingWalk, Skipped
 from budget.engines.pauli._allorders import LightCones, every_order
-from budget.engines.pauli._observe import every_order_changes, every_order_reach, second_order_terms
+from budget.engines.pauli._observe import beyond_first, every_order_reach
 from budget.engines.pauli._meet import meet
 from budget.engines.pauli._store import Store
 from budget.engines.pauli._plan import PlanBook
@@ -291,40 +291,13 @@ class PauliEngine(Engine):
                 terms = max(terms, osweep.terms_max)
             vals = zero_readout(osweep.err, len(letters))
             if self.second_order:
-                vals, note = self._beyond_first(circuit, cones, osweep.obs, vals, eps, deadline)
+                vals, note = beyond_first(circuit, cones, osweep.obs, vals, eps, deadline)
                 if note:
                     obs_notes.append(note)
             obs = {label: float(v) for label, v in zip(observables, vals)}
             obs_bounds = {label: float(b) for label, b in zip(observables, osweep.obs_bound)}
         return PassResult(budget, families, float(bound), float(tag_bound), obs, obs_bounds, terms, blocks, eps,
                           time.monotonic() - start, tuple(obs_notes))
-
-    def _beyond_first(self, circuit: NoisyCircuit, cones, obs: Store, first: np.ndarray, eps: float,
-                      deadline: float | None) -> tuple[np.ndarray, str | None]:
-        """Observable changes with the coherent part beyond the first order (:mod:`budget.engines.pauli._observe`):
-        to every order where the light cones are in reach (``first`` then holds the incoherent part
-        only), else with the second-order terms; the note when only the first order stands."""
-        if isinstance(cones, LightCones):
-            return first + every_order_changes(cones, obs, len(first), circuit.num_qubits), None
-        try:
-            sweep = self._pull_coherent(circuit, eps, deadline, second=True)
-            h1, h12 = sweep.coh, Store.concat([sweep.coh, sweep.second.sum]).merged()
-        except TooCostly:
-            h1 = h12 = self._pull_coherent(circuit, eps, deadline, second=False).coh
-        with_second = second_order_terms(h12, obs, len(first))
-        only_first = with_second if h12 is h1 else second_order_terms(h1, obs, len(first))
-        if with_second is None or only_first is None:
-            return first, ("observables: the coherent change is the first-order (linear) term only; its quadratic "
-                           "terms were too many to form, so a change that the first order misses reads as 0")
-        return first - only_first[0] + with_second[0] + with_second[1], None
-
-    def _pull_coherent(self, circuit: NoisyCircuit, eps: float, deadline: float | None, *, second: bool) -> Sweep:
-        """A pull sweep of the coherent generator (H_1 in the input frame; with H_2 when ``second``)."""
-        n = circuit.num_qubits
-        sweep = Sweep(n, PlanBook(n, "pull", lambda nop: [("all", nop.hamiltonian)], {"all": 0}, jumps=False, generators=False),
-                      eps, scale=np.ones(1), deadline=deadline, second=second)
-        sweep.run(circuit.body)
-        return sweep
 
     # -- public -------------------------------------------------------------------------------
 
