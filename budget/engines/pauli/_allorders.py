@@ -118,9 +118,8 @@ class LightCones:
             for _ in range(count):
                 self._items(rep.body)
             return
-        for cid in touched:
+        for cid, (ideal, noisy) in self._blocks(rep.body, touched).items():
             qubits, w = self.parts[cid]
-            ideal, noisy = self._block(rep.body, qubits, noisy=False), self._block(rep.body, qubits, noisy=True)
             self.work += 80.0 * w.shape[0] ** 3
             w = cycle_basis(ideal).power(count).conj().T @ w @ cycle_basis(noisy).power(count)
             self.parts[cid] = (qubits, w)
@@ -144,25 +143,30 @@ class LightCones:
                     changed = True
         return {int(self.owner[q]) for nop in ops for q in nop.op.qubits if self.owner[q] >= 0}
 
-    def _block(self, body: tuple[NoisyItem, ...], qubits: list[int], *, noisy: bool) -> np.ndarray:
-        """The block's ideal or noisy unitary on ``qubits`` (operations outside them act elsewhere)."""
-        k = len(qubits)
-        where = {q: i for i, q in enumerate(qubits)}
-        acc = np.eye(2**k, dtype=complex)
+    def _blocks(self, body: tuple[NoisyItem, ...], touched: set[int]) -> dict[int, tuple[np.ndarray, np.ndarray]]:
+        """The block's (ideal, noisy) unitaries on each touched component, in one pass over its
+        operations (an operation outside every component acts elsewhere: the block was closed)."""
+        acc = {cid: [np.eye(2 ** len(self.parts[cid][0]), dtype=complex) for _ in range(2)] for cid in touched}
         for it in body:
             if gate_kind(it, "pauli engine") is Kind.REPEAT:
-                acc = cycle_basis(self._block(it.body, qubits, noisy=noisy)).power(int(it.count)) @ acc
-                self.work += 40.0 * 8.0**k
+                for cid, pair in self._blocks(it.body, touched).items():
+                    for a in range(2):
+                        acc[cid][a] = cycle_basis(pair[a]).power(int(it.count)) @ acc[cid][a]
+                    self.work += 80.0 * acc[cid][0].shape[0] ** 3
                 continue
             for nop in it.operations:
-                if not all(q in where for q in nop.op.qubits):
-                    continue  # outside the component (the block was closed: no error, no effect there)
-                pos = tuple(where[q] for q in nop.op.qubits)
-                for m in (self._gate(nop), self._error(nop) if noisy else None):
-                    if m is not None:
-                        acc = apply_local(acc, m, pos, k, left=True)
-                        self.work += 4.0**k * 2 ** len(pos)
-        return acc
+                cid = int(self.owner[nop.op.qubits[0]])
+                if cid not in acc:
+                    continue
+                qubits = self.parts[cid][0]
+                k, pos = len(qubits), tuple(qubits.index(q) for q in nop.op.qubits)
+                gate, err = self._gate(nop), self._error(nop)
+                for a, factors in enumerate(((gate,), (gate, err))):
+                    for m in factors:
+                        if m is not None:
+                            acc[cid][a] = apply_local(acc[cid][a], m, pos, k, left=True)
+                            self.work += 4.0**k * 2 ** len(pos)
+        return {cid: (pair[0], pair[1]) for cid, pair in acc.items()}
 
     # -- components ------------------------------------------------------------------------------
     def _join(self, qs: tuple[int, ...]) -> tuple[int, tuple[int, ...]]:

@@ -25,15 +25,20 @@ import numpy as np
 from budget.engines.clifford.allorders import OutOfReach, pauli_changes
 from budget.engines.clifford.observables import merge_terms, observable_change
 from budget.engines.clifford.second import TooCostly
+from budget.engines.frame.pauli_frame import pack_bits
 from budget.engines.pauli._allorders import LightCones
 from budget.engines.pauli._plan import PlanBook
-from budget.engines.pauli._store import Store
+from budget.engines.pauli._store import Store, group_equal
 from budget.engines.pauli._sweep import Sweep
 from budget.errors.noisy import NoisyCircuit
 from budget.pauli_algebra import popcount
 
-PAIR_ROWS = 5e7
-"""Largest (rows of Õ) x (terms of H) for the second-order observable terms."""
+PAIR_ROWS = 1e6
+"""Largest (rows of Õ) x (terms of H) for the second-order observable terms (about a second)."""
+MAX_ROWS = 200
+"""Rows of Õ paired one by one (a Python loop, a few ms each) for the second-order observable terms at most."""
+_FIRST_ONLY = ("observables: the coherent change is the first-order (linear) term only; its quadratic terms "
+               "were too many to form, so a change that the first order misses reads as 0")
 
 
 def _rows(s: Store) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -52,9 +57,18 @@ def every_order_reach(circuit: NoisyCircuit) -> LightCones | str:
 
 
 def every_order_changes(cones: LightCones, obs: Store, count: int, n: int) -> np.ndarray:
-    """Coherent change of each observable to every order (module docstring)."""
-    per_row = pauli_changes(cones.components(), _rows(obs), n)
-    return np.bincount(obs.key, weights=obs.coef[:, 0] * per_row, minlength=count)
+    """Coherent change of each observable to every order (module docstring). A row with an X or Y
+    outside the components changes by 0 (<0|·|0> vanishes before and after); the others depend only
+    on their letters on the components' qubits, so each distinct restriction is read once."""
+    comps = cones.components()
+    mask = pack_bits([q for qubits, _ in comps for q in qubits], n)
+    inside = ~np.any(obs.x & ~mask, axis=1)
+    rows = obs.take(inside)
+    if not len(rows):
+        return np.zeros(count)
+    inv, first = group_equal(np.concatenate([rows.x & mask, rows.z & mask], axis=1))
+    per_group = pauli_changes(comps, _rows(Store(rows.x[first] & mask, rows.z[first] & mask, rows.key[first], rows.coef[first])), n)
+    return np.bincount(rows.key, weights=rows.coef[:, 0] * per_group[inv], minlength=count)
 
 
 def second_order_terms(h: Store, obs: Store, count: int) -> tuple[np.ndarray, np.ndarray] | None:
@@ -75,13 +89,16 @@ def second_order_terms(h: Store, obs: Store, count: int) -> tuple[np.ndarray, np
 
 
 def beyond_first(circuit: NoisyCircuit, cones: LightCones | str | None, obs: Store, first: np.ndarray, eps: float,
-                 deadline: float | None) -> tuple[np.ndarray, str | None]:
+                 deadline: float | None, h_rows: int) -> tuple[np.ndarray, str | None]:
     """Observable changes with the coherent part beyond the first order (module docstring): to
     every order where ``cones`` holds the components (``first`` then holds the incoherent part
     only), else with the second-order terms; with the note when only the first order stands.
-    ``obs``: the observables pulled back to the input frame, keyed by observable."""
+    ``obs``: the observables pulled back to the input frame, keyed by observable; ``h_rows``: the
+    rows of the first-order coherent sum (the size of H that the pairing would meet)."""
     if isinstance(cones, LightCones):
         return first + every_order_changes(cones, obs, len(first), circuit.num_qubits), None
+    if len(obs) > MAX_ROWS or len(obs) * max(h_rows, 1) > PAIR_ROWS:
+        return first, _FIRST_ONLY
     try:
         sweep = _pull_coherent(circuit, eps, deadline, second=True)
         h1, h12 = sweep.coh, Store.concat([sweep.coh, sweep.second.sum]).merged()
@@ -90,8 +107,7 @@ def beyond_first(circuit: NoisyCircuit, cones: LightCones | str | None, obs: Sto
     with_second = second_order_terms(h12, obs, len(first))
     only_first = with_second if h12 is h1 else second_order_terms(h1, obs, len(first))
     if with_second is None or only_first is None:
-        return first, ("observables: the coherent change is the first-order (linear) term only; its quadratic "
-                       "terms were too many to form, so a change that the first order misses reads as 0")
+        return first, _FIRST_ONLY
     return first - only_first[0] + with_second[0] + with_second[1], None
 
 

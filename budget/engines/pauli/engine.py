@@ -291,7 +291,7 @@ class PauliEngine(Engine):
                 terms = max(terms, osweep.terms_max)
             vals = zero_readout(osweep.err, len(letters))
             if self.second_order:
-                vals, note = beyond_first(circuit, cones, osweep.obs, vals, eps, deadline)
+                vals, note = beyond_first(circuit, cones, osweep.obs, vals, eps, deadline, len(sweep.coh))
                 if note:
                     obs_notes.append(note)
             obs = {label: float(v) for label, v in zip(observables, vals)}
