@@ -141,3 +141,56 @@ def cpmg_cycle(rng, n: int, eps: float) -> tuple[NoisyLayer, ...]:
 
 def as_circuit(n: int, cycle: tuple[NoisyLayer, ...], count: int) -> NoisyCircuit:
     return NoisyCircuit(tuple(f"q[{i}]" for i in range(n)), (NoisyRepeat(cycle, count),))
+
+
+# -- random blocks with observables -----------------------------------------------------------
+
+def _random_block(rng, n: int, eps: float, *, clifford: bool) -> tuple[NoisyLayer, ...]:
+    layers = []
+    for _ in range(int(rng.integers(2, 5))):
+        free = list(rng.permutation(n))
+        ops = []
+        while free:
+            if len(free) >= 2 and rng.random() < 0.4:
+                qs = (int(free.pop()), int(free.pop()))
+                name, params = str(rng.choice(CLIFFORD_2)), ()
+            else:
+                qs = (int(free.pop()),)
+                name = str(rng.choice(CLIFFORD_1 if clifford else CLIFFORD_1 + ["t", "rx", "ry"]))
+                params = (float(rng.uniform(-np.pi, np.pi)),) if name in ("rx", "ry") else ()
+            labels = ["X", "Y", "Z"] if len(qs) == 1 else ["XX", "ZZ", "XI", "IZ", "YZ"]
+            h = {str(lab): float(rng.normal(0, eps)) for lab in rng.choice(labels, size=2, replace=False)}
+            ops.append(op(name, qs, h, params))
+        layers.append(NoisyLayer(tuple(ops), (), 0.0))
+    return tuple(layers)
+
+
+def observable_cases(total: int):
+    """Seeded cases (seed 31): Clifford (even) and non-Clifford (odd) plain random blocks, x/y/x/y
+    echoes and cancelled cycles, repeated 1-300 times, each with three random Pauli observables:
+    (case, clifford, n, count, cycle, labels, letters)."""
+    rng = np.random.default_rng(31)
+    for case in range(total):
+        clifford = case % 2 == 0
+        n = int(rng.integers(1, 4))
+        count = int(rng.choice([1, 7, 40, 300]))
+        eps = float(rng.uniform(0.2, 1.0) * 0.03 / count)  # summed rotations up to a few 0.01 rad
+        kind = case % 4
+        if kind == 1:
+            cyc = xy4_cycle(rng, n, 10 * eps)
+        elif kind == 3 and n <= 2:
+            cyc = cancelled_cycle(rng, n, min(0.02, 3 * eps), clifford=clifford)
+        else:
+            cyc = _random_block(rng, n, eps, clifford=clifford)
+        labels, letters = [], []
+        for _ in range(3):
+            qs = sorted(rng.choice(n, size=int(rng.integers(1, n + 1)), replace=False))
+            lt = {int(q): str(rng.choice(["X", "Y", "Z"])) for q in qs}
+            letters.append(lt)
+            labels.append("".join(f"{p}{q}" for q, p in lt.items()))
+        yield case, clifford, n, count, cyc, labels, letters
+
+
+def third_order_size(cycle: tuple[NoisyLayer, ...], count: int) -> float:
+    """(Σ_t ||G_t||)³ over the unrolled circuit: the size of the third-order generator terms."""
+    return float((count * sum(np.sqrt(sum(h * h for h in nop.hamiltonian.values())) for lay in cycle for nop in lay.operations)) ** 3)

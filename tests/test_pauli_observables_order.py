@@ -12,10 +12,8 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 
-import numpy as np
 import pytest
-from echo_reference import as_circuit, cancelled_cycle, infidelity, observable_change, op, repeated, xy4_cycle
-from test_observables_second_order import _random_block
+from echo_reference import as_circuit, infidelity, observable_cases, observable_change, op, repeated, third_order_size
 
 import budget.engines.pauli._allorders as allorders
 from budget import analyze
@@ -26,30 +24,9 @@ PAULI = PauliEngine(truncate=0.0)
 FIRST_ONLY = PauliEngine(truncate=0.0, second_order=False)
 
 
-def _cases(count_cases: int):
-    """Seeded random blocks (Clifford and non-Clifford, plain, x/y/x/y echoes, cancelled cycles),
-    repeated 1-300 times, with three random Pauli observables each and cirq's unitaries."""
-    rng = np.random.default_rng(31)
-    for case in range(count_cases):
-        clifford = case % 2 == 0
-        n = int(rng.integers(1, 4))
-        count = int(rng.choice([1, 7, 40, 300]))
-        eps = float(rng.uniform(0.2, 1.0) * 0.03 / count)  # summed rotations up to a few 0.01 rad
-        kind = case % 4
-        if kind == 1:
-            cyc = xy4_cycle(rng, n, 10 * eps)
-        elif kind == 3 and n <= 2:
-            cyc = cancelled_cycle(rng, n, min(0.02, 3 * eps), clifford=clifford)
-        else:
-            cyc = _random_block(rng, n, eps, clifford=clifford)
-        labels, letters = [], []
-        for _ in range(3):
-            qs = sorted(rng.choice(n, size=int(rng.integers(1, n + 1)), replace=False))
-            lt = {int(q): str(rng.choice(["X", "Y", "Z"])) for q in qs}
-            letters.append(lt)
-            labels.append("".join(f"{p}{q}" for q, p in lt.items()))
-        third = (count * sum(math.sqrt(sum(h * h for h in nop.hamiltonian.values())) for lay in cyc for nop in lay.operations)) ** 3
-        yield case, clifford, n, count, cyc, labels, letters, third
+def _cases(total: int):
+    for case, clifford, n, count, cyc, labels, letters in observable_cases(total):
+        yield case, clifford, n, count, cyc, labels, letters, third_order_size(cyc, count)
 
 
 def test_every_order_on_100_random_cases_against_cirq():
