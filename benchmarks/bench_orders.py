@@ -1,6 +1,6 @@
-"""Cost of the orders beyond the first in the clifford engine, side by side in one process.
+"""Cost of the orders beyond the first in the clifford or pauli engine, side by side in one process.
 
-For each circuit the clifford engine runs three ways, alternated ``--repeats`` times: first order
+For each circuit the engine (``--engine clifford``, the default, or ``pauli``) runs two ways, alternated ``--repeats`` times: first order
 only (``second_order=False``), and the default (second order, plus every order of the coherent
 part where the error's components touch at most 8 qubits, budget/engines/clifford/allorders.py),
 and prints the median seconds, the ratio default / first order, the value and which order the
@@ -12,8 +12,13 @@ engine reached. Circuits:
   orbits, second order within each repetition.
 - ``scramble-200``: 20 random single-qubit Clifford layers with Z errors and CZ brickworks with ZZ
   errors on 200 qubits: the all-orders pass stops within its first layers (support).
+- ``ising-20`` (pauli only): the 20-qubit, 4-step Ising Trotter loop of tests/pauli_cases.py
+  (non-Clifford), with two observables: every order is out of reach (support).
 
-    .venv/bin/python benchmarks/bench_orders.py [--repeats 3]
+The pauli engine's all-orders pass (budget/engines/pauli/_allorders.py) follows light cones; its
+``orbit-6`` case executes more layers than the engine walks, so it is left out there.
+
+    .venv/bin/python benchmarks/bench_orders.py [--repeats 3] [--engine pauli]
 """
 
 from __future__ import annotations
@@ -28,8 +33,10 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
 from echo_reference import op, xy4_cycle  # noqa: E402
+from pauli_cases import ising  # noqa: E402
 
 from budget.engines.clifford.engine import CliffordEngine  # noqa: E402
+from budget.engines.pauli.engine import PauliEngine  # noqa: E402
 from budget.errors.noisy import NoisyCircuit, NoisyLayer, NoisyRepeat  # noqa: E402
 
 
@@ -64,16 +71,23 @@ def scramble_200() -> NoisyCircuit:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeats", type=int, default=3)
+    parser.add_argument("--engine", choices=("clifford", "pauli"), default="clifford")
     args = parser.parse_args()
-    engines = {"first": CliffordEngine(qubit_map=False, second_order=False), "default": CliffordEngine(qubit_map=False)}
-    for name, build in (("xy4-200", xy4_200), ("orbit-6", orbit_6), ("scramble-200", scramble_200)):
+    if args.engine == "clifford":
+        engines = {"first": CliffordEngine(qubit_map=False, second_order=False), "default": CliffordEngine(qubit_map=False)}
+        cases = (("xy4-200", xy4_200), ("orbit-6", orbit_6), ("scramble-200", scramble_200))
+    else:
+        engines = {"first": PauliEngine(second_order=False), "default": PauliEngine()}
+        cases = (("xy4-200", xy4_200), ("scramble-200", scramble_200), ("ising-20", lambda: ising(20, 4)))
+    for name, build in cases:
         circuit = build()
+        observables = ("Z0", "X5Z6") if name == "ising-20" else ()
         times: dict[str, list[float]] = {k: [] for k in engines}
         results = {}
         for _ in range(args.repeats):
             for key, engine in engines.items():
                 t = time.perf_counter()
-                results[key] = engine.run(circuit, "process")
+                results[key] = engine.run(circuit, "process", observables=observables)
                 times[key].append(time.perf_counter() - t)
         med = {k: statistics.median(v) for k, v in times.items()}
         d = results["default"].details

@@ -34,6 +34,7 @@ import numpy as np
 
 from budget.engines.matrices.channels import by_family
 from budget.engines.frame.groups import Budget, budget_result, size_warning
+from budget.engines.frame.pauli_frame import num_words
 from budget.engines.base import METRICS, Engine, EngineResult, Metric, QuadraticForm, parse_observable, zero_result
 from budget.engines.clifford.second import PAIR_BUDGET, TooCostly
 from budget.engines.details import Details, Drilldown, Folding, Parts, QubitMap, RepeatedBlock, Truncation, Validity
@@ -78,6 +79,10 @@ CANCELLED = 0.1
 """First order below this fraction of Σ_t ‖G_t‖² counts as cancelled (the clifford engine's test)."""
 CHEAP_TERMS = 5000
 """Largest rows held by the first pass for which the second order is always formed."""
+CHEAP_PAIRS = 2e7
+"""Largest pair-words (half the executed coherent terms squared, times words per row) for which the
+second order is formed without a cancellation (the 200-qubit Clifford brickwork of
+benchmarks/bench_orders.py needs 7e7 and took 25 s for a change below the fourth digit)."""
 GROWTH = 0.6
 """Row growth per layer per non-Clifford site per qubit (estimate_seconds; the 100-qubit Ising loop
 grows about 2.5x per Trotter step and half at the default threshold)."""
@@ -384,7 +389,10 @@ class PauliEngine(Engine):
         first = result.budget
         squares = term_square_sum(circuit)
         cancelled = first.coherent < CANCELLED * squares
-        if not (cancelled or result.terms_max <= CHEAP_TERMS) or squares == 0.0:
+        terms = sum(m * len(nop.hamiltonian) for layer, m in circuit.multiplicities() for nop in layer.operations)
+        pairs = 0.5 * float(terms) ** 2 * num_words(circuit.num_qubits)  # what the sweep would pair, at most
+        cheap = result.terms_max <= CHEAP_TERMS and pairs <= CHEAP_PAIRS
+        if not (cancelled or cheap) or squares == 0.0:
             return first, Validity(second_order="not formed (costly, and the first order shows no cancellation)"), []
         try:
             coh = self._second_sum(circuit, metric, result.eps)
