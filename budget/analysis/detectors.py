@@ -13,11 +13,14 @@ The basis follows the convention of the error-correction literature (e.g. Fowler
 Martinis & Cleland, PRA 86, 032324 (2012); the detectors stim's generator declares):
 
 1. a measurement whose outcome equals that of the previous measurement of the same qubit is
-   compared with it (a check repeated every round);
+   compared with it (a check repeated every round), else one that equals the product of the two
+   previous ones is compared with both (a check whose basis cycles X, Y, Z: stim's XYZ color code);
 2. otherwise a measurement that is deterministic by itself is a detector (first round of a check);
 3. the final data measurements (qubits measured once, with only one-qubit gates after) are combined with the last
    measurement of each neighbouring check qubit (neighbours: a two-qubit gate joins them) when that
-   parity is deterministic;
+   parity is deterministic, else with one earlier measurement, else with the last and one earlier
+   (a check whose basis cycles from round to round, as in the XYZ color code; these two forms only
+   with all the neighbours);
 4. deterministic parities not spanned by 1-3 that include final data measurements are logical
    observables (unless the user names them); any other missing parity is added as a detector.
 """
@@ -200,6 +203,8 @@ def infer_checks(
             continue
         if prev[j] is not None and cols[j] == cols[prev[j]]:
             add((prev[j], j), "repeat")
+        elif prev[j] is not None and prev[prev[j]] is not None and cols[j] == cols[prev[j]] ^ cols[prev[prev[j]]]:
+            add((prev[prev[j]], prev[j], j), "repeat")  # a cycling basis: Z = X·Y up to phase
         elif cols[j] == 0:
             add((j,), "single")
     neighbours = _neighbours(circuit)
@@ -207,9 +212,11 @@ def infer_checks(
         if j in data:
             continue
         near = sorted(i for i in data if qubits[i] in neighbours.get(q, ()))
-        found = _solve(cols, j, near)
-        if found:
-            add(tuple(sorted((j,) + found)), "final")
+        for own in _own_outcomes(j, prev):
+            found = _solve(cols, _xor(cols, own), near, subsets=own == (j,))
+            if found:
+                add(tuple(sorted(own + found)), "final")
+                break
     named = observables is not None
     obs: list[tuple[int, ...]] = []
     if named:
@@ -251,18 +258,35 @@ def _xor(cols: list[int], ms) -> int:
     return acc
 
 
-def _solve(cols: list[int], j: int, near: list[int]) -> tuple[int, ...] | None:
-    """All of ``near`` when col_j ⊕ ⊕_{i∈near} col_i = 0 (the check's full support), else the
-    smallest non-empty subset that gives 0 (searched when ``near`` has at most 10 entries), or None."""
+def _own_outcomes(j: int, prev: list[int | None]) -> Iterator[tuple[int, ...]]:
+    """The check qubit's own outcomes a final detector may close with: its last one ``j``, then
+    one earlier outcome alone, then ``j`` with one earlier outcome (latest first). A check that
+    repeats unchanged needs only the first; one whose basis cycles (stim's XYZ color code) closes
+    with the round measured in the data's basis, or with the product of two rounds, and then only
+    with all its data neighbours (a subset could be another check's parity)."""
+    earlier = []
+    p = prev[j]
+    while p is not None:
+        earlier.append(p)
+        p = prev[p]
+    yield (j,)
+    yield from ((p,) for p in earlier)
+    yield from ((p, j) for p in earlier)
+
+
+def _solve(cols: list[int], target: int, near: list[int], *, subsets: bool = True) -> tuple[int, ...] | None:
+    """All of ``near`` when ⊕_{i∈near} col_i = target (the check's full support), else (with
+    ``subsets``) the smallest non-empty subset that gives it (searched when ``near`` has at most 10
+    entries), or None."""
     if not near:
         return None
-    if _xor(cols, near) == cols[j]:
+    if _xor(cols, near) == target:
         return tuple(near)
-    if len(near) > 10:
+    if len(near) > 10 or not subsets:
         return None
     for size in range(1, len(near) + 1):
         for combo in combinations(near, size):
-            if _xor(cols, combo) == cols[j]:
+            if _xor(cols, combo) == target:
                 return combo
     return None
 
