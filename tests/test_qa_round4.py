@@ -7,6 +7,8 @@ density-matrix simulator for spot checks of numbers.
 
 from __future__ import annotations
 
+import re
+
 import pytest
 import stim
 
@@ -37,3 +39,43 @@ def test_color_code_detectors_are_stims(distance, rounds):
     assert rank(ours + [set(o) for o in checks.observables]) == rank(ours + [set(d) for d in dets] + [set(obs[0])])
     if rounds <= 4:
         assert {frozenset(d.measurements) for d in checks.detectors} == set(dets)
+
+
+# --- stim's default OpenQASM 3 (detectors and observables as parity assignments) was refused ----------
+
+@pytest.mark.parametrize("code", ["repetition_code:memory", "surface_code:rotated_memory_z", "color_code:memory_xyz"])
+def test_stims_default_qasm3_reads_like_the_stripped_one(code):
+    """`to_qasm(open_qasm_version=3)` writes `dets[0] = rec[0] ^ 0;` and
+    `obs[0] = obs[0] ^ rec[8] ^ 0;`; the reader refused line 27 as a classical assignment. A parity
+    changes no qubit: the circuit must be the one read from stim's output without them."""
+    gen = stim.Circuit.generated(code, distance=3, rounds=3)
+    full = parse_qasm(gen.to_qasm(open_qasm_version=3), source="full.qasm")
+    bare = parse_qasm(gen.to_qasm(open_qasm_version=3, skip_dets_and_obs=True), source="bare.qasm")
+    assert full.executed_counts() == bare.executed_counts()
+    assert _shape(full) == _shape(bare)
+    checks = infer_checks(attach(full, ErrorModel.from_dict({})))
+    dets, obs = stim_annotations(gen)
+    assert {frozenset(d.measurements) for d in checks.detectors} == set(dets)
+
+
+def _shape(circuit) -> str:
+    """The circuit tree without line numbers."""
+    return re.sub(r"line=\d+", "line=?", repr(circuit.body))
+
+
+PARITY_HEAD = 'OPENQASM 3.0;\ninclude "stdgates.inc";\nqubit[2] q;\nbit[2] c;\nbit d;\n'
+
+
+def test_parity_assignments_and_their_limits():
+    ok = parse_qasm(PARITY_HEAD + "c[0] = measure q[0];\nd = c[0] ^ 1;\nd ^= c[1];\nx q[1];\n")
+    assert _shape(ok) == _shape(parse_qasm(PARITY_HEAD + "c[0] = measure q[0];\nx q[1];\n"))
+    with pytest.raises(Exception, match=r"<string>:8: condition on 'd', which the parity assignment at line 7 computed"):
+        parse_qasm(PARITY_HEAD + "c[0] = measure q[0];\nd = c[0] ^ c[1];\nif (d) x q[1];\n")
+    # measured again: a condition may read it
+    parse_qasm(PARITY_HEAD + "d = c[0] ^ c[1];\nd = measure q[0];\nif (d) x q[1];\n")
+    with pytest.raises(Exception, match=r"<string>:6: this classical assignment \(supported: .*parity of bits"):
+        parse_qasm(PARITY_HEAD + "d = c[0] & c[1];\nx q[0];\n")
+    with pytest.raises(Exception, match=r"<string>:6: a parity reads single bits"):
+        parse_qasm(PARITY_HEAD + "d = c ^ 1;\nx q[0];\n")
+    with pytest.raises(Exception, match=r"<string>:6: a parity is written into one bit"):
+        parse_qasm(PARITY_HEAD + "c = d ^ 1;\nx q[0];\n")

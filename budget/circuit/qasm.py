@@ -40,7 +40,8 @@ _UNSUPPORTED = {
     "CalibrationDefinition": "defcal",
     "CalibrationStatement": "cal block",
     "CalibrationGrammarDeclaration": "defcalgrammar",
-    "ClassicalAssignment": "classical assignment (only 'bit = measure qubit' and calls of measuring subroutines are supported)",
+    "ClassicalAssignment": "this classical assignment (supported: 'c[0] = measure q[0]', a call of a measuring "
+                           "subroutine, a parity of bits such as 'd[0] = c[0] ^ c[1] ^ 0')",
     "AliasStatement": "alias 'let'",
     "IODeclaration": "input/output declaration (give the value in the file instead)",
     "Pragma": "pragma",
@@ -152,6 +153,8 @@ class _Reader:
             self.subroutine(st)
         elif isinstance(st, ast.ClassicalAssignment) and st.op.name == "=" and self.measuring(st.rvalue):
             self.assign(st.rvalue, st.lvalue, st, out)
+        elif isinstance(st, ast.ClassicalAssignment) and self.bits.parity(st):
+            pass  # a parity of recorded bits (stim's detectors and observables): no quantum effect
         elif isinstance(st, ast.ExpressionStatement) and isinstance(st.expression, ast.FunctionCall):
             self.assign(st.expression, None, st, out)
         elif isinstance(st, ast.ForInLoop):

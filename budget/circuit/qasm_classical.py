@@ -33,6 +33,7 @@ class Bits:
         self.table: dict[str, int | None] = {}  # name -> size (None: a single bit)
         self.varying: dict[str, int | None] = {}  # register -> line of the loop that indexes it by its variable
         self.loop_vars: list[str] = []
+        self.computed: dict[str, int | None] = {}  # bit -> line of the parity assignment that wrote it last
         self._auto = 0
 
     def error(self, node: ast.QASMNode | None, what: str) -> CircuitSyntaxError:
@@ -57,10 +58,57 @@ class Bits:
         bits = self.operand(node, writing=True)
         if len(bits) != count:
             raise self.error(where, f"measurement of {count} qubit(s) into {len(bits)} bit(s): the sizes must match")
+        for bit in bits:
+            self.computed.pop(bit, None)
         return bits
 
-    def operand(self, node: ast.Expression, *, writing: bool = False) -> list[str]:
-        """Bit names of ``c``, ``c[k]``, ``c[i]`` (loop variable) or ``b``."""
+    def parity(self, st: ast.ClassicalAssignment) -> bool:
+        """Read ``d = c[0] ^ c[1] ^ 0;`` or ``d ^= c[2];`` (stim writes its detectors and
+        observables so): a parity of recorded bits into one bit. It changes no qubit, so the
+        reader keeps only the fact that the bit now holds a computed value (a later condition on
+        it is refused). False when the statement is not such a parity.
+
+        Raises:
+            CircuitSyntaxError: the target is not one bit.
+        """
+        if st.op.name not in ("=", "^="):
+            return False
+        terms: list[ast.Expression] = []
+        stack = [st.rvalue]
+        while stack:
+            node = stack.pop()
+            if isinstance(node, ast.BinaryExpression) and node.op.name == "^":
+                stack += [node.lhs, node.rhs]
+            elif isinstance(node, ast.IntegerLiteral) and node.value in (0, 1) or isinstance(node, ast.BooleanLiteral):
+                continue
+            else:
+                terms.append(node)
+        try:
+            for term in terms:
+                if len(self.operand(term, reading_parity=True)) != 1:
+                    raise self.error(term, "a parity reads single bits (c[0] ^ c[1]), not a whole register")
+        except CircuitSyntaxError:
+            if any(not isinstance(t, (ast.Identifier, ast.IndexExpression, ast.IndexedIdentifier)) for t in terms):
+                return False
+            raise
+        target = self.operand(st.lvalue, writing=True)
+        if len(target) != 1:
+            raise self.error(st, "a parity is written into one bit (d[0] = c[0] ^ c[1]), not a whole register")
+        self.computed[target[0]] = line_of(st)
+        return True
+
+    def operand(self, node: ast.Expression, *, writing: bool = False, reading_parity: bool = False) -> list[str]:
+        """Bit names of ``c``, ``c[k]``, ``c[i]`` (loop variable) or ``b``; a condition (neither
+        ``writing`` nor ``reading_parity``) may not read a bit a parity assignment wrote."""
+        bits = self._operand(node, writing=writing or reading_parity)
+        if not writing and not reading_parity:
+            for bit in bits:
+                if bit in self.computed:
+                    raise self.error(node, f"condition on '{bit}', which the parity assignment at line "
+                                     f"{self.computed[bit]} computed: conditions may read measured bits only")
+        return bits
+
+    def _operand(self, node: ast.Expression, *, writing: bool) -> list[str]:
         if isinstance(node, ast.Identifier):
             name, index = node.name, None
         elif isinstance(node, ast.IndexedIdentifier) and len(node.indices) == 1 and len(node.indices[0]) == 1:
