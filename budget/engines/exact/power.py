@@ -22,6 +22,8 @@ that its ~1e-14 error does not grow with N; eigenvalues with |w| < 1 decay and t
 
 from __future__ import annotations
 
+import hashlib
+
 import numpy as np
 
 from budget.engines.matrices.periodic import cycle_basis
@@ -32,9 +34,49 @@ FIXED_POINT_TOL = 1e-12
 """Channel eigenvalues within this distance of 1 are set to exactly 1 (see channel_power)."""
 
 
+_DECOMPOSITIONS: dict[bytes, tuple[int, object]] = {}
+"""Decompositions by block content (bytes held, decomposition): a depth curve asks for many powers
+of one block, and each eig of a 256 x 256 block costs about as much as the rest of a point."""
+KEPT_BYTES = 1 << 30
+"""At most this much memory in remembered decompositions (oldest dropped first)."""
+
+
+def _remember(block: np.ndarray, build):
+    """``build(block)``, computed once per block content (a digest of shape, type and bytes)."""
+    key = hashlib.blake2b(repr((block.shape, block.dtype.str)).encode() + block.tobytes(), digest_size=32).digest()
+    hit = _DECOMPOSITIONS.get(key)
+    if hit is not None:
+        return hit[1]
+    value = build(block)
+    size = 3 * block.nbytes * (2 if block.dtype.kind == "f" else 1)  # up to three complex matrices
+    if size <= KEPT_BYTES:
+        _DECOMPOSITIONS[key] = (size, value)
+        while sum(entry[0] for entry in _DECOMPOSITIONS.values()) > KEPT_BYTES:
+            _DECOMPOSITIONS.pop(next(iter(_DECOMPOSITIONS)))
+    return value
+
+
 def unitary_power(block: np.ndarray, count: int) -> np.ndarray:
     """block^count for a unitary block, through its Schur form (any count >= 0, 10**9 included)."""
-    return cycle_basis(block).power(int(count))
+    return _remember(np.ascontiguousarray(block), cycle_basis).power(int(count))
+
+
+def _eigen(block: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
+    """(w, V, V⁻¹) of a channel block with the eigenvalues pinned (see channel_power); V⁻¹ is None
+    when V is singular or κ₁(V) > EIG_CONDITION_LIMIT. Remembered by block content."""
+
+    def build(b: np.ndarray):
+        w, v = np.linalg.eig(b)
+        try:
+            v_inv = np.linalg.inv(v)
+        except np.linalg.LinAlgError:
+            return w, v, None
+        if np.linalg.norm(v, 1) * np.linalg.norm(v_inv, 1) > EIG_CONDITION_LIMIT:
+            return w, v, None
+        w = np.where(np.abs(w - 1.0) < FIXED_POINT_TOL, 1.0, w / np.maximum(1.0, np.abs(w)))
+        return w, v, v_inv
+
+    return _remember(np.ascontiguousarray(block), build)
 
 
 def channel_power(block: np.ndarray, count: int) -> tuple[np.ndarray, str]:
@@ -50,13 +92,8 @@ def channel_power(block: np.ndarray, count: int) -> tuple[np.ndarray, str]:
     moduli that rounding pushed above 1 are set back to 1 so that w^N cannot blow up.
     """
     count = int(count)
-    w, v = np.linalg.eig(block)
-    try:
-        v_inv = np.linalg.inv(v)
-    except np.linalg.LinAlgError:
-        v_inv = None
-    if v_inv is not None and np.linalg.norm(v, 1) * np.linalg.norm(v_inv, 1) <= EIG_CONDITION_LIMIT:
-        w = np.where(np.abs(w - 1.0) < FIXED_POINT_TOL, 1.0, w / np.maximum(1.0, np.abs(w)))
+    w, v, v_inv = _eigen(block)
+    if v_inv is not None:
         mod = np.abs(w)
         with np.errstate(divide="ignore"):
             log_mod = np.where(mod > 0, np.log(np.where(mod > 0, mod, 1.0)), -np.inf)
