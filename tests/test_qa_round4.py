@@ -104,3 +104,19 @@ def test_channel_power_decomposes_each_block_once(monkeypatch):
         assert method == "eig"
         assert np.allclose(got, np.linalg.matrix_power(block, n), atol=1e-12)
     assert len(calls) == 1
+
+
+# --- "exact, clifford, generators does not fit" ----------------------------------------------------------
+
+def test_engine_reason_agrees_in_number():
+    """Three engines that do not fit were listed with a singular verb; one keeps it."""
+    from budget.engines.door import choose
+
+    wide = 'OPENQASM 3;\ninclude "stdgates.inc";\nqubit[16] q;\nt q[0];\n' + "".join(
+        f"cx q[{i}], q[{i + 1}];\n" for i in range(15))
+    noisy = attach(parse_qasm(wide), ErrorModel.from_dict({"gates": {"cx": {"cphase": 0.01}}}))
+    assert choose(noisy, "process", "auto").reason.endswith("exact, clifford, generators do not fit")
+    ghz = 'OPENQASM 3;\ninclude "stdgates.inc";\nqubit[40] q;\nh q[0];\n' + "".join(
+        f"cx q[{i}], q[{i + 1}];\n" for i in range(39))
+    noisy = attach(parse_qasm(ghz), ErrorModel.from_dict({"gates": {"cx": {"cphase": 0.01}}}))
+    assert choose(noisy, "process", "auto").reason.endswith("; exact does not fit")

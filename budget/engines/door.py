@@ -197,7 +197,7 @@ def choose(circuit: NoisyCircuit, metric: str, name: str = "auto", *, brief: boo
         why += "; " + ", ".join(f"{c[0]} would take about {_seconds(c[2])}" for c in skipped)
         why += f" (budget {TIME_BUDGET_S:.0f} s)"
     elif more_accurate:
-        why += f"; {', '.join(more_accurate)} does not fit"
+        why += f"; {', '.join(more_accurate)} {'does' if len(more_accurate) == 1 else 'do'} not fit"
     else:
         why += ", the most accurate engine that fits"
     return Choice(engine.configure(**options) if options else engine, why, t)
