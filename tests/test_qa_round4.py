@@ -120,3 +120,28 @@ def test_engine_reason_agrees_in_number():
         f"cx q[{i}], q[{i + 1}];\n" for i in range(39))
     noisy = attach(parse_qasm(ghz), ErrorModel.from_dict({"gates": {"cx": {"cphase": 0.01}}}))
     assert choose(noisy, "process", "auto").reason.endswith("; exact does not fit")
+
+
+# --- beyond range: the family shares were withheld, the per-operation shares and the qubit map not ------
+
+def test_beyond_range_withholds_every_first_order_split(tmp_path):
+    """ghz_n127 under the public model: the family table showed '—' but the table under it listed
+    operation shares and a 'marginal process infidelity per qubit' of 8.3 (an infidelity above 1).
+    Every first-order split is now left out together, with one line saying why."""
+    from rich.console import Console
+
+    from budget import analyze
+    from budget.report.terminal import render_budget
+
+    ghz = tmp_path / "ghz.qasm"
+    ghz.write_text('OPENQASM 3;\ninclude "stdgates.inc";\nqubit[30] q;\nh q[0];\n'
+                   + "".join(f"cx q[{i}], q[{i + 1}];\n" for i in range(29)))
+    model = {"qubits": {"t1_us": 2.0}, "gates": {"cx": {"duration_ns": 200.0, "cphase": 0.01}}}
+    result = analyze(str(ghz), model)
+    assert result.actual is None and result.details.landing is not None
+    console = Console(width=250, color_system=None)
+    with console.capture() as cap:
+        console.print(render_budget(result))
+    text = cap.get()
+    assert "top operations" not in text and "where the error lands" not in text
+    assert text.count("left out: the error is beyond the first-order range") == 1

@@ -151,9 +151,13 @@ def render_budget(result: BudgetResult) -> Group:
     parts.append(Text(""))
     if result.families:
         parts.append(families_table(result))
-    for extra in (drilldown_table(result), qubit_map_table(result)):
-        if extra is not None:
-            parts.append(extra)
+    extras = [e for e in (drilldown_table(result), qubit_map_table(result)) if e is not None]
+    if extras and not result.shows_shares:  # first-order numbers the family table withholds too
+        why = ("the error is beyond the first-order range" if result.actual is None
+               else "no engine within its range could split the total")
+        parts.append(Text(f"per-operation shares and the per-qubit map are left out: {why}", style="dim"))
+    else:
+        parts.extend(extras)
     parts.extend(detector_views(result))
     if result.observables:
         ot = Table(title="observables (error of the expectation value)", title_justify="left")
