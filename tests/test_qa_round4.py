@@ -145,3 +145,35 @@ def test_beyond_range_withholds_every_first_order_split(tmp_path):
     text = cap.get()
     assert "top operations" not in text and "where the error lands" not in text
     assert text.count("left out: the error is beyond the first-order range") == 1
+
+
+# --- reader: a loop of 10**29 iterations crashed (OverflowError), rx(1e400) ran with a NaN matrix ------
+
+@pytest.mark.parametrize("line, message", [
+    ("for int i in [0:99999999999999999999999999999] { h q[0]; }",
+     r"c.qasm:4: for loop range \[0:99999999999999999999999999999\] runs 100,000,000,000,000,000,000,000,000,000 "
+     r"times: at most 10\*\*18 iterations per loop"),
+    ("rx(1e400) q[0];", r"c.qasm:4: the expression evaluates to inf: expected a finite number"),
+    ("rx(1e308 * 10) q[0];", r"c.qasm:4: the expression evaluates to inf: expected a finite number"),
+])
+def test_reader_refuses_overflowing_numbers_in_one_line(tmp_path, line, message):
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    circ, model, out = tmp_path / "c.qasm", tmp_path / "m.toml", tmp_path / "o.json"
+    circ.write_text(f'OPENQASM 3.0;\ninclude "stdgates.inc";\nqubit[2] q;\n{line}\n')
+    model.write_text("[gates.h]\noverrotation = 0.01\n[gates.rx]\noverrotation = 0.01\n")
+    res = CliRunner().invoke(app, ["analyze", str(circ), "-e", str(model), "--json", str(out)], env={"COLUMNS": "400"})
+    lines = [ln for ln in res.output.splitlines() if ln.strip()]
+    assert res.exit_code == 2 and not out.exists() and len(lines) == 1, res.output
+    assert re.search(message, lines[0]), lines[0]
+    assert "Traceback" not in res.output and "RuntimeWarning" not in res.output
+
+
+def test_loop_counts_by_arithmetic_match_range():
+    """The count is computed as (end - start) // step + 1 (len(range) overflows past 2**63): it must
+    equal Python's range length on every sign combination."""
+    for start, end, step in [(0, 9, 1), (5, 1, -1), (0, 10, 3), (5, -1, -2), (0, 0, 1), (3, 3, -1), (-4, 7, 5)]:
+        text = f'OPENQASM 3.0;\ninclude "stdgates.inc";\nqubit q;\nfor int i in [{start}:{step}:{end}] {{ x q; }}\n'
+        assert parse_qasm(text).executed_counts()[0] == len(range(start, end + (1 if step > 0 else -1), step))

@@ -31,6 +31,8 @@ from budget.graph import layer_program
 from budget.problems import CircuitSyntaxError, place
 
 STANDARD_INCLUDES = ("qelib1.inc", "stdgates.inc")
+MAX_LOOP_COUNT = 10**18
+"""Most iterations of one for loop (the limit of --cycles: repeat counts stay exact as Python ints)."""
 _BUILTIN_NAMES = {"U": "u", "CX": "cx"}
 _UNSUPPORTED = {
     "WhileLoop": "'while' loop (its iteration count is not known before running; use a for loop over an integer range)",
@@ -370,7 +372,10 @@ class _Reader:
             step = 1 if it.step is None else self.regs.integer(it.step, "for loop range step")
             if step == 0:
                 raise self.error(st, "for loop range step is 0")
-            count = len(range(start, end + (1 if step > 0 else -1), step))
+            count = max(0, (end - start) // step + 1)  # len(range(...)) overflows past 2**63
+            if count > MAX_LOOP_COUNT:
+                raise self.error(st, f"for loop range [{start}:{'' if it.step is None else f'{step}:'}{end}] runs "
+                                 f"{count:,} times: at most 10**18 iterations per loop (as for --cycles)")
             if count == 0:
                 raise self.error(
                     st,

@@ -120,7 +120,10 @@ def evaluate(expr: ast.Expression, env: Mapping[str, Number], *, source: str) ->
         kind = type(node).__name__.replace("Literal", " literal")
         raise fail(node, f"{kind} is not supported in a constant expression")
 
-    return ev(expr)
+    value = ev(expr)
+    if isinstance(value, float) and not math.isfinite(value):
+        raise fail(expr, f"the expression evaluates to {value}: expected a finite number")
+    return value
 
 
 def evaluate_int(expr: ast.Expression, env: Mapping[str, Number], *, source: str, what: str) -> int:
