@@ -177,3 +177,34 @@ def test_loop_counts_by_arithmetic_match_range():
     for start, end, step in [(0, 9, 1), (5, 1, -1), (0, 10, 3), (5, -1, -2), (0, 0, 1), (3, 3, -1), (-4, 7, 5)]:
         text = f'OPENQASM 3.0;\ninclude "stdgates.inc";\nqubit q;\nfor int i in [{start}:{step}:{end}] {{ x q; }}\n'
         assert parse_qasm(text).executed_counts()[0] == len(range(start, end + (1 if step > 0 else -1), step))
+
+
+@pytest.mark.parametrize("value, message", [
+    ("Infinity", r"c.json: moment 0: operation Rx\(infπ\)\(q\(0\)\): its matrix cannot be computed"),
+    ("NaN", r"c.json: moment 0: operation Rx\(nanπ\)\(q\(0\)\): its matrix has entries that are not finite"),
+])
+def test_cirq_reader_refuses_non_finite_angles(tmp_path, value, message):
+    """The same fault in the cirq JSON reader: Rx(NaN) ran as a NaN matrix, Rx(Infinity) raised
+    ZeroDivisionError from inside cirq (a traceback)."""
+    import cirq
+
+    from budget.circuit.load import load_circuit
+    from budget.problems import InputError
+
+    path = tmp_path / "c.json"
+    path.write_text(cirq.to_json(cirq.Circuit(cirq.rx(0.125).on(cirq.LineQubit(0)))).replace("0.125", value))
+    with pytest.raises(InputError, match=message):
+        load_circuit(path)
+
+
+def test_cirq_repetitions_beyond_the_limit(tmp_path):
+    import cirq
+
+    from budget.circuit.load import load_circuit
+    from budget.problems import InputError
+
+    q = cirq.LineQubit(0)
+    path = tmp_path / "r.json"
+    path.write_text(cirq.to_json(cirq.Circuit(cirq.CircuitOperation(cirq.FrozenCircuit(cirq.X(q)), repetitions=10**20))))
+    with pytest.raises(InputError, match=r"repetitions = 100,000,000,000,000,000,000: at most 10\*\*18"):
+        load_circuit(path)

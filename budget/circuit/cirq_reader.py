@@ -23,7 +23,7 @@ import numpy as np
 from budget.circuit.decompose import expand
 from budget.circuit.gates import ideal_unitary
 from budget.circuit.ir import Measure, Operation, Reset, StructuredCircuit
-from budget.circuit.program import Barrier, Conditional, Loop, Statement, final_readout
+from budget.circuit.program import MAX_LOOP_COUNT, Barrier, Conditional, Loop, Statement, final_readout
 from budget.circuit.source import check_qubit_count, read_text, require_content
 from budget.graph import layer_program
 from budget.problems import CircuitSyntaxError, InputError, place
@@ -160,6 +160,8 @@ class _Converter:
         reps = op.repetitions
         if not isinstance(reps, (int, np.integer)):
             raise self.error(where, f"CircuitOperation repetitions = {reps!r}: expected an integer")
+        if abs(reps) > MAX_LOOP_COUNT:
+            raise self.error(where, f"CircuitOperation repetitions = {reps:,}: at most 10**18 (as for --cycles)")
         body = op.circuit.unfreeze().transform_qubits(lambda q: op.qubit_map.get(q, q))
         body = cirq.resolve_parameters(body, op.param_resolver)
         if op.measurement_key_map:
@@ -180,7 +182,15 @@ class _Converter:
             raise self.error(where, f"operation {op} has unresolved parameters; call cirq.resolve_parameters first")
         if not op.qubits:
             return []  # global phase: no observable effect
-        if not cirq.has_unitary(op):
+        try:
+            with np.errstate(all="ignore"):  # larger operations are decomposed (self.large), not built whole
+                matrix = cirq.unitary(op, None) if len(op.qubits) <= 2 else (True if cirq.has_unitary(op) else None)
+        except (ArithmeticError, ValueError) as exc:  # cirq on an infinite exponent: ZeroDivisionError
+            raise self.error(where, f"operation {op}: its matrix cannot be computed ({exc})") from None
+        if isinstance(matrix, np.ndarray) and not np.isfinite(matrix).all():
+            raise self.error(where, f"operation {op}: its matrix has entries that are not finite numbers "
+                             "(an angle or exponent of inf or nan)")
+        if matrix is None:
             raise self.error(
                 where,
                 f"operation {op} is not unitary (reset, noise channel or similar); "
@@ -193,7 +203,7 @@ class _Converter:
         if found is not None:
             return [Operation(found[0], qs, found[1])]
         label = str(op.gate) if op.gate is not None else str(op)
-        return [Operation("unitary", qs, label=label, matrix=cirq.unitary(op).astype(complex))]
+        return [Operation("unitary", qs, label=label, matrix=matrix.astype(complex))]
 
     def measure(self, op: cirq.Operation, where: str) -> list[Statement]:
         gate = op.gate

@@ -32,6 +32,9 @@ class Barrier:
     qubits: tuple[int, ...] = ()
     line: int | None = None
 
+MAX_LOOP_COUNT = 10**18
+"""Most iterations of one loop a reader accepts (the limit of --cycles: counts stay exact ints)."""
+
 
 @dataclass(frozen=True)
 class Loop:

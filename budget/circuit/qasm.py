@@ -21,7 +21,7 @@ from openqasm3 import ast
 from budget.circuit.decompose import DECOMPOSITIONS, expand
 from budget.circuit.gates import ALIASES, GATES
 from budget.circuit.ir import Measure, Operation, Reset, StructuredCircuit
-from budget.circuit.program import Barrier, Conditional, Loop, Statement, final_readout
+from budget.circuit.program import MAX_LOOP_COUNT, Barrier, Conditional, Loop, Statement, final_readout
 from budget.circuit.qasm_classical import Bits
 from budget.circuit.qasm_expr import Number, evaluate, line_of
 from budget.circuit.qasm_parse import parse_tree, qasm_version
@@ -31,8 +31,6 @@ from budget.graph import layer_program
 from budget.problems import CircuitSyntaxError, place
 
 STANDARD_INCLUDES = ("qelib1.inc", "stdgates.inc")
-MAX_LOOP_COUNT = 10**18
-"""Most iterations of one for loop (the limit of --cycles: repeat counts stay exact as Python ints)."""
 _BUILTIN_NAMES = {"U": "u", "CX": "cx"}
 _UNSUPPORTED = {
     "WhileLoop": "'while' loop (its iteration count is not known before running; use a for loop over an integer range)",
