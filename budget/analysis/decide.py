@@ -20,7 +20,7 @@ from budget.analysis.calibration import (
     CalibrationPlan, calibration_json, calibration_plan, model_knob_keys, read_calibration,
 )
 from budget.analysis.closed_loop import close_loop
-from budget.analysis.floor import floor_remedy
+from budget.analysis.floor import accurate_floor, floor_remedy
 from budget.analysis.families import per_operation
 from budget.analysis.phase_estimation import find_probes
 from budget.analysis.run import read_circuit, read_model
@@ -111,18 +111,23 @@ def checked_tolerances(
     the incoherent floor exceeds the target :func:`~budget.analysis.floor.floor_remedy` says what
     incoherent numbers would meet it.
     """
+    qf, floor_note = accurate_floor(qf, noisy, metric, target, engine=engine)
+    notes = (floor_note,) if floor_note else ()
     if metric in MEASURED_METRICS:  # family rows (the detector form is read by finite differences, per knob row)
         report = tolerances(qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles)
+        report = dataclasses.replace(report, warnings=notes + report.warnings)
         report = close_loop(report, noisy, qf, detector=detector) if closed_loop else report
         return dataclasses.replace(report, warnings=report.warnings + hardware_notes(report))
     if family_by == "gate":
         site_noisy = attach(structured, model, family_by="pair")
-        site_qf = dataclasses.replace(quadratic_form(site_noisy, metric, engine=engine), floor_sources=dict(qf.floor_sources))
+        site_qf = dataclasses.replace(quadratic_form(site_noisy, metric, engine=engine), floor=qf.floor,
+                                      floor_sources=dict(qf.floor_sources))
         family_of = site_families(noisy, site_noisy)
         groups = [(family_of.get(f, site_family(f)), k) for f, k in site_qf.labels]
     else:
         site_noisy, site_qf, groups = noisy, qf, None
     report = tolerances(site_qf, target, assume=assume, allocation=allocation, metric=metric, cycles=cycles, groups=groups)
+    report = dataclasses.replace(report, warnings=notes + report.warnings)
     if closed_loop:
         report = close_loop(report, site_noisy, site_qf)
     if not report.feasible:

@@ -41,6 +41,7 @@ import numpy as np
 from scipy.optimize import Bounds, LinearConstraint, milp
 
 from budget.analysis.calibration import CalibrationSettings, SiteRun, _drift_of, _site, read_calibration
+from budget.analysis.floor import accurate_floor
 from budget.analysis.phase_estimation import Probe, find_probes
 from budget.analysis.run import read_circuit, read_model
 from budget.analysis.sensitivity import knob_key, quadratic_form
@@ -106,7 +107,7 @@ def plan(circuit: Any, errors: Any, *, target: float, hours: float, cycles: int 
     model = read_model(errors)
     settings = read_calibration(model.calibration, source=model.source)
     noisy = attach(structured, model)
-    qf = quadratic_form(noisy, metric, engine=engine)
+    qf, _ = accurate_floor(quadratic_form(noisy, metric, engine=engine), noisy, metric, target, engine=engine)
     budget = target - qf.floor
     if budget <= 0:
         raise InputError(f"target = {target:g}: the incoherent floor alone is {qf.floor:.3g} (T1/T2 and gate error "
