@@ -237,3 +237,26 @@ def test_floor_near_the_target_is_judged_on_the_accurate_engine(tmp_path):
     assert math.isclose(data["incoherent_floor"], exact, rel_tol=1e-9)
     assert data["coherent_budget"] == pytest.approx(0.088 - exact)
     assert "exceeds the target" not in res.output and "leading-order incoherent floor 0.09 reaches" in res.output
+
+
+# --- small wording faults: [gates.U] refused for a circuit that uses U; "1 operations in 1 layers" -----
+
+def test_builtin_names_in_the_model_and_singular_counts(tmp_path):
+    """stim's OpenQASM 3 writes `U(...)`; the model refused `[gates.U]` ("not a gate in the gate
+    table") while the reader mapped U to u. Both now name the same gate, once."""
+    from rich.console import Console
+
+    from budget import analyze
+    from budget.problems import InputError
+    from budget.report.terminal import render_budget
+
+    circ = tmp_path / "u.qasm"
+    circ.write_text("OPENQASM 3.0;\nqubit q;\nU(pi/2, 0, pi) q;\n")
+    result = analyze(str(circ), {"gates": {"U": {"overrotation": 0.01}}})
+    assert [f.name for f in result.families] == ["u"] and result.actual > 0
+    with pytest.raises(InputError, match="gate u is already described by gates.U"):
+        analyze(str(circ), {"gates": {"U": {"overrotation": 0.01}, "u": {"overrotation": 0.01}}})
+    console = Console(width=200, color_system=None)
+    with console.capture() as cap:
+        console.print(render_budget(result))
+    assert "1 qubit, 1 operation in 1 layer " in cap.get()

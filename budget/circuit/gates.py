@@ -104,7 +104,8 @@ GATES: dict[str, GateSpec] = {
 }
 """Gate name -> spec. Aliases accepted by readers are mapped in ALIASES."""
 
-ALIASES = {"cnot": "cx", "phase": "p", "i": "id", "u0": "id", "cphase": "cp"}
+ALIASES = {"cnot": "cx", "phase": "p", "i": "id", "u0": "id", "cphase": "cp", "U": "u", "CX": "cx"}
+"""Other names of table gates; ``U`` and ``CX`` are the OpenQASM built-ins."""
 
 
 def spec(name: str) -> GateSpec:

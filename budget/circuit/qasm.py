@@ -31,7 +31,6 @@ from budget.graph import layer_program
 from budget.problems import CircuitSyntaxError, place
 
 STANDARD_INCLUDES = ("qelib1.inc", "stdgates.inc")
-_BUILTIN_NAMES = {"U": "u", "CX": "cx"}
 _UNSUPPORTED = {
     "WhileLoop": "'while' loop (its iteration count is not known before running; use a for loop over an integer range)",
     "DelayInstruction": "delay (idle time is not modelled as an instruction; layers set the timing)",
@@ -280,7 +279,7 @@ class _Reader:
         if name in self.gates:
             self.inline(name, params, qubits, line, out, stack)
             return
-        canon = _BUILTIN_NAMES.get(name, ALIASES.get(name, name))
+        canon = ALIASES.get(name, name)  # U and CX, the built-ins, among them
         if name == "u0" and len(params) == 1:  # qelib1's u0(γ) is an identity of duration γ
             canon, params = "id", ()
         if canon in GATES:

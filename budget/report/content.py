@@ -124,7 +124,8 @@ def minutes(seconds: float) -> str:
     return f"{seconds / 3600:.1f} h"
 
 
-def _count(n: int, word: str) -> str:
+def with_noun(n: int, word: str) -> str:
+    """``n`` with ``word`` in the singular or plural: "1 layer", "1,000 layers"."""
     return f"{n:,} {word}" + ("" if n == 1 else "s")
 
 
@@ -144,7 +145,7 @@ def verdict(result: BudgetResult, target: float) -> tuple[bool | None, str]:
 def summary_words(data: ReportData) -> str:
     """The opening paragraph: what was analysed, naive versus actual, the verdict, what to calibrate."""
     r = data.result
-    shape = f"{_count(r.qubits, 'qubit')}, {_count(r.operations, 'operation')} in {_count(r.layers, 'layer')}"
+    shape = f"{with_noun(r.qubits, 'qubit')}, {with_noun(r.operations, 'operation')} in {with_noun(r.layers, 'layer')}"
     cyc = f", the whole circuit run {r.cycles:,} times" if r.cycles != 1 else ""
     parts = [
         f"We analysed {short_name(r.source)} ({shape}{cyc}) under the error model "

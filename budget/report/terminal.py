@@ -9,7 +9,7 @@ from rich.text import Text
 
 from budget.analysis.ratios import at_rounding_level
 from budget.analysis.result import CAUTION, BudgetResult, naive_words
-from budget.report.content import fixed, num
+from budget.report.content import fixed, num, with_noun
 from budget.report.detector_views import detector_views
 
 _METRIC_WORDS = {
@@ -134,7 +134,7 @@ def render_budget(result: BudgetResult) -> Group:
     """The whole report as one rich renderable."""
     head = Text.assemble(
         (f"{result.source}", "bold"),
-        f"  ·  {result.qubits} qubit{'' if result.qubits == 1 else 's'}, {result.operations:,} operations in {result.layers:,} layers",
+        f"  ·  {with_noun(result.qubits, 'qubit')}, {with_noun(result.operations, 'operation')} in {with_noun(result.layers, 'layer')}",
         f"  ·  {result.cycles:,} cycle(s)" if result.cycles != 1 else "",
     )
     parts: list = [head, Text(""), summary_table(result), verdict_text(result)]
