@@ -19,6 +19,7 @@ engine that fits, the first-order floor's linearity in the rates gives g = E/s.
 from __future__ import annotations
 
 import dataclasses
+import math
 from dataclasses import dataclass
 from typing import Any
 
@@ -138,9 +139,9 @@ def scaled_incoherent(circuit: NoisyCircuit, gates: float, relaxation: float) ->
 
 
 def accurate_floor(qf: Any, noisy: NoisyCircuit, metric: str, target: float, *, engine: str = "auto") -> tuple[Any, str | None]:
-    """``qf`` with its floor from the most accurate engine that fits, when the leading-order floor
-    s = Σ incoherent errors reaches the target E but that engine's floor (every coherent knob at
-    zero) stays below it, and a note saying so; else ``qf`` unchanged and None.
+    """``qf`` with its floor from the most accurate engine that fits (every coherent knob at zero),
+    when the leading-order floor s = Σ incoherent errors reaches the target E, and a note saying
+    so; else (or when no engine fits) ``qf`` unchanged and None.
 
     The leading-order floor adds the incoherent errors of every operation; the exact value
     1 - Π(1 - e_k) is smaller by about s²/2, so near the target the two disagree on whether any
@@ -156,12 +157,16 @@ def accurate_floor(qf: Any, noisy: NoisyCircuit, metric: str, target: float, *, 
     except TooLargeError:
         return qf, None
     value = float(runner.run(bare, metric).infidelity)
-    if not 0 <= value < target:
+    if not 0 < value < math.inf:
         return qf, None
     scale = value / qf.floor
     sources = {k: v * scale for k, v in qf.floor_sources.items()}
-    note = (f"the leading-order incoherent floor {qf.floor:.4g} reaches the target {target:g}, but the {runner.name} "
-            f"engine's floor (every coherent knob at zero) is {value:.4g}: the tolerances use {value:.4g}")
+    if value < target:
+        note = (f"the leading-order incoherent floor {qf.floor:.4g} reaches the target {target:g}, but the {runner.name} "
+                f"engine's floor (every coherent knob at zero) is {value:.4g}: the tolerances use {value:.4g}")
+    else:
+        note = (f"incoherent floor from the {runner.name} engine (every coherent knob at zero): {value:.4g} "
+                f"(leading order {qf.floor:.4g})")
     return dataclasses.replace(qf, floor=value, floor_sources=sources), note
 
 
