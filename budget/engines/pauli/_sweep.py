@@ -64,6 +64,12 @@ MAX_WALKED_LAYERS = 10**6
 """Layers one sweep walks at most (repeats run cycle by cycle unless folded or stopped early)."""
 
 
+PATIENCE_CYCLES = 32
+"""Cycles of a repeated block walked before the sweep judges that it will not converge: past them,
+a block whose remaining cycles would take the sweep beyond MAX_WALKED_LAYERS is refused at once
+rather than after 10^6 walked layers."""
+
+
 class TooManyLayers(TooLargeError):
     """A sweep would walk more than MAX_WALKED_LAYERS layers (a refusal the user reads)."""
 
@@ -320,7 +326,10 @@ class Sweep:
         step = None  # the second-order sum's change over the last cycle
         last = None  # the last cycle's Step (_converge), while the block may still converge
         h2_steps: list[Store] = []  # H_2's change per cycle since S's change became steady
+        start = self.layers_walked
         for k in range(count):
+            if k >= PATIENCE_CYCLES:
+                self._check_patience(rep, k, start)
             before = self.snapshot()
             outer = self.log
             self.log = DropLog(self.layers_walked, outer)
@@ -355,6 +364,16 @@ class Sweep:
                 self.note_block(rep, {"mode": "fixed point", "cycles_walked": k + 1})
                 return
         self.note_block(rep, {"mode": "cycles", "cycles_walked": count})
+
+    def _check_patience(self, rep: NoisyRepeat, k: int, start: int) -> None:
+        """Refuse now when ``k`` cycles of ``rep`` neither converged nor reached a fixed point and
+        walking the remaining ones would pass MAX_WALKED_LAYERS."""
+        per_cycle = (self.layers_walked - start) / k
+        if self.layers_walked + (int(rep.count) - k) * per_cycle > MAX_WALKED_LAYERS:
+            raise TooManyLayers(
+                f"pauli engine: a repeated block has neither converged nor reached a fixed "
+                f"point after {k} cycles, and walking the rest cycle by cycle would pass {MAX_WALKED_LAYERS:,} layers "
+                "(docs/methods.md, \"Repeated blocks\"); use fewer cycles or the generators engine")
 
     def note_block(self, rep: NoisyRepeat, entry: dict) -> None:
         """Report how a repeated block was handled (count: of the block it was cut from, if cut)."""
