@@ -355,8 +355,8 @@ BAD = [
     ("OPENQASM 2.0;\nqreg q[1];\nrz(foo) q[0];\n", 3, ["unknown name", "'foo'"]),
     ("OPENQASM 2.0;\nqreg q[1];\nrz(1/0) q[0];\n", 3, ["cannot evaluate"]),
     ("OPENQASM 2.0;\nqreg q[1];\nqreg q[2];\n", 3, ["declared twice"]),
-    ("OPENQASM 3;\nqubit[2] q;\nfor int i in [0:3] {\n  rx(i * 0.1) q[0];\n}\n", 4, ["loop variable 'i'", "line 3"]),
-    ("OPENQASM 3;\nqubit[2] q;\nfor int i in [0:3] {\n  h q[i];\n}\n", 4, ["loop variable 'i'"]),
+    ("OPENQASM 3;\nqubit[2] q;\nfor int i in [0:2000] {\n  rx(i * 0.1) q[0];\n}\n", 4, ["loop variable 'i'", "line 3", "2,001 times", "1,000"]),
+    ("OPENQASM 3;\nqubit[2] q;\nfor int i in [0:3] {\n  h q[i];\n}\n", 4, ["index 2", "out of range"]),
     ("OPENQASM 3;\nqubit q;\nbit c;\nc = measure q;\nwhile (c) { x q; }\n", 5, ["while"]),
     ("OPENQASM 3;\ninclude \"stdgates.inc\";\nqubit[2] q;\nctrl @ x q[0], q[1];\n", 4, ["modifier", "ctrl"]),
     ("OPENQASM 3;\nqubit q;\ndelay[100ns] q;\n", 3, ["delay"]),
@@ -426,3 +426,33 @@ def test_docs_examples_read(tmp_path, monkeypatch):
     structured = scope["structured"]
     assert structured.qubits == ("q(0)", "q(1)") and structured.body[1].count == 10**6
     assert load_circuit(tmp_path / "cycle.json").executed_counts() == structured.executed_counts()
+
+
+def _items_of(text: str):
+    """The circuit's items with their line numbers left out (a loop written out and the same gates
+    written by hand sit on different lines)."""
+    def strip(items):
+        out = []
+        for it in items:
+            if isinstance(it, Layer):
+                out.append(("layer", tuple((op.gate, op.qubits, tuple(round(a, 12) for a in op.params)) for op in it.operations)))
+            else:
+                out.append(("repeat", it.count, tuple(strip(it.body))))
+        return out
+
+    return strip(parse_qasm(text).body)
+
+
+def test_index_loop_is_written_out_as_the_same_gates_by_hand():
+    """OpenQASM 3 for-loop semantics (the variable takes each value of the range in order; spec,
+    "Looping and branching"): a loop whose variable indexes qubits or enters an angle equals the
+    same gates written by hand; an enclosing loop without its variable in use stays a kept block."""
+    looped = ("OPENQASM 3;\ninclude \"stdgates.inc\";\nqubit[4] q;\nfor int r in [0:9] {\n"
+              "  for int j in [0:2] { cx q[j], q[j+1]; }\n  for int k in {3, 1} { rz(0.1 * k) q[k]; }\n}\n")
+    by_hand = ("OPENQASM 3;\ninclude \"stdgates.inc\";\nqubit[4] q;\nfor int r in [0:9] {\n"
+               "  cx q[0], q[1];\n  cx q[1], q[2];\n  cx q[2], q[3];\n  rz(0.3) q[3];\n  rz(0.1) q[1];\n}\n")
+    assert _items_of(looped) == _items_of(by_hand)
+    assert _items_of(looped)[0][:2] == ("repeat", 10)
+    counting_down = "OPENQASM 3;\nqubit[3] q;\nconst int j = 7;\nfor int j in [2:-1:0] { x q[j]; }\nrx(0.1 * j) q[0];\n"
+    by_hand = "OPENQASM 3;\nqubit[3] q;\nx q[2];\nx q[1];\nx q[0];\nrx(0.7) q[0];\n"
+    assert _items_of(counting_down) == _items_of(by_hand)  # the constant j is back after the loop

@@ -341,20 +341,47 @@ class _Reader:
     def loop(self, st: ast.ForInLoop, out: list[Statement]) -> None:
         var = st.identifier.name
         use = _first_use(st.block, var, set(self.bits.table))
-        if use is not None:
-            raise self.error(
-                line_of(use) or line_of(st),
-                f"loop variable '{var}' of the for loop at line {line_of(st)} is used in its body: "
-                "loops are kept as repeated blocks, so every iteration must be identical "
-                "(only a classical bit may be indexed by it, as in c[i] = measure q;)",
-            )
         count = self.loop_count(st)
+        if use is not None:  # an index loop (q[j], rz(j*t)): written out, one copy per value
+            if count > MAX_UNROLLED:
+                raise self.error(
+                    line_of(use) or line_of(st),
+                    f"loop variable '{var}' of the for loop at line {line_of(st)} is used in its body and the loop runs "
+                    f"{count:,} times: loops are kept as repeated blocks, so every iteration must be identical, and a "
+                    f"loop whose variable is used is written out only up to {MAX_UNROLLED:,} iterations "
+                    "(a classical bit may be indexed by it in a kept loop, as in c[i] = measure q;)",
+                )
+            self.unroll(st, var, out)
+            return
         self.bits.loop_vars.append(var)
         try:
             body = self.statements(st.block, in_loop=True)
         finally:
             self.bits.loop_vars.pop()
         out.append(Loop(tuple(body), count, line_of(st)))
+
+    def unroll(self, st: ast.ForInLoop, var: str, out: list[Statement]) -> None:
+        """Write out a loop whose variable appears in its body: the body once per value, with the
+        variable bound as an integer constant (OpenQASM 3 for-loop semantics, iteration in order)."""
+        saved = self.consts.get(var, _UNSET)
+        try:
+            for value in self.loop_values(st):
+                self.consts[var] = value
+                out.extend(self.statements(st.block, in_loop=True))
+        finally:
+            if saved is _UNSET:
+                self.consts.pop(var, None)
+            else:
+                self.consts[var] = saved
+
+    def loop_values(self, st: ast.ForInLoop):
+        """The values a (checked) for loop runs over, in order."""
+        it = st.set_declaration
+        if isinstance(it, ast.DiscreteSet):
+            return [self.regs.integer(v, "for loop value") for v in it.values]
+        start = self.regs.integer(it.start, "for loop range start")
+        step = 1 if it.step is None else self.regs.integer(it.step, "for loop range step")
+        return range(start, self.regs.integer(it.end, "for loop range end") + (1 if step > 0 else -1), step)
 
     def loop_count(self, st: ast.ForInLoop) -> int:
         it = st.set_declaration
@@ -381,6 +408,11 @@ class _Reader:
                 )
             return count
         raise self.error(st, "for loop over something other than an integer range or {set} is not supported")
+
+
+_UNSET = object()
+MAX_UNROLLED = 1000
+"""Iterations at most of a loop written out because its variable is used in its body."""
 
 
 def _rename_last(out: list[Statement], old: str, new: str) -> None:
