@@ -260,3 +260,18 @@ def test_builtin_names_in_the_model_and_singular_counts(tmp_path):
     with console.capture() as cap:
         console.print(render_budget(result))
     assert "1 qubit, 1 operation in 1 layer " in cap.get()
+
+
+def test_zero_error_model_prints_zero_in_compensate_like_analyze(tmp_path):
+    """An error model with nothing in it (an x with over-rotation 0): `compensate` printed
+    "0.000e+00" where `analyze` prints "0" (exact zero: no error, fact of the model)."""
+    from typer.testing import CliRunner
+
+    from budget.cli import app
+
+    circ, model = tmp_path / "z.qasm", tmp_path / "z.toml"
+    circ.write_text('OPENQASM 3;\ninclude "stdgates.inc";\nqubit[2] q;\nfor int i in [0:4] { x q[0]; cx q[0], q[1]; }\n')
+    model.write_text("[gates.x]\noverrotation = 0.0\n")
+    res = CliRunner().invoke(app, ["compensate", str(circ), "-e", str(model)], env={"COLUMNS": "200"})
+    assert res.exit_code == 0, res.output
+    assert "e+00" not in res.output and re.search(r"before\s*│\s*0\s*│\s*0\s*│", res.output), res.output

@@ -29,7 +29,10 @@ def render_import(imported, out: Path) -> Group:
 
 
 def _e(x: float | None) -> str:
-    return "—" if x is None else f"{x:.3e}"
+    """Four significant digits; an exact zero prints as 0, as in ``analyze`` (:func:`budget.report.content.num`)."""
+    if x is None:
+        return "—"
+    return "0" if x == 0 else f"{x:.3e}"
 
 
 METRIC_WORDS = {"detectors": "P(some detector fires)", "record": "record infidelity"}
