@@ -379,9 +379,15 @@ class _Reader:
         it = st.set_declaration
         if isinstance(it, ast.DiscreteSet):
             return [self.regs.integer(v, "for loop value") for v in it.values]
+        start, step, end = self.range_parts(it)
+        return range(start, end + (1 if step > 0 else -1), step)
+
+    def range_parts(self, it: ast.RangeDefinition) -> tuple[int, int, int]:
+        """(start, step, end) of a for-loop range, each an integer."""
         start = self.regs.integer(it.start, "for loop range start")
+        end = self.regs.integer(it.end, "for loop range end")
         step = 1 if it.step is None else self.regs.integer(it.step, "for loop range step")
-        return range(start, self.regs.integer(it.end, "for loop range end") + (1 if step > 0 else -1), step)
+        return start, step, end
 
     def loop_count(self, st: ast.ForInLoop) -> int:
         it = st.set_declaration
@@ -391,9 +397,7 @@ class _Reader:
             self.regs.check_range(it)
             if it.start is None or it.end is None:
                 raise self.error(st, "for loop range needs a start and an end, e.g. [0:9]")
-            start = self.regs.integer(it.start, "for loop range start")
-            end = self.regs.integer(it.end, "for loop range end")
-            step = 1 if it.step is None else self.regs.integer(it.step, "for loop range step")
+            start, step, end = self.range_parts(it)
             if step == 0:
                 raise self.error(st, "for loop range step is 0")
             count = max(0, (end - start) // step + 1)  # len(range(...)) overflows past 2**63
